@@ -1,0 +1,23 @@
+"""levelwise computation core: designs, coding, fitting and prediction.
+
+Pure numpy / pandas / scipy / statsmodels. Nothing here imports Jupyter,
+widget or plotting libraries (``tests/test_imports.py`` proves it).
+"""
+
+from ._errors import LevelwiseError, LevelwiseWarning
+from .design import Design, full_factorial
+from .factors import Factor
+from .fit import Fit, fit
+from .formula import ModelSpec, parse_model
+
+__all__ = [
+    "Design",
+    "Factor",
+    "Fit",
+    "LevelwiseError",
+    "LevelwiseWarning",
+    "ModelSpec",
+    "fit",
+    "full_factorial",
+    "parse_model",
+]

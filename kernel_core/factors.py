@@ -1,0 +1,136 @@
+"""Experimental factors and the coded <-> natural conversion."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ._errors import LevelwiseError, describe
+
+_LETTERS = "ABCDEFGHJKLMNOPQRSTUVWXYZ"  # I is skipped: it reads as 1 and as the identity
+
+
+@dataclass(frozen=True)
+class Factor:
+    """A continuous experimental factor.
+
+    Parameters
+    ----------
+    name : str
+        Non-empty name, unique within a study. Any Unicode text is allowed.
+    low, high : float
+        The natural-unit settings coded as -1 and +1. ``low`` must be below ``high``.
+    units : str, optional
+        Units shown beside the name, e.g. ``"°C"``.
+
+    Examples
+    --------
+    >>> oven = Factor("Oven", 160, 200, units="°C")
+    >>> oven.to_coded(190)
+    0.5
+    >>> oven.to_natural(-1)
+    160.0
+    """
+
+    name: str
+    low: float
+    high: float
+    units: str = ""
+
+    def __post_init__(self):
+        if not isinstance(self.name, str) or not self.name.strip():
+            raise LevelwiseError(
+                f"The 'name' of a Factor must be a non-empty string. Got {describe(self.name)} instead."
+            )
+        for field in ("low", "high"):
+            value = getattr(self, field)
+            if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+                raise LevelwiseError(
+                    f"The '{field}' of factor {self.name!r} must be a finite number. "
+                    f"Got {describe(value)} instead."
+                )
+            if not math.isfinite(float(value)):
+                raise LevelwiseError(
+                    f"The '{field}' of factor {self.name!r} must be a finite number. Got {value!r} instead."
+                )
+            object.__setattr__(self, field, float(value))
+        if not self.low < self.high:
+            raise LevelwiseError(
+                f"Factor {self.name!r}: 'low' must be less than 'high'. "
+                f"Got low={self.low!r}, high={self.high!r} instead."
+            )
+        if not isinstance(self.units, str):
+            raise LevelwiseError(
+                f"The 'units' of factor {self.name!r} must be a string. Got {describe(self.units)} instead."
+            )
+
+    @property
+    def center(self) -> float:
+        """Natural value at coded 0."""
+        return (self.low + self.high) / 2.0
+
+    @property
+    def half_range(self) -> float:
+        """Natural distance from the centre to coded +1."""
+        return (self.high - self.low) / 2.0
+
+    @property
+    def label(self) -> str:
+        """The name with units, e.g. ``"Oven (°C)"``."""
+        return f"{self.name} ({self.units})" if self.units else self.name
+
+    def to_coded(self, natural):
+        """Convert natural units to coded units (-1 at ``low``, +1 at ``high``)."""
+        result = (np.asarray(natural, dtype=float) - self.center) / self.half_range
+        return float(result) if np.ndim(result) == 0 else result
+
+    def to_natural(self, coded):
+        """Convert coded units back to natural units."""
+        result = np.asarray(coded, dtype=float) * self.half_range + self.center
+        return float(result) if np.ndim(result) == 0 else result
+
+
+def default_names(k: int) -> list[str]:
+    """Names for *k* factors: A, B, C, ... skipping I, then A1, B1, ... past Z."""
+    names = []
+    for i in range(k):
+        letter = _LETTERS[i % len(_LETTERS)]
+        suffix = "" if i < len(_LETTERS) else str(i // len(_LETTERS))
+        names.append(letter + suffix)
+    return names
+
+
+def as_factors(factors, parameter: str = "factors") -> tuple[Factor, ...]:
+    """Validate *factors* (a sequence of :class:`Factor`, or an int k) into a tuple.
+
+    An integer k gives k coded factors named A, B, C, ... (skipping I) from -1 to +1.
+    """
+    if isinstance(factors, (int, np.integer)) and not isinstance(factors, bool):
+        if factors < 1:
+            raise LevelwiseError(f"The '{parameter}' count must be at least 1. Got {factors} instead.")
+        return tuple(Factor(name, -1.0, 1.0) for name in default_names(int(factors)))
+    if isinstance(factors, Factor):
+        factors = [factors]
+    try:
+        items = tuple(factors)
+    except TypeError:
+        raise LevelwiseError(
+            f"The '{parameter}' parameter must be a list of Factor or an integer. "
+            f"Got {describe(factors)} instead."
+        ) from None
+    if not items:
+        raise LevelwiseError(f"The '{parameter}' parameter must name at least one factor. Got none.")
+    seen = set()
+    for position, item in enumerate(items):
+        if not isinstance(item, Factor):
+            raise LevelwiseError(
+                f"Item {position} of '{parameter}' must be a Factor. Got {describe(item)} instead."
+            )
+        if item.name in seen:
+            raise LevelwiseError(
+                f"Factor names must be unique. The name {item.name!r} appears more than once in '{parameter}'."
+            )
+        seen.add(item.name)
+    return items
