@@ -95,6 +95,9 @@ class SharedModel(traitlets.HasTraits):
     models = traitlets.Dict(help="Model of each response, Wilkinson notation or preset: {response: model}.")
     exclusions = traitlets.Dict(help="Runs left out of every fit, with the reason: {run id: reason}.")
     response = traitlets.Unicode(help="The response the views display (a display choice).")
+    goals = traitlets.Dict(
+        help="Optimisation goals per response (an exploration choice, allowed read-only): {response: goal dict}."
+    )
     settings = traitlets.Dict(help="Current factor settings, natural units: {factor name: value}.")
     fits = traitlets.Dict(help="Current fit of each response; the dict is replaced on every refit, never mutated.")
     fit = traitlets.Instance(Fit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
@@ -336,6 +339,14 @@ class SharedModel(traitlets.HasTraits):
         """Move some factor settings, e.g. ``shared.set_settings(Oven=195)``."""
         self.settings = {**self.settings, **settings}
 
+    def set_goals(self, goals: dict) -> None:
+        """Set the optimisation goals, ``{response: {"goal": "maximize", ...}}`` (allowed read-only)."""
+        if not isinstance(goals, dict):
+            raise LevelwiseError(f"The 'goals' must be a dict of response -> goal. Got {describe(goals)}.")
+        for name in goals:
+            self._check_response_name(name)
+        self.goals = dict(goals)
+
     def new_study(self, design: Design, responses, *, models=None) -> None:
         """Replace the whole study by a fresh one on *design* with blank responses.
 
@@ -368,6 +379,7 @@ class SharedModel(traitlets.HasTraits):
             self.units = {name: str(units[name]) for name in names}
             self.models = models
             self.exclusions = {}
+            self.goals = {}
             self.response = names[0]
             self.settings = {f.name: f.center for f in design.factors}
             self.study = None
