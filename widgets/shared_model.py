@@ -171,23 +171,32 @@ class SharedModel(traitlets.HasTraits):
     # ----- construction from a kernel_core Study (issue 7), when available -----------------------
     @classmethod
     def from_study(cls, study, *, read_only=False, response=None):
-        """A shared model over a kernel_core ``Study``; changes are written through to it.
+        """A shared model over a :class:`kernel_core.study.Study`; changes are written through to it.
 
-        The study must offer ``factors``, ``data`` (natural units, one column per response),
-        ``responses`` (names, or a mapping name -> units), ``models`` and ``exclusions``.
+        Exclusions, model changes and inclusions made here are recorded in the study (and so in
+        its audit log); save the study to keep them. Exclusions of one response only (a study
+        feature) are applied through the study's data, where that response is blank for the run.
         """
+        data = study.data(apply_exclusions=False)
+        per_response = study.exclusions
+        for row in per_response.itertuples():
+            if row.response is not None and row.run in data.index:
+                data.loc[row.run, row.response] = np.nan
         responses = study.responses
-        units = dict(responses) if isinstance(responses, dict) else {}
         names = list(responses)
+        if not names:
+            raise LevelwiseError("The study has no responses yet: add one with study.add_response(name, units).")
         shared = cls(
             study.factors,
-            study.data,
+            data,
             response=response,
             responses=names,
-            models=dict(getattr(study, "models", {}) or {}),
-            units=units,
-            design=getattr(study, "design", None),
-            exclusions=dict(getattr(study, "exclusions", {}) or {}),
+            models=study.models,
+            units={name: spec.units for name, spec in responses.items()},
+            exclusions={
+                int(row.run): row.reason or "excluded in the study file"
+                for row in per_response.itertuples() if row.response is None
+            },
         )
         with shared._writing():
             shared.study = study
@@ -316,13 +325,34 @@ class SharedModel(traitlets.HasTraits):
         self._refit()
 
     def exclude(self, run, reason: str) -> None:
-        """Leave run *run* out of every fit, for the stated *reason* (refused when read-only)."""
+        """Leave run *run* out of every fit, for the stated *reason* (refused when read-only).
+
+        Each response's fit loses the run by kernel_core's rank-one update (``Fit.exclude``). If the
+        kernel refuses (say the run's leverage is 1), nothing changes and the error says why.
+        """
         self._check_writable("excluding a run")
         run, reason = self._run_id(run), self._reason(reason)
+        if run in self.exclusions:
+            raise LevelwiseError(f"Run {run!r} is already excluded ({self.exclusions[run]}).")
+        label = self.label_of(run)
+        fits = dict(self.fits)
+        try:
+            for name, current in self.fits.items():
+                if label in current.runs:
+                    fits[name] = current.exclude(label, reason)
+        except LevelwiseError as exc:
+            self.error = f"Run {run} was not excluded: {exc}"
+            raise LevelwiseError(self.error) from None
         with self._writing():
             self.exclusions = {**self.exclusions, run: reason}
         self._write_through("exclude", run, reason)
-        self._refit()
+        stale = [name for name in self.responses if name not in self.fits]
+        for name in stale:  # responses without a current fit get a full try
+            try:
+                fits[name] = self._fit_one(name, self.exclusions)
+            except LevelwiseError:
+                pass
+        self._publish(fits, dict(self.errors), [])
 
     def include(self, run) -> None:
         """Put an excluded run back into every fit (refused when read-only)."""
@@ -395,25 +425,43 @@ class SharedModel(traitlets.HasTraits):
                 self.error = f"The study file did not record the change: {exc}"
 
     # ----- refitting ----------------------------------------------------------------------------
-    def fit_data(self) -> pd.DataFrame:
-        """The rows used in fits: ``data`` without the excluded runs."""
+    def excluded_mask(self) -> np.ndarray:
+        """True for every row of ``data`` whose run is excluded."""
         if not self.exclusions:
-            return self.data
-        keep = ~np.isin(self.run_ids().astype(object), np.array(list(self.exclusions), dtype=object))
-        return self.data.loc[keep]
+            return np.zeros(len(self.data), dtype=bool)
+        return np.isin(self.run_ids().astype(object), np.array(list(self.exclusions), dtype=object))
+
+    def label_of(self, run):
+        """The row label of ``data`` for run id *run* (what kernel_core's ``Fit.runs`` holds)."""
+        matches = self.data.index[self.run_ids() == run]
+        if len(matches) != 1:
+            raise LevelwiseError(f"The run id {run!r} must name exactly one row of the data; it names {len(matches)}.")
+        return matches[0]
+
+    def _fit_one(self, name: str, exclusions: dict):
+        """Fit one response on all runs, then leave the excluded runs out by the kernel's fast update."""
+        result = fit(self.data, name, self.models[name], factors=self.factors, level=self.level)
+        for run, reason in exclusions.items():
+            label = self.label_of(run)
+            if label in result.runs:  # a run with no value for this response is not in its fit
+                result = result.exclude(label, reason)
+        return result
 
     def _refit(self, responses=None) -> None:
         """New fits for *responses* (default all); a failure keeps that response's last good fit."""
         targets = list(self.responses) if responses is None else list(responses)
-        data = self.fit_data()
         fits, errors = dict(self.fits), dict(self.errors)
         for name in targets:
             try:
-                fits[name] = fit(data, name, self.models[name], factors=self.factors, level=self.level)
+                fits[name] = self._fit_one(name, self.exclusions)
             except LevelwiseError as exc:
                 errors[name] = f"{name}: {exc}"
             else:
                 errors.pop(name, None)
+        self._publish(fits, errors, targets)
+
+    def _publish(self, fits, errors, targets) -> None:
+        """Replace ``fits`` (one notification) and ``fit`` when the displayed response's fit changed."""
         with self._writing(), self.hold_trait_notifications():
             self.errors = errors
             self.error = next((errors[name] for name in targets if name in errors), "")

@@ -265,6 +265,4 @@ class SurfaceSlice(View):
         data = self.shared.data
         run_x = data[x].to_numpy(dtype=float) if x in data else np.array([])
         run_y = data[y].to_numpy(dtype=float) if y in data else np.array([])
-        excluded = np.array(list(self.shared.exclusions), dtype=object)
-        used = ~np.isin(self.shared.run_ids().astype(object), excluded) if len(excluded) else np.ones(len(data), bool)
-        return run_x, run_y, used
+        return run_x, run_y, ~self.shared.excluded_mask()
