@@ -14,8 +14,8 @@ import json
 
 import ipywidgets as ipw
 
-import widgets
-
+from ._compose import find_view
+from .kernel_guard import silence_tracebacks
 from .study_source import StudySource, open_study, shared_model
 from .summary import CAUTION, fingerprint, fit_numbers, summary_html
 
@@ -39,13 +39,24 @@ def _state_of(shared) -> tuple:
     return shared.data, models, exclusions
 
 
+class ShownHTML(ipw.HTML):
+    """An HTML widget the page only shows: value updates arriving from a browser are ignored.
+
+    A client can send any widget state (see the stack notes); for text the kernel owns, such as
+    the study summary and its fingerprint, there is no legitimate update from the browser.
+    """
+
+    def set_state(self, sync_data):
+        return None
+
+
 class StudyReadout:
     """The study summary in words plus the fingerprint line, kept in step with the shared model."""
 
     def __init__(self, source: StudySource, shared):
         self.source, self.shared = source, shared
-        self.summary = ipw.HTML().add_class("lw-summary")
-        self.fingerprint = ipw.HTML().add_class("lw-fingerprint")
+        self.summary = ShownHTML().add_class("lw-summary")
+        self.fingerprint = ShownHTML().add_class("lw-fingerprint")
         self.refresh()
         shared.observe(self.refresh, names=[n for n in ("fit", "fits", "data", "exclusions") if shared.has_trait(n)])
         self.widget = ipw.VBox([self.summary, self.fingerprint])
@@ -63,10 +74,11 @@ class StudyReadout:
 
 def build(source=None) -> ipw.VBox:
     """The read-only stakeholder page for *source* (a path, ``"demo"``, or None: see :func:`open_study`)."""
+    silence_tracebacks()
     source = source if isinstance(source, StudySource) else open_study(source)
     shared = shared_model(source, read_only=True)
-    title = ipw.HTML(f"<h2>{html.escape(source.title)}</h2>").add_class("lw-title")
-    banner = ipw.HTML(f'<div class="lw-caution">{CAUTION}</div>').add_class("lw-banner")
+    title = ShownHTML(f"<h2>{html.escape(source.title)}</h2>").add_class("lw-title")
+    banner = ShownHTML(f'<div class="lw-caution">{CAUTION}</div>').add_class("lw-banner")
     readout = StudyReadout(source, shared)
     children = [title, banner, readout.widget]
     views = [readout]
@@ -75,11 +87,11 @@ def build(source=None) -> ipw.VBox:
                                     description="Response shown").add_class("lw-response-choice")
         chooser.observe(lambda change: setattr(shared, "response", change["new"]), names="value")
         children.append(chooser)
-    sliders = widgets.FactorSliders(shared)
+    sliders = find_view("FactorSliders")(shared)
     children.append(sliders.widget)
     views.append(sliders)
     for name in READ_ONLY_VIEWS:
-        view_class = getattr(widgets, name, None)
+        view_class = find_view(name)
         if view_class is not None:
             view = view_class(shared)
             children.append(view.widget)
