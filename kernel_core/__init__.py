@@ -21,3 +21,10 @@ __all__ = [
     "full_factorial",
     "parse_model",
 ]
+
+# Design generation (issue 3).
+from .fractional import fold_over, fractional_factorial  # noqa: E402
+from .rsm_designs import box_behnken, central_composite  # noqa: E402
+from .screening import plackett_burman  # noqa: E402
+
+__all__ += ["box_behnken", "central_composite", "fold_over", "fractional_factorial", "plackett_burman"]
