@@ -23,8 +23,19 @@ __all__ = [
 ]
 
 # Design generation (issue 3).
+from .evaluation import DesignEvaluation, evaluate  # noqa: E402
 from .fractional import fold_over, fractional_factorial  # noqa: E402
+from .optimal import optimal_design  # noqa: E402
 from .rsm_designs import box_behnken, central_composite  # noqa: E402
 from .screening import plackett_burman  # noqa: E402
 
-__all__ += ["box_behnken", "central_composite", "fold_over", "fractional_factorial", "plackett_burman"]
+__all__ += [
+    "DesignEvaluation",
+    "box_behnken",
+    "central_composite",
+    "evaluate",
+    "fold_over",
+    "fractional_factorial",
+    "optimal_design",
+    "plackett_burman",
+]
