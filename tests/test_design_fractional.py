@@ -167,3 +167,20 @@ def test_fold_as_block_and_single_factor():
 def test_default_names_in_large_fraction():
     d = fractional_factorial(15, runs=16, randomize=False)
     assert d.factor_names == default_names(15) and d.resolution == 3
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_structure_matches_brute_force_for_random_generators(seed):
+    # Random generator sets (possibly of low resolution) against the brute-force subset count.
+    rng = np.random.default_rng(seed)
+    m = int(rng.integers(3, 6))
+    k = m + int(rng.integers(1, min(5, (1 << m) - m - 1) + 1))
+    names = default_names(k)
+    columns = [c for c in range(1, 1 << m) if bin(c).count("1") >= 2]
+    chosen = rng.choice(columns, size=k - m, replace=False)
+    gens = [f"{names[m + i]}={'-' if rng.random() < 0.3 else ''}"
+            + "".join(names[j] for j in range(m) if int(c) >> j & 1) for i, c in enumerate(chosen)]
+    d = fractional_factorial(k, generators=gens, randomize=False)
+    wlp = brute_force_wlp(factorial_part(d))
+    assert wlp[:2] == (0, 0) and d.word_length_pattern == wlp[2:]
+    assert d.resolution == next(i + 1 for i, c in enumerate(wlp) if c)
