@@ -447,6 +447,20 @@ class SharedModel(traitlets.HasTraits):
                 result = result.exclude(label, reason)
         return result
 
+    def fit_model(self, model: str, response: str | None = None):
+        """A fresh kernel fit of *model* for *response* (default: displayed) on the current runs.
+
+        Nothing in the shared model changes (allowed read-only): views use it to look at a
+        candidate model, e.g. every two-factor interaction for a half-normal plot.
+        """
+        name = self._check_response_name(self.response if response is None else response)
+        result = fit(self.data, name, model, factors=self.factors, level=self.level)
+        for run, reason in self.exclusions.items():
+            label = self.label_of(run)
+            if label in result.runs:
+                result = result.exclude(label, reason)
+        return result
+
     def _refit(self, responses=None) -> None:
         """New fits for *responses* (default all); a failure keeps that response's last good fit."""
         targets = list(self.responses) if responses is None else list(responses)
