@@ -54,11 +54,8 @@ class PredictionsView(View):
         self.table = ipw.HTML().add_class("lw-predictions-table")
         self.add_button = ipw.Button(description="Add current settings").add_class("lw-add-prediction")
         self.row_choice = ipw.Dropdown(description="Row", options=[]).add_class("lw-prediction-row")
-        self.editors = {
-            f.name: ipw.FloatText(description=f.label, style={"description_width": "initial"},
-                                  layout=ipw.Layout(width="200px")).add_class("lw-prediction-edit")
-            for f in shared.factors
-        }
+        self.editors = {}
+        self.editor_box = ipw.HBox(layout=ipw.Layout(flex_flow="row wrap"))
         self.save_button = ipw.Button(description="Save row").add_class("lw-save-prediction")
         self.remove_button = ipw.Button(description="Remove row").add_class("lw-remove-prediction")
         self.download = ipw.HTML().add_class("lw-predictions-csv")
@@ -70,12 +67,27 @@ class PredictionsView(View):
             [
                 self.add_button,
                 self.table,
-                ipw.HBox([self.row_choice, *self.editors.values()], layout=ipw.Layout(flex_flow="row wrap")),
+                ipw.HBox([self.row_choice, self.editor_box]),
                 ipw.HBox([self.save_button, self.remove_button, self.download]),
                 self.status,
             ]
         ).add_class("lw-predictions-view")
+        self.watch(self._on_factors, names=["factors"])
         self.watch(self._render, names=["fits", "error", "units"])
+        self._on_factors()
+
+    def _on_factors(self, change=None):
+        """One editor per factor; a new set of factors starts an empty table."""
+        for box in self.editors.values():
+            box.close()
+        self.editors = {
+            f.name: ipw.FloatText(description=f.label, style={"description_width": "initial"},
+                                  layout=ipw.Layout(width="200px")).add_class("lw-prediction-edit")
+            for f in self.shared.factors
+        }
+        self.editor_box.children = list(self.editors.values())
+        if change is not None:
+            self.rows = []
         self._render()
 
     # ----- methods with a code equivalent -------------------------------------------------------

@@ -193,6 +193,9 @@ class ResidualInspector(View):
         current = self.shared.fit
         if current is None:
             self.detail.value = "No fit yet: record some responses first."
+            for mark in (self.used, self.excluded, self.highlight, self.guides):
+                with mark.hold_sync():
+                    set_if_changed(mark, x=f32([]), y=f32([]))
             return
         diag, used_runs, ex_rows, ex_runs, ex_fitted, ex_resid = self._frames()
         self._shown_runs, self._excluded_runs = used_runs, ex_runs
@@ -327,6 +330,9 @@ class ResidualInspector(View):
 
     def _show_box_cox(self):
         current = self.shared.fit
+        if current is None:
+            self.box_cox.value = ""
+            return
         try:
             result = current.box_cox()
         except LevelwiseError as exc:

@@ -158,16 +158,32 @@ class SurfaceSlice(View):
         self._coalescer = Coalescer(self.safely(self._redraw))
         for control in (self.x_factor, self.y_factor, self.quantity):
             control.observe(self.safely(self._on_choice), names="value")
+        self.watch(self._on_factors, names=["factors"])
         self.watch(self._on_shared, names=["fits", "fit", "settings", "response", "exclusions", "error", "goals"])
         self._redraw()
 
     # ----- events -------------------------------------------------------------------------------
     def _on_choice(self, change):
+        if getattr(self, "_building", False):
+            return
         if self.x_factor.value == self.y_factor.value:
             other = next(f.name for f in self.shared.factors if f.name != self.x_factor.value)
             owner = change["owner"]
             (self.y_factor if owner is self.x_factor else self.x_factor).value = other
             return
+        self._coalescer.request()
+
+    def _on_factors(self, change=None):
+        names = [f.name for f in self.shared.factors]
+        if len(names) < 2:
+            raise LevelwiseError(f"A surface slice needs at least two factors. Got {names}.")
+        self._building = True
+        try:
+            self.x_factor.options, self.y_factor.options = names, names
+            self.x_factor.value, self.y_factor.value = names[0], names[1]
+        finally:
+            self._building = False
+        self._key = None
         self._coalescer.request()
 
     def _on_shared(self, change=None):
