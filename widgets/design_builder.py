@@ -198,6 +198,7 @@ class DesignBuilder(View):
             control.observe(self.safely(self._on_option), names="value")
         self.eval_model.observe(self.safely(self._on_option), names="value")
         self.watch(self._on_study, names=["design", "factors"])
+        self.watch(self.show_shared_error, names=["error"])
         self._on_family()
 
     # ----- factors table ------------------------------------------------------------------------

@@ -140,6 +140,8 @@ class FactorSliders(View):
 
     # ----- browser -> kernel ----------------------------------------------------------------------
     def _on_slider(self, change):
+        if getattr(self, "_restoring", False):
+            return
         name = next(n for n, s in self.sliders.items() if s is change["owner"])
         try:
             self.shared.set_settings(**{name: change["new"]})
@@ -153,8 +155,12 @@ class FactorSliders(View):
         name = next(n for n, s in self.sliders.items() if s is slider)
         factor = self.shared.factor(name)
         if (slider.min, slider.max) != (factor.low, factor.high):
-            with slider.hold_trait_notifications():
+            self._restoring = True  # a clamp caused by restoring the range is not a user's move
+            try:
                 slider.min, slider.max = factor.low, factor.high
+                slider.value = min(max(self.shared.settings[name], factor.low), factor.high)
+            finally:
+                self._restoring = False
 
     # ----- kernel -> browser ----------------------------------------------------------------------
     def _refresh(self, change=None):

@@ -133,7 +133,7 @@ class SurfaceSlice(View):
             marker="square",
         )
         self.targets = bq.Scatter(
-            scales={"x": self.sx, "y": self.sy}, default_opacities=[0.0], default_size=120, marker="square",
+            scales={"x": self.sx, "y": self.sy}, opacities=[0.0], default_size=120, marker="square",
             colors=["#000000"],
         )
         self.targets.on_element_click(self.safely(self._on_click))
