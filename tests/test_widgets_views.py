@@ -123,7 +123,8 @@ def test_readout_covers_every_response_and_the_display_choice_switches_traces():
     gloss = fit(demo_data_two_responses(), "Gloss", "linear", factors=demo.FACTORS)  # kernel reference
     expected = gloss.predict(shared.settings).iloc[0]
     assert "<b>Gloss</b>" in view.readout.value and fmt(expected["mean"]) in view.readout.value
-    shared.response = "Gloss"
+    browser_update(view.response_choice, index=1)  # the display choice, as a browser sends it
+    assert shared.response == "Gloss"
     curve = gloss.trace("Oven", shared.settings, points=view.points)
     assert np.asarray(view._marks["Oven"][2].y) == pytest.approx(curve["mean"], **F32)
     assert shared.fit is shared.fits["Gloss"]
