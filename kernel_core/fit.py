@@ -315,7 +315,9 @@ class Fit:
                 for key, coef in poly.items():
                     for a in range(e + 1):
                         c = coef * math.comb(e, a) * (-var_center[v]) ** (e - a) / var_scale[v] ** e
-                        k2 = tuple(sorted(dict(key, **{v: a}).items())) if a else key
+                        grown = dict(key)
+                        grown[int(v)] = a
+                        k2 = tuple(sorted(grown.items())) if a else key
                         new[k2] = new.get(k2, 0.0) + c
                 poly = new
             for key, coef in poly.items():
@@ -739,20 +741,30 @@ def _scaled_pivoted_qr(X):
 def _inestimable(X, terms, rank):
     """Pick the inestimable columns in model order and say what each equals.
 
-    The later column of each dependency is the one dropped (unpivoted QR of the unit-length
-    columns: ``|R_jj|`` is the distance of column j from the span of the earlier ones).
+    Columns are taken greedily in model order: a column that adds nothing to the span of the
+    columns kept before it (unit-length columns, residual norm after projection below a tolerance)
+    is inestimable, so the later term of each dependency is the one named.
     Returns (kept column indices, {term: "+1*A^2 ..."}).
     """
     norms = np.linalg.norm(X, axis=0)
     norms[norms == 0] = 1.0
-    r = scipy.linalg.qr(X / norms, mode="r")[0]
-    p = X.shape[1]
-    distance = np.abs(np.diag(r[:p, :p])) if r.shape[0] >= p else np.r_[np.abs(np.diag(r)), np.zeros(p - r.shape[0])]
-    dropped = np.sort(np.argsort(distance, kind="stable")[: p - rank])
-    kept = np.setdiff1d(np.arange(p), dropped)
-    if _scaled_pivoted_qr(X[:, kept])[4] < len(kept):  # fall back to the pivoted choice
+    Xs = X / norms
+    tol = 100 * max(X.shape) * np.finfo(float).eps
+    basis = np.empty((X.shape[0], 0))
+    kept = []
+    for j in range(X.shape[1]):
+        v = Xs[:, j].copy()
+        for _ in range(2):  # twice is enough (Gram-Schmidt re-orthogonalisation)
+            v -= basis @ (basis.T @ v)
+        size = np.linalg.norm(v)
+        if size > tol:
+            kept.append(j)
+            basis = np.column_stack([basis, v / size])
+    kept = np.array(kept, dtype=int)
+    if len(kept) != rank:  # borderline case: fall back to the pivoted QR's choice
         piv = _scaled_pivoted_qr(X)[2]
-        dropped, kept = np.sort(piv[rank:]), np.sort(piv[:rank])
+        kept = np.sort(piv[:rank])
+    dropped = np.setdiff1d(np.arange(X.shape[1]), kept)
     weights, *_ = np.linalg.lstsq(X[:, kept], X[:, dropped], rcond=None)
     aliases = {}
     for j, column in enumerate(dropped):
@@ -954,11 +966,10 @@ def fit(
     settings = natural[keep]
     X = spec.matrix(encode(settings, coding_info.center, coding_info.scale, contrasts))
     n, p = X.shape
-    if n < p:
-        raise LevelwiseError(
-            f"The model {model!r} has {p} terms but only {n} usable runs have a value for {response!r}; "
-            "at least as many runs as terms are needed. Drop terms or add runs."
-        )
+    short = (
+        f"The model {model!r} has {p} terms but only {n} usable runs have a value for {response!r}; "
+        "at least as many runs as terms are needed. Drop terms or add runs."
+    )
     q, r, piv, norms, rank = _scaled_pivoted_qr(X)
     aliased = {}
     if rank < p:
@@ -968,6 +979,8 @@ def fit(
             f"The model {model!r} cannot be fully estimated from these runs: {p - rank} term(s) are aliased "
             f"with others. {listing}."
         )
+        if n < p:
+            message = short + " " + message
         if on_rank_deficiency == "raise":
             raise LevelwiseError(
                 message + " Remove the aliased term(s), add runs, or fit with on_rank_deficiency='warn'."
