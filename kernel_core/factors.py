@@ -14,7 +14,7 @@ _LETTERS = "ABCDEFGHJKLMNOPQRSTUVWXYZ"  # I is skipped: it reads as 1 and as the
 
 @dataclass(frozen=True)
 class Factor:
-    """A continuous experimental factor.
+    """An experimental factor: continuous (low/high) or categorical (``levels``).
 
     Parameters
     ----------
@@ -24,6 +24,8 @@ class Factor:
         The natural-unit settings coded as -1 and +1. ``low`` must be below ``high``.
     units : str, optional
         Units shown beside the name, e.g. ``"°C"``.
+    levels : sequence, optional
+        The named levels of a categorical factor (then ``low``/``high`` are not given).
 
     Examples
     --------
@@ -35,15 +37,26 @@ class Factor:
     """
 
     name: str
-    low: float
-    high: float
+    low: float | None = None
+    high: float | None = None
     units: str = ""
+    levels: tuple = ()
 
     def __post_init__(self):
         if not isinstance(self.name, str) or not self.name.strip():
             raise LevelwiseError(
                 f"The 'name' of a Factor must be a non-empty string. Got {describe(self.name)} instead."
             )
+        if self.levels:
+            # A categorical factor: named levels, no low/high.
+            levels = tuple(self.levels) if not isinstance(self.levels, str) else (self.levels,)
+            if len(set(levels)) != len(levels) or len(levels) < 2:
+                raise LevelwiseError(
+                    f"The 'levels' of factor {self.name!r} must be at least two distinct levels. "
+                    f"Got {describe(self.levels)} instead."
+                )
+            object.__setattr__(self, "levels", levels)
+            return
         for field in ("low", "high"):
             value = getattr(self, field)
             if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
@@ -65,6 +78,11 @@ class Factor:
             raise LevelwiseError(
                 f"The 'units' of factor {self.name!r} must be a string. Got {describe(self.units)} instead."
             )
+
+    @property
+    def is_categorical(self) -> bool:
+        """True for a factor with named levels (no low/high)."""
+        return bool(self.levels)
 
     @property
     def center(self) -> float:

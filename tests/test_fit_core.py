@@ -238,3 +238,27 @@ def test_natural_coefficients_match_a_fit_in_natural_units():
     assert none.beta == pytest.approx(ref.params.to_numpy(), rel=1e-8)
     assert none.r_squared == pytest.approx(ref.rsquared, rel=1e-12)  # statsmodels rsquared
     assert coded.r_squared == pytest.approx(ref.rsquared, rel=1e-12)  # coding does not change the fit
+
+
+def test_declared_categorical_factor_uses_its_level_order_and_levels_seen():
+    data = categorical_data()
+    factors = [Factor("Temp", -1, 1), Factor("Supplier", levels=["west", "north", "east", "south"])]
+    result = fit(data, "y", "Temp + Supplier", factors=factors)
+    # "south" was never run: the contrasts cover the three levels seen, in the declared order.
+    assert result.categories == {"Supplier": ("west", "north", "east")}
+    assert result.terms == ("Intercept", "Temp", "Supplier[west]", "Supplier[north]")
+    # Sum-to-zero: the effect of the last level is minus the sum of the others (patsy Sum contrasts, statsmodels).
+    ref = smf.ols("y ~ Temp + C(Supplier, Sum, levels=['west', 'north', 'east'])", data=data).fit()
+    assert result.beta == pytest.approx(ref.params.to_numpy()[[0, 3, 1, 2]], rel=1e-10)
+    with pytest.raises(LevelwiseError, match="level 'south', which was not in the data of this fit"):
+        result.predict({"Temp": 0.0, "Supplier": "south"})
+    bad = data.copy()
+    bad.loc[0, "Supplier"] = "mars"
+    with pytest.raises(LevelwiseError, match="column 'Supplier' holds level 'mars', which is not a level"):
+        fit(bad, "y", "Temp + Supplier", factors=factors)
+
+
+def test_categorical_factor_needs_two_distinct_levels():
+    with pytest.raises(LevelwiseError, match="'levels' of factor 'S' must be at least two distinct levels"):
+        Factor("S", levels=["a"])
+    assert Factor("S", levels=["a", "b"]).is_categorical and not Factor("T", 0, 1).is_categorical
