@@ -728,9 +728,10 @@ def _expand(spec: ModelSpec, names, categories, contrasts):
 
 
 def _scaled_pivoted_qr(X):
-    norms = np.linalg.norm(X, axis=0)
+    norms = np.sqrt(np.einsum("ij,ij->j", X, X))
     norms[norms == 0] = 1.0
-    q, r, piv = scipy.linalg.qr(X / norms, mode="economic", pivoting=True)
+    scaled = np.asfortranarray(X / norms)
+    q, r, piv = scipy.linalg.qr(scaled, mode="economic", pivoting=True, overwrite_a=True, check_finite=False)
     diag = np.abs(np.diag(r))
     n, p = X.shape
     tol = max(n, p) * np.finfo(float).eps * (diag[0] if diag.size else 0.0)
