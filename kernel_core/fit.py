@@ -128,7 +128,7 @@ class Fit:
     rinv : ndarray
         A square root of ``(X'X)^-1`` (the inverse of the R factor; no longer triangular after
         :meth:`exclude` / :meth:`include` updates).
-    settings : ndarray
+    run_settings : ndarray
         (n, k) natural settings used (achieved where recorded); categorical factors hold level indices.
     groups : tuple of (str, tuple of int)
         Each model term (intercept excluded) and its columns; one column per term unless the term
@@ -158,7 +158,7 @@ class Fit:
     beta: np.ndarray = field(repr=False)
     rinv: np.ndarray = field(repr=False)
     rank: int = 0
-    settings: np.ndarray = field(default=None, repr=False)
+    run_settings: np.ndarray = field(default=None, repr=False)
     groups: tuple = ()
     group_exponents: np.ndarray = field(default=None, repr=False)
     factor_names: tuple = ()
@@ -358,7 +358,7 @@ class Fit:
 
         return anova_table(
             self.X, self.y, self.groups, self.group_exponents, self.spec.has_intercept,
-            self.settings, self._centre_indicator,
+            self.run_settings, self._centre_indicator,
         )
 
     @cached_property
@@ -370,7 +370,7 @@ class Fit:
         used = self.group_exponents.any(axis=0) if len(self.group_exponents) else np.zeros(0, bool)
         if not used.any():
             return None
-        coded = self.coding.to_coded(self.settings)[:, used]
+        coded = self.coding.to_coded(self.run_settings)[:, used]
         at_zero = np.abs(coded) < 1e-9
         at_one = np.abs(np.abs(coded) - 1.0) < 1e-9
         centre = at_zero.all(axis=1)
@@ -452,7 +452,7 @@ class Fit:
         rinv = self.rinv + a * np.outer(cx, v)
         keep = np.arange(self.n) != i
         reserve = dict(self._reserve)
-        reserve[run] = (x, self.y[i], self.settings[i], int(self._ordinals[i]))
+        reserve[run] = (x, self.y[i], self.run_settings[i], int(self._ordinals[i]))
         return dataclasses.replace(
             self,
             runs=self.runs[keep],
@@ -460,7 +460,7 @@ class Fit:
             y=self.y[keep],
             beta=beta,
             rinv=rinv,
-            settings=self.settings[keep],
+            run_settings=self.run_settings[keep],
             exclusions=self.exclusions + ((run, reason.strip()),),
             _reserve=reserve,
             _order=self._ordinals[keep],
@@ -490,7 +490,7 @@ class Fit:
             y=np.insert(self.y, i, y_run),
             beta=beta,
             rinv=rinv,
-            settings=np.insert(self.settings, i, setting, axis=0),
+            run_settings=np.insert(self.run_settings, i, setting, axis=0),
             exclusions=tuple(item for item in self.exclusions if item[0] != run),
             _reserve=reserve,
             _order=np.insert(self._ordinals, i, ordinal),
@@ -1023,7 +1023,7 @@ def fit(
         beta=beta,
         rinv=rinv,
         rank=rank,
-        settings=settings,
+        run_settings=settings,
         groups=tuple(groups),
         group_exponents=group_exp,
         factor_names=tuple(names),

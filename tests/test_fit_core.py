@@ -262,3 +262,44 @@ def test_categorical_factor_needs_two_distinct_levels():
     with pytest.raises(LevelwiseError, match="'levels' of factor 'S' must be at least two distinct levels"):
         Factor("S", levels=["a"])
     assert Factor("S", levels=["a", "b"]).is_categorical and not Factor("T", 0, 1).is_categorical
+
+
+def test_natural_coefficients_of_a_non_hierarchical_model_list_the_extra_monomials():
+    data = planned_design()
+    coded = fit(data, "y", "A + A:B", factors=FACTORS3)
+    natural = coded.coefficients_natural
+    # (A-20)/10 * (B-1.5)/0.5 expands to AB/5 - 0.3 A - 4 B + 6 (algebra): B appears although not in the model.
+    assert list(natural.index) == ["Intercept", "A", "A:B", "B"]
+    b = coded.beta
+    assert natural.loc["A:B", "estimate"] == pytest.approx(b[2] / 5)  # algebra above
+    assert natural.loc["B", "estimate"] == pytest.approx(-4 * b[2])  # algebra above
+    assert natural.loc["A", "estimate"] == pytest.approx(b[1] / 10 - 0.3 * b[2])  # algebra above
+    assert natural.loc["Intercept", "estimate"] == pytest.approx(b[0] - 2 * b[1] + 6 * b[2])  # algebra above
+
+
+def test_more_bad_input():
+    data = planned_design()
+    result = fit(data, "y", "A + B", factors=FACTORS3)
+    with pytest.raises(LevelwiseError, match=r"'level' parameter must be a number in the open interval .* Got 0"):
+        result.predict({"A": 20, "B": 1.5, "C": 150}, level=0)
+    with pytest.raises(LevelwiseError, match="setting column 'A' must hold finite numbers"):
+        result.predict({"A": -np.inf, "B": 1.5, "C": 150})
+    with pytest.raises(LevelwiseError, match=r"'run' parameter of include must be an excluded run \[\]. Got 3"):
+        result.include(3)
+    text = data.astype({"B": object})
+    text.loc[4, "B"] = "high"
+    with pytest.raises(LevelwiseError, match=r"factor column 'B' must hold numbers. Row 5 .* holds 'high'"):
+        fit(text, "y", "A + B", factors=FACTORS3)
+    with pytest.raises(LevelwiseError, match="'Zeta' names an unknown factor"):
+        fit(data, "y", "A + Zeta", factors=FACTORS3)
+
+
+def test_extrapolation_by_leverage_inside_the_ranges():
+    # Runs on the diagonal A = B only: a point at (low, high) is inside both ranges but far from every run,
+    # so its leverage exceeds the largest leverage of the design (the rule of issue 4).
+    data = pd.DataFrame({"A": [0.0, 0.5, 1.0, 0.0, 1.0, 0.5], "B": [0.0, 0.5, 1.0, 0.1, 0.9, 0.45]})
+    data["y"] = [1.0, 2.0, 3.1, 1.2, 2.9, 2.1]
+    result = fit(data, "y", "A + B")
+    pred = result.predict(pd.DataFrame({"A": [0.0, 0.5], "B": [1.0, 0.5]}))
+    assert pred["leverage"].iloc[0] > result.leverage.max()
+    assert list(pred["extrapolated"]) == [True, False]
