@@ -40,7 +40,7 @@ from scipy import stats
 from ._errors import LevelwiseError, LevelwiseWarning, describe
 from .design import META_COLUMNS
 from .factors import Factor
-from .formula import ModelSpec, names_in_model, parse_model, term_name
+from .formula import ModelSpec, monomials, names_in_model, parse_model, term_name
 from .prediction import Predictor, encode
 
 #: Suffix of a column holding the achieved setting of a factor: ``"Oven (achieved)"``.
@@ -776,6 +776,63 @@ def _inestimable(X, terms, rank):
     return kept, aliases
 
 
+#: Condition number (of the unit-length columns) above which the solution is recomputed in extended precision.
+EXTENDED_PRECISION_CONDITION = 1e4
+#: Problems with n * p^2 up to this are always solved in extended precision (about a millisecond).
+EXTENDED_PRECISION_WORK = 4e6
+
+
+def _householder_longdouble(A):
+    """Householder QR of *A* (n >= p) in extended precision: (R, reflectors)."""
+    A = A.copy()
+    n, p = A.shape
+    reflectors = []
+    for k in range(p):
+        x = A[k:, k]
+        norm = np.sqrt(x @ x)
+        v = x.copy()
+        v[0] += norm if x[0] >= 0 else -norm
+        vv = v @ v
+        if vv == 0:
+            reflectors.append(None)
+            continue
+        A[k:, k:] -= np.outer(v, (2 / vv) * (v @ A[k:, k:]))
+        reflectors.append((v, vv))
+    return np.triu(A[:p, :p]), reflectors
+
+
+def _back_substitute(R, B):
+    out = np.zeros_like(B)
+    for i in range(R.shape[0] - 1, -1, -1):
+        out[i] = (B[i] - R[i, i + 1 :] @ out[i + 1 :]) / R[i, i]
+    return out
+
+
+def _extended_solution(XL, yL, piv, norms):
+    """Least squares in extended precision (numpy longdouble) for ill-conditioned models.
+
+    The model matrix is rebuilt from the settings in extended precision (so the powers of a
+    high-degree polynomial are not rounded to float64 first), its columns are scaled and put in the
+    pivot order of the float64 QR, and an unpivoted Householder QR is run. Returns float64
+    (beta, rinv, fitted, residuals).
+    """
+    p = XL.shape[1]
+    scale = norms[piv].astype(np.longdouble)
+    R, reflectors = _householder_longdouble(XL[:, piv] / scale)
+    qty = yL.copy()
+    for k, reflector in enumerate(reflectors):
+        if reflector is not None:
+            v, vv = reflector
+            qty[k:] -= v * ((2 / vv) * (v @ qty[k:]))
+    beta = np.empty(p, dtype=np.longdouble)
+    beta[piv] = _back_substitute(R, qty[:p]) / scale
+    rinv = np.empty((p, p), dtype=np.longdouble)
+    rinv[piv] = _back_substitute(R, np.eye(p, dtype=np.longdouble)) / scale[:, None]
+    fitted = XL @ beta
+    residuals = yL - fitted
+    return (beta.astype(float), rinv.astype(float), fitted.astype(float), residuals.astype(float))
+
+
 def _factor_columns(data, names, factors, response):
     """Settings of each factor: (list of float columns, {categorical name: levels})."""
     by_name = {f.name: f for f in factors or ()}
@@ -1012,7 +1069,26 @@ def fit(
     beta = np.empty(p)
     beta[piv] = scipy.linalg.solve_triangular(r, q.T @ y)
     beta /= norms
-    return Fit(
+    precise = None
+    diag = np.abs(np.diag(r))
+    if (
+        p
+        and (n * p * p <= EXTENDED_PRECISION_WORK or diag[0] > EXTENDED_PRECISION_CONDITION * diag[-1])
+        and np.finfo(np.longdouble).eps < np.finfo(float).eps
+    ):
+        # Float64 QR keeps about 16 - log10(condition) digits normwise, and coefficients of small
+        # influence (the intercept of a degree-5 polynomial in natural units) lose more. Small
+        # problems, and ill-conditioned ones of any size, are re-solved in extended precision.
+        settings_ld = settings.astype(np.longdouble)
+        if contrasts:
+            coded_ld = encode(settings, coding_info.center, coding_info.scale, contrasts).astype(np.longdouble)
+        else:
+            coded_ld = (settings_ld - coding_info.center.astype(np.longdouble)) / coding_info.scale.astype(
+                np.longdouble
+            )
+        XL = monomials(coded_ld, spec.exponents, dtype=np.longdouble)
+        beta, rinv, *precise = _extended_solution(XL, y.astype(np.longdouble), piv, norms)
+    result = Fit(
         response=response,
         spec=spec,
         coding=coding_info,
@@ -1033,6 +1109,10 @@ def fit(
         missing_runs=tuple(data.index[~keep]),
         setting_deviations=deviations,
     )
+    if precise:
+        # Keep the extended-precision fitted values and residuals (cached properties are plain entries).
+        result.__dict__["fitted"], result.__dict__["residuals"] = precise
+    return result
 
 
 __all__ = ["ACHIEVED_SUFFIX", "Coding", "Factor", "Fit", "fit", "sum_to_zero"]

@@ -61,12 +61,12 @@ class ModelSpec:
         return monomials(np.asarray(coded, dtype=float), self.exponents)
 
 
-def monomials(coded: np.ndarray, exponents: np.ndarray) -> np.ndarray:
+def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarray:
     """Evaluate every term (a row of *exponents*) at each row of *coded*: an (n, p) matrix."""
     coded = np.atleast_2d(coded)
     # Column-major: each term is one contiguous column, and LAPACK's QR takes it without a copy.
-    columns = np.asfortranarray(coded)
-    out = np.ones((coded.shape[0], exponents.shape[0]), order="F")
+    columns = np.asfortranarray(coded, dtype=dtype)
+    out = np.ones((coded.shape[0], exponents.shape[0]), dtype=dtype, order="F")
     for j, row in enumerate(exponents):
         for i in np.flatnonzero(row):
             power = row[i]
