@@ -120,9 +120,11 @@ class Fit:
     level : float
         Default confidence level.
     runs : pandas.Index
-        Labels (data index) of the runs in the fit.
+        Labels (data index) of the runs in the fit (a property: ``all_runs`` less exclusions).
+    all_runs : pandas.Index
+        Labels of every run with a response, before exclusions.
     X, y : ndarray
-        Model matrix and response of those runs.
+        Model matrix and response of those runs (properties over ``X_all``, ``y_all``).
     beta : ndarray
         Coefficients in coded units, in the order of :attr:`terms`.
     rinv : ndarray
@@ -152,13 +154,13 @@ class Fit:
     spec: ModelSpec
     coding: Coding
     level: float
-    runs: pd.Index
-    X: np.ndarray = field(repr=False)
-    y: np.ndarray = field(repr=False)
+    all_runs: pd.Index
+    X_all: np.ndarray = field(repr=False)
+    y_all: np.ndarray = field(repr=False)
     beta: np.ndarray = field(repr=False)
     rinv: np.ndarray = field(repr=False)
     rank: int = 0
-    run_settings: np.ndarray = field(default=None, repr=False)
+    settings_all: np.ndarray = field(default=None, repr=False)
     groups: tuple = ()
     group_exponents: np.ndarray = field(default=None, repr=False)
     factor_names: tuple = ()
@@ -168,8 +170,37 @@ class Fit:
     missing_runs: tuple = ()
     exclusions: tuple = ()
     setting_deviations: pd.DataFrame | None = field(default=None, repr=False)
-    _reserve: dict = field(default_factory=dict, repr=False)
     _order: np.ndarray = field(default=None, repr=False)
+    _lookup: dict = field(default_factory=dict, repr=False)
+
+    # Exclusions keep the arrays of every run with a response (``*_all``) and change only the
+    # positions in use (``_order``), so an exclusion copies nothing of size n x p.
+    @cached_property
+    def runs(self) -> pd.Index:
+        return self.all_runs if self._order is None else self.all_runs[self._order]
+
+    @cached_property
+    def X(self) -> np.ndarray:
+        """Model matrix of the runs in the fit."""
+        return self.X_all if self._order is None else self.X_all[self._order]
+
+    @cached_property
+    def y(self) -> np.ndarray:
+        """Response of the runs in the fit."""
+        return self.y_all if self._order is None else self.y_all[self._order]
+
+    @cached_property
+    def run_settings(self) -> np.ndarray:
+        """(n, k) natural settings of the runs in the fit (achieved where recorded)."""
+        return self.settings_all if self._order is None else self.settings_all[self._order]
+
+    def _replace(self, **changes) -> Fit:
+        """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace)."""
+        new = object.__new__(Fit)
+        values = {name: self.__dict__[name] for name in _FIELDS}
+        values.update(changes)
+        new.__dict__.update(values)
+        return new
 
     @cached_property
     def _ordinals(self) -> np.ndarray:
@@ -179,7 +210,7 @@ class Fit:
     # ----- basic statistics ------------------------------------------------------------------
     @property
     def n(self) -> int:
-        return len(self.y)
+        return len(self.y_all) if self._order is None else len(self._order)
 
     @property
     def p(self) -> int:
@@ -426,18 +457,18 @@ class Fit:
                 f"The 'reason' parameter of exclude must be a non-empty text saying why run {run!r} is "
                 f"left out. Got {describe(reason)} instead."
             )
-        positions = np.flatnonzero(self.runs == run) if self.n else []
-        if len(positions) != 1:
+        i = self._position(run)
+        if i is None:
             raise LevelwiseError(
                 f"The 'run' parameter of exclude must be a run in this fit {list(self.runs)[:20]}. "
                 f"Got {describe(run)} instead."
             )
-        i = int(positions[0])
         if self.n - 1 < self.p:
             raise LevelwiseError(
                 f"Run {run!r} cannot be excluded: the model has {self.p} terms and only {self.n - 1} runs would remain."
             )
-        x = self.X[i]
+        ordinal = int(self._ordinals[i])
+        x = self.X_all[ordinal]
         v = self.rinv.T @ x
         h = float(v @ v)
         if h > 1.0 - 1e-10:
@@ -445,35 +476,46 @@ class Fit:
                 f"Run {run!r} cannot be excluded: its leverage is 1, so without it at least one term of the "
                 "model could not be estimated. Drop a term or keep the run."
             )
-        e = self.y[i] - x @ self.beta
+        e = self.y_all[ordinal] - x @ self.beta
         cx = self.rinv @ v
         beta = self.beta - cx * e / (1.0 - h)
         a = (1.0 / np.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
         rinv = self.rinv + a * np.outer(cx, v)
-        keep = np.arange(self.n) != i
-        reserve = dict(self._reserve)
-        reserve[run] = (x, self.y[i], self.run_settings[i], int(self._ordinals[i]))
-        return dataclasses.replace(
-            self,
-            runs=self.runs[keep],
-            X=self.X[keep],
-            y=self.y[keep],
+        return self._replace(
             beta=beta,
             rinv=rinv,
-            run_settings=self.run_settings[keep],
             exclusions=self.exclusions + ((run, reason.strip()),),
-            _reserve=reserve,
-            _order=self._ordinals[keep],
+            _order=np.delete(self._ordinals, i),
         )
+
+    def _position(self, run):
+        """Row of *run* among the runs in the fit, or None."""
+        ordinal = self._ordinal_of(run)
+        if ordinal is None:
+            return None
+        i = int(np.searchsorted(self._ordinals, ordinal))
+        return i if i < self.n and self._ordinals[i] == ordinal else None
+
+    def _ordinal_of(self, run):
+        """Position of *run* in :attr:`all_runs` (labels looked up in a dict shared by derived fits)."""
+        lookup = self._lookup
+        if not lookup and self.all_runs.is_unique:
+            lookup.update(zip(self.all_runs, range(len(self.all_runs))))
+        try:
+            ordinal = lookup.get(run)
+        except TypeError:  # an unhashable label
+            return None
+        return ordinal
 
     def include(self, run) -> Fit:
         """A new Fit with an excluded *run* back in, by a rank-one update (Sherman–Morrison)."""
-        if run not in self._reserve:
+        excluded = [label for label, _ in self.exclusions]
+        if run not in excluded:
             raise LevelwiseError(
-                f"The 'run' parameter of include must be an excluded run {list(self._reserve)}. "
-                f"Got {describe(run)} instead."
+                f"The 'run' parameter of include must be an excluded run {excluded}. Got {describe(run)} instead."
             )
-        x, y_run, setting, ordinal = self._reserve[run]
+        ordinal = self._ordinal_of(run)
+        x, y_run = self.X_all[ordinal], self.y_all[ordinal]
         v = self.rinv.T @ x
         h = float(v @ v)
         e = y_run - x @ self.beta
@@ -482,17 +524,10 @@ class Fit:
         a = (1.0 / np.sqrt(1.0 + h) - 1.0) / h if h > 0 else -0.5
         rinv = self.rinv + a * np.outer(cx, v)
         i = int(np.searchsorted(self._ordinals, ordinal))
-        reserve = {k: val for k, val in self._reserve.items() if k != run}
-        return dataclasses.replace(
-            self,
-            runs=self.runs.insert(i, run),
-            X=np.insert(self.X, i, x, axis=0),
-            y=np.insert(self.y, i, y_run),
+        return self._replace(
             beta=beta,
             rinv=rinv,
-            run_settings=np.insert(self.run_settings, i, setting, axis=0),
             exclusions=tuple(item for item in self.exclusions if item[0] != run),
-            _reserve=reserve,
             _order=np.insert(self._ordinals, i, ordinal),
         )
 
@@ -1093,13 +1128,13 @@ def fit(
         spec=spec,
         coding=coding_info,
         level=level,
-        runs=data.index[keep],
-        X=X,
-        y=y,
+        all_runs=data.index[keep],
+        X_all=X,
+        y_all=y,
         beta=beta,
         rinv=rinv,
         rank=rank,
-        run_settings=settings,
+        settings_all=settings,
         groups=tuple(groups),
         group_exponents=group_exp,
         factor_names=tuple(names),
@@ -1114,5 +1149,7 @@ def fit(
         result.__dict__["fitted"], result.__dict__["residuals"] = precise
     return result
 
+
+_FIELDS = tuple(f.name for f in dataclasses.fields(Fit))
 
 __all__ = ["ACHIEVED_SUFFIX", "Coding", "Factor", "Fit", "fit", "sum_to_zero"]
