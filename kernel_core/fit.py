@@ -485,7 +485,7 @@ class Fit:
             beta=beta,
             rinv=rinv,
             exclusions=self.exclusions + ((run, reason.strip()),),
-            _order=np.delete(self._ordinals, i),
+            _order=np.concatenate((self._ordinals[:i], self._ordinals[i + 1 :])),
         )
 
     def _position(self, run):
