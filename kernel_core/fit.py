@@ -31,6 +31,7 @@ import warnings
 from dataclasses import dataclass, field
 from functools import cached_property
 from itertools import product
+from types import MappingProxyType
 
 import numpy as np
 import pandas as pd
@@ -92,6 +93,14 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
             f"The {role} column {column!r} must hold finite numbers. Row {row + 1} holds {array[row]!r} instead."
         )
     return array
+
+
+def _read_only(*arrays):
+    """Mark arrays read-only, so a Fit's numbers cannot be changed in place."""
+    for array in arrays:
+        if isinstance(array, np.ndarray):
+            array.flags.writeable = False
+    return arrays if len(arrays) > 1 else arrays[0]
 
 
 def _is_text_column(values: pd.Series) -> bool:
@@ -482,8 +491,8 @@ class Fit:
         a = (1.0 / np.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
         rinv = self.rinv + a * np.outer(cx, v)
         return self._replace(
-            beta=beta,
-            rinv=rinv,
+            beta=_read_only(beta),
+            rinv=_read_only(rinv),
             exclusions=self.exclusions + ((run, reason.strip()),),
             _order=np.concatenate((self._ordinals[:i], self._ordinals[i + 1 :])),
         )
@@ -525,8 +534,8 @@ class Fit:
         rinv = self.rinv + a * np.outer(cx, v)
         i = int(np.searchsorted(self._ordinals, ordinal))
         return self._replace(
-            beta=beta,
-            rinv=rinv,
+            beta=_read_only(beta),
+            rinv=_read_only(rinv),
             exclusions=tuple(item for item in self.exclusions if item[0] != run),
             _order=np.insert(self._ordinals, i, ordinal),
         )
@@ -1123,6 +1132,7 @@ def fit(
             )
         XL = monomials(coded_ld, spec.exponents, dtype=np.longdouble)
         beta, rinv, *precise = _extended_solution(XL, y.astype(np.longdouble), piv, norms)
+    _read_only(X, y, beta, rinv, settings, group_exp)
     result = Fit(
         response=response,
         spec=spec,
@@ -1139,14 +1149,14 @@ def fit(
         group_exponents=group_exp,
         factor_names=tuple(names),
         contrasts=contrasts,
-        categories=categories,
-        aliased=aliased,
+        categories=MappingProxyType(categories),
+        aliased=MappingProxyType(aliased),
         missing_runs=tuple(data.index[~keep]),
         setting_deviations=deviations,
     )
     if precise:
         # Keep the extended-precision fitted values and residuals (cached properties are plain entries).
-        result.__dict__["fitted"], result.__dict__["residuals"] = precise
+        result.__dict__["fitted"], result.__dict__["residuals"] = _read_only(*precise)
     return result
 
 

@@ -303,3 +303,17 @@ def test_extrapolation_by_leverage_inside_the_ranges():
     pred = result.predict(pd.DataFrame({"A": [0.0, 0.5], "B": [1.0, 0.5]}))
     assert pred["leverage"].iloc[0] > result.leverage.max()
     assert list(pred["extrapolated"]) == [True, False]
+
+
+def test_fit_is_immutable_and_exclusion_leaves_the_original_alone():
+    data = planned_design()
+    result = fit(data, "y", "A + B + C", factors=FACTORS3)
+    before = result.beta.copy()
+    with pytest.raises(ValueError):  # numpy: assignment destination is read-only
+        result.beta[0] = 0.0
+    with pytest.raises(AttributeError):  # frozen dataclass
+        result.level = 0.9
+    reduced = result.exclude(2, "spilled sample")
+    assert result.beta == pytest.approx(before, rel=0, abs=0) and result.n == len(data)
+    assert reduced.exclusions == ((2, "spilled sample"),) and result.exclusions == ()
+    assert reduced.orthogonality["excluded_runs"] == (2,)
