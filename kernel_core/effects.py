@@ -46,6 +46,13 @@ def effects(fit) -> pd.Series:
     >>> effects(fit(d, "y", "A + B")).round(3).to_dict()
     {'A': 2.25, 'B': 1.25}
     """
+    coding = fit.coding
+    low, high = np.asarray(coding.low, float), np.asarray(coding.high, float)
+    if not np.allclose([coding.center, coding.scale], [(low + high) / 2, (high - low) / 2], rtol=1e-12, atol=0):
+        raise LevelwiseError(
+            "Effects need a fit in coded units (-1 at each factor's low, +1 at its high); this fit was made with "
+            "coding='none'. Refit with coding='auto'."
+        )
     rows = _two_level_rows(fit)
     terms = [fit.spec.terms[i] for i in rows]
     values = 2.0 * np.asarray(fit.beta, dtype=float)[rows]
