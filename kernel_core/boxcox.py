@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
-from scipy import optimize, stats
+from scipy import stats
 
 from ._errors import LevelwiseError
 
@@ -87,6 +87,8 @@ def box_cox(fit, level: float = 0.95, bounds=(-5.0, 5.0)) -> BoxCoxResult:
         A response value that is zero or negative (the transform needs positive values),
         or a fit without residual degrees of freedom.
     """
+    from scipy import optimize  # imported here: slow to import, needed only here
+
     y = np.asarray(fit.y, dtype=float)
     if not 0 < level < 1:
         raise LevelwiseError(f"The 'level' parameter must be in the open interval (0, 1). Got {level!r} instead.")

@@ -14,7 +14,6 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy import optimize as sopt
 
 from ._errors import LevelwiseError, describe
 
@@ -290,12 +289,20 @@ def _factor_union(fits: dict) -> tuple[list[str], dict]:
 
 
 def _mean_function(fit, names: list[str]):
-    """Fast mean prediction from a (m, k_all) array of natural settings."""
+    """Fast mean prediction from an (m, k_all) array of natural settings (no DataFrames, no Python loops)."""
     columns = [names.index(n) for n in fit.factor_names]
-    predictor = getattr(fit, "predictor", None)
-    if predictor is not None and hasattr(predictor, "rows"):
+    exponents = getattr(fit.spec, "exponents", None)
+    if exponents is not None and np.shape(exponents) == (len(fit.beta), len(fit.factor_names)):
+        exponents = np.asarray(exponents, dtype=float)
+        center = np.asarray(fit.coding.center, dtype=float)
+        scale = np.asarray(fit.coding.scale, dtype=float)
         beta = np.asarray(fit.beta, dtype=float)
-        return lambda natural: predictor.rows(natural[:, columns]) @ beta
+
+        def mean(natural):
+            coded = (natural[:, columns] - center) / scale
+            return np.prod(coded[:, None, :] ** exponents[None, :, :], axis=2) @ beta
+
+        return mean
     return lambda natural: fit.predict(pd.DataFrame(natural[:, columns], columns=list(fit.factor_names)))[
         "mean"
     ].to_numpy()
@@ -329,6 +336,8 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     LevelwiseError
         A goal for a response without a fit, a bad region, or constraints no setting in the region meets.
     """
+    from scipy import optimize as sopt  # imported here: it is slow to import and only needed here
+
     if not isinstance(fits, dict) or not fits:
         raise LevelwiseError(
             f"The 'fits' parameter must be a non-empty dict of response -> Fit. Got {describe(fits)} instead."
