@@ -82,6 +82,9 @@ class Goal:
     importance: float = 1.0
 
     def __post_init__(self):
+        spelled = {"maximise": "maximize", "minimise": "minimize"}
+        if isinstance(self.kind, str) and self.kind.lower() in spelled:
+            object.__setattr__(self, "kind", spelled[self.kind.lower()])
         if self.kind not in GOAL_KINDS:
             raise LevelwiseError(f"A goal's 'kind' must be one of {GOAL_KINDS}. Got {describe(self.kind)} instead.")
         for name in ("low", "target", "high", "s", "t", "importance"):

@@ -130,6 +130,18 @@ def test_linear_constraint_is_respected(fits):
         optimize(fits, GOALS, constraints=["X9 <= 1"])
 
 
+def test_goals_as_dicts_give_the_same_optimum(fits):
+    as_dicts = {
+        "Y1": {"goal": "maximise", "low": 120, "target": 170},  # British spelling accepted
+        "Y2": {"goal": "maximize", "low": 1000, "target": 1300},
+        "Y3": {"goal": "target", "low": 400, "target": 500, "high": 600},
+        "Y4": {"goal": "target", "low": 60, "target": 67.5, "high": 75},
+    }
+    assert optimize(fits, as_dicts, seed=4, starts=4).settings == optimize(fits, GOALS, seed=4, starts=4).settings
+    with pytest.raises(LevelwiseError, match="unknown key"):
+        optimize(fits, {"Y1": {"goal": "maximize", "low": 1, "taget": 2}})
+
+
 def test_same_seed_same_answer(fits):
     a = optimize(fits, GOALS, seed=5, starts=5)
     b = optimize(fits, GOALS, seed=5, starts=5)

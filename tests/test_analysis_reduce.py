@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from kernel_core import Factor, LevelwiseError, fit, reduce
+from kernel_core import Factor, LevelwiseError, fit, reduce, refit
 
 CODED = [Factor(name, -1, 1) for name in ("X1", "X2", "X3")]
 
@@ -94,3 +94,32 @@ def test_saturated_fit_is_refused(data_dir):
         reduce(fit(data, "Y", "X1*X2*X3", factors=CODED))
     with pytest.raises(LevelwiseError, match="'alpha'"):
         reduce(fit(data, "Y", "X1 + X2", factors=CODED), alpha=0)
+
+
+@pytest.mark.parametrize("coding", ["auto", "none"])
+def test_refit_on_fewer_terms_equals_a_direct_fit(interaction_data, coding):
+    data, _ = interaction_data
+    full = fit(data, "y", "(Temp + C + I)**2", coding=coding)
+    keep = full.spec.exponents[[0, 1, 2, 3, 4]]  # Intercept, Temp, C, I, Temp:C
+    smaller = refit(full, keep)
+    direct = fit(data, "y", "Temp + C + I + Temp:C", coding=coding)
+    assert smaller.terms == direct.terms
+    # the same least-squares problem (reference: a direct fit of the smaller formula)
+    assert smaller.coefficients["estimate"].to_numpy() == pytest.approx(
+        direct.coefficients["estimate"].to_numpy(), rel=1e-12, abs=1e-12)
+    assert smaller.s == pytest.approx(direct.s, rel=1e-12)
+    with_data = refit(full, keep, data=data)
+    assert with_data.coefficients["estimate"].to_numpy() == pytest.approx(
+        direct.coefficients["estimate"].to_numpy(), rel=1e-12, abs=1e-12)
+
+
+def test_refit_keeps_only_the_runs_of_the_fit(interaction_data):
+    data, _ = interaction_data
+    gappy = data.copy()
+    gappy.loc[[2, 9], "y"] = np.nan  # two missing responses leave the fit
+    full = fit(gappy, "y", "(Temp + C + I)**2")
+    final, _ = reduce(full)
+    direct = fit(gappy.dropna(), "y", " + ".join(t for t in final.terms if t != "Intercept"))
+    assert final.n == 14
+    assert final.coefficients["estimate"].to_numpy() == pytest.approx(
+        direct.coefficients["estimate"].to_numpy(), rel=1e-12, abs=1e-12)  # reference: a direct fit
