@@ -13,12 +13,21 @@ import pandas as pd
 from scipy import stats
 
 from ._errors import LevelwiseError, describe
+from ._fitview import categorical_names
 
 
 def _two_level_rows(fit) -> np.ndarray:
-    """Indices of model terms that are products of distinct factors (no powers), intercept excluded."""
+    """Indices of model columns that are products of distinct factors (no powers), intercept excluded.
+
+    A term spread over several columns (a categorical factor with more than two levels) has no
+    single effect and is left out.
+    """
     exponents = np.asarray(fit.spec.exponents)
-    return np.flatnonzero(exponents.any(axis=1) & (exponents.max(axis=1, initial=0) <= 1))
+    keep = exponents.any(axis=1) & (exponents.max(axis=1, initial=0) <= 1)
+    for _, columns in getattr(fit, "groups", None) or ():
+        if len(columns) > 1:
+            keep[list(columns)] = False
+    return np.flatnonzero(keep)
 
 
 def effects(fit) -> pd.Series:
@@ -47,8 +56,10 @@ def effects(fit) -> pd.Series:
     {'A': 2.25, 'B': 1.25}
     """
     coding = fit.coding
-    low, high = np.asarray(coding.low, float), np.asarray(coding.high, float)
-    if not np.allclose([coding.center, coding.scale], [(low + high) / 2, (high - low) / 2], rtol=1e-12, atol=0):
+    continuous = [name not in categorical_names(fit) for name in coding.names]
+    low, high = np.asarray(coding.low, float)[continuous], np.asarray(coding.high, float)[continuous]
+    center, scale = np.asarray(coding.center, float)[continuous], np.asarray(coding.scale, float)[continuous]
+    if not np.allclose([center, scale], [(low + high) / 2, (high - low) / 2], rtol=1e-12, atol=0):
         raise LevelwiseError(
             "Effects need a fit in coded units (-1 at each factor's low, +1 at its high); this fit was made with "
             "coding='none'. Refit with coding='auto'."

@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ._errors import LevelwiseError, describe
+from ._fitview import categorical_names
 
 
 def _check_shape(shape) -> tuple[int, int]:
@@ -51,6 +52,12 @@ def _slice_factors(fit, x, y) -> tuple[int, int]:
             )
     if x == y:
         raise LevelwiseError(f"The 'x' and 'y' parameters must name two different factors. Got {x!r} twice.")
+    for parameter, value in (("x", x), ("y", y)):
+        if value in categorical_names(fit):
+            raise LevelwiseError(
+                f"The '{parameter}' parameter must be a continuous factor; {value!r} is categorical. "
+                "Slice over two continuous factors and set the categorical one in 'settings'."
+            )
     return names.index(x), names.index(y)
 
 
@@ -84,7 +91,8 @@ def _is_polynomial(fit) -> bool:
     """True when the model is a polynomial in the factors (one exponent column per factor)."""
     exponents = getattr(fit.spec, "exponents", None)
     return (
-        exponents is not None
+        not categorical_names(fit)
+        and exponents is not None
         and np.ndim(exponents) == 2
         and np.shape(exponents) == (len(fit.beta), len(fit.factor_names))
         and hasattr(fit, "rinv")
@@ -211,11 +219,22 @@ def slice_grid(fit, x: str, y: str, settings=None, shape=(100, 100), level: floa
         out = evaluate_polynomials(slice_polynomials(fit, x, y, settings, level), xs, ys)
     else:
         # Not a plain polynomial (e.g. categorical terms): point predictions on the grid.
-        base = _base_settings(fit, settings)
-        grid = np.repeat(base[None, :], nx * ny, axis=0)
+        given = dict(settings or {})
         xx, yy = np.meshgrid(xs, ys)
-        grid[:, ix], grid[:, iy] = xx.ravel(), yy.ravel()
-        frame = pd.DataFrame(grid, columns=list(fit.factor_names))
+        frame = pd.DataFrame(index=range(nx * ny))
+        for j, name in enumerate(fit.factor_names):
+            if name == x:
+                frame[name] = xx.ravel()
+            elif name == y:
+                frame[name] = yy.ravel()
+            elif name in given:
+                frame[name] = [given[name]] * (nx * ny)
+            elif name in categorical_names(fit):
+                raise LevelwiseError(
+                    f"The 'settings' parameter must give a level of categorical factor {name!r}. Got none."
+                )
+            else:
+                frame[name] = (fit.coding.low[j] + fit.coding.high[j]) / 2.0
         points = fit.predict(frame, level=_check_level(fit, level))
         mean = points["mean"].to_numpy()
         out = {
