@@ -414,7 +414,7 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     if parsed:
         ok = (to_natural(screen) @ a_ub.T <= b_ub + 1e-12).all(axis=1)
         screen = screen[ok]
-        if len(screen) < starts:  # a thin feasible region: start from its Chebyshev-like centre too
+        if len(screen) < starts:  # a thin feasible region: add a feasible point found by linear programming
             centre = sopt.linprog(np.zeros(len(names)), A_ub=a_ub * span, b_ub=b_ub - a_ub @ lower,
                                   bounds=[(0, 1)] * len(names), method="highs").x
             screen = np.vstack([screen, centre[None, :]])
