@@ -122,6 +122,10 @@ def test_linear_constraint_is_respected(fits):
     best = optimize(fits, GOALS, region={n: (-ALPHA, ALPHA) for n in NAMES}, constraints=["X1 + X2 <= -0.5"],
                     seed=2)
     assert best.settings["X1"] + best.settings["X2"] <= -0.5 + 1e-9
+    # a thin feasible corner that random screening rarely hits: the answer still meets both constraints
+    thin = optimize(fits, GOALS, constraints=["X1 + X2 >= 1.99", "X3 <= -0.999"], seed=1, starts=5)
+    assert thin.settings["X1"] + thin.settings["X2"] >= 1.99 - 1e-9
+    assert thin.settings["X3"] <= -0.999 + 1e-9
     with pytest.raises(LevelwiseError, match="region is empty"):
         optimize(fits, GOALS, constraints=["X1 + X2 >= 2.5"])  # the cube's largest X1 + X2 is 2
     with pytest.raises(LevelwiseError, match="must be linear|multiplies"):
