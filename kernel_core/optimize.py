@@ -269,7 +269,7 @@ class Optimum:
     overall : float
         The overall desirability D.
     starts : pandas.DataFrame
-        The local optimum reached from each start (settings and D), best first.
+        The local optimum reached from each start (settings and ``overall_D``), best first.
     """
 
     settings: dict
@@ -406,8 +406,9 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
         d = np.column_stack([goal_objects[r](means[r](natural)) for r in responses])
         return overall_desirability(d, importance)
 
-    # Work in [0, 1]^k so that step sizes are comparable across factors.
-    span = np.where(upper > lower, upper - lower, 1.0)
+    # Work in [0, 1]^k so that step sizes are comparable across factors (a factor fixed by the region
+    # has span 0 and stays put).
+    span = upper - lower
     to_natural = lambda u: lower + np.atleast_2d(u) * span  # noqa: E731
     rng = np.random.default_rng(seed)
     screen = rng.random((max(200 * len(names), 50 * int(starts)), len(names)))
@@ -452,7 +453,7 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     predictions.index.name = "response"
     d = pd.Series({r: float(goal_objects[r](predictions.loc[r, "mean"])) for r in responses}, name="d")
     table = pd.DataFrame([to_natural(u)[0] for _, u in results], columns=names)
-    table["D"] = [v for v, _ in results]
+    table["overall_D"] = [v for v, _ in results]
     return Optimum(settings=settings, predictions=predictions, desirability=d, overall=float(best_value),
                    starts=table)
 

@@ -146,6 +146,14 @@ def test_goals_as_dicts_give_the_same_optimum(fits):
         optimize(fits, {"Y1": {"goal": "maximize", "low": 1, "taget": 2}})
 
 
+def test_a_factor_fixed_by_the_region_stays_fixed(fits):
+    best = optimize(fits, GOALS, region={"X3": (-1.0, -1.0)}, seed=6, starts=5)
+    assert best.settings["X3"] == -1.0
+    # e-Handbook 5.5.3.2.2: with X3 = -1 the published optimum x* = (-0.10, 0.15, -1.0), D = 0.596
+    assert best.overall == pytest.approx(0.596, abs=1e-3)
+    assert best.starts["overall_D"].iloc[0] == best.overall
+
+
 def test_same_seed_same_answer(fits):
     a = optimize(fits, GOALS, seed=5, starts=5)
     b = optimize(fits, GOALS, seed=5, starts=5)
