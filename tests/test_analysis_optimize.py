@@ -209,5 +209,7 @@ def test_steepest_path_follows_the_coded_coefficients():
     descent = steepest_path(result, step=0.5, steps=4, ascent=False)
     assert descent.direction.to_numpy() == pytest.approx(-path.direction.to_numpy())
     assert descent.path["mean"].is_monotonic_decreasing
+    keyed = steepest_path(result, step=0.25, steps=2, key="Dose")
+    assert keyed.direction.to_numpy() == pytest.approx(0.25 * b / abs(b[1]), rel=1e-12)  # Dose moves 0.25 per step
     with pytest.raises(LevelwiseError, match="first-order model"):
         steepest_path(fit(data, "y", "Time * Dose", factors=factors))
