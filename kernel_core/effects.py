@@ -173,7 +173,7 @@ def half_normal(fit) -> pd.DataFrame:
     the half-normal quantile Phi^-1(0.5 + 0.5 p_i) = ``scipy.stats.halfnorm.ppf(p_i)`` at the
     plotting position p_i = (i - 0.5) / m. That position is the usual (Hazen) choice for
     probability plots (common practice); half-normal plots of effects are due to Daniel
-    (1959), Technometrics 1(4) 311-341.
+    (1959), Technometrics 1(4) 311-341 (citation from memory).
 
     Returns
     -------
