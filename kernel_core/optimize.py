@@ -483,8 +483,8 @@ def steepest_path(fit, step: float = 1.0, steps: int = 10, ascent: bool = True, 
                   ) -> SteepestPath:
     """Points along the path of steepest ascent (descent) from the centre of a first-order model.
 
-    The direction in coded units is the vector of first-order coefficients b (Box & Wilson
-    1951), or -b for descent. Each step moves the *key* factor (by default the one with the
+    The direction in coded units is the vector of first-order coefficients b (common practice; Box & Wilson
+    1951, from memory), or -b for descent. Each step moves the *key* factor (by default the one with the
     largest |b|) by *step* coded units and every other factor by step * b_i / |b_key|.
 
     Parameters

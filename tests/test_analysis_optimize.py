@@ -196,7 +196,7 @@ def test_steepest_path_follows_the_coded_coefficients():
     result = fit(data, "y", "Time + Dose", factors=factors)
     b = result.coefficients["estimate"][["Time", "Dose"]].to_numpy()
     path = steepest_path(result, step=0.5, steps=4)
-    # Box & Wilson (1951): the path moves along the coded first-order coefficients
+    # common practice (Box & Wilson 1951, from memory): the path moves along the coded first-order coefficients
     assert path.direction.to_numpy() == pytest.approx(0.5 * b / abs(b[0]), rel=1e-12)
     coded_path = path.coded.to_numpy()
     cross = coded_path[1:, 0] * b[1] - coded_path[1:, 1] * b[0]
