@@ -1,7 +1,7 @@
 """Box-Cox power transformation of the response: lambda by profile likelihood, with a 95 % interval.
 
 For the model's columns X and a positive response y, the profile log-likelihood of the
-power lambda (Box & Cox 1964, J. R. Stat. Soc. B 26, 211-252) is, up to a constant,
+power lambda (Box & Cox 1964, J. R. Stat. Soc. B 26, 211-252; citation from memory) is, up to a constant,
 
     llf(lambda) = (lambda - 1) sum(log y) - n/2 log(SSE(lambda) / n),
 
