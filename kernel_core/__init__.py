@@ -4,11 +4,12 @@ Pure numpy / pandas / scipy / statsmodels. Nothing here imports Jupyter,
 widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
-from ._errors import LevelwiseError, LevelwiseWarning
+from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
 from .design import Design, full_factorial
 from .factors import Factor
 from .fit import Fit, fit
 from .formula import ModelSpec, parse_model
+from .study import Study
 
 __all__ = [
     "Design",
@@ -20,4 +21,8 @@ __all__ = [
     "fit",
     "full_factorial",
     "parse_model",
+    "Study",
+    "StudyFileError",
+    "OutsideEditError",
+    "ImportDataError",
 ]

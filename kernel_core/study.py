@@ -244,7 +244,7 @@ def migrate_v0(document: dict) -> dict:
     data = {
         "title": document.get("title", ""),
         "factors": factors,
-        "responses": {name: {"units": response.get("units", ""), "goal": "none", "target": None}},
+        "responses": [{"name": name, "units": response.get("units", ""), "goal": "none", "target": None}],
         "stages": [{"name": stage, "description": "runs of a format-0 file", "created": when}],
         "runs": new_runs,
         "exclusions": [
@@ -648,7 +648,7 @@ class Study:
 
     def fits(self, *, level: float = 0.95) -> dict:
         """A :class:`~kernel_core.fit.Fit` for every response that has a model."""
-        return {response: self.fit(response, level=level) for response in self._models}
+        return {response: self.fit(response, level=level) for response in self._responses if response in self._models}
 
     # ----- the file --------------------------------------------------------------------------
     def to_dict(self) -> dict:
@@ -661,7 +661,7 @@ class Study:
             {
                 "title": self._title,
                 "factors": [{"name": f.name, "low": f.low, "high": f.high, "units": f.units} for f in self._factors],
-                "responses": self._responses,
+                "responses": [{"name": name, **spec} for name, spec in self._responses.items()],
                 "stages": self._stages,
                 "runs": runs,
                 "exclusions": self._exclusions,
@@ -842,14 +842,15 @@ class Study:
             fail("data.factors", str(exc))
         study._audit = [dict(entry) for entry in audit]
         names = set(study.factor_names)
-        for name, spec in data["responses"].items():
+        for i, spec in enumerate(data["responses"]):
+            name = spec["name"]
             try:
                 _name(name, "response name")
-                if name in names:
-                    raise LevelwiseError(f"the response name {name!r} is also a factor name")
+                if name in names or name in study._responses:
+                    raise LevelwiseError(f"the response name {name!r} is used twice (or is also a factor name)")
                 study._responses[name] = cls._response_spec(name, spec["units"], spec["goal"], spec["target"])
             except LevelwiseError as exc:
-                fail(f"data.responses.{name}", str(exc))
+                fail(f"data.responses[{i}]", str(exc))
         for i, stage in enumerate(data["stages"]):
             if any(s["name"] == stage["name"] for s in study._stages):
                 fail(f"data.stages[{i}].name", f"the stage name {stage['name']!r} appears twice")
