@@ -476,11 +476,8 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         changes = [(kind, renumber.get(run_id, run_id), key, value) for kind, run_id, key, value in changes]
     for key, units in new_units.items():
         study.add_response(key, units=units)
-    for kind, run_id, key, value in changes:
-        if kind == "achieved":
-            study.record_achieved(run_id, key, value, overwrite=overwrite, reason=reason)
-        else:
-            study.record(run_id, key, value, overwrite=overwrite, reason=reason)
+    if changes:
+        study._record_many(changes, overwrite=overwrite, reason=reason, source=name)
     return ImportReport(source=name, runs_added=added, values_recorded=len(changes), warnings=tuple(warnings))
 
 

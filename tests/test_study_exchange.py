@@ -126,7 +126,8 @@ def test_overwrite_needs_the_flag():
         import_table(study, data)
     report = import_table(study, data, overwrite=True, reason="re-measured")
     assert report.values_recorded == 1 and study.data().loc[1, "Impact"] == 7.5
-    assert study.audit[-1].reason == "re-measured" and "(was 7.0)" in study.audit[-1].what
+    assert study.audit[-2].reason == "re-measured" and "Impact = 7.5 (was 7.0)" in study.audit[-2].what
+    assert study.audit[-1].action == "import" and "1 replaced a recorded value" in study.audit[-1].what
     # The same value again is not a conflict and changes nothing.
     assert import_table(study, data).values_recorded == 0
 
