@@ -507,9 +507,11 @@ class Study:
             bad = ~np.isfinite(values)
             if bad.any():
                 row = int(np.flatnonzero(bad)[0])
+                raw = table[f.name].iloc[row]
+                raw = raw.item() if isinstance(raw, np.generic) else raw
                 raise LevelwiseError(
                     f"The planned setting of factor {f.name!r} in row {row + 1} of the design must be a finite "
-                    f"number. Got {describe(table[f.name].iloc[row])} instead."
+                    f"number. Got {describe(raw)} instead."
                 )
             settings[f.name] = values
         block = self._int_column(table, "block", 1, n)
