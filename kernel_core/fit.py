@@ -565,7 +565,15 @@ class Fit:
         if isinstance(settings, pd.DataFrame):
             frame = settings
         elif isinstance(settings, dict):
-            frame = pd.DataFrame({key: np.atleast_1d(value) for key, value in settings.items()})
+            columns = {key: np.atleast_1d(value) for key, value in settings.items()}
+            lengths = {len(v) for v in columns.values()} - {1}
+            if len(lengths) > 1 or any(np.ndim(v) != 1 for v in columns.values()):
+                raise LevelwiseError(
+                    "The 'settings' values must be single numbers or lists of one common length. "
+                    f"Got {describe(settings)} instead."
+                )
+            n = lengths.pop() if lengths else 1
+            frame = pd.DataFrame({key: np.resize(v, n) if len(v) == 1 else v for key, v in columns.items()})
         else:
             raise LevelwiseError(
                 "The 'settings' parameter must be a dict or DataFrame of factor settings in natural units. "
