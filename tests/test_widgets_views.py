@@ -422,3 +422,18 @@ def test_bytes_per_slider_event_are_float32_and_only_what_changed(monkeypatch, c
     with capsys.disabled():
         print(f"\n[bytes to the browser per slider event] non-axis factor: {other_factor} B; "
               f"slice axis factor: {axis_factor} B")
+
+
+def test_run_sheet_export_is_the_kernel_writer_output(shared, views, tmp_path):
+    from kernel_core import read_run_sheet, write_run_sheet
+
+    builder = views["builder"]
+    builder.family.value = "box_behnken"
+    builder.responses.value = "Impact (J)"
+    reference = tmp_path / "reference.csv"
+    write_run_sheet(builder.design, reference, responses=("Impact",))  # kernel_core called directly
+    assert builder.export("csv") == reference.read_bytes()
+    builder.export("xlsx", path=tmp_path / "sheet.xlsx")
+    back = read_run_sheet(tmp_path / "sheet.xlsx")
+    assert len(back.table) == len(builder.design) and "Impact" in back.responses
+    assert "run sheet (CSV)" in builder.downloads.value and "run sheet (XLSX)" in builder.downloads.value

@@ -12,7 +12,8 @@ from __future__ import annotations
 
 import base64
 import html
-import io
+import os
+import tempfile
 
 import ipywidgets as ipw
 import numpy as np
@@ -30,6 +31,7 @@ from kernel_core import (
     full_factorial,
     optimal_design,
     plackett_burman,
+    write_run_sheet,
 )
 
 from ._base import View
@@ -420,21 +422,13 @@ class DesignBuilder(View):
         )
 
     def _exports(self, design: Design) -> None:
-        """Run-sheet downloads, through kernel_core's run-sheet export when it is available."""
-        try:
-            from kernel_core import runsheet  # noqa: F401 - issue 3's run-sheet module
-        except ImportError:
-            self.downloads.value = (
-                '<span class="lw-export-unavailable">Run-sheet export (CSV, XLSX) needs kernel_core.runsheet, '
-                "which this installation does not have yet.</span>"
-            )
-            return
+        """Run-sheet downloads (CSV and XLSX), written by ``kernel_core.write_run_sheet``."""
         links = []
         for kind, mime in (("csv", "text/csv"),
                            ("xlsx", "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet")):
             try:
                 payload = self.export(kind)
-            except (LevelwiseError, AttributeError) as exc:
+            except LevelwiseError as exc:
                 links.append(f"{kind.upper()} not available ({html.escape(str(exc))})")
                 continue
             data = base64.b64encode(payload).decode("ascii")
@@ -443,19 +437,22 @@ class DesignBuilder(View):
             )
         self.downloads.value = "Download: " + " · ".join(links)
 
-    def export(self, kind: str) -> bytes:
-        """The previewed run sheet as CSV or XLSX bytes, written by kernel_core.runsheet."""
-        from kernel_core import runsheet
-
+    def export(self, kind: str, path=None) -> bytes:
+        """The previewed run sheet as CSV or XLSX bytes (also written to *path* when given)."""
         if self.design is None:
             raise LevelwiseError("Build a design first.")
+        if kind not in ("csv", "xlsx"):
+            raise LevelwiseError(f"The export kind must be 'csv' or 'xlsx'. Got {kind!r} instead.")
         responses = tuple(parse_responses(self.responses.value))
-        buffer = io.BytesIO()
-        writer = {"csv": getattr(runsheet, "write_csv", None), "xlsx": getattr(runsheet, "write_xlsx", None)}.get(kind)
-        if writer is None:
-            raise LevelwiseError(f"kernel_core.runsheet has no writer for {kind!r}.")
-        writer(self.design, buffer, responses=responses)
-        return buffer.getvalue()
+        with tempfile.TemporaryDirectory() as folder:
+            target = os.path.join(folder, f"run-sheet.{kind}")
+            write_run_sheet(self.design, target, responses=responses)
+            with open(target, "rb") as handle:
+                payload = handle.read()
+        if path is not None:
+            with open(path, "wb") as handle:
+                handle.write(payload)
+        return payload
 
     # ----- the study ----------------------------------------------------------------------------
     def create_study(self) -> None:
