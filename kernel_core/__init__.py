@@ -4,7 +4,7 @@ Pure numpy / pandas / scipy / statsmodels. Nothing here imports Jupyter,
 widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
-from ._errors import LevelwiseError, LevelwiseWarning
+from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
 from .boxcox import BoxCoxResult, box_cox
 from .design import Design, full_factorial
 from .effects import LenthResult, effects, half_normal, lenth
@@ -24,6 +24,7 @@ from .optimize import (
     target,
 )
 from .reduce import Reduction, reduce, refit
+from .study import Study
 from .surface import slice_grid, slice_polynomials
 
 __all__ = [
@@ -81,4 +82,8 @@ __all__ += [
     "read_run_sheet",
     "run_sheet",
     "write_run_sheet",
+    "Study",
+    "StudyFileError",
+    "OutsideEditError",
+    "ImportDataError",
 ]

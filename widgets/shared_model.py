@@ -45,6 +45,16 @@ class ReadOnlyError(LevelwiseError):
     """A change was asked of a read-only shared model."""
 
 
+class _NoneChecked(traitlets.Instance):
+    """An Instance trait whose validators also see ``None`` (traitlets skips them for None by default),
+    so that setting it to None cannot slip past the read-only guard."""
+
+    def _validate(self, obj, value):
+        if value is None and self.allow_none:
+            return self._cross_validate(obj, value) if obj._cross_validation_lock is False else value
+        return super()._validate(obj, value)
+
+
 class SharedModel(traitlets.HasTraits):
     """The study (factors, design, data, responses, models, exclusions, settings) with its current fits.
 
@@ -88,7 +98,7 @@ class SharedModel(traitlets.HasTraits):
     """
 
     factors = traitlets.Tuple(help="The study's factors (kernel_core.Factor), in column order.")
-    design = traitlets.Instance(Design, allow_none=True, help="The planned design, when known.")
+    design = _NoneChecked(Design, allow_none=True, help="The planned design, when known.")
     data = traitlets.Instance(pd.DataFrame, help="The runs, natural units, one column per factor and response.")
     responses = traitlets.Tuple(help="Names of the response columns of the study.")
     units = traitlets.Dict(help="Units of each response: {response: units}.")
@@ -100,12 +110,14 @@ class SharedModel(traitlets.HasTraits):
     )
     settings = traitlets.Dict(help="Current factor settings, natural units: {factor name: value}.")
     fits = traitlets.Dict(help="Current fit of each response; the dict is replaced on every refit, never mutated.")
-    fit = traitlets.Instance(Fit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
+    fit = _NoneChecked(Fit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
     errors = traitlets.Dict(help="Message of the last failed refit of each response.")
     error = traitlets.Unicode("", help="Message of the last failed refit or rejected change ('' when none).")
     level = traitlets.Float(0.95, read_only=True, help="Confidence level of every interval shown.")
     read_only = traitlets.Bool(False, read_only=True, help="When true, only settings and display choices change.")
-    study = traitlets.Any(None, help="The kernel_core Study this model writes through to, when it wraps one.")
+    study = _NoneChecked(
+        object, allow_none=True, help="The kernel_core Study this model writes through to, when it wraps one."
+    )
 
     def __init__(
         self,
@@ -444,6 +456,20 @@ class SharedModel(traitlets.HasTraits):
         for run, reason in exclusions.items():
             label = self.label_of(run)
             if label in result.runs:  # a run with no value for this response is not in its fit
+                result = result.exclude(label, reason)
+        return result
+
+    def fit_model(self, model: str, response: str | None = None):
+        """A fresh kernel fit of *model* for *response* (default: displayed) on the current runs.
+
+        Nothing in the shared model changes (allowed read-only): views use it to look at a
+        candidate model, e.g. every two-factor interaction for a half-normal plot.
+        """
+        name = self._check_response_name(self.response if response is None else response)
+        result = fit(self.data, name, model, factors=self.factors, level=self.level)
+        for run, reason in self.exclusions.items():
+            label = self.label_of(run)
+            if label in result.runs:
                 result = result.exclude(label, reason)
         return result
 
