@@ -14,7 +14,7 @@ VIEW_MODULES = {
     "SurfaceSlice": "surface_slice",
     "ResidualInspector": "residual_inspector",
     "PredictionsView": "predictions_view",
-    "OptimiserView": "optimiser_view",
+    "OptimizerView": "optimizer_view",
 }
 
 

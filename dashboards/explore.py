@@ -19,7 +19,7 @@ from .summary import CAUTION
 #: Views of the workbench, in page order, each built on the shared model when widgets provides it.
 WORKBENCH_VIEWS = (
     "DesignBuilder", "EffectsView", "FactorSliders", "SurfaceSlice", "ResidualInspector", "PredictionsView",
-    "OptimiserView",
+    "OptimizerView",
 )
 
 

@@ -23,8 +23,11 @@ pytestmark = pytest.mark.browser
 
 #: Widget models whose presence in a read-only page would offer a change to the model or data.
 MUTATING_SELECTORS = [
-    # Buttons other than the figures' own pan/zoom toolbars and the display choices (response, slice quantity).
-    "button:not(.toolbar_div button):not(.lw-response-choice button):not(.lw-slice-quantity button)",
+    # Every button but: the figures' own pan/zoom toolbars, the display choices (response shown, slice quantity),
+    # "Add current settings" (a row of the viewer's own prediction list) and "Use these settings" (moves the
+    # sliders to the optimum). None of these touches the data, the models or the exclusions.
+    "button:not(.toolbar_div button):not(.lw-response-choice button):not(.lw-slice-quantity button)"
+    ":not(.lw-add-prediction):not(.lw-use-optimum)",
     "input[type=text]", "input[type=file]", "textarea", "input[type=checkbox]",
     ".widget-text", ".widget-textarea", ".widget-upload", ".widget-checkbox",
 ]
