@@ -51,8 +51,11 @@ def chromium_path() -> str:
     return CHROMIUM if os.path.exists(CHROMIUM) else shutil.which("chromium")
 
 
-@pytest.fixture(scope="session")
+@pytest.fixture(scope="module")
 def browser(chromium_path):
+    """One Chromium per test module. Not per session: while playwright's sync API is running it leaves an
+    asyncio loop running in this thread, and the views' refresh coalescing (widgets/_base.py) then defers
+    work to that loop, so headless widget tests collected after a browser module would see stale views."""
     from playwright.sync_api import sync_playwright
 
     with sync_playwright() as pw:

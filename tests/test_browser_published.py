@@ -246,3 +246,21 @@ def test_report_viewer_kernel_memory(opened):
     ARTIFACTS.mkdir(exist_ok=True)
     (ARTIFACTS / "published_kernel_memory.txt").write_text(f"{rss:.0f} MB\n")
     print(f"\nmemory of one viewer kernel: {rss:.0f} MB resident")
+
+
+def test_bound_to_loopback_only(served_published):
+    """The server listens on 127.0.0.1 only (read from the kernel's socket table, /proc/net/tcp)."""
+    url, _ = served_published
+    port = int(url.rstrip("/").rsplit(":", 1)[1])
+    listening = []
+    for table in ("/proc/net/tcp", "/proc/net/tcp6"):
+        try:
+            lines = Path(table).read_text().splitlines()[1:]
+        except OSError:
+            continue
+        for line in lines:
+            local, state = line.split()[1], line.split()[3]
+            address, hex_port = local.rsplit(":", 1)
+            if int(hex_port, 16) == port and state == "0A":  # 0A: LISTEN
+                listening.append(address)
+    assert listening and set(listening) <= {"0100007F", "00000000000000000000000001000000"}, listening

@@ -6,6 +6,8 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
+import urllib.error
+import urllib.request
 
 import pytest
 
@@ -135,3 +137,43 @@ def test_the_connection_class_is_importable_and_subclasses_jupyter_servers():
     assert issubclass(V1OnlyWebsocketConnection, ZMQChannelsWebsocketConnection)
     assert offered_subprotocols("v1.kernel.websocket.jupyter.org,  x ") == ["v1.kernel.websocket.jupyter.org", "x"]
     assert offered_subprotocols("") == []
+
+
+def test_view_with_a_token_refuses_requests_without_it(published_board):
+    """A live ``levelwise view DIR --token T`` (no preheating, to be quick): no token, no page."""
+    from conftest import free_port, start_cli_server, stop_server
+
+    port = free_port()
+    proc, output = start_cli_server(["view", str(published_board), "--token", "s3cret-t0ken", "--pool-size", "0"],
+                                    port)
+    try:
+        assert output.wait_for(f"http://127.0.0.1:{port}/?token=s3cret-t0ken", timeout=10)  # serve/view print the URL
+
+        def status(path):
+            request = urllib.request.Request(f"http://127.0.0.1:{port}/{path}")
+            opener = urllib.request.build_opener(NoRedirect)
+            try:
+                with opener.open(request, timeout=30) as response:
+                    return response.status
+            except urllib.error.HTTPError as exc:
+                return exc.code
+
+        assert status("") in (302, 403)  # sent to the login page or refused
+        assert status("?token=wrong") in (302, 403)
+        assert status("?token=s3cret-t0ken") == 200
+    finally:
+        stop_server(proc)
+
+
+class NoRedirect(urllib.request.HTTPRedirectHandler):
+    """Report a redirect as its own status instead of following it."""
+
+    def redirect_request(self, *args, **kwargs):
+        return None
+
+
+@pytest.fixture(scope="module")
+def published_board(tmp_path_factory):
+    out = tmp_path_factory.mktemp("token") / "board"
+    assert cli.main(["publish", "demo", "--out", str(out)]) == 0
+    return out

@@ -8,12 +8,11 @@ import re
 
 import numpy as np
 import pytest
+from conftest import SCREENSHOTS
 
 from dashboards.cli import main
 from dashboards.export_html import write_export
 from dashboards.study_source import open_study
-
-SCREENSHOTS = __import__("pathlib").Path(__file__).parent.parent / "docs" / "screenshots"
 
 
 @pytest.fixture(scope="module")
@@ -59,7 +58,7 @@ def test_export_payload_escapes_script_end(tmp_path):
 
 @pytest.mark.browser
 def test_export_computes_offline_like_the_kernel(export_file, browser):
-    context = browser.new_context(viewport={"width": 1300, "height": 1400})
+    context = browser.new_context(viewport={"width": 1300, "height": 1100})
     page = context.new_page()
     requests = []
 
@@ -105,6 +104,6 @@ def test_export_computes_offline_like_the_kernel(export_file, browser):
     assert not errors
     assert all(url.startswith("file://") for url in requests)
     SCREENSHOTS.mkdir(parents=True, exist_ok=True)
-    page.screenshot(path=str(SCREENSHOTS / "offline-export.png"), full_page=True)
+    page.screenshot(path=str(SCREENSHOTS / "offline-export.png"))
     context.close()
     assert np.isfinite(after["responses"][source.responses[0]]["pi_high"])
