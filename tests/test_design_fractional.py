@@ -184,3 +184,15 @@ def test_structure_matches_brute_force_for_random_generators(seed):
     wlp = brute_force_wlp(factorial_part(d))
     assert wlp[:2] == (0, 0) and d.word_length_pattern == wlp[2:]
     assert d.resolution == next(i + 1 for i, c in enumerate(wlp) if c)
+
+
+def test_blocks_reach_highest_orders():
+    # 2^7 in 8 blocks: the best block contrasts form the [7,3,4] simplex code, all seven of order 4
+    # (from memory: coding theory, the dual of the Hamming code).
+    d = full_factorial(7, blocks=8, randomize=False)
+    assert len(d.block_confounded) == 7 and {len(e) for e in d.block_confounded} == {4}
+    # 2 blocks: the highest-order interaction (common practice).
+    assert full_factorial(6, blocks=2, randomize=False).block_confounded == ["ABCDEF"]
+    # 2^15 in 4 blocks: three contrasts, each of order >= 10 is possible (weights 10, 10, 10 overlap in 5).
+    big = full_factorial(15, blocks=4, randomize=False)
+    assert min(len(e) for e in big.block_confounded) >= 10
