@@ -99,6 +99,8 @@ def test_bad_generators_and_runs():
         fractional_factorial(9, runs=8)
     with pytest.raises(LevelwiseError, match="No regular fraction of 6 factors in 16 runs reaches resolution 5"):
         fractional_factorial(6, runs=16, resolution=5)
+    with pytest.raises(LevelwiseError, match=r"'runs' parameter \(16\) is more than the 8 distinct runs"):
+        fractional_factorial(3, runs=16)
     with pytest.raises(LevelwiseError, match="needs 'runs', 'generators' or 'resolution'"):
         fractional_factorial(5)
 
