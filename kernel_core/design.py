@@ -218,7 +218,7 @@ def column_of(basic: np.ndarray, mask: int) -> np.ndarray:
     return out
 
 
-def choose_block_generators(m: int, k: int, factor_columns, words, b: int, names) -> list[int]:
+def choose_block_generators(m: int, k: int, factor_columns, b: int) -> list[int]:
     """Block generators (masks over the m basic factors) for 2^b blocks.
 
     Each nonzero column c of the basic factorial carries an alias class of effects; the block contrasts
@@ -338,8 +338,7 @@ def build_two_level(factors, m, gen_masks, gen_signs, *, center_points, replicat
     columns += [sign * column_of(basic, mask) for mask, sign in zip(gen_masks, gen_signs)]
     corners = np.column_stack(columns)
     factor_columns = [1 << j for j in range(m)] + list(gen_masks)
-    words = []
-    block_gens = choose_block_generators(m, k, factor_columns, words, b, [f.name for f in factors]) if b else []
+    block_gens = choose_block_generators(m, k, factor_columns, b) if b else []
     block_cols = np.column_stack([column_of(basic, g) for g in block_gens]) if b else np.zeros((len(basic), 0))
     block_no = 1 + ((block_cols < 0).astype(int) * (1 << np.arange(b))).sum(axis=1) if b else np.ones(len(basic), int)
     structure = structure_from_runs(corners, [f.name for f in factors], block_cols if b else None, generators)
