@@ -313,6 +313,11 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     n_fixed = len(fixed)
     for start in range(starts):
         new = sample_region(G, h, k, runs, rng)
+        # Start on the candidate levels where that stays feasible, so untouched coordinates are clean levels.
+        snapped = np.column_stack([grids[j][np.abs(new[:, [j]] - grids[j][None, :]).argmin(axis=1)]
+                                   for j in range(k)])
+        feasible = np.all(snapped @ G.T <= h + 1e-12, axis=1) if len(G) else np.ones(runs, dtype=bool)
+        new[feasible] = snapped[feasible]
         new[:, discrete] = np.where(new[:, discrete] < 0, -1.0, 1.0)
         points = np.vstack([fixed, new])
         F = model_rows(points)
