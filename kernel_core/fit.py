@@ -96,6 +96,9 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
     return array
 
 
+_PLAIN_NUMBERS = (int, float, np.float64, np.float32, np.int64, np.int32)
+
+
 def _read_only(*arrays):
     """Mark arrays read-only, so a Fit's numbers cannot be changed in place."""
     for array in arrays:
@@ -567,6 +570,17 @@ class Fit:
         Categorical factors are given by level and become level indices; a level that was not in
         the data is an error (it has no estimated effect).
         """
+        if isinstance(settings, dict) and not self.categories:
+            # Fast path for the interactive case (one setting of plain numbers); anything else, and
+            # every error message, goes through the general path below.
+            try:
+                row = [settings[name] for name in self.factor_names]
+            except KeyError:
+                row = None
+            if row is not None and all(type(v) in _PLAIN_NUMBERS for v in row):
+                array = np.array([row], dtype=float)
+                if np.isfinite(array).all():
+                    return array
         if isinstance(settings, pd.DataFrame):
             frame = settings
         elif isinstance(settings, dict):
@@ -641,12 +655,18 @@ class Fit:
             )
         base = self.settings_array(settings)[0]
         j = self.factor_names.index(factor)
-        if factor in self.categories:
-            labels = np.array(self.categories[factor], dtype=object)
-            x = np.arange(len(labels), dtype=float)
-        else:
-            labels = x = np.linspace(self.coding.low[j], self.coding.high[j], int(points))
-        grid = np.repeat(base[None, :], len(x), axis=0)
+        grids = self.__dict__.setdefault("_trace_grids", {})  # the x values per (factor, points), cached
+        key = (j, int(points))
+        if key not in grids:
+            if factor in self.categories:
+                labels = np.array(self.categories[factor], dtype=object)
+                grids[key] = (labels, np.arange(len(labels), dtype=float))
+            else:
+                x = np.linspace(self.coding.low[j], self.coding.high[j], int(points))
+                grids[key] = (x, x)
+        labels, x = grids[key]
+        grid = np.empty((len(x), len(base)))
+        grid[:] = base
         grid[:, j] = x
         mean, ci_half, pi_half = self.predictor.intervals(grid, level)
         return {"x": labels, "mean": mean, "ci_half": ci_half, "pi_half": pi_half}

@@ -62,15 +62,33 @@ class ModelSpec:
 
 
 def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarray:
-    """Evaluate every term (a row of *exponents*) at each row of *coded*: an (n, p) matrix."""
-    coded = np.atleast_2d(coded)
-    # Column-major: each term is one contiguous column, and LAPACK's QR takes it without a copy.
-    columns = np.asfortranarray(coded, dtype=dtype)
-    out = np.ones((coded.shape[0], exponents.shape[0]), dtype=dtype, order="F")
-    for j, row in enumerate(exponents):
-        for i in np.flatnonzero(row):
-            power = row[i]
-            out[:, j] *= columns[:, i] if power == 1 else columns[:, i] ** power
+    """Evaluate every term (a row of *exponents*) at each row of *coded*: an (n, p) matrix.
+
+    Powers are built by repeated multiplication (a small table per factor, x^0 .. x^max), then each
+    factor's column of the table is gathered by the exponents, so there is no ``pow`` per entry.
+    The result is column-major, as LAPACK's QR wants it.
+    """
+    coded = np.atleast_2d(np.asarray(coded, dtype=dtype))
+    m, p = coded.shape[0], exponents.shape[0]
+    k = coded.shape[1]
+    if m * exponents.size <= 50_000 and k:
+        # Few rows (the interactive path): one power table for all factors, one gather, one product.
+        top = int(exponents.max(initial=0))
+        table = np.empty((m, k, top + 1), dtype=dtype)
+        table[:, :, 0] = 1.0
+        for d in range(1, top + 1):
+            table[:, :, d] = table[:, :, d - 1] * coded
+        return np.asfortranarray(table[:, np.arange(k)[None, :], exponents].prod(axis=2))
+    out = np.ones((m, p), dtype=dtype, order="F")
+    for i in np.flatnonzero(exponents.any(axis=0)):
+        column = exponents[:, i]
+        top = int(column.max())
+        table = np.empty((top + 1, m), dtype=dtype)
+        table[0] = 1.0
+        for d in range(1, top + 1):
+            table[d] = table[d - 1] * coded[:, i]
+        used = np.flatnonzero(column)
+        out[:, used] *= table[column[used]].T
     return out
 
 

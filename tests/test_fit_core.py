@@ -318,3 +318,17 @@ def test_fit_is_immutable_and_exclusion_leaves_the_original_alone():
     assert result.beta == pytest.approx(before, rel=0, abs=0) and result.n == len(data)
     assert reduced.exclusions == ((2, "spilled sample"),) and result.exclusions == ()
     assert reduced.orthogonality["excluded_runs"] == (2,)
+
+
+@pytest.mark.parametrize("model", ["quadratic", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
+def test_compiled_predictor_rows_equal_the_product_of_powers(model):
+    rng = np.random.default_rng(12)
+    data = pd.DataFrame(rng.uniform(-1, 1, (40, 3)), columns=list("ABC"))
+    data["y"] = rng.normal(size=40)
+    result = fit(data, "y", model)
+    for m in (1, 7, 300):
+        natural = rng.uniform(-1, 1, (m, len(result.factor_names)))
+        coded = (natural - result.coding.center) / result.coding.scale
+        # Direct definition (common practice): each term is the product of coded factors to their powers.
+        expected = np.prod(coded[:, None, :] ** result.spec.exponents[None, :, :], axis=2)
+        assert result.predictor.rows(natural) == pytest.approx(expected, rel=1e-13, abs=1e-15)
