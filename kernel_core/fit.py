@@ -435,12 +435,22 @@ class Fit:
 
     @cached_property
     def max_abs_correlation(self) -> float:
-        """Largest |correlation| between two non-constant model columns (0 for an orthogonal design)."""
-        X = self.X[:, np.ptp(self.X, axis=0) > 0] if self.n else self.X
-        if X.shape[1] < 2:
+        """Largest |correlation| between two non-constant model columns of different terms.
+
+        0 for an orthogonal design. The contrast columns of one categorical term are correlated by
+        construction (0.5 for sum-to-zero contrasts in a balanced design), so pairs within a term are
+        left out.
+        """
+        X = self.X
+        varying = np.flatnonzero(np.ptp(X, axis=0) > 0) if self.n else np.zeros(0, dtype=int)
+        if len(varying) < 2:
             return 0.0
-        corr = np.corrcoef(X, rowvar=False)
-        np.fill_diagonal(corr, 0.0)
+        corr = np.corrcoef(X[:, varying], rowvar=False)
+        term_of = np.full(self.p, -1)
+        for g, (_, cols) in enumerate(self.groups):
+            term_of[list(cols)] = g
+        same = term_of[varying][:, None] == term_of[varying][None, :]
+        corr[same] = 0.0
         return float(np.abs(corr).max())
 
     @property

@@ -332,3 +332,11 @@ def test_compiled_predictor_rows_equal_the_product_of_powers(model):
         # Direct definition (common practice): each term is the product of coded factors to their powers.
         expected = np.prod(coded[:, None, :] ** result.spec.exponents[None, :, :], axis=2)
         assert result.predictor.rows(natural) == pytest.approx(expected, rel=1e-13, abs=1e-15)
+
+
+def test_balanced_categorical_design_counts_as_orthogonal():
+    result = fit(categorical_data(), "y", "Temp * Supplier")
+    # Balanced 2 x 3 layout: columns of different terms are uncorrelated (common practice); the two contrast
+    # columns of Supplier are correlated 0.5 by construction and are not a loss of orthogonality.
+    assert result.max_abs_correlation == pytest.approx(0.0, abs=1e-12)
+    assert abs(np.corrcoef(result.X[:, 2], result.X[:, 3])[0, 1]) == pytest.approx(0.5)  # numpy corrcoef
