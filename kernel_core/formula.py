@@ -64,9 +64,8 @@ class ModelSpec:
 def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarray:
     """Evaluate every term (a row of *exponents*) at each row of *coded*: an (n, p) matrix.
 
-    Powers are built by repeated multiplication (a small table per factor, x^0 .. x^max), then each
-    factor's column of the table is gathered by the exponents, so there is no ``pow`` per entry.
-    The result is column-major, as LAPACK's QR wants it.
+    Each power of each factor is computed once and shared by the terms that use it. The result is
+    column-major, as LAPACK's QR wants it.
     """
     coded = np.atleast_2d(np.asarray(coded, dtype=dtype))
     m, p = coded.shape[0], exponents.shape[0]
@@ -79,16 +78,21 @@ def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarr
         for d in range(1, top + 1):
             table[:, :, d] = table[:, :, d - 1] * coded
         return np.asfortranarray(table[:, np.arange(k)[None, :], exponents].prod(axis=2))
+    # Many rows (building a model matrix): contiguous power columns per factor, one product per term.
     out = np.ones((m, p), dtype=dtype, order="F")
+    powers = {}
     for i in np.flatnonzero(exponents.any(axis=0)):
-        column = exponents[:, i]
-        top = int(column.max())
-        table = np.empty((top + 1, m), dtype=dtype)
-        table[0] = 1.0
-        for d in range(1, top + 1):
-            table[d] = table[d - 1] * coded[:, i]
-        used = np.flatnonzero(column)
-        out[:, used] *= table[column[used]].T
+        first = np.ascontiguousarray(coded[:, i])
+        # x ** d rounds once (repeated products would round d - 1 times).
+        powers[i] = [None, first] + [first**d for d in range(2, int(exponents[:, i].max()) + 1)]
+    for j, row in enumerate(exponents):
+        factors = np.flatnonzero(row)
+        if not len(factors):
+            continue
+        column = out[:, j]
+        np.copyto(column, powers[factors[0]][row[factors[0]]])
+        for i in factors[1:]:
+            np.multiply(column, powers[i][row[i]], out=column)
     return out
 
 
