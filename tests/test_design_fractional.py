@@ -99,6 +99,8 @@ def test_bad_generators_and_runs():
         fractional_factorial(9, runs=8)
     with pytest.raises(LevelwiseError, match="No regular fraction of 6 factors in 16 runs reaches resolution 5"):
         fractional_factorial(6, runs=16, resolution=5)
+    with pytest.raises(LevelwiseError, match=r"'runs' parameter \(16\) is more than the 8 distinct runs"):
+        fractional_factorial(3, runs=16)
     with pytest.raises(LevelwiseError, match="needs 'runs', 'generators' or 'resolution'"):
         fractional_factorial(5)
 
@@ -167,3 +169,45 @@ def test_fold_as_block_and_single_factor():
 def test_default_names_in_large_fraction():
     d = fractional_factorial(15, runs=16, randomize=False)
     assert d.factor_names == default_names(15) and d.resolution == 3
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_structure_matches_brute_force_for_random_generators(seed):
+    # Random generator sets (possibly of low resolution) against the brute-force subset count.
+    rng = np.random.default_rng(seed)
+    m = int(rng.integers(3, 6))
+    k = m + int(rng.integers(1, min(5, (1 << m) - m - 1) + 1))
+    names = default_names(k)
+    columns = [c for c in range(1, 1 << m) if bin(c).count("1") >= 2]
+    chosen = rng.choice(columns, size=k - m, replace=False)
+    gens = [f"{names[m + i]}={'-' if rng.random() < 0.3 else ''}"
+            + "".join(names[j] for j in range(m) if int(c) >> j & 1) for i, c in enumerate(chosen)]
+    d = fractional_factorial(k, generators=gens, randomize=False)
+    wlp = brute_force_wlp(factorial_part(d))
+    assert wlp[:2] == (0, 0) and d.word_length_pattern == wlp[2:]
+    assert d.resolution == next(i + 1 for i, c in enumerate(wlp) if c)
+
+
+def test_blocks_reach_highest_orders():
+    # 2^7 in 8 blocks: the best block contrasts form the [7,3,4] simplex code, all seven of order 4
+    # (from memory: coding theory, the dual of the Hamming code).
+    d = full_factorial(7, blocks=8, randomize=False)
+    assert len(d.block_confounded) == 7 and {len(e) for e in d.block_confounded} == {4}
+    # 2 blocks: the highest-order interaction (common practice).
+    assert full_factorial(6, blocks=2, randomize=False).block_confounded == ["ABCDEF"]
+    # 2^15 in 4 blocks: three contrasts, each of order >= 10 is possible (weights 10, 10, 10 overlap in 5).
+    big = full_factorial(15, blocks=4, randomize=False)
+    assert min(len(e) for e in big.block_confounded) >= 10
+
+
+def test_search_is_bounded_and_keeps_a_valid_design():
+    from kernel_core.fractional import minimum_aberration
+
+    # A 2^(17-11) search cut short by a tiny node budget still returns a design, flagged incomplete; the
+    # odd-weight incumbent has resolution IV (all words of even length: a counting argument, common practice).
+    masks, pattern, complete = minimum_aberration(17, 6, budget=5)
+    assert not complete and len(masks) == 11 and len(set(masks)) == 11
+    assert pattern[:3] == (0, 0, 0)
+    basic = np.array(list(itertools.product((-1, 1), repeat=6)))
+    added = [np.prod(basic[:, [j for j in range(6) if mask >> j & 1]], axis=1) for mask in masks]
+    assert brute_force_wlp(np.column_stack([basic, *added]))[:3] == (0, 0, 0)

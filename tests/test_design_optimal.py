@@ -127,3 +127,27 @@ def test_evaluate_inestimable_and_vif():
     assert np.isinf(ev.vif).all()
     with pytest.raises(LevelwiseError, match="has 11 terms but the design has only 8 runs"):
         evaluate(d, "interactions")
+
+
+def test_two_level_categorical_factor_in_optimal_design():
+    fs = [Factor("T", 100, 150), Factor("P", 1, 3), Factor("Metal", levels=["steel", "brass"])]
+    model = "T + P + Metal + T:P + T:Metal + I(T**2) + I(P**2)"
+    d = optimal_design(fs, model, runs=12, constraints="T + 50*P <= 260", seed=1)
+    assert set(d.table.Metal) == {"steel", "brass"}
+    assert (d.table["T"] + 50 * d.table["P"] <= 260 + 1e-9).all()
+    ev = evaluate(d, model)
+    assert ev.rank == 8
+    assert ev.prediction_variance["mean"] == pytest.approx(d.metadata["average_prediction_variance"], rel=1e-9)
+    with pytest.raises(LevelwiseError, match=r"raises categorical factor\(s\) \['Metal'\] to a power"):
+        optimal_design(fs, "quadratic", runs=12)
+    with pytest.raises(LevelwiseError, match=r"names categorical factor\(s\) \['Metal'\]"):
+        optimal_design(fs, model, runs=12, constraints="Metal + T <= 3")
+    with pytest.raises(LevelwiseError, match="has 3 levels"):
+        optimal_design([Factor("T", 0, 1), Factor("S", levels=["a", "b", "c"])], "linear", runs=6)
+
+
+def test_non_regular_design_has_no_alias_chains():
+    d = optimal_design(2, "linear", runs=4, seed=1)
+    assert d.generators is None and d.resolution is None
+    with pytest.raises(LevelwiseError, match="regular two-level designs only.*evaluate"):
+        d.aliases()
