@@ -211,6 +211,11 @@ class Fit:
         """(n, k) natural settings of the runs in the fit (achieved where recorded)."""
         return self.settings_all if self._order is None else self.settings_all[self._order]
 
+    @property
+    def settings(self) -> np.ndarray:
+        """Same as :attr:`run_settings` (``kernel_core.reduce.refit`` reads this name)."""
+        return self.run_settings
+
     def _replace(self, **changes) -> Fit:
         """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace)."""
         new = object.__new__(Fit)

@@ -340,3 +340,16 @@ def test_balanced_categorical_design_counts_as_orthogonal():
     # columns of Supplier are correlated 0.5 by construction and are not a loss of orthogonality.
     assert result.max_abs_correlation == pytest.approx(0.0, abs=1e-12)
     assert abs(np.corrcoef(result.X[:, 2], result.X[:, 3])[0, 1]) == pytest.approx(0.5)  # numpy corrcoef
+
+
+def test_refit_on_fewer_terms_keeps_the_achieved_settings():
+    # kernel_core.reduce.refit reads Fit.settings: the settings actually used (achieved where recorded).
+    from kernel_core.reduce import refit
+
+    data = planned_design()
+    data["A (achieved)"] = data["A"] + np.linspace(-0.4, 0.4, len(data))
+    full = fit(data, "y", "A + B + C + A:B", factors=FACTORS3)
+    smaller = refit(full, [[0, 0, 0], [1, 0, 0], [0, 1, 0]])
+    achieved = data[["A", "B", "C"]].assign(A=data["A (achieved)"])
+    ref = ols_on(achieved, data["y"], ["A", "B"])  # statsmodels OLS on the achieved matrix
+    assert smaller.beta == pytest.approx(ref.params, rel=1e-10)
