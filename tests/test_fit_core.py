@@ -353,3 +353,20 @@ def test_refit_on_fewer_terms_keeps_the_achieved_settings():
     achieved = data[["A", "B", "C"]].assign(A=data["A (achieved)"])
     ref = ols_on(achieved, data["y"], ["A", "B"])  # statsmodels OLS on the achieved matrix
     assert smaller.beta == pytest.approx(ref.params, rel=1e-10)
+
+
+@pytest.mark.parametrize("model", ["quadratic", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
+def test_trace_polynomial_path_equals_point_predictions(model):
+    rng = np.random.default_rng(13)
+    data = pd.DataFrame(rng.uniform(-1, 1, (40, 3)), columns=list("ABC"))
+    data["y"] = rng.normal(size=40)
+    result = fit(data, "y", model)
+    names = result.factor_names
+    settings = {n: 0.3 for n in names}
+    for name in names:
+        trace = result.trace(name, settings, points=9)
+        points = pd.DataFrame({n: trace["x"] if n == name else 0.3 for n in names})
+        direct = result.predict(points)  # point predictions, row by row (the general path)
+        assert trace["mean"] == pytest.approx(direct["mean"].to_numpy(), rel=1e-12, abs=1e-13)
+        assert trace["ci_half"] == pytest.approx((direct["ci_high"] - direct["mean"]).to_numpy(), rel=1e-9)
+        assert trace["pi_half"] == pytest.approx((direct["pi_high"] - direct["mean"]).to_numpy(), rel=1e-12)
