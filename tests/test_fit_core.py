@@ -356,7 +356,7 @@ def test_refit_on_fewer_terms_keeps_the_achieved_settings():
 
 
 @pytest.mark.parametrize("model", ["quadratic", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
-def test_trace_polynomial_path_equals_point_predictions(model):
+def test_trace_equals_point_predictions_for_several_models(model):
     rng = np.random.default_rng(13)
     data = pd.DataFrame(rng.uniform(-1, 1, (40, 3)), columns=list("ABC"))
     data["y"] = rng.normal(size=40)
