@@ -686,6 +686,38 @@ class Fit:
         mean, ci_half, pi_half = self.predictor.intervals(grid, level)
         return {"x": labels, "mean": mean, "ci_half": ci_half, "pi_half": pi_half}
 
+    def traces(self, settings, points: int = 50, level: float | None = None) -> dict:
+        """:meth:`trace` for every factor at once: ``{factor: {"x", "mean", "ci_half", "pi_half"}}``.
+
+        The continuous factors' curves are evaluated in one batch (one model evaluation for all of
+        them), which is what a refresh of every slider's curve needs.
+        """
+        level = self.level if level is None else _check_level(level)
+        base = self.settings_array(settings)[0]
+        points = int(points)
+        grids = self.__dict__.setdefault("_trace_grids", {})
+        key = ("all", points)
+        if key not in grids:
+            continuous = [j for j, name in enumerate(self.factor_names) if name not in self.categories]
+            template = np.full((len(continuous) * points, len(self.factor_names)), np.nan)
+            xs = {}
+            for b, j in enumerate(continuous):
+                xs[j] = np.linspace(self.coding.low[j], self.coding.high[j], points)
+                template[b * points : (b + 1) * points, j] = xs[j]
+            grids[key] = (continuous, template, np.isnan(template), xs)
+        continuous, template, blank, xs = grids[key]
+        out = {}
+        if continuous:
+            grid = np.where(blank, base, template)
+            mean, ci_half, pi_half = self.predictor.intervals(grid, level)
+            for b, j in enumerate(continuous):
+                part = slice(b * points, (b + 1) * points)
+                out[self.factor_names[j]] = {"x": xs[j], "mean": mean[part], "ci_half": ci_half[part],
+                                             "pi_half": pi_half[part]}
+        for name in self.categories:
+            out[name] = self.trace(name, settings, points, level)
+        return {name: out[name] for name in self.factor_names}
+
     # ----- delegations to the analysis modules (imported lazily) ------------------------------
     @property
     def effects(self):

@@ -370,3 +370,17 @@ def test_trace_equals_point_predictions_for_several_models(model):
         assert trace["mean"] == pytest.approx(direct["mean"].to_numpy(), rel=1e-12, abs=1e-13)
         assert trace["ci_half"] == pytest.approx((direct["ci_high"] - direct["mean"]).to_numpy(), rel=1e-9)
         assert trace["pi_half"] == pytest.approx((direct["pi_high"] - direct["mean"]).to_numpy(), rel=1e-12)
+
+
+def test_traces_of_all_factors_equal_single_traces():
+    data = categorical_data()
+    data["Speed"] = np.linspace(10, 20, len(data))
+    result = fit(data, "y", "Temp * Supplier + Speed + I(Speed**2)")
+    settings = {"Temp": 0.2, "Supplier": "west", "Speed": 12.0}
+    batch = result.traces(settings, points=11)
+    assert list(batch) == list(result.factor_names)
+    for name in result.factor_names:
+        single = result.trace(name, settings, points=11)  # one factor at a time (checked against predict above)
+        for key in ("mean", "ci_half", "pi_half"):
+            assert batch[name][key] == pytest.approx(single[key], rel=1e-12, abs=1e-13)
+        assert list(batch[name]["x"]) == list(single["x"])
