@@ -384,3 +384,24 @@ def test_traces_of_all_factors_equal_single_traces():
         for key in ("mean", "ci_half", "pi_half"):
             assert batch[name][key] == pytest.approx(single[key], rel=1e-12, abs=1e-13)
         assert list(batch[name]["x"]) == list(single["x"])
+
+
+def test_fit_reads_the_achieved_columns_of_a_run_sheet():
+    # kernel_core.runsheet writes "<factor> (achieved)" columns, blank = as planned: the convention fit() reads.
+    from kernel_core.runsheet import run_sheet
+
+    design = full_factorial(FACTORS3, center_points=2, seed=4)
+    sheet = run_sheet(design, responses=["y"])
+    rng = np.random.default_rng(4)
+    sheet["y"] = 2 + 0.05 * sheet["A"] + rng.normal(0, 0.1, len(sheet))
+    sheet.loc[3, "A (achieved)"] = sheet.loc[3, "A"] + 2.5
+    sheet.loc[7, "C (achieved)"] = sheet.loc[7, "C"] - 4.0
+    result = fit(sheet, "y", "A + B + C", factors=design.factors)
+    actual = sheet[["A", "B", "C"]].copy()
+    actual.loc[3, "A"] += 2.5
+    actual.loc[7, "C"] -= 4.0
+    ref = ols_on(actual, sheet["y"], ["A", "B", "C"])  # statsmodels OLS on the achieved settings
+    assert result.beta == pytest.approx(ref.params, rel=1e-10)
+    assert result.setting_deviations.loc[3, "A"] == pytest.approx(2.5)  # the perturbation above
+    assert result.setting_deviations.loc[7, "C"] == pytest.approx(-4.0)  # the perturbation above
+    assert np.count_nonzero(result.setting_deviations.to_numpy()) == 2
