@@ -402,6 +402,30 @@ class Fit:
             scale += [self.coding.scale[j] if contrast is None else 1.0] * width
         return np.array(center), np.array(scale)
 
+    @cached_property
+    def setting_deviation_summary(self) -> pd.DataFrame | None:
+        """Per factor: runs moved from plan, largest and root-mean-square |achieved - planned| in
+        natural units, and the largest as a fraction of the factor's half-range (coded units).
+        None when the data carries no achieved settings."""
+        dev = self.setting_deviations
+        if dev is None:
+            return None
+        values = dev.to_numpy(dtype=float)
+        half = np.array([self.coding.high[self.factor_names.index(c)] - self.coding.low[self.factor_names.index(c)]
+                         for c in dev.columns]) / 2.0
+        largest = np.abs(values).max(axis=0) if len(values) else np.zeros(len(dev.columns))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            coded = np.where(half > 0, largest / half, np.nan)
+        return pd.DataFrame(
+            {
+                "runs_moved": np.count_nonzero(values, axis=0),
+                "max_abs": largest,
+                "rms": np.sqrt(np.mean(values**2, axis=0)) if len(values) else largest,
+                "max_abs_coded": coded,
+            },
+            index=pd.Index(dev.columns, name="factor"),
+        )
+
     # ----- ANOVA, diagnostics, orthogonality -------------------------------------------------
     @cached_property
     def anova(self) -> pd.DataFrame:

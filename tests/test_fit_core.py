@@ -405,3 +405,7 @@ def test_fit_reads_the_achieved_columns_of_a_run_sheet():
     assert result.setting_deviations.loc[3, "A"] == pytest.approx(2.5)  # the perturbation above
     assert result.setting_deviations.loc[7, "C"] == pytest.approx(-4.0)  # the perturbation above
     assert np.count_nonzero(result.setting_deviations.to_numpy()) == 2
+    summary = result.setting_deviation_summary
+    assert summary.loc["A", "runs_moved"] == 1 and summary.loc["B", "runs_moved"] == 0
+    assert summary.loc["A", "max_abs_coded"] == pytest.approx(2.5 / 10)  # A: 10..30, half-range 10
+    assert summary.loc["C", "rms"] == pytest.approx(np.sqrt(16 / len(sheet)))  # one run moved by 4
