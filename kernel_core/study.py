@@ -831,7 +831,13 @@ class Study:
             raw = path.read_bytes()
         except OSError as exc:
             raise StudyFileError(f"The study file '{path}' could not be read: {exc.strerror or exc}.") from exc
-        return cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+        try:
+            return cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+        except StudyFileError as exc:
+            bak = path.with_name(path.name + ".bak")
+            if not bak.exists():
+                raise
+            raise type(exc)(f"{exc} The previous version saved by levelwise is kept in '{bak}'.") from None
 
     @classmethod
     def from_json(cls, text, *, source: str = "<text>", accept_outside_edits: bool = False) -> Study:

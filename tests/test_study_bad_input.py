@@ -28,6 +28,11 @@ def test_truncated_and_corrupt_json(tmp_path):
     path.write_text(text[: len(text) // 2], encoding="utf-8")
     with pytest.raises(StudyFileError, match=r"'.*t.json' is not valid JSON \(truncated or corrupt\?\).*line \d+"):
         Study.load(path)
+    (tmp_path / "t.json.bak").write_text(text, encoding="utf-8")
+    with pytest.raises(StudyFileError, match=r"not valid JSON.*The previous version saved by levelwise is kept in "
+                                             r"'.*t.json.bak'"):
+        Study.load(path)
+    (tmp_path / "t.json.bak").unlink()
     path.write_bytes(b"\x00\xff\xfe garbage")
     with pytest.raises(StudyFileError, match="is not UTF-8 text"):
         Study.load(path)

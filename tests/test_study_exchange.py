@@ -284,3 +284,13 @@ def test_figures_draw_the_arrays_the_views_use(tmp_path):
     np.testing.assert_allclose(offsets[:, 0], fit.fitted)
     np.testing.assert_allclose(offsets[:, 1], fit.residuals)
     assert save_figure(res, tmp_path / "res.png").read_bytes()[:4] == b"\x89PNG"
+
+
+def test_matplotlib_and_jsonschema_are_imported_only_when_used():
+    import subprocess
+    import sys
+
+    code = ("import sys, kernel_core, kernel_core.study, kernel_core.exchange, kernel_core.figures\n"
+            "print(sorted(m for m in ('matplotlib', 'jsonschema', 'openpyxl') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"
