@@ -892,6 +892,11 @@ class Study:
         outside = False
         try:
             expected = content_hash(data, audit)
+        except UnicodeEncodeError:
+            raise StudyFileError(
+                f"The study file '{source}' holds text that is not valid Unicode (a lone surrogate escape such as "
+                "\\ud800) in its 'data' or 'audit' block."
+            ) from None
         except ValueError as exc:  # NaN/inf from a number too large for a float
             raise StudyFileError(f"The study file '{source}' holds a number that is not finite: {exc}.") from None
         if expected != document["sha256"] and not migrated:

@@ -202,3 +202,11 @@ def test_names_that_cannot_be_used():
         study.exclude(1, "  ")
     with pytest.raises(LevelwiseError, match="'design' has no column for factor\\(s\\) \\['Dwell'\\]"):
         study.add_stage("t", pd.DataFrame({"Oven": [170.0]}))
+
+
+def test_lone_surrogate_escape_in_file(tmp_path):
+    text = saved_text(tmp_path).replace('"screen"', '"scr\\ud800een"')
+    path = tmp_path / "s2.json"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(StudyFileError, match="not valid Unicode \\(a lone surrogate"):
+        Study.load(path, accept_outside_edits=True)
