@@ -708,7 +708,23 @@ class Study:
             frame = frame.drop(index=drop)
         return frame
 
-    table = data
+    def table(self) -> pd.DataFrame:
+        """Every run (nothing dropped), settings as run, every response, and an ``excluded`` column.
+
+        ``excluded`` holds the reasons, e.g. ``"all: panel dropped"`` or ``"Impact: bubbles"``
+        (``""`` when the run is used for every response). For showing the study; fit on :meth:`data`.
+        """
+        frame = self._frame("actual")
+        notes = {run: [] for run in self._runs}
+        for item in self._exclusions:
+            scope = "all" if item["response"] is None else item["response"]
+            notes[item["run"]].append(f"{scope}: {item['reason']}")
+        frame["excluded"] = pd.array(["; ".join(notes[run]) for run in frame.index], dtype=object)
+        return frame
+
+    @property
+    def response_names(self) -> list[str]:
+        return list(self._responses)
 
     def planned(self) -> pd.DataFrame:
         """Planned settings: the run sheet with one column per factor (index = run id)."""

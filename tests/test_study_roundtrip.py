@@ -153,6 +153,10 @@ def test_exclusions_apply_to_data_and_fits():
     data = study.data()
     assert 7 not in data.index  # excluded from every response
     assert np.isnan(data.loc[4, "Impact"])  # excluded from Impact only
+    table = study.table()
+    assert len(table) == len(study) and table.loc[4, "Impact"] == 9.0  # nothing dropped or blanked
+    assert table.loc[4, "excluded"] == "Impact: panel dropped" and table.loc[7, "excluded"] == "all: wrong powder batch"
+    assert table.loc[1, "excluded"] == ""
     fit = study.fit("Impact")
     assert sorted(fit.runs) == [r for r in range(1, 11) if r not in (4, 7)]
     assert set(study.fits()) == {"Impact"}
