@@ -65,6 +65,11 @@ class Factor:
                 f"Factor {self.name!r}: 'low' must be less than 'high'. "
                 f"Got low={self.low!r}, high={self.high!r} instead."
             )
+        if not (0.0 < self.half_range < math.inf and math.isfinite(self.center)):
+            raise LevelwiseError(
+                f"Factor {self.name!r}: the range from 'low' to 'high' must be a positive finite width (coded units "
+                f"divide by it). Got low={self.low!r}, high={self.high!r} instead."
+            )
         if not isinstance(self.units, str):
             raise LevelwiseError(
                 f"The 'units' of factor {self.name!r} must be a string. Got {describe(self.units)} instead."
