@@ -755,6 +755,15 @@ class Study:
     def response_names(self) -> list[str]:
         return list(self._responses)
 
+    @property
+    def revision(self) -> int:
+        """A number that grows with every change (the length of the audit log): cheap change detection."""
+        return len(self._audit)
+
+    def copy(self) -> Study:
+        """An independent copy (same data and audit log)."""
+        return Study.from_json(self.to_json(), source="<copy>")
+
     def planned(self) -> pd.DataFrame:
         """Planned settings: the run sheet with one column per factor (index = run id)."""
         return self._frame("planned")[["run", "stage", "block", "std_order", "point_type", *self.factor_names]]

@@ -138,6 +138,16 @@ def test_returned_frames_are_copies():
     assert study.to_dict()["runs"][0]["planned"]["Oven"] != -5.0
 
 
+def test_copy_is_independent_and_revision_counts_changes():
+    study = small_study()
+    twin = study.copy()
+    assert twin.to_dict() == study.to_dict() and twin.audit == study.audit
+    revision = study.revision
+    twin.record(2, "Gloss", 80.0)
+    assert twin.revision == revision + 1 and study.revision == revision
+    assert np.isnan(study.data(apply_exclusions=False).loc[2, "Gloss"])
+
+
 def test_recorded_value_needs_overwrite():
     study = small_study()
     with pytest.raises(LevelwiseError, match=r"response 'Impact' of run 1 is already recorded as 8.25; pass "
