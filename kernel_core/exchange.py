@@ -316,7 +316,8 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         the study is added, with the units declared in its header.
     stage : str, optional
         Rows whose run id is not in the study become new runs of this (new) stage, planned at
-        their factor columns. Without it an unknown run id is a problem.
+        their factor columns; they get the study's next run ids, in the file's run-id order
+        (``ImportReport.runs_added``). Without it an unknown run id is a problem.
     overwrite : bool, default False
         Replace recorded values that differ from the file. Without it they are problems.
     reason : str, optional
