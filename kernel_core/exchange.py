@@ -73,7 +73,8 @@ def split_header(header: str) -> tuple[str, str | None]:
 
 
 # ----- reading ---------------------------------------------------------------------------------
-def read_table(source, *, sheet: str | None = None, delimiter: str = ",") -> pd.DataFrame:
+def read_table(source, *, sheet: str | None = None, delimiter: str = ",", header_row: int | None = None
+               ) -> pd.DataFrame:
     """Read a CSV or XLSX file into a DataFrame of raw cell values (object dtype, header from row 1).
 
     Parameters
@@ -84,6 +85,9 @@ def read_table(source, *, sheet: str | None = None, delimiter: str = ",") -> pd.
         Worksheet of an XLSX file (default: the first).
     delimiter : str
         CSV field separator.
+    header_row : int, optional
+        The row (1 = first) holding the column names; default the first non-blank row. Rows
+        above it (a title, notes) are ignored.
 
     Raises
     ------
@@ -96,6 +100,14 @@ def read_table(source, *, sheet: str | None = None, delimiter: str = ",") -> pd.
         rows = _xlsx_rows(raw, name, sheet)
     else:
         rows = _csv_rows(raw, name, delimiter)
+    if header_row is not None:
+        if isinstance(header_row, bool) or not isinstance(header_row, int) or not 1 <= header_row <= len(rows):
+            raise ImportDataError(
+                f"The 'header_row' must be a row number from 1 to {len(rows)}. Got {describe(header_row)} instead."
+            )
+        rows = [[None]] * (header_row - 1) + rows[header_row - 1:]
+        if all(_blank(cell) for cell in rows[header_row - 1]):
+            raise ImportDataError(f"The 'header_row' {header_row} of '{name}' is blank.")
     return _to_frame(rows, name)
 
 
@@ -316,7 +328,7 @@ def _check_mapping(mapping, columns, study, name) -> dict:
 # ----- importing -------------------------------------------------------------------------------
 def import_table(study, source, mapping=None, *, sheet: str | None = None, stage: str | None = None,
                  overwrite: bool = False, reason: str | None = None, delimiter: str = ",",
-                 decimal: str = ".") -> ImportReport:
+                 decimal: str = ".", header_row: int | None = None) -> ImportReport:
     """Merge a CSV or XLSX table into *study* by run id; all or nothing.
 
     Parameters
@@ -335,6 +347,8 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         Replace recorded values that differ from the file. Without it they are problems.
     reason : str, optional
         Written in the audit log with every change.
+    sheet, delimiter, header_row
+        As for :func:`read_table`; ``decimal`` is the decimal mark of numbers written as text.
 
     Returns
     -------
@@ -359,7 +373,7 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         frame.columns = [str(c) for c in frame.columns]
         frame.index = pd.RangeIndex(2, 2 + len(frame))
     else:
-        frame = read_table(source, sheet=sheet, delimiter=delimiter)
+        frame = read_table(source, sheet=sheet, delimiter=delimiter, header_row=header_row)
     columns = list(frame.columns)
     header_row = frame.attrs.get("header_row", 1)
     mapping = guess_mapping(columns, study) if mapping is None else _check_mapping(mapping, columns, study, name)

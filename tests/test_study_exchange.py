@@ -203,6 +203,10 @@ def test_xlsx_with_a_title_above_the_header_and_blank_rows(tmp_path):
     # The first non-blank row is the header: B1 holds a title only, so its row is taken as the header here
     # and the real header row has more cells than it.
     assert excinfo.value.problems[0].row == 3
+    # Told where the header is, the title is ignored and rows keep their sheet numbers.
+    with pytest.raises(ImportDataError) as excinfo:
+        import_table(study, path, header_row=3)
+    assert problems_of(excinfo) == [(3, "Oven [K]"), (4, "Oven [K]"), (6, "Oven [K]"), (6, "Impact")]
     sheet.delete_rows(1, 2)  # without the title the header is row 1; rows keep their sheet numbers
     book.save(path)
     with pytest.raises(ImportDataError) as excinfo:
