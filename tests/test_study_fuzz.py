@@ -121,14 +121,14 @@ def csv_inputs(draw):
 
 
 @given(csv_inputs(), st.sampled_from([None, "new", "screen"]), st.booleans(), st.sampled_from([",", ";"]),
-       st.sampled_from([".", ","]))
+       st.sampled_from([".", ","]), st.one_of(st.none(), st.none(), st.integers(-1, 4)))
 @fuzz("csv")
-def test_fuzz_csv_import(case, stage, overwrite, delimiter, decimal):
+def test_fuzz_csv_import(case, stage, overwrite, delimiter, decimal, header_row):
     data, mapping = case
     study = small_study()
     before = study.to_dict()
     result = call("csv", import_table, study, data, mapping, stage=stage, overwrite=overwrite,
-                  delimiter=delimiter, decimal=decimal)
+                  delimiter=delimiter, decimal=decimal, header_row=header_row)
     if result is None:
         assert study.to_dict() == before  # a failed import changes nothing
     else:
