@@ -25,6 +25,10 @@ test: $(VENV)/.installed-test
 	$(BIN)/ruff check .
 	$(BIN)/python -m pytest kernel_core widgets dashboards tests
 
+bench: $(VENV)/.installed-test
+	PYTHONPATH=. $(BIN)/python benchmarks/bench_design.py
+	PYTHONPATH=. $(BIN)/python benchmarks/bench_fit.py
+
 lint: $(VENV)/.installed-test
 	$(BIN)/ruff check .
 

@@ -5,11 +5,26 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
+from .boxcox import BoxCoxResult, box_cox
 from .design import Design, full_factorial
+from .effects import LenthResult, effects, half_normal, lenth
 from .factors import Factor
 from .fit import Fit, fit
 from .formula import ModelSpec, parse_model
-from .study import Study
+from .optimize import (
+    Goal,
+    Optimum,
+    SteepestPath,
+    fit_responses,
+    maximize,
+    minimize,
+    optimize,
+    overall_desirability,
+    steepest_path,
+    target,
+)
+from .reduce import Reduction, reduce, refit
+from .surface import slice_grid, slice_polynomials
 
 __all__ = [
     "Design",
@@ -21,8 +36,54 @@ __all__ = [
     "fit",
     "full_factorial",
     "parse_model",
-    "Study",
-    "StudyFileError",
-    "OutsideEditError",
-    "ImportDataError",
+    # analysis on a fit
+    "BoxCoxResult",
+    "Goal",
+    "LenthResult",
+    "Optimum",
+    "Reduction",
+    "SteepestPath",
+    "box_cox",
+    "effects",
+    "fit_responses",
+    "half_normal",
+    "lenth",
+    "maximize",
+    "minimize",
+    "optimize",
+    "overall_desirability",
+    "reduce",
+    "refit",
+    "slice_grid",
+    "slice_polynomials",
+    "steepest_path",
+    "target",
 ]
+
+# Design generation (issue 3).
+from .evaluation import DesignEvaluation, evaluate  # noqa: E402
+from .fractional import fold_over, fractional_factorial  # noqa: E402
+from .optimal import optimal_design  # noqa: E402
+from .rsm_designs import box_behnken, central_composite  # noqa: E402
+from .runsheet import FilledRunSheet, read_run_sheet, run_sheet, write_run_sheet  # noqa: E402
+from .screening import plackett_burman  # noqa: E402
+
+__all__ += [
+    "DesignEvaluation",
+    "FilledRunSheet",
+    "box_behnken",
+    "central_composite",
+    "evaluate",
+    "fold_over",
+    "fractional_factorial",
+    "optimal_design",
+    "plackett_burman",
+    "read_run_sheet",
+    "run_sheet",
+    "write_run_sheet",
+]
+
+# The study file and data exchange (issue 7).
+from .study import Study  # noqa: E402
+
+__all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
