@@ -57,6 +57,31 @@ class ImportReport:
     warnings: tuple = field(default_factory=tuple)
 
 
+_MARK = re.compile(r"\s*\(achieved\)\s*", re.IGNORECASE)
+
+
+def parse_header(header: str) -> tuple[str, str | None, bool]:
+    """Name, units and whether the column holds achieved settings.
+
+    ``"Oven (achieved) [°C]"``, ``"Oven (achieved)"`` (the run-sheet convention of
+    :mod:`kernel_core.runsheet`), ``"Oven achieved"`` and ``"achieved Oven"`` are achieved settings.
+
+    >>> parse_header("Oven (achieved) [°C]")
+    ('Oven', '°C', True)
+    >>> parse_header("Impact (J)")
+    ('Impact', 'J', False)
+    """
+    mark = _MARK.search(header)
+    if mark:
+        name, units = split_header((header[: mark.start()] + " " + header[mark.end():]).strip())
+        return name, units, True
+    name, units = split_header(header)
+    words = _ACHIEVED.match(name)
+    if words:
+        return (words.group("a") or words.group("b")).strip(), units, True
+    return name, units, False
+
+
 def split_header(header: str) -> tuple[str, str | None]:
     """Split ``"Oven [°C]"`` or ``"Oven (°C)"`` into ``("Oven", "°C")``; no units gives ``None``.
 
@@ -267,22 +292,23 @@ def guess_mapping(columns, study) -> dict:
     """A column mapping guessed from header names (units in ``[...]`` or ``(...)`` are ignored).
 
     Returns a dict with ``"run"`` (a column or None), ``"factors"``, ``"achieved"`` and
-    ``"responses"`` (each a dict of study name -> column). A header ``"Oven achieved"`` or
-    ``"achieved Oven"`` maps to the achieved setting of ``Oven``; a header naming neither a
-    factor nor a known response is left out.
+    ``"responses"`` (each a dict of study name -> column). A header ``"Oven (achieved)"``,
+    ``"Oven achieved"`` or ``"achieved Oven"`` maps to the achieved setting of ``Oven`` (see
+    :func:`parse_header`); a header naming neither a factor nor a known response is left out.
     """
     mapping = {"run": None, "factors": {}, "achieved": {}, "responses": {}}
     factors = set(study.factor_names)
     responses = set(study.responses)
     for column in columns:
         base, _ = split_header(str(column))
-        achieved = _ACHIEVED.match(base)
+        name, _, achieved = parse_header(str(column))
         if base.lower() == "run" and mapping["run"] is None:
             mapping["run"] = column
+        elif achieved and name in factors and (_MARK.search(str(column)) or base not in factors | responses):
+            # "(achieved)" always marks an achieved setting; "Oven achieved" only when no factor has that name.
+            mapping["achieved"].setdefault(name, column)
         elif base in factors:
             mapping["factors"].setdefault(base, column)
-        elif achieved and (achieved.group("a") or achieved.group("b")) in factors:
-            mapping["achieved"].setdefault(achieved.group("a") or achieved.group("b"), column)
         elif base in responses:
             mapping["responses"].setdefault(base, column)
     return mapping
@@ -387,7 +413,7 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
     for role, items in (("factors", mapping["factors"]), ("achieved", mapping["achieved"]),
                         ("responses", mapping["responses"])):
         for key, column in items.items():
-            _, units = split_header(column)
+            _, units = split_header(column) if role != "achieved" else parse_header(column)[:2]
             if role == "responses" and key not in responses:
                 new_units[key] = units or ""
                 continue
@@ -527,7 +553,7 @@ def run_sheet(study, *, achieved: bool = False) -> pd.DataFrame:
     if achieved:
         done = study.achieved()
         for f in study.factors:
-            sheet[_header(f"{f.name} achieved", f.units)] = done[f.name]
+            sheet[_header(f"{f.name} (achieved)", f.units)] = done[f.name]
     values = study.data(apply_exclusions=False)
     for name, response in study.responses.items():
         sheet[_header(name, response.units)] = values[name]
@@ -635,6 +661,7 @@ __all__ = [
     "import_table",
     "prediction_table",
     "read_table",
+    "parse_header",
     "run_sheet",
     "split_header",
 ]

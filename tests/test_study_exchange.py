@@ -321,3 +321,34 @@ def test_matplotlib_and_jsonschema_are_imported_only_when_used():
             "print(sorted(m for m in ('matplotlib', 'jsonschema', 'openpyxl') if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
+
+
+def test_a_filled_design_run_sheet_imports_into_the_study(tmp_path):
+    from kernel_core.runsheet import run_sheet as design_run_sheet
+
+    design = full_factorial(FACTORS, center_points=2, randomize=False)
+    study = Study(FACTORS)
+    study.add_stage("screen", design)
+    study.add_response("Impact", units="J")
+    sheet = design_run_sheet(design, responses=["Impact"])
+    assert "Oven (achieved)" in sheet.columns  # the run-sheet convention of kernel_core.runsheet
+    sheet.loc[1, "Oven (achieved)"] = 212.5  # invented
+    sheet["Impact"] = [7.0, 9.5, 8.25, 10.0, 9.0, 9.1]  # invented
+    path = tmp_path / "filled.csv"
+    sheet.to_csv(path, index=False)
+    report = import_table(study, path)
+    assert report.values_recorded == 7
+    assert study.achieved().loc[2, "Oven"] == 212.5
+    assert [str(w) for w in report.warnings] == [
+        "warning: row 3, column 'Oven (achieved)': 212.5 is outside the design range 170.0 to 210.0 of 'Oven' (kept)"
+    ]
+
+
+def test_parse_header_forms():
+    from kernel_core.exchange import parse_header
+
+    assert parse_header("Oven (achieved) [°C]") == ("Oven", "°C", True)
+    assert parse_header("Oven (Achieved)") == ("Oven", None, True)
+    assert parse_header("achieved Oven [°C]") == ("Oven", "°C", True)
+    assert parse_header("Oven [°C]") == ("Oven", "°C", False)
+    assert "Oven (achieved) [°C]" in run_sheet(planned_study(), achieved=True).columns
