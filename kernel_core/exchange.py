@@ -566,42 +566,10 @@ def coefficient_table(fit) -> pd.DataFrame:
 
 
 def anova_table(fit) -> pd.DataFrame:
-    """Analysis of variance of a fit: one row per term (extra sum of squares of the term given all
-    the others, on 1 df), then ``Model``, ``Residual`` and ``Total``.
-
-    The per-term sum of squares is t² s² (the drop in SSE when only that term leaves the model),
-    which equals the partial (type III) sum of squares for one-column terms.
-    """
-    from scipy import stats
-
-    coef = fit.coefficients
-    df_res = fit.df_resid
-    s2 = fit.s ** 2 if df_res > 0 else float("nan")
-    rows = []
-    for term in fit.terms:
-        if term == "Intercept":
-            continue
-        ss = float(coef.at[term, "t"] ** 2 * s2)
-        rows.append({"source": term, "df": 1, "sum_sq": ss, "mean_sq": ss})
-    y = fit.y
-    centre = y.mean() if fit.spec.has_intercept else 0.0
-    sst = float(((y - centre) ** 2).sum())
-    model_df = fit.p - (1 if fit.spec.has_intercept else 0)
-    rows.append({"source": "Model", "df": model_df, "sum_sq": sst - fit.sse,
-                 "mean_sq": (sst - fit.sse) / model_df if model_df else float("nan")})
-    rows.append({"source": "Residual", "df": df_res, "sum_sq": fit.sse, "mean_sq": s2})
-    rows.append({"source": "Total", "df": fit.n - (1 if fit.spec.has_intercept else 0), "sum_sq": sst,
-                 "mean_sq": float("nan")})
-    table = pd.DataFrame(rows)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        f_value = table["mean_sq"] / s2
-    f_value[table["source"].isin(["Residual", "Total"])] = np.nan
-    table["F"] = f_value
-    table["p_value"] = [
-        float(stats.f.sf(f, d, df_res)) if df_res > 0 and np.isfinite(f) else float("nan")
-        for f, d in zip(table["F"], table["df"])
-    ]
-    return table
+    """The fit's analysis of variance (:attr:`Fit.anova`: model, terms, residual split into
+    curvature, lack of fit and pure error where the runs allow) as a flat table with a ``source``
+    column, the same numbers the views show."""
+    return fit.anova.reset_index()
 
 
 def prediction_table(fit, settings, level: float | None = None) -> pd.DataFrame:
