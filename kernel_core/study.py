@@ -368,6 +368,11 @@ class Study:
     def __init__(self, factors, *, title: str = "", notes: str = ""):
         self._factors = as_factors(factors)
         for f in self._factors:
+            if getattr(f, "levels", ()):
+                raise LevelwiseError(
+                    f"Factor {f.name!r} is categorical (levels {list(f.levels)!r}); a Study holds continuous "
+                    "factors (low/high) only in this version of the file format."
+                )
             _name(f.name, "factor name")
             _text(f.units, f"units of factor {f.name!r}")
         self._title = _text(title, "title")

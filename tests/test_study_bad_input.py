@@ -210,3 +210,9 @@ def test_lone_surrogate_escape_in_file(tmp_path):
     path.write_text(text, encoding="utf-8")
     with pytest.raises(StudyFileError, match="not valid Unicode \\(a lone surrogate"):
         Study.load(path, accept_outside_edits=True)
+
+
+def test_categorical_factor_is_refused_clearly():
+    with pytest.raises(LevelwiseError, match=r"Factor 'Metal' is categorical \(levels \['steel', 'brass'\]\); a "
+                                             r"Study holds continuous factors"):
+        Study([Factor("Oven", 170, 210), Factor("Metal", levels=["steel", "brass"])])
