@@ -458,8 +458,39 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
 
     # Ranges: the factor's low..high widened to every planned setting (axial points are in range).
     planned = study.planned()
-    lo = {f: min(factors[f].low, planned[f].min()) if len(planned) else factors[f].low for f in factors}
-    hi = {f: max(factors[f].high, planned[f].max()) if len(planned) else factors[f].high for f in factors}
+    continuous = [f for f in factors if not getattr(factors[f], "levels", ())]
+    lo = {f: min(factors[f].low, planned[f].min()) if len(planned) else factors[f].low for f in continuous}
+    hi = {f: max(factors[f].high, planned[f].max()) if len(planned) else factors[f].high for f in continuous}
+
+    def setting(cell, factor):
+        """(value, problem): a number, or one of a categorical factor's levels."""
+        if factor in lo:
+            return _number(cell, decimal)
+        if _blank(cell):
+            return None, None
+        levels = factors[factor].levels
+        candidates = [cell, str(cell).strip()]
+        number, _ = _number(cell, decimal)
+        if number is not None:
+            candidates.append(number)
+        for candidate in candidates:
+            for level in levels:
+                if type(level) is type(candidate) and level == candidate or (
+                    not isinstance(level, str) and isinstance(candidate, float) and level == candidate
+                ):
+                    return level, None
+        return None, f"{describe(cell)} is not one of the levels {list(levels)!r} of {factor!r}"
+
+    def outside(value, factor) -> bool:
+        return factor in lo and not lo[factor] <= value <= hi[factor]
+
+    def same(a, b) -> bool:
+        if isinstance(a, str) or isinstance(b, str):
+            return a == b
+        return math.isclose(a, b, rel_tol=1e-9, abs_tol=1e-12)
+
+    def missing(value) -> bool:
+        return value is None or (isinstance(value, float) and np.isnan(value))
 
     current = study.data(apply_exclusions=False)
     achieved_now = study.achieved()
@@ -469,7 +500,7 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         is_new = run_id not in existing
         settings = {}
         for factor, column in mapping["factors"].items():
-            value, bad = _number(frame.at[row, column], decimal)
+            value, bad = setting(frame.at[row, column], factor)
             if bad:
                 problems.append(Problem(row, column, bad))
                 continue
@@ -480,13 +511,14 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
                 continue
             if is_new:
                 settings[factor] = value
-            elif not math.isclose(value, planned.at[run_id, factor], rel_tol=1e-9, abs_tol=1e-12):
-                was = float(planned.at[run_id, factor])
+            elif not same(value, planned.at[run_id, factor]):
+                was = planned.at[run_id, factor]
+                was = was if isinstance(was, str) else float(was)
                 problems.append(Problem(row, column, f"run {run_id} was planned at {was!r} "
                                                      f"but the file says {value!r}; map the column under "
                                                      "'achieved' if it holds the settings actually run"))
                 continue
-            if not lo[factor] <= value <= hi[factor]:
+            if outside(value, factor):
                 warnings.append(Problem(row, column, f"{value!r} is outside the design range "
                                                      f"{float(lo[factor])!r} to {float(hi[factor])!r} of {factor!r} "
                                                      "(kept)", "warning"))
@@ -494,7 +526,8 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
             new_runs[run_id] = settings
         for kind, items in (("achieved", mapping["achieved"]), ("responses", mapping["responses"])):
             for key, column in items.items():
-                value, bad = _number(frame.at[row, column], decimal)
+                cell = frame.at[row, column]
+                value, bad = setting(cell, key) if kind == "achieved" else _number(cell, decimal)
                 if bad:
                     problems.append(Problem(row, column, bad))
                     continue
@@ -502,17 +535,18 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
                     continue
                 if kind == "achieved":
                     old = np.nan if is_new else achieved_now.at[run_id, key]
-                    if not lo[key] <= value <= hi[key]:
+                    if outside(value, key):
                         warnings.append(Problem(row, column, f"{value!r} is outside the design range "
                                                              f"{float(lo[key])!r} to {float(hi[key])!r} of {key!r} "
                                                              "(kept)", "warning"))
                 else:
                     old = np.nan if is_new or key not in current.columns else current.at[run_id, key]
-                if not np.isnan(old):
+                if not missing(old):
                     if old == value:
                         continue
                     if not overwrite:
-                        problems.append(Problem(row, column, f"run {run_id} already has {key!r} = {float(old)!r}; the "
+                        old = old if isinstance(old, str) else float(old)
+                        problems.append(Problem(row, column, f"run {run_id} already has {key!r} = {old!r}; the "
                                                              f"file says {value!r} (pass overwrite=True to "
                                                              "replace it)"))
                         continue

@@ -354,3 +354,27 @@ def test_parse_header_forms():
     assert parse_header("achieved Oven [°C]") == ("Oven", "°C", True)
     assert parse_header("Oven [°C]") == ("Oven", "°C", False)
     assert "Oven (achieved) [°C]" in run_sheet(planned_study(), achieved=True).columns
+
+
+def test_import_with_a_categorical_factor():
+    factors = [Factor("Oven", 170, 210, "°C"), Factor("Metal", levels=["steel", "brass"])]
+    study = Study(factors)
+    study.add_stage("screen", pd.DataFrame({"Oven": [170.0, 210.0], "Metal": ["steel", "brass"]}))
+    study.add_response("Impact")
+    data = csv_bytes("""
+    run,Oven,Metal,Metal (achieved),Impact
+    1,170,steel,copper,7.0
+    2,210,steel,,8.0
+    """)
+    with pytest.raises(ImportDataError) as excinfo:
+        import_table(study, data)
+    assert problems_of(excinfo) == [(2, "Metal (achieved)"), (3, "Metal")]
+    assert "'copper' is not one of the levels ['steel', 'brass'] of 'Metal'" in str(excinfo.value)
+    assert "run 2 was planned at 'brass' but the file says 'steel'" in str(excinfo.value)
+    report = import_table(study, csv_bytes("""
+    run,Oven,Metal,Metal (achieved),Impact
+    1,170, steel ,brass,7.0
+    2,210,brass,,8.0
+    """))
+    assert report.values_recorded == 3
+    assert study.achieved().loc[1, "Metal"] == "brass" and list(study.data()["Metal"]) == ["brass", "brass"]
