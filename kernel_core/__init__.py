@@ -82,8 +82,9 @@ __all__ += [
     "read_run_sheet",
     "run_sheet",
     "write_run_sheet",
-    "Study",
-    "StudyFileError",
-    "OutsideEditError",
-    "ImportDataError",
 ]
+
+# The study file and data exchange (issue 7).
+from .study import Study  # noqa: E402
+
+__all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]

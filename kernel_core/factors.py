@@ -89,7 +89,11 @@ class Factor:
                     f"The '{field}' of factor {self.name!r} must be a finite number. "
                     f"Got {describe(value)} instead."
                 )
-            if not math.isfinite(float(value)):
+            try:
+                number = float(value)
+            except OverflowError:  # an int beyond the float range
+                number = math.inf
+            if not math.isfinite(number):
                 raise LevelwiseError(
                     f"The '{field}' of factor {self.name!r} must be a finite number. Got {value!r} instead."
                 )
@@ -98,6 +102,11 @@ class Factor:
             raise LevelwiseError(
                 f"Factor {self.name!r}: 'low' must be less than 'high'. "
                 f"Got low={self.low!r}, high={self.high!r} instead."
+            )
+        if not (0.0 < (self.high - self.low) / 2.0 < math.inf and math.isfinite((self.low + self.high) / 2.0)):
+            raise LevelwiseError(
+                f"Factor {self.name!r}: the range from 'low' to 'high' must be a positive finite width (coded units "
+                f"divide by it). Got low={self.low!r}, high={self.high!r} instead."
             )
 
     @property

@@ -122,12 +122,49 @@ def _finite(value, field: str) -> float:
     return number
 
 
+def _setting(factor: Factor, value, field: str):
+    """A planned or achieved setting: a finite number, or one of a categorical factor's levels."""
+    levels = getattr(factor, "levels", ())
+    if not levels:
+        return _finite(value, field)
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, str):
+        value = value.strip()
+    for level in levels:
+        if type(level) is type(value) and level == value or (
+            not isinstance(level, str) and not isinstance(value, (str, bool)) and level == value
+        ):
+            return level
+    raise LevelwiseError(
+        f"The '{field}' must be one of the levels {list(levels)!r} of factor {factor.name!r}. "
+        f"Got {describe(value)} instead."
+    )
+
+
+def _plain(value):
+    """A float for numbers (JSON-friendly), levels as they are."""
+    return value if isinstance(value, str) else float(value)
+
+
+def _factor_entry(f: Factor) -> dict:
+    if _is_categorical(f):
+        return {"name": f.name, "levels": list(f.levels), "units": f.units}
+    return {"name": f.name, "low": f.low, "high": f.high, "units": f.units}
+
+
+def _is_categorical(factor) -> bool:
+    return bool(getattr(factor, "levels", ()))
+
+
 def _run_id(value, field: str = "run") -> int:
     integral = isinstance(value, (int, np.integer)) or (
         isinstance(value, (float, np.floating)) and math.isfinite(value) and float(value).is_integer()
     )
-    if isinstance(value, bool) or not integral or value < 1:
-        raise LevelwiseError(f"The '{field}' must be a run id (an integer >= 1). Got {describe(value)} instead.")
+    if isinstance(value, bool) or not integral or not 1 <= value <= 2**53 - 1:
+        raise LevelwiseError(
+            f"The '{field}' must be a run id (an integer from 1 to 2**53 - 1). Got {describe(value)} instead."
+        )
     return int(value)
 
 
@@ -201,13 +238,14 @@ _RUN_KEYS = frozenset(("run", "stage", "block", "std_order", "point_type", "plan
 def _run_ok(run) -> bool:
     if type(run) is not dict or run.keys() != _RUN_KEYS:
         return False
-    if type(run["run"]) is not int or run["run"] < 1 or type(run["block"]) is not int:
+    for key, low in (("run", 1), ("block", -_MAX_INT), ("std_order", -_MAX_INT)):
+        if type(run[key]) is not int or not low <= run[key] <= _MAX_INT:
+            return False
+    if type(run["stage"]) is not str or type(run["point_type"]) is not str:
         return False
-    if type(run["std_order"]) is not int or type(run["stage"]) is not str or type(run["point_type"]) is not str:
-        return False
-    for block in ("planned", "achieved", "responses"):
+    for block, kinds in (("planned", (int, float, str)), ("achieved", (int, float, str)), ("responses", (int, float))):
         values = run[block]
-        if type(values) is not dict or any(type(v) not in (int, float) for v in values.values()):
+        if type(values) is not dict or any(type(v) not in kinds for v in values.values()):
             return False
     return True
 
@@ -249,6 +287,41 @@ def _json_path(parts) -> str:
 
 
 # ----- migrations ------------------------------------------------------------------------------
+_MAX_INT = 2**53 - 1  # integers exact in every JSON reader; the schema caps run ids, blocks and orders here
+
+_V0_SCHEMA = {
+    "type": "object",
+    "required": ["format_version", "factors", "response", "runs"],
+    "properties": {
+        "title": {"type": "string"},
+        "notes": {"type": "string"},
+        "model": {"type": ["string", "null"]},
+        "factors": {"type": "array"},
+        "response": {
+            "type": "object",
+            "required": ["name"],
+            "properties": {"name": {"type": "string", "minLength": 1}, "units": {"type": "string"}},
+        },
+        "runs": {
+            "type": "array",
+            "items": {
+                "type": "object",
+                "required": ["run", "settings"],
+                "properties": {
+                    "run": {"type": "integer", "minimum": 1, "maximum": _MAX_INT},
+                    "settings": {"type": "object"},
+                    "result": {"type": ["number", "null"]},
+                    "block": {"type": "integer", "minimum": -_MAX_INT, "maximum": _MAX_INT},
+                    "std_order": {"type": "integer", "minimum": -_MAX_INT, "maximum": _MAX_INT},
+                    "point_type": {"type": "string"},
+                },
+            },
+        },
+        "excluded": {"type": "array", "items": {"type": "integer", "minimum": 1, "maximum": _MAX_INT}},
+    },
+}
+
+
 def migrate_v0(document: dict) -> dict:
     """Turn a format-0 study (the draft layout: one response, ``settings`` and ``result`` per run,
     excluded run ids without reasons, no audit and no hash) into a format-1 document.
@@ -256,50 +329,41 @@ def migrate_v0(document: dict) -> dict:
     Raises
     ------
     StudyFileError
-        When the format-0 document lacks a field the migration needs; the message names it.
+        When the format-0 document breaks that layout; the message names the field.
     """
+    validator = _validator().evolve(schema=_V0_SCHEMA)
+    errors = sorted(validator.iter_errors(document), key=lambda e: list(map(str, e.absolute_path)))
+    if errors:
+        raise StudyFileError(
+            f"The format-0 study cannot be migrated: field '{_json_path(errors[0].absolute_path)}': "
+            f"{errors[0].message[:200]}"
+        )
     when = _now()
-
-    def need(container, key, where):
-        if not isinstance(container, dict) or key not in container:
-            raise StudyFileError(f"The format-0 study file has no field '{where}'; it cannot be migrated.")
-        return container[key]
-
-    factors = need(document, "factors", "factors")
-    response = need(document, "response", "response")
-    runs = need(document, "runs", "runs")
-    if not isinstance(runs, list) or not isinstance(factors, list):
-        raise StudyFileError("The format-0 fields 'factors' and 'runs' must be lists; the file cannot be migrated.")
-    name = need(response, "name", "response.name")
+    name = document["response"]["name"]
     stage = "stage 1"
-    new_runs = []
-    for i, run in enumerate(runs):
-        record = {
-            "run": need(run, "run", f"runs[{i}].run"),
+    runs = []
+    for i, run in enumerate(document["runs"]):
+        runs.append({
+            "run": run["run"],
             "stage": stage,
-            "block": run.get("block", 1) if isinstance(run, dict) else 1,
-            "std_order": run.get("std_order", i + 1) if isinstance(run, dict) else i + 1,
-            "point_type": run.get("point_type", "") if isinstance(run, dict) else "",
-            "planned": need(run, "settings", f"runs[{i}].settings"),
+            "block": run.get("block", 1),
+            "std_order": run.get("std_order", i + 1),
+            "point_type": run.get("point_type", ""),
+            "planned": run["settings"],
             "achieved": {},
-            "responses": {},
-        }
-        if run.get("result") is not None:
-            record["responses"][name] = run["result"]
-        new_runs.append(record)
-    excluded = document.get("excluded", [])
-    if not isinstance(excluded, list):
-        raise StudyFileError("The format-0 field 'excluded' must be a list of run ids; the file cannot be migrated.")
+            "responses": {name: run["result"]} if run.get("result") is not None else {},
+        })
     data = {
         "title": document.get("title", ""),
-        "factors": factors,
-        "responses": [{"name": name, "units": response.get("units", ""), "goal": "none", "target": None}],
+        "factors": document["factors"],
+        "responses": [{"name": name, "units": document["response"].get("units", ""), "goal": "none",
+                       "target": None}],
         "stages": [{"name": stage, "description": "runs of a format-0 file", "created": when}],
-        "runs": new_runs,
+        "runs": runs,
         "exclusions": [
             {"run": run, "response": None, "reason": "excluded in a format-0 file (no reason was recorded)",
              "when": when}
-            for run in excluded
+            for run in document.get("excluded", [])
         ],
         "models": {name: document["model"]} if document.get("model") else {},
         "notes": document.get("notes", ""),
@@ -339,6 +403,11 @@ class Study:
     def __init__(self, factors, *, title: str = "", notes: str = ""):
         self._factors = as_factors(factors)
         for f in self._factors:
+            for level in getattr(f, "levels", ()):
+                if isinstance(level, str):
+                    _text(level, f"level of factor {f.name!r}", empty=False)
+                else:
+                    _finite(level, f"level of factor {f.name!r}")
             _name(f.name, "factor name")
             _text(f.units, f"units of factor {f.name!r}")
         self._title = _text(title, "title")
@@ -503,6 +572,12 @@ class Study:
         n = len(table)
         settings = {}
         for f in self._factors:
+            if _is_categorical(f):
+                settings[f.name] = [
+                    _setting(f, value, f"planned setting of factor {f.name!r} in row {row + 1} of the design")
+                    for row, value in enumerate(table[f.name].tolist())
+                ]
+                continue
             values = pd.to_numeric(table[f.name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
             bad = ~np.isfinite(values)
             if bad.any():
@@ -529,7 +604,7 @@ class Study:
                 "block": block[i],
                 "std_order": std_order[i] if std_order is not None else i + 1,
                 "point_type": point_type[i],
-                "planned": {f: float(settings[f][i]) for f in names},
+                "planned": {f: _plain(settings[f][i]) for f in names},
                 "achieved": {},
                 "responses": {},
             }
@@ -543,7 +618,7 @@ class Study:
         if column not in table:
             return [default] * n if default is not None else None
         values = pd.to_numeric(table[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
-        bad = ~np.isfinite(values) | (values != np.round(values))
+        bad = ~np.isfinite(values) | (values != np.round(values)) | (np.abs(values) > 2**53 - 1)
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
             raise LevelwiseError(
@@ -570,16 +645,18 @@ class Study:
         reason = _reason(reason)
         record = self._run(run)
         factor = self._factor(factor).name
-        old = self._set_value(record, "achieved", factor, value, overwrite, f"achieved setting of {factor!r}")
+        old = self._set_value(record, "achieved", factor, value, overwrite, f"achieved setting of {factor!r}",
+                              self._factor(factor))
         self._log_value("record_achieved", record, factor, value, old, reason)
 
-    def _set_value(self, record, block, key, value, overwrite, label):
+    def _set_value(self, record, block, key, value, overwrite, label, factor=None):
         old = record[block].get(key)
         if value is None:
             if not overwrite:
                 raise LevelwiseError(f"Clearing the {label} of run {record['run']} needs overwrite=True.")
         else:
-            value = _finite(value, f"{label} of run {record['run']}")
+            field = f"{label} of run {record['run']}"
+            value = _finite(value, field) if factor is None else _setting(factor, value, field)
         if old is not None and not overwrite and old != value:
             raise LevelwiseError(
                 f"The {label} of run {record['run']} is already recorded as {old!r}; "
@@ -606,7 +683,8 @@ class Study:
                 self._response(key)
             else:
                 self._factor(key)
-            value = _finite(value, f"{key} of run {record['run']}")
+            field = f"{key} of run {record['run']}"
+            value = _finite(value, field) if kind == "responses" else _setting(self._factor(key), value, field)
             old = record[kind].get(key)
             if old is not None and old != value and not overwrite:
                 raise LevelwiseError(
@@ -680,11 +758,13 @@ class Study:
             "std_order": np.array([r["std_order"] for r in runs], dtype=np.int64),
             "point_type": pd.array([r["point_type"] for r in runs], dtype=object),
         }
-        for f in self.factor_names:
+        for factor in self._factors:
+            f, dtype = factor.name, (object if _is_categorical(factor) else float)
+            missing = None if _is_categorical(factor) else np.nan
             if factor_block == "actual":
-                columns[f] = np.array([r["achieved"].get(f, r["planned"][f]) for r in runs], dtype=float)
+                columns[f] = np.array([r["achieved"].get(f, r["planned"][f]) for r in runs], dtype=dtype)
             else:
-                columns[f] = np.array([r[factor_block].get(f, np.nan) for r in runs], dtype=float)
+                columns[f] = np.array([r[factor_block].get(f, missing) for r in runs], dtype=dtype)
         for name in self._responses:
             columns[name] = np.array([r["responses"].get(name, np.nan) for r in runs], dtype=float)
         return pd.DataFrame(columns, index=index)
@@ -708,7 +788,32 @@ class Study:
             frame = frame.drop(index=drop)
         return frame
 
-    table = data
+    def table(self) -> pd.DataFrame:
+        """Every run (nothing dropped), settings as run, every response, and an ``excluded`` column.
+
+        ``excluded`` holds the reasons, e.g. ``"all: panel dropped"`` or ``"Impact: bubbles"``
+        (``""`` when the run is used for every response). For showing the study; fit on :meth:`data`.
+        """
+        frame = self._frame("actual")
+        notes = {run: [] for run in self._runs}
+        for item in self._exclusions:
+            scope = "all" if item["response"] is None else item["response"]
+            notes[item["run"]].append(f"{scope}: {item['reason']}")
+        frame["excluded"] = pd.array(["; ".join(notes[run]) for run in frame.index], dtype=object)
+        return frame
+
+    @property
+    def response_names(self) -> list[str]:
+        return list(self._responses)
+
+    @property
+    def revision(self) -> int:
+        """A number that grows with every change (the length of the audit log): cheap change detection."""
+        return len(self._audit)
+
+    def copy(self) -> Study:
+        """An independent copy (same data and audit log)."""
+        return Study.from_json(self.to_json(), source="<copy>")
 
     def planned(self) -> pd.DataFrame:
         """Planned settings: the run sheet with one column per factor (index = run id)."""
@@ -746,7 +851,7 @@ class Study:
         return (
             {
                 "title": self._title,
-                "factors": [{"name": f.name, "low": f.low, "high": f.high, "units": f.units} for f in self._factors],
+                "factors": [_factor_entry(f) for f in self._factors],
                 "responses": [{"name": name, **spec} for name, spec in self._responses.items()],
                 "stages": self._stages,
                 "runs": runs,
@@ -831,7 +936,13 @@ class Study:
             raw = path.read_bytes()
         except OSError as exc:
             raise StudyFileError(f"The study file '{path}' could not be read: {exc.strerror or exc}.") from exc
-        return cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+        try:
+            return cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+        except StudyFileError as exc:
+            bak = path.with_name(path.name + ".bak")
+            if not bak.exists():
+                raise
+            raise type(exc)(f"{exc} The previous version saved by levelwise is kept in '{bak}'.") from None
 
     @classmethod
     def from_json(cls, text, *, source: str = "<text>", accept_outside_edits: bool = False) -> Study:
@@ -886,6 +997,11 @@ class Study:
         outside = False
         try:
             expected = content_hash(data, audit)
+        except UnicodeEncodeError:
+            raise StudyFileError(
+                f"The study file '{source}' holds text that is not valid Unicode (a lone surrogate escape such as "
+                "\\ud800) in its 'data' or 'audit' block."
+            ) from None
         except ValueError as exc:  # NaN/inf from a number too large for a float
             raise StudyFileError(f"The study file '{source}' holds a number that is not finite: {exc}.") from None
         if expected != document["sha256"] and not migrated:
@@ -909,7 +1025,10 @@ class Study:
         factors = []
         for i, item in enumerate(data["factors"]):
             try:
-                factors.append(Factor(item["name"], item["low"], item["high"], item["units"]))
+                if "levels" in item:
+                    factors.append(Factor(item["name"], units=item["units"], levels=tuple(item["levels"])))
+                else:
+                    factors.append(Factor(item["name"], item["low"], item["high"], item["units"]))
                 _name(item["name"], "factor name")
                 _text(item["units"], "units")
             except LevelwiseError as exc:
@@ -948,16 +1067,22 @@ class Study:
                 extra = sorted(set(run[block]) - allowed)
                 if extra:
                     fail(f"{where}.{block}", f"{extra} are not among {sorted(allowed)}")
+            settings = {}
             for block in ("planned", "achieved", "responses"):
+                settings[block] = {}
                 for key, value in run[block].items():
-                    if not math.isfinite(float(value)):
-                        fail(f"{where}.{block}.{key}", f"must be a finite number; got {value!r}")
+                    field = f"{where}.{block}.{key}"
+                    try:
+                        if block == "responses":
+                            settings[block][key] = _finite(value, field)
+                        else:
+                            settings[block][key] = _plain(_setting(study._factor(key), value, field))
+                    except LevelwiseError as exc:
+                        fail(field, str(exc))
             study._runs[run_id] = {
                 "run": run_id, "stage": run["stage"], "block": int(run["block"]), "std_order": int(run["std_order"]),
                 "point_type": run["point_type"],
-                "planned": {k: float(v) for k, v in run["planned"].items()},
-                "achieved": {k: float(v) for k, v in run["achieved"].items()},
-                "responses": {k: float(v) for k, v in run["responses"].items()},
+                **settings,
             }
         for i, item in enumerate(data["exclusions"]):
             item = {**item, "run": int(item["run"])}
@@ -996,7 +1121,10 @@ class Study:
             "factors = [",
         ]
         for f in self._factors:
-            lines.append(f"    Factor({f.name!r}, {f.low!r}, {f.high!r}, units={f.units!r}),")
+            if _is_categorical(f):
+                lines.append(f"    Factor({f.name!r}, units={f.units!r}, levels={list(f.levels)!r}),")
+            else:
+                lines.append(f"    Factor({f.name!r}, {f.low!r}, {f.high!r}, units={f.units!r}),")
         lines += [
             "]",
             "# Settings as run: achieved where recorded, planned otherwise. Index = run id.",
