@@ -24,7 +24,6 @@ from .optimize import (
     target,
 )
 from .reduce import Reduction, reduce, refit
-from .study import Study
 from .surface import slice_grid, slice_polynomials
 
 __all__ = [
