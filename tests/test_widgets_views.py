@@ -437,3 +437,24 @@ def test_run_sheet_export_is_the_kernel_writer_output(shared, views, tmp_path):
     back = read_run_sheet(tmp_path / "sheet.xlsx")
     assert len(back.table) == len(builder.design) and "Impact" in back.responses
     assert "run sheet (CSV)" in builder.downloads.value and "run sheet (XLSX)" in builder.downloads.value
+
+
+def test_views_work_with_a_categorical_factor():
+    from kernel_core import Factor, full_factorial
+
+    factors = [Factor("Oven", 170, 210, units="°C"), Factor("Metal", levels=["steel", "brass"]), Factor("Film", 50, 90)]
+    design = full_factorial(factors, replicates=2, seed=1)
+    data = design.table.copy()
+    data["Impact"] = np.random.default_rng(1).normal(10, 1, len(data))  # invented data, seeded
+    shared = SharedModel(factors, data, "Impact", "linear", design=design)
+    views = [FactorSliders(shared), SurfaceSlice(shared), ResidualInspector(shared), EffectsView(shared),
+             PredictionsView(shared), DesignBuilder(shared)]
+    views[0].sliders["Metal"].value = "brass"
+    reference = fit(data, "Impact", "linear", factors=factors)  # kernel_core called directly
+    expected = reference.predict({"Oven": 190.0, "Metal": "brass", "Film": 70.0}).iloc[0]
+    assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in views[0].readout.value
+    assert list(views[1].x_factor.options) == ["Oven", "Film"]
+    with pytest.raises(LevelwiseError, match="one of its levels"):
+        shared.set_settings(Metal="copper")
+    for view in views:
+        assert view.status.value == "", type(view).__name__

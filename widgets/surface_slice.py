@@ -94,9 +94,9 @@ class SurfaceSlice(View):
         super().__init__(shared)
         self.shape = tuple(int(v) for v in shape)
         self.n_contours = int(contours)
-        names = [f.name for f in shared.factors]
+        names = [f.name for f in shared.continuous_factors()]
         if len(names) < 2:
-            raise LevelwiseError(f"A surface slice needs at least two factors. Got {names}.")
+            raise LevelwiseError(f"A surface slice needs at least two continuous factors. Got {names}.")
         x = names[0] if x is None else x
         y = next(n for n in names if n != x) if y is None else y
         self.x_factor = ipw.Dropdown(options=names, value=x, description="Across").add_class("lw-slice-x")
@@ -167,16 +167,16 @@ class SurfaceSlice(View):
         if getattr(self, "_building", False):
             return
         if self.x_factor.value == self.y_factor.value:
-            other = next(f.name for f in self.shared.factors if f.name != self.x_factor.value)
+            other = next(f.name for f in self.shared.continuous_factors() if f.name != self.x_factor.value)
             owner = change["owner"]
             (self.y_factor if owner is self.x_factor else self.x_factor).value = other
             return
         self._coalescer.request()
 
     def _on_factors(self, change=None):
-        names = [f.name for f in self.shared.factors]
+        names = [f.name for f in self.shared.continuous_factors()]
         if len(names) < 2:
-            raise LevelwiseError(f"A surface slice needs at least two factors. Got {names}.")
+            raise LevelwiseError(f"A surface slice needs at least two continuous factors. Got {names}.")
         self._building = True
         try:
             self.x_factor.options, self.y_factor.options = names, names
@@ -234,7 +234,7 @@ class SurfaceSlice(View):
         if current is None:
             self.caption.value = "No fit to draw yet: record some responses first."
             return
-        others = tuple((n, v) for n, v in sorted(shared.settings.items()) if n not in (x, y))
+        others = tuple((n, v) for n, v in sorted(shared.settings.items(), key=lambda kv: kv[0]) if n not in (x, y))
         key = (id(current), self.quantity.value, x, y, others, id(shared.exclusions), id(shared.goals))
         if key == self._key:
             return
@@ -271,7 +271,10 @@ class SurfaceSlice(View):
         self.x_axis.label, self.y_axis.label = fx.label, fy.label
         units = shared.response_units if self.quantity.value != "desirability" else ""
         self.color_axis.label = f"{shared.response} ({units})" if units else shared.response
-        held = ", ".join(f"{html.escape(n)} = {v:.4g}" for n, v in others) or "no other factors"
+        held = ", ".join(
+            f"{html.escape(n)} = {v:.4g}" if isinstance(v, float) else f"{html.escape(n)} = {html.escape(str(v))}"
+            for n, v in others
+        ) or "no other factors"
         self.caption.value = (
             f"<b>{html.escape(shared.response)}</b>: {SURFACE_QUANTITIES[self.quantity.value]}; "
             f"other factors held at {held}. Dots: runs of the design (hollow grey squares: excluded). "
