@@ -275,6 +275,8 @@ class EffectsView(View):
 
     def _draw_half_normal(self):
         current = self.effects_fit()
+        if current is None:
+            return
         try:
             coords = current.half_normal()
             result = current.lenth(self.alpha)
