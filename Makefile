@@ -25,6 +25,9 @@ test: $(VENV)/.installed-test
 	$(BIN)/ruff check .
 	$(BIN)/python -m pytest kernel_core widgets dashboards tests
 
+bench: $(VENV)/.installed-test
+	PYTHONPATH=. $(BIN)/python benchmarks/bench_design.py
+
 lint: $(VENV)/.installed-test
 	$(BIN)/ruff check .
 

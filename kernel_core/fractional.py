@@ -392,6 +392,11 @@ def fractional_factorial(
         raise LevelwiseError("fractional_factorial needs 'runs', 'generators' or 'resolution'. Got none of them.")
     if runs is not None:
         runs = _check_runs(runs, k)
+        if runs > 1 << k:
+            raise LevelwiseError(
+                f"The 'runs' parameter ({runs}) is more than the {1 << k} distinct runs of {k} factors; use "
+                "full_factorial with replicates instead."
+            )
         if runs > 128 and runs < (1 << k):
             raise LevelwiseError(f"The 'runs' parameter must be at most 128 for the search. Got {runs} instead.")
         m_values = [min(runs.bit_length() - 1, k)]
