@@ -14,9 +14,10 @@ Conventions
   ``coding="none"`` fits in natural units.
 - **Categorical factors** (a :class:`Factor` with ``is_categorical``, or a factor
   column holding text) use *sum-to-zero* contrasts over the levels seen in the
-  data, in the factor's level order (else sorted): the column of level j is 1 at
-  level j, -1 at the last level and 0 elsewhere, and is named ``Factor[level]``.
-  A two-level categorical factor therefore codes as -1/+1 like a continuous one.
+  data, in the factor's level order (else sorted): each level but the first has a
+  column, named ``Factor[level]``, that is 1 at that level, -1 at the first level and
+  0 elsewhere. A two-level categorical factor therefore codes as -1 (first level) /
+  +1 (second), as ``Factor.to_coded`` does, and its effect is 2 x its coefficient.
 - **Achieved settings**: a column named ``"<factor> (achieved)"`` (or any column
   given in ``achieved={factor: column}``) holds the setting actually reached in
   each run. The fit uses it where it has a value, and the plan elsewhere;
@@ -108,8 +109,12 @@ def _is_text_column(values: pd.Series) -> bool:
 
 
 def sum_to_zero(levels: int) -> np.ndarray:
-    """(L, L-1) sum-to-zero contrast matrix: identity rows, then a row of -1."""
-    return np.vstack([np.eye(levels - 1), -np.ones((1, levels - 1))])
+    """(L, L-1) sum-to-zero contrast matrix: a row of -1 for the first level, then identity rows.
+
+    For two levels this is -1 at the first level and +1 at the second, the coding of
+    :meth:`Factor.to_coded` for a two-level categorical factor.
+    """
+    return np.vstack([-np.ones((1, levels - 1)), np.eye(levels - 1)])
 
 
 @dataclass(frozen=True, eq=False)
@@ -750,7 +755,7 @@ def _expand(spec: ModelSpec, names, categories, contrasts):
             var_names.append(name)
         else:
             var_of.append(list(range(len(var_names), len(var_names) + contrasts[j].shape[1])))
-            var_names += [f"{name}[{level}]" for level in categories[name][:-1]]
+            var_names += [f"{name}[{level}]" for level in categories[name][1:]]
     rows, groups, group_exp = [], [], []
     for term_row in spec.exponents:
         choices = []

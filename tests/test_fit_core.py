@@ -197,12 +197,13 @@ def categorical_data():
 def test_categorical_sum_to_zero_matches_statsmodels():
     data = categorical_data()
     result = fit(data, "y", "Temp * Supplier")
-    # statsmodels with patsy Sum (sum-to-zero) contrasts over the levels in sorted order, as we document.
-    ref = smf.ols("y ~ Temp * C(Supplier, Sum)", data=data).fit()
-    assert result.terms == ("Intercept", "Temp", "Supplier[east]", "Supplier[north]",
-                            "Temp:Supplier[east]", "Temp:Supplier[north]")
-    names = ["Intercept", "Temp", "C(Supplier, Sum)[S.east]", "C(Supplier, Sum)[S.north]",
-             "Temp:C(Supplier, Sum)[S.east]", "Temp:C(Supplier, Sum)[S.north]"]  # patsy's names, our order
+    # statsmodels with patsy Sum (sum-to-zero) contrasts over the levels in sorted order, the first level
+    # omitted (it is minus the sum of the others), as we document.
+    ref = smf.ols("y ~ Temp * C(Supplier, Sum(omit=0))", data=data).fit()
+    assert result.terms == ("Intercept", "Temp", "Supplier[north]", "Supplier[west]",
+                            "Temp:Supplier[north]", "Temp:Supplier[west]")
+    c = "C(Supplier, Sum(omit=0))"
+    names = ["Intercept", "Temp", f"{c}[S.north]", f"{c}[S.west]", f"Temp:{c}[S.north]", f"Temp:{c}[S.west]"]
     assert result.beta == pytest.approx(ref.params[names].to_numpy(), rel=1e-10)
     assert result.coefficients["std_error"].to_numpy() == pytest.approx(ref.bse[names].to_numpy(), rel=1e-10)
     assert result.categories == {"Supplier": ("east", "north", "west")}
@@ -246,9 +247,9 @@ def test_declared_categorical_factor_uses_its_level_order_and_levels_seen():
     result = fit(data, "y", "Temp + Supplier", factors=factors)
     # "south" was never run: the contrasts cover the three levels seen, in the declared order.
     assert result.categories == {"Supplier": ("west", "north", "east")}
-    assert result.terms == ("Intercept", "Temp", "Supplier[west]", "Supplier[north]")
-    # Sum-to-zero: the effect of the last level is minus the sum of the others (patsy Sum contrasts, statsmodels).
-    ref = smf.ols("y ~ Temp + C(Supplier, Sum, levels=['west', 'north', 'east'])", data=data).fit()
+    assert result.terms == ("Intercept", "Temp", "Supplier[north]", "Supplier[east]")
+    # Sum-to-zero: the effect of the first level is minus the sum of the others (patsy Sum contrasts, statsmodels).
+    ref = smf.ols("y ~ Temp + C(Supplier, Sum(omit=0), levels=['west', 'north', 'east'])", data=data).fit()
     assert result.beta == pytest.approx(ref.params.to_numpy()[[0, 3, 1, 2]], rel=1e-10)
     with pytest.raises(LevelwiseError, match="level 'south', which was not in the data of this fit"):
         result.predict({"Temp": 0.0, "Supplier": "south"})
@@ -259,7 +260,7 @@ def test_declared_categorical_factor_uses_its_level_order_and_levels_seen():
 
 
 def test_categorical_factor_needs_two_distinct_levels():
-    with pytest.raises(LevelwiseError, match="'levels' of factor 'S' must be at least two distinct levels"):
+    with pytest.raises(LevelwiseError, match="'levels' of factor 'S' must be at least 2 distinct levels"):
         Factor("S", levels=["a"])
     assert Factor("S", levels=["a", "b"]).is_categorical and not Factor("T", 0, 1).is_categorical
 
