@@ -572,7 +572,7 @@ class Fit:
         elif isinstance(settings, dict):
             columns = {key: np.atleast_1d(value) for key, value in settings.items()}
             lengths = {len(v) for v in columns.values()} - {1}
-            if len(lengths) > 1 or any(np.ndim(v) != 1 for v in columns.values()):
+            if len(lengths) > 1 or 0 in lengths or any(np.ndim(v) != 1 for v in columns.values()):
                 raise LevelwiseError(
                     "The 'settings' values must be single numbers or lists of one common length. "
                     f"Got {describe(settings)} instead."
@@ -647,6 +647,9 @@ class Fit:
             raise LevelwiseError(
                 f"The 'factor' parameter must be one of {list(self.factor_names)}. Got {describe(factor)} instead."
             )
+        if isinstance(points, bool) or not isinstance(points, (int, float, np.integer, np.floating)) \
+                or not 2 <= points <= 100_000 or points != int(points):
+            raise LevelwiseError(f"The 'points' parameter must be an integer from 2 to 100000. Got {describe(points)}.")
         base = self.settings_array(settings)[0]
         j = self.factor_names.index(factor)
         if factor in self.categories:

@@ -194,6 +194,8 @@ def parse_model(model: str, factor_names) -> ModelSpec:
             desc = ModelDesc.from_formula(safe)
         except PatsyError as exc:
             raise LevelwiseError(f"The model {model!r} could not be parsed: {exc.message}") from None
+        except Exception as exc:  # patsy's tokenizer trips an assert on some input, e.g. "&"
+            raise LevelwiseError(f"The model {model!r} could not be parsed ({type(exc).__name__}).") from None
         rows = []
         for term in desc.rhs_termlist:
             row = np.zeros(k, dtype=int)

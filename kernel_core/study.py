@@ -950,8 +950,10 @@ class Study:
                     fail(f"{where}.{block}", f"{extra} are not among {sorted(allowed)}")
             for block in ("planned", "achieved", "responses"):
                 for key, value in run[block].items():
-                    if not math.isfinite(float(value)):
-                        fail(f"{where}.{block}.{key}", f"must be a finite number; got {value!r}")
+                    try:
+                        _finite(value, f"{where}.{block}.{key}")
+                    except LevelwiseError:
+                        fail(f"{where}.{block}.{key}", f"must be a finite number; got {describe(value)}")
             study._runs[run_id] = {
                 "run": run_id, "stage": run["stage"], "block": int(run["block"]), "std_order": int(run["std_order"]),
                 "point_type": run["point_type"],
