@@ -458,3 +458,11 @@ def test_views_work_with_a_categorical_factor():
         shared.set_settings(Metal="copper")
     for view in views:
         assert view.status.value == "", type(view).__name__
+
+
+def test_line_marks_never_end_in_nan(shared, views):
+    # bqplot places a Lines mark's label at its last point; a trailing NaN gave the browser
+    # "translate(undefined, undefined)" errors (seen in Chromium against a served page).
+    views["residuals"].plot.value = "leverage"
+    for mark in (views["slice"].contour_lines, views["residuals"].guides):
+        assert len(mark.x) and np.isfinite(mark.x[-1]) and np.isfinite(mark.y[-1])

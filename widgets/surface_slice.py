@@ -60,7 +60,8 @@ def contour_paths(x, y, z, levels):
         labels.append((float(middle[0]), float(middle[1])) if np.all(np.isfinite(middle)) else None)
     if not xs:
         return np.array([], dtype=np.float32), np.array([], dtype=np.float32), labels
-    return f32(np.concatenate(xs)), f32(np.concatenate(ys)), labels
+    # No NaN after the last segment: bqplot places a line's label at its last point.
+    return f32(np.concatenate(xs[:-1])), f32(np.concatenate(ys[:-1])), labels
 
 
 class SurfaceSlice(View):
