@@ -7,6 +7,7 @@ kernel's numbers); the demo data is the invented, seeded scenario of kernel_core
 from __future__ import annotations
 
 import asyncio
+import io
 from unittest import mock
 
 import numpy as np
@@ -466,3 +467,32 @@ def test_line_marks_never_end_in_nan(shared, views):
     views["residuals"].plot.value = "leverage"
     for mark in (views["slice"].contour_lines, views["residuals"].guides):
         assert len(mark.x) and np.isfinite(mark.x[-1]) and np.isfinite(mark.y[-1])
+
+
+def test_prediction_rows_are_edited_through_the_form_and_exported(shared, views):
+    table = views["predictions"]
+    table.add_current()
+    table.add_current()
+    browser_update(table.row_choice, index=1)
+    table.editors["Oven"].value = 175.0
+    table.editors["Catalyst"].value = 1.45
+    table.save_button.click()
+    expected = kernel_fit().predict({"Oven": 175.0, "Dwell": 12.0, "Film": 70.0, "Catalyst": 1.45}).iloc[0]
+    frame = table.to_frame()
+    assert frame.loc[1, "Impact ci_high"] == pytest.approx(expected["ci_high"], rel=1e-12)
+    assert frame.loc[0, "Oven"] == 190.0  # the other row is untouched
+    csv = pd.read_csv(io.StringIO(table.to_csv()), index_col="row")
+    assert csv.loc[1, "Impact pi_low"] == pytest.approx(expected["pi_low"], rel=1e-12)
+    assert "Download the table (CSV)" in table.download.value
+    with pytest.raises(LevelwiseError, match="must be finite"):
+        table.edit_row(0, Oven=float("inf"))
+
+
+def test_hovering_a_residual_point_shows_that_run(shared, views):
+    inspector = views["residuals"]
+    browser_event(inspector.used, {"event": "hover", "data": {"index": 0}})
+    run = inspector.run.value
+    label = shared.label_of(run)
+    diag = kernel_fit().diagnostics.loc[label]  # kernel_core called directly
+    assert f"Run {run}" in inspector.detail.value
+    assert fmt(diag["cooks_distance"]) in inspector.detail.value and fmt(diag["leverage"]) in inspector.detail.value
