@@ -27,6 +27,7 @@ test: $(VENV)/.installed-test
 
 bench: $(VENV)/.installed-test
 	PYTHONPATH=. $(BIN)/python benchmarks/bench_design.py
+	PYTHONPATH=. $(BIN)/python benchmarks/bench_fit.py
 
 lint: $(VENV)/.installed-test
 	$(BIN)/ruff check .
