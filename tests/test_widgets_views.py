@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import asyncio
 import io
+import threading
 from unittest import mock
 
 import numpy as np
@@ -103,10 +104,12 @@ def test_moving_a_setting_updates_every_view_to_the_kernel_numbers(shared, views
     assert float(marker.y[0]) == pytest.approx(expected["mean"], **F32)
 
     surface = views["slice"]
+    surface.flush()  # refreshes are coalesced when an event loop runs (e.g. a browser test's)
     grid = slice_grid(reference, "Oven", "Dwell", shared.settings, shape=(40, 30))
     assert np.asarray(surface.heatmap.color) == pytest.approx(grid["mean"], **F32)
     assert (float(surface.marker.x[0]), float(surface.marker.y[0])) == (204.0, 9.0)
     surface.quantity.value = "pi_half"
+    surface.flush()
     assert np.asarray(surface.heatmap.color) == pytest.approx(grid["pi_half"], **F32)
 
     # The row added before the move keeps its own settings; a new row takes the new ones.
@@ -141,6 +144,7 @@ def test_clicking_the_slice_sets_both_axis_factors(shared, views):
 
 def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):
     surface = views["slice"]
+    surface.flush()
     before = surface.redraws
 
     async def drag():
@@ -148,7 +152,10 @@ def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):
             shared.set_settings(Film=film)
         await asyncio.sleep(0.1)
 
-    asyncio.run(drag())
+    # A fresh event loop in its own thread, as a kernel has (another test's loop may be set on this one).
+    worker = threading.Thread(target=asyncio.run, args=(drag(),))
+    worker.start()
+    worker.join(10)
     assert surface.redraws == before + 1  # five slider events, one slice computed
     grid = slice_grid(kernel_fit(), "Oven", "Dwell", shared.settings, shape=(40, 30))
     assert np.asarray(surface.heatmap.color) == pytest.approx(grid["mean"], **F32)  # the latest value won
@@ -156,8 +163,10 @@ def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):
 
 def test_moving_an_axis_factor_only_moves_the_marker(shared, views):
     surface = views["slice"]
+    surface.flush()
     before = surface.redraws
     shared.set_settings(Oven=177.0)
+    surface.flush()
     assert surface.redraws == before
     assert float(surface.marker.x[0]) == 177.0
 
@@ -180,6 +189,7 @@ def test_an_exclusion_from_the_inspector_refits_every_view(shared, views):
     )
     expected = reference.predict(shared.settings).iloc[0]
     assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in views["sliders"].readout.value
+    views["slice"].flush()
     grid = slice_grid(reference, "Oven", "Dwell", shared.settings, shape=(40, 30))
     assert np.asarray(views["slice"].heatmap.color) == pytest.approx(grid["mean"], **F32)
     assert len(views["slice"].excluded_points.x) == 1  # excluded runs stay visible, marked
@@ -380,6 +390,7 @@ def test_optimiser_shows_the_kernel_optimum_and_moves_the_sliders(shared, views)
         assert shared.settings[name] == pytest.approx(value, rel=1e-9)
         assert views["sliders"].sliders[name].value == pytest.approx(value, rel=1e-9)
     views["slice"].quantity.value = "desirability"
+    views["slice"].flush()
     assert float(np.max(views["slice"].heatmap.color)) <= 1.0
 
 
@@ -409,14 +420,17 @@ def test_bytes_per_slider_event_are_float32_and_only_what_changed(monkeypatch, c
     shared = make_shared()
     views = {"sliders": FactorSliders(shared), "slice": SurfaceSlice(shared)}  # 100 x 100 slice
     slider = views["sliders"].sliders["Film"]
+    views["slice"].flush()
     log.clear()
     browser_update(slider, value=62.0)
+    views["slice"].flush()  # the coalesced slice refresh belongs to this event
     other_factor = message_bytes(log)
     arrays = [v for data, _ in log for v in data.get("state", {}).values() if isinstance(v, dict) and "dtype" in v]
     assert arrays and {a["dtype"] for a in arrays} == {"float32"}
     keys = {k for data, _ in log for k in data.get("state", {})}
     log.clear()
     browser_update(views["sliders"].sliders["Oven"], value=200.0)  # an axis factor of the slice
+    views["slice"].flush()
     axis_factor = message_bytes(log)
     sent = {k for data, _ in log for k in data.get("state", {})}
     assert "color" in keys and "color" not in sent  # the slice itself did not change: not re-sent
