@@ -195,6 +195,8 @@ class DesignBuilder(View):
                 self.status,
             ]
         ).add_class("lw-design-builder")
+        if any(getattr(f, "is_categorical", False) for f in shared.factors):
+            self.options["center_points"].value = 0  # a categorical factor has no centre
         self.family.observe(self.safely(self._on_family), names="value")
         for control in self.options.values():
             control.observe(self.safely(self._on_option), names="value")

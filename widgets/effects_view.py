@@ -257,16 +257,26 @@ class EffectsView(View):
 
         Falls back to the current model (saying so) when the scope cannot be fitted, e.g. aliased terms.
         """
+        key = (id(self.shared.fit), id(self.shared.exclusions), id(self.shared.data), self.shared.response,
+               self.basis.value)
+        cached = getattr(self, "_effects_cache", None)
+        if cached is not None and cached[0] == key:
+            self._basis_note = cached[2]
+            return cached[1]
         self._basis_note = ""
+        chosen = self.shared.fit
         if self.basis.value == "scope":
             try:
-                return self.shared.fit_model(self.scope)
+                chosen = self.shared.fit_model(self.scope)
             except LevelwiseError as exc:
                 self._basis_note = f"The candidate terms cannot all be estimated ({exc}); showing the current model. "
-        return self.shared.fit
+        self._effects_cache = (key, chosen, self._basis_note)
+        return chosen
 
     def _draw_half_normal(self):
         current = self.effects_fit()
+        if current is None:
+            return
         try:
             coords = current.half_normal()
             result = current.lenth(self.alpha)

@@ -18,7 +18,7 @@ import numpy as np
 from kernel_core import LevelwiseError
 
 from ._base import View, f32, set_if_changed
-from .shared_model import SharedModel
+from .shared_model import SharedModel, is_categorical
 from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, PI_COLOR, WORDS, fmt
 
 
@@ -53,8 +53,9 @@ class FactorSliders(View):
 
     Attributes
     ----------
-    sliders : dict of str -> ipywidgets.FloatSlider
-        One per factor (CSS class ``lw-slider``), bounded to the factor's tested range.
+    sliders : dict of str -> ipywidgets.FloatSlider or ipywidgets.Dropdown
+        One per factor (CSS class ``lw-slider``), bounded to the factor's tested range; a categorical
+        factor gets a Dropdown of its levels (``lw-level-choice``) and no trace.
     readout : ipywidgets.HTML
         Per response: the expected mean with its 95% confidence and prediction intervals, in words
         (CSS ``lw-readout``; spans ``lw-mean``, ``lw-ci``, ``lw-pi``).
@@ -97,6 +98,13 @@ class FactorSliders(View):
             old.close()
         self.sliders, self.traces, self._marks, self._y_axes = {}, {}, {}, []
         for f in self.shared.factors:
+            if is_categorical(f):
+                choice = ipw.Dropdown(options=list(f.levels), value=self.shared.settings[f.name],
+                                      description=f.label, style={"description_width": "initial"})
+                choice.add_class("lw-level-choice")
+                choice.observe(self.safely(self._on_slider), names="value")
+                self.sliders[f.name] = choice
+                continue
             slider = ipw.FloatSlider(
                 value=self.shared.settings[f.name],
                 min=f.low,
@@ -118,7 +126,7 @@ class FactorSliders(View):
         self._refresh()
 
     def _trace_figure(self, factor):
-        x_scale = bq.LinearScale(min=factor.low, max=factor.high)
+        x_scale = bq.LinearScale(min=factor.low, max=factor.high)  # continuous factors only
         scales = {"x": x_scale, "y": self.y_scale}
         pi_band = bq.Lines(
             scales=scales, fill="between", colors=[PI_COLOR, PI_COLOR], fill_colors=[PI_COLOR],

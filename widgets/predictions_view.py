@@ -18,7 +18,7 @@ from kernel_core import LevelwiseError
 from kernel_core._errors import describe
 
 from ._base import View
-from .shared_model import SharedModel
+from .shared_model import SharedModel, is_categorical
 from .style import fmt
 
 
@@ -80,11 +80,14 @@ class PredictionsView(View):
         """One editor per factor; a new set of factors starts an empty table."""
         for box in self.editors.values():
             box.close()
-        self.editors = {
-            f.name: ipw.FloatText(description=f.label, style={"description_width": "initial"},
-                                  layout=ipw.Layout(width="200px")).add_class("lw-prediction-edit")
-            for f in self.shared.factors
-        }
+        self.editors = {}
+        for f in self.shared.factors:
+            if is_categorical(f):
+                box = ipw.Dropdown(options=list(f.levels), description=f.label, style={"description_width": "initial"})
+            else:
+                box = ipw.FloatText(description=f.label, style={"description_width": "initial"},
+                                    layout=ipw.Layout(width="200px"))
+            self.editors[f.name] = box.add_class("lw-prediction-edit")
         self.editor_box.children = list(self.editors.values())
         if change is not None:
             self.rows = []
@@ -143,12 +146,21 @@ class PredictionsView(View):
         return int(index)
 
     def _checked(self, settings: dict) -> dict:
-        known = {f.name for f in self.shared.factors}
-        unknown = sorted(set(settings) - known)
+        known = {f.name: f for f in self.shared.factors}
+        unknown = sorted(set(settings) - set(known))
         if unknown:
             raise LevelwiseError(f"A candidate row names unknown factor(s) {unknown}; known: {sorted(known)}.")
         clean = {}
         for name, value in settings.items():
+            if is_categorical(known[name]):
+                matches = [lv for lv in known[name].levels if lv == value or str(lv) == str(value)]
+                if not matches:
+                    raise LevelwiseError(
+                        f"The setting of {name!r} must be one of its levels {list(known[name].levels)}. "
+                        f"Got {describe(value)} instead."
+                    )
+                clean[name] = matches[0]
+                continue
             try:
                 number = float(value)
             except (TypeError, ValueError):
@@ -195,7 +207,10 @@ class PredictionsView(View):
         head += "<th>Inside the tested region?</th>"
         body = []
         for i, row in frame.iterrows():
-            cells = "".join(f"<td>{fmt(row[f.name])}</td>" for f in factors)
+            cells = "".join(
+                f"<td>{html.escape(str(row[f.name])) if is_categorical(f) else fmt(row[f.name])}</td>"
+                for f in factors
+            )
             outside = False
             for response in self.shared.responses:
                 if f"{response} mean" not in frame:

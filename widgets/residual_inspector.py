@@ -17,7 +17,7 @@ import numpy as np
 from kernel_core import LevelwiseError
 
 from ._base import View, f32, set_if_changed
-from .shared_model import SharedModel
+from .shared_model import SharedModel, is_categorical
 from .style import EXCLUDED_COLOR, HIGHLIGHT_COLOR, OKABE_ITO, RUN_COLOR, fmt
 
 #: Cook's distance levels drawn on the leverage plot (0.5 and 1: common practice).
@@ -219,7 +219,8 @@ class ResidualInspector(View):
                 r = cook_contour(level, current.p, h)
                 xs += [h, [np.nan], h, [np.nan]]
                 ys += [r, [np.nan], -r, [np.nan]]
-            guides_x, guides_y = f32(np.concatenate(xs)), f32(np.concatenate(ys))
+            # No NaN after the last segment: bqplot places a line's label at its last point.
+            guides_x, guides_y = f32(np.concatenate(xs[:-1])), f32(np.concatenate(ys[:-1]))
             xlabel, ylabel = "Leverage", "Studentized residual (dashed: Cook's distance 0.5 and 1)"
         else:
             y = diag["residual"].to_numpy()
@@ -234,10 +235,17 @@ class ResidualInspector(View):
             else:
                 name = choice.split(":", 1)[1]
                 factor = self.shared.factor(name)
-                by_run = dict(zip(self.shared.run_ids().tolist(), self.shared.data[name].to_numpy(dtype=float)))
+                column = self.shared.data[name]
+                if is_categorical(factor):  # levels drawn at 0, 1, 2, ... in the order the factor lists them
+                    position = {level: i for i, level in enumerate(factor.levels)}
+                    column = column.map(lambda v: position.get(v, position.get(str(v), np.nan)))
+                by_run = dict(zip(self.shared.run_ids().tolist(), column.to_numpy(dtype=float)))
                 x = np.array([by_run[r] for r in used_runs])
                 ex_x = np.array([by_run[r] for r in ex_runs])
-                xlabel = factor.label
+                xlabel = factor.label + (
+                    " (levels " + ", ".join(f"{i} = {lv}" for i, lv in enumerate(factor.levels)) + ")"
+                    if is_categorical(factor) else ""
+                )
             ylabel = resid_label
             span = np.r_[x, ex_x] if len(ex_x) else x
             guides_x, guides_y = f32([np.nanmin(span), np.nanmax(span)]), f32([0.0, 0.0])
@@ -290,7 +298,8 @@ class ResidualInspector(View):
         units = shared.response_units
         unit = f" {html.escape(units)}" if units else ""
         settings = ", ".join(
-            f"{html.escape(f.name)} = {fmt(float(row[f.name]))}"
+            f"{html.escape(f.name)} = "
+            + (html.escape(str(row[f.name])) if is_categorical(f) else fmt(float(row[f.name])))
             + (f" {html.escape(f.units)}" if f.units else "")
             for f in shared.factors
         )
@@ -299,7 +308,7 @@ class ResidualInspector(View):
         lines.append(f"Observed {html.escape(shared.response)}: {fmt(observed)}{unit}")
         label = shared.label_of(run)
         if run in shared.exclusions:
-            pred = current.predict({f.name: float(row[f.name]) for f in shared.factors}).iloc[0]
+            pred = current.predict({f.name: row[f.name] for f in shared.factors}).iloc[0]
             lines.append(
                 f'<span class="lw-excluded-mark">Left out of the fit: {html.escape(shared.exclusions[run])}</span>'
             )

@@ -45,6 +45,16 @@ class ReadOnlyError(LevelwiseError):
     """A change was asked of a read-only shared model."""
 
 
+def is_categorical(factor: Factor) -> bool:
+    """True for a factor with named levels (kernel_core ``Factor(name, levels=[...])``)."""
+    return bool(getattr(factor, "is_categorical", False))
+
+
+def default_setting(factor: Factor):
+    """Where a factor starts: its centre, or the first level of a categorical factor."""
+    return factor.levels[0] if is_categorical(factor) else factor.center
+
+
 class _NoneChecked(traitlets.Instance):
     """An Instance trait whose validators also see ``None`` (traitlets skips them for None by default),
     so that setting it to None cannot slip past the read-only guard."""
@@ -175,7 +185,7 @@ class SharedModel(traitlets.HasTraits):
             self.set_trait("level", float(level))
             if exclusions:
                 self.exclusions = {self._run_id(run): self._reason(reason) for run, reason in exclusions.items()}
-            self.settings = {f.name: f.center for f in factors} | dict(settings or {})
+            self.settings = {f.name: default_setting(f) for f in factors} | dict(settings or {})
             self._refit()
         self.set_trait("read_only", bool(read_only))  # last: the model is built before it is locked
         self.observe(self._on_response, names="response")
@@ -258,6 +268,16 @@ class SharedModel(traitlets.HasTraits):
             raise LevelwiseError(f"The settings name unknown factor(s) {unknown}; known: {sorted(by_name)}.")
         clean = dict(self.settings) if self.settings else {}
         for name, raw in value.items():
+            factor = by_name[name]
+            if is_categorical(factor):
+                matches = [level for level in factor.levels if level == raw or str(level) == str(raw)]
+                if not matches:
+                    raise LevelwiseError(
+                        f"The setting of {name!r} must be one of its levels {list(factor.levels)}. "
+                        f"Got {describe(raw)} instead."
+                    )
+                clean[name] = matches[0]
+                continue
             if isinstance(raw, bool):
                 raise LevelwiseError(f"The setting of {name!r} must be a number. Got {raw!r} instead.")
             try:
@@ -266,7 +286,6 @@ class SharedModel(traitlets.HasTraits):
                 raise LevelwiseError(f"The setting of {name!r} must be a number. Got {describe(raw)}.") from None
             if not np.isfinite(number):
                 raise LevelwiseError(f"The setting of {name!r} must be finite. Got {raw!r} instead.")
-            factor = by_name[name]
             if self.read_only and not factor.low <= number <= factor.high:
                 raise ReadOnlyError(
                     f"This dashboard is read-only: the setting of {name!r} must stay in the tested range "
@@ -423,7 +442,7 @@ class SharedModel(traitlets.HasTraits):
             self.exclusions = {}
             self.goals = {}
             self.response = names[0]
-            self.settings = {f.name: f.center for f in design.factors}
+            self.settings = {f.name: default_setting(f) for f in design.factors}
             self.study = None
         self._refit()
 
@@ -518,10 +537,13 @@ class SharedModel(traitlets.HasTraits):
                 return f
         raise LevelwiseError(f"The factor must be one of {[f.name for f in self.factors]}. Got {describe(name)}.")
 
-    def settings_row(self) -> np.ndarray:
-        """Current settings as a (1, k) array in factor order."""
-        return np.array([[self.settings[f.name] for f in self.factors]])
+    def continuous_factors(self) -> list[Factor]:
+        """The factors with a low and a high setting (those a slider or a slice axis can move)."""
+        return [f for f in self.factors if not is_categorical(f)]
 
     def extrapolating(self) -> list[str]:
         """Names of factors whose current setting lies outside the tested range."""
-        return [f.name for f in self.factors if not f.low <= self.settings[f.name] <= f.high]
+        return [
+            f.name for f in self.factors
+            if not is_categorical(f) and not f.low <= self.settings[f.name] <= f.high
+        ]

@@ -60,7 +60,8 @@ def contour_paths(x, y, z, levels):
         labels.append((float(middle[0]), float(middle[1])) if np.all(np.isfinite(middle)) else None)
     if not xs:
         return np.array([], dtype=np.float32), np.array([], dtype=np.float32), labels
-    return f32(np.concatenate(xs)), f32(np.concatenate(ys)), labels
+    # No NaN after the last segment: bqplot places a line's label at its last point.
+    return f32(np.concatenate(xs[:-1])), f32(np.concatenate(ys[:-1])), labels
 
 
 class SurfaceSlice(View):
@@ -94,9 +95,9 @@ class SurfaceSlice(View):
         super().__init__(shared)
         self.shape = tuple(int(v) for v in shape)
         self.n_contours = int(contours)
-        names = [f.name for f in shared.factors]
+        names = [f.name for f in shared.continuous_factors()]
         if len(names) < 2:
-            raise LevelwiseError(f"A surface slice needs at least two factors. Got {names}.")
+            raise LevelwiseError(f"A surface slice needs at least two continuous factors. Got {names}.")
         x = names[0] if x is None else x
         y = next(n for n in names if n != x) if y is None else y
         self.x_factor = ipw.Dropdown(options=names, value=x, description="Across").add_class("lw-slice-x")
@@ -167,16 +168,16 @@ class SurfaceSlice(View):
         if getattr(self, "_building", False):
             return
         if self.x_factor.value == self.y_factor.value:
-            other = next(f.name for f in self.shared.factors if f.name != self.x_factor.value)
+            other = next(f.name for f in self.shared.continuous_factors() if f.name != self.x_factor.value)
             owner = change["owner"]
             (self.y_factor if owner is self.x_factor else self.x_factor).value = other
             return
         self._coalescer.request()
 
     def _on_factors(self, change=None):
-        names = [f.name for f in self.shared.factors]
+        names = [f.name for f in self.shared.continuous_factors()]
         if len(names) < 2:
-            raise LevelwiseError(f"A surface slice needs at least two factors. Got {names}.")
+            raise LevelwiseError(f"A surface slice needs at least two continuous factors. Got {names}.")
         self._building = True
         try:
             self.x_factor.options, self.y_factor.options = names, names
@@ -187,6 +188,12 @@ class SurfaceSlice(View):
         self._coalescer.request()
 
     def _on_shared(self, change=None):
+        """Cheap parts now (the error line, the marker); the slice itself coalesced."""
+        self.show_shared_error()
+        x, y = self.x_factor.value, self.y_factor.value
+        if x in self.shared.settings and y in self.shared.settings:
+            with self.marker.hold_sync():
+                set_if_changed(self.marker, x=f32([self.shared.settings[x]]), y=f32([self.shared.settings[y]]))
         self._coalescer.request()
 
     def _on_click(self, mark, content):
@@ -201,7 +208,8 @@ class SurfaceSlice(View):
             self.shared.error = str(exc)
 
     def flush(self) -> None:
-        """Draw now whatever refresh is pending."""
+        """Draw now whatever refresh is pending (inside a running event loop the slice is drawn
+        shortly after the last change; code that reads the slice's arrays at once calls this first)."""
         self._coalescer.flush()
 
     def _target_axes(self):
@@ -234,7 +242,7 @@ class SurfaceSlice(View):
         if current is None:
             self.caption.value = "No fit to draw yet: record some responses first."
             return
-        others = tuple((n, v) for n, v in sorted(shared.settings.items()) if n not in (x, y))
+        others = tuple((n, v) for n, v in sorted(shared.settings.items(), key=lambda kv: kv[0]) if n not in (x, y))
         key = (id(current), self.quantity.value, x, y, others, id(shared.exclusions), id(shared.goals))
         if key == self._key:
             return
@@ -271,7 +279,10 @@ class SurfaceSlice(View):
         self.x_axis.label, self.y_axis.label = fx.label, fy.label
         units = shared.response_units if self.quantity.value != "desirability" else ""
         self.color_axis.label = f"{shared.response} ({units})" if units else shared.response
-        held = ", ".join(f"{html.escape(n)} = {v:.4g}" for n, v in others) or "no other factors"
+        held = ", ".join(
+            f"{html.escape(n)} = {v:.4g}" if isinstance(v, float) else f"{html.escape(n)} = {html.escape(str(v))}"
+            for n, v in others
+        ) or "no other factors"
         self.caption.value = (
             f"<b>{html.escape(shared.response)}</b>: {SURFACE_QUANTITIES[self.quantity.value]}; "
             f"other factors held at {held}. Dots: runs of the design (hollow grey squares: excluded). "
