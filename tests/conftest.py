@@ -166,6 +166,34 @@ def stop_server(proc: subprocess.Popen) -> None:
         proc.wait(timeout=5)
 
 
+def cpu_ticks_of_children(pid: int) -> dict:
+    """user+system CPU ticks of each child process of *pid* (from /proc)."""
+    ticks = {}
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+        except OSError:
+            continue
+        if int(fields[1]) == pid:  # field 4 of stat: the parent pid
+            ticks[entry.name] = int(fields[11]) + int(fields[12])  # fields 14, 15: utime, stime
+    return ticks
+
+
+def wait_until_children_idle(pid: int, quiet: float = 1.5, timeout: float = 90.0) -> None:
+    """Wait until the server's kernels have used no CPU for *quiet* seconds (the preheated notebook has run)."""
+    deadline = time.monotonic() + timeout
+    last, since = None, time.monotonic()
+    while time.monotonic() < deadline:
+        now = cpu_ticks_of_children(pid)
+        if now != last:
+            last, since = now, time.monotonic()
+        elif now and time.monotonic() - since >= quiet:
+            return
+        time.sleep(0.25)
+
+
 @pytest.fixture(scope="module")
 def published_dir(tmp_path_factory):
     """A folder written by ``levelwise publish demo``."""
@@ -181,7 +209,8 @@ def served_published(chromium_path, published_dir):
     """``levelwise view DIR`` on a free loopback port, its kernel pool filled; yields (base URL, output)."""
     port = free_port()
     proc, output = start_cli_server(["view", str(published_dir)], port)
-    output.wait_for("is filled with", timeout=60)  # the preheated kernel has run the notebook
+    output.wait_for("is filled with", timeout=60)  # the preheated kernel was started...
+    wait_until_children_idle(proc.pid)  # ...and has finished running the notebook
     try:
         yield f"http://127.0.0.1:{port}/", output
     finally:
