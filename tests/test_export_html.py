@@ -107,3 +107,25 @@ def test_export_computes_offline_like_the_kernel(export_file, browser):
     page.screenshot(path=str(SCREENSHOTS / "offline-export.png"))
     context.close()
     assert np.isfinite(after["responses"][source.responses[0]]["pi_high"])
+
+
+def test_export_of_a_saturated_fit_says_not_available(tmp_path):
+    """A fit with no residual degrees of freedom has no s: the page gets null, never NaN (invalid JSON)."""
+    from kernel_core import Factor, full_factorial
+    from kernel_core.study import Study
+
+    study = Study([Factor("A", 0, 1), Factor("B", 10, 20, "min")], title="saturated (invented)")
+    study.add_stage("screen", full_factorial(study.factors, randomize=False))
+    study.add_response("y", units="g", goal="maximize")
+    for run, value in zip(study.run_ids, [1.0, 3.0, 2.0, 4.5]):
+        study.record(run, "y", value)
+    study.set_model("y", "A + B + A:B")  # 4 terms, 4 runs
+    path = tmp_path / "s.json"
+    study.save(path)
+    out = write_export(str(path), tmp_path / "s.html")
+    text = out.read_text(encoding="utf-8")
+    block = re.search(r'<script id="lw-data" type="application/json">(.*?)</script>', text, re.S).group(1)
+    assert "NaN" not in block and "Infinity" not in block  # not JSON: the page's JSON.parse would fail
+    data = json.loads(block)
+    assert data["responses"][0]["s"] is None and data["responses"][0]["df"] == 0
+    assert "nothing left to judge its error by" in text
