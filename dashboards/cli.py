@@ -20,6 +20,7 @@ import sys
 from pathlib import Path
 
 from . import NOTEBOOKS
+from .hardening import CULL_IDLE_TIMEOUT
 
 DEFAULT_PORT = 8866
 EXIT_OK, EXIT_FAILURE, EXIT_USAGE = 0, 1, 2
@@ -34,12 +35,13 @@ def voila_command(notebook, port: int, ip: str = "127.0.0.1", **options) -> list
 
 
 def _run_server(notebook, args, *, study_env: str | None, what: str, preheat: bool, config_dir=None) -> int:
-    from .hardening import server_env
+    from .hardening import CULL_INTERVAL, server_env
     from .study_source import STUDY_ENV
 
+    idle = getattr(args, "idle_timeout", CULL_IDLE_TIMEOUT)
     command = voila_command(
         notebook, args.port, args.ip, token=args.token, preheat=preheat, pool_size=getattr(args, "pool_size", 1),
-        config_dir=config_dir,
+        config_dir=config_dir, cull_idle_timeout=idle, cull_interval=max(1, min(CULL_INTERVAL, idle // 2)),
     )
     env = server_env({STUDY_ENV: study_env} if study_env else None)
     query = f"?token={args.token}" if args.token else ""
@@ -117,6 +119,16 @@ def _port(text: str) -> int:
     return value
 
 
+def _seconds(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a whole number of seconds, at least 2; got {text!r}") from None
+    if value < 2:
+        raise argparse.ArgumentTypeError(f"must be a whole number of seconds, at least 2; got {text!r}")
+    return value
+
+
 def _server_options(parser) -> None:
     parser.add_argument("--port", type=_port, default=DEFAULT_PORT, help=f"Port (default {DEFAULT_PORT}).")
     parser.add_argument("--ip", default="127.0.0.1",
@@ -156,6 +168,8 @@ def build_parser() -> argparse.ArgumentParser:
     _server_options(p_view)
     p_view.add_argument("--pool-size", type=int, default=1, dest="pool_size",
                         help="Preheated kernels kept ready for new viewers (default 1; 0 turns preheating off).")
+    p_view.add_argument("--idle-timeout", type=_seconds, default=CULL_IDLE_TIMEOUT, dest="idle_timeout",
+                        help=f"Shut a viewer's kernel down after this many idle seconds (default {CULL_IDLE_TIMEOUT}).")
     p_view.set_defaults(handler=view)
 
     p_exp = sub.add_parser("export-html", help="Write the offline single-file HTML export.",

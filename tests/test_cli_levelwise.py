@@ -6,6 +6,7 @@ from __future__ import annotations
 import json
 import subprocess
 import sys
+import time
 import urllib.error
 import urllib.request
 
@@ -177,3 +178,24 @@ def published_board(tmp_path_factory):
     out = tmp_path_factory.mktemp("token") / "board"
     assert cli.main(["publish", "demo", "--out", str(out)]) == 0
     return out
+
+
+def test_view_culls_an_idle_viewer_kernel(published_board):
+    """A live ``levelwise view DIR --idle-timeout 3`` (no preheating): a page view starts a kernel, and the kernel is
+    shut down once it has been idle for the timeout."""
+    from conftest import cpu_ticks_of_children, free_port, start_cli_server, stop_server
+
+    port = free_port()
+    proc, output = start_cli_server(["view", str(published_board), "--pool-size", "0", "--idle-timeout", "3"], port)
+    try:
+        assert cpu_ticks_of_children(proc.pid) == {}  # no kernel before the first view
+        with urllib.request.urlopen(f"http://127.0.0.1:{port}/", timeout=120) as response:
+            assert response.status == 200 and "kernelId" in response.read().decode("utf-8", "replace")
+        assert len(cpu_ticks_of_children(proc.pid)) == 1  # the viewer's kernel (no browser ever connects)
+        deadline = time.monotonic() + 30
+        while cpu_ticks_of_children(proc.pid) and time.monotonic() < deadline:
+            time.sleep(0.5)
+        assert cpu_ticks_of_children(proc.pid) == {}
+        assert output.wait_for("Culling", timeout=5)  # shut down by the idle culler (jupyter_server's log line)
+    finally:
+        stop_server(proc)
