@@ -4,7 +4,7 @@ Commands::
 
     levelwise serve [STUDY] [--port N] [--ip ADDR] [--token T]   the workbench on a study (default: the demo)
     levelwise publish STUDY --out DIR                           write a read-only dashboard folder
-    levelwise view DIR [--port N] [--ip ADDR] [--token T]        serve a published folder (default port 8866)
+    levelwise view DIR [--port N] [--ip ADDR] [--token T] [--idle-timeout S]   serve a published folder (port 8866)
     levelwise export-html STUDY -o FILE.html                     write the offline single-file export
 
 STUDY is a study JSON file or the word ``demo`` (the invented demo study).

@@ -14,6 +14,8 @@ import json
 
 import ipywidgets as ipw
 
+from kernel_core import LevelwiseError
+
 from ._compose import find_view
 from .kernel_guard import silence_tracebacks
 from .study_source import StudySource, open_study, shared_model
@@ -115,11 +117,24 @@ def _read_only_part(name: str, view, source: StudySource):
     return view.widget
 
 
+def unavailable(exc) -> ipw.VBox:
+    """The page shown when the study cannot be read: the reason, and the caution."""
+    message = ShownHTML(
+        f'<h2>This dashboard cannot show its study</h2><div class="lw-error">{html.escape(str(exc))}</div>'
+    ).add_class("lw-unavailable")
+    page = ipw.VBox([message, ShownHTML(caution_html())]).add_class("lw-present")
+    page.shared, page.views, page.source = None, [], None
+    return page
+
+
 def build(source=None) -> ipw.VBox:
     """The read-only stakeholder page for *source* (a path, ``"demo"``, or None: see :func:`open_study`)."""
     silence_tracebacks()
-    source = source if isinstance(source, StudySource) else open_study(source)
-    shared = shared_model(source, read_only=True)
+    try:
+        source = source if isinstance(source, StudySource) else open_study(source)
+        shared = shared_model(source, read_only=True)
+    except (LevelwiseError, OSError) as exc:  # the page says what is wrong; it never shows a traceback
+        return unavailable(exc)
     title = ShownHTML(f"<h2>{html.escape(source.title)}</h2>").add_class("lw-title")
     banner = ShownHTML(caution_html()).add_class("lw-banner")
     readout = StudyReadout(source, shared)

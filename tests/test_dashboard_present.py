@@ -92,3 +92,14 @@ def test_study_is_found_by_env_then_file_then_demo(tmp_path, monkeypatch):
     assert locate(here=tmp_path) == tmp_path / "other.json"
     with pytest.raises(LevelwiseError, match="does not exist"):
         open_study(None)
+
+
+def test_present_shows_why_when_the_study_cannot_be_read(tmp_path):
+    bad = tmp_path / "study.json"
+    bad.write_text('{"format_version": 1, "truncated')
+    page = present.build(str(bad))
+    text = " ".join(w.value for w in walk(page) if isinstance(w, ipw.HTML))
+    assert "cannot show its study" in text and str(bad.name) in text
+    assert CAUTION in text
+    missing = present.build(str(tmp_path / "none.json"))
+    assert "does not exist" in " ".join(w.value for w in walk(missing) if isinstance(w, ipw.HTML))
