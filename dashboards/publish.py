@@ -49,8 +49,8 @@ tracebacks hidden, no file of this folder served, kernels preheated, idle kernel
 `v1.kernel.websocket.jupyter.org` protocol. Run it without levelwise's command from inside this
 folder with `OPENBLAS_NUM_THREADS=1 voila present.ipynb` (voila reads `voila.json` here).
 
-Each viewer gets their own kernel (about 200 MB of memory for the demo campaign). A page left idle for {cull} s loses its kernel:
-reload it.
+Each viewer gets their own kernel (about 200 MB of memory for the demo campaign). A page left idle
+for {cull} s loses its kernel: reload it.
 
 ## Read this before you act on a number
 
