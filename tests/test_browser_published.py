@@ -75,6 +75,7 @@ def test_renders_read_only_with_caution_and_summary(opened):
     assert "Invented data" in text
     assert re.search(r"Study fingerprint [0-9a-f]{16}", text)
     assert "Traceback" not in page.content()
+    assert "from dashboards.present import build" not in page.content()  # sources stripped
     for selector in MUTATING_SELECTORS:
         assert page.locator(selector).count() == 0, selector
     # Report (not assert) the first view with a preheated kernel.
@@ -227,8 +228,8 @@ def test_paths_are_not_served(served_published, path):
     assert "Traceback" not in body
 
 
-def test_report_viewer_kernel_memory(opened):
-    """Report (not assert) the resident memory of the kernel serving this viewer."""
+def test_viewer_kernel_runs_one_blas_thread_and_report_its_memory(opened):
+    """The viewer kernel's environment pins one BLAS thread; its resident memory is reported (not asserted)."""
     page, _ = opened
     kernel = kernel_id_of(page)
     rss = None
@@ -240,6 +241,8 @@ def test_report_viewer_kernel_memory(opened):
             if "ipykernel" in cmdline and kernel in cmdline:
                 status = (proc / "status").read_text()
                 rss = int(re.search(r"VmRSS:\s+(\d+) kB", status).group(1)) / 1024
+                environ = (proc / "environ").read_bytes().split(b"\0")
+                assert b"OPENBLAS_NUM_THREADS=1" in environ and b"OMP_NUM_THREADS=1" in environ  # one BLAS thread
         except (OSError, AttributeError):
             continue
     assert rss is not None, "the viewer's kernel process was not found"
