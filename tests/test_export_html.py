@@ -104,6 +104,7 @@ def test_export_computes_offline_like_the_kernel(export_file, browser):
     assert not errors
     assert all(url.startswith("file://") for url in requests)
     SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+    page.evaluate("window.scrollTo(0, 0)")
     page.screenshot(path=str(SCREENSHOTS / "offline-export.png"))
     context.close()
     assert np.isfinite(after["responses"][source.responses[0]]["pi_high"])
