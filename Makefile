@@ -25,6 +25,10 @@ test: $(VENV)/.installed-test
 	$(BIN)/ruff check .
 	$(BIN)/python -m pytest kernel_core widgets dashboards tests
 
+# Benchmarks: same-run ratios against references (tests/bench). QUICK=1 for a short run (< 2 min).
+bench: $(VENV)/.installed-test
+	$(BIN)/python -m tests.bench $(if $(QUICK),--quick,)
+
 lint: $(VENV)/.installed-test
 	$(BIN)/ruff check .
 
