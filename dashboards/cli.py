@@ -1,54 +1,174 @@
 """The ``levelwise`` command.
 
-Exit codes: 0 success; 1 the command failed (the message says why); 2 bad usage.
+Commands::
+
+    levelwise serve [STUDY] [--port N] [--ip ADDR] [--token T]   the workbench on a study (default: the demo)
+    levelwise publish STUDY --out DIR                           write a read-only dashboard folder
+    levelwise view DIR [--port N] [--ip ADDR] [--token T]        serve a published folder (default port 8866)
+    levelwise export-html STUDY -o FILE.html                     write the offline single-file export
+
+STUDY is a study JSON file or the word ``demo`` (the invented demo study).
+
+Exit codes: 0 success; 1 the command failed (the message says why); 2 bad usage (argparse's code).
 """
 
 from __future__ import annotations
 
 import argparse
-import os
 import subprocess
 import sys
+from pathlib import Path
 
 from . import NOTEBOOKS
 
 DEFAULT_PORT = 8866
+EXIT_OK, EXIT_FAILURE, EXIT_USAGE = 0, 1, 2
+EPILOG = "Exit codes: 0 success, 1 failure (the message says why), 2 bad usage."
 
 
-def voila_command(notebook, port: int, ip: str = "127.0.0.1") -> list[str]:
-    """The standalone voila command line (never the server extension), sources and tracebacks off."""
-    return [
-        sys.executable, "-m", "voila", str(notebook),
-        "--no-browser",
-        f"--port={port}",
-        f"--Voila.ip={ip}",
-        "--strip_sources=True",
-        "--show_tracebacks=False",
-    ]
+def voila_command(notebook, port: int, ip: str = "127.0.0.1", **options) -> list[str]:
+    """The hardened standalone voila command line (see :mod:`dashboards.hardening`)."""
+    from .hardening import voila_command as hardened
+
+    return hardened(notebook, port=port, ip=ip, **options)
+
+
+def _run_server(notebook, args, *, study_env: str | None, what: str, preheat: bool, config_dir=None) -> int:
+    from .hardening import server_env
+    from .study_source import STUDY_ENV
+
+    command = voila_command(
+        notebook, args.port, args.ip, token=args.token, preheat=preheat, pool_size=getattr(args, "pool_size", 1),
+        config_dir=config_dir,
+    )
+    env = server_env({STUDY_ENV: study_env} if study_env else None)
+    query = f"?token={args.token}" if args.token else ""
+    print(f"levelwise: serving {what} at http://{args.ip}:{args.port}/{query} (Ctrl-C to stop)", flush=True)
+    try:
+        return subprocess.call(command, env=env, cwd=str(Path(notebook).parent))
+    except KeyboardInterrupt:
+        return EXIT_OK
 
 
 def serve(args) -> int:
-    notebook = NOTEBOOKS / "explore.ipynb"
-    env = dict(os.environ, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1")
-    print(f"levelwise: serving the workbench at http://{args.ip}:{args.port}/ (Ctrl-C to stop)", flush=True)
+    """Serve the explore workbench on STUDY (default: the invented demo)."""
+    study = args.study
+    if study != "demo":
+        path = Path(study)
+        if not path.is_file():
+            print(f"levelwise serve: the study file {study!r} does not exist. Give a study JSON file or 'demo'.",
+                  file=sys.stderr)
+            return EXIT_FAILURE
+        study = str(path.resolve())
+    return _run_server(NOTEBOOKS / "explore.ipynb", args, study_env=study, what="the workbench", preheat=False)
+
+
+def publish(args) -> int:
+    from kernel_core import LevelwiseError
+
+    from .publish import publish as write_folder
+
     try:
-        return subprocess.call(voila_command(notebook, args.port, args.ip), env=env)
-    except KeyboardInterrupt:
-        return 0
+        out = write_folder(args.study, args.out)
+    except (LevelwiseError, OSError) as exc:
+        print(f"levelwise publish: {exc}", file=sys.stderr)
+        return EXIT_FAILURE
+    print(f"levelwise: published {args.study} to {out}/ (run it with: levelwise view {out})")
+    return EXIT_OK
+
+
+def view(args) -> int:
+    """Serve a published folder, read-only and hardened."""
+    from .publish import PUBLISHED_FILES
+    from .study_source import STUDY_FILE
+
+    folder = Path(args.dir).resolve()
+    missing = [name for name in PUBLISHED_FILES if not (folder / name).is_file()]
+    if missing:
+        print(f"levelwise view: {str(folder)!r} is not a published folder: it lacks {', '.join(missing)}. "
+              "Write one with 'levelwise publish STUDY --out DIR'.", file=sys.stderr)
+        return EXIT_FAILURE
+    return _run_server(folder / "present.ipynb", args, study_env=str(folder / STUDY_FILE),
+                       what="the read-only dashboard", preheat=args.pool_size > 0, config_dir=folder)
+
+
+def export_html(args) -> int:
+    from kernel_core import LevelwiseError
+
+    from .export_html import write_export
+
+    try:
+        path = write_export(args.study, args.output)
+    except (LevelwiseError, OSError) as exc:
+        print(f"levelwise export-html: {exc}", file=sys.stderr)
+        return EXIT_FAILURE
+    size = path.stat().st_size
+    print(f"levelwise: wrote {path} ({size / 1024:.0f} KB); open it in any browser, no network needed")
+    return EXIT_OK
+
+
+def _port(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"must be a whole number from 1 to 65535, got {text!r}") from None
+    if not 1 <= value <= 65535:
+        raise argparse.ArgumentTypeError(f"must be a whole number from 1 to 65535, got {text!r}")
+    return value
+
+
+def _server_options(parser) -> None:
+    parser.add_argument("--port", type=_port, default=DEFAULT_PORT, help=f"Port (default {DEFAULT_PORT}).")
+    parser.add_argument("--ip", default="127.0.0.1",
+                        help="Address to bind (default 127.0.0.1: this machine only; 0.0.0.0 for every interface).")
+    parser.add_argument("--token", default=None,
+                        help="Require this token (?token=... in the URL). Default: no token, which is safe on "
+                             "127.0.0.1 only.")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="levelwise",
+        description="Plan, fit and explore designed experiments; serve and publish the results as dashboards.",
+        epilog=EPILOG,
+    )
+    sub = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    p_serve = sub.add_parser("serve", help="Serve the explore workbench on a study (default: the demo).",
+                             description="Serve the explore workbench with the standalone voila server.",
+                             epilog=EPILOG)
+    p_serve.add_argument("study", nargs="?", default="demo", metavar="STUDY",
+                         help="A study JSON file, or 'demo' (the invented demo study; the default).")
+    _server_options(p_serve)
+    p_serve.set_defaults(handler=serve)
+
+    p_pub = sub.add_parser("publish", help="Write a self-contained read-only dashboard folder.",
+                           description="Write DIR with the read-only notebook, the study file, a hardened voila "
+                                       "configuration and a README. DIR must not exist yet or be empty.",
+                           epilog=EPILOG)
+    p_pub.add_argument("study", metavar="STUDY", help="A study JSON file, or 'demo'.")
+    p_pub.add_argument("--out", required=True, metavar="DIR", help="The folder to write.")
+    p_pub.set_defaults(handler=publish)
+
+    p_view = sub.add_parser("view", help="Serve a published folder, read-only (default port 8866).",
+                            description="Serve a folder written by 'levelwise publish' with every hardened "
+                                        "setting.", epilog=EPILOG)
+    p_view.add_argument("dir", metavar="DIR", help="A folder written by 'levelwise publish'.")
+    _server_options(p_view)
+    p_view.add_argument("--pool-size", type=int, default=1, dest="pool_size",
+                        help="Preheated kernels kept ready for new viewers (default 1; 0 turns preheating off).")
+    p_view.set_defaults(handler=view)
+
+    p_exp = sub.add_parser("export-html", help="Write the offline single-file HTML export.",
+                           description="Write one HTML file that opens from disk with no network and no Python, "
+                                       "and still computes predictions when a slider moves.", epilog=EPILOG)
+    p_exp.add_argument("study", metavar="STUDY", help="A study JSON file, or 'demo'.")
+    p_exp.add_argument("-o", "--output", required=True, metavar="FILE.html", help="The HTML file to write.")
+    p_exp.set_defaults(handler=export_html)
+    return parser
 
 
 def main(argv=None) -> int:
-    parser = argparse.ArgumentParser(
-        prog="levelwise",
-        description="Plan, fit and explore designed experiments; serve the results as dashboards.",
-        epilog="Exit codes: 0 success, 1 failure, 2 bad usage.",
-    )
-    sub = parser.add_subparsers(dest="command", required=True)
-    p_serve = sub.add_parser("serve", help="Serve the explore workbench on the demo study.")
-    p_serve.add_argument("--port", type=int, default=DEFAULT_PORT, help=f"Port (default {DEFAULT_PORT}).")
-    p_serve.add_argument("--ip", default="127.0.0.1", help="Address to bind (default 127.0.0.1, this machine only).")
-    p_serve.set_defaults(handler=serve)
-    args = parser.parse_args(argv)
+    args = build_parser().parse_args(argv)  # exits with 2 on bad usage
     return args.handler(args)
 
 

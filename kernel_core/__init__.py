@@ -5,10 +5,26 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
 from ._errors import LevelwiseError, LevelwiseWarning
+from .boxcox import BoxCoxResult, box_cox
 from .design import Design, full_factorial
+from .effects import LenthResult, effects, half_normal, lenth
 from .factors import Factor
 from .fit import Fit, fit
 from .formula import ModelSpec, parse_model
+from .optimize import (
+    Goal,
+    Optimum,
+    SteepestPath,
+    fit_responses,
+    maximize,
+    minimize,
+    optimize,
+    overall_desirability,
+    steepest_path,
+    target,
+)
+from .reduce import Reduction, reduce, refit
+from .surface import slice_grid, slice_polynomials
 
 __all__ = [
     "Design",
@@ -20,4 +36,26 @@ __all__ = [
     "fit",
     "full_factorial",
     "parse_model",
+    # analysis on a fit
+    "BoxCoxResult",
+    "Goal",
+    "LenthResult",
+    "Optimum",
+    "Reduction",
+    "SteepestPath",
+    "box_cox",
+    "effects",
+    "fit_responses",
+    "half_normal",
+    "lenth",
+    "maximize",
+    "minimize",
+    "optimize",
+    "overall_desirability",
+    "reduce",
+    "refit",
+    "slice_grid",
+    "slice_polynomials",
+    "steepest_path",
+    "target",
 ]

@@ -23,3 +23,22 @@ def describe(value, limit: int = 60) -> str:
     if len(text) > limit:
         text = text[: limit - 3] + "..."
     return text
+
+
+class StudyFileError(LevelwiseError):
+    """A study file that cannot be read, is not a study, or cannot be written; the message names the field."""
+
+
+class OutsideEditError(StudyFileError):
+    """The data block of a study file does not match its SHA-256: it was edited outside levelwise.
+
+    ``Study.load(path, accept_outside_edits=True)`` accepts such a file and records the fact in the audit log.
+    """
+
+
+class ImportDataError(LevelwiseError):
+    """A CSV or XLSX import with problems; ``problems`` lists each one with its row and column."""
+
+    def __init__(self, message: str, problems=()):
+        super().__init__(message)
+        self.problems = tuple(problems)

@@ -2,24 +2,49 @@
 
 The normal equations lose about twice the digits of QR, and ``numpy.linalg.lstsq``
 with its default ``rcond`` silently drops small singular values, so neither is
-used. Rank is decided from the pivoted R, and inestimable terms are named.
+used. Columns are scaled to unit length before the pivoted QR (and the solution
+unscaled after), which keeps high-degree polynomials in natural units accurate.
+Rank is decided from the pivoted R, and inestimable terms are named with the
+terms they are aliased with; a minimum-norm split of aliased effects is never made.
+
+Conventions
+-----------
+- **Coding**: coded = (natural - centre) / half-range, -1 at a factor's low and +1
+  at its high. Ranges come from ``factors`` when given, else each column's min..max.
+  ``coding="none"`` fits in natural units.
+- **Categorical factors** (a :class:`Factor` with ``is_categorical``, or a factor
+  column holding text) use *sum-to-zero* contrasts over the levels seen in the
+  data, in the factor's level order (else sorted): the column of level j is 1 at
+  level j, -1 at the last level and 0 elsewhere, and is named ``Factor[level]``.
+  A two-level categorical factor therefore codes as -1/+1 like a continuous one.
+- **Achieved settings**: a column named ``"<factor> (achieved)"`` (or any column
+  given in ``achieved={factor: column}``) holds the setting actually reached in
+  each run. The fit uses it where it has a value, and the plan elsewhere;
+  :attr:`Fit.setting_deviations` reports achieved - planned per run and factor.
 """
 
 from __future__ import annotations
 
+import dataclasses
+import math
+import warnings
 from dataclasses import dataclass, field
 from functools import cached_property
+from itertools import product
 
 import numpy as np
 import pandas as pd
 import scipy.linalg
 from scipy import stats
 
-from ._errors import LevelwiseError, describe
+from ._errors import LevelwiseError, LevelwiseWarning, describe
 from .design import META_COLUMNS
 from .factors import Factor
-from .formula import ModelSpec, names_in_model, parse_model
-from .prediction import Predictor
+from .formula import ModelSpec, names_in_model, parse_model, term_name
+from .prediction import Predictor, encode
+
+#: Suffix of a column holding the achieved setting of a factor: ``"Oven (achieved)"``.
+ACHIEVED_SUFFIX = " (achieved)"
 
 
 @dataclass(frozen=True)
@@ -37,7 +62,11 @@ class Coding:
 
 
 def _check_level(level) -> float:
-    if isinstance(level, bool) or not isinstance(level, (int, float, np.floating)) or not 0 < level < 1:
+    if (
+        isinstance(level, bool)
+        or not isinstance(level, (int, float, np.floating, np.integer))
+        or not 0 < level < 1
+    ):
         raise LevelwiseError(
             f"The 'level' parameter must be a number in the open interval (0, 1). Got {describe(level)} instead."
         )
@@ -65,29 +94,58 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
     return array
 
 
+def _is_text_column(values: pd.Series) -> bool:
+    return not (pd.api.types.is_numeric_dtype(values) or pd.api.types.is_bool_dtype(values))
+
+
+def sum_to_zero(levels: int) -> np.ndarray:
+    """(L, L-1) sum-to-zero contrast matrix: identity rows, then a row of -1."""
+    return np.vstack([np.eye(levels - 1), -np.ones((1, levels - 1))])
+
+
 @dataclass(frozen=True, eq=False)
 class Fit:
     """An immutable least-squares fit. Build it with :func:`fit`; never change it.
 
     Coefficients are in coded units (-1/+1 at each factor's low/high) unless the
-    fit was made with ``coding="none"``.
+    fit was made with ``coding="none"``; :attr:`coefficients_natural` re-expresses
+    them in natural units.
 
     Attributes
     ----------
     response : str
     spec : ModelSpec
-        The parsed model (terms and exponent matrix).
+        The estimated model columns (terms and exponent matrix over the coded variables).
     coding : Coding
-    n, p, df_resid : int
-    coefficients : pandas.DataFrame
-        Indexed by term (``Intercept`` first) with ``estimate``, ``std_error``, ``t``,
-        ``p_value``, ``ci_low``, ``ci_high``.
-    s : float
-        Residual standard deviation (NaN for a saturated fit).
-    r_squared, r_squared_adj : float
-    fitted, residuals : numpy.ndarray
+    level : float
+        Default confidence level.
     runs : pandas.Index
-        Index labels of the rows used.
+        Labels (data index) of the runs in the fit.
+    X, y : ndarray
+        Model matrix and response of those runs.
+    beta : ndarray
+        Coefficients in coded units, in the order of :attr:`terms`.
+    rinv : ndarray
+        A square root of ``(X'X)^-1`` (the inverse of the R factor; no longer triangular after
+        :meth:`exclude` / :meth:`include` updates).
+    settings : ndarray
+        (n, k) natural settings used (achieved where recorded); categorical factors hold level indices.
+    groups : tuple of (str, tuple of int)
+        Each model term (intercept excluded) and its columns; one column per term unless the term
+        involves a categorical factor.
+    group_exponents : ndarray
+        Exponents of each term of *groups* over the factors (for hierarchy).
+    categories : dict
+        Levels of each categorical factor (in contrast order).
+    aliased : dict
+        Terms dropped as inestimable (``on_rank_deficiency="warn"``) -> what each equals.
+    missing_runs : tuple
+        Labels of runs left out because the response is missing.
+    exclusions : tuple of (label, reason)
+        Runs excluded by :meth:`exclude`, with the reason given.
+    setting_deviations : pandas.DataFrame or None
+        Achieved - planned setting per run (rows) and factor (columns) in natural units,
+        or None when the data carries no achieved settings.
     """
 
     response: str
@@ -100,6 +158,17 @@ class Fit:
     beta: np.ndarray = field(repr=False)
     rinv: np.ndarray = field(repr=False)
     rank: int = 0
+    settings: np.ndarray = field(default=None, repr=False)
+    groups: tuple = ()
+    group_exponents: np.ndarray = field(default=None, repr=False)
+    factor_names: tuple = ()
+    contrasts: tuple = ()
+    categories: dict = field(default_factory=dict)
+    aliased: dict = field(default_factory=dict)
+    missing_runs: tuple = ()
+    exclusions: tuple = ()
+    setting_deviations: pd.DataFrame | None = field(default=None, repr=False)
+    _reserve: dict = field(default_factory=dict, repr=False)
 
     # ----- basic statistics ------------------------------------------------------------------
     @property
@@ -118,10 +187,6 @@ class Fit:
     def terms(self) -> tuple:
         return self.spec.terms
 
-    @property
-    def factor_names(self) -> tuple:
-        return self.spec.factor_names
-
     @cached_property
     def fitted(self) -> np.ndarray:
         return self.X @ self.beta
@@ -136,14 +201,18 @@ class Fit:
 
     @cached_property
     def s(self) -> float:
+        """Residual standard deviation; NaN for a saturated fit (no residual df)."""
         return float(np.sqrt(self.sse / self.df_resid)) if self.df_resid > 0 else float("nan")
+
+    @cached_property
+    def _sst(self) -> float:
+        total = self.y - self.y.mean() if self.spec.has_intercept else self.y
+        return float(total @ total)
 
     @cached_property
     def r_squared(self) -> float:
         """R²; uncentred when the model has no intercept (as NIST StRD certifies it)."""
-        total = self.y - self.y.mean() if self.spec.has_intercept else self.y
-        sst = float(total @ total)
-        return 1.0 - self.sse / sst if sst > 0 else float("nan")
+        return 1.0 - self.sse / self._sst if self._sst > 0 else float("nan")
 
     @cached_property
     def r_squared_adj(self) -> float:
@@ -151,6 +220,25 @@ class Fit:
             return float("nan")
         dof_total = self.n - 1 if self.spec.has_intercept else self.n
         return 1.0 - (1.0 - self.r_squared) * dof_total / self.df_resid
+
+    @cached_property
+    def leverage(self) -> np.ndarray:
+        """Leverage (diagonal of the hat matrix) of each run: ``||x_i R^-1||^2``."""
+        xr = self.X @ self.rinv
+        return np.einsum("ij,ij->i", xr, xr)
+
+    @cached_property
+    def press(self) -> float:
+        """Prediction error sum of squares: sum of (e_i / (1 - h_i))^2; NaN if some h_i = 1."""
+        one_minus_h = 1.0 - self.leverage
+        if np.any(one_minus_h <= 1e-12):
+            return float("nan")
+        return float(np.sum((self.residuals / one_minus_h) ** 2))
+
+    @cached_property
+    def r_squared_pred(self) -> float:
+        """Predicted R², 1 - PRESS / total SS (uncentred without intercept)."""
+        return 1.0 - self.press / self._sst if self._sst > 0 else float("nan")
 
     def t_quantile(self, level: float) -> float:
         """Two-sided t quantile for *level* on the residual df, cached per level."""
@@ -160,8 +248,30 @@ class Fit:
         return cache[level]
 
     @cached_property
+    def _c_diag(self) -> np.ndarray:
+        return np.einsum("ij,ij->i", self.rinv, self.rinv)
+
+    @cached_property
+    def vif(self) -> np.ndarray:
+        """Variance inflation factor of each column (NaN for the intercept).
+
+        With an intercept, ``VIF_j = C_jj * sum((x_j - mean)^2) = 1 / (1 - R_j^2)``;
+        without, the uncentred form ``C_jj * sum(x_j^2)``.
+        """
+        X = self.X
+        centred = X - X.mean(axis=0) if self.spec.has_intercept else X
+        out = self._c_diag * np.einsum("ij,ij->j", centred, centred)
+        if self.spec.has_intercept:
+            out[0] = np.nan
+        return out
+
+    @cached_property
     def coefficients(self) -> pd.DataFrame:
-        se = self.s * np.sqrt(np.einsum("ij,ij->i", self.rinv, self.rinv))
+        """Estimate, std_error, t, p_value, ci_low, ci_high and vif per term (coded units).
+
+        For a saturated fit (as many terms as runs) the estimates are given and the rest is NaN.
+        """
+        se = self.s * np.sqrt(self._c_diag)
         with np.errstate(divide="ignore", invalid="ignore"):
             t = self.beta / se
         p = 2.0 * stats.t.sf(np.abs(t), self.df_resid) if self.df_resid > 0 else np.full(self.p, np.nan)
@@ -174,8 +284,206 @@ class Fit:
                 "p_value": p,
                 "ci_low": self.beta - q * se,
                 "ci_high": self.beta + q * se,
+                "vif": self.vif,
             },
             index=pd.Index(self.terms, name="term"),
+        )
+
+    @cached_property
+    def coefficients_natural(self) -> pd.DataFrame:
+        """Coefficients of the same model in natural units (``estimate``, ``std_error``).
+
+        Each coded term is expanded into monomials of the natural settings. When the model is
+        not hierarchical, the expansion has monomials the coded model lacks (``A:B`` alone gives
+        ``A``, ``B`` and a constant); they are listed after the model's own terms. Categorical
+        contrast columns are not rescaled.
+        """
+        var_center, var_scale = self._variable_coding
+        names = self.spec.factor_names
+        table: dict[tuple, np.ndarray] = {}
+        for j, row in enumerate(self.spec.exponents):
+            poly = {(): 1.0}
+            for v in np.flatnonzero(row):
+                e = int(row[v])
+                new = {}
+                for key, coef in poly.items():
+                    for a in range(e + 1):
+                        c = coef * math.comb(e, a) * (-var_center[v]) ** (e - a) / var_scale[v] ** e
+                        k2 = tuple(sorted(dict(key, **{v: a}).items())) if a else key
+                        new[k2] = new.get(k2, 0.0) + c
+                poly = new
+            for key, coef in poly.items():
+                table.setdefault(key, np.zeros(self.p))[j] += coef
+        own = [tuple((int(v), int(e)) for v, e in enumerate(row) if e) for row in self.spec.exponents]
+        extra = sorted((k for k in table if k not in own), key=lambda k: (sum(e for _, e in k), k))
+        keys = [k for k in own if k in table] + extra
+        T = np.array([table[k] for k in keys])
+        estimate = T @ self.beta
+        tr = T @ self.rinv
+        se = self.s * np.sqrt(np.einsum("ij,ij->i", tr, tr))
+        labels = []
+        for key in keys:
+            row = np.zeros(len(names), dtype=int)
+            for v, e in key:
+                row[v] = e
+            labels.append(term_name(row, names))
+        return pd.DataFrame({"estimate": estimate, "std_error": se}, index=pd.Index(labels, name="term"))
+
+    @cached_property
+    def _variable_coding(self):
+        """Centre and scale of each coded variable (categorical contrast columns: 0 and 1)."""
+        if not self.contrasts:
+            return self.coding.center, self.coding.scale
+        center, scale = [], []
+        for j, contrast in enumerate(self.contrasts):
+            width = 1 if contrast is None else contrast.shape[1]
+            center += [self.coding.center[j] if contrast is None else 0.0] * width
+            scale += [self.coding.scale[j] if contrast is None else 1.0] * width
+        return np.array(center), np.array(scale)
+
+    # ----- ANOVA, diagnostics, orthogonality -------------------------------------------------
+    @cached_property
+    def anova(self) -> pd.DataFrame:
+        """ANOVA table: model, each term (partial SS respecting hierarchy), residual split into
+        curvature, lack of fit and pure error when the runs allow it. See :mod:`kernel_core.anova`."""
+        from .anova import anova_table
+
+        return anova_table(
+            self.X, self.y, self.groups, self.group_exponents, self.spec.has_intercept,
+            self.settings, self._centre_indicator,
+        )
+
+    @cached_property
+    def _centre_indicator(self):
+        """Centre-point indicator when the curvature test applies: continuous two-level design
+        (coded -1/+1 corners and all-zero centre points) and no squared terms in the model."""
+        if self.contrasts or not self.spec.has_intercept or (self.spec.exponents > 1).any():
+            return None
+        used = self.group_exponents.any(axis=0) if len(self.group_exponents) else np.zeros(0, bool)
+        if not used.any():
+            return None
+        coded = self.coding.to_coded(self.settings)[:, used]
+        at_zero = np.abs(coded) < 1e-9
+        at_one = np.abs(np.abs(coded) - 1.0) < 1e-9
+        centre = at_zero.all(axis=1)
+        if not np.all(centre | at_one.all(axis=1)):
+            return None
+        return centre if centre.any() and not centre.all() else None
+
+    @cached_property
+    def diagnostics(self) -> pd.DataFrame:
+        """Per-run diagnostics in closed form (see :mod:`kernel_core.diagnostics`)."""
+        from .diagnostics import influence_table
+
+        return influence_table(self.X, self.beta, self.residuals, self.rinv, self.runs, self.terms)
+
+    @cached_property
+    def max_abs_correlation(self) -> float:
+        """Largest |correlation| between two non-constant model columns (0 for an orthogonal design)."""
+        X = self.X[:, np.ptp(self.X, axis=0) > 0] if self.n else self.X
+        if X.shape[1] < 2:
+            return 0.0
+        corr = np.corrcoef(X, rowvar=False)
+        np.fill_diagonal(corr, 0.0)
+        return float(np.abs(corr).max())
+
+    @property
+    def orthogonality(self) -> dict:
+        """What missing runs and exclusions cost: the runs left out, the largest |correlation|
+        between model columns and the largest VIF."""
+        vif = self.vif[np.isfinite(self.vif)]
+        return {
+            "missing_runs": self.missing_runs,
+            "excluded_runs": tuple(label for label, _ in self.exclusions),
+            "max_abs_correlation": self.max_abs_correlation,
+            "max_vif": float(vif.max()) if vif.size else float("nan"),
+        }
+
+    # ----- exclusions by rank-one update ------------------------------------------------------
+    def exclude(self, run, reason: str) -> Fit:
+        """A new Fit without *run* (a data index label), by a rank-one downdate.
+
+        ``(X'X)^-1`` loses the run by Sherman–Morrison; the square root kept in :attr:`rinv` is
+        updated as ``R^-1 (I + a v v')`` with ``v = R^-T x``, ``h = v'v`` and
+        ``a = (1/sqrt(1-h) - 1) / h``, so no QR is recomputed.
+
+        Raises
+        ------
+        LevelwiseError
+            When *run* is not in the fit, *reason* is empty, or the run's leverage is 1 (without
+            it some term could not be estimated).
+        """
+        if not isinstance(reason, str) or not reason.strip():
+            raise LevelwiseError(
+                f"The 'reason' parameter of exclude must be a non-empty text saying why run {run!r} is "
+                f"left out. Got {describe(reason)} instead."
+            )
+        positions = np.flatnonzero(self.runs == run) if self.n else []
+        if len(positions) != 1:
+            raise LevelwiseError(
+                f"The 'run' parameter of exclude must be a run in this fit {list(self.runs)[:20]}. "
+                f"Got {describe(run)} instead."
+            )
+        i = int(positions[0])
+        if self.n - 1 < self.p:
+            raise LevelwiseError(
+                f"Run {run!r} cannot be excluded: the model has {self.p} terms and only {self.n - 1} runs would remain."
+            )
+        x = self.X[i]
+        v = self.rinv.T @ x
+        h = float(v @ v)
+        if h > 1.0 - 1e-10:
+            raise LevelwiseError(
+                f"Run {run!r} cannot be excluded: its leverage is 1, so without it at least one term of the "
+                "model could not be estimated. Drop a term or keep the run."
+            )
+        e = self.y[i] - x @ self.beta
+        cx = self.rinv @ v
+        beta = self.beta - cx * e / (1.0 - h)
+        a = (1.0 / np.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
+        rinv = self.rinv + a * np.outer(cx, v)
+        keep = np.arange(self.n) != i
+        reserve = dict(self._reserve)
+        reserve[run] = (x, self.y[i], self.settings[i], i)
+        return dataclasses.replace(
+            self,
+            runs=self.runs[keep],
+            X=self.X[keep],
+            y=self.y[keep],
+            beta=beta,
+            rinv=rinv,
+            settings=self.settings[keep],
+            exclusions=self.exclusions + ((run, reason.strip()),),
+            _reserve=reserve,
+        )
+
+    def include(self, run) -> Fit:
+        """A new Fit with an excluded *run* back in, by a rank-one update (Sherman–Morrison)."""
+        if run not in self._reserve:
+            raise LevelwiseError(
+                f"The 'run' parameter of include must be an excluded run {list(self._reserve)}. "
+                f"Got {describe(run)} instead."
+            )
+        x, y_run, setting, position = self._reserve[run]
+        v = self.rinv.T @ x
+        h = float(v @ v)
+        e = y_run - x @ self.beta
+        cx = self.rinv @ v
+        beta = self.beta + cx * e / (1.0 + h)
+        a = (1.0 / np.sqrt(1.0 + h) - 1.0) / h if h > 0 else -0.5
+        rinv = self.rinv + a * np.outer(cx, v)
+        i = min(position, self.n)
+        reserve = {k: val for k, val in self._reserve.items() if k != run}
+        return dataclasses.replace(
+            self,
+            runs=self.runs.insert(i, run),
+            X=np.insert(self.X, i, x, axis=0),
+            y=np.insert(self.y, i, y_run),
+            beta=beta,
+            rinv=rinv,
+            settings=np.insert(self.settings, i, setting, axis=0),
+            exclusions=tuple(item for item in self.exclusions if item[0] != run),
+            _reserve=reserve,
         )
 
     # ----- prediction ------------------------------------------------------------------------
@@ -190,10 +498,16 @@ class Fit:
             scale=self.coding.scale,
             s=self.s,
             t_of_level=self.t_quantile,
+            contrasts=self.contrasts,
+            max_leverage=float(self.leverage.max()) if self.n else np.inf,
         )
 
     def settings_array(self, settings) -> np.ndarray:
-        """Validate a mapping of factor name -> natural value into an (m, k) array."""
+        """Validate factor settings (dict or DataFrame, natural units) into an (m, k) array.
+
+        Categorical factors are given by level and become level indices; a level that was not in
+        the data is an error (it has no estimated effect).
+        """
         if isinstance(settings, pd.DataFrame):
             frame = settings
         elif isinstance(settings, dict):
@@ -209,7 +523,12 @@ class Fit:
                 f"The 'settings' parameter is missing factor(s) {missing}; it must give every factor of the model "
                 f"{list(self.factor_names)}."
             )
-        columns = [_numeric_column(frame, name, "setting") for name in self.factor_names]
+        columns = []
+        for name in self.factor_names:
+            if name in self.categories:
+                columns.append(_level_indices(frame[name], name, self.categories[name], "settings"))
+            else:
+                columns.append(_numeric_column(frame, name, "setting"))
         array = np.column_stack(columns) if columns else np.empty((len(frame), 0))
         if np.isnan(array).any():
             row, col = np.argwhere(np.isnan(array))[0]
@@ -223,14 +542,21 @@ class Fit:
         """Predicted mean with confidence and prediction intervals at natural-unit *settings*.
 
         Returns a DataFrame with ``mean``, ``ci_low``, ``ci_high`` (confidence interval for the
-        mean), ``pi_low``, ``pi_high`` (prediction interval for one new run) and ``extrapolated``
-        (a setting outside the factor ranges of the fit).
+        mean), ``pi_low``, ``pi_high`` (prediction interval for one new run), ``leverage`` and
+        ``extrapolated``: a setting outside the factor ranges, or whose leverage exceeds the
+        largest leverage among the runs of the fit.
         """
         level = self.level if level is None else _check_level(level)
         natural = self.settings_array(settings)
-        mean, ci_half, pi_half = self.predictor.intervals(natural, level)
-        outside = ((natural < self.coding.low - 1e-9 * self.coding.scale)
-                   | (natural > self.coding.high + 1e-9 * self.coding.scale)).any(axis=1)
+        predictor = self.predictor
+        mean, h = predictor.mean_and_leverage(natural)
+        q = self.t_quantile(level)
+        ci_half = q * self.s * np.sqrt(h)
+        pi_half = q * self.s * np.sqrt(1.0 + h)
+        continuous = np.array([name not in self.categories for name in self.factor_names], dtype=bool)
+        tol = 1e-9 * self.coding.scale
+        outside = (((natural < self.coding.low - tol) | (natural > self.coding.high + tol)) & continuous).any(axis=1)
+        outside |= h > predictor.max_leverage * (1.0 + 1e-9) + 1e-12
         return pd.DataFrame(
             {
                 "mean": mean,
@@ -238,6 +564,7 @@ class Fit:
                 "ci_high": mean + ci_half,
                 "pi_low": mean - pi_half,
                 "pi_high": mean + pi_half,
+                "leverage": h,
                 "extrapolated": outside,
             }
         )
@@ -245,7 +572,8 @@ class Fit:
     def trace(self, factor: str, settings, points: int = 50, level: float | None = None) -> dict:
         """The predicted response along one factor's range, the others held at *settings*.
 
-        Returns a dict of arrays: ``x`` (natural units), ``mean``, ``ci_half`` and ``pi_half``.
+        Returns a dict of arrays: ``x`` (natural units; the levels for a categorical factor),
+        ``mean``, ``ci_half`` and ``pi_half``.
         """
         level = self.level if level is None else _check_level(level)
         if factor not in self.factor_names:
@@ -254,23 +582,83 @@ class Fit:
             )
         base = self.settings_array(settings)[0]
         j = self.factor_names.index(factor)
-        x = np.linspace(self.coding.low[j], self.coding.high[j], int(points))
+        if factor in self.categories:
+            labels = np.array(self.categories[factor], dtype=object)
+            x = np.arange(len(labels), dtype=float)
+        else:
+            labels = x = np.linspace(self.coding.low[j], self.coding.high[j], int(points))
         grid = np.repeat(base[None, :], len(x), axis=0)
         grid[:, j] = x
         mean, ci_half, pi_half = self.predictor.intervals(grid, level)
-        return {"x": x, "mean": mean, "ci_half": ci_half, "pi_half": pi_half}
+        return {"x": labels, "mean": mean, "ci_half": ci_half, "pi_half": pi_half}
+
+    # ----- delegations to the analysis modules (imported lazily) ------------------------------
+    @property
+    def effects(self):
+        """Effects (2 x coded coefficient for two-level terms); see :mod:`kernel_core.effects`."""
+        from .effects import effects
+
+        return effects(self)
+
+    def lenth(self, alpha: float = 0.05):
+        """Lenth's (1989) PSE, ME, SME and the active effects; see :mod:`kernel_core.effects`."""
+        from .effects import lenth
+
+        return lenth(self, alpha)
+
+    def half_normal(self):
+        """Half-normal plot coordinates of the effects; see :mod:`kernel_core.effects`."""
+        from .effects import half_normal
+
+        return half_normal(self)
+
+    def slice(self, x, y, settings, shape=(100, 100), level=None):
+        """Surface-slice grids of mean and CI/PI half-widths; see :mod:`kernel_core.surface`."""
+        from .surface import slice_grid
+
+        return slice_grid(self, x, y, settings, shape, level)
+
+    def box_cox(self):
+        """Box–Cox λ with a 95% CI and a suggestion; see :mod:`kernel_core.boxcox`."""
+        from .boxcox import box_cox
+
+        return box_cox(self)
 
     def __repr__(self) -> str:
         return f"<Fit {self.response} ~ {self.spec.formula}: n={self.n}, p={self.p}, s={self.s:.4g}>"
 
 
-def _coding_for(names, data_columns, factors, coding) -> Coding:
+def _level_indices(values: pd.Series, name: str, levels: tuple, role: str) -> np.ndarray:
+    """Indices of categorical *values* in *levels*; NaN where missing; error on an unknown level."""
+    lookup = {level: i for i, level in enumerate(levels)}
+    lookup.update({str(level): i for i, level in enumerate(levels)})
+    out = np.full(len(values), np.nan)
+    for row, value in enumerate(values):
+        if value is None or (isinstance(value, float) and math.isnan(value)):
+            continue
+        key = value if value in lookup else str(value)
+        if key not in lookup:
+            raise LevelwiseError(
+                f"The {role} for categorical factor {name!r} in row {row + 1} is level {describe(value)}, "
+                f"which was not in the data of this fit. Allowed levels: {list(levels)}."
+            )
+        out[row] = lookup[key]
+    return out
+
+
+def _coding_for(names, data_columns, factors, coding, categories) -> Coding:
     if coding not in ("auto", "none"):
         raise LevelwiseError(f"The 'coding' parameter must be 'auto' or 'none'. Got {describe(coding)} instead.")
     by_name = {f.name: f for f in factors or ()}
     center, scale, low, high = [], [], [], []
     for name, column in zip(names, data_columns):
-        if name in by_name:
+        if name in categories:
+            low.append(0.0)
+            high.append(float(len(categories[name]) - 1))
+            center.append(0.0)
+            scale.append(1.0)
+            continue
+        if name in by_name and getattr(by_name[name], "low", None) is not None:
             lo, hi = by_name[name].low, by_name[name].high
         else:
             finite = column[np.isfinite(column)]
@@ -287,20 +675,158 @@ def _coding_for(names, data_columns, factors, coding) -> Coding:
     return Coding(tuple(names), arr(center), arr(scale), arr(low), arr(high))
 
 
-def _aliases_message(spec: ModelSpec, r: np.ndarray, piv: np.ndarray, rank: int) -> str:
-    """Name each inestimable term and the estimable terms it is a combination of."""
-    r11, r12 = r[:rank, :rank], r[:rank, rank:]
-    combo = scipy.linalg.solve_triangular(r11, r12) if rank else np.zeros((0, r12.shape[1]))
-    parts = []
-    for j, column in enumerate(piv[rank:]):
-        weights = combo[:, j]
-        big = np.flatnonzero(np.abs(weights) > 1e-8 * max(1.0, np.abs(weights).max(initial=0.0)))
-        partners = [f"{weights[i]:+.3g}*{spec.terms[piv[i]]}" for i in big]
-        parts.append(f"{spec.terms[column]!r} = {' '.join(partners) or '0'}")
-    return "; ".join(parts)
+def _expand(spec: ModelSpec, names, categories, contrasts):
+    """Expand term-level *spec* into model columns over the coded variables.
+
+    Returns (column spec, groups, group exponents). A term with a categorical factor of L levels
+    becomes L-1 columns (times those of any other categorical factor in it).
+    """
+    var_names, var_of = [], []
+    for j, name in enumerate(names):
+        if contrasts[j] is None:
+            var_of.append([len(var_names)])
+            var_names.append(name)
+        else:
+            var_of.append(list(range(len(var_names), len(var_names) + contrasts[j].shape[1])))
+            var_names += [f"{name}[{level}]" for level in categories[name][:-1]]
+    rows, groups, group_exp = [], [], []
+    for term_row in spec.exponents:
+        choices = []
+        for j in np.flatnonzero(term_row):
+            if contrasts[j] is None:
+                choices.append([(var_of[j][0], int(term_row[j]))])
+            elif term_row[j] > 1:
+                raise LevelwiseError(
+                    f"The model {spec.formula!r} raises categorical factor {names[j]!r} to a power; "
+                    "only continuous factors can have powers."
+                )
+            else:
+                choices.append([(v, 1) for v in var_of[j]])
+        start = len(rows)
+        for combo in product(*choices):
+            row = np.zeros(len(var_names), dtype=int)
+            for v, e in combo:
+                row[v] = e
+            rows.append(row)
+        if term_row.any():
+            groups.append((term_name(term_row, names), tuple(range(start, len(rows)))))
+            group_exp.append(term_row)
+    exponents = np.array(rows, dtype=int).reshape(len(rows), len(var_names))
+    terms = tuple(term_name(row, var_names) for row in exponents)
+    column_spec = ModelSpec(formula=spec.formula, factor_names=tuple(var_names), exponents=exponents, terms=terms)
+    return column_spec, groups, np.array(group_exp, dtype=int).reshape(len(group_exp), len(names))
 
 
-def fit(data, response: str, model: str, *, factors=None, coding: str = "auto", level: float = 0.95) -> Fit:
+def _scaled_pivoted_qr(X):
+    norms = np.linalg.norm(X, axis=0)
+    norms[norms == 0] = 1.0
+    q, r, piv = scipy.linalg.qr(X / norms, mode="economic", pivoting=True)
+    diag = np.abs(np.diag(r))
+    n, p = X.shape
+    tol = max(n, p) * np.finfo(float).eps * (diag[0] if diag.size else 0.0)
+    rank = int((diag > tol).sum())
+    return q, r, piv, norms, rank
+
+
+def _inestimable(X, terms, rank):
+    """Pick the inestimable columns in model order and say what each equals.
+
+    The later column of each dependency is the one dropped (unpivoted QR of the unit-length
+    columns: ``|R_jj|`` is the distance of column j from the span of the earlier ones).
+    Returns (kept column indices, {term: "+1*A^2 ..."}).
+    """
+    norms = np.linalg.norm(X, axis=0)
+    norms[norms == 0] = 1.0
+    r = scipy.linalg.qr(X / norms, mode="r")[0]
+    p = X.shape[1]
+    distance = np.abs(np.diag(r[:p, :p])) if r.shape[0] >= p else np.r_[np.abs(np.diag(r)), np.zeros(p - r.shape[0])]
+    dropped = np.sort(np.argsort(distance, kind="stable")[: p - rank])
+    kept = np.setdiff1d(np.arange(p), dropped)
+    if _scaled_pivoted_qr(X[:, kept])[4] < len(kept):  # fall back to the pivoted choice
+        piv = _scaled_pivoted_qr(X)[2]
+        dropped, kept = np.sort(piv[rank:]), np.sort(piv[:rank])
+    weights, *_ = np.linalg.lstsq(X[:, kept], X[:, dropped], rcond=None)
+    aliases = {}
+    for j, column in enumerate(dropped):
+        w = weights[:, j]
+        big = np.flatnonzero(np.abs(w) > 1e-8 * max(1.0, np.abs(w).max(initial=0.0)))
+        partners = " ".join(f"{w[i]:+.3g}*{terms[kept[i]]}" for i in big)
+        aliases[terms[column]] = partners or "0"
+    return kept, aliases
+
+
+def _factor_columns(data, names, factors, response):
+    """Settings of each factor: (list of float columns, {categorical name: levels})."""
+    by_name = {f.name: f for f in factors or ()}
+    columns, categories = [], {}
+    for name in names:
+        if name not in data.columns:
+            columns.append(np.zeros(len(data)))
+            continue
+        factor = by_name.get(name)
+        declared = factor is not None and getattr(factor, "is_categorical", False)
+        if declared or (factor is None and _is_text_column(data[name])):
+            values = data[name]
+            present = [v for v in values[values.notna()].unique()]
+            if declared:
+                order = list(getattr(factor, "levels", ()) or ())
+                known = {str(level) for level in order}
+                stray = [v for v in present if v not in order and str(v) not in known]
+                if stray:
+                    raise LevelwiseError(
+                        f"The factor column {name!r} holds level {describe(stray[0])}, which is not a level of the "
+                        f"factor. Allowed levels: {order}."
+                    )
+                seen = {str(v) for v in present}
+                levels = tuple(level for level in order if level in present or str(level) in seen)
+            else:
+                levels = tuple(sorted(present, key=str))
+            categories[name] = levels
+            columns.append(_level_indices(values, name, levels, "factor column"))
+        else:
+            columns.append(_numeric_column(data, name, "factor"))
+    return columns, categories
+
+
+def _achieved_columns(data, names, categories, achieved):
+    """Factor name -> column of achieved settings."""
+    if achieved is None:
+        return {}
+    if isinstance(achieved, str) and achieved == "auto":
+        return {
+            name: name + ACHIEVED_SUFFIX
+            for name in names
+            if name not in categories and name + ACHIEVED_SUFFIX in data.columns
+        }
+    if not isinstance(achieved, dict):
+        raise LevelwiseError(
+            "The 'achieved' parameter must be 'auto', None or a dict {factor: column of achieved settings}. "
+            f"Got {describe(achieved)} instead."
+        )
+    for name, column in achieved.items():
+        if name not in names or name in categories:
+            raise LevelwiseError(
+                f"The 'achieved' parameter names factor {name!r}, which is not a continuous factor of the model "
+                f"{[n for n in names if n not in categories]}."
+            )
+        if column not in data.columns:
+            raise LevelwiseError(
+                f"The 'achieved' parameter maps factor {name!r} to column {column!r}, which is not in the data."
+            )
+    return dict(achieved)
+
+
+def fit(
+    data,
+    response: str,
+    model: str,
+    *,
+    factors=None,
+    coding: str = "auto",
+    level: float = 0.95,
+    on_rank_deficiency: str = "raise",
+    achieved="auto",
+) -> Fit:
     """Fit *model* to *response* in *data* by least squares (Householder QR with column pivoting).
 
     Parameters
@@ -308,25 +834,31 @@ def fit(data, response: str, model: str, *, factors=None, coding: str = "auto", 
     data : pandas.DataFrame
         One row per run, factor settings in natural units, one column per response.
     response : str
-        Column of *data* to model.
+        Column of *data* to model. Runs with no value leave this fit only (see ``Fit.missing_runs``).
     model : str
         Wilkinson formula over the factor names (``"A + B + A:B"``, ``"(A+B+C)**2"``,
-        ``"I(A**2)"``, ``"- 1"`` to drop the intercept) or a preset
+        ``"I(A**2)"``, ``"- 1"`` or ``"0 +"`` to drop the intercept) or a preset
         (``"linear"``, ``"interactions"``, ``"quadratic"``).
     factors : list of Factor, optional
-        Factors giving the coding ranges. Without them the factors are the columns the
-        model names (for presets: every column but the response and design bookkeeping
-        columns), coded over each column's min..max.
+        Factors giving the coding ranges (and the levels of categorical factors). Without them
+        the factors are the columns the model names (for presets: every column but the response,
+        achieved-setting columns and design bookkeeping columns), coded over each column's min..max.
     coding : {"auto", "none"}
         ``"none"`` fits in natural units.
     level : float
         Confidence level of the coefficient intervals and the default for predictions.
+    on_rank_deficiency : {"raise", "warn"}
+        What to do when some terms cannot be estimated: raise a LevelwiseError naming them and
+        what each is aliased with, or warn and drop them (listed in ``Fit.aliased``).
+    achieved : "auto", None or dict
+        Columns holding achieved settings: ``"auto"`` uses ``"<factor> (achieved)"`` columns when
+        present, a dict maps factor -> column, None ignores achieved settings.
 
     Raises
     ------
     LevelwiseError
-        Non-numeric responses or settings, unknown factors, fewer runs than terms,
-        or inestimable (aliased) terms, which the message names.
+        Non-numeric responses or settings, unknown factors, every response missing, fewer runs
+        than terms, a bad ``level``, or inestimable (aliased) terms in ``"raise"`` mode.
 
     Examples
     --------
@@ -336,6 +868,11 @@ def fit(data, response: str, model: str, *, factors=None, coding: str = "auto", 
     1.125
     """
     level = _check_level(level)
+    if on_rank_deficiency not in ("raise", "warn"):
+        raise LevelwiseError(
+            "The 'on_rank_deficiency' parameter must be 'raise' or 'warn'. "
+            f"Got {describe(on_rank_deficiency)} instead."
+        )
     if not isinstance(data, pd.DataFrame):
         raise LevelwiseError(f"The 'data' parameter must be a pandas DataFrame. Got {describe(data)} instead.")
     if not isinstance(response, str) or response not in data.columns:
@@ -349,54 +886,110 @@ def fit(data, response: str, model: str, *, factors=None, coding: str = "auto", 
         factors = as_factors(factors)
         names = [f.name for f in factors]
     elif isinstance(model, str) and model.strip() in ("linear", "interactions", "quadratic"):
-        names = [c for c in data.columns if c != response and c not in META_COLUMNS]
+        names = [
+            c for c in data.columns
+            if c != response and c not in META_COLUMNS and not str(c).endswith(ACHIEVED_SUFFIX)
+        ]
     elif isinstance(model, str):
         names = [n for n in names_in_model(model) if n in data.columns and n != response]
     else:
         names = []
-    spec = parse_model(model, names)
+    term_spec = parse_model(model, names)
     # Only factors that appear in some term are needed as columns.
-    missing = [n for n, used in zip(names, spec.exponents.any(axis=0)) if used and n not in data.columns]
+    missing = [n for n, used in zip(names, term_spec.exponents.any(axis=0)) if used and n not in data.columns]
     if missing:
         raise LevelwiseError(f"The data has no column for factor(s) {missing} named in the model {model!r}.")
     y_all = _numeric_column(data, response, "response")
-    columns = [
-        _numeric_column(data, n, "factor") if n in data.columns else np.zeros(len(data)) for n in names
-    ]
-    natural = np.column_stack(columns) if columns else np.empty((len(data), 0))
+    planned_columns, categories = _factor_columns(data, names, factors, response)
+    planned = np.column_stack(planned_columns) if planned_columns else np.empty((len(data), 0))
+    natural = planned.copy()
+    achieved_map = _achieved_columns(data, names, categories, achieved)
+    deviations = None
+    if achieved_map:
+        dev = {}
+        for name, column in achieved_map.items():
+            j = names.index(name)
+            values = _numeric_column(data, column, "achieved-setting")
+            reached = np.isfinite(values)
+            natural[reached, j] = values[reached]
+            dev[name] = np.where(reached, values - planned[:, j], 0.0)
+        deviations = pd.DataFrame(dev, index=data.index)
     keep = np.isfinite(y_all)
     if not keep.any():
-        raise LevelwiseError(f"The response column {response!r} has no values: every run is missing.")
-    bad_setting = np.isnan(natural) & keep[:, None]
+        raise LevelwiseError(
+            f"The response column {response!r} has no values: every run is missing. At least one run must have a value."
+        )
+    bad_setting = np.isnan(natural) & keep[:, None] & term_spec.exponents.any(axis=0)[None, :]
     if bad_setting.any():
         row, col = np.argwhere(bad_setting)[0]
         raise LevelwiseError(
             f"The factor column {names[col]!r} is empty in row {row + 1}, a run with a response. "
             "Every run used in a fit needs all its settings."
         )
-    coding_info = _coding_for(names, columns, factors, coding)
+    natural = np.where(np.isnan(natural), 0.0, natural)
+    coding_info = _coding_for(names, planned_columns, factors, coding, categories)
+    contrasts = tuple(sum_to_zero(len(categories[n])) if n in categories else None for n in names)
+    for name, levels in categories.items():
+        if len(levels) < 2 and term_spec.exponents[:, names.index(name)].any():
+            raise LevelwiseError(
+                f"The categorical factor {name!r} has only the level(s) {list(levels)} in the runs with a "
+                "response; at least two levels are needed to estimate its effect."
+            )
+    if not categories:
+        contrasts = ()
+        spec = term_spec
+        groups = [(t, (j,)) for j, t in enumerate(term_spec.terms) if term_spec.exponents[j].any()]
+        group_exp = term_spec.exponents[term_spec.exponents.any(axis=1)]
+    else:
+        spec, groups, group_exp = _expand(term_spec, names, categories, contrasts)
     y = y_all[keep]
-    X = spec.matrix(coding_info.to_coded(natural[keep]))
+    settings = natural[keep]
+    X = spec.matrix(encode(settings, coding_info.center, coding_info.scale, contrasts))
     n, p = X.shape
     if n < p:
         raise LevelwiseError(
             f"The model {model!r} has {p} terms but only {n} usable runs have a value for {response!r}; "
             "at least as many runs as terms are needed. Drop terms or add runs."
         )
-    q, r, piv = scipy.linalg.qr(X, mode="economic", pivoting=True)
-    diag = np.abs(np.diag(r))
-    tol = max(n, p) * np.finfo(float).eps * (diag[0] if diag.size else 0.0)
-    rank = int((diag > tol).sum())
+    q, r, piv, norms, rank = _scaled_pivoted_qr(X)
+    aliased = {}
     if rank < p:
-        raise LevelwiseError(
-            f"The model {model!r} cannot be estimated from these runs: {p - rank} term(s) are aliased "
-            f"with others. {_aliases_message(spec, r, piv, rank)}. Remove the aliased term(s) or add runs."
+        kept, aliased = _inestimable(X, spec.terms, rank)
+        listing = "; ".join(f"{term!r} = {expr}" for term, expr in aliased.items())
+        message = (
+            f"The model {model!r} cannot be fully estimated from these runs: {p - rank} term(s) are aliased "
+            f"with others. {listing}."
         )
+        if on_rank_deficiency == "raise":
+            raise LevelwiseError(
+                message + " Remove the aliased term(s), add runs, or fit with on_rank_deficiency='warn'."
+            )
+        warnings.warn(message + " They were dropped from the fit.", LevelwiseWarning, stacklevel=2)
+        position = {old: new for new, old in enumerate(kept)}
+        spec = ModelSpec(
+            formula=spec.formula,
+            factor_names=spec.factor_names,
+            exponents=spec.exponents[kept],
+            terms=tuple(spec.terms[j] for j in kept),
+        )
+        new_groups, new_exp = [], []
+        for (label, cols), exp in zip(groups, group_exp):
+            still = tuple(position[c] for c in cols if c in position)
+            if still:
+                new_groups.append((label, still))
+                new_exp.append(exp)
+        groups, group_exp = new_groups, np.array(new_exp, dtype=int).reshape(len(new_exp), len(names))
+        X = X[:, kept]
+        p = X.shape[1]
+        q, r, piv, norms, rank = _scaled_pivoted_qr(X)
+    # X / norms = Q R P'  =>  beta = D^-1 P R^-1 Q'y and (X'X)^-1 = (D^-1 P R^-1)(D^-1 P R^-1)'.
     rinv_piv = scipy.linalg.solve_triangular(r, np.eye(p))
     rinv = np.empty_like(rinv_piv)
     rinv[piv] = rinv_piv
+    rinv /= norms[:, None]
     beta = np.empty(p)
     beta[piv] = scipy.linalg.solve_triangular(r, q.T @ y)
+    beta /= norms
     return Fit(
         response=response,
         spec=spec,
@@ -408,7 +1001,16 @@ def fit(data, response: str, model: str, *, factors=None, coding: str = "auto", 
         beta=beta,
         rinv=rinv,
         rank=rank,
+        settings=settings,
+        groups=tuple(groups),
+        group_exponents=group_exp,
+        factor_names=tuple(names),
+        contrasts=contrasts,
+        categories=categories,
+        aliased=aliased,
+        missing_runs=tuple(data.index[~keep]),
+        setting_deviations=deviations,
     )
 
 
-__all__ = ["Fit", "fit", "Factor", "Coding"]
+__all__ = ["ACHIEVED_SUFFIX", "Coding", "Factor", "Fit", "fit", "sum_to_zero"]

@@ -60,7 +60,7 @@ def test_failed_refit_keeps_last_fit_and_shows_error(shared):
     shared.set_model("Oven + Nonsense")
     assert shared.fit is before
     assert "unknown factor" in shared.error
-    assert "lw-error" in view.readout.value and "Nonsense" in view.readout.value
+    assert "lw-error" in view.status.value and "Nonsense" in view.status.value
 
 
 def test_read_only_refuses_model_and_data_changes():

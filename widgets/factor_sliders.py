@@ -1,9 +1,10 @@
-"""The effect sliders: one slider per factor, a readout of the prediction, and per-factor traces.
+"""The effect sliders: one slider per factor, a readout per response, and per-factor traces.
 
 Each trace shows the predicted response against one factor with the others held
 at the current settings, with the confidence band for the mean (darker, solid
 edge) and the prediction band for a single new run (lighter, dashed edge), and a
-marker at the current setting.
+marker at the current setting. Every number comes from ``Fit.predict`` and
+``Fit.trace`` (kernel_core).
 """
 
 from __future__ import annotations
@@ -16,6 +17,7 @@ import numpy as np
 
 from kernel_core import LevelwiseError
 
+from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel
 from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, PI_COLOR, WORDS, fmt
 
@@ -25,27 +27,68 @@ def band(mean, half):
     return np.vstack([mean - half, mean + half]).astype(np.float32)
 
 
-class FactorSliders:
+def readout_html(shared: SharedModel, response: str, pred, level: float) -> str:
+    """The prediction of one response in words and units."""
+    units = shared.units.get(response, "")
+    unit = f" {html.escape(units)}" if units else ""
+    pct = f"{level:.0%}"
+    return "<br>".join(
+        [
+            f"<b>{html.escape(response)}</b>",
+            f'{WORDS["mean"].capitalize()}: <span class="lw-mean">{fmt(pred["mean"])}</span>{unit}',
+            f'{pct} {WORDS["ci"]}: <span class="lw-ci">{fmt(pred["ci_low"])} to {fmt(pred["ci_high"])}</span>{unit}',
+            f'{pct} {WORDS["pi"]}: <span class="lw-pi">{fmt(pred["pi_low"])} to {fmt(pred["pi_high"])}</span>{unit}',
+        ]
+    )
+
+
+class FactorSliders(View):
     """Sliders, prediction readout and per-factor traces bound to a :class:`SharedModel`.
+
+    Parameters
+    ----------
+    shared : SharedModel
+    points : int, default 50
+        Points per trace.
 
     Attributes
     ----------
     sliders : dict of str -> ipywidgets.FloatSlider
+        One per factor (CSS class ``lw-slider``), bounded to the factor's tested range.
     readout : ipywidgets.HTML
-        The expected mean with its 95% confidence and prediction intervals, in words.
+        Per response: the expected mean with its 95% confidence and prediction intervals, in words
+        (CSS ``lw-readout``; spans ``lw-mean``, ``lw-ci``, ``lw-pi``).
+    notice : ipywidgets.HTML
+        The extrapolation notice (``lw-notice``; contains ``lw-extrapolation`` when outside the region).
     traces : dict of str -> bqplot.Figure
+        Per factor, the displayed response against that factor (``lw-trace``).
     widget : ipywidgets.VBox
-        The whole view, ready to display.
+        The whole view (``lw-factor-sliders``).
     """
 
-    points = 50
+    def __init__(self, shared: SharedModel, *, points: int = 50):
+        super().__init__(shared)
+        self.points = int(points)
+        self.readout = ipw.HTML().add_class("lw-readout")
+        self.notice = ipw.HTML().add_class("lw-notice")
+        self.slider_box = ipw.VBox().add_class("lw-slider-box")
+        self.trace_box = ipw.HBox(layout=ipw.Layout(flex_flow="row wrap")).add_class("lw-trace-box")
+        self.y_scale = bq.LinearScale()
+        self.widget = ipw.VBox(
+            [ipw.HBox([self.slider_box, ipw.VBox([self.readout, self.notice, self.status])]), self.trace_box]
+        ).add_class("lw-factor-sliders")
+        self._build()
+        self.watch(self._build, names="factors")
+        self.watch(self._refresh, names=["fits", "fit", "settings", "response", "error"])
 
-    def __init__(self, shared: SharedModel):
-        self.shared = shared
-        self.sliders = {}
-        for f in shared.factors:
+    # ----- construction -------------------------------------------------------------------------
+    def _build(self, change=None):
+        for old in getattr(self, "sliders", {}).values():
+            old.close()
+        self.sliders, self.traces, self._marks, self._y_axes = {}, {}, {}, []
+        for f in self.shared.factors:
             slider = ipw.FloatSlider(
-                value=shared.settings[f.name],
+                value=self.shared.settings[f.name],
                 min=f.low,
                 max=f.high,
                 step=(f.high - f.low) / 100.0,
@@ -56,22 +99,13 @@ class FactorSliders:
                 layout=ipw.Layout(width="420px"),
             )
             slider.add_class("lw-slider")
-            slider.observe(self._on_slider, names="value")
+            slider.observe(self.safely(self._on_slider), names="value")
+            slider.observe(self.safely(self._keep_bounds), names=["min", "max"])
             self.sliders[f.name] = slider
-        self.readout = ipw.HTML().add_class("lw-readout")
-        self.notice = ipw.HTML().add_class("lw-notice")
-        self.y_scale = bq.LinearScale()
-        self.traces, self._marks = {}, {}
-        for f in shared.factors:
             self.traces[f.name] = self._trace_figure(f)
+        self.slider_box.children = list(self.sliders.values())
+        self.trace_box.children = list(self.traces.values())
         self._refresh()
-        shared.observe(self._refresh, names=["fit", "settings", "error"])
-        self.widget = ipw.VBox(
-            [
-                ipw.HBox([ipw.VBox(list(self.sliders.values())), ipw.VBox([self.readout, self.notice])]),
-                ipw.HBox(list(self.traces.values()), layout=ipw.Layout(flex_flow="row wrap")),
-            ]
-        ).add_class("lw-factor-sliders")
 
     def _trace_figure(self, factor):
         x_scale = bq.LinearScale(min=factor.low, max=factor.high)
@@ -87,13 +121,11 @@ class FactorSliders:
         mean = bq.Lines(scales=scales, colors=[MEAN_COLOR], stroke_width=2.5)
         marker = bq.Scatter(scales=scales, **CURRENT_MARKER)
         self._marks[factor.name] = (pi_band, ci_band, mean, marker)
-        units = f" ({self.shared.response_units})" if self.shared.response_units else ""
+        y_axis = bq.Axis(scale=self.y_scale, side="left", label=self._y_label(), num_ticks=5)
+        self._y_axes.append(y_axis)
         fig = bq.Figure(
             marks=[pi_band, ci_band, mean, marker],
-            axes=[
-                bq.Axis(scale=x_scale, label=factor.label, num_ticks=5),
-                bq.Axis(scale=self.y_scale, side="left", label=f"{self.shared.response}{units}", num_ticks=5),
-            ],
+            axes=[bq.Axis(scale=x_scale, label=factor.label, num_ticks=5), y_axis],
             title=factor.name,
             layout=ipw.Layout(width="300px", height="240px"),
             fig_margin={"top": 30, "bottom": 45, "left": 55, "right": 10},
@@ -102,58 +134,73 @@ class FactorSliders:
         fig.add_class("lw-trace")
         return fig
 
+    def _y_label(self) -> str:
+        units = self.shared.response_units
+        return f"{self.shared.response} ({units})" if units else self.shared.response
+
+    # ----- browser -> kernel ----------------------------------------------------------------------
     def _on_slider(self, change):
         name = next(n for n, s in self.sliders.items() if s is change["owner"])
         try:
             self.shared.set_settings(**{name: change["new"]})
         except LevelwiseError as exc:
             self.shared.error = str(exc)
+            change["owner"].value = self.shared.settings[name]  # the model is unchanged: show it
 
+    def _keep_bounds(self, change):
+        """A slider's range is the factor's tested range, whatever a browser sends."""
+        slider = change["owner"]
+        name = next(n for n, s in self.sliders.items() if s is slider)
+        factor = self.shared.factor(name)
+        if (slider.min, slider.max) != (factor.low, factor.high):
+            with slider.hold_trait_notifications():
+                slider.min, slider.max = factor.low, factor.high
+
+    # ----- kernel -> browser ----------------------------------------------------------------------
     def _refresh(self, change=None):
-        shared, current_fit = self.shared, self.shared.fit
+        shared = self.shared
+        self.show_shared_error()
         for name, slider in self.sliders.items():
             if slider.value != shared.settings[name]:
                 slider.value = shared.settings[name]
-        units = f" {html.escape(shared.response_units)}" if shared.response_units else ""
-        try:
-            pred = current_fit.predict(shared.settings).iloc[0]
-        except LevelwiseError as exc:
-            self.readout.value = f'<div class="lw-error">{html.escape(str(exc))}</div>'
-            return
-        pct = f"{current_fit.level:.0%}"
-        lines = [
-            f'<b>{html.escape(shared.response)}</b>',
-            f'{WORDS["mean"].capitalize()}: <span class="lw-mean">{fmt(pred["mean"])}</span>{units}',
-            f'{pct} {WORDS["ci"]}: <span class="lw-ci">{fmt(pred["ci_low"])} to {fmt(pred["ci_high"])}</span>{units}',
-            f'{pct} {WORDS["pi"]}: <span class="lw-pi">{fmt(pred["pi_low"])} to {fmt(pred["pi_high"])}</span>{units}',
-        ]
-        if shared.error:
-            lines.append(f'<div class="lw-error">Last change not applied: {html.escape(shared.error)}</div>')
-        self.readout.value = "<br>".join(lines)
+        blocks = []
+        for response in shared.responses:
+            current = shared.fits.get(response)
+            if current is None:
+                blocks.append(f"<b>{html.escape(response)}</b>: no fit yet (no recorded values or the model failed).")
+                continue
+            pred = current.predict(shared.settings).iloc[0]
+            blocks.append(readout_html(shared, response, pred, current.level))
+        self.readout.value = "<hr>".join(blocks)
         outside = shared.extrapolating()
         self.notice.value = (
             f'<div class="lw-extrapolation">Outside the tested region ({", ".join(map(html.escape, outside))}): '
             "the prediction is an extrapolation and may be badly wrong.</div>"
             if outside else ""
         )
+        for axis in self._y_axes:
+            axis.label = self._y_label()
+        current = shared.fit
+        if current is None:
+            return
+        mean_here = float(current.predict(shared.settings)["mean"].iloc[0])
         lows, highs = [], []
         for f in shared.factors:
-            tr = current_fit.trace(f.name, shared.settings, points=self.points)
+            if f.name not in self._marks:
+                continue
+            tr = current.trace(f.name, shared.settings, points=self.points)
             pi_band, ci_band, mean, marker = self._marks[f.name]
-            x = tr["x"].astype(np.float32)
+            x = f32(tr["x"])
             with pi_band.hold_sync(), ci_band.hold_sync(), mean.hold_sync(), marker.hold_sync():
-                pi_band.x, pi_band.y = x, band(tr["mean"], tr["pi_half"])
-                ci_band.x, ci_band.y = x, band(tr["mean"], tr["ci_half"])
-                mean.x, mean.y = x, tr["mean"].astype(np.float32)
-                marker.x = np.array([shared.settings[f.name]], dtype=np.float32)
-                marker.y = np.array([pred["mean"]], dtype=np.float32)
+                set_if_changed(pi_band, x=x, y=band(tr["mean"], tr["pi_half"]))
+                set_if_changed(ci_band, x=x, y=band(tr["mean"], tr["ci_half"]))
+                set_if_changed(mean, x=x, y=f32(tr["mean"]))
+                set_if_changed(marker, x=f32([shared.settings[f.name]]), y=f32([mean_here]))
             widest = tr["pi_half"] if np.isfinite(tr["pi_half"]).all() else 0.0
             lows.append(np.min(tr["mean"] - widest))
             highs.append(np.max(tr["mean"] + widest))
-        low, high = float(min(lows)), float(max(highs))
-        pad = 0.05 * (high - low or 1.0)
-        self.y_scale.min, self.y_scale.max = low - pad, high + pad
-
-    def close(self):
-        self.shared.unobserve(self._refresh, names=["fit", "settings", "error"])
-        self.widget.close()
+        if lows:
+            low, high = float(min(lows)), float(max(highs))
+            pad = 0.05 * (high - low or 1.0)
+            with self.y_scale.hold_sync():
+                self.y_scale.min, self.y_scale.max = low - pad, high + pad

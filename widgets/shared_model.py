@@ -1,23 +1,44 @@
 """The one shared fitted model that every view observes.
 
 :class:`SharedModel` is a plain ``traitlets.HasTraits`` (not a widget, nothing is
-synced to the browser). Inputs are traits (``data``, ``model``, ``settings``);
-the output is ``fit``, an immutable :class:`kernel_core.Fit` that is *replaced*
-on every refit, never changed, so each refit notifies observers exactly once.
-A refit that fails keeps the last good fit and puts the message in ``error``.
+synced to the browser). It holds the study: the factors, the design and the run
+data, the responses with their units and models, the exclusions with their
+reasons and the current factor settings. The outputs are ``fits`` (one immutable
+:class:`kernel_core.Fit` per response, the whole dict *replaced* on every refit)
+and ``fit`` (the fit of the displayed ``response``). Each refit notifies the
+observers of ``fits`` and of ``fit`` exactly once.
+
+Every change is a method with a code equivalent, usable from a notebook cell::
+
+    shared.exclude(7, "operator noted a wrong powder batch")
+    shared.include(7)
+    shared.set_model("Impact", "quadratic")
+    shared.settings = {"Oven": 195.0, "Dwell": 12.0, "Film": 70.0, "Catalyst": 1.0}
+    shared.response = "Gloss"          # what the views display
+
+A refit that fails keeps that response's last good fit and puts the message in
+``error`` (and ``errors[response]``); nothing raises into the event loop.
 
 Read-only is enforced here, in Python: a model built with ``read_only=True``
-refuses every change to the data, the response or the model, whatever a
-browser sends. Only the factor settings may move.
+refuses every change to the factors, design, data, responses, models,
+exclusions and fits, whatever a browser sends (a :class:`ReadOnlyError`). Only
+the factor settings and the display choices (``response``) may change, and the
+settings must then stay inside the study's region.
 """
 
 from __future__ import annotations
+
+from contextlib import contextmanager
 
 import numpy as np
 import pandas as pd
 import traitlets
 
-from kernel_core import Factor, Fit, LevelwiseError, fit
+from kernel_core import Design, Factor, Fit, LevelwiseError, fit
+from kernel_core._errors import describe
+
+#: Traits that only a writable model may change (the inputs and the outputs of fitting).
+PROTECTED = ("factors", "design", "data", "responses", "units", "models", "exclusions", "fits", "fit")
 
 
 class ReadOnlyError(LevelwiseError):
@@ -25,104 +46,452 @@ class ReadOnlyError(LevelwiseError):
 
 
 class SharedModel(traitlets.HasTraits):
-    """Study data, model and factor settings, with the current fit.
+    """The study (factors, design, data, responses, models, exclusions, settings) with its current fits.
 
     Parameters
     ----------
-    factors : list of Factor
+    factors : sequence of Factor
     data : pandas.DataFrame
-        One row per run, natural units.
-    response : str
-    model : str
-        Wilkinson formula or preset.
+        One row per run in natural units: the factor columns and one column per response.
+        A ``run`` column, when present, gives the run ids used by :meth:`exclude`;
+        otherwise the row labels do.
+    response : str, optional
+        The response displayed first (default: the first of *responses*).
+    model : str, optional
+        Model of *response* (Wilkinson formula or preset). Used when *models* is not given.
+    responses : sequence of str, optional
+        Every response column of the study (default: ``[response]``).
+    models : dict of str -> str, optional
+        Model per response (default ``"linear"`` for a response without one).
+    units : dict of str -> str, optional
+        Units per response.
     response_units : str, optional
+        Units of *response* (a shortcut for ``units={response: ...}``).
+    design : kernel_core.Design, optional
+        The planned design, when known.
+    exclusions : dict, optional
+        ``{run id: reason}`` of runs left out of every fit.
+    settings : dict, optional
+        Starting factor settings (default: the centre of every factor).
     read_only : bool, default False
-        Refuse every mutation except moving ``settings``.
+        Refuse every change except the settings (kept inside the region) and the display choices.
+    level : float, default 0.95
+        Confidence level of every interval shown.
 
     Examples
     --------
-    In a notebook cell: ``shared.settings = {"Oven": 195, ...}`` moves every view;
-    ``shared.set_model("Oven + Dwell")`` refits.
+    >>> from kernel_core import demo
+    >>> shared = SharedModel(demo.FACTORS, demo.demo_data(), demo.RESPONSE, demo.MODEL)
+    >>> shared.set_model(demo.RESPONSE, "Oven + Dwell")
+    >>> shared.fit.terms
+    ('Intercept', 'Oven', 'Dwell')
     """
 
     factors = traitlets.Tuple(help="The study's factors (kernel_core.Factor), in column order.")
+    design = traitlets.Instance(Design, allow_none=True, help="The planned design, when known.")
     data = traitlets.Instance(pd.DataFrame, help="The runs, natural units, one column per factor and response.")
-    response = traitlets.Unicode(help="Name of the modelled response column.")
-    response_units = traitlets.Unicode("", help="Units of the response, shown in every readout.")
-    model = traitlets.Unicode(help="The model, in Wilkinson notation or a preset.")
+    responses = traitlets.Tuple(help="Names of the response columns of the study.")
+    units = traitlets.Dict(help="Units of each response: {response: units}.")
+    models = traitlets.Dict(help="Model of each response, Wilkinson notation or preset: {response: model}.")
+    exclusions = traitlets.Dict(help="Runs left out of every fit, with the reason: {run id: reason}.")
+    response = traitlets.Unicode(help="The response the views display (a display choice).")
+    goals = traitlets.Dict(
+        help="Optimisation goals per response (an exploration choice, allowed read-only): {response: goal dict}."
+    )
     settings = traitlets.Dict(help="Current factor settings, natural units: {factor name: value}.")
-    fit = traitlets.Instance(Fit, allow_none=True, help="Current fit; replaced on every refit, never mutated.")
+    fits = traitlets.Dict(help="Current fit of each response; the dict is replaced on every refit, never mutated.")
+    fit = traitlets.Instance(Fit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
+    errors = traitlets.Dict(help="Message of the last failed refit of each response.")
     error = traitlets.Unicode("", help="Message of the last failed refit or rejected change ('' when none).")
-    read_only = traitlets.Bool(False, read_only=True, help="When true, only the settings may change.")
+    level = traitlets.Float(0.95, read_only=True, help="Confidence level of every interval shown.")
+    read_only = traitlets.Bool(False, read_only=True, help="When true, only settings and display choices change.")
+    study = traitlets.Any(None, help="The kernel_core Study this model writes through to, when it wraps one.")
 
-    def __init__(self, factors, data, response, model, *, response_units="", read_only=False):
+    def __init__(
+        self,
+        factors,
+        data,
+        response=None,
+        model=None,
+        *,
+        responses=None,
+        models=None,
+        units=None,
+        response_units="",
+        design=None,
+        exclusions=None,
+        settings=None,
+        read_only=False,
+        level=0.95,
+    ):
         factors = tuple(factors)
-        for item in factors:
+        for position, item in enumerate(factors):
             if not isinstance(item, Factor):
-                raise LevelwiseError(f"Every item of 'factors' must be a Factor. Got {item!r} instead.")
-        super().__init__(
-            factors=factors,
-            data=data,
+                raise LevelwiseError(f"Item {position} of 'factors' must be a Factor. Got {describe(item)} instead.")
+        if not isinstance(data, pd.DataFrame):
+            raise LevelwiseError(f"The 'data' parameter must be a pandas DataFrame. Got {describe(data)} instead.")
+        responses = tuple(responses) if responses is not None else ((response,) if response is not None else ())
+        if not responses:
+            raise LevelwiseError("The shared model needs at least one response: give 'response' or 'responses'.")
+        response = responses[0] if response is None else response
+        for name in responses:
+            if name not in data.columns:
+                raise LevelwiseError(
+                    f"The response {name!r} is not a column of the data {list(map(str, data.columns))}."
+                )
+        if response not in responses:
+            raise LevelwiseError(f"The 'response' parameter must be one of {list(responses)}. Got {response!r}.")
+        models = dict(models or {})
+        if model is not None:
+            models.setdefault(response, model)
+        models = {name: models.get(name, "linear") for name in responses}
+        units = {name: str((units or {}).get(name, "")) for name in responses}
+        if response_units:
+            units[response] = response_units
+        self._internal = 0
+        with self._writing():
+            super().__init__(
+                factors=factors,
+                design=design,
+                data=data,
+                responses=responses,
+                units=units,
+                models=models,
+                exclusions={},
+                response=response,
+            )
+            self.set_trait("level", float(level))
+            if exclusions:
+                self.exclusions = {self._run_id(run): self._reason(reason) for run, reason in exclusions.items()}
+            self.settings = {f.name: f.center for f in factors} | dict(settings or {})
+            self._refit()
+        self.set_trait("read_only", bool(read_only))  # last: the model is built before it is locked
+        self.observe(self._on_response, names="response")
+
+    # ----- construction from a kernel_core Study (issue 7), when available -----------------------
+    @classmethod
+    def from_study(cls, study, *, read_only=False, response=None):
+        """A shared model over a :class:`kernel_core.study.Study`; changes are written through to it.
+
+        Exclusions, model changes and inclusions made here are recorded in the study (and so in
+        its audit log); save the study to keep them. Exclusions of one response only (a study
+        feature) are applied through the study's data, where that response is blank for the run.
+        """
+        data = study.data(apply_exclusions=False)
+        per_response = study.exclusions
+        for row in per_response.itertuples():
+            if row.response is not None and row.run in data.index:
+                data.loc[row.run, row.response] = np.nan
+        responses = study.responses
+        names = list(responses)
+        if not names:
+            raise LevelwiseError("The study has no responses yet: add one with study.add_response(name, units).")
+        shared = cls(
+            study.factors,
+            data,
             response=response,
-            model=model,
-            response_units=response_units,
-            settings={f.name: f.center for f in factors},
+            responses=names,
+            models=study.models,
+            units={name: spec.units for name, spec in responses.items()},
+            exclusions={
+                int(row.run): row.reason or "excluded in the study file"
+                for row in per_response.itertuples() if row.response is None
+            },
         )
-        self.set_trait("read_only", bool(read_only))
-        self.fit = fit(data, response, model, factors=factors)  # a bad start is an error for the caller
-        self.observe(self._refit, names=["data", "response", "model"])
+        with shared._writing():
+            shared.study = study
+        shared.set_trait("read_only", bool(read_only))
+        return shared
 
     # ----- read-only enforcement ----------------------------------------------------------------
-    @traitlets.validate("data", "response", "model", "factors")
-    def _refuse_when_read_only(self, proposal):
+    @contextmanager
+    def _writing(self):
+        """Let the model's own methods change protected traits (never reachable from a browser)."""
+        self._internal += 1
+        try:
+            yield
+        finally:
+            self._internal -= 1
+
+    @traitlets.validate(*PROTECTED, "study")
+    def _refuse_outside_changes(self, proposal):
+        name = proposal["trait"].name
         if self.read_only:
-            name = proposal["trait"].name
             self.error = f"This dashboard is read-only: the {name} cannot be changed."
             raise ReadOnlyError(self.error)
+        if name in ("fits", "fit") and not self._internal:
+            raise LevelwiseError(f"The '{name}' of a SharedModel is computed; change the data or the models instead.")
         return proposal["value"]
+
+    def _check_writable(self, what: str) -> None:
+        if self.read_only:
+            self.error = f"This dashboard is read-only: {what} is not allowed."
+            raise ReadOnlyError(self.error)
+
+    @traitlets.validate("response")
+    def _check_response(self, proposal):
+        value = proposal["value"]
+        if self.responses and value not in self.responses:
+            raise LevelwiseError(f"The 'response' must be one of {list(self.responses)}. Got {describe(value)}.")
+        return value
 
     @traitlets.validate("settings")
     def _check_settings(self, proposal):
-        value = dict(proposal["value"])
-        names = {f.name for f in self.factors}
-        unknown = sorted(set(value) - names)
+        value = proposal["value"]
+        if not isinstance(value, dict):
+            raise LevelwiseError(f"The 'settings' must be a dict of factor name -> number. Got {describe(value)}.")
+        by_name = {f.name: f for f in self.factors}
+        unknown = sorted(set(value) - set(by_name), key=str)
         if unknown:
-            raise LevelwiseError(f"The settings name unknown factor(s) {unknown}; known: {sorted(names)}.")
+            raise LevelwiseError(f"The settings name unknown factor(s) {unknown}; known: {sorted(by_name)}.")
         clean = dict(self.settings) if self.settings else {}
         for name, raw in value.items():
+            if isinstance(raw, bool):
+                raise LevelwiseError(f"The setting of {name!r} must be a number. Got {raw!r} instead.")
             try:
                 number = float(raw)
             except (TypeError, ValueError):
-                raise LevelwiseError(f"The setting of {name!r} must be a number. Got {raw!r} instead.") from None
+                raise LevelwiseError(f"The setting of {name!r} must be a number. Got {describe(raw)}.") from None
             if not np.isfinite(number):
                 raise LevelwiseError(f"The setting of {name!r} must be finite. Got {raw!r} instead.")
+            factor = by_name[name]
+            if self.read_only and not factor.low <= number <= factor.high:
+                raise ReadOnlyError(
+                    f"This dashboard is read-only: the setting of {name!r} must stay in the tested range "
+                    f"{factor.low:g} to {factor.high:g}. Got {number!r} instead."
+                )
             clean[name] = number
         return clean
 
+    # ----- run ids and reasons ------------------------------------------------------------------
+    def run_ids(self) -> np.ndarray:
+        """Run id of every row of ``data``: the ``run`` column when present, else the row labels."""
+        if "run" in self.data.columns:
+            return self.data["run"].to_numpy()
+        return self.data.index.to_numpy()
+
+    def _run_id(self, run):
+        ids = list(self.run_ids())
+        for candidate in ids:
+            if candidate == run and not isinstance(run, bool):
+                return candidate.item() if hasattr(candidate, "item") else candidate
+        shown = ids if len(ids) <= 12 else ids[:6] + ["..."] + ids[-3:]
+        raise LevelwiseError(f"The 'run' must be a run id of the study {shown}. Got {describe(run)} instead.")
+
+    @staticmethod
+    def _reason(reason) -> str:
+        if not isinstance(reason, str) or not reason.strip():
+            raise LevelwiseError(
+                f"The 'reason' for an exclusion must be a non-empty text. Got {describe(reason)} instead."
+            )
+        return reason.strip()
+
+    def _check_response_name(self, response) -> str:
+        if response not in self.responses:
+            raise LevelwiseError(
+                f"The 'response' must be one of {list(self.responses)}. Got {describe(response)} instead."
+            )
+        return response
+
     # ----- mutations, each usable from a notebook cell --------------------------------------------
-    def set_model(self, model: str) -> None:
-        """Change the model formula and refit (refused when read-only)."""
-        self.model = model
+    def set_model(self, response_or_model: str, model: str | None = None) -> None:
+        """Change a response's model and refit it (refused when read-only).
+
+        ``shared.set_model("Impact", "quadratic")``; with one argument the displayed
+        response's model changes: ``shared.set_model("Oven + Dwell")``.
+        """
+        response, model = (self.response, response_or_model) if model is None else (response_or_model, model)
+        self._check_writable("changing a model")
+        self._check_response_name(response)
+        if not isinstance(model, str) or not model.strip():
+            raise LevelwiseError(f"The 'model' must be a non-empty formula or preset. Got {describe(model)} instead.")
+        with self._writing():
+            self.models = {**self.models, response: model.strip()}
+        self._write_through("set_model", response, model.strip())
+        self._refit([response])
 
     def set_data(self, data: pd.DataFrame) -> None:
-        """Replace the run data and refit (refused when read-only)."""
-        self.data = data
+        """Replace the run data and refit every response (refused when read-only)."""
+        self._check_writable("changing the data")
+        if not isinstance(data, pd.DataFrame):
+            raise LevelwiseError(f"The 'data' parameter must be a pandas DataFrame. Got {describe(data)} instead.")
+        missing = [name for name in self.responses if name not in data.columns]
+        if missing:
+            raise LevelwiseError(f"The new data has no column for response(s) {missing}.")
+        with self._writing():
+            self.data = data
+            known = set(map(str, self.run_ids()))
+            self.exclusions = {run: why for run, why in self.exclusions.items() if str(run) in known}
+        self._refit()
+
+    def exclude(self, run, reason: str) -> None:
+        """Leave run *run* out of every fit, for the stated *reason* (refused when read-only).
+
+        Each response's fit loses the run by kernel_core's rank-one update (``Fit.exclude``). If the
+        kernel refuses (say the run's leverage is 1), nothing changes and the error says why.
+        """
+        self._check_writable("excluding a run")
+        run, reason = self._run_id(run), self._reason(reason)
+        if run in self.exclusions:
+            raise LevelwiseError(f"Run {run!r} is already excluded ({self.exclusions[run]}).")
+        label = self.label_of(run)
+        fits = dict(self.fits)
+        try:
+            for name, current in self.fits.items():
+                if label in current.runs:
+                    fits[name] = current.exclude(label, reason)
+        except LevelwiseError as exc:
+            self.error = f"Run {run} was not excluded: {exc}"
+            raise LevelwiseError(self.error) from None
+        with self._writing():
+            self.exclusions = {**self.exclusions, run: reason}
+        self._write_through("exclude", run, reason)
+        stale = [name for name in self.responses if name not in self.fits]
+        for name in stale:  # responses without a current fit get a full try
+            try:
+                fits[name] = self._fit_one(name, self.exclusions)
+            except LevelwiseError:
+                pass
+        self._publish(fits, dict(self.errors), [])
+
+    def include(self, run) -> None:
+        """Put an excluded run back into every fit (refused when read-only)."""
+        self._check_writable("including a run")
+        run = self._run_id(run)
+        if run not in self.exclusions:
+            raise LevelwiseError(f"Run {run!r} is not excluded; excluded runs: {sorted(self.exclusions, key=str)}.")
+        with self._writing():
+            self.exclusions = {key: why for key, why in self.exclusions.items() if key != run}
+        self._write_through("include", run)
+        self._refit()
 
     def set_settings(self, **settings) -> None:
         """Move some factor settings, e.g. ``shared.set_settings(Oven=195)``."""
         self.settings = {**self.settings, **settings}
 
-    def _refit(self, change=None) -> None:
-        """Build a new Fit; on failure keep the last good one and report the error."""
-        try:
-            new = fit(self.data, self.response, self.model, factors=self.factors)
-        except LevelwiseError as exc:
-            self.error = str(exc)
-            return
-        self.error = ""
-        self.fit = new
+    def set_goals(self, goals: dict) -> None:
+        """Set the optimisation goals, ``{response: {"goal": "maximize", ...}}`` (allowed read-only)."""
+        if not isinstance(goals, dict):
+            raise LevelwiseError(f"The 'goals' must be a dict of response -> goal. Got {describe(goals)}.")
+        for name in goals:
+            self._check_response_name(name)
+        self.goals = dict(goals)
+
+    def new_study(self, design: Design, responses, *, models=None) -> None:
+        """Replace the whole study by a fresh one on *design* with blank responses.
+
+        *responses* maps each response name to its units (or is a list of names).
+        Refused when read-only.
+        """
+        self._check_writable("creating a study")
+        if not isinstance(design, Design):
+            raise LevelwiseError(f"The 'design' parameter must be a kernel_core Design. Got {describe(design)}.")
+        units = dict(responses) if isinstance(responses, dict) else {name: "" for name in responses}
+        if not units:
+            raise LevelwiseError("A new study needs at least one response name.")
+        names = tuple(units)
+        clashes = [n for n in names if n in design.table.columns]
+        if clashes or any(not isinstance(n, str) or not n.strip() for n in names):
+            raise LevelwiseError(
+                f"Response names must be non-empty and differ from the run-sheet columns. Got {list(names)}."
+            )
+        data = design.table.copy()
+        for name in names:
+            data[name] = np.nan
+        models = {name: (models or {}).get(name, "linear") for name in names}
+        with self._writing(), self.hold_trait_notifications():
+            self.fits = {}
+            self.fit = None
+            self.factors = tuple(design.factors)
+            self.design = design
+            self.data = data
+            self.responses = names
+            self.units = {name: str(units[name]) for name in names}
+            self.models = models
+            self.exclusions = {}
+            self.goals = {}
+            self.response = names[0]
+            self.settings = {f.name: f.center for f in design.factors}
+            self.study = None
+        self._refit()
+
+    def _write_through(self, method: str, *args) -> None:
+        """Record a change in the wrapped Study, when there is one and it offers the method."""
+        target = getattr(self.study, method, None) if self.study is not None else None
+        if callable(target):
+            try:
+                target(*args)
+            except LevelwiseError as exc:
+                self.error = f"The study file did not record the change: {exc}"
+
+    # ----- refitting ----------------------------------------------------------------------------
+    def excluded_mask(self) -> np.ndarray:
+        """True for every row of ``data`` whose run is excluded."""
+        if not self.exclusions:
+            return np.zeros(len(self.data), dtype=bool)
+        return np.isin(self.run_ids().astype(object), np.array(list(self.exclusions), dtype=object))
+
+    def label_of(self, run):
+        """The row label of ``data`` for run id *run* (what kernel_core's ``Fit.runs`` holds)."""
+        matches = self.data.index[self.run_ids() == run]
+        if len(matches) != 1:
+            raise LevelwiseError(f"The run id {run!r} must name exactly one row of the data; it names {len(matches)}.")
+        return matches[0]
+
+    def _fit_one(self, name: str, exclusions: dict):
+        """Fit one response on all runs, then leave the excluded runs out by the kernel's fast update."""
+        result = fit(self.data, name, self.models[name], factors=self.factors, level=self.level)
+        for run, reason in exclusions.items():
+            label = self.label_of(run)
+            if label in result.runs:  # a run with no value for this response is not in its fit
+                result = result.exclude(label, reason)
+        return result
+
+    def _refit(self, responses=None) -> None:
+        """New fits for *responses* (default all); a failure keeps that response's last good fit."""
+        targets = list(self.responses) if responses is None else list(responses)
+        fits, errors = dict(self.fits), dict(self.errors)
+        for name in targets:
+            try:
+                fits[name] = self._fit_one(name, self.exclusions)
+            except LevelwiseError as exc:
+                errors[name] = f"{name}: {exc}"
+            else:
+                errors.pop(name, None)
+        self._publish(fits, errors, targets)
+
+    def _publish(self, fits, errors, targets) -> None:
+        """Replace ``fits`` (one notification) and ``fit`` when the displayed response's fit changed."""
+        with self._writing(), self.hold_trait_notifications():
+            self.errors = errors
+            self.error = next((errors[name] for name in targets if name in errors), "")
+            self.fits = {name: fits[name] for name in self.responses if name in fits}
+            shown = self.fits.get(self.response)
+            if shown is not self.fit:
+                self.fit = shown
+
+    def _on_response(self, change) -> None:
+        with self._writing():
+            self.fit = self.fits.get(self.response)
 
     # ----- derived values the views share --------------------------------------------------------
+    @property
+    def model(self) -> str:
+        """Model of the displayed response."""
+        return self.models.get(self.response, "")
+
+    @property
+    def response_units(self) -> str:
+        """Units of the displayed response."""
+        return self.units.get(self.response, "")
+
+    def factor(self, name: str) -> Factor:
+        """The factor called *name*."""
+        for f in self.factors:
+            if f.name == name:
+                return f
+        raise LevelwiseError(f"The factor must be one of {[f.name for f in self.factors]}. Got {describe(name)}.")
+
     def settings_row(self) -> np.ndarray:
         """Current settings as a (1, k) array in factor order."""
         return np.array([[self.settings[f.name] for f in self.factors]])

@@ -33,3 +33,33 @@ def fmt(value: float, digits: int = 4) -> str:
     if value != value:  # NaN
         return "not available"
     return f"{value:.{digits}g}" if abs(value) >= 1e-3 or value == 0 else f"{value:.3e}"
+
+#: Colour map of every surface: cividis (Nuñez, Anderton & Renslow 2018), readable with colour-vision
+#: deficiency and in greyscale. Five stops, dark blue to yellow (stop values from memory).
+CIVIDIS = ["#00204D", "#414D6B", "#7C7B78", "#BCAF6F", "#FFEA46"]
+CONTOUR_COLOR = "#FFFFFF"
+DESIGN_POINT_COLOR = OKABE_ITO["vermillion"]
+
+#: Runs used in the fit are filled; excluded runs stay visible as hollow grey squares.
+RUN_COLOR = OKABE_ITO["blue"]
+EXCLUDED_COLOR = "#7F7F7F"
+HIGHLIGHT_COLOR = OKABE_ITO["vermillion"]
+ACTIVE_COLOR = OKABE_ITO["vermillion"]
+INACTIVE_COLOR = OKABE_ITO["sky_blue"]
+ME_LINE = {"colors": [OKABE_ITO["bluish_green"]], "line_style": "dashed", "stroke_width": 1.5}
+SME_LINE = {"colors": [OKABE_ITO["reddish_purple"]], "line_style": "dash_dotted", "stroke_width": 1.5}
+
+#: Plain words for the quantities a view can draw on a surface.
+SURFACE_QUANTITIES = {
+    "mean": "expected mean",
+    "ci_half": "half-width of the 95% confidence interval for the mean",
+    "pi_half": "half-width of the 95% prediction interval for a single new run",
+    "desirability": "overall desirability (0 = unacceptable, 1 = ideal)",
+}
+
+
+def figure_layout(width: int = 320, height: int = 260):
+    """Default size of a small figure."""
+    import ipywidgets as ipw
+
+    return ipw.Layout(width=f"{width}px", height=f"{height}px")

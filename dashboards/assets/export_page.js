@@ -1,0 +1,189 @@
+"use strict";
+const DATA = JSON.parse(document.getElementById("lw-data").textContent);
+const F = DATA.factors, K = F.length;
+const settings = F.map(f => f.center);
+let shown = 0;
+
+function modelRow(m, x) {
+  const coded = x.map((v, i) => (v - m.center[i]) / m.scale[i]);
+  return m.exponents.map(e => {
+    let v = 1.0;
+    for (let i = 0; i < K; i++) { for (let p = 0; p < e[i]; p++) { v *= coded[i]; } }
+    return v;
+  });
+}
+
+function predict(m, x) {
+  const row = modelRow(m, x);
+  let mean = 0.0;
+  for (let j = 0; j < row.length; j++) { mean += row[j] * m.beta[j]; }
+  let h = 0.0;
+  for (let c = 0; c < row.length; c++) {
+    let v = 0.0;
+    for (let j = 0; j < row.length; j++) { v += row[j] * m.rinv[j][c]; }
+    h += v * v;
+  }
+  const ts = (m.t === null || m.s === null) ? NaN : m.t * m.s;
+  const ciHalf = ts * Math.sqrt(h), piHalf = ts * Math.sqrt(1.0 + h);
+  return {mean: mean, ci_low: mean - ciHalf, ci_high: mean + ciHalf, pi_low: mean - piHalf, pi_high: mean + piHalf};
+}
+
+function fmt(v) {
+  if (!isFinite(v)) { return "not available"; }
+  return Math.abs(v) >= 1e-3 || v === 0 ? Number(v.toPrecision(4)).toString() : v.toExponential(3);
+}
+
+function el(tag, attrs, parent) {
+  const ns = ["svg", "path", "line", "text", "rect", "polygon", "g"].includes(tag) ? "http://www.w3.org/2000/svg" : null;
+  const node = ns ? document.createElementNS(ns, tag) : document.createElement(tag);
+  for (const [k, v] of Object.entries(attrs || {})) {
+    if (k === "text") { node.textContent = v; } else { node.setAttribute(k, v); }
+  }
+  if (parent) { parent.appendChild(node); }
+  return node;
+}
+
+const sliders = [];
+const controls = document.getElementById("lw-controls");
+F.forEach((f, i) => {
+  const label = el("label", {}, controls);
+  el("span", {text: f.name + (f.units ? " (" + f.units + ") " : " ")}, label);
+  const input = el("input", {type: "range", min: f.low, max: f.high, step: (f.high - f.low) / 100,
+                             value: f.center, class: "lw-range", "data-factor": f.name}, label);
+  const value = el("span", {class: "lw-value"}, label);
+  input.addEventListener("input", () => { settings[i] = parseFloat(input.value); update(); });
+  sliders.push({input: input, value: value});
+});
+
+const responseSelect = document.getElementById("lw-response");
+DATA.responses.forEach((m, r) => el("option", {value: r, text: m.name}, responseSelect));
+responseSelect.addEventListener("change", () => { shown = parseInt(responseSelect.value, 10); update(); });
+const sx = document.getElementById("lw-sx"), sy = document.getElementById("lw-sy");
+F.forEach((f, i) => { el("option", {value: i, text: f.name}, sx); el("option", {value: i, text: f.name}, sy); });
+sx.value = 0; sy.value = Math.min(1, K - 1);
+sx.addEventListener("change", update); sy.addEventListener("change", update);
+document.getElementById("lw-fingerprint").textContent = DATA.fingerprint;
+
+function drawTrace(svg, m, i) {
+  const W = 280, H = 200, L = 48, R = 8, T = 22, B = 34;
+  while (svg.firstChild) { svg.removeChild(svg.firstChild); }
+  const f = F[i], n = 41, xs = [], rows = [];
+  for (let k = 0; k < n; k++) {
+    const x = f.low + (f.high - f.low) * k / (n - 1);
+    const at = settings.slice(); at[i] = x;
+    xs.push(x); rows.push(predict(m, at));
+  }
+  const lo = Math.min(...rows.map(p => p.pi_low)), hi = Math.max(...rows.map(p => p.pi_high));
+  const pad = 0.05 * ((hi - lo) || 1);
+  const X = x => L + (W - L - R) * (x - f.low) / (f.high - f.low);
+  const Y = y => T + (H - T - B) * (1 - (y - (lo - pad)) / ((hi + pad) - (lo - pad)));
+  const band = (a, b) => xs.map((x, k) => X(x) + "," + Y(rows[k][a])).join(" ") + " " +
+      xs.map((x, k) => X(x) + "," + Y(rows[k][b])).reverse().join(" ");
+  el("polygon", {points: band("pi_low", "pi_high"), fill: "#E69F00", "fill-opacity": 0.18, stroke: "#E69F00",
+                 "stroke-dasharray": "4 3", class: "lw-pi-band"}, svg);
+  el("polygon", {points: band("ci_low", "ci_high"), fill: "#0072B2", "fill-opacity": 0.30, stroke: "#0072B2",
+                 class: "lw-ci-band"}, svg);
+  el("path", {d: "M" + xs.map((x, k) => X(x) + "," + Y(rows[k].mean)).join(" L"), fill: "none", stroke: "#0072B2",
+              "stroke-width": 2.5, class: "lw-mean-line"}, svg);
+  const cur = predict(m, settings), cx = X(settings[i]), cy = Y(cur.mean);
+  el("polygon", {points: [cx, cy - 7, cx + 6, cy, cx, cy + 7, cx - 6, cy].join(" "), fill: "#000", stroke: "#fff"}, svg);
+  el("line", {x1: L, y1: H - B, x2: W - R, y2: H - B, stroke: "#333"}, svg);
+  el("line", {x1: L, y1: T, x2: L, y2: H - B, stroke: "#333"}, svg);
+  el("text", {x: L, y: H - B + 14, "font-size": 11, text: fmt(f.low)}, svg);
+  el("text", {x: W - R, y: H - B + 14, "font-size": 11, "text-anchor": "end", text: fmt(f.high)}, svg);
+  el("text", {x: (L + W) / 2, y: H - 4, "font-size": 12, "text-anchor": "middle",
+              text: f.name + (f.units ? " (" + f.units + ")" : "")}, svg);
+  el("text", {x: L - 4, y: T + 4, "font-size": 11, "text-anchor": "end", text: fmt(hi + pad)}, svg);
+  el("text", {x: L - 4, y: H - B, "font-size": 11, "text-anchor": "end", text: fmt(lo - pad)}, svg);
+  el("text", {x: L, y: 14, "font-size": 12, "font-weight": "bold", text: m.name + (m.units ? " (" + m.units + ")" : "")}, svg);
+}
+
+// cividis-like ramp: dark blue to yellow, our own interpolation between a few stops.
+const RAMP = [[0, 32, 76], [65, 77, 108], [124, 123, 120], [188, 175, 111], [255, 234, 70]];
+function colour(t) {
+  const u = Math.max(0, Math.min(1, t)) * (RAMP.length - 1), k = Math.min(Math.floor(u), RAMP.length - 2), w = u - k;
+  return RAMP[k].map((c, j) => Math.round(c + (RAMP[k + 1][j] - c) * w));
+}
+
+function drawSurface(m) {
+  const canvas = document.getElementById("lw-canvas"), ctx = canvas.getContext("2d");
+  const i = parseInt(sx.value, 10), j = parseInt(sy.value, 10), N = 60;
+  const W = canvas.width, H = canvas.height, fi = F[i], fj = F[j];
+  const grid = [];
+  let lo = Infinity, hi = -Infinity;
+  for (let b = 0; b < N; b++) {
+    for (let a = 0; a < N; a++) {
+      const at = settings.slice();
+      at[i] = fi.low + (fi.high - fi.low) * (a + 0.5) / N;
+      if (j !== i) { at[j] = fj.low + (fj.high - fj.low) * (1 - (b + 0.5) / N); }
+      const v = predict(m, at).mean;
+      grid.push(v); lo = Math.min(lo, v); hi = Math.max(hi, v);
+    }
+  }
+  const img = ctx.createImageData(W, H);
+  for (let y = 0; y < H; y++) {
+    for (let x = 0; x < W; x++) {
+      const v = grid[Math.floor(y * N / H) * N + Math.floor(x * N / W)];
+      const c = colour((v - lo) / ((hi - lo) || 1)), o = 4 * (y * W + x);
+      img.data[o] = c[0]; img.data[o + 1] = c[1]; img.data[o + 2] = c[2]; img.data[o + 3] = 255;
+    }
+  }
+  ctx.putImageData(img, 0, 0);
+  ctx.strokeStyle = "#fff"; ctx.lineWidth = 1.5;
+  DATA.runs.forEach(run => {
+    ctx.beginPath();
+    ctx.arc(W * (run[i] - fi.low) / (fi.high - fi.low), H * (1 - (run[j] - fj.low) / (fj.high - fj.low)), 4, 0, 7);
+    ctx.stroke();
+  });
+  const px = W * (settings[i] - fi.low) / (fi.high - fi.low), py = H * (1 - (settings[j] - fj.low) / (fj.high - fj.low));
+  ctx.fillStyle = "#000"; ctx.strokeStyle = "#fff";
+  ctx.beginPath(); ctx.moveTo(px, py - 8); ctx.lineTo(px + 7, py); ctx.lineTo(px, py + 8); ctx.lineTo(px - 7, py);
+  ctx.closePath(); ctx.fill(); ctx.stroke();
+  document.getElementById("lw-surface-range").textContent =
+    m.name + ": expected mean from " + fmt(lo) + " (dark) to " + fmt(hi) + " (light)" + (m.units ? " " + m.units : "") +
+    "; across: " + fi.name + " " + fmt(fi.low) + " to " + fmt(fi.high) + ", up: " + fj.name + " " + fmt(fj.low) +
+    " to " + fmt(fj.high) + ".";
+}
+
+document.getElementById("lw-canvas").addEventListener("click", ev => {
+  const canvas = ev.currentTarget, box = canvas.getBoundingClientRect();
+  const i = parseInt(sx.value, 10), j = parseInt(sy.value, 10);
+  const u = (ev.clientX - box.left) / box.width, v = 1 - (ev.clientY - box.top) / box.height;
+  settings[i] = F[i].low + (F[i].high - F[i].low) * u;
+  if (j !== i) { settings[j] = F[j].low + (F[j].high - F[j].low) * v; }
+  update();
+});
+
+const traces = document.getElementById("lw-traces");
+const traceSvgs = F.map(() => el("svg", {width: 280, height: 200, class: "lw-trace"}, traces));
+
+function update() {
+  sliders.forEach((s, i) => {
+    if (parseFloat(s.input.value) !== settings[i]) { s.input.value = settings[i]; }
+    s.value.textContent = fmt(settings[i]);
+  });
+  const numbers = {settings: {}, responses: {}};
+  F.forEach((f, i) => { numbers.settings[f.name] = settings[i]; });
+  const table = document.getElementById("lw-pred");
+  table.innerHTML = "";
+  const head = el("tr", {}, table);
+  ["Response", "Expected mean", "95% confidence interval for the mean",
+   "95% prediction interval for a single new run"].forEach(t => el("th", {text: t}, head));
+  DATA.responses.forEach((m, r) => {
+    const p = predict(m, settings), u = m.units ? " " + m.units : "";
+    numbers.responses[m.name] = p;
+    const tr = el("tr", {class: "lw-pred-row", "data-response": m.name}, table);
+    el("td", {text: m.name}, tr);
+    el("td", {class: "lw-mean", text: fmt(p.mean) + u}, tr);
+    el("td", {class: "lw-ci", text: fmt(p.ci_low) + " to " + fmt(p.ci_high) + u}, tr);
+    el("td", {class: "lw-pi", text: fmt(p.pi_low) + " to " + fmt(p.pi_high) + u}, tr);
+  });
+  document.getElementById("lw-numbers").setAttribute("data-numbers", JSON.stringify(numbers));
+  const outside = F.filter((f, i) => settings[i] < f.low || settings[i] > f.high).map(f => f.name);
+  document.getElementById("lw-extrapolation").textContent = outside.length ?
+    "Outside the tested region (" + outside.join(", ") + "): the prediction is an extrapolation." : "";
+  const m = DATA.responses[shown];
+  traceSvgs.forEach((svg, i) => drawTrace(svg, m, i));
+  drawSurface(m);
+}
+update();

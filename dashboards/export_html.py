@@ -1,0 +1,130 @@
+"""The offline single-file export: one HTML page that still computes, with no network and no Python.
+
+The page embeds, per response, exactly what the kernel's cached predictor holds
+(:class:`kernel_core.prediction.Predictor`): the exponent matrix, the coded coefficients,
+the coding centre and half-range, ``R^-1`` from the pivoted QR, ``s`` and the t quantile of
+the residual degrees of freedom. A small hand-written script evaluates, at the slider
+settings, the same formulas as the kernel::
+
+    coded = (x - centre) / scale
+    row_j = prod_i coded_i ** E[j, i]
+    mean  = row . beta
+    h     = || row R^-1 ||^2
+    CI    = mean -/+ t * s * sqrt(h)         (confidence interval for the mean)
+    PI    = mean -/+ t * s * sqrt(1 + h)     (prediction interval for a single new run)
+
+and draws the per-factor traces with their bands and the surface slice in plain SVG and
+canvas. Nothing is fetched: no CDN, no fonts, no scripts from elsewhere. The numbers at
+the current settings are also written, at full precision, to ``data-numbers`` of the
+``#lw-numbers`` element, so a test can compare them with the kernel to 1e-9.
+"""
+
+from __future__ import annotations
+
+import html
+import json
+import re
+from pathlib import Path
+
+import numpy as np
+
+from .study_source import StudySource, open_study, shared_model
+from .summary import CAUTION, fingerprint, summary_html
+
+
+def _fits_of(shared) -> dict:
+    fits = getattr(shared, "fits", None)
+    if fits:
+        return {name: f for name, f in fits.items() if f is not None}
+    return {shared.response: shared.fit} if shared.fit is not None else {}
+
+
+def _finite_or_none(value):
+    """JSON has no NaN: a saturated fit's s and t travel as null and the page shows 'not available'."""
+    value = float(value)
+    return value if np.isfinite(value) else None
+
+
+def payload(source: StudySource) -> dict:
+    """Everything the page needs, as plain JSON-able numbers (the model per response, the runs, the text)."""
+    shared = shared_model(source, read_only=True)
+    fits = _fits_of(shared)
+    factor_names = [f.name for f in source.factors]
+    responses = []
+    for name in source.responses:
+        fit = fits.get(name)
+        if fit is None:
+            continue
+        predictor = fit.predictor
+        # The predictor's columns follow the fit's factor order; map them onto the page's factor order.
+        order = [list(fit.factor_names).index(n) if n in fit.factor_names else -1 for n in factor_names]
+        exponents = np.zeros((fit.p, len(factor_names)), dtype=int)
+        center = np.zeros(len(factor_names))
+        scale = np.ones(len(factor_names))
+        for page_col, fit_col in enumerate(order):
+            if fit_col >= 0:
+                exponents[:, page_col] = predictor.exponents[:, fit_col]
+                center[page_col] = predictor.center[fit_col]
+                scale[page_col] = predictor.scale[fit_col]
+        responses.append({
+            "name": name,
+            "units": source.units.get(name, ""),
+            "terms": list(fit.terms),
+            "exponents": exponents.tolist(),
+            "beta": [float(b) for b in predictor.beta],
+            "rinv": [[float(v) for v in row] for row in predictor.rinv],
+            "center": center.tolist(),
+            "scale": scale.tolist(),
+            "s": _finite_or_none(predictor.s),
+            "df": int(fit.df_resid),
+            "level": float(fit.level),
+            "t": _finite_or_none(fit.t_quantile(fit.level)),
+        })
+    runs = source.data[factor_names].to_numpy(dtype=float)
+    runs = runs[np.isfinite(runs).all(axis=1)]
+    models = {name: source.models.get(name, "") for name in source.responses}
+    return {
+        "title": source.title,
+        "invented": source.invented,
+        "summary": summary_html(source, fits),
+        "caution": CAUTION,
+        "fingerprint": fingerprint(shared.data, models, dict(getattr(shared, "exclusions", {}) or {})),
+        "factors": [
+            {"name": f.name, "units": f.units, "low": float(f.low), "high": float(f.high),
+             "center": float(f.center)}
+            for f in source.factors
+        ],
+        "responses": responses,
+        "runs": runs.tolist(),
+    }
+
+
+ASSETS = Path(__file__).parent / "assets"
+
+
+def render(source: StudySource) -> str:
+    """The whole page as one string: the data, the script and the styles inline."""
+    content = payload(source)
+    data = json.dumps(content, allow_nan=False, separators=(",", ":"))
+    data = data.replace("</", "<\\/")  # never close the script element early, whatever a name holds
+    parts = {
+        "__SCRIPT__": (ASSETS / "export_page.js").read_text(encoding="utf-8"),
+        "__DATA__": data,
+        "__SUMMARY__": content["summary"],
+        "__CAUTION__": CAUTION,
+        "__TITLE__": html.escape(source.title),
+    }
+    # One pass, so text inside the study (a name, a note) can never be taken for a placeholder.
+    template = (ASSETS / "export_page.html").read_text(encoding="utf-8")
+    return re.sub("|".join(parts), lambda match: parts[match.group(0)], template)
+
+
+def write_export(study, output) -> Path:
+    """Write the offline export of *study* (a study JSON path or ``"demo"``) to *output*."""
+    source = study if isinstance(study, StudySource) else open_study(study)
+    path = Path(output)
+    text = render(source)
+    tmp = path.with_name(path.name + ".tmp")
+    tmp.write_text(text, encoding="utf-8")
+    tmp.replace(path)
+    return path

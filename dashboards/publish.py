@@ -1,0 +1,106 @@
+"""Write a self-contained published dashboard folder.
+
+The folder holds exactly four files, nothing a viewer should not download and nothing the
+server would hand out (voila serves none of the folder's files; see :mod:`dashboards.hardening`):
+
+- ``present.ipynb`` — the read-only stakeholder notebook (one import and one call);
+- ``study.json`` — the study it shows;
+- ``voila.json`` — the hardened voila configuration;
+- ``README.md`` — how to run it.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+from pathlib import Path
+
+from kernel_core import LevelwiseError
+
+from . import NOTEBOOKS
+from .hardening import voila_config
+from .study_source import DEMO, STUDY_FILE
+
+#: Every file a published folder holds.
+PUBLISHED_FILES = ("present.ipynb", STUDY_FILE, "voila.json", "README.md")
+
+README = """# {title}: read-only dashboard
+
+This folder was written by `levelwise publish`. It holds:
+
+- `present.ipynb`: the read-only dashboard (the study summary, the effect sliders with their
+  traces and intervals, the surface slice, the predictions and the optimum);
+- `study.json`: the study it shows (the data file; the server never hands it out);
+- `voila.json`: the hardened server configuration;
+- this README.
+
+## Run it
+
+With levelwise installed (`pip install levelwise`):
+
+```sh
+levelwise view .              # http://127.0.0.1:8866/ on this machine only
+levelwise view . --port 9000 --ip 0.0.0.0 --token SECRET   # others on your network, with a token
+```
+
+`levelwise view` starts the standalone `voila` server on `present.ipynb` with: sources stripped,
+tracebacks hidden, no file of this folder served, kernels preheated, idle kernels shut down after
+{cull} s, one BLAS thread per kernel, and kernel websockets refused (HTTP 400) unless they speak the
+`v1.kernel.websocket.jupyter.org` protocol. Run it without levelwise's command from inside this
+folder with `OPENBLAS_NUM_THREADS=1 voila present.ipynb` (voila reads `voila.json` here).
+
+Each viewer gets their own kernel (about 100 MB). A page left idle for {cull} s loses its kernel:
+reload it.
+
+## Read this before you act on a number
+
+Predictions hold only inside the tested region. Confirm with validation runs before changing a
+process. Defer to your site's safety review, local codes and licensed practice.
+"""
+
+
+def publish(study, out) -> Path:
+    """Write the published folder for *study* (a study JSON path, or ``"demo"``) into *out*.
+
+    Parameters
+    ----------
+    study : str or pathlib.Path
+    out : str or pathlib.Path
+        A folder that does not exist yet or is empty.
+
+    Returns
+    -------
+    pathlib.Path
+        The folder written.
+
+    Raises
+    ------
+    LevelwiseError
+        *out* exists and is not an empty folder, or the study cannot be read.
+    """
+    from .study_source import open_study
+
+    out = Path(out)
+    if out.exists() and (not out.is_dir() or any(out.iterdir())):
+        raise LevelwiseError(
+            f"The output folder {str(out)!r} must not exist yet or be empty (a published folder holds only "
+            f"{', '.join(PUBLISHED_FILES)}). Choose a new folder."
+        )
+    source = open_study(study)  # read it first: a study that does not load is not published
+    out.mkdir(parents=True, exist_ok=True)
+    shutil.copyfile(NOTEBOOKS / "present.ipynb", out / "present.ipynb")
+    target = out / STUDY_FILE
+    if source.study is not None and source.path is not None:
+        shutil.copyfile(source.path, target)
+    elif source.study is not None and hasattr(source.study, "save"):
+        source.study.save(target)
+    elif str(study) == DEMO:
+        raise LevelwiseError(
+            "The demo study cannot be published by this installation: it has no study-file support "
+            "(kernel_core.study) to write it."
+        )
+    config = voila_config()
+    (out / "voila.json").write_text(json.dumps(config, indent=2) + "\n", encoding="utf-8")
+    cull = config["MappingKernelManager"]["cull_idle_timeout"]
+    (out / "README.md").write_text(README.format(title=source.title, cull=cull), encoding="utf-8")
+    return out

@@ -1,0 +1,550 @@
+"""Several responses: one fit per response, desirability optimisation and the path of steepest ascent.
+
+Desirability functions are those of Derringer & Suich (1980), *J. Quality Technology* 12(4)
+214-219, as printed in the NIST/SEMATECH e-Handbook, section 5.5.3.2.2. The overall
+desirability is the weighted geometric mean D = (prod d_i^r_i)^(1 / sum r_i), r_i the
+importance of response i (all 1: the plain geometric mean).
+"""
+
+from __future__ import annotations
+
+import ast
+import re
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+from scipy import optimize as sopt
+
+from ._errors import LevelwiseError, describe
+
+GOAL_KINDS = ("maximize", "minimize", "target")
+
+
+# ----- one model per response ----------------------------------------------------------------
+def fit_responses(data, models: dict, factors=None, **options) -> dict:
+    """Fit one model per response.
+
+    Parameters
+    ----------
+    data : pandas.DataFrame
+    models : dict
+        Response column -> model (formula or preset), e.g. ``{"Y1": "quadratic", "Y3": "linear"}``.
+    factors : list of Factor, optional
+        Shared coding ranges.
+    **options
+        Passed on to :func:`kernel_core.fit.fit` (``coding``, ``level``).
+
+    Returns
+    -------
+    dict
+        Response -> Fit, in the order of *models*.
+
+    Raises
+    ------
+    LevelwiseError
+        The message of any failed fit, prefixed with the response it belongs to.
+    """
+    from .fit import fit as fit_model
+
+    if not isinstance(models, dict) or not models:
+        raise LevelwiseError(
+            "The 'models' parameter must be a non-empty dict of response column -> model. "
+            f"Got {describe(models)} instead."
+        )
+    fits = {}
+    for response, model in models.items():
+        try:
+            fits[response] = fit_model(data, response, model, factors=factors, **options)
+        except LevelwiseError as exc:
+            raise LevelwiseError(f"Response {response!r}: {exc}") from None
+    return fits
+
+
+# ----- desirability ---------------------------------------------------------------------------
+@dataclass(frozen=True)
+class Goal:
+    """A desirability goal for one response (Derringer & Suich 1980).
+
+    - ``maximize``: d = 0 below ``low``, ((y - low)/(target - low))^s up to ``target``, 1 above.
+    - ``minimize``: d = 1 below ``target``, ((high - y)/(high - target))^t up to ``high``, 0 above.
+    - ``target``: ((y - low)/(target - low))^s on [low, target], ((high - y)/(high - target))^t on
+      [target, high], 0 outside.
+
+    Build goals with :func:`maximize`, :func:`minimize` and :func:`target`.
+    """
+
+    kind: str
+    low: float = float("nan")
+    target: float = float("nan")
+    high: float = float("nan")
+    s: float = 1.0
+    t: float = 1.0
+    importance: float = 1.0
+
+    def __post_init__(self):
+        if self.kind not in GOAL_KINDS:
+            raise LevelwiseError(f"A goal's 'kind' must be one of {GOAL_KINDS}. Got {describe(self.kind)} instead.")
+        for name in ("low", "target", "high", "s", "t", "importance"):
+            value = getattr(self, name)
+            if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+                raise LevelwiseError(f"A goal's {name!r} must be a number. Got {describe(value)} instead.")
+            object.__setattr__(self, name, float(value))
+        needed = {"maximize": ("low", "target"), "minimize": ("target", "high"),
+                  "target": ("low", "target", "high")}[self.kind]
+        for name in needed:
+            if not np.isfinite(getattr(self, name)):
+                raise LevelwiseError(f"A {self.kind!r} goal needs a finite {name!r}. Got {getattr(self, name)!r}.")
+        values = [getattr(self, name) for name in needed]
+        if any(a >= b for a, b in zip(values, values[1:])):
+            order = " < ".join(needed)
+            raise LevelwiseError(
+                f"A {self.kind!r} goal needs {order}. Got " + ", ".join(f"{n}={v:g}" for n, v in zip(needed, values))
+                + " instead."
+            )
+        for name in ("s", "t", "importance"):
+            if not getattr(self, name) > 0 or not np.isfinite(getattr(self, name)):
+                raise LevelwiseError(
+                    f"A goal's {name!r} weight must be a finite number > 0. Got {getattr(self, name)!r} instead."
+                )
+
+    def __call__(self, y):
+        """The individual desirability d(y), in [0, 1]."""
+        y = np.asarray(y, dtype=float)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            if self.kind == "maximize":
+                rising = np.clip((y - self.low) / (self.target - self.low), 0.0, 1.0) ** self.s
+                return np.where(y >= self.target, 1.0, rising)
+            if self.kind == "minimize":
+                falling = np.clip((self.high - y) / (self.high - self.target), 0.0, 1.0) ** self.t
+                return np.where(y <= self.target, 1.0, falling)
+            rising = np.clip((y - self.low) / (self.target - self.low), 0.0, 1.0) ** self.s
+            falling = np.clip((self.high - y) / (self.high - self.target), 0.0, 1.0) ** self.t
+            return np.where(y <= self.target, rising, falling)
+
+
+def maximize(low: float, target: float, s: float = 1.0, importance: float = 1.0) -> Goal:
+    """Goal: larger is better; unacceptable below *low*, fully satisfying from *target* on."""
+    return Goal("maximize", low=low, target=target, s=s, importance=importance)
+
+
+def minimize(target: float, high: float, t: float = 1.0, importance: float = 1.0) -> Goal:
+    """Goal: smaller is better; fully satisfying up to *target*, unacceptable above *high*."""
+    return Goal("minimize", target=target, high=high, t=t, importance=importance)
+
+
+def target(low: float, target: float, high: float, s: float = 1.0, t: float = 1.0,
+           importance: float = 1.0) -> Goal:
+    """Goal: hit *target*; unacceptable below *low* or above *high*."""
+    return Goal("target", low=low, target=target, high=high, s=s, t=t, importance=importance)
+
+
+def as_goal(value, response: str = "?") -> Goal:
+    """A :class:`Goal`, or a dict such as ``{"goal": "maximize", "low": 120, "target": 170}``."""
+    if isinstance(value, Goal):
+        return value
+    if isinstance(value, dict):
+        spec = dict(value)
+        kind = spec.pop("goal", spec.pop("kind", None))
+        allowed = {"low", "target", "high", "s", "t", "importance"}
+        unknown = sorted(set(spec) - allowed)
+        if unknown:
+            raise LevelwiseError(
+                f"The goal for {response!r} has unknown key(s) {unknown}; allowed: goal, {', '.join(sorted(allowed))}."
+            )
+        try:
+            return Goal(kind, **spec)
+        except LevelwiseError as exc:
+            raise LevelwiseError(f"The goal for {response!r}: {exc}") from None
+    raise LevelwiseError(
+        f"The goal for {response!r} must be a Goal or a dict with a 'goal' key. Got {describe(value)} instead."
+    )
+
+
+def overall_desirability(d, importance) -> np.ndarray:
+    """Weighted geometric mean (prod d_i^r_i)^(1/sum r_i) along the last axis; 0 when any d_i is 0."""
+    d = np.asarray(d, dtype=float)
+    r = np.asarray(importance, dtype=float)
+    with np.errstate(divide="ignore"):
+        logs = np.log(d)
+    return np.exp((logs * r).sum(axis=-1) / r.sum())
+
+
+# ----- linear constraints in natural units ----------------------------------------------------
+_NAME = re.compile(r"`([^`]*)`")
+
+
+def _linear_form(expr: str, names: list[str], text: str) -> tuple[np.ndarray, float]:
+    """Coefficients and constant of a linear expression over *names* (backticks allowed)."""
+    aliases = {}
+
+    def swap(match):
+        aliases[f"_q{len(aliases)}"] = match.group(1)
+        return f" _q{len(aliases) - 1} "
+
+    try:
+        tree = ast.parse(_NAME.sub(swap, expr).strip(), mode="eval").body
+    except SyntaxError:
+        raise LevelwiseError(f"The constraint {text!r} could not be read as a linear expression.") from None
+    k = len(names)
+
+    def visit(node):
+        if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)) and not isinstance(node.value, bool):
+            return np.zeros(k), float(node.value)
+        if isinstance(node, ast.Name):
+            name = aliases.get(node.id, node.id)
+            if name not in names:
+                raise LevelwiseError(
+                    f"The constraint {text!r} names {name!r}, which is not a factor. Known factors: {names}."
+                )
+            coef = np.zeros(k)
+            coef[names.index(name)] = 1.0
+            return coef, 0.0
+        if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
+            a, c = visit(node.operand)
+            return (-a, -c) if isinstance(node.op, ast.USub) else (a, c)
+        if isinstance(node, ast.BinOp) and isinstance(node.op, (ast.Add, ast.Sub)):
+            (a1, c1), (a2, c2) = visit(node.left), visit(node.right)
+            sign = 1.0 if isinstance(node.op, ast.Add) else -1.0
+            return a1 + sign * a2, c1 + sign * c2
+        if isinstance(node, ast.BinOp) and isinstance(node.op, (ast.Mult, ast.Div)):
+            (a1, c1), (a2, c2) = visit(node.left), visit(node.right)
+            if isinstance(node.op, ast.Div):
+                if a2.any() or c2 == 0:
+                    raise LevelwiseError(f"The constraint {text!r} divides by a factor or by zero; it must be linear.")
+                return a1 / c2, c1 / c2
+            if a1.any() and a2.any():
+                raise LevelwiseError(f"The constraint {text!r} multiplies factors together; it must be linear.")
+            return (a1 * c2 + a2 * c1), c1 * c2
+        raise LevelwiseError(
+            f"The constraint {text!r} must be linear in the factors, e.g. 'A + 2*B <= 1.5'. "
+            f"Got the part {ast.unparse(node)!r}."
+        )
+
+    return visit(tree)
+
+
+def parse_constraint(text: str, names) -> tuple[np.ndarray, float]:
+    """Parse ``"A + B <= 1.5"`` (or ``>=``) into (a, b) meaning a . x <= b in natural units.
+
+    Examples
+    --------
+    >>> a, b = parse_constraint("A + 2*B >= 1", ["A", "B"])
+    >>> a.tolist(), b
+    ([-1.0, -2.0], -1.0)
+    """
+    names = list(names)
+    if not isinstance(text, str):
+        raise LevelwiseError(f"A constraint must be a string such as 'A + B <= 1.5'. Got {describe(text)} instead.")
+    parts = re.split(r"(<=|>=)", text)
+    if len(parts) != 3:
+        raise LevelwiseError(
+            f"A constraint must have exactly one '<=' or '>=' , e.g. 'A + B <= 1.5'. Got {text!r} instead."
+        )
+    left, op, right = parts
+    a1, c1 = _linear_form(left, names, text)
+    a2, c2 = _linear_form(right, names, text)
+    a, b = a1 - a2, c2 - c1  # a . x <= b
+    if not a.any():
+        raise LevelwiseError(f"The constraint {text!r} names no factor.")
+    return (a, b) if op == "<=" else (-a, -b)
+
+
+# ----- optimisation ---------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class Optimum:
+    """The best settings found by :func:`optimize`.
+
+    Attributes
+    ----------
+    settings : dict
+        Factor -> natural setting.
+    predictions : pandas.DataFrame
+        Per response: ``mean``, ``ci_low``, ``ci_high``, ``pi_low``, ``pi_high``, ``extrapolated``.
+    desirability : pandas.Series
+        Individual d per response.
+    overall : float
+        The overall desirability D.
+    starts : pandas.DataFrame
+        The local optimum reached from each start (settings and D), best first.
+    """
+
+    settings: dict
+    predictions: pd.DataFrame
+    desirability: pd.Series
+    overall: float
+    starts: pd.DataFrame
+
+
+def _factor_union(fits: dict) -> tuple[list[str], dict]:
+    names, ranges = [], {}
+    for fit in fits.values():
+        for j, name in enumerate(fit.factor_names):
+            lo, hi = float(fit.coding.low[j]), float(fit.coding.high[j])
+            if name not in ranges:
+                names.append(name)
+                ranges[name] = (lo, hi)
+            else:
+                ranges[name] = (max(ranges[name][0], lo), min(ranges[name][1], hi))
+    return names, ranges
+
+
+def _mean_function(fit, names: list[str]):
+    """Fast mean prediction from a (m, k_all) array of natural settings."""
+    columns = [names.index(n) for n in fit.factor_names]
+    predictor = getattr(fit, "predictor", None)
+    if predictor is not None and hasattr(predictor, "rows"):
+        beta = np.asarray(fit.beta, dtype=float)
+        return lambda natural: predictor.rows(natural[:, columns]) @ beta
+    return lambda natural: fit.predict(pd.DataFrame(natural[:, columns], columns=list(fit.factor_names)))[
+        "mean"
+    ].to_numpy()
+
+
+def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None) -> Optimum:
+    """Maximise the overall desirability of several fitted responses.
+
+    A bounded multi-start search: many random points in the region are screened, the best
+    *starts* of them (plus the region's centre) are polished by SLSQP under the bounds and
+    linear constraints, and the best local optimum wins.
+
+    Parameters
+    ----------
+    fits : dict
+        Response -> Fit (e.g. from :func:`fit_responses`).
+    goals : dict
+        Response -> :class:`Goal` (or a dict like ``{"goal": "target", "low": 400, "target": 500,
+        "high": 600}``). Responses without a goal are predicted but do not count.
+    region : dict, optional
+        Factor -> (low, high) in natural units. By default each factor's range in the fits.
+    constraints : list of str, optional
+        Linear constraints in natural units, e.g. ``["A + B <= 1.5"]``.
+    starts : int
+        Number of local searches.
+    seed : int, optional
+        Seed of the random starting points, for repeatable results.
+
+    Raises
+    ------
+    LevelwiseError
+        A goal for a response without a fit, a bad region, or constraints no setting in the region meets.
+    """
+    if not isinstance(fits, dict) or not fits:
+        raise LevelwiseError(
+            f"The 'fits' parameter must be a non-empty dict of response -> Fit. Got {describe(fits)} instead."
+        )
+    if not isinstance(goals, dict) or not goals:
+        raise LevelwiseError(
+            f"The 'goals' parameter must be a non-empty dict of response -> goal. Got {describe(goals)} instead."
+        )
+    unknown = [r for r in goals if r not in fits]
+    if unknown:
+        raise LevelwiseError(f"The 'goals' name response(s) {unknown} that have no fit. Fitted: {list(fits)}.")
+    if isinstance(starts, bool) or not isinstance(starts, (int, np.integer)) or starts < 1:
+        raise LevelwiseError(f"The 'starts' parameter must be an integer >= 1. Got {describe(starts)} instead.")
+    goal_objects = {r: as_goal(g, r) for r, g in goals.items()}
+    names, ranges = _factor_union(fits)
+    if region is not None:
+        if not isinstance(region, dict):
+            raise LevelwiseError(
+                f"The 'region' parameter must be a dict of factor -> (low, high). Got {describe(region)} instead."
+            )
+        for name, bounds in region.items():
+            if name not in ranges:
+                raise LevelwiseError(f"The 'region' names {name!r}, which is not a factor. Known factors: {names}.")
+            try:
+                lo, hi = (float(v) for v in bounds)
+            except (TypeError, ValueError):
+                raise LevelwiseError(
+                    f"The region of {name!r} must be a pair (low, high) of numbers. Got {describe(bounds)} instead."
+                ) from None
+            if not (np.isfinite(lo) and np.isfinite(hi) and lo <= hi):
+                raise LevelwiseError(
+                    f"The region of {name!r} must be finite with low <= high. Got ({lo!r}, {hi!r}) instead."
+                )
+            ranges[name] = (lo, hi)
+    for name in names:
+        if ranges[name][0] > ranges[name][1]:
+            raise LevelwiseError(
+                f"The fits disagree on the range of {name!r}: their ranges do not overlap. Give a 'region'."
+            )
+    lower = np.array([ranges[n][0] for n in names])
+    upper = np.array([ranges[n][1] for n in names])
+    if isinstance(constraints, str):
+        constraints = [constraints]
+    parsed = [parse_constraint(c, names) for c in constraints or ()]
+    a_ub = np.array([a for a, _ in parsed]).reshape(len(parsed), len(names))
+    b_ub = np.array([b for _, b in parsed])
+    if parsed:
+        feasible = sopt.linprog(np.zeros(len(names)), A_ub=a_ub, b_ub=b_ub, bounds=list(zip(lower, upper)),
+                                method="highs")
+        if feasible.status != 0:
+            raise LevelwiseError(
+                f"The constraints {list(constraints)} leave no setting inside the region "
+                f"{ {n: ranges[n] for n in names} }: the search region is empty."
+            )
+    responses = list(goal_objects)
+    means = {r: _mean_function(fits[r], names) for r in responses}
+    importance = np.array([goal_objects[r].importance for r in responses])
+
+    def overall(natural: np.ndarray) -> np.ndarray:
+        d = np.column_stack([goal_objects[r](means[r](natural)) for r in responses])
+        return overall_desirability(d, importance)
+
+    # Work in [0, 1]^k so that step sizes are comparable across factors.
+    span = np.where(upper > lower, upper - lower, 1.0)
+    to_natural = lambda u: lower + np.atleast_2d(u) * span  # noqa: E731
+    rng = np.random.default_rng(seed)
+    screen = rng.random((max(200 * len(names), 50 * int(starts)), len(names)))
+    if parsed:
+        ok = (to_natural(screen) @ a_ub.T <= b_ub + 1e-12).all(axis=1)
+        screen = screen[ok]
+        if len(screen) < starts:  # a thin feasible region: start from its Chebyshev-like centre too
+            centre = sopt.linprog(np.zeros(len(names)), A_ub=a_ub * span, b_ub=b_ub - a_ub @ lower,
+                                  bounds=[(0, 1)] * len(names), method="highs").x
+            screen = np.vstack([screen, centre[None, :]])
+    scores = overall(to_natural(screen))
+    order = np.argsort(-scores, kind="stable")
+    candidates = screen[order[: int(starts)]]
+    middle = np.full((1, len(names)), 0.5)
+    if not parsed or (to_natural(middle) @ a_ub.T <= b_ub).all():
+        candidates = np.vstack([middle, candidates])
+    slsqp_constraints = [
+        {"type": "ineq", "fun": (lambda u, a=a, b=b: b - to_natural(u)[0] @ a)} for a, b in parsed
+    ]
+    results = []
+    for start in candidates:
+        found = sopt.minimize(lambda u: -overall(to_natural(u))[0], start, method="SLSQP",
+                              bounds=[(0.0, 1.0)] * len(names), constraints=slsqp_constraints,
+                              options={"maxiter": 200, "ftol": 1e-12})
+        u = np.clip(found.x, 0.0, 1.0)
+        if parsed and (to_natural(u) @ a_ub.T > b_ub + 1e-9).any():
+            u = start  # the local search left the feasible set: keep its feasible start
+        value = float(overall(to_natural(u))[0])
+        start_value = float(overall(to_natural(start))[0])
+        if start_value > value:
+            u, value = start, start_value
+        results.append((value, u))
+    results.sort(key=lambda item: -item[0])
+    best_value, best_u = results[0]
+    best = to_natural(best_u)[0]
+    settings = {n: float(v) for n, v in zip(names, best)}
+    rows = []
+    for response, fit in fits.items():
+        frame = pd.DataFrame({n: [settings[n]] for n in fit.factor_names})
+        rows.append(fit.predict(frame).iloc[0].rename(response))
+    predictions = pd.DataFrame(rows)
+    predictions.index.name = "response"
+    d = pd.Series({r: float(goal_objects[r](predictions.loc[r, "mean"])) for r in responses}, name="d")
+    table = pd.DataFrame([to_natural(u)[0] for _, u in results], columns=names)
+    table["D"] = [v for v, _ in results]
+    return Optimum(settings=settings, predictions=predictions, desirability=d, overall=float(best_value),
+                   starts=table)
+
+
+# ----- steepest ascent ------------------------------------------------------------------------
+@dataclass(frozen=True, eq=False)
+class SteepestPath:
+    """The path of steepest ascent (or descent) of a first-order model.
+
+    Attributes
+    ----------
+    direction : pandas.Series
+        Coded change per step for each factor (proportional to the coded first-order coefficients).
+    coded : pandas.DataFrame
+        The path in coded units, one row per step (step 0 is the centre).
+    path : pandas.DataFrame
+        The same points in natural units, with the predicted ``mean``, its intervals and
+        ``extrapolated``.
+    """
+
+    direction: pd.Series
+    coded: pd.DataFrame
+    path: pd.DataFrame
+
+
+def steepest_path(fit, step: float = 1.0, steps: int = 10, ascent: bool = True, key: str | None = None
+                  ) -> SteepestPath:
+    """Points along the path of steepest ascent (descent) from the centre of a first-order model.
+
+    The direction in coded units is the vector of first-order coefficients b (Box & Wilson
+    1951), or -b for descent. Each step moves the *key* factor (by default the one with the
+    largest |b|) by *step* coded units and every other factor by step * b_i / |b_key|.
+
+    Parameters
+    ----------
+    fit : Fit
+        A first-order model (intercept and main effects only) in coded units.
+    step : float
+        Coded change of the key factor per step.
+    steps : int
+        Number of steps after the centre.
+    ascent : bool
+        False for the path of steepest descent.
+    key : str, optional
+        The factor whose change per step is *step*.
+
+    Raises
+    ------
+    LevelwiseError
+        A model with terms other than main effects, or with all coefficients zero.
+    """
+    exponents = np.asarray(fit.spec.exponents)
+    order = exponents.sum(axis=1)
+    if (order > 1).any():
+        extra = [t for t, o in zip(fit.spec.terms, order) if o > 1]
+        raise LevelwiseError(
+            f"The path of steepest ascent needs a first-order model (main effects only); the model "
+            f"{fit.spec.formula!r} also has {extra}. Fit the main effects only."
+        )
+    if isinstance(step, bool) or not isinstance(step, (int, float, np.floating)) or not step > 0:
+        raise LevelwiseError(f"The 'step' parameter must be a number > 0. Got {describe(step)} instead.")
+    if isinstance(steps, bool) or not isinstance(steps, (int, np.integer)) or steps < 1:
+        raise LevelwiseError(f"The 'steps' parameter must be an integer >= 1. Got {describe(steps)} instead.")
+    names = list(fit.factor_names)
+    b = np.zeros(len(names))
+    for row, value in zip(exponents, np.asarray(fit.beta, dtype=float)):
+        if row.sum() == 1:
+            b[int(np.argmax(row))] = value
+    if not ascent:
+        b = -b
+    if key is None:
+        j = int(np.argmax(np.abs(b)))
+    elif key in names:
+        j = names.index(key)
+    else:
+        raise LevelwiseError(f"The 'key' parameter must be one of the factors {names}. Got {describe(key)} instead.")
+    if b[j] == 0:
+        raise LevelwiseError(
+            f"The first-order coefficient of the key factor {names[j]!r} is 0: there is no direction to follow."
+        )
+    direction = step * b / abs(b[j])
+    coded = np.arange(steps + 1)[:, None] * direction[None, :]
+    natural = coded * np.asarray(fit.coding.scale, float) + np.asarray(fit.coding.center, float)
+    coded_frame = pd.DataFrame(coded, columns=names)
+    coded_frame.index.name = "step"
+    frame = pd.DataFrame(natural, columns=names)
+    frame.index.name = "step"
+    predicted = fit.predict(frame)
+    predicted.index = frame.index
+    return SteepestPath(
+        direction=pd.Series(direction, index=names, name="coded step"),
+        coded=coded_frame,
+        path=pd.concat([frame, predicted], axis=1),
+    )
+
+
+__all__ = [
+    "Goal",
+    "Optimum",
+    "SteepestPath",
+    "as_goal",
+    "fit_responses",
+    "maximize",
+    "minimize",
+    "optimize",
+    "overall_desirability",
+    "parse_constraint",
+    "steepest_path",
+    "target",
+]

@@ -1,0 +1,112 @@
+"""The offline single-file export: self-contained, opens from file:// with every request aborted, and
+computes in the page the same numbers as the kernel (to 1e-9)."""
+
+from __future__ import annotations
+
+import json
+import re
+
+import numpy as np
+import pytest
+
+from dashboards.cli import main
+from dashboards.export_html import write_export
+from dashboards.study_source import open_study
+from kernel_core import fit
+
+SCREENSHOTS = __import__("pathlib").Path(__file__).parent.parent / "docs" / "screenshots"
+
+
+@pytest.fixture(scope="module")
+def export_file(tmp_path_factory):
+    path = tmp_path_factory.mktemp("export") / "study.html"
+    assert main(["export-html", "demo", "-o", str(path)]) == 0
+    return path
+
+
+def kernel_reference(source):
+    """Fits made directly with kernel_core (not through the page's payload), one per response."""
+    data = source.data.drop(index=[r for r in source.exclusions if r in source.data.index], errors="ignore")
+    return {name: fit(data, name, source.models[name], factors=source.factors) for name in source.responses}
+
+
+def test_export_is_one_self_contained_small_file(export_file):
+    text = export_file.read_text(encoding="utf-8")
+    assert export_file.stat().st_size < 2_000_000  # issue 6: under about 2 MB for a typical study
+    # Nothing is fetched from anywhere: no external script, style, font or image reference.
+    assert not re.search(r"""(src|href)\s*=\s*["']?(https?:)?//""", text)
+    assert "@import" not in text and "url(" not in text
+    assert "default-src 'none'" in text  # the page's own policy forbids any fetch
+    assert "Predictions hold only inside the tested region" in text
+
+
+def test_export_refuses_a_missing_study(tmp_path, capsys):
+    code = main(["export-html", str(tmp_path / "nope.json"), "-o", str(tmp_path / "x.html")])
+    assert code == 1
+    assert "does not exist" in capsys.readouterr().err
+    assert not (tmp_path / "x.html").exists()
+
+
+def test_export_payload_escapes_script_end(tmp_path):
+    source = open_study("demo")
+    import dataclasses
+
+    tricky = dataclasses.replace(source, title="</script><script>alert(1)</script>")
+    path = write_export(tricky, tmp_path / "t.html")
+    text = path.read_text(encoding="utf-8")
+    # Only the page's own two script elements end; the title's "</script>" is escaped everywhere.
+    assert text.count("</script") == 2
+    assert "&lt;/script&gt;&lt;script&gt;alert(1)" in text
+
+
+@pytest.mark.browser
+def test_export_computes_offline_like_the_kernel(export_file, browser):
+    context = browser.new_context(viewport={"width": 1300, "height": 1400})
+    page = context.new_page()
+    requests = []
+
+    def abort_everything(route):
+        requests.append(route.request.url)
+        if route.request.url.startswith("file://"):
+            route.continue_()
+        else:
+            route.abort()
+
+    page.route("**/*", abort_everything)
+    errors = []
+    page.on("pageerror", lambda exc: errors.append(str(exc)))
+    page.goto(export_file.as_uri())
+    numbers = page.locator("#lw-numbers")
+    before = json.loads(numbers.get_attribute("data-numbers"))
+    first = page.locator("input.lw-range").first
+    first.focus()
+    for _ in range(7):
+        first.press("ArrowRight")
+    second = page.locator("input.lw-range").nth(1)
+    second.focus()
+    second.press("ArrowLeft")
+    after = json.loads(numbers.get_attribute("data-numbers"))
+    assert after["settings"] != before["settings"]
+    source = open_study("demo")
+    reference = kernel_reference(source)
+    for name, model_fit in reference.items():
+        assert after["responses"][name]["mean"] != before["responses"][name]["mean"]
+        expected = model_fit.predict(after["settings"]).iloc[0]  # the kernel's numbers at the page's settings
+        for key in ("mean", "ci_low", "ci_high", "pi_low", "pi_high"):
+            assert after["responses"][name][key] == pytest.approx(expected[key], rel=1e-9, abs=1e-9)
+    # The text a reader sees is the same number, rounded.
+    row = page.locator(".lw-pred-row").first
+    shown = float(row.locator(".lw-mean").inner_text().split()[0])
+    assert shown == pytest.approx(after["responses"][source.responses[0]]["mean"], rel=1e-3)
+    # Clicking the surface slice moves the two slice factors' settings.
+    page.locator("#lw-canvas").click(position={"x": 40, "y": 40})
+    clicked = json.loads(numbers.get_attribute("data-numbers"))["settings"]
+    f0, f1 = source.factors[0], source.factors[1]
+    assert clicked[f0.name] < f0.center and clicked[f1.name] > f1.center
+    assert page.locator("svg.lw-trace path.lw-mean-line").count() == len(source.factors)
+    assert not errors
+    assert all(url.startswith("file://") for url in requests)
+    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+    page.screenshot(path=str(SCREENSHOTS / "offline-export.png"), full_page=True)
+    context.close()
+    assert np.isfinite(after["responses"][source.responses[0]]["pi_high"])

@@ -1,0 +1,268 @@
+"""The response-surface slice: two axis factors, the others held at the current settings.
+
+The predicted mean (or the CI half-width, the PI half-width, or the overall
+desirability) is drawn as a canvas ``bqplot.HeatMap`` with contour lines computed
+by ``contourpy`` and drawn as one ``Lines`` mark (NaN-separated segments). The
+design points are projected onto the slice; the current setting carries the same
+marker as in every view. Clicking the slice sets the two axis factors.
+
+Grids come from :func:`kernel_core.surface.slice_grid` (exact separable polynomial
+evaluation). Refreshes are coalesced: a burst of slider events redraws once, with
+the latest settings, and a change of the axis factors' own settings only moves the
+marker (the slice itself does not depend on them).
+"""
+
+from __future__ import annotations
+
+import html
+
+import bqplot as bq
+import contourpy
+import ipywidgets as ipw
+import numpy as np
+
+from kernel_core import LevelwiseError
+from kernel_core.surface import slice_grid
+
+from ._base import Coalescer, View, f32, set_if_changed
+from .shared_model import SharedModel
+from .style import (
+    CIVIDIS,
+    CONTOUR_COLOR,
+    CURRENT_MARKER,
+    DESIGN_POINT_COLOR,
+    EXCLUDED_COLOR,
+    SURFACE_QUANTITIES,
+)
+
+#: Clickable (invisible) targets per axis: a click sets the nearest of these grid points.
+CLICK_GRID = 41
+
+
+def contour_paths(x, y, z, levels):
+    """Contour lines of *z* on the grid *x*, *y* as NaN-separated x/y arrays, via contourpy.
+
+    Also returns, per level, a label position (the midpoint of its longest segment) or None.
+    """
+    generator = contourpy.contour_generator(x, y, z, line_type=contourpy.LineType.ChunkCombinedNan)
+    xs, ys, labels = [], [], []
+    for level in levels:
+        chunks = [c for c in generator.lines(level)[0] if c is not None and len(c)]
+        points = np.concatenate(chunks) if chunks else None
+        if points is None:
+            labels.append(None)
+            continue
+        xs.extend([points[:, 0], [np.nan]])
+        ys.extend([points[:, 1], [np.nan]])
+        finite = points[np.isfinite(points).all(axis=1)]
+        middle = finite[len(finite) // 2] if len(finite) else points[0]
+        labels.append((float(middle[0]), float(middle[1])) if np.all(np.isfinite(middle)) else None)
+    if not xs:
+        return np.array([], dtype=np.float32), np.array([], dtype=np.float32), labels
+    return f32(np.concatenate(xs)), f32(np.concatenate(ys)), labels
+
+
+class SurfaceSlice(View):
+    """A two-factor slice of the displayed response's fitted surface.
+
+    Parameters
+    ----------
+    shared : SharedModel
+    x, y : str, optional
+        The axis factors (default: the first two factors).
+    shape : (int, int), default (100, 100)
+        Grid points along x and y.
+    contours : int, default 8
+        Number of contour levels.
+    desirability : callable, optional
+        ``desirability(shared, x_values, y_values) -> (ny, nx) array`` of the overall
+        desirability on the grid; the optimiser view supplies it once goals are set.
+
+    Attributes
+    ----------
+    x_factor, y_factor : ipywidgets.Dropdown
+        Axis factors (``lw-slice-x``, ``lw-slice-y``); a display choice, allowed read-only.
+    quantity : ipywidgets.ToggleButtons
+        ``mean``, ``ci_half``, ``pi_half`` or ``desirability`` (``lw-slice-quantity``).
+    figure : bqplot.Figure
+        ``lw-slice``: ``heatmap`` (HeatMap), ``contour_lines`` (Lines), ``contour_labels`` (Label),
+        ``points`` (design points, Scatter), ``marker`` (current setting), ``targets`` (click grid).
+    widget : ipywidgets.VBox
+        The whole view (``lw-surface-slice``).
+    """
+
+    def __init__(self, shared: SharedModel, *, x=None, y=None, shape=(100, 100), contours=8, desirability=None):
+        super().__init__(shared)
+        self.shape = tuple(int(v) for v in shape)
+        self.n_contours = int(contours)
+        self.desirability = desirability
+        names = [f.name for f in shared.factors]
+        if len(names) < 2:
+            raise LevelwiseError(f"A surface slice needs at least two factors. Got {names}.")
+        x = names[0] if x is None else x
+        y = next(n for n in names if n != x) if y is None else y
+        self.x_factor = ipw.Dropdown(options=names, value=x, description="Across").add_class("lw-slice-x")
+        self.y_factor = ipw.Dropdown(options=names, value=y, description="Up").add_class("lw-slice-y")
+        self.quantity = ipw.ToggleButtons(
+            options=[
+                ("Expected mean", "mean"),
+                ("CI half-width", "ci_half"),
+                ("PI half-width", "pi_half"),
+                ("Overall desirability", "desirability"),
+            ],
+            value="mean",
+        ).add_class("lw-slice-quantity")
+        self.caption = ipw.HTML().add_class("lw-slice-caption")
+
+        self.sx, self.sy = bq.LinearScale(), bq.LinearScale()
+        self.sc = bq.ColorScale(colors=CIVIDIS)
+        self.heatmap = bq.HeatMap(
+            x=f32([0, 1]), y=f32([0, 1]), color=np.zeros((2, 2), np.float32),
+            scales={"x": self.sx, "y": self.sy, "color": self.sc},
+        )
+        self.contour_lines = bq.Lines(
+            scales={"x": self.sx, "y": self.sy}, colors=[CONTOUR_COLOR], stroke_width=1, opacities=[0.85]
+        )
+        self.contour_labels = bq.Label(
+            scales={"x": self.sx, "y": self.sy}, colors=[CONTOUR_COLOR], default_size=11, align="middle"
+        )
+        self.points = bq.Scatter(
+            scales={"x": self.sx, "y": self.sy}, colors=[DESIGN_POINT_COLOR], stroke="white",
+            default_size=40, marker="circle",
+        )
+        self.excluded_points = bq.Scatter(
+            scales={"x": self.sx, "y": self.sy}, colors=[EXCLUDED_COLOR], fill=False, default_size=50,
+            marker="square",
+        )
+        self.targets = bq.Scatter(
+            scales={"x": self.sx, "y": self.sy}, default_opacities=[0.0], default_size=120, marker="square",
+            colors=["#000000"],
+        )
+        self.targets.on_element_click(self.safely(self._on_click))
+        self.marker = bq.Scatter(scales={"x": self.sx, "y": self.sy}, **CURRENT_MARKER)
+        self.color_axis = bq.ColorAxis(scale=self.sc, side="right", label="")
+        self.x_axis = bq.Axis(scale=self.sx, label="", num_ticks=5)
+        self.y_axis = bq.Axis(scale=self.sy, side="left", label="", num_ticks=5)
+        self.figure = bq.Figure(
+            marks=[self.heatmap, self.contour_lines, self.contour_labels, self.points, self.excluded_points,
+                   self.targets, self.marker],
+            axes=[self.x_axis, self.y_axis, self.color_axis],
+            layout=ipw.Layout(width="520px", height="440px"),
+            fig_margin={"top": 20, "bottom": 50, "left": 60, "right": 90},
+            animation_duration=0,
+        ).add_class("lw-slice")
+        self.widget = ipw.VBox(
+            [ipw.HBox([self.x_factor, self.y_factor]), self.quantity, self.figure, self.caption, self.status]
+        ).add_class("lw-surface-slice")
+
+        self._key = None
+        self.redraws = 0  # how many slices were computed (coalescing is visible here)
+        self._coalescer = Coalescer(self.safely(self._redraw))
+        for control in (self.x_factor, self.y_factor, self.quantity):
+            control.observe(self.safely(self._on_choice), names="value")
+        self.watch(self._on_shared, names=["fits", "fit", "settings", "response", "exclusions", "error", "goals"])
+        self._redraw()
+
+    # ----- events -------------------------------------------------------------------------------
+    def _on_choice(self, change):
+        if self.x_factor.value == self.y_factor.value:
+            other = next(f.name for f in self.shared.factors if f.name != self.x_factor.value)
+            owner = change["owner"]
+            (self.y_factor if owner is self.x_factor else self.x_factor).value = other
+            return
+        self._coalescer.request()
+
+    def _on_shared(self, change=None):
+        self._coalescer.request()
+
+    def _on_click(self, mark, content):
+        index = int(content["data"]["index"])
+        xs, ys = self._target_axes()
+        i, j = divmod(index, CLICK_GRID)
+        if not 0 <= index < CLICK_GRID * CLICK_GRID:
+            raise LevelwiseError(f"A click on the slice must hit one of {CLICK_GRID ** 2} targets. Got index {index}.")
+        try:
+            self.shared.set_settings(**{self.x_factor.value: float(xs[j]), self.y_factor.value: float(ys[i])})
+        except LevelwiseError as exc:
+            self.shared.error = str(exc)
+
+    def flush(self) -> None:
+        """Draw now whatever refresh is pending."""
+        self._coalescer.flush()
+
+    def _target_axes(self):
+        fx, fy = self.shared.factor(self.x_factor.value), self.shared.factor(self.y_factor.value)
+        return np.linspace(fx.low, fx.high, CLICK_GRID), np.linspace(fy.low, fy.high, CLICK_GRID)
+
+    # ----- drawing ------------------------------------------------------------------------------
+    def _quantity_grid(self, current, x, y):
+        if self.quantity.value == "desirability":
+            if self.desirability is None:
+                raise LevelwiseError(
+                    "The overall desirability needs goals: set them in the optimiser view first."
+                )
+            grid = slice_grid(current, x, y, self.shared.settings, shape=self.shape)
+            return grid, self.desirability(self.shared, grid["x"], grid["y"])
+        grid = slice_grid(current, x, y, self.shared.settings, shape=self.shape)
+        return grid, grid[self.quantity.value]
+
+    def _redraw(self):
+        shared, current = self.shared, self.shared.fit
+        x, y = self.x_factor.value, self.y_factor.value
+        self.show_shared_error()
+        fx, fy = shared.factor(x), shared.factor(y)
+        with self.marker.hold_sync():
+            set_if_changed(self.marker, x=f32([shared.settings[x]]), y=f32([shared.settings[y]]))
+        if current is None:
+            self.caption.value = "No fit to draw yet: record some responses first."
+            return
+        others = tuple((n, v) for n, v in sorted(shared.settings.items()) if n not in (x, y))
+        key = (id(current), self.quantity.value, x, y, others, id(shared.exclusions), id(shared.goals))
+        if key == self._key:
+            return
+        self.redraws += 1
+        grid, z = self._quantity_grid(current, x, y)
+        z = np.asarray(z, dtype=float)
+        finite = z[np.isfinite(z)]
+        levels = []
+        if finite.size and np.ptp(finite) > 0:
+            levels = list(np.linspace(finite.min(), finite.max(), self.n_contours + 2)[1:-1])
+        cx, cy, labels = contour_paths(grid["x"], grid["y"], z, levels)
+        run_x, run_y, used = self._design_points(x, y)
+        tx, ty = self._target_axes()
+        gx, gy = np.meshgrid(tx, ty)
+        with self.heatmap.hold_sync():
+            set_if_changed(self.heatmap, x=f32(grid["x"]), y=f32(grid["y"]), color=f32(z))
+        with self.contour_lines.hold_sync():
+            set_if_changed(self.contour_lines, x=cx, y=cy)
+        shown = [(pos, lev) for pos, lev in zip(labels, levels) if pos is not None]
+        with self.contour_labels.hold_sync():
+            set_if_changed(
+                self.contour_labels,
+                x=f32([p[0] for p, _ in shown]), y=f32([p[1] for p, _ in shown]),
+            )
+            self.contour_labels.text = [f"{lev:.3g}" for _, lev in shown]
+        with self.points.hold_sync(), self.excluded_points.hold_sync():
+            set_if_changed(self.points, x=f32(run_x[used]), y=f32(run_y[used]))
+            set_if_changed(self.excluded_points, x=f32(run_x[~used]), y=f32(run_y[~used]))
+        with self.targets.hold_sync():
+            set_if_changed(self.targets, x=f32(gx.ravel()), y=f32(gy.ravel()))
+        with self.sx.hold_sync(), self.sy.hold_sync():
+            self.sx.min, self.sx.max = fx.low, fx.high
+            self.sy.min, self.sy.max = fy.low, fy.high
+        self.x_axis.label, self.y_axis.label = fx.label, fy.label
+        units = shared.response_units if self.quantity.value != "desirability" else ""
+        self.color_axis.label = f"{shared.response} ({units})" if units else shared.response
+        held = ", ".join(f"{html.escape(n)} = {v:.4g}" for n, v in others) or "no other factors"
+        self.caption.value = (
+            f"<b>{html.escape(shared.response)}</b>: {SURFACE_QUANTITIES[self.quantity.value]}; "
+            f"other factors held at {held}. Dots: runs of the design (hollow grey squares: excluded). "
+            "Click the slice to move the two axis factors there."
+        )
+        self._key = key
+
+    def _design_points(self, x, y):
+        data = self.shared.data
+        run_x = data[x].to_numpy(dtype=float) if x in data else np.array([])
+        run_y = data[y].to_numpy(dtype=float) if y in data else np.array([])
+        return run_x, run_y, ~self.shared.excluded_mask()
