@@ -169,6 +169,12 @@ class Fit:
     exclusions: tuple = ()
     setting_deviations: pd.DataFrame | None = field(default=None, repr=False)
     _reserve: dict = field(default_factory=dict, repr=False)
+    _order: np.ndarray = field(default=None, repr=False)
+
+    @cached_property
+    def _ordinals(self) -> np.ndarray:
+        """Position of each run in the fit as first built (keeps run order through exclusions)."""
+        return np.arange(self.n) if self._order is None else self._order
 
     # ----- basic statistics ------------------------------------------------------------------
     @property
@@ -444,7 +450,7 @@ class Fit:
         rinv = self.rinv + a * np.outer(cx, v)
         keep = np.arange(self.n) != i
         reserve = dict(self._reserve)
-        reserve[run] = (x, self.y[i], self.settings[i], i)
+        reserve[run] = (x, self.y[i], self.settings[i], int(self._ordinals[i]))
         return dataclasses.replace(
             self,
             runs=self.runs[keep],
@@ -455,6 +461,7 @@ class Fit:
             settings=self.settings[keep],
             exclusions=self.exclusions + ((run, reason.strip()),),
             _reserve=reserve,
+            _order=self._ordinals[keep],
         )
 
     def include(self, run) -> Fit:
@@ -464,7 +471,7 @@ class Fit:
                 f"The 'run' parameter of include must be an excluded run {list(self._reserve)}. "
                 f"Got {describe(run)} instead."
             )
-        x, y_run, setting, position = self._reserve[run]
+        x, y_run, setting, ordinal = self._reserve[run]
         v = self.rinv.T @ x
         h = float(v @ v)
         e = y_run - x @ self.beta
@@ -472,7 +479,7 @@ class Fit:
         beta = self.beta + cx * e / (1.0 + h)
         a = (1.0 / np.sqrt(1.0 + h) - 1.0) / h if h > 0 else -0.5
         rinv = self.rinv + a * np.outer(cx, v)
-        i = min(position, self.n)
+        i = int(np.searchsorted(self._ordinals, ordinal))
         reserve = {k: val for k, val in self._reserve.items() if k != run}
         return dataclasses.replace(
             self,
@@ -484,6 +491,7 @@ class Fit:
             settings=np.insert(self.settings, i, setting, axis=0),
             exclusions=tuple(item for item in self.exclusions if item[0] != run),
             _reserve=reserve,
+            _order=np.insert(self._ordinals, i, ordinal),
         )
 
     # ----- prediction ------------------------------------------------------------------------
