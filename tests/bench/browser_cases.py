@@ -80,16 +80,15 @@ def children(pid: int) -> list[int]:
     return found
 
 
+def cmdline(pid: int) -> bytes:
+    try:
+        return Path(f"/proc/{pid}/cmdline").read_bytes().replace(b"\0", b" ")
+    except OSError:
+        return b""
+
+
 def kernel_pids(server_pid: int) -> list[int]:
-    pids = []
-    for pid in children(server_pid):
-        try:
-            cmdline = Path(f"/proc/{pid}/cmdline").read_bytes().replace(b"\0", b" ")
-        except OSError:
-            continue
-        if b"ipykernel" in cmdline:
-            pids.append(pid)
-    return pids
+    return [pid for pid in children(server_pid) if b"ipykernel" in cmdline(pid)]
 
 
 def rss_mb(pid: int) -> float | None:
@@ -156,10 +155,11 @@ class Server:
         self.url = f"http://127.0.0.1:{port}/"
 
     def voila_pid(self) -> int:
-        """The voila process: ours, or its only python child when ours is a launcher."""
-        if kernel_pids(self.proc.pid) or not children(self.proc.pid):
-            return self.proc.pid
-        return children(self.proc.pid)[0]
+        """The voila process: ours, or our child when ours is the ``levelwise`` launcher."""
+        for pid in [self.proc.pid, *children(self.proc.pid)]:
+            if b"voila" in cmdline(pid):
+                return pid
+        return self.proc.pid
 
     def stop(self) -> None:
         try:
@@ -181,42 +181,38 @@ def loopback_only(route):
         route.abort()
 
 
-def voila_workbench(port: int, preheat: bool) -> list[str]:
+def cli(*args) -> list[str]:
+    return [sys.executable, "-m", "dashboards.cli", *map(str, args)]
+
+
+def workbench(port: int, preheat: bool) -> tuple[list[str], str]:
+    """``levelwise serve`` (the workbench on the demo study); with preheating, voila run directly."""
+    if not preheat:
+        return cli("serve", "--port", port), "workbench via levelwise serve (kernel not preheated)"
     from dashboards import NOTEBOOKS
     from dashboards.cli import voila_command
 
-    command = voila_command(NOTEBOOKS / "explore.ipynb", port)
-    if preheat:
-        command += ["--preheat_kernel=True", "--pool_size=1"]
-    return command
+    try:
+        command = voila_command(NOTEBOOKS / "explore.ipynb", port, preheat=True, pool_size=1)
+    except TypeError:  # an older voila_command without the preheat options
+        command = voila_command(NOTEBOOKS / "explore.ipynb", port) + ["--preheat_kernel=True", "--pool_size=1"]
+    return command, "workbench (dashboards/explore.ipynb) on voila with a preheated pool of 1"
 
 
 def published_dashboard(workdir: Path, port: int) -> tuple[list[str] | None, str]:
-    """``levelwise publish`` + ``levelwise view`` when the dash branch has landed them."""
+    """``levelwise publish demo`` + ``levelwise view`` when the CLI has them, else (None, why not)."""
     try:
-        from dashboards import cli
+        from dashboards import cli as lw_cli
     except ImportError:
         return None, "dashboards.cli missing"
-    if not all(hasattr(cli, name) for name in ("publish", "view")):
+    if not all(hasattr(lw_cli, name) for name in ("publish", "view")):
         return None, "levelwise publish/view not available"
-    study = None
-    try:
-        from kernel_core import demo
-
-        maker = getattr(demo, "demo_study", None) or getattr(demo, "write_demo_study", None)
-        if maker is not None:
-            study = maker(workdir / "demo-study.json") if maker.__code__.co_argcount else maker()
-    except Exception as exc:  # noqa: BLE001 - fall back to the workbench, say why
-        return None, f"demo study file could not be made ({exc})"
-    if study is None:
-        return None, "no demo study file to publish"
     out = workdir / "published"
-    done = subprocess.run([sys.executable, "-m", "dashboards.cli", "publish", str(study), "--out", str(out)],
-                          capture_output=True, text=True, timeout=120)
+    done = subprocess.run(cli("publish", "demo", "--out", out), capture_output=True, text=True, timeout=180)
     if done.returncode != 0:
-        return None, f"levelwise publish failed: {done.stdout[-300:]} {done.stderr[-300:]}"
-    return [sys.executable, "-m", "dashboards.cli", "view", str(out), "--port", str(port)], \
-        "published dashboard (levelwise publish + levelwise view)"
+        return None, f"levelwise publish demo failed: {(done.stdout + done.stderr)[-300:]}"
+    return cli("view", out, "--port", port), \
+        "published read-only dashboard of the demo study (levelwise publish demo + levelwise view, pool of 1)"
 
 
 def launch(pw):
@@ -292,7 +288,8 @@ def case_browser(quick: bool, workdir: Path) -> list[dict]:
 
 def _slider_and_memory(browser, steps: int, workdir: Path) -> list[dict]:
     port = free_port()
-    server = Server(voila_workbench(port, preheat=False), port, workdir / "voila-slider.log")
+    command, where = workbench(port, preheat=False)
+    server = Server(command, port, workdir / "voila-slider.log")
     try:
         context, page = new_page(browser)
         try:
@@ -307,7 +304,6 @@ def _slider_and_memory(browser, steps: int, workdir: Path) -> list[dict]:
             context.close()
     finally:
         server.stop()
-    where = "workbench (dashboards/explore.ipynb) on voila, 127.0.0.1, kernel not preheated"
     note = f"{len(latencies)} of {steps} steps changed the text ({missed} without a change); {where}; " \
            "timed in the page: keydown to MutationObserver on the readout"
     status = "ok" if latencies else "error: no step changed the prediction text"
@@ -340,9 +336,8 @@ def _first_view(browser, views: int, workdir: Path) -> list[dict]:
     command, what = published_dashboard(workdir, port)
     if command is None:
         fallback = what
-        command = voila_workbench(port, preheat=True)
-        what = f"workbench (dashboards/explore.ipynb) on voila with --preheat_kernel=True --pool_size=1 " \
-               f"({fallback})"
+        command, what = workbench(port, preheat=True)
+        what += f" ({fallback})"
     server = Server(command, port, workdir / "voila-first-view.log")
     times = []
     try:

@@ -345,7 +345,8 @@ def case_exclusion(cfg: Config) -> list[dict]:
     return [make_row("exclude_one", name, kind="speedup", goal=">= 10x", goal_value=10.0, ours=a.median,
                      reference=b.median, ours_repeats=len(a.times), reference_repeats=len(b.times),
                      note="ours: Fit.exclude(run, reason) then beta and s; reference: OLS(...).fit() on the other "
-                          f"31 runs then params and s (no coefficient table on either side); {design_note}" + (" (time budget cut repeats)" if cut else ""),
+                          f"31 runs then params and s (no coefficient table on either side); {design_note}"
+                          + (" (time budget cut repeats)" if cut else ""),
                      max_abs_diff=float(diff))]
 
 
