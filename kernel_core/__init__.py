@@ -59,3 +59,21 @@ __all__ = [
     "steepest_path",
     "target",
 ]
+
+# Design generation (issue 3).
+from .evaluation import DesignEvaluation, evaluate  # noqa: E402
+from .fractional import fold_over, fractional_factorial  # noqa: E402
+from .optimal import optimal_design  # noqa: E402
+from .rsm_designs import box_behnken, central_composite  # noqa: E402
+from .screening import plackett_burman  # noqa: E402
+
+__all__ += [
+    "DesignEvaluation",
+    "box_behnken",
+    "central_composite",
+    "evaluate",
+    "fold_over",
+    "fractional_factorial",
+    "optimal_design",
+    "plackett_burman",
+]

@@ -1,13 +1,15 @@
-"""Designed experiments: the :class:`Design` object and two-level full factorials."""
+"""Designed experiments: the :class:`Design` object, two-level full factorials and blocking."""
 
 from __future__ import annotations
 
 import itertools
+import math
 
 import numpy as np
 import pandas as pd
 
 from ._errors import LevelwiseError, describe
+from ._twolevel import TwoLevelStructure, popcount, span, structure_from_runs
 from .factors import Factor, as_factors
 
 #: Columns that come before the factor columns in :attr:`Design.table`.
@@ -22,8 +24,36 @@ def _check_count(value, parameter: str, minimum: int) -> int:
     return int(value)
 
 
+def _check_seed(seed):
+    if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
+        raise LevelwiseError(f"The 'seed' parameter must be None or an integer >= 0. Got {describe(seed)} instead.")
+    return seed
+
+
 class Design:
     """A planned set of runs.
+
+    Parameters
+    ----------
+    factors : list of Factor or int
+    coded : array (n, k)
+        Coded settings, one row per run in standard order.
+    point_type : sequence of str
+        ``"factorial"``, ``"center"``, ``"axial"``, ``"edge"``, ``"optimal"``, ...
+    block : sequence of int, optional
+        Block number per run (default all 1).
+    randomize : bool, default True
+        Put the runs in a random order within each block, blocks kept in sequence.
+    seed : int, optional
+        Seed of the randomisation (reproducible).
+    std_order : sequence of int, optional
+        Standard-order number per row (default 1..n).
+    kind : str, optional
+        What built the design, e.g. ``"fractional factorial"``.
+    structure : TwoLevelStructure, optional
+        Defining relation and block confounding of a regular two-level design.
+    metadata : dict, optional
+        Extra facts (axial distance, efficiencies, ...), shown in :attr:`metadata`.
 
     Attributes
     ----------
@@ -37,13 +67,32 @@ class Design:
         The same runs in coded units (-1 at low, +1 at high), one column per factor.
     """
 
-    def __init__(self, factors, coded: np.ndarray, point_type, block=None, *, randomize=True, seed=None):
+    def __init__(
+        self,
+        factors,
+        coded: np.ndarray,
+        point_type,
+        block=None,
+        *,
+        randomize=True,
+        seed=None,
+        std_order=None,
+        kind: str = "custom",
+        structure: TwoLevelStructure | None = None,
+        metadata: dict | None = None,
+    ):
         self.factors = as_factors(factors)
+        seed = _check_seed(seed)
         coded = np.asarray(coded, dtype=float)
         n = coded.shape[0]
+        if coded.ndim != 2 or coded.shape[1] != len(self.factors):
+            raise LevelwiseError(
+                f"The 'coded' array must have one column per factor ({len(self.factors)}). "
+                f"Got shape {coded.shape} instead."
+            )
         point_type = np.asarray(point_type, dtype=object)
         block = np.ones(n, dtype=int) if block is None else np.asarray(block, dtype=int)
-        std_order = np.arange(1, n + 1)
+        std_order = np.arange(1, n + 1) if std_order is None else np.asarray(std_order, dtype=int)
         order = np.arange(n)
         if randomize:
             rng = np.random.default_rng(seed)
@@ -60,31 +109,240 @@ class Design:
             }
         )
         self.coded = pd.DataFrame(coded[order], columns=[f.name for f in self.factors])
+        self.kind = kind
+        self.seed = seed
+        self.randomized = bool(randomize)
+        self._structure = structure
+        self._metadata = dict(metadata or {})
 
     @property
     def factor_names(self) -> list[str]:
         return [f.name for f in self.factors]
 
+    @property
+    def metadata(self) -> dict:
+        """Facts about the design (kind, seed, axial distance, efficiencies, ...); a fresh copy each time."""
+        out = {"kind": self.kind, "runs": len(self), "blocks": int(self.table["block"].nunique()),
+               "seed": self.seed, "randomized": self.randomized}
+        if self._structure is not None:
+            out["generators"] = list(self.generators)
+            out["resolution"] = self.resolution
+            out["word_length_pattern"] = list(self.word_length_pattern)
+            out["block_confounded"] = self.block_confounded
+        out.update(self._metadata)
+        return out
+
+    # -- regular two-level structure ---------------------------------------------------------------
+    @property
+    def is_regular(self) -> bool:
+        """True for a regular two-level design (full factorial or fraction) with a defining relation."""
+        return self._structure is not None
+
+    def _need_structure(self, what):
+        if self._structure is None:
+            raise LevelwiseError(
+                f"'{what}' is defined for regular two-level designs only; this is a {self.kind} design. "
+                "Use kernel_core.evaluate(design, model) for its alias matrix."
+            )
+        return self._structure
+
+    @property
+    def generators(self):
+        """Generators such as ``["E=ABCD"]`` (empty for a full factorial; None for other designs)."""
+        return None if self._structure is None else list(self._structure.generators)
+
+    @property
+    def defining_relation(self):
+        """Words w of the defining relation I = w1 = w2 = ..., shortest first (None for non-regular designs)."""
+        return None if self._structure is None else self._structure.defining_relation()
+
+    @property
+    def resolution(self):
+        """Resolution (length of the shortest word); None for a full factorial or a non-regular design."""
+        return None if self._structure is None else self._structure.resolution()
+
+    @property
+    def word_length_pattern(self):
+        """(A3, A4, ..., Ak): number of words of each length (None for non-regular designs)."""
+        return None if self._structure is None else self._structure.word_length_pattern()
+
+    @property
+    def block_confounded(self) -> list:
+        """Effects confounded with blocks (lowest order of each alias class); empty without blocks."""
+        return [] if self._structure is None else self._structure.block_confounded()
+
+    def aliases(self, max_order: int = 3) -> dict:
+        """Each effect up to *max_order* mapped to the effects (up to *max_order*) it is aliased with.
+
+        A leading ``-`` marks a negative alias; ``"Block"`` marks confounding with blocks.
+
+        Examples
+        --------
+        >>> from kernel_core import fractional_factorial
+        >>> d = fractional_factorial(3, generators=["C=AB"], randomize=False)
+        >>> d.aliases(max_order=2)["A"]
+        ['BC']
+        """
+        _check_count(max_order, "max_order", 1)
+        return self._need_structure("aliases").aliases(max_order)
+
+    def to_run_sheet(self, responses=("y",)) -> pd.DataFrame:
+        """Run sheet in run order: planned settings, blank achieved-setting and response columns.
+
+        See :func:`kernel_core.runsheet.run_sheet`.
+        """
+        from .runsheet import run_sheet
+
+        return run_sheet(self, responses=responses)
+
     def __len__(self) -> int:
         return len(self.table)
 
     def __repr__(self) -> str:
-        return f"<Design: {len(self)} runs, factors {self.factor_names}>"
+        extra = f", resolution {self.resolution}" if self.resolution else ""
+        return f"<Design ({self.kind}): {len(self)} runs, factors {self.factor_names}{extra}>"
 
 
-def full_factorial(factors, center_points=0, replicates=1, randomize=True, seed=None) -> Design:
+# -- two-level helpers shared by the factorial builders ----------------------------------------------------
+def basic_runs(m: int) -> np.ndarray:
+    """The 2^m full factorial in standard (Yates) order, first factor alternating fastest."""
+    return np.array([row[::-1] for row in itertools.product((-1.0, 1.0), repeat=m)]).reshape(1 << m, m)
+
+
+def column_of(basic: np.ndarray, mask: int) -> np.ndarray:
+    """Product of the basic columns named by the bits of *mask*."""
+    out = np.ones(basic.shape[0])
+    for j in range(basic.shape[1]):
+        if mask >> j & 1:
+            out = out * basic[:, j]
+    return out
+
+
+def choose_block_generators(m: int, k: int, factor_columns, words, b: int, names) -> list[int]:
+    """Block generators (masks over the m basic factors) for 2^b blocks.
+
+    Each nonzero column c of the basic factorial carries an alias class of effects; the block contrasts
+    (the span of the b generators) are chosen so that the lowest-order effect confounded with blocks is of
+    the highest order available, then so that as few effects of that order as possible are confounded.
+    *factor_columns* gives, for each factor j, its column as a mask over the basic factors.
+    """
+    if b == 0:
+        return []
+    if b >= m + 1 or (1 << b) > (1 << m) // 1:
+        raise LevelwiseError(
+            f"The 'blocks' parameter ({1 << b}) must be smaller than the number of distinct runs ({1 << m})."
+        )
+    # Column (mask over basic factors) of every effect (mask over the k factors).
+    effects = np.arange(1 << k, dtype=np.int64) if k <= 16 else None
+    if effects is None:
+        raise LevelwiseError(f"Blocking is supported for up to 16 factors. Got {k} factors.")
+    col = np.zeros(1 << k, dtype=np.int64)
+    for j in range(k):
+        has = (effects >> j) & 1 == 1
+        col[has] ^= int(factor_columns[j])
+    order = popcount(effects)
+    ncols = 1 << m
+    min_order = np.full(ncols, 10**6, dtype=np.int64)
+    np.minimum.at(min_order, col[1:], order[1:])
+    at_min = np.zeros(ncols, dtype=np.int64)
+    np.add.at(at_min, col[1:], (order[1:] == min_order[col[1:]]).astype(np.int64))
+    candidates = [c for c in range(1, ncols) if min_order[c] >= 2]
+    candidates.sort(key=lambda c: (-min_order[c], at_min[c], c))
+    limit = len(candidates)
+    while limit > b and math.comb(limit, b) > 6000:
+        limit -= 1
+    best, best_score = None, None
+    for combo in itertools.combinations(candidates[:limit], b):
+        elements = span(combo)[1:]
+        if len(np.unique(elements)) != len(elements) or (elements == 0).any():
+            continue
+        orders = np.sort(min_order[elements])
+        score = (tuple(orders), -int(at_min[elements][min_order[elements] == orders[0]].sum()))
+        if best_score is None or score > best_score:
+            best, best_score = list(combo), score
+    if best is None or best_score[0][0] < 2:
+        raise LevelwiseError(
+            f"The 'blocks' parameter ({1 << b}) is too large for this design: a main effect would be confounded "
+            f"with blocks. Use fewer blocks or more runs."
+        )
+    return best
+
+
+def check_blocks(blocks) -> int:
+    """Number of block generators b for ``blocks`` = 2^b."""
+    blocks = _check_count(blocks, "blocks", 1)
+    if blocks & (blocks - 1):
+        raise LevelwiseError(f"The 'blocks' parameter must be a power of two (1, 2, 4, 8, ...). Got {blocks} instead.")
+    return blocks.bit_length() - 1
+
+
+def build_two_level(factors, m, gen_masks, gen_signs, *, center_points, replicates, blocks, randomize, seed,
+                    kind, generators=None, metadata=None) -> Design:
+    """Assemble a regular two-level design from m basic factors and generator masks (one per added factor)."""
+    k = len(factors)
+    for f in factors:
+        if f.is_categorical and len(f.levels) != 2:
+            raise LevelwiseError(
+                f"Factor {f.name!r} has {len(f.levels)} levels; two-level designs take continuous factors "
+                "or categorical factors with exactly 2 levels."
+            )
+    if center_points and any(f.is_categorical for f in factors):
+        raise LevelwiseError(
+            "The 'center_points' parameter must be 0 when a factor is categorical (a categorical factor has no "
+            f"centre). Got center_points={center_points}."
+        )
+    b = check_blocks(blocks)
+    basic = basic_runs(m)
+    columns = [basic[:, j] for j in range(m)]
+    columns += [sign * column_of(basic, mask) for mask, sign in zip(gen_masks, gen_signs)]
+    corners = np.column_stack(columns)
+    factor_columns = [1 << j for j in range(m)] + list(gen_masks)
+    words = []
+    block_gens = choose_block_generators(m, k, factor_columns, words, b, [f.name for f in factors]) if b else []
+    block_cols = np.column_stack([column_of(basic, g) for g in block_gens]) if b else np.zeros((len(basic), 0))
+    block_no = 1 + ((block_cols < 0).astype(int) * (1 << np.arange(b))).sum(axis=1) if b else np.ones(len(basic), int)
+    structure = structure_from_runs(corners, [f.name for f in factors], block_cols if b else None, generators)
+    n_corner = len(basic)
+    coded = np.vstack([corners] * replicates)
+    blk = np.concatenate([block_no] * replicates)
+    std = np.arange(1, n_corner * replicates + 1)
+    ptype = ["factorial"] * len(coded)
+    if center_points:
+        per_block = np.resize(np.arange(1, (1 << b) + 1), center_points)
+        coded = np.vstack([coded, np.zeros((center_points, k))])
+        blk = np.concatenate([blk, np.sort(per_block)])
+        std = np.concatenate([std, np.arange(len(std) + 1, len(std) + center_points + 1)])
+        ptype += ["center"] * center_points
+    order = np.argsort(blk, kind="stable")
+    meta = dict(metadata or {})
+    if b:
+        meta["block_generators"] = [
+            "".join(f.name for j, f in enumerate(factors[:m]) if g >> j & 1)
+            if all(len(f.name) == 1 for f in factors) else
+            ":".join(f.name for j, f in enumerate(factors[:m]) if g >> j & 1)
+            for g in block_gens
+        ]
+    return Design(factors, coded[order], np.asarray(ptype, dtype=object)[order], blk[order], randomize=randomize,
+                  seed=seed, std_order=std[order], kind=kind, structure=structure, metadata=meta)
+
+
+def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=True, seed=None) -> Design:
     """Two-level full factorial design.
 
     Parameters
     ----------
     factors : list of Factor or int
-        The factors; an integer k gives factors A, B, C, ... coded -1 to +1.
+        The factors; an integer k gives factors A, B, C, ... coded -1 to +1. Categorical factors must have
+        exactly 2 levels.
     center_points : int, default 0
-        Runs at the centre of the region, added once (not per replicate).
+        Runs at the centre of the region, added once (not per replicate), spread evenly over the blocks.
     replicates : int, default 1
         Number of times the 2^k corner runs are repeated.
+    blocks : int, default 1
+        Number of blocks, a power of two. The block contrasts are confounded with the highest-order
+        interactions available; :attr:`Design.block_confounded` names them.
     randomize : bool, default True
-        Put the runs in random order (seeded by *seed*).
+        Put the runs in random order within each block (seeded by *seed*).
     seed : int, optional
         Seed for a reproducible run order.
 
@@ -92,11 +350,19 @@ def full_factorial(factors, center_points=0, replicates=1, randomize=True, seed=
     -------
     Design
 
+    Raises
+    ------
+    LevelwiseError
+        For more than 15 factors, a block count that is not a power of two, or so many blocks that a main
+        effect would be confounded with blocks.
+
     Examples
     --------
     >>> d = full_factorial(3, center_points=2, randomize=False)
     >>> len(d), list(d.table.point_type[-2:])
     (10, ['center', 'center'])
+    >>> full_factorial(3, blocks=2, randomize=False).block_confounded
+    ['ABC']
     """
     factors = as_factors(factors)
     center_points = _check_count(center_points, "center_points", 0)
@@ -104,11 +370,8 @@ def full_factorial(factors, center_points=0, replicates=1, randomize=True, seed=
     k = len(factors)
     if k > 15:
         raise LevelwiseError(f"A full factorial is limited to 15 factors here. Got {k} factors instead.")
-    # Standard (Yates) order: the first factor alternates fastest.
-    corners = np.array([row[::-1] for row in itertools.product((-1.0, 1.0), repeat=k)])
-    coded = np.vstack([corners] * replicates + [np.zeros((center_points, k))])
-    point_type = ["factorial"] * (len(corners) * replicates) + ["center"] * center_points
-    return Design(factors, coded, point_type, randomize=randomize, seed=seed)
+    return build_two_level(factors, k, [], [], center_points=center_points, replicates=replicates, blocks=blocks,
+                           randomize=randomize, seed=seed, kind="full factorial", generators=())
 
 
 __all__ = ["Design", "Factor", "full_factorial", "META_COLUMNS"]

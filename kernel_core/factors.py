@@ -14,16 +14,19 @@ _LETTERS = "ABCDEFGHJKLMNOPQRSTUVWXYZ"  # I is skipped: it reads as 1 and as the
 
 @dataclass(frozen=True)
 class Factor:
-    """A continuous experimental factor.
+    """An experimental factor: continuous (``low``/``high``) or categorical (``levels``).
 
     Parameters
     ----------
     name : str
         Non-empty name, unique within a study. Any Unicode text is allowed.
     low, high : float
-        The natural-unit settings coded as -1 and +1. ``low`` must be below ``high``.
+        For a continuous factor: the natural-unit settings coded as -1 and +1. ``low`` must be below ``high``.
     units : str, optional
         Units shown beside the name, e.g. ``"°C"``.
+    levels : sequence, optional
+        For a categorical factor (give it instead of ``low``/``high``): at least 2 distinct levels, e.g.
+        ``["steel", "brass"]``. In two-level designs the first level is coded -1 and the second +1.
 
     Examples
     --------
@@ -32,17 +35,52 @@ class Factor:
     0.5
     >>> oven.to_natural(-1)
     160.0
+    >>> metal = Factor("Metal", levels=["steel", "brass"])
+    >>> metal.is_categorical, metal.levels, metal.to_natural(1)
+    (True, ('steel', 'brass'), 'brass')
     """
 
     name: str
-    low: float
-    high: float
+    low: float | None = None
+    high: float | None = None
     units: str = ""
+    levels: tuple = ()
 
     def __post_init__(self):
         if not isinstance(self.name, str) or not self.name.strip():
             raise LevelwiseError(
                 f"The 'name' of a Factor must be a non-empty string. Got {describe(self.name)} instead."
+            )
+        if not isinstance(self.units, str):
+            raise LevelwiseError(
+                f"The 'units' of factor {self.name!r} must be a string. Got {describe(self.units)} instead."
+            )
+        levels = self.levels
+        if levels is None:
+            levels = ()
+        if isinstance(levels, (str, bytes)) or not hasattr(levels, "__iter__"):
+            raise LevelwiseError(
+                f"The 'levels' of factor {self.name!r} must be a list of at least 2 distinct levels. "
+                f"Got {describe(levels)} instead."
+            )
+        levels = tuple(levels)
+        object.__setattr__(self, "levels", levels)
+        if levels:
+            if self.low is not None or self.high is not None:
+                raise LevelwiseError(
+                    f"Factor {self.name!r}: give either 'low' and 'high' (continuous) or 'levels' (categorical), "
+                    f"not both. Got low={self.low!r}, high={self.high!r}, levels={describe(levels)}."
+                )
+            if len(levels) < 2 or len(set(levels)) != len(levels):
+                raise LevelwiseError(
+                    f"The 'levels' of factor {self.name!r} must be at least 2 distinct levels. "
+                    f"Got {describe(levels)} instead."
+                )
+            return
+        if self.low is None or self.high is None:
+            raise LevelwiseError(
+                f"Factor {self.name!r} needs 'low' and 'high' (continuous) or 'levels' (categorical). "
+                f"Got low={self.low!r}, high={self.high!r}, no levels."
             )
         for field in ("low", "high"):
             value = getattr(self, field)
@@ -61,19 +99,29 @@ class Factor:
                 f"Factor {self.name!r}: 'low' must be less than 'high'. "
                 f"Got low={self.low!r}, high={self.high!r} instead."
             )
-        if not isinstance(self.units, str):
+
+    @property
+    def is_categorical(self) -> bool:
+        """True for a factor defined by ``levels``."""
+        return bool(self.levels)
+
+    def _require_continuous(self, what: str):
+        if self.levels:
             raise LevelwiseError(
-                f"The 'units' of factor {self.name!r} must be a string. Got {describe(self.units)} instead."
+                f"Factor {self.name!r} is categorical (levels {list(self.levels)!r}); {what} needs a "
+                "continuous factor with 'low' and 'high'."
             )
 
     @property
     def center(self) -> float:
-        """Natural value at coded 0."""
+        """Natural value at coded 0 (continuous factors only)."""
+        self._require_continuous("a centre value")
         return (self.low + self.high) / 2.0
 
     @property
     def half_range(self) -> float:
-        """Natural distance from the centre to coded +1."""
+        """Natural distance from the centre to coded +1 (continuous factors only)."""
+        self._require_continuous("a half range")
         return (self.high - self.low) / 2.0
 
     @property
@@ -82,12 +130,40 @@ class Factor:
         return f"{self.name} ({self.units})" if self.units else self.name
 
     def to_coded(self, natural):
-        """Convert natural units to coded units (-1 at ``low``, +1 at ``high``)."""
+        """Convert natural units to coded units (-1 at ``low``, +1 at ``high``).
+
+        For a two-level categorical factor the first level is -1 and the second +1; a categorical
+        factor with more levels has no single coded column and raises :class:`LevelwiseError`.
+        """
+        if self.levels:
+            if len(self.levels) != 2:
+                self._require_continuous("a single coded column")
+            lookup = {self.levels[0]: -1.0, self.levels[1]: 1.0}
+            values = np.atleast_1d(np.asarray(natural, dtype=object))
+            try:
+                out = np.array([lookup[v] for v in values], dtype=float)
+            except (KeyError, TypeError):
+                bad = next(v for v in values if v not in lookup)
+                raise LevelwiseError(
+                    f"Factor {self.name!r} has levels {list(self.levels)!r}. Got {describe(bad)} instead."
+                ) from None
+            return float(out[0]) if np.ndim(natural) == 0 else out
         result = (np.asarray(natural, dtype=float) - self.center) / self.half_range
         return float(result) if np.ndim(result) == 0 else result
 
     def to_natural(self, coded):
-        """Convert coded units back to natural units."""
+        """Convert coded units back to natural units (level labels for a categorical factor)."""
+        if self.levels:
+            if len(self.levels) != 2:
+                self._require_continuous("a single coded column")
+            values = np.atleast_1d(np.asarray(coded, dtype=float))
+            if not np.all(np.isin(values, (-1.0, 1.0))):
+                raise LevelwiseError(
+                    f"Categorical factor {self.name!r} can only be set to coded -1 or +1 "
+                    f"(levels {list(self.levels)!r}). Got {describe(values.tolist())}."
+                )
+            out = np.array([self.levels[0] if v < 0 else self.levels[1] for v in values], dtype=object)
+            return out[0] if np.ndim(coded) == 0 else out
         result = np.asarray(coded, dtype=float) * self.half_range + self.center
         return float(result) if np.ndim(result) == 0 else result
 
