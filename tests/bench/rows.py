@@ -23,6 +23,8 @@ def make_row(case_id: str, case: str, *, kind: str, goal: str, goal_value: float
         raise ValueError(f"kind must be one of {KINDS}, got {kind!r}")
     ratio = None
     met = None
+    if status.startswith("partial") and kind == "speedup":
+        reference = None  # a partial row has our figure only
     if status == "ok":
         if kind == "speedup" and _finite(ours) and _finite(reference) and ours > 0:
             ratio = reference / ours

@@ -113,6 +113,10 @@ def table(rows: list[dict]) -> str:
     lines = ["| case | ours (median) | reference (median) | ratio | goal | met |",
              "|---|---:|---:|---:|---|---|"]
     for row in rows:
+        if row["status"].startswith("partial"):
+            lines.append(f"| {row['case']} | {fmt_value(row['ours'], row['unit'])} | {row['status']} | - "
+                         f"| {row['goal']} | - |")
+            continue
         if row["status"] != "ok":
             lines.append(f"| {row['case']} | {row['status']} | | | {row['goal']} | - |")
             continue
