@@ -207,12 +207,18 @@ def published_dashboard(workdir: Path, port: int) -> tuple[list[str] | None, str
         return None, "dashboards.cli missing"
     if not all(hasattr(lw_cli, name) for name in ("publish", "view")):
         return None, "levelwise publish/view not available"
-    out = workdir / "published"
-    done = subprocess.run(cli("publish", "demo", "--out", out), capture_output=True, text=True, timeout=180)
-    if done.returncode != 0:
-        return None, f"levelwise publish demo failed: {(done.stdout + done.stderr)[-300:]}"
-    return cli("view", out, "--port", port), \
-        "published read-only dashboard of the demo study (levelwise publish demo + levelwise view, pool of 1)"
+    failures = []
+    example = Path(__file__).resolve().parents[1] / "data" / "study_example.json"
+    for i, study in enumerate(["demo", example] if example.is_file() else ["demo"]):
+        out = workdir / f"published-{i}"
+        done = subprocess.run(cli("publish", study, "--out", out), capture_output=True, text=True, timeout=180)
+        if done.returncode == 0:
+            name = "the demo study" if study == "demo" else f"tests/data/{example.name}"
+            return cli("view", out, "--port", port), \
+                f"published read-only dashboard of {name} (levelwise publish + levelwise view, pool of 1)"
+        said = (done.stdout + done.stderr).strip()[-200:]
+        failures.append(f"levelwise publish {Path(str(study)).name} failed: {said}")
+    return None, "; ".join(failures)
 
 
 def launch(pw):
