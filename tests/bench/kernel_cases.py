@@ -292,7 +292,7 @@ def case_diagnostics(cfg: Config) -> list[dict]:
         note = "invented uniform runs in the coded cube"
         if n == 10_000 and not cfg.quick:
             ref_repeats = 3
-            note += "; reference run 3 times only (about a minute per call), ours every repeat"
+            note += "; reference run 3 times only (a minute or more per call), ours every repeat"
         agreement = _diagnostics_agreement(getter(_fresh(fitted)), result.get_influence().summary_frame()) \
             if n == 1_000 else None
         a, b, cut = interleaved(lambda g=getter, f=fitted: g(_fresh(f)),
@@ -300,7 +300,7 @@ def case_diagnostics(cfg: Config) -> list[dict]:
                                 repeats=cfg.repeats, reference_repeats=ref_repeats, min_sample=cfg.min_sample,
                                 budget=cfg.budget)
         if skip_reference:
-            note += "; quick mode: statsmodels reference skipped at n = 10,000 (about a minute per call)"
+            note += "; quick mode: statsmodels reference skipped at n = 10,000 (a minute or more per call)"
         if cut:
             note += " (time budget cut repeats)"
         rows.append(make_row(case_id, name, kind="speedup", goal=goal, goal_value=goal_value, ours=a.median,
