@@ -4,7 +4,7 @@ Pure numpy / pandas / scipy / statsmodels. Nothing here imports Jupyter,
 widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
-from ._errors import LevelwiseError, LevelwiseWarning
+from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
 from .boxcox import BoxCoxResult, box_cox
 from .design import Design, full_factorial
 from .effects import LenthResult, effects, half_normal, lenth
@@ -24,6 +24,7 @@ from .optimize import (
     target,
 )
 from .reduce import Reduction, reduce, refit
+from .study import Study
 from .surface import slice_grid, slice_polynomials
 
 __all__ = [
@@ -65,10 +66,12 @@ from .evaluation import DesignEvaluation, evaluate  # noqa: E402
 from .fractional import fold_over, fractional_factorial  # noqa: E402
 from .optimal import optimal_design  # noqa: E402
 from .rsm_designs import box_behnken, central_composite  # noqa: E402
+from .runsheet import FilledRunSheet, read_run_sheet, run_sheet, write_run_sheet  # noqa: E402
 from .screening import plackett_burman  # noqa: E402
 
 __all__ += [
     "DesignEvaluation",
+    "FilledRunSheet",
     "box_behnken",
     "central_composite",
     "evaluate",
@@ -76,4 +79,11 @@ __all__ += [
     "fractional_factorial",
     "optimal_design",
     "plackett_burman",
+    "read_run_sheet",
+    "run_sheet",
+    "write_run_sheet",
+    "Study",
+    "StudyFileError",
+    "OutsideEditError",
+    "ImportDataError",
 ]

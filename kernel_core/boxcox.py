@@ -1,7 +1,7 @@
 """Box-Cox power transformation of the response: lambda by profile likelihood, with a 95 % interval.
 
 For the model's columns X and a positive response y, the profile log-likelihood of the
-power lambda (Box & Cox 1964, J. R. Stat. Soc. B 26, 211-252) is, up to a constant,
+power lambda (Box & Cox 1964, J. R. Stat. Soc. B 26, 211-252; citation from memory) is, up to a constant,
 
     llf(lambda) = (lambda - 1) sum(log y) - n/2 log(SSE(lambda) / n),
 
@@ -16,7 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
-from scipy import optimize, stats
+from scipy import stats
 
 from ._errors import LevelwiseError
 
@@ -87,6 +87,8 @@ def box_cox(fit, level: float = 0.95, bounds=(-5.0, 5.0)) -> BoxCoxResult:
         A response value that is zero or negative (the transform needs positive values),
         or a fit without residual degrees of freedom.
     """
+    from scipy import optimize  # imported here: slow to import, needed only here
+
     y = np.asarray(fit.y, dtype=float)
     if not 0 < level < 1:
         raise LevelwiseError(f"The 'level' parameter must be in the open interval (0, 1). Got {level!r} instead.")

@@ -218,12 +218,15 @@ def column_of(basic: np.ndarray, mask: int) -> np.ndarray:
     return out
 
 
-def choose_block_generators(m: int, k: int, factor_columns, words, b: int, names) -> list[int]:
+def choose_block_generators(m: int, k: int, factor_columns, b: int) -> list[int]:
     """Block generators (masks over the m basic factors) for 2^b blocks.
 
     Each nonzero column c of the basic factorial carries an alias class of effects; the block contrasts
     (the span of the b generators) are chosen so that the lowest-order effect confounded with blocks is of
     the highest order available, then so that as few effects of that order as possible are confounded.
+    Every set is tried when there are at most 6000; otherwise the best set of the heaviest columns is improved
+    by a bounded exchange search (one generator at a time, all columns at once), which is not guaranteed to be
+    optimal.
     *factor_columns* gives, for each factor j, its column as a mask over the basic factors.
     """
     if b == 0:
@@ -251,15 +254,53 @@ def choose_block_generators(m: int, k: int, factor_columns, words, b: int, names
     limit = len(candidates)
     while limit > b and math.comb(limit, b) > 6000:
         limit -= 1
+
+    def score(gens):
+        elements = span(gens)[1:]
+        if len(np.unique(elements)) != len(elements) or (elements == 0).any():
+            return None
+        orders = np.sort(min_order[elements])
+        return (tuple(int(o) for o in orders), -int(at_min[elements][min_order[elements] == orders[0]].sum()))
+
     best, best_score = None, None
     for combo in itertools.combinations(candidates[:limit], b):
-        elements = span(combo)[1:]
-        if len(np.unique(elements)) != len(elements) or (elements == 0).any():
-            continue
-        orders = np.sort(min_order[elements])
-        score = (tuple(orders), -int(at_min[elements][min_order[elements] == orders[0]].sum()))
-        if best_score is None or score > best_score:
-            best, best_score = list(combo), score
+        sc = score(combo)
+        if sc is not None and (best_score is None or sc > best_score):
+            best, best_score = list(combo), sc
+    if limit < len(candidates) and best is not None:
+        # Too many sets to try them all: improve by exchanging one generator at a time for the best of every
+        # column (vectorised), from the best of the heavy columns and from a few seeded random starts.
+        everything = np.arange(1, ncols, dtype=np.int64)
+        rng = np.random.default_rng(0)
+        starts = [best] + [list(rng.choice(everything, size=b, replace=False)) for _ in range(4)]
+        for gens in starts:
+            gens = [int(g) for g in gens]
+            current = score(gens)
+            if current is None:
+                continue
+            for _ in range(20 * b):
+                improved = False
+                for i in range(b):
+                    rest = gens[:i] + gens[i + 1 :]
+                    rest_span = span(rest)
+                    ok = ~np.isin(everything, rest_span)
+                    cands = everything[ok]
+                    new_elems = cands[:, None] ^ rest_span[None, :]
+                    fixed = np.broadcast_to(min_order[rest_span[1:]], (len(cands), len(rest_span) - 1))
+                    orders = np.sort(np.concatenate([min_order[new_elems], fixed], axis=1), axis=1)
+                    low = orders[:, :1]
+                    all_elems = np.concatenate([new_elems, np.broadcast_to(rest_span[1:], fixed.shape)], axis=1)
+                    ties = ((min_order[all_elems] == low) * at_min[all_elems]).sum(axis=1)
+                    keys = [ties] + [-orders[:, c] for c in range(orders.shape[1] - 1, -1, -1)]
+                    top = int(np.lexsort(keys)[0])
+                    trial = rest[:i] + [int(cands[top])] + rest[i:]
+                    sc = score(trial)
+                    if sc is not None and sc > current:
+                        gens, current, improved = trial, sc, True
+                if not improved:
+                    break
+            if current > best_score:
+                best, best_score = gens, current
     if best is None or best_score[0][0] < 2:
         raise LevelwiseError(
             f"The 'blocks' parameter ({1 << b}) is too large for this design: a main effect would be confounded "
@@ -297,8 +338,7 @@ def build_two_level(factors, m, gen_masks, gen_signs, *, center_points, replicat
     columns += [sign * column_of(basic, mask) for mask, sign in zip(gen_masks, gen_signs)]
     corners = np.column_stack(columns)
     factor_columns = [1 << j for j in range(m)] + list(gen_masks)
-    words = []
-    block_gens = choose_block_generators(m, k, factor_columns, words, b, [f.name for f in factors]) if b else []
+    block_gens = choose_block_generators(m, k, factor_columns, b) if b else []
     block_cols = np.column_stack([column_of(basic, g) for g in block_gens]) if b else np.zeros((len(basic), 0))
     block_no = 1 + ((block_cols < 0).astype(int) * (1 << np.arange(b))).sum(axis=1) if b else np.ones(len(basic), int)
     structure = structure_from_runs(corners, [f.name for f in factors], block_cols if b else None, generators)

@@ -13,12 +13,21 @@ import pandas as pd
 from scipy import stats
 
 from ._errors import LevelwiseError, describe
+from ._fitview import categorical_names
 
 
 def _two_level_rows(fit) -> np.ndarray:
-    """Indices of model terms that are products of distinct factors (no powers), intercept excluded."""
+    """Indices of model columns that are products of distinct factors (no powers), intercept excluded.
+
+    A term spread over several columns (a categorical factor with more than two levels) has no
+    single effect and is left out.
+    """
     exponents = np.asarray(fit.spec.exponents)
-    return np.flatnonzero(exponents.any(axis=1) & (exponents.max(axis=1, initial=0) <= 1))
+    keep = exponents.any(axis=1) & (exponents.max(axis=1, initial=0) <= 1)
+    for _, columns in getattr(fit, "groups", None) or ():
+        if len(columns) > 1:
+            keep[list(columns)] = False
+    return np.flatnonzero(keep)
 
 
 def effects(fit) -> pd.Series:
@@ -46,6 +55,15 @@ def effects(fit) -> pd.Series:
     >>> effects(fit(d, "y", "A + B")).round(3).to_dict()
     {'A': 2.25, 'B': 1.25}
     """
+    coding = fit.coding
+    continuous = [name not in categorical_names(fit) for name in coding.names]
+    low, high = np.asarray(coding.low, float)[continuous], np.asarray(coding.high, float)[continuous]
+    center, scale = np.asarray(coding.center, float)[continuous], np.asarray(coding.scale, float)[continuous]
+    if not np.allclose([center, scale], [(low + high) / 2, (high - low) / 2], rtol=1e-12, atol=0):
+        raise LevelwiseError(
+            "Effects need a fit in coded units (-1 at each factor's low, +1 at its high); this fit was made with "
+            "coding='none'. Refit with coding='auto'."
+        )
     rows = _two_level_rows(fit)
     terms = [fit.spec.terms[i] for i in rows]
     values = 2.0 * np.asarray(fit.beta, dtype=float)[rows]
@@ -155,7 +173,7 @@ def half_normal(fit) -> pd.DataFrame:
     the half-normal quantile Phi^-1(0.5 + 0.5 p_i) = ``scipy.stats.halfnorm.ppf(p_i)`` at the
     plotting position p_i = (i - 0.5) / m. That position is the usual (Hazen) choice for
     probability plots (common practice); half-normal plots of effects are due to Daniel
-    (1959), Technometrics 1(4) 311-341.
+    (1959), Technometrics 1(4) 311-341 (citation from memory).
 
     Returns
     -------

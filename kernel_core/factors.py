@@ -89,7 +89,11 @@ class Factor:
                     f"The '{field}' of factor {self.name!r} must be a finite number. "
                     f"Got {describe(value)} instead."
                 )
-            if not math.isfinite(float(value)):
+            try:
+                number = float(value)
+            except OverflowError:  # an int beyond the float range
+                number = math.inf
+            if not math.isfinite(number):
                 raise LevelwiseError(
                     f"The '{field}' of factor {self.name!r} must be a finite number. Got {value!r} instead."
                 )

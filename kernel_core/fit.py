@@ -14,9 +14,10 @@ Conventions
   ``coding="none"`` fits in natural units.
 - **Categorical factors** (a :class:`Factor` with ``is_categorical``, or a factor
   column holding text) use *sum-to-zero* contrasts over the levels seen in the
-  data, in the factor's level order (else sorted): the column of level j is 1 at
-  level j, -1 at the last level and 0 elsewhere, and is named ``Factor[level]``.
-  A two-level categorical factor therefore codes as -1/+1 like a continuous one.
+  data, in the factor's level order (else sorted): each level but the first has a
+  column, named ``Factor[level]``, that is 1 at that level, -1 at the first level and
+  0 elsewhere. A two-level categorical factor therefore codes as -1 (first level) /
+  +1 (second), as ``Factor.to_coded`` does, and its effect is 2 x its coefficient.
 - **Achieved settings**: a column named ``"<factor> (achieved)"`` (or any column
   given in ``achieved={factor: column}``) holds the setting actually reached in
   each run. The fit uses it where it has a value, and the plan elsewhere;
@@ -31,6 +32,7 @@ import warnings
 from dataclasses import dataclass, field
 from functools import cached_property
 from itertools import product
+from types import MappingProxyType
 
 import numpy as np
 import pandas as pd
@@ -40,7 +42,7 @@ from scipy import stats
 from ._errors import LevelwiseError, LevelwiseWarning, describe
 from .design import META_COLUMNS
 from .factors import Factor
-from .formula import ModelSpec, names_in_model, parse_model, term_name
+from .formula import ModelSpec, monomials, names_in_model, parse_model, term_name
 from .prediction import Predictor, encode
 
 #: Suffix of a column holding the achieved setting of a factor: ``"Oven (achieved)"``.
@@ -94,13 +96,25 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
     return array
 
 
+def _read_only(*arrays):
+    """Mark arrays read-only, so a Fit's numbers cannot be changed in place."""
+    for array in arrays:
+        if isinstance(array, np.ndarray):
+            array.flags.writeable = False
+    return arrays if len(arrays) > 1 else arrays[0]
+
+
 def _is_text_column(values: pd.Series) -> bool:
     return not (pd.api.types.is_numeric_dtype(values) or pd.api.types.is_bool_dtype(values))
 
 
 def sum_to_zero(levels: int) -> np.ndarray:
-    """(L, L-1) sum-to-zero contrast matrix: identity rows, then a row of -1."""
-    return np.vstack([np.eye(levels - 1), -np.ones((1, levels - 1))])
+    """(L, L-1) sum-to-zero contrast matrix: a row of -1 for the first level, then identity rows.
+
+    For two levels this is -1 at the first level and +1 at the second, the coding of
+    :meth:`Factor.to_coded` for a two-level categorical factor.
+    """
+    return np.vstack([-np.ones((1, levels - 1)), np.eye(levels - 1)])
 
 
 @dataclass(frozen=True, eq=False)
@@ -120,15 +134,17 @@ class Fit:
     level : float
         Default confidence level.
     runs : pandas.Index
-        Labels (data index) of the runs in the fit.
+        Labels (data index) of the runs in the fit (a property: ``all_runs`` less exclusions).
+    all_runs : pandas.Index
+        Labels of every run with a response, before exclusions.
     X, y : ndarray
-        Model matrix and response of those runs.
+        Model matrix and response of those runs (properties over ``X_all``, ``y_all``).
     beta : ndarray
         Coefficients in coded units, in the order of :attr:`terms`.
     rinv : ndarray
         A square root of ``(X'X)^-1`` (the inverse of the R factor; no longer triangular after
         :meth:`exclude` / :meth:`include` updates).
-    settings : ndarray
+    run_settings : ndarray
         (n, k) natural settings used (achieved where recorded); categorical factors hold level indices.
     groups : tuple of (str, tuple of int)
         Each model term (intercept excluded) and its columns; one column per term unless the term
@@ -152,13 +168,13 @@ class Fit:
     spec: ModelSpec
     coding: Coding
     level: float
-    runs: pd.Index
-    X: np.ndarray = field(repr=False)
-    y: np.ndarray = field(repr=False)
+    all_runs: pd.Index
+    X_all: np.ndarray = field(repr=False)
+    y_all: np.ndarray = field(repr=False)
     beta: np.ndarray = field(repr=False)
     rinv: np.ndarray = field(repr=False)
     rank: int = 0
-    settings: np.ndarray = field(default=None, repr=False)
+    settings_all: np.ndarray = field(default=None, repr=False)
     groups: tuple = ()
     group_exponents: np.ndarray = field(default=None, repr=False)
     factor_names: tuple = ()
@@ -168,8 +184,37 @@ class Fit:
     missing_runs: tuple = ()
     exclusions: tuple = ()
     setting_deviations: pd.DataFrame | None = field(default=None, repr=False)
-    _reserve: dict = field(default_factory=dict, repr=False)
     _order: np.ndarray = field(default=None, repr=False)
+    _lookup: dict = field(default_factory=dict, repr=False)
+
+    # Exclusions keep the arrays of every run with a response (``*_all``) and change only the
+    # positions in use (``_order``), so an exclusion copies nothing of size n x p.
+    @cached_property
+    def runs(self) -> pd.Index:
+        return self.all_runs if self._order is None else self.all_runs[self._order]
+
+    @cached_property
+    def X(self) -> np.ndarray:
+        """Model matrix of the runs in the fit."""
+        return self.X_all if self._order is None else self.X_all[self._order]
+
+    @cached_property
+    def y(self) -> np.ndarray:
+        """Response of the runs in the fit."""
+        return self.y_all if self._order is None else self.y_all[self._order]
+
+    @cached_property
+    def run_settings(self) -> np.ndarray:
+        """(n, k) natural settings of the runs in the fit (achieved where recorded)."""
+        return self.settings_all if self._order is None else self.settings_all[self._order]
+
+    def _replace(self, **changes) -> Fit:
+        """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace)."""
+        new = object.__new__(Fit)
+        values = {name: self.__dict__[name] for name in _FIELDS}
+        values.update(changes)
+        new.__dict__.update(values)
+        return new
 
     @cached_property
     def _ordinals(self) -> np.ndarray:
@@ -179,7 +224,7 @@ class Fit:
     # ----- basic statistics ------------------------------------------------------------------
     @property
     def n(self) -> int:
-        return len(self.y)
+        return len(self.y_all) if self._order is None else len(self._order)
 
     @property
     def p(self) -> int:
@@ -315,7 +360,9 @@ class Fit:
                 for key, coef in poly.items():
                     for a in range(e + 1):
                         c = coef * math.comb(e, a) * (-var_center[v]) ** (e - a) / var_scale[v] ** e
-                        k2 = tuple(sorted(dict(key, **{v: a}).items())) if a else key
+                        grown = dict(key)
+                        grown[int(v)] = a
+                        k2 = tuple(sorted(grown.items())) if a else key
                         new[k2] = new.get(k2, 0.0) + c
                 poly = new
             for key, coef in poly.items():
@@ -356,7 +403,7 @@ class Fit:
 
         return anova_table(
             self.X, self.y, self.groups, self.group_exponents, self.spec.has_intercept,
-            self.settings, self._centre_indicator,
+            self.run_settings, self._centre_indicator,
         )
 
     @cached_property
@@ -368,7 +415,7 @@ class Fit:
         used = self.group_exponents.any(axis=0) if len(self.group_exponents) else np.zeros(0, bool)
         if not used.any():
             return None
-        coded = self.coding.to_coded(self.settings)[:, used]
+        coded = self.coding.to_coded(self.run_settings)[:, used]
         at_zero = np.abs(coded) < 1e-9
         at_one = np.abs(np.abs(coded) - 1.0) < 1e-9
         centre = at_zero.all(axis=1)
@@ -424,18 +471,18 @@ class Fit:
                 f"The 'reason' parameter of exclude must be a non-empty text saying why run {run!r} is "
                 f"left out. Got {describe(reason)} instead."
             )
-        positions = np.flatnonzero(self.runs == run) if self.n else []
-        if len(positions) != 1:
+        i = self._position(run)
+        if i is None:
             raise LevelwiseError(
                 f"The 'run' parameter of exclude must be a run in this fit {list(self.runs)[:20]}. "
                 f"Got {describe(run)} instead."
             )
-        i = int(positions[0])
         if self.n - 1 < self.p:
             raise LevelwiseError(
                 f"Run {run!r} cannot be excluded: the model has {self.p} terms and only {self.n - 1} runs would remain."
             )
-        x = self.X[i]
+        ordinal = int(self._ordinals[i])
+        x = self.X_all[ordinal]
         v = self.rinv.T @ x
         h = float(v @ v)
         if h > 1.0 - 1e-10:
@@ -443,35 +490,46 @@ class Fit:
                 f"Run {run!r} cannot be excluded: its leverage is 1, so without it at least one term of the "
                 "model could not be estimated. Drop a term or keep the run."
             )
-        e = self.y[i] - x @ self.beta
+        e = self.y_all[ordinal] - x @ self.beta
         cx = self.rinv @ v
         beta = self.beta - cx * e / (1.0 - h)
         a = (1.0 / np.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
         rinv = self.rinv + a * np.outer(cx, v)
-        keep = np.arange(self.n) != i
-        reserve = dict(self._reserve)
-        reserve[run] = (x, self.y[i], self.settings[i], int(self._ordinals[i]))
-        return dataclasses.replace(
-            self,
-            runs=self.runs[keep],
-            X=self.X[keep],
-            y=self.y[keep],
-            beta=beta,
-            rinv=rinv,
-            settings=self.settings[keep],
+        return self._replace(
+            beta=_read_only(beta),
+            rinv=_read_only(rinv),
             exclusions=self.exclusions + ((run, reason.strip()),),
-            _reserve=reserve,
-            _order=self._ordinals[keep],
+            _order=np.concatenate((self._ordinals[:i], self._ordinals[i + 1 :])),
         )
+
+    def _position(self, run):
+        """Row of *run* among the runs in the fit, or None."""
+        ordinal = self._ordinal_of(run)
+        if ordinal is None:
+            return None
+        i = int(np.searchsorted(self._ordinals, ordinal))
+        return i if i < self.n and self._ordinals[i] == ordinal else None
+
+    def _ordinal_of(self, run):
+        """Position of *run* in :attr:`all_runs` (labels looked up in a dict shared by derived fits)."""
+        lookup = self._lookup
+        if not lookup and self.all_runs.is_unique:
+            lookup.update(zip(self.all_runs, range(len(self.all_runs))))
+        try:
+            ordinal = lookup.get(run)
+        except TypeError:  # an unhashable label
+            return None
+        return ordinal
 
     def include(self, run) -> Fit:
         """A new Fit with an excluded *run* back in, by a rank-one update (Sherman–Morrison)."""
-        if run not in self._reserve:
+        excluded = [label for label, _ in self.exclusions]
+        if run not in excluded:
             raise LevelwiseError(
-                f"The 'run' parameter of include must be an excluded run {list(self._reserve)}. "
-                f"Got {describe(run)} instead."
+                f"The 'run' parameter of include must be an excluded run {excluded}. Got {describe(run)} instead."
             )
-        x, y_run, setting, ordinal = self._reserve[run]
+        ordinal = self._ordinal_of(run)
+        x, y_run = self.X_all[ordinal], self.y_all[ordinal]
         v = self.rinv.T @ x
         h = float(v @ v)
         e = y_run - x @ self.beta
@@ -480,17 +538,10 @@ class Fit:
         a = (1.0 / np.sqrt(1.0 + h) - 1.0) / h if h > 0 else -0.5
         rinv = self.rinv + a * np.outer(cx, v)
         i = int(np.searchsorted(self._ordinals, ordinal))
-        reserve = {k: val for k, val in self._reserve.items() if k != run}
-        return dataclasses.replace(
-            self,
-            runs=self.runs.insert(i, run),
-            X=np.insert(self.X, i, x, axis=0),
-            y=np.insert(self.y, i, y_run),
-            beta=beta,
-            rinv=rinv,
-            settings=np.insert(self.settings, i, setting, axis=0),
+        return self._replace(
+            beta=_read_only(beta),
+            rinv=_read_only(rinv),
             exclusions=tuple(item for item in self.exclusions if item[0] != run),
-            _reserve=reserve,
             _order=np.insert(self._ordinals, i, ordinal),
         )
 
@@ -519,7 +570,15 @@ class Fit:
         if isinstance(settings, pd.DataFrame):
             frame = settings
         elif isinstance(settings, dict):
-            frame = pd.DataFrame({key: np.atleast_1d(value) for key, value in settings.items()})
+            columns = {key: np.atleast_1d(value) for key, value in settings.items()}
+            lengths = {len(v) for v in columns.values()} - {1}
+            if len(lengths) > 1 or 0 in lengths or any(np.ndim(v) != 1 for v in columns.values()):
+                raise LevelwiseError(
+                    "The 'settings' values must be single numbers or lists of one common length. "
+                    f"Got {describe(settings)} instead."
+                )
+            n = lengths.pop() if lengths else 1
+            frame = pd.DataFrame({key: np.resize(v, n) if len(v) == 1 else v for key, v in columns.items()})
         else:
             raise LevelwiseError(
                 "The 'settings' parameter must be a dict or DataFrame of factor settings in natural units. "
@@ -588,6 +647,9 @@ class Fit:
             raise LevelwiseError(
                 f"The 'factor' parameter must be one of {list(self.factor_names)}. Got {describe(factor)} instead."
             )
+        if isinstance(points, bool) or not isinstance(points, (int, float, np.integer, np.floating)) \
+                or not 2 <= points <= 100_000 or points != int(points):
+            raise LevelwiseError(f"The 'points' parameter must be an integer from 2 to 100000. Got {describe(points)}.")
         base = self.settings_array(settings)[0]
         j = self.factor_names.index(factor)
         if factor in self.categories:
@@ -696,7 +758,7 @@ def _expand(spec: ModelSpec, names, categories, contrasts):
             var_names.append(name)
         else:
             var_of.append(list(range(len(var_names), len(var_names) + contrasts[j].shape[1])))
-            var_names += [f"{name}[{level}]" for level in categories[name][:-1]]
+            var_names += [f"{name}[{level}]" for level in categories[name][1:]]
     rows, groups, group_exp = [], [], []
     for term_row in spec.exponents:
         choices = []
@@ -726,9 +788,10 @@ def _expand(spec: ModelSpec, names, categories, contrasts):
 
 
 def _scaled_pivoted_qr(X):
-    norms = np.linalg.norm(X, axis=0)
+    norms = np.sqrt(np.einsum("ij,ij->j", X, X))
     norms[norms == 0] = 1.0
-    q, r, piv = scipy.linalg.qr(X / norms, mode="economic", pivoting=True)
+    scaled = np.asfortranarray(X / norms)
+    q, r, piv = scipy.linalg.qr(scaled, mode="economic", pivoting=True, overwrite_a=True, check_finite=False)
     diag = np.abs(np.diag(r))
     n, p = X.shape
     tol = max(n, p) * np.finfo(float).eps * (diag[0] if diag.size else 0.0)
@@ -739,20 +802,30 @@ def _scaled_pivoted_qr(X):
 def _inestimable(X, terms, rank):
     """Pick the inestimable columns in model order and say what each equals.
 
-    The later column of each dependency is the one dropped (unpivoted QR of the unit-length
-    columns: ``|R_jj|`` is the distance of column j from the span of the earlier ones).
+    Columns are taken greedily in model order: a column that adds nothing to the span of the
+    columns kept before it (unit-length columns, residual norm after projection below a tolerance)
+    is inestimable, so the later term of each dependency is the one named.
     Returns (kept column indices, {term: "+1*A^2 ..."}).
     """
     norms = np.linalg.norm(X, axis=0)
     norms[norms == 0] = 1.0
-    r = scipy.linalg.qr(X / norms, mode="r")[0]
-    p = X.shape[1]
-    distance = np.abs(np.diag(r[:p, :p])) if r.shape[0] >= p else np.r_[np.abs(np.diag(r)), np.zeros(p - r.shape[0])]
-    dropped = np.sort(np.argsort(distance, kind="stable")[: p - rank])
-    kept = np.setdiff1d(np.arange(p), dropped)
-    if _scaled_pivoted_qr(X[:, kept])[4] < len(kept):  # fall back to the pivoted choice
+    Xs = X / norms
+    tol = 100 * max(X.shape) * np.finfo(float).eps
+    basis = np.empty((X.shape[0], 0))
+    kept = []
+    for j in range(X.shape[1]):
+        v = Xs[:, j].copy()
+        for _ in range(2):  # twice is enough (Gram-Schmidt re-orthogonalisation)
+            v -= basis @ (basis.T @ v)
+        size = np.linalg.norm(v)
+        if size > tol:
+            kept.append(j)
+            basis = np.column_stack([basis, v / size])
+    kept = np.array(kept, dtype=int)
+    if len(kept) != rank:  # borderline case: fall back to the pivoted QR's choice
         piv = _scaled_pivoted_qr(X)[2]
-        dropped, kept = np.sort(piv[rank:]), np.sort(piv[:rank])
+        kept = np.sort(piv[:rank])
+    dropped = np.setdiff1d(np.arange(X.shape[1]), kept)
     weights, *_ = np.linalg.lstsq(X[:, kept], X[:, dropped], rcond=None)
     aliases = {}
     for j, column in enumerate(dropped):
@@ -761,6 +834,63 @@ def _inestimable(X, terms, rank):
         partners = " ".join(f"{w[i]:+.3g}*{terms[kept[i]]}" for i in big)
         aliases[terms[column]] = partners or "0"
     return kept, aliases
+
+
+#: Condition number (of the unit-length columns) above which the solution is recomputed in extended precision.
+EXTENDED_PRECISION_CONDITION = 1e4
+#: Problems with n * p^2 up to this are always solved in extended precision (about a millisecond).
+EXTENDED_PRECISION_WORK = 4e6
+
+
+def _householder_longdouble(A):
+    """Householder QR of *A* (n >= p) in extended precision: (R, reflectors)."""
+    A = A.copy()
+    n, p = A.shape
+    reflectors = []
+    for k in range(p):
+        x = A[k:, k]
+        norm = np.sqrt(x @ x)
+        v = x.copy()
+        v[0] += norm if x[0] >= 0 else -norm
+        vv = v @ v
+        if vv == 0:
+            reflectors.append(None)
+            continue
+        A[k:, k:] -= np.outer(v, (2 / vv) * (v @ A[k:, k:]))
+        reflectors.append((v, vv))
+    return np.triu(A[:p, :p]), reflectors
+
+
+def _back_substitute(R, B):
+    out = np.zeros_like(B)
+    for i in range(R.shape[0] - 1, -1, -1):
+        out[i] = (B[i] - R[i, i + 1 :] @ out[i + 1 :]) / R[i, i]
+    return out
+
+
+def _extended_solution(XL, yL, piv, norms):
+    """Least squares in extended precision (numpy longdouble) for ill-conditioned models.
+
+    The model matrix is rebuilt from the settings in extended precision (so the powers of a
+    high-degree polynomial are not rounded to float64 first), its columns are scaled and put in the
+    pivot order of the float64 QR, and an unpivoted Householder QR is run. Returns float64
+    (beta, rinv, fitted, residuals).
+    """
+    p = XL.shape[1]
+    scale = norms[piv].astype(np.longdouble)
+    R, reflectors = _householder_longdouble(XL[:, piv] / scale)
+    qty = yL.copy()
+    for k, reflector in enumerate(reflectors):
+        if reflector is not None:
+            v, vv = reflector
+            qty[k:] -= v * ((2 / vv) * (v @ qty[k:]))
+    beta = np.empty(p, dtype=np.longdouble)
+    beta[piv] = _back_substitute(R, qty[:p]) / scale
+    rinv = np.empty((p, p), dtype=np.longdouble)
+    rinv[piv] = _back_substitute(R, np.eye(p, dtype=np.longdouble)) / scale[:, None]
+    fitted = XL @ beta
+    residuals = yL - fitted
+    return (beta.astype(float), rinv.astype(float), fitted.astype(float), residuals.astype(float))
 
 
 def _factor_columns(data, names, factors, response):
@@ -954,11 +1084,10 @@ def fit(
     settings = natural[keep]
     X = spec.matrix(encode(settings, coding_info.center, coding_info.scale, contrasts))
     n, p = X.shape
-    if n < p:
-        raise LevelwiseError(
-            f"The model {model!r} has {p} terms but only {n} usable runs have a value for {response!r}; "
-            "at least as many runs as terms are needed. Drop terms or add runs."
-        )
+    short = (
+        f"The model {model!r} has {p} terms but only {n} usable runs have a value for {response!r}; "
+        "at least as many runs as terms are needed. Drop terms or add runs."
+    )
     q, r, piv, norms, rank = _scaled_pivoted_qr(X)
     aliased = {}
     if rank < p:
@@ -968,6 +1097,8 @@ def fit(
             f"The model {model!r} cannot be fully estimated from these runs: {p - rank} term(s) are aliased "
             f"with others. {listing}."
         )
+        if n < p:
+            message = short + " " + message
         if on_rank_deficiency == "raise":
             raise LevelwiseError(
                 message + " Remove the aliased term(s), add runs, or fit with on_rank_deficiency='warn'."
@@ -998,27 +1129,53 @@ def fit(
     beta = np.empty(p)
     beta[piv] = scipy.linalg.solve_triangular(r, q.T @ y)
     beta /= norms
-    return Fit(
+    precise = None
+    diag = np.abs(np.diag(r))
+    if (
+        p
+        and (n * p * p <= EXTENDED_PRECISION_WORK or diag[0] > EXTENDED_PRECISION_CONDITION * diag[-1])
+        and np.finfo(np.longdouble).eps < np.finfo(float).eps
+    ):
+        # Float64 QR keeps about 16 - log10(condition) digits normwise, and coefficients of small
+        # influence (the intercept of a degree-5 polynomial in natural units) lose more. Small
+        # problems, and ill-conditioned ones of any size, are re-solved in extended precision.
+        settings_ld = settings.astype(np.longdouble)
+        if contrasts:
+            coded_ld = encode(settings, coding_info.center, coding_info.scale, contrasts).astype(np.longdouble)
+        else:
+            coded_ld = (settings_ld - coding_info.center.astype(np.longdouble)) / coding_info.scale.astype(
+                np.longdouble
+            )
+        XL = monomials(coded_ld, spec.exponents, dtype=np.longdouble)
+        beta, rinv, *precise = _extended_solution(XL, y.astype(np.longdouble), piv, norms)
+    _read_only(X, y, beta, rinv, settings, group_exp)
+    result = Fit(
         response=response,
         spec=spec,
         coding=coding_info,
         level=level,
-        runs=data.index[keep],
-        X=X,
-        y=y,
+        all_runs=data.index[keep],
+        X_all=X,
+        y_all=y,
         beta=beta,
         rinv=rinv,
         rank=rank,
-        settings=settings,
+        settings_all=settings,
         groups=tuple(groups),
         group_exponents=group_exp,
         factor_names=tuple(names),
         contrasts=contrasts,
-        categories=categories,
-        aliased=aliased,
+        categories=MappingProxyType(categories),
+        aliased=MappingProxyType(aliased),
         missing_runs=tuple(data.index[~keep]),
         setting_deviations=deviations,
     )
+    if precise:
+        # Keep the extended-precision fitted values and residuals (cached properties are plain entries).
+        result.__dict__["fitted"], result.__dict__["residuals"] = _read_only(*precise)
+    return result
 
+
+_FIELDS = tuple(f.name for f in dataclasses.fields(Fit))
 
 __all__ = ["ACHIEVED_SUFFIX", "Coding", "Factor", "Fit", "fit", "sum_to_zero"]

@@ -61,14 +61,16 @@ class ModelSpec:
         return monomials(np.asarray(coded, dtype=float), self.exponents)
 
 
-def monomials(coded: np.ndarray, exponents: np.ndarray) -> np.ndarray:
+def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarray:
     """Evaluate every term (a row of *exponents*) at each row of *coded*: an (n, p) matrix."""
     coded = np.atleast_2d(coded)
-    out = np.ones((coded.shape[0], exponents.shape[0]))
+    # Column-major: each term is one contiguous column, and LAPACK's QR takes it without a copy.
+    columns = np.asfortranarray(coded, dtype=dtype)
+    out = np.ones((coded.shape[0], exponents.shape[0]), dtype=dtype, order="F")
     for j, row in enumerate(exponents):
         for i in np.flatnonzero(row):
             power = row[i]
-            out[:, j] *= coded[:, i] if power == 1 else coded[:, i] ** power
+            out[:, j] *= columns[:, i] if power == 1 else columns[:, i] ** power
     return out
 
 
@@ -192,6 +194,8 @@ def parse_model(model: str, factor_names) -> ModelSpec:
             desc = ModelDesc.from_formula(safe)
         except PatsyError as exc:
             raise LevelwiseError(f"The model {model!r} could not be parsed: {exc.message}") from None
+        except Exception as exc:  # patsy's tokenizer trips an assert on some input, e.g. "&"
+            raise LevelwiseError(f"The model {model!r} could not be parsed ({type(exc).__name__}).") from None
         rows = []
         for term in desc.rhs_termlist:
             row = np.zeros(k, dtype=int)

@@ -83,8 +83,8 @@ def parse_constraints(constraints, factors):
     if isinstance(constraints, str):
         constraints = [constraints]
     rows, rhs = [], []
-    center = np.array([f.center for f in factors])
-    half = np.array([f.half_range for f in factors])
+    center = np.array([0.0 if f.is_categorical else f.center for f in factors])
+    half = np.array([1.0 if f.is_categorical else f.half_range for f in factors])
     for text in constraints:
         if not isinstance(text, str) or len(re.findall(r"<=|>=|<|>", text)) != 1:
             raise LevelwiseError(
@@ -105,6 +105,10 @@ def parse_constraints(constraints, factors):
             a, b = -a, -b
         if not a.any():
             raise LevelwiseError(f"The constraint {text!r} names no factor.")
+        named = [f.name for f, coef in zip(factors, a) if coef and f.is_categorical]
+        if named:
+            raise LevelwiseError(f"The constraint {text!r} names categorical factor(s) {named}; constraints must "
+                                 "use continuous factors only.")
         # natural x = center + half * coded
         rows.append(a * half)
         rhs.append(b - a @ center)
@@ -155,18 +159,21 @@ def sample_region(G, h, k, count, rng):
     return weights @ vertices
 
 
-def moment_matrix(exponents, G=None, h=None, rng=None):
+def moment_matrix(exponents, G=None, h=None, rng=None, discrete=None):
     """W = average of f(x) f(x)' over the region: exact over the cube, Monte Carlo (20,000 points) when
-    constrained."""
+    constrained. Columns flagged in *discrete* (two-level categorical factors) take -1 and +1 only."""
     p, k = exponents.shape
+    discrete = np.zeros(k, dtype=bool) if discrete is None else np.asarray(discrete, dtype=bool)
     if G is None or not len(G):
         total = exponents[:, None, :] + exponents[None, :, :]
-        # E[x^a] for x uniform on [-1, 1]: 0 for odd a, 1/(a+1) for even a.
-        moments = np.where(total % 2 == 0, 1.0 / (total + 1.0), 0.0)
+        # E[x^a] for x uniform on [-1, 1]: 0 for odd a, 1/(a+1) for even a; for x = +-1 with equal weight:
+        # 0 for odd a, 1 for even a.
+        moments = np.where(total % 2 == 0, np.where(discrete, 1.0, 1.0 / (total + 1.0)), 0.0)
         return moments.prod(axis=2)
     from .formula import monomials
 
     sample = sample_region(G, h, k, 20000, rng or np.random.default_rng(0))
+    sample[:, discrete] = np.where(sample[:, discrete] < 0, -1.0, 1.0)
     f = monomials(sample, exponents)
     return f.T @ f / len(f)
 
@@ -187,6 +194,9 @@ def _fixed_coded(fixed_runs, factors):
         raise LevelwiseError(f"The 'fixed_runs' table has no column for factor(s) {missing}.")
     cols = []
     for f in factors:
+        if f.is_categorical:
+            cols.append(f.to_coded(fixed_runs[f.name].to_numpy(dtype=object)))
+            continue
         values = pd.to_numeric(fixed_runs[f.name], errors="coerce")
         if values.isna().any():
             row = int(np.flatnonzero(values.isna().to_numpy())[0])
@@ -218,7 +228,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     Parameters
     ----------
     factors : list of Factor or int
-        Continuous factors.
+        Continuous factors, or categorical factors with 2 levels (coded -1/+1, never in a squared term).
     model : str
         Wilkinson formula or preset ``"linear"``, ``"interactions"``, ``"quadratic"``.
     runs : int
@@ -258,8 +268,12 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     """
     factors = as_factors(factors)
     for f in factors:
-        if f.is_categorical:
-            raise LevelwiseError(f"optimal_design handles continuous factors only; factor {f.name!r} is categorical.")
+        if f.is_categorical and len(f.levels) != 2:
+            raise LevelwiseError(
+                f"optimal_design takes continuous factors and categorical factors with 2 levels; factor {f.name!r} "
+                f"has {len(f.levels)} levels."
+            )
+    discrete = np.array([f.is_categorical for f in factors])
     runs = _check_count(runs, "runs", 1)
     starts = _check_count(starts, "starts", 1)
     seed = _check_seed(seed)
@@ -271,6 +285,12 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     spec = parse_model(model, names)
     E = spec.exponents
     p, k = E.shape
+    squared = [names[j] for j in range(k) if discrete[j] and E[:, j].max() > 1]
+    if squared:
+        raise LevelwiseError(
+            f"The model {model!r} raises categorical factor(s) {squared} to a power; a two-level categorical "
+            "factor has no curvature. Use a model without those terms."
+        )
     fixed = _fixed_coded(fixed_runs, factors)
     n = runs + len(fixed)
     if n < p:
@@ -281,10 +301,10 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     G, h = parse_constraints(constraints, factors)
     check_region(G, h, constraints)
     rng = np.random.default_rng(seed)
-    W = moment_matrix(E, G, h, np.random.default_rng(0 if seed is None else seed + 7919))
+    W = moment_matrix(E, G, h, np.random.default_rng(0), discrete)  # same sample as evaluate()
     grids = [np.array([-1.0, 1.0]) if E[:, j].max() <= 1 else np.array([-1.0, 0.0, 1.0]) for j in range(k)]
     if len(G):
-        grids = [np.union1d(g, np.linspace(-1, 1, 5)) for g in grids]
+        grids = [g if discrete[j] else np.union1d(g, np.linspace(-1, 1, 5)) for j, g in enumerate(grids)]
 
     def model_rows(points):
         return np.prod(points[:, None, :] ** E[None, :, :], axis=2)
@@ -292,7 +312,14 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     best = None
     n_fixed = len(fixed)
     for start in range(starts):
-        points = np.vstack([fixed, sample_region(G, h, k, runs, rng)])
+        new = sample_region(G, h, k, runs, rng)
+        # Start on the candidate levels where that stays feasible, so untouched coordinates are clean levels.
+        snapped = np.column_stack([grids[j][np.abs(new[:, [j]] - grids[j][None, :]).argmin(axis=1)]
+                                   for j in range(k)])
+        feasible = np.all(snapped @ G.T <= h + 1e-12, axis=1) if len(G) else np.ones(runs, dtype=bool)
+        new[feasible] = snapped[feasible]
+        new[:, discrete] = np.where(new[:, discrete] < 0, -1.0, 1.0)
+        points = np.vstack([fixed, new])
         F = model_rows(points)
         M = F.T @ F
         ridge = 0.0
@@ -306,7 +333,10 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
                 for j in range(k):
                     lo, hi = _interval(G, h, points[i], j)
                     g = grids[j]
-                    values = np.unique(np.concatenate([g[(g >= lo - 1e-12) & (g <= hi + 1e-12)], [lo, hi]]))
+                    if discrete[j]:
+                        values = g
+                    else:
+                        values = np.unique(np.concatenate([g[(g >= lo - 1e-12) & (g <= hi + 1e-12)], [lo, hi]]))
                     values = values[values != points[i, j]]
                     if not len(values):
                         continue

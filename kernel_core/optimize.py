@@ -14,9 +14,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy import optimize as sopt
 
 from ._errors import LevelwiseError, describe
+from ._fitview import require_continuous
 
 GOAL_KINDS = ("maximize", "minimize", "target")
 
@@ -83,6 +83,9 @@ class Goal:
     importance: float = 1.0
 
     def __post_init__(self):
+        spelled = {"maximise": "maximize", "minimise": "minimize"}
+        if isinstance(self.kind, str) and self.kind.lower() in spelled:
+            object.__setattr__(self, "kind", spelled[self.kind.lower()])
         if self.kind not in GOAL_KINDS:
             raise LevelwiseError(f"A goal's 'kind' must be one of {GOAL_KINDS}. Got {describe(self.kind)} instead.")
         for name in ("low", "target", "high", "s", "t", "importance"):
@@ -266,7 +269,7 @@ class Optimum:
     overall : float
         The overall desirability D.
     starts : pandas.DataFrame
-        The local optimum reached from each start (settings and D), best first.
+        The local optimum reached from each start (settings and ``overall_D``), best first.
     """
 
     settings: dict
@@ -290,12 +293,20 @@ def _factor_union(fits: dict) -> tuple[list[str], dict]:
 
 
 def _mean_function(fit, names: list[str]):
-    """Fast mean prediction from a (m, k_all) array of natural settings."""
+    """Fast mean prediction from an (m, k_all) array of natural settings (no DataFrames, no Python loops)."""
     columns = [names.index(n) for n in fit.factor_names]
-    predictor = getattr(fit, "predictor", None)
-    if predictor is not None and hasattr(predictor, "rows"):
+    exponents = getattr(fit.spec, "exponents", None)
+    if exponents is not None and np.shape(exponents) == (len(fit.beta), len(fit.factor_names)):
+        exponents = np.asarray(exponents, dtype=float)
+        center = np.asarray(fit.coding.center, dtype=float)
+        scale = np.asarray(fit.coding.scale, dtype=float)
         beta = np.asarray(fit.beta, dtype=float)
-        return lambda natural: predictor.rows(natural[:, columns]) @ beta
+
+        def mean(natural):
+            coded = (natural[:, columns] - center) / scale
+            return np.prod(coded[:, None, :] ** exponents[None, :, :], axis=2) @ beta
+
+        return mean
     return lambda natural: fit.predict(pd.DataFrame(natural[:, columns], columns=list(fit.factor_names)))[
         "mean"
     ].to_numpy()
@@ -329,6 +340,8 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     LevelwiseError
         A goal for a response without a fit, a bad region, or constraints no setting in the region meets.
     """
+    from scipy import optimize as sopt  # imported here: it is slow to import and only needed here
+
     if not isinstance(fits, dict) or not fits:
         raise LevelwiseError(
             f"The 'fits' parameter must be a non-empty dict of response -> Fit. Got {describe(fits)} instead."
@@ -342,6 +355,8 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
         raise LevelwiseError(f"The 'goals' name response(s) {unknown} that have no fit. Fitted: {list(fits)}.")
     if isinstance(starts, bool) or not isinstance(starts, (int, np.integer)) or starts < 1:
         raise LevelwiseError(f"The 'starts' parameter must be an integer >= 1. Got {describe(starts)} instead.")
+    for response, fit in fits.items():
+        require_continuous(fit, f"Desirability optimisation (response {response!r})")
     goal_objects = {r: as_goal(g, r) for r, g in goals.items()}
     names, ranges = _factor_union(fits)
     if region is not None:
@@ -391,15 +406,16 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
         d = np.column_stack([goal_objects[r](means[r](natural)) for r in responses])
         return overall_desirability(d, importance)
 
-    # Work in [0, 1]^k so that step sizes are comparable across factors.
-    span = np.where(upper > lower, upper - lower, 1.0)
+    # Work in [0, 1]^k so that step sizes are comparable across factors (a factor fixed by the region
+    # has span 0 and stays put).
+    span = upper - lower
     to_natural = lambda u: lower + np.atleast_2d(u) * span  # noqa: E731
     rng = np.random.default_rng(seed)
     screen = rng.random((max(200 * len(names), 50 * int(starts)), len(names)))
     if parsed:
         ok = (to_natural(screen) @ a_ub.T <= b_ub + 1e-12).all(axis=1)
         screen = screen[ok]
-        if len(screen) < starts:  # a thin feasible region: start from its Chebyshev-like centre too
+        if len(screen) < starts:  # a thin feasible region: add a feasible point found by linear programming
             centre = sopt.linprog(np.zeros(len(names)), A_ub=a_ub * span, b_ub=b_ub - a_ub @ lower,
                                   bounds=[(0, 1)] * len(names), method="highs").x
             screen = np.vstack([screen, centre[None, :]])
@@ -437,7 +453,7 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     predictions.index.name = "response"
     d = pd.Series({r: float(goal_objects[r](predictions.loc[r, "mean"])) for r in responses}, name="d")
     table = pd.DataFrame([to_natural(u)[0] for _, u in results], columns=names)
-    table["D"] = [v for v, _ in results]
+    table["overall_D"] = [v for v, _ in results]
     return Optimum(settings=settings, predictions=predictions, desirability=d, overall=float(best_value),
                    starts=table)
 
@@ -467,8 +483,8 @@ def steepest_path(fit, step: float = 1.0, steps: int = 10, ascent: bool = True, 
                   ) -> SteepestPath:
     """Points along the path of steepest ascent (descent) from the centre of a first-order model.
 
-    The direction in coded units is the vector of first-order coefficients b (Box & Wilson
-    1951), or -b for descent. Each step moves the *key* factor (by default the one with the
+    The direction in coded units is the vector of first-order coefficients b (common practice; Box & Wilson
+    1951, from memory), or -b for descent. Each step moves the *key* factor (by default the one with the
     largest |b|) by *step* coded units and every other factor by step * b_i / |b_key|.
 
     Parameters
@@ -489,6 +505,7 @@ def steepest_path(fit, step: float = 1.0, steps: int = 10, ascent: bool = True, 
     LevelwiseError
         A model with terms other than main effects, or with all coefficients zero.
     """
+    require_continuous(fit, "The path of steepest ascent")
     exponents = np.asarray(fit.spec.exponents)
     order = exponents.sum(axis=1)
     if (order > 1).any():

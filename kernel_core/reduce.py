@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from ._errors import LevelwiseError, describe
+from ._fitview import require_continuous
 
 
 def _term_formula(row, names) -> str:
@@ -37,9 +38,12 @@ def formula_of(exponents, names) -> str:
 
 
 def _natural_settings(fit) -> pd.DataFrame:
-    """The natural settings of the fit's runs, read back from its linear model columns."""
+    """The natural settings of the fit's runs: stored on the fit, or read back from its linear columns."""
     exponents = np.asarray(fit.spec.exponents)
     names = list(fit.factor_names)
+    stored = getattr(fit, "settings", None)
+    if isinstance(stored, np.ndarray) and stored.shape == (len(fit.runs), len(names)):
+        return pd.DataFrame(stored, columns=names, index=fit.runs)
     columns = {}
     for j, name in enumerate(names):
         unit = np.zeros(len(names), dtype=int)
@@ -71,6 +75,7 @@ def refit(fit, exponents, data: pd.DataFrame | None = None):
     from .factors import Factor
     from .fit import fit as fit_model
 
+    require_continuous(fit, "Refitting on a subset of terms")
     names = list(fit.factor_names)
     if data is None:
         frame = _natural_settings(fit)
@@ -150,6 +155,7 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
             f"The 'alpha' parameter of reduce must be a number in the open interval (0, 1). Got {describe(alpha)} "
             "instead."
         )
+    require_continuous(fit, "Backward elimination (reduce)")
     if fit.df_resid <= 0:
         raise LevelwiseError(
             f"The model {fit.spec.formula!r} has no residual degrees of freedom ({fit.n} runs, {fit.p} terms), "

@@ -192,6 +192,55 @@ def _validator():
     return _VALIDATOR
 
 
+#: Runs beyond this many are checked by a fast test of the same rules as the schema's run item;
+#: any run that fails it is then validated by jsonschema, which words the error.
+_SCHEMA_RUNS = 500
+_RUN_KEYS = frozenset(("run", "stage", "block", "std_order", "point_type", "planned", "achieved", "responses"))
+
+
+def _run_ok(run) -> bool:
+    if type(run) is not dict or run.keys() != _RUN_KEYS:
+        return False
+    if type(run["run"]) is not int or run["run"] < 1 or type(run["block"]) is not int:
+        return False
+    if type(run["std_order"]) is not int or type(run["stage"]) is not str or type(run["point_type"]) is not str:
+        return False
+    for block in ("planned", "achieved", "responses"):
+        values = run[block]
+        if type(values) is not dict or any(type(v) not in (int, float) for v in values.values()):
+            return False
+    return True
+
+
+def _validate(document, source: str) -> None:
+    """Validate a format-1 document against the shipped schema; the error names the field."""
+    validator = _validator()
+    runs = document.get("data", {}).get("runs") if isinstance(document.get("data"), dict) else None
+    offset, errors = 0, []
+    if isinstance(runs, list) and len(runs) > _SCHEMA_RUNS:
+        head = {**document, "data": {**document["data"], "runs": runs[:_SCHEMA_RUNS]}}
+        errors = list(validator.iter_errors(head))
+        if not errors:
+            item = validator.evolve(schema=validator.schema["properties"]["data"]["properties"]["runs"]["items"])
+            for i in range(_SCHEMA_RUNS, len(runs)):
+                if not _run_ok(runs[i]):
+                    errors = list(item.iter_errors(runs[i]))
+                    if errors:
+                        offset = i
+                        break
+    else:
+        errors = list(validator.iter_errors(document))
+    if errors:
+        errors.sort(key=lambda e: list(map(str, e.absolute_path)))
+        error = errors[0]
+        parts = ["data", "runs", offset, *error.absolute_path] if offset else list(error.absolute_path)
+        message = error.message if len(error.message) <= 200 else error.message[:197] + "..."
+        raise StudyFileError(
+            f"The study file '{source}' does not follow the study schema: field '{_json_path(parts)}': {message}"
+            + (f" ({len(errors) - 1} more problem(s))." if len(errors) > 1 else "")
+        )
+
+
 def _json_path(parts) -> str:
     out = ""
     for part in parts:
@@ -244,7 +293,7 @@ def migrate_v0(document: dict) -> dict:
     data = {
         "title": document.get("title", ""),
         "factors": factors,
-        "responses": {name: {"units": response.get("units", ""), "goal": "none", "target": None}},
+        "responses": [{"name": name, "units": response.get("units", ""), "goal": "none", "target": None}],
         "stages": [{"name": stage, "description": "runs of a format-0 file", "created": when}],
         "runs": new_runs,
         "exclusions": [
@@ -458,9 +507,11 @@ class Study:
             bad = ~np.isfinite(values)
             if bad.any():
                 row = int(np.flatnonzero(bad)[0])
+                raw = table[f.name].iloc[row]
+                raw = raw.item() if isinstance(raw, np.generic) else raw
                 raise LevelwiseError(
                     f"The planned setting of factor {f.name!r} in row {row + 1} of the design must be a finite "
-                    f"number. Got {describe(table[f.name].iloc[row])} instead."
+                    f"number. Got {describe(raw)} instead."
                 )
             settings[f.name] = values
         block = self._int_column(table, "block", 1, n)
@@ -539,6 +590,41 @@ class Study:
         else:
             record[block][key] = value
         return old
+
+    def _record_many(self, changes, *, overwrite: bool, reason: str | None, source: str) -> None:
+        """Record many values at once (an import): ``changes`` is a list of
+        ``(kind, run, key, value)`` with kind ``"responses"`` or ``"achieved"``.
+
+        The audit log gets one summary entry, plus one entry per replaced value (so that the
+        old value stays on record). Every value is validated before any is stored.
+        """
+        reason = _reason(reason)
+        checked = []
+        for kind, run, key, value in changes:
+            record = self._run(run)
+            if kind == "responses":
+                self._response(key)
+            else:
+                self._factor(key)
+            value = _finite(value, f"{key} of run {record['run']}")
+            old = record[kind].get(key)
+            if old is not None and old != value and not overwrite:
+                raise LevelwiseError(
+                    f"The {key!r} of run {record['run']} is already recorded as {old!r}; pass overwrite=True."
+                )
+            checked.append((record, kind, key, value, old))
+        replaced = 0
+        for record, kind, key, value, old in checked:
+            record[kind][key] = value
+            if old is not None and old != value:
+                replaced += 1
+                action = "record" if kind == "responses" else "record_achieved"
+                self._log(action, f"run {record['run']}: {key} = {value!r} (was {old!r})", reason)
+        keys = sorted({key for _, _, key, _ in changes})
+        runs = sorted({record["run"] for record, *_ in checked})
+        span = f"runs {runs[0]}..{runs[-1]}" if runs else "no runs"
+        self._log("import", f"{len(checked)} value(s) of {keys} recorded for {len(runs)} run(s) ({span}) from "
+                            f"{source}; {replaced} replaced a recorded value", reason)
 
     def _log_value(self, action, record, key, value, old, reason):
         was = "not recorded" if old is None else repr(old)
@@ -648,7 +734,7 @@ class Study:
 
     def fits(self, *, level: float = 0.95) -> dict:
         """A :class:`~kernel_core.fit.Fit` for every response that has a model."""
-        return {response: self.fit(response, level=level) for response in self._models}
+        return {response: self.fit(response, level=level) for response in self._responses if response in self._models}
 
     # ----- the file --------------------------------------------------------------------------
     def to_dict(self) -> dict:
@@ -661,7 +747,7 @@ class Study:
             {
                 "title": self._title,
                 "factors": [{"name": f.name, "low": f.low, "high": f.high, "units": f.units} for f in self._factors],
-                "responses": self._responses,
+                "responses": [{"name": name, **spec} for name, spec in self._responses.items()],
                 "stages": self._stages,
                 "runs": runs,
                 "exclusions": self._exclusions,
@@ -795,15 +881,7 @@ class Study:
         while version < FORMAT_VERSION:
             document = MIGRATIONS[version](document)
             version = document["format_version"]
-        errors = sorted(_validator().iter_errors(document), key=lambda e: list(map(str, e.absolute_path)))
-        if errors:
-            error = errors[0]
-            message = error.message if len(error.message) <= 200 else error.message[:197] + "..."
-            raise StudyFileError(
-                f"The study file '{source}' does not follow the study schema: field "
-                f"'{_json_path(error.absolute_path)}': {message}"
-                + (f" ({len(errors) - 1} more problem(s))." if len(errors) > 1 else "")
-            )
+        _validate(document, source)
         data, audit = document["data"], document["audit"]
         outside = False
         try:
@@ -842,14 +920,15 @@ class Study:
             fail("data.factors", str(exc))
         study._audit = [dict(entry) for entry in audit]
         names = set(study.factor_names)
-        for name, spec in data["responses"].items():
+        for i, spec in enumerate(data["responses"]):
+            name = spec["name"]
             try:
                 _name(name, "response name")
-                if name in names:
-                    raise LevelwiseError(f"the response name {name!r} is also a factor name")
+                if name in names or name in study._responses:
+                    raise LevelwiseError(f"the response name {name!r} is used twice (or is also a factor name)")
                 study._responses[name] = cls._response_spec(name, spec["units"], spec["goal"], spec["target"])
             except LevelwiseError as exc:
-                fail(f"data.responses.{name}", str(exc))
+                fail(f"data.responses[{i}]", str(exc))
         for i, stage in enumerate(data["stages"]):
             if any(s["name"] == stage["name"] for s in study._stages):
                 fail(f"data.stages[{i}].name", f"the stage name {stage['name']!r} appears twice")
@@ -857,7 +936,7 @@ class Study:
         stage_names = {s["name"] for s in study._stages}
         for i, run in enumerate(data["runs"]):
             where = f"data.runs[{i}]"
-            run_id = run["run"]
+            run_id = int(run["run"])
             if run_id in study._runs:
                 fail(f"{where}.run", f"the run id {run_id} appears twice")
             if run["stage"] not in stage_names:
@@ -871,16 +950,19 @@ class Study:
                     fail(f"{where}.{block}", f"{extra} are not among {sorted(allowed)}")
             for block in ("planned", "achieved", "responses"):
                 for key, value in run[block].items():
-                    if not math.isfinite(float(value)):
-                        fail(f"{where}.{block}.{key}", f"must be a finite number; got {value!r}")
+                    try:
+                        _finite(value, f"{where}.{block}.{key}")
+                    except LevelwiseError:
+                        fail(f"{where}.{block}.{key}", f"must be a finite number; got {describe(value)}")
             study._runs[run_id] = {
-                "run": run_id, "stage": run["stage"], "block": run["block"], "std_order": run["std_order"],
+                "run": run_id, "stage": run["stage"], "block": int(run["block"]), "std_order": int(run["std_order"]),
                 "point_type": run["point_type"],
                 "planned": {k: float(v) for k, v in run["planned"].items()},
                 "achieved": {k: float(v) for k, v in run["achieved"].items()},
                 "responses": {k: float(v) for k, v in run["responses"].items()},
             }
         for i, item in enumerate(data["exclusions"]):
+            item = {**item, "run": int(item["run"])}
             if item["run"] not in study._runs:
                 fail(f"data.exclusions[{i}].run", f"run {item['run']} is not in the study")
             if item["response"] is not None and item["response"] not in study._responses:

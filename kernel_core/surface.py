@@ -12,8 +12,10 @@ page can redraw the slice in JavaScript (see :func:`slice_polynomials`).
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
 from ._errors import LevelwiseError, describe
+from ._fitview import categorical_names
 
 
 def _check_shape(shape) -> tuple[int, int]:
@@ -50,16 +52,51 @@ def _slice_factors(fit, x, y) -> tuple[int, int]:
             )
     if x == y:
         raise LevelwiseError(f"The 'x' and 'y' parameters must name two different factors. Got {x!r} twice.")
+    for parameter, value in (("x", x), ("y", y)):
+        if value in categorical_names(fit):
+            raise LevelwiseError(
+                f"The '{parameter}' parameter must be a continuous factor; {value!r} is categorical. "
+                "Slice over two continuous factors and set the categorical one in 'settings'."
+            )
     return names.index(x), names.index(y)
 
 
 def _base_settings(fit, settings) -> np.ndarray:
-    """Natural settings of every factor (the slice factors' values are ignored)."""
-    settings = dict(settings or {})
-    base = {}
+    """Natural settings of every factor (the slice factors' values are ignored).
+
+    Checked by hand rather than through a DataFrame: this runs on every slider event.
+    """
+    if settings is None:
+        settings = {}
+    if not isinstance(settings, dict):
+        raise LevelwiseError(
+            f"The 'settings' parameter must be a dict of factor -> natural setting. Got {describe(settings)} instead."
+        )
+    base = np.empty(len(fit.factor_names))
     for j, name in enumerate(fit.factor_names):
-        base[name] = settings.get(name, (fit.coding.low[j] + fit.coding.high[j]) / 2.0)
-    return fit.settings_array(base)[0]
+        value = settings.get(name, (fit.coding.low[j] + fit.coding.high[j]) / 2.0)
+        try:
+            number = float(np.asarray(value, dtype=float).reshape(-1)[0])
+        except (TypeError, ValueError, IndexError):
+            number = float("nan")
+        if not np.isfinite(number):
+            raise LevelwiseError(
+                f"The setting for factor {name!r} must be a finite number. Got {describe(value)} instead."
+            )
+        base[j] = number
+    return base
+
+
+def _is_polynomial(fit) -> bool:
+    """True when the model is a polynomial in the factors (one exponent column per factor)."""
+    exponents = getattr(fit.spec, "exponents", None)
+    return (
+        not categorical_names(fit)
+        and exponents is not None
+        and np.ndim(exponents) == 2
+        and np.shape(exponents) == (len(fit.beta), len(fit.factor_names))
+        and hasattr(fit, "rinv")
+    )
 
 
 def slice_polynomials(fit, x: str, y: str, settings=None, level: float | None = None) -> dict:
@@ -90,6 +127,10 @@ def slice_polynomials(fit, x: str, y: str, settings=None, level: float | None = 
     """
     level = _check_level(fit, level)
     ix, iy = _slice_factors(fit, x, y)
+    if not _is_polynomial(fit):
+        raise LevelwiseError(
+            f"The model {fit.spec.formula!r} is not a polynomial in the factors, so it has no slice polynomials."
+        )
     base = _base_settings(fit, settings)
     center, scale = np.asarray(fit.coding.center, float), np.asarray(fit.coding.scale, float)
     coded = (base - center) / scale
@@ -174,8 +215,33 @@ def slice_grid(fit, x: str, y: str, settings=None, shape=(100, 100), level: floa
     ix, iy = _slice_factors(fit, x, y)
     xs = np.linspace(fit.coding.low[ix], fit.coding.high[ix], nx)
     ys = np.linspace(fit.coding.low[iy], fit.coding.high[iy], ny)
-    poly = slice_polynomials(fit, x, y, settings, level)
-    out = evaluate_polynomials(poly, xs, ys)
+    if _is_polynomial(fit):
+        out = evaluate_polynomials(slice_polynomials(fit, x, y, settings, level), xs, ys)
+    else:
+        # Not a plain polynomial (e.g. categorical terms): point predictions on the grid.
+        given = dict(settings or {})
+        xx, yy = np.meshgrid(xs, ys)
+        frame = pd.DataFrame(index=range(nx * ny))
+        for j, name in enumerate(fit.factor_names):
+            if name == x:
+                frame[name] = xx.ravel()
+            elif name == y:
+                frame[name] = yy.ravel()
+            elif name in given:
+                frame[name] = [given[name]] * (nx * ny)
+            elif name in categorical_names(fit):
+                raise LevelwiseError(
+                    f"The 'settings' parameter must give a level of categorical factor {name!r}. Got none."
+                )
+            else:
+                frame[name] = (fit.coding.low[j] + fit.coding.high[j]) / 2.0
+        points = fit.predict(frame, level=_check_level(fit, level))
+        mean = points["mean"].to_numpy()
+        out = {
+            "mean": mean.reshape(ny, nx),
+            "ci_half": (points["ci_high"].to_numpy() - mean).reshape(ny, nx),
+            "pi_half": (points["pi_high"].to_numpy() - mean).reshape(ny, nx),
+        }
     return {"x": xs, "y": ys, **out}
 
 

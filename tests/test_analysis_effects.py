@@ -122,3 +122,6 @@ def test_lenth_bad_input(eddy, data_dir):
     data = pd.read_csv(data_dir / "SPLETT3.csv")
     with pytest.raises(LevelwiseError, match="at least 3 effects"):
         lenth(fit(data, "Y", "X1 + X2", factors=CODED))
+    natural = data.assign(X1=data.X1 * 10 + 100)
+    with pytest.raises(LevelwiseError, match="coded units"):
+        effects(fit(natural, "Y", "X1 + X2", coding="none"))

@@ -87,6 +87,38 @@ def test_slice_against_statsmodels_get_prediction(quadratic_data):
         assert grid["pi_half"][i, j] == pytest.approx(frame["obs_ci_upper"].iloc[0] - frame["mean"].iloc[0], rel=1e-9)
 
 
+def test_slice_of_a_saturated_fit_has_a_mean_but_no_intervals(data_dir):
+    data = pd.read_csv(data_dir / "SPLETT3.csv")
+    result = fit(data, "Y", "X1*X2*X3", factors=[Factor(n, -1, 1) for n in ("X1", "X2", "X3")])
+    grid = slice_grid(result, "X1", "X2", {"X3": 1}, shape=(2, 2))
+    # e-Handbook 5.6.1: a saturated fit reproduces the data: run with X1=-1, X2=-1, X3=+1 has Y = 1.51
+    expected = data.query("X1 == -1 and X2 == -1 and X3 == 1")["Y"].iloc[0]
+    assert grid["mean"][0, 0] == pytest.approx(expected, abs=1e-12)
+    assert np.isnan(grid["ci_half"]).all()  # no residual df: intervals not available (common practice)
+
+
+class WithoutPolynomialPath:
+    """A fit seen through a proxy that hides the cached R^-1, forcing the point-prediction path."""
+
+    def __init__(self, inner):
+        self._inner = inner
+
+    def __getattr__(self, name):
+        if name == "rinv":
+            raise AttributeError(name)
+        return getattr(self._inner, name)
+
+
+def test_slice_fallback_for_non_polynomial_models(quadratic_data):
+    data, factors = quadratic_data
+    result = fit(data, "y", "quadratic", factors=factors)
+    settings = {"x3": 240.0, "x5": 2.0}
+    exact = slice_grid(result, "x1", "x4", settings, shape=(6, 5))
+    fallback = slice_grid(WithoutPolynomialPath(result), "x1", "x4", settings, shape=(6, 5))
+    for key in ("mean", "ci_half", "pi_half"):
+        assert np.abs(exact[key] - fallback[key]).max() < 1e-10  # the two evaluations agree
+
+
 def test_slice_bad_input(quadratic_data):
     data, factors = quadratic_data
     result = fit(data, "y", "quadratic", factors=factors)
@@ -98,3 +130,5 @@ def test_slice_bad_input(quadratic_data):
         slice_grid(result, "x1", "x2", {}, shape=(1, 5))
     with pytest.raises(LevelwiseError, match="'level'"):
         slice_grid(result, "x1", "x2", {}, level=1.0)
+    with pytest.raises(LevelwiseError, match="factor 'x3' must be a finite number"):
+        slice_grid(result, "x1", "x2", {"x3": float("nan")})

@@ -95,3 +95,50 @@ def test_lre_helper_caps_at_printed_digits():
     assert lre(1.0, 1.0, "1.00000000000000") == 15
     assert lre(1.0 + 1e-10, 1.0, "1.00000000000000") == pytest.approx(10, abs=0.01)
     assert printed_digits("0.205177424076185E-03") == 15
+
+
+def exact_least_squares(x, y, degree):
+    """Exact least squares by rational arithmetic (Python fractions; the data floats are exact rationals).
+
+    Returns the coefficients, their standard deviations and the residual SD, rounded to float at the end.
+    An independent reference: no floating-point step before the final rounding (square roots in float).
+    """
+    from fractions import Fraction
+
+    X = [[Fraction(float(v)) ** k for k in range(degree + 1)] for v in x]
+    Y = [Fraction(float(v)) for v in y]
+    p, n = degree + 1, len(Y)
+    xtx = [[sum(row[a] * row[b] for row in X) for b in range(p)] for a in range(p)]
+    xty = [sum(row[a] * yy for row, yy in zip(X, Y)) for a in range(p)]
+    aug = [xtx[i] + [Fraction(int(i == j)) for j in range(p)] + [xty[i]] for i in range(p)]
+    for c in range(p):  # Gauss-Jordan elimination, exact
+        pivot = next(r for r in range(c, p) if aug[r][c] != 0)
+        aug[c], aug[pivot] = aug[pivot], aug[c]
+        lead = aug[c][c]
+        aug[c] = [v / lead for v in aug[c]]
+        for r in range(p):
+            if r != c and aug[r][c] != 0:
+                factor = aug[r][c]
+                aug[r] = [a - factor * b for a, b in zip(aug[r], aug[c])]
+    beta = [aug[i][-1] for i in range(p)]
+    inverse_diag = [aug[i][p + i] for i in range(p)]
+    sse = sum((yy - sum(b * v for b, v in zip(beta, row))) ** 2 for row, yy in zip(X, Y))
+    s2 = sse / (n - p)
+    return ([float(b) for b in beta], [math.sqrt(float(s2 * c)) for c in inverse_diag], math.sqrt(float(s2)))
+
+
+def test_degree_ten_polynomial_in_natural_units_matches_exact_arithmetic():
+    # A harder set than the vendored ones, shaped like NIST's Filip (82 runs, degree 10, x in [-8.8, -3.1]),
+    # with invented seeded data; the reference is exact rational arithmetic computed above.
+    import numpy as np
+
+    rng = np.random.default_rng(20261201)
+    x = np.round(rng.uniform(-8.78, -3.13, 82), 6)
+    y = np.round(0.8 + 0.02 * np.sin(x) + rng.normal(0, 0.003, 82), 5)
+    beta, sd, s = exact_least_squares(x, y, 10)  # exact rational arithmetic (Python fractions)
+    model = " + ".join(["x"] + [f"I(x**{k})" for k in range(2, 11)])
+    result = fit(pd.DataFrame({"x": x, "y": y}), "y", model, coding="none")
+    text = "1.00000000000000"  # cap the LRE at 15 significant digits
+    assert min(lre(a, b, text) for a, b in zip(result.beta, beta)) >= REQUIRED_LRE
+    assert min(lre(a, b, text) for a, b in zip(result.coefficients["std_error"], sd)) >= REQUIRED_LRE
+    assert lre(result.s, s, text) >= REQUIRED_LRE

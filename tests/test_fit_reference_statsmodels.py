@@ -10,6 +10,8 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 import statsmodels.formula.api as smf
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from scipy import stats
 from statsmodels.stats.anova import anova_lm
 from statsmodels.stats.outliers_influence import OLSInfluence, variance_inflation_factor
@@ -189,3 +191,21 @@ def test_prediction_intervals_and_extrapolation(case):
     assert bool(outside["extrapolated"].iloc[0])  # A = 40 is beyond the high setting 30
     centre = ours.predict({"A": 20.0, "B": 1.5, "C": 200.0})
     assert not bool(centre["extrapolated"].iloc[0])  # the centre point of the design
+
+
+@settings(max_examples=25, deadline=None)
+@given(seed=st.integers(0, 10_000), drops=st.lists(st.integers(0, 19), min_size=1, max_size=4, unique=True))
+def test_exclusions_equal_a_fresh_fit_property(seed, drops):
+    rng = np.random.default_rng(seed)
+    data = pd.DataFrame(rng.uniform(-1, 1, (20, 3)), columns=["A", "B", "C"])
+    data["y"] = rng.normal(size=20)
+    current = fit(data, "y", "(A+B+C)**2")
+    for run in drops:
+        current = current.exclude(run, "property check")
+    ref = sm.OLS(data["y"].drop(index=drops).to_numpy(), current.X).fit()  # statsmodels refit on the kept runs
+    fresh = fit(data.drop(index=drops), "y", "(A+B+C)**2", factors=[
+        Factor(n, data[n].min(), data[n].max()) for n in "ABC"])  # same coding as the first fit
+    assert current.beta == pytest.approx(ref.params, rel=1e-8, abs=1e-10)
+    assert current.beta == pytest.approx(fresh.beta, rel=1e-8, abs=1e-10)
+    assert current.coefficients["std_error"].to_numpy() == pytest.approx(ref.bse, rel=1e-8)
+    assert list(current.runs) == [r for r in range(20) if r not in drops]

@@ -12,7 +12,23 @@ except ImportError as exc:  # pragma: no cover - depends on the environment
         "levelwise.widgets needs ipywidgets, bqplot and traitlets: pip install levelwise"
     ) from exc
 
+from .design_builder import DesignBuilder
+from .effects_view import EffectsView
 from .factor_sliders import FactorSliders
-from .shared_model import SharedModel
+from .optimizer_view import OptimizerView
+from .predictions_view import PredictionsView
+from .residual_inspector import ResidualInspector
+from .shared_model import ReadOnlyError, SharedModel
+from .surface_slice import SurfaceSlice
 
-__all__ = ["FactorSliders", "SharedModel"]
+__all__ = [
+    "DesignBuilder",
+    "EffectsView",
+    "FactorSliders",
+    "OptimizerView",
+    "PredictionsView",
+    "ReadOnlyError",
+    "ResidualInspector",
+    "SharedModel",
+    "SurfaceSlice",
+]

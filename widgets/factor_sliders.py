@@ -18,7 +18,7 @@ import numpy as np
 from kernel_core import LevelwiseError
 
 from ._base import View, f32, set_if_changed
-from .shared_model import SharedModel
+from .shared_model import SharedModel, is_categorical
 from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, PI_COLOR, WORDS, fmt
 
 
@@ -53,11 +53,14 @@ class FactorSliders(View):
 
     Attributes
     ----------
-    sliders : dict of str -> ipywidgets.FloatSlider
-        One per factor (CSS class ``lw-slider``), bounded to the factor's tested range.
+    sliders : dict of str -> ipywidgets.FloatSlider or ipywidgets.Dropdown
+        One per factor (CSS class ``lw-slider``), bounded to the factor's tested range; a categorical
+        factor gets a Dropdown of its levels (``lw-level-choice``) and no trace.
     readout : ipywidgets.HTML
         Per response: the expected mean with its 95% confidence and prediction intervals, in words
         (CSS ``lw-readout``; spans ``lw-mean``, ``lw-ci``, ``lw-pi``).
+    response_choice : ipywidgets.Dropdown
+        Which response the traces (and every view) display (``lw-response-choice``); allowed read-only.
     notice : ipywidgets.HTML
         The extrapolation notice (``lw-notice``; contains ``lw-extrapolation`` when outside the region).
     traces : dict of str -> bqplot.Figure
@@ -73,9 +76,17 @@ class FactorSliders(View):
         self.notice = ipw.HTML().add_class("lw-notice")
         self.slider_box = ipw.VBox().add_class("lw-slider-box")
         self.trace_box = ipw.HBox(layout=ipw.Layout(flex_flow="row wrap")).add_class("lw-trace-box")
+        self.response_choice = ipw.Dropdown(
+            description="Traces of", options=list(shared.responses), value=shared.response
+        ).add_class("lw-response-choice")
+        self.response_choice.observe(self.safely(self._on_response_choice), names="value")
         self.y_scale = bq.LinearScale()
         self.widget = ipw.VBox(
-            [ipw.HBox([self.slider_box, ipw.VBox([self.readout, self.notice, self.status])]), self.trace_box]
+            [
+                ipw.HBox([self.slider_box, ipw.VBox([self.readout, self.notice, self.status])]),
+                self.response_choice,
+                self.trace_box,
+            ]
         ).add_class("lw-factor-sliders")
         self._build()
         self.watch(self._build, names="factors")
@@ -87,6 +98,13 @@ class FactorSliders(View):
             old.close()
         self.sliders, self.traces, self._marks, self._y_axes = {}, {}, {}, []
         for f in self.shared.factors:
+            if is_categorical(f):
+                choice = ipw.Dropdown(options=list(f.levels), value=self.shared.settings[f.name],
+                                      description=f.label, style={"description_width": "initial"})
+                choice.add_class("lw-level-choice")
+                choice.observe(self.safely(self._on_slider), names="value")
+                self.sliders[f.name] = choice
+                continue
             slider = ipw.FloatSlider(
                 value=self.shared.settings[f.name],
                 min=f.low,
@@ -108,7 +126,7 @@ class FactorSliders(View):
         self._refresh()
 
     def _trace_figure(self, factor):
-        x_scale = bq.LinearScale(min=factor.low, max=factor.high)
+        x_scale = bq.LinearScale(min=factor.low, max=factor.high)  # continuous factors only
         scales = {"x": x_scale, "y": self.y_scale}
         pi_band = bq.Lines(
             scales=scales, fill="between", colors=[PI_COLOR, PI_COLOR], fill_colors=[PI_COLOR],
@@ -140,6 +158,8 @@ class FactorSliders(View):
 
     # ----- browser -> kernel ----------------------------------------------------------------------
     def _on_slider(self, change):
+        if getattr(self, "_restoring", False):
+            return
         name = next(n for n, s in self.sliders.items() if s is change["owner"])
         try:
             self.shared.set_settings(**{name: change["new"]})
@@ -147,19 +167,31 @@ class FactorSliders(View):
             self.shared.error = str(exc)
             change["owner"].value = self.shared.settings[name]  # the model is unchanged: show it
 
+    def _on_response_choice(self, change):
+        if change["new"] in self.shared.responses and change["new"] != self.shared.response:
+            self.shared.response = change["new"]  # a display choice: allowed read-only
+
     def _keep_bounds(self, change):
         """A slider's range is the factor's tested range, whatever a browser sends."""
         slider = change["owner"]
         name = next(n for n, s in self.sliders.items() if s is slider)
         factor = self.shared.factor(name)
         if (slider.min, slider.max) != (factor.low, factor.high):
-            with slider.hold_trait_notifications():
+            self._restoring = True  # a clamp caused by restoring the range is not a user's move
+            try:
                 slider.min, slider.max = factor.low, factor.high
+                slider.value = min(max(self.shared.settings[name], factor.low), factor.high)
+            finally:
+                self._restoring = False
 
     # ----- kernel -> browser ----------------------------------------------------------------------
     def _refresh(self, change=None):
         shared = self.shared
         self.show_shared_error()
+        if list(self.response_choice.options) != list(shared.responses):
+            self.response_choice.options = list(shared.responses)
+        if self.response_choice.value != shared.response:
+            self.response_choice.value = shared.response
         for name, slider in self.sliders.items():
             if slider.value != shared.settings[name]:
                 slider.value = shared.settings[name]

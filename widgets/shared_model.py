@@ -45,6 +45,26 @@ class ReadOnlyError(LevelwiseError):
     """A change was asked of a read-only shared model."""
 
 
+def is_categorical(factor: Factor) -> bool:
+    """True for a factor with named levels (kernel_core ``Factor(name, levels=[...])``)."""
+    return bool(getattr(factor, "is_categorical", False))
+
+
+def default_setting(factor: Factor):
+    """Where a factor starts: its centre, or the first level of a categorical factor."""
+    return factor.levels[0] if is_categorical(factor) else factor.center
+
+
+class _NoneChecked(traitlets.Instance):
+    """An Instance trait whose validators also see ``None`` (traitlets skips them for None by default),
+    so that setting it to None cannot slip past the read-only guard."""
+
+    def _validate(self, obj, value):
+        if value is None and self.allow_none:
+            return self._cross_validate(obj, value) if obj._cross_validation_lock is False else value
+        return super()._validate(obj, value)
+
+
 class SharedModel(traitlets.HasTraits):
     """The study (factors, design, data, responses, models, exclusions, settings) with its current fits.
 
@@ -88,7 +108,7 @@ class SharedModel(traitlets.HasTraits):
     """
 
     factors = traitlets.Tuple(help="The study's factors (kernel_core.Factor), in column order.")
-    design = traitlets.Instance(Design, allow_none=True, help="The planned design, when known.")
+    design = _NoneChecked(Design, allow_none=True, help="The planned design, when known.")
     data = traitlets.Instance(pd.DataFrame, help="The runs, natural units, one column per factor and response.")
     responses = traitlets.Tuple(help="Names of the response columns of the study.")
     units = traitlets.Dict(help="Units of each response: {response: units}.")
@@ -100,12 +120,14 @@ class SharedModel(traitlets.HasTraits):
     )
     settings = traitlets.Dict(help="Current factor settings, natural units: {factor name: value}.")
     fits = traitlets.Dict(help="Current fit of each response; the dict is replaced on every refit, never mutated.")
-    fit = traitlets.Instance(Fit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
+    fit = _NoneChecked(Fit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
     errors = traitlets.Dict(help="Message of the last failed refit of each response.")
     error = traitlets.Unicode("", help="Message of the last failed refit or rejected change ('' when none).")
     level = traitlets.Float(0.95, read_only=True, help="Confidence level of every interval shown.")
     read_only = traitlets.Bool(False, read_only=True, help="When true, only settings and display choices change.")
-    study = traitlets.Any(None, help="The kernel_core Study this model writes through to, when it wraps one.")
+    study = _NoneChecked(
+        object, allow_none=True, help="The kernel_core Study this model writes through to, when it wraps one."
+    )
 
     def __init__(
         self,
@@ -163,7 +185,7 @@ class SharedModel(traitlets.HasTraits):
             self.set_trait("level", float(level))
             if exclusions:
                 self.exclusions = {self._run_id(run): self._reason(reason) for run, reason in exclusions.items()}
-            self.settings = {f.name: f.center for f in factors} | dict(settings or {})
+            self.settings = {f.name: default_setting(f) for f in factors} | dict(settings or {})
             self._refit()
         self.set_trait("read_only", bool(read_only))  # last: the model is built before it is locked
         self.observe(self._on_response, names="response")
@@ -246,6 +268,16 @@ class SharedModel(traitlets.HasTraits):
             raise LevelwiseError(f"The settings name unknown factor(s) {unknown}; known: {sorted(by_name)}.")
         clean = dict(self.settings) if self.settings else {}
         for name, raw in value.items():
+            factor = by_name[name]
+            if is_categorical(factor):
+                matches = [level for level in factor.levels if level == raw or str(level) == str(raw)]
+                if not matches:
+                    raise LevelwiseError(
+                        f"The setting of {name!r} must be one of its levels {list(factor.levels)}. "
+                        f"Got {describe(raw)} instead."
+                    )
+                clean[name] = matches[0]
+                continue
             if isinstance(raw, bool):
                 raise LevelwiseError(f"The setting of {name!r} must be a number. Got {raw!r} instead.")
             try:
@@ -254,7 +286,6 @@ class SharedModel(traitlets.HasTraits):
                 raise LevelwiseError(f"The setting of {name!r} must be a number. Got {describe(raw)}.") from None
             if not np.isfinite(number):
                 raise LevelwiseError(f"The setting of {name!r} must be finite. Got {raw!r} instead.")
-            factor = by_name[name]
             if self.read_only and not factor.low <= number <= factor.high:
                 raise ReadOnlyError(
                     f"This dashboard is read-only: the setting of {name!r} must stay in the tested range "
@@ -411,7 +442,7 @@ class SharedModel(traitlets.HasTraits):
             self.exclusions = {}
             self.goals = {}
             self.response = names[0]
-            self.settings = {f.name: f.center for f in design.factors}
+            self.settings = {f.name: default_setting(f) for f in design.factors}
             self.study = None
         self._refit()
 
@@ -444,6 +475,20 @@ class SharedModel(traitlets.HasTraits):
         for run, reason in exclusions.items():
             label = self.label_of(run)
             if label in result.runs:  # a run with no value for this response is not in its fit
+                result = result.exclude(label, reason)
+        return result
+
+    def fit_model(self, model: str, response: str | None = None):
+        """A fresh kernel fit of *model* for *response* (default: displayed) on the current runs.
+
+        Nothing in the shared model changes (allowed read-only): views use it to look at a
+        candidate model, e.g. every two-factor interaction for a half-normal plot.
+        """
+        name = self._check_response_name(self.response if response is None else response)
+        result = fit(self.data, name, model, factors=self.factors, level=self.level)
+        for run, reason in self.exclusions.items():
+            label = self.label_of(run)
+            if label in result.runs:
                 result = result.exclude(label, reason)
         return result
 
@@ -492,10 +537,13 @@ class SharedModel(traitlets.HasTraits):
                 return f
         raise LevelwiseError(f"The factor must be one of {[f.name for f in self.factors]}. Got {describe(name)}.")
 
-    def settings_row(self) -> np.ndarray:
-        """Current settings as a (1, k) array in factor order."""
-        return np.array([[self.settings[f.name] for f in self.factors]])
+    def continuous_factors(self) -> list[Factor]:
+        """The factors with a low and a high setting (those a slider or a slice axis can move)."""
+        return [f for f in self.factors if not is_categorical(f)]
 
     def extrapolating(self) -> list[str]:
         """Names of factors whose current setting lies outside the tested range."""
-        return [f.name for f in self.factors if not f.low <= self.settings[f.name] <= f.high]
+        return [
+            f.name for f in self.factors
+            if not is_categorical(f) and not f.low <= self.settings[f.name] <= f.high
+        ]

@@ -22,6 +22,7 @@ import ipywidgets as ipw
 import numpy as np
 
 from kernel_core import LevelwiseError
+from kernel_core.optimize import as_goal, overall_desirability
 from kernel_core.surface import slice_grid
 
 from ._base import Coalescer, View, f32, set_if_changed
@@ -74,16 +75,14 @@ class SurfaceSlice(View):
         Grid points along x and y.
     contours : int, default 8
         Number of contour levels.
-    desirability : callable, optional
-        ``desirability(shared, x_values, y_values) -> (ny, nx) array`` of the overall
-        desirability on the grid; the optimiser view supplies it once goals are set.
 
     Attributes
     ----------
     x_factor, y_factor : ipywidgets.Dropdown
         Axis factors (``lw-slice-x``, ``lw-slice-y``); a display choice, allowed read-only.
     quantity : ipywidgets.ToggleButtons
-        ``mean``, ``ci_half``, ``pi_half`` or ``desirability`` (``lw-slice-quantity``).
+        ``mean``, ``ci_half``, ``pi_half`` or ``desirability`` (``lw-slice-quantity``); the overall
+        desirability uses the shared model's ``goals`` (kernel_core ``Goal`` and ``overall_desirability``).
     figure : bqplot.Figure
         ``lw-slice``: ``heatmap`` (HeatMap), ``contour_lines`` (Lines), ``contour_labels`` (Label),
         ``points`` (design points, Scatter), ``marker`` (current setting), ``targets`` (click grid).
@@ -91,14 +90,13 @@ class SurfaceSlice(View):
         The whole view (``lw-surface-slice``).
     """
 
-    def __init__(self, shared: SharedModel, *, x=None, y=None, shape=(100, 100), contours=8, desirability=None):
+    def __init__(self, shared: SharedModel, *, x=None, y=None, shape=(100, 100), contours=8):
         super().__init__(shared)
         self.shape = tuple(int(v) for v in shape)
         self.n_contours = int(contours)
-        self.desirability = desirability
-        names = [f.name for f in shared.factors]
+        names = [f.name for f in shared.continuous_factors()]
         if len(names) < 2:
-            raise LevelwiseError(f"A surface slice needs at least two factors. Got {names}.")
+            raise LevelwiseError(f"A surface slice needs at least two continuous factors. Got {names}.")
         x = names[0] if x is None else x
         y = next(n for n in names if n != x) if y is None else y
         self.x_factor = ipw.Dropdown(options=names, value=x, description="Across").add_class("lw-slice-x")
@@ -135,7 +133,7 @@ class SurfaceSlice(View):
             marker="square",
         )
         self.targets = bq.Scatter(
-            scales={"x": self.sx, "y": self.sy}, default_opacities=[0.0], default_size=120, marker="square",
+            scales={"x": self.sx, "y": self.sy}, opacities=[0.0], default_size=120, marker="square",
             colors=["#000000"],
         )
         self.targets.on_element_click(self.safely(self._on_click))
@@ -160,16 +158,32 @@ class SurfaceSlice(View):
         self._coalescer = Coalescer(self.safely(self._redraw))
         for control in (self.x_factor, self.y_factor, self.quantity):
             control.observe(self.safely(self._on_choice), names="value")
+        self.watch(self._on_factors, names=["factors"])
         self.watch(self._on_shared, names=["fits", "fit", "settings", "response", "exclusions", "error", "goals"])
         self._redraw()
 
     # ----- events -------------------------------------------------------------------------------
     def _on_choice(self, change):
+        if getattr(self, "_building", False):
+            return
         if self.x_factor.value == self.y_factor.value:
-            other = next(f.name for f in self.shared.factors if f.name != self.x_factor.value)
+            other = next(f.name for f in self.shared.continuous_factors() if f.name != self.x_factor.value)
             owner = change["owner"]
             (self.y_factor if owner is self.x_factor else self.x_factor).value = other
             return
+        self._coalescer.request()
+
+    def _on_factors(self, change=None):
+        names = [f.name for f in self.shared.continuous_factors()]
+        if len(names) < 2:
+            raise LevelwiseError(f"A surface slice needs at least two continuous factors. Got {names}.")
+        self._building = True
+        try:
+            self.x_factor.options, self.y_factor.options = names, names
+            self.x_factor.value, self.y_factor.value = names[0], names[1]
+        finally:
+            self._building = False
+        self._key = None
         self._coalescer.request()
 
     def _on_shared(self, change=None):
@@ -196,15 +210,19 @@ class SurfaceSlice(View):
 
     # ----- drawing ------------------------------------------------------------------------------
     def _quantity_grid(self, current, x, y):
-        if self.quantity.value == "desirability":
-            if self.desirability is None:
-                raise LevelwiseError(
-                    "The overall desirability needs goals: set them in the optimiser view first."
-                )
-            grid = slice_grid(current, x, y, self.shared.settings, shape=self.shape)
-            return grid, self.desirability(self.shared, grid["x"], grid["y"])
         grid = slice_grid(current, x, y, self.shared.settings, shape=self.shape)
-        return grid, grid[self.quantity.value]
+        if self.quantity.value != "desirability":
+            return grid, grid[self.quantity.value]
+        goals = {r: g for r, g in self.shared.goals.items() if r in self.shared.fits}
+        if not goals:
+            raise LevelwiseError("The overall desirability needs goals: set them in the optimiser view first.")
+        d, weights = [], []
+        for response, spec in goals.items():
+            goal = as_goal(spec, response)
+            mean = slice_grid(self.shared.fits[response], x, y, self.shared.settings, shape=self.shape)["mean"]
+            d.append(goal(mean))
+            weights.append(goal.importance)
+        return grid, overall_desirability(np.stack(d, axis=-1), weights)
 
     def _redraw(self):
         shared, current = self.shared, self.shared.fit
@@ -216,7 +234,7 @@ class SurfaceSlice(View):
         if current is None:
             self.caption.value = "No fit to draw yet: record some responses first."
             return
-        others = tuple((n, v) for n, v in sorted(shared.settings.items()) if n not in (x, y))
+        others = tuple((n, v) for n, v in sorted(shared.settings.items(), key=lambda kv: kv[0]) if n not in (x, y))
         key = (id(current), self.quantity.value, x, y, others, id(shared.exclusions), id(shared.goals))
         if key == self._key:
             return
@@ -253,7 +271,10 @@ class SurfaceSlice(View):
         self.x_axis.label, self.y_axis.label = fx.label, fy.label
         units = shared.response_units if self.quantity.value != "desirability" else ""
         self.color_axis.label = f"{shared.response} ({units})" if units else shared.response
-        held = ", ".join(f"{html.escape(n)} = {v:.4g}" for n, v in others) or "no other factors"
+        held = ", ".join(
+            f"{html.escape(n)} = {v:.4g}" if isinstance(v, float) else f"{html.escape(n)} = {html.escape(str(v))}"
+            for n, v in others
+        ) or "no other factors"
         self.caption.value = (
             f"<b>{html.escape(shared.response)}</b>: {SURFACE_QUANTITIES[self.quantity.value]}; "
             f"other factors held at {held}. Dots: runs of the design (hollow grey squares: excluded). "

@@ -1,0 +1,47 @@
+"""Factors: categorical levels, validation, default names."""
+
+import pytest
+
+from kernel_core import Factor, LevelwiseError, full_factorial
+from kernel_core.factors import as_factors, default_names
+
+
+def test_continuous_factor_unchanged():
+    f = Factor("Oven", 160, 200, units="°C")
+    assert not f.is_categorical and f.levels == ()
+    assert f.to_coded(200) == 1.0 and f.to_natural(-1) == 160.0  # -1/+1 at low/high (common practice)
+
+
+def test_categorical_factor():
+    f = Factor("Metal", levels=["steel", "brass"])
+    assert f.is_categorical and f.levels == ("steel", "brass")
+    assert f.to_natural(-1) == "steel" and f.to_coded("brass") == 1.0
+    three = Factor("Supplier", levels=["a", "b", "c"])
+    with pytest.raises(LevelwiseError, match="categorical"):
+        three.to_coded("a")
+
+
+def test_categorical_in_two_level_design():
+    d = full_factorial([Factor("Oven", 160, 200), Factor("Metal", levels=["steel", "brass"])], randomize=False)
+    assert sorted(d.table["Metal"].tolist()) == ["brass", "brass", "steel", "steel"]
+    assert set(d.coded["Metal"]) == {-1.0, 1.0}
+    with pytest.raises(LevelwiseError, match="center_points.*categorical"):
+        full_factorial([Factor("Oven", 160, 200), Factor("Metal", levels=["steel", "brass"])], center_points=2)
+
+
+def test_factor_validation():
+    with pytest.raises(LevelwiseError, match="at least 2 distinct levels"):
+        Factor("Metal", levels=["steel"])
+    with pytest.raises(LevelwiseError, match="at least 2 distinct levels"):
+        Factor("Metal", levels=["steel", "steel"])
+    with pytest.raises(LevelwiseError, match="either 'low' and 'high'.*or 'levels'"):
+        Factor("Metal", 0, 1, levels=["a", "b"])
+    with pytest.raises(LevelwiseError, match="needs 'low' and 'high'"):
+        Factor("Oven")
+    with pytest.raises(LevelwiseError, match="appears more than once"):
+        as_factors([Factor("A", 0, 1), Factor("A", levels=["x", "y"])])
+
+
+def test_default_names_skip_i():
+    assert default_names(10) == list("ABCDEFGHJK")  # I skipped: it reads as the identity (common practice)
+    assert [f.name for f in as_factors(9)][-1] == "J"

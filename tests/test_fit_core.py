@@ -1,0 +1,320 @@
+"""kernel_core.fit: aliasing named, achieved settings, missing responses, saturated fits, categorical factors,
+natural-unit coefficients and bad input. Each expected value names its source beside it."""
+
+import itertools
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+import statsmodels.api as sm
+import statsmodels.formula.api as smf
+
+from kernel_core import Factor, LevelwiseError, LevelwiseWarning, fit, full_factorial
+
+CODED5 = [Factor(name, -1, 1) for name in "ABCDE"]
+
+
+def half_fraction_with_centres(centres=3, seed=0):
+    """2^(5-1) with generator E = ABCD (resolution V, common practice), plus centre points."""
+    corners = np.array(list(itertools.product((-1.0, 1.0), repeat=4)))
+    runs = np.column_stack([corners, corners.prod(axis=1)])
+    runs = np.vstack([runs, np.zeros((centres, 5))])
+    data = pd.DataFrame(runs, columns=list("ABCDE"))
+    rng = np.random.default_rng(seed)
+    data["y"] = 10 + data.A - 0.5 * data.B * data.C + rng.normal(0, 0.1, len(data))
+    return data
+
+
+# ----- aliasing --------------------------------------------------------------------------------------------------
+def test_full_quadratic_on_half_fraction_names_inestimable_squares():
+    data = half_fraction_with_centres()
+    # Common practice: on a two-level design with centre points all squared columns are equal (1 at corners,
+    # 0 at centres), so only one pure quadratic is estimable; B^2..E^2 are each the same column as A^2.
+    with pytest.raises(LevelwiseError) as info:
+        fit(data, "y", "quadratic", factors=CODED5)
+    message = str(info.value)
+    for term in ["B^2", "C^2", "D^2", "E^2"]:
+        assert f"'{term}' = +1*A^2" in message
+    assert "4 term(s) are aliased" in message
+    with pytest.warns(LevelwiseWarning, match="They were dropped from the fit"):
+        result = fit(data, "y", "quadratic", factors=CODED5, on_rank_deficiency="warn")
+    assert list(result.aliased) == ["B^2", "C^2", "D^2", "E^2"]
+    assert set(result.aliased.values()) == {"+1*A^2"}
+    # Resolution V (E = ABCD): every main effect and 2-factor interaction stays estimable (common practice).
+    assert len(result.terms) == 1 + 5 + 10 + 1
+    assert "B^2" not in result.coefficients.index
+    assert np.isfinite(result.coefficients["std_error"]).all()
+
+
+def test_no_minimum_norm_split_in_warn_mode():
+    data = half_fraction_with_centres(seed=4)
+    with pytest.warns(LevelwiseWarning):
+        result = fit(data, "y", "quadratic", factors=CODED5, on_rank_deficiency="warn")
+    # The kept A^2 carries the whole curvature: equal to a fit with A^2 as the only square (statsmodels OLS).
+    cols = [np.ones(len(data))] + [data[c] for c in "ABCDE"]
+    cols += [data[a] * data[b] for a, b in itertools.combinations("ABCDE", 2)] + [data.A**2]
+    ref = sm.OLS(data["y"].to_numpy(), np.column_stack(cols)).fit()
+    assert result.beta == pytest.approx(ref.params, rel=1e-9, abs=1e-12)
+
+
+def test_bad_on_rank_deficiency_value():
+    with pytest.raises(LevelwiseError, match="'on_rank_deficiency' parameter must be 'raise' or 'warn'. Got 'drop'"):
+        fit(half_fraction_with_centres(), "y", "linear", on_rank_deficiency="drop")
+
+
+# ----- achieved settings -----------------------------------------------------------------------------------------
+FACTORS3 = [Factor("A", 10, 30), Factor("B", 1, 2), Factor("C", 100, 200)]
+
+
+def planned_design():
+    data = full_factorial(FACTORS3, center_points=2, randomize=False).table.copy()
+    rng = np.random.default_rng(8)
+    data["y"] = 3 + 0.1 * data.A + data.B + rng.normal(0, 0.2, len(data))
+    return data
+
+
+def ols_on(settings, y, model_terms):
+    coded = {f.name: (settings[f.name] - f.center) / f.half_range for f in FACTORS3}
+    cols = [np.ones(len(settings))] + [np.prod([coded[n] for n in t.split(":")], axis=0) for t in model_terms]
+    return sm.OLS(np.asarray(y), np.column_stack(cols)).fit()
+
+
+def test_achieved_settings_change_the_fit_exactly_as_a_refit():
+    data = planned_design()
+    data["A (achieved)"] = data["A"]
+    data["B (achieved)"] = np.nan  # nothing recorded for B: the plan stands
+    data.loc[2, "A (achieved)"] = data.loc[2, "A"] + 1.7
+    data.loc[5, "B (achieved)"] = data.loc[5, "B"] - 0.08
+    result = fit(data, "y", "A + B + C + A:B", factors=FACTORS3)
+    perturbed = data[["A", "B", "C"]].copy()
+    perturbed.loc[2, "A"] += 1.7
+    perturbed.loc[5, "B"] -= 0.08
+    ref = ols_on(perturbed, data["y"], ["A", "B", "C", "A:B"])  # statsmodels OLS refit on the perturbed matrix
+    assert result.beta == pytest.approx(ref.params, rel=1e-10, abs=1e-12)
+    assert result.coefficients["std_error"].to_numpy() == pytest.approx(ref.bse, rel=1e-10)
+    planned_only = fit(data.drop(columns=["A (achieved)", "B (achieved)"]), "y", "A + B + C + A:B", factors=FACTORS3)
+    assert not np.allclose(planned_only.beta, result.beta)
+    dev = result.setting_deviations
+    assert dev.loc[2, "A"] == pytest.approx(1.7) and dev.loc[5, "B"] == pytest.approx(-0.08)  # the perturbations
+    assert (dev.drop(index=[2, 5]).to_numpy() == 0).all()
+    assert planned_only.setting_deviations is None
+
+
+def test_achieved_mapping_with_own_column_names():
+    data = planned_design()
+    data["A reached"] = data["A"] + np.linspace(-0.5, 0.5, len(data))
+    result = fit(data, "y", "A + B", factors=FACTORS3, achieved={"A": "A reached"})
+    perturbed = data[["A", "B", "C"]].assign(A=data["A reached"])
+    ref = ols_on(perturbed, data["y"], ["A", "B"])  # statsmodels OLS on the achieved matrix
+    assert result.beta == pytest.approx(ref.params, rel=1e-10)
+    with pytest.raises(LevelwiseError, match="maps factor 'A' to column 'nope', which is not in the data"):
+        fit(data, "y", "A + B", factors=FACTORS3, achieved={"A": "nope"})
+
+
+# ----- missing responses -----------------------------------------------------------------------------------------
+def test_missing_response_keeps_all_mains_and_two_factor_interactions():
+    factors = [Factor(n, -1, 1) for n in "ABCD"]
+    data = full_factorial(factors, randomize=False).table.copy()
+    rng = np.random.default_rng(2)
+    data["y"] = 5 + data.A + 0.5 * data.B * data.C + rng.normal(0, 0.3, 16)
+    data.loc[6, "y"] = np.nan
+    result = fit(data, "y", "(A+B+C+D)**2", factors=factors)
+    assert result.missing_runs == (6,)
+    assert result.n == 15 and len(result.terms) == 11  # 1 + 4 mains + 6 2FIs (common practice)
+    assert np.isfinite(result.coefficients["std_error"]).all()
+    # Independently: numpy corrcoef on the 10 model columns of the 15 runs left.
+    kept = data.drop(index=6)
+    cols = [kept[c].to_numpy() for c in "ABCD"] + [kept[a].to_numpy() * kept[b].to_numpy()
+                                                    for a, b in itertools.combinations("ABCD", 2)]
+    corr = np.corrcoef(np.column_stack(cols), rowvar=False)
+    np.fill_diagonal(corr, 0)
+    assert result.max_abs_correlation == pytest.approx(np.abs(corr).max(), rel=1e-12)  # numpy corrcoef
+    assert result.max_abs_correlation > 0.05  # orthogonality really is lost
+    assert result.orthogonality["missing_runs"] == (6,)
+    full = fit(data.fillna({"y": 0.0}), "y", "(A+B+C+D)**2", factors=factors)
+    assert full.max_abs_correlation == pytest.approx(0.0, abs=1e-12)  # 2^4 full factorial is orthogonal
+
+
+def test_all_responses_missing():
+    data = planned_design().assign(y=np.nan)
+    with pytest.raises(LevelwiseError, match="response column 'y' has no values: every run is missing"):
+        fit(data, "y", "A + B")
+
+
+# ----- saturated fits ------------------------------------------------------------------------------------------
+def test_saturated_fit_never_crashes(data_dir):
+    eddy = pd.read_csv(data_dir / "SPLETT3.csv")
+    result = fit(eddy, "Y", "X1*X2*X3", factors=[Factor(n, -1, 1) for n in ("X1", "X2", "X3")])
+    assert result.df_resid == 0
+    coef = result.coefficients
+    assert coef.loc["X1", "estimate"] == pytest.approx(1.55125, abs=5e-6)  # e-Handbook 5.6.1 full model
+    assert coef[["std_error", "t", "p_value", "ci_low"]].isna().all().all()
+    assert result.anova["F"].isna().all()
+    assert result.diagnostics["leverage"].to_numpy() == pytest.approx(np.ones(8))  # saturated: h = 1 (common practice)
+    assert np.isnan(result.press)
+    pred = result.predict({"X1": 0.5, "X2": 0.0, "X3": -0.5})
+    assert np.isnan(pred["pi_high"].iloc[0]) and np.isfinite(pred["mean"].iloc[0])
+
+
+# ----- e-Handbook 5.6.1 pseudo-replication -----------------------------------------------------------------------
+def test_eddy_current_main_effects_and_interactions(data_dir):
+    published = json.loads((data_dir / "ehandbook_published_results.json").read_text())["eddy_current_5_6_1"]
+    eddy = pd.read_csv(data_dir / "SPLETT3.csv")
+    result = fit(eddy, "Y", "(X1+X2+X3)**2", factors=[Factor(n, -1, 1) for n in ("X1", "X2", "X3")])
+    assert result.s == pytest.approx(published["published"]["pseudo_replication_sd"], abs=5e-8)  # e-Handbook 5.6.1
+    assert result.coefficients["std_error"].to_numpy() == pytest.approx(
+        [published["published"]["coef_se_from_pseudo_sd"]] * 7, abs=5e-6)  # e-Handbook 5.6.1 SE 0.07125
+    t = result.coefficients["t"]
+    for name, value in published["published"]["t_values"].items():  # e-Handbook 5.6.1 t values (2 decimals)
+        term = ":".join(f"X{d}" for d in name[1:].split("X"))
+        # The handbook's t is effect / SE(effect) = coefficient / SE(coefficient).
+        assert t[term] == pytest.approx(value, abs=5e-3), term
+
+
+def test_eddy_current_reduced_model_f(data_dir):
+    published = json.loads((data_dir / "ehandbook_published_results.json").read_text())["eddy_current_5_6_1"]
+    reduced = published["published"]["reduced_model_x1_x2"]
+    eddy = pd.read_csv(data_dir / "SPLETT3.csv")
+    result = fit(eddy, "Y", "X1 + X2", factors=[Factor(n, -1, 1) for n in ("X1", "X2", "X3")])
+    assert result.anova.loc["Model", "F"] == pytest.approx(reduced["F"], abs=0.05)  # e-Handbook 5.6.1 F 112.1
+    assert result.anova.loc["Model", "df"] == reduced["F_df"][0]  # e-Handbook 5.6.1
+    assert result.anova.loc["Model", "p_value"] == pytest.approx(reduced["F_p_value"], rel=1e-3)  # e-Handbook 5.6.1
+
+
+# ----- categorical factors ---------------------------------------------------------------------------------------
+def categorical_data():
+    rng = np.random.default_rng(9)
+    data = pd.DataFrame({
+        "Temp": np.tile([-1.0, 1.0, -1.0, 1.0], 6),
+        "Supplier": np.repeat(["north", "east", "west"], 8),
+    })
+    effect = data["Supplier"].map({"north": 0.5, "east": -0.2, "west": -0.3})
+    data["y"] = 4 + data.Temp + effect + 0.3 * data.Temp * effect + rng.normal(0, 0.1, len(data))
+    return data
+
+
+def test_categorical_sum_to_zero_matches_statsmodels():
+    data = categorical_data()
+    result = fit(data, "y", "Temp * Supplier")
+    # statsmodels with patsy Sum (sum-to-zero) contrasts over the levels in sorted order, the first level
+    # omitted (it is minus the sum of the others), as we document.
+    ref = smf.ols("y ~ Temp * C(Supplier, Sum(omit=0))", data=data).fit()
+    assert result.terms == ("Intercept", "Temp", "Supplier[north]", "Supplier[west]",
+                            "Temp:Supplier[north]", "Temp:Supplier[west]")
+    c = "C(Supplier, Sum(omit=0))"
+    names = ["Intercept", "Temp", f"{c}[S.north]", f"{c}[S.west]", f"Temp:{c}[S.north]", f"Temp:{c}[S.west]"]
+    assert result.beta == pytest.approx(ref.params[names].to_numpy(), rel=1e-10)
+    assert result.coefficients["std_error"].to_numpy() == pytest.approx(ref.bse[names].to_numpy(), rel=1e-10)
+    assert result.categories == {"Supplier": ("east", "north", "west")}
+    assert result.anova.loc["Supplier", "df"] == 2 and result.anova.loc["Temp:Supplier", "df"] == 2
+    new = pd.DataFrame({"Temp": [0.5, -0.5], "Supplier": ["west", "north"]})
+    exog = pd.DataFrame({"Temp": [0.5, -0.5], "Supplier": ["west", "north"]})
+    frame = ref.get_prediction(exog).summary_frame(alpha=0.05)  # statsmodels get_prediction
+    got = result.predict(new)
+    assert got["mean"].to_numpy() == pytest.approx(frame["mean"].to_numpy(), rel=1e-10)
+    assert got["pi_high"].to_numpy() == pytest.approx(frame["obs_ci_upper"].to_numpy(), rel=1e-10)
+    trace = result.trace("Supplier", {"Temp": 0.0, "Supplier": "east"})
+    assert list(trace["x"]) == ["east", "north", "west"]
+
+
+def test_unseen_categorical_level_at_prediction():
+    result = fit(categorical_data(), "y", "Temp + Supplier")
+    with pytest.raises(LevelwiseError, match="categorical factor 'Supplier' in row 1 is level 'south', which was not "
+                                             r"in the data of this fit. Allowed levels: \['east', 'north', 'west'\]"):
+        result.predict({"Temp": 0.0, "Supplier": "south"})
+
+
+# ----- natural units ----------------------------------------------------------------------------------------------
+def test_natural_coefficients_match_a_fit_in_natural_units():
+    data = planned_design()
+    data["A"] = data["A"] + np.linspace(-1, 1, len(data))  # break the balance a little
+    coded = fit(data, "y", "A + B + C + A:B + I(A**2)", factors=FACTORS3)
+    natural = coded.coefficients_natural
+    ref = smf.ols("y ~ A + B + C + A:B + I(A**2)", data=data).fit()  # statsmodels OLS in natural units
+    assert list(natural.index) == ["Intercept", "A", "B", "C", "A:B", "A^2"]
+    assert natural["estimate"].to_numpy() == pytest.approx(ref.params.to_numpy(), rel=1e-8)
+    assert natural["std_error"].to_numpy() == pytest.approx(ref.bse.to_numpy(), rel=1e-8)
+    none = fit(data, "y", "A + B + C + A:B + I(A**2)", coding="none")
+    assert none.beta == pytest.approx(ref.params.to_numpy(), rel=1e-8)
+    assert none.r_squared == pytest.approx(ref.rsquared, rel=1e-12)  # statsmodels rsquared
+    assert coded.r_squared == pytest.approx(ref.rsquared, rel=1e-12)  # coding does not change the fit
+
+
+def test_declared_categorical_factor_uses_its_level_order_and_levels_seen():
+    data = categorical_data()
+    factors = [Factor("Temp", -1, 1), Factor("Supplier", levels=["west", "north", "east", "south"])]
+    result = fit(data, "y", "Temp + Supplier", factors=factors)
+    # "south" was never run: the contrasts cover the three levels seen, in the declared order.
+    assert result.categories == {"Supplier": ("west", "north", "east")}
+    assert result.terms == ("Intercept", "Temp", "Supplier[north]", "Supplier[east]")
+    # Sum-to-zero: the effect of the first level is minus the sum of the others (patsy Sum contrasts, statsmodels).
+    ref = smf.ols("y ~ Temp + C(Supplier, Sum(omit=0), levels=['west', 'north', 'east'])", data=data).fit()
+    assert result.beta == pytest.approx(ref.params.to_numpy()[[0, 3, 1, 2]], rel=1e-10)
+    with pytest.raises(LevelwiseError, match="level 'south', which was not in the data of this fit"):
+        result.predict({"Temp": 0.0, "Supplier": "south"})
+    bad = data.copy()
+    bad.loc[0, "Supplier"] = "mars"
+    with pytest.raises(LevelwiseError, match="column 'Supplier' holds level 'mars', which is not a level"):
+        fit(bad, "y", "Temp + Supplier", factors=factors)
+
+
+def test_categorical_factor_needs_two_distinct_levels():
+    with pytest.raises(LevelwiseError, match="'levels' of factor 'S' must be at least 2 distinct levels"):
+        Factor("S", levels=["a"])
+    assert Factor("S", levels=["a", "b"]).is_categorical and not Factor("T", 0, 1).is_categorical
+
+
+def test_natural_coefficients_of_a_non_hierarchical_model_list_the_extra_monomials():
+    data = planned_design()
+    coded = fit(data, "y", "A + A:B", factors=FACTORS3)
+    natural = coded.coefficients_natural
+    # (A-20)/10 * (B-1.5)/0.5 expands to AB/5 - 0.3 A - 4 B + 6 (algebra): B appears although not in the model.
+    assert list(natural.index) == ["Intercept", "A", "A:B", "B"]
+    b = coded.beta
+    assert natural.loc["A:B", "estimate"] == pytest.approx(b[2] / 5)  # algebra above
+    assert natural.loc["B", "estimate"] == pytest.approx(-4 * b[2])  # algebra above
+    assert natural.loc["A", "estimate"] == pytest.approx(b[1] / 10 - 0.3 * b[2])  # algebra above
+    assert natural.loc["Intercept", "estimate"] == pytest.approx(b[0] - 2 * b[1] + 6 * b[2])  # algebra above
+
+
+def test_more_bad_input():
+    data = planned_design()
+    result = fit(data, "y", "A + B", factors=FACTORS3)
+    with pytest.raises(LevelwiseError, match=r"'level' parameter must be a number in the open interval .* Got 0"):
+        result.predict({"A": 20, "B": 1.5, "C": 150}, level=0)
+    with pytest.raises(LevelwiseError, match="setting column 'A' must hold finite numbers"):
+        result.predict({"A": -np.inf, "B": 1.5, "C": 150})
+    with pytest.raises(LevelwiseError, match=r"'run' parameter of include must be an excluded run \[\]. Got 3"):
+        result.include(3)
+    text = data.astype({"B": object})
+    text.loc[4, "B"] = "high"
+    with pytest.raises(LevelwiseError, match=r"factor column 'B' must hold numbers. Row 5 .* holds 'high'"):
+        fit(text, "y", "A + B", factors=FACTORS3)
+    with pytest.raises(LevelwiseError, match="'Zeta' names an unknown factor"):
+        fit(data, "y", "A + Zeta", factors=FACTORS3)
+
+
+def test_extrapolation_by_leverage_inside_the_ranges():
+    # Runs on the diagonal A = B only: a point at (low, high) is inside both ranges but far from every run,
+    # so its leverage exceeds the largest leverage of the design (the rule of issue 4).
+    data = pd.DataFrame({"A": [0.0, 0.5, 1.0, 0.0, 1.0, 0.5], "B": [0.0, 0.5, 1.0, 0.1, 0.9, 0.45]})
+    data["y"] = [1.0, 2.0, 3.1, 1.2, 2.9, 2.1]
+    result = fit(data, "y", "A + B")
+    pred = result.predict(pd.DataFrame({"A": [0.0, 0.5], "B": [1.0, 0.5]}))
+    assert pred["leverage"].iloc[0] > result.leverage.max()
+    assert list(pred["extrapolated"]) == [True, False]
+
+
+def test_fit_is_immutable_and_exclusion_leaves_the_original_alone():
+    data = planned_design()
+    result = fit(data, "y", "A + B + C", factors=FACTORS3)
+    before = result.beta.copy()
+    with pytest.raises(ValueError):  # numpy: assignment destination is read-only
+        result.beta[0] = 0.0
+    with pytest.raises(AttributeError):  # frozen dataclass
+        result.level = 0.9
+    reduced = result.exclude(2, "spilled sample")
+    assert result.beta == pytest.approx(before, rel=0, abs=0) and result.n == len(data)
+    assert reduced.exclusions == ((2, "spilled sample"),) and result.exclusions == ()
+    assert reduced.orthogonality["excluded_runs"] == (2,)

@@ -1,0 +1,460 @@
+"""Every view on one shared model, driven headless through traits, methods and browser-shaped messages.
+
+Reference numbers come from kernel_core called directly in the test (the views must show exactly the
+kernel's numbers); the demo data is the invented, seeded scenario of kernel_core/demo.py.
+"""
+
+from __future__ import annotations
+
+import asyncio
+from unittest import mock
+
+import numpy as np
+import pandas as pd
+import pytest
+import traitlets
+from widget_support import browser_event, browser_update, install_recording_comm, message_bytes
+
+from kernel_core import LevelwiseError, central_composite, demo, fit, optimize
+from kernel_core.surface import slice_grid
+from widgets import (
+    DesignBuilder,
+    EffectsView,
+    FactorSliders,
+    OptimizerView,
+    PredictionsView,
+    ReadOnlyError,
+    ResidualInspector,
+    SharedModel,
+    SurfaceSlice,
+)
+from widgets.style import fmt
+
+F32 = {"rel": 2e-6, "abs": 2e-5}  # float32 on the wire: ~7 significant digits
+
+
+def demo_data_two_responses() -> pd.DataFrame:
+    """The demo runs plus a second INVENTED response (gloss, GU), seeded, for several-response checks."""
+    data = demo.demo_data()
+    coded = demo.demo_design().coded
+    rng = np.random.default_rng(7)  # invented data, seeded
+    data["Gloss"] = np.round(80 - 4 * coded["Oven"] + 3 * coded["Film"] + rng.normal(0, 0.8, len(data)), 1)
+    return data
+
+
+def make_shared(read_only=False, data=None):
+    data = demo.demo_data() if data is None else data
+    responses = [r for r in ("Impact", "Gloss") if r in data]
+    return SharedModel(
+        demo.FACTORS, data, responses=responses, models={"Impact": demo.MODEL, "Gloss": "linear"},
+        units={"Impact": "J", "Gloss": "GU"}, design=demo.demo_design(), read_only=read_only,
+    )
+
+
+def all_views(shared):
+    return {
+        "sliders": FactorSliders(shared),
+        "slice": SurfaceSlice(shared, shape=(40, 30)),
+        "residuals": ResidualInspector(shared),
+        "effects": EffectsView(shared),
+        "predictions": PredictionsView(shared),
+        "optimizer": OptimizerView(shared, seed=3, starts=5),
+        "builder": DesignBuilder(shared),
+    }
+
+
+def kernel_fit(data=None, model=demo.MODEL, drop_runs=()):
+    data = demo.demo_data() if data is None else data
+    data = data[~data["run"].isin(drop_runs)]
+    return fit(data, "Impact", model, factors=demo.FACTORS)
+
+
+@pytest.fixture
+def shared():
+    return make_shared()
+
+
+@pytest.fixture
+def views(shared):
+    built = all_views(shared)
+    yield built
+    for view in built.values():
+        view.close()
+
+
+# ----- a setting moves every dependent view to the kernel's numbers ---------------------------------
+def test_moving_a_setting_updates_every_view_to_the_kernel_numbers(shared, views):
+    views["predictions"].add_current()
+    shared.settings = {"Oven": 204.0, "Dwell": 9.0, "Film": 81.0, "Catalyst": 1.3}
+    reference = kernel_fit()  # kernel_core called directly
+    expected = reference.predict(shared.settings).iloc[0]
+
+    readout = views["sliders"].readout.value
+    assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in readout
+    assert f'{fmt(expected["ci_low"])} to {fmt(expected["ci_high"])}' in readout
+    assert f'{fmt(expected["pi_low"])} to {fmt(expected["pi_high"])}' in readout
+    assert views["sliders"].sliders["Oven"].value == 204.0
+    curve = reference.trace("Film", shared.settings, points=views["sliders"].points)
+    pi_band, ci_band, mean, marker = views["sliders"]._marks["Film"]
+    assert np.asarray(mean.y) == pytest.approx(curve["mean"], **F32)
+    assert np.asarray(ci_band.y)[0] == pytest.approx(curve["mean"] - curve["ci_half"], **F32)
+    assert np.asarray(pi_band.y)[1] == pytest.approx(curve["mean"] + curve["pi_half"], **F32)
+    assert float(marker.y[0]) == pytest.approx(expected["mean"], **F32)
+
+    surface = views["slice"]
+    grid = slice_grid(reference, "Oven", "Dwell", shared.settings, shape=(40, 30))
+    assert np.asarray(surface.heatmap.color) == pytest.approx(grid["mean"], **F32)
+    assert (float(surface.marker.x[0]), float(surface.marker.y[0])) == (204.0, 9.0)
+    surface.quantity.value = "pi_half"
+    assert np.asarray(surface.heatmap.color) == pytest.approx(grid["pi_half"], **F32)
+
+    # The row added before the move keeps its own settings; a new row takes the new ones.
+    views["predictions"].add_current()
+    table = views["predictions"].to_frame()
+    assert table.loc[1, "Impact mean"] == pytest.approx(expected["mean"], rel=1e-12)
+    assert table.loc[1, "Impact pi_high"] == pytest.approx(expected["pi_high"], rel=1e-12)
+    centre = reference.predict({f.name: f.center for f in demo.FACTORS}).iloc[0]
+    assert table.loc[0, "Impact ci_low"] == pytest.approx(centre["ci_low"], rel=1e-12)
+
+
+def test_readout_covers_every_response_and_the_display_choice_switches_traces():
+    shared = make_shared(data=demo_data_two_responses())
+    view = FactorSliders(shared)
+    gloss = fit(demo_data_two_responses(), "Gloss", "linear", factors=demo.FACTORS)  # kernel reference
+    expected = gloss.predict(shared.settings).iloc[0]
+    assert "<b>Gloss</b>" in view.readout.value and fmt(expected["mean"]) in view.readout.value
+    browser_update(view.response_choice, index=1)  # the display choice, as a browser sends it
+    assert shared.response == "Gloss"
+    curve = gloss.trace("Oven", shared.settings, points=view.points)
+    assert np.asarray(view._marks["Oven"][2].y) == pytest.approx(curve["mean"], **F32)
+    assert shared.fit is shared.fits["Gloss"]
+
+
+def test_clicking_the_slice_sets_both_axis_factors(shared, views):
+    surface = views["slice"]
+    xs, ys = surface._target_axes()
+    browser_event(surface.targets, {"event": "element_click", "data": {"index": 3 * 41 + 7}})
+    assert shared.settings["Oven"] == pytest.approx(xs[7])
+    assert shared.settings["Dwell"] == pytest.approx(ys[3])
+
+
+def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):
+    surface = views["slice"]
+    before = surface.redraws
+
+    async def drag():
+        for film in (60.0, 62.0, 64.0, 66.0, 68.0):
+            shared.set_settings(Film=film)
+        await asyncio.sleep(0.1)
+
+    asyncio.run(drag())
+    assert surface.redraws == before + 1  # five slider events, one slice computed
+    grid = slice_grid(kernel_fit(), "Oven", "Dwell", shared.settings, shape=(40, 30))
+    assert np.asarray(surface.heatmap.color) == pytest.approx(grid["mean"], **F32)  # the latest value won
+
+
+def test_moving_an_axis_factor_only_moves_the_marker(shared, views):
+    surface = views["slice"]
+    before = surface.redraws
+    shared.set_settings(Oven=177.0)
+    assert surface.redraws == before
+    assert float(surface.marker.x[0]) == 177.0
+
+
+# ----- exclusions, model edits, failures --------------------------------------------------------------
+def test_an_exclusion_from_the_inspector_refits_every_view(shared, views):
+    inspector = views["residuals"]
+    views["predictions"].add_current()
+    inspector.plot.value = "fitted"
+    browser_event(inspector.used, {"event": "element_click", "data": {"index": 4}})
+    run = inspector.run.value
+    assert run == int(demo.demo_data()["run"].iloc[4])
+    inspector.reason.value = "coating gun clogged during this run"
+    inspector.exclude_button.click()
+
+    reference = kernel_fit(drop_runs=[run])  # kernel_core refit from scratch without the run
+    assert shared.exclusions == {run: "coating gun clogged during this run"}
+    assert shared.fit.coefficients["estimate"].to_numpy() == pytest.approx(
+        reference.coefficients["estimate"].to_numpy(), rel=1e-10
+    )
+    expected = reference.predict(shared.settings).iloc[0]
+    assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in views["sliders"].readout.value
+    grid = slice_grid(reference, "Oven", "Dwell", shared.settings, shape=(40, 30))
+    assert np.asarray(views["slice"].heatmap.color) == pytest.approx(grid["mean"], **F32)
+    assert len(views["slice"].excluded_points.x) == 1  # excluded runs stay visible, marked
+    assert len(inspector.excluded.x) == 1 and len(inspector.used.x) == 18
+    assert "coating gun clogged" in inspector.excluded_list.value
+    assert fmt(reference.coefficients.loc["Oven", "estimate"]) in views["effects"].coefficient_table.value
+    assert views["predictions"].to_frame().loc[0, "Impact mean"] == pytest.approx(
+        reference.predict({f.name: f.center for f in demo.FACTORS})["mean"].iloc[0], rel=1e-12
+    )
+
+    inspector.include_button.click()
+    assert shared.exclusions == {} and shared.fit.n == 19
+
+
+def test_an_exclusion_the_kernel_refuses_changes_nothing():
+    data = demo.demo_data()
+    centre_runs = data.loc[data["point_type"] == "center", "run"].tolist()
+    data = data[~data["run"].isin(centre_runs[1:])]  # one centre run left: it alone separates Oven^2
+    shared = SharedModel(demo.FACTORS, data, "Impact", "Oven + Dwell + I(Oven**2)")
+    before = shared.fit
+    with pytest.raises(LevelwiseError, match="leverage is 1"):
+        shared.exclude(centre_runs[0], "trial")
+    assert shared.exclusions == {} and shared.fit is before and "leverage is 1" in shared.error
+
+
+def test_a_model_edit_updates_the_tables(shared, views):
+    effects = views["effects"]
+    effects.model_text.value = "Oven + Dwell + Film"
+    reference = kernel_fit(model="Oven + Dwell + Film")
+    assert shared.fit.terms == ("Intercept", "Oven", "Dwell", "Film")
+    anova = effects.anova_table.value
+    assert "Catalyst" not in anova
+    assert fmt(reference.anova.loc["Film", "F"]) in anova
+    assert fmt(reference.coefficients.loc["Dwell", "t"]) in effects.coefficient_table.value
+    assert [t.value for t in effects.term_toggles.values()][:4] == [True, True, True, False]
+
+
+def test_term_toggles_keep_the_model_hierarchical(shared, views):
+    toggles = views["effects"].term_toggles
+    toggles["Oven"].value = False  # Oven:Dwell and Oven:Catalyst contain Oven: they go too
+    assert shared.fit.terms == ("Intercept", "Dwell", "Film", "Catalyst")
+    toggles["Oven:Film"].value = True  # brings Oven back with it
+    assert set(shared.fit.terms) == {"Intercept", "Oven", "Dwell", "Film", "Catalyst", "Oven:Film"}
+
+
+def test_half_normal_and_lenth_come_from_the_kernel(shared, views):
+    effects = views["effects"]
+    screening = fit(demo.demo_data(), "Impact", "interactions", factors=demo.FACTORS)  # kernel reference
+    lenth = screening.lenth()
+    coords = screening.half_normal()
+    shown = np.sort(np.r_[np.asarray(effects.hn_points.x), np.asarray(effects.hn_active.x)])
+    assert shown == pytest.approx(np.sort(coords["abs_effect"].to_numpy()), **F32)
+    assert float(effects.me_line.x[0]) == pytest.approx(lenth.me, **F32)
+    assert float(effects.sme_line.x[0]) == pytest.approx(lenth.sme, **F32)
+    assert fmt(lenth.pse) in effects.lenth_text.value
+    effects.measure.value = "t"
+    t = shared.fit.coefficients["t"].drop("Intercept").abs().sort_values(ascending=False)
+    assert list(effects.bar_mark.x) == list(screening.coefficients["t"].drop("Intercept").abs()
+                                            .sort_values(ascending=False).index)
+    assert len(t) == 6
+
+
+def test_a_failing_refit_shows_the_error_everywhere_and_keeps_the_last_fit(shared, views):
+    before = shared.fit
+    shared.set_model("Impact", "Oven + Nonsense")
+    assert shared.fit is before and shared.fits["Impact"] is before
+    assert "Nonsense" in shared.error
+    for name, view in views.items():
+        assert "lw-error" in view.status.value and "Nonsense" in view.status.value, name
+    expected = kernel_fit().predict(shared.settings).iloc[0]  # the last good fit still answers
+    assert fmt(expected["mean"]) in views["sliders"].readout.value
+    shared.set_model("Impact", demo.MODEL)
+    assert shared.error == "" and all("lw-error" not in v.status.value for v in views.values())
+
+
+def test_one_notification_per_refit(shared, views):
+    on_fits, on_fit = mock.Mock(), mock.Mock()
+    shared.observe(on_fits, names="fits")
+    shared.observe(on_fit, names="fit")
+    shared.set_model("Impact", "Oven + Dwell")
+    assert (on_fits.call_count, on_fit.call_count) == (1, 1)
+    shared.exclude(5, "thermocouple fault")
+    assert (on_fits.call_count, on_fit.call_count) == (2, 2)
+    shared.include(5)
+    assert (on_fits.call_count, on_fit.call_count) == (3, 3)
+    shared.set_settings(Oven=200.0)
+    assert (on_fits.call_count, on_fit.call_count) == (3, 3)  # moving a setting refits nothing
+
+
+# ----- read-only --------------------------------------------------------------------------------------
+def frozen_state(shared):
+    return (shared.fit, shared.fits, shared.data, dict(shared.models), dict(shared.exclusions), shared.factors)
+
+
+def test_read_only_refuses_every_mutating_method():
+    shared = make_shared(read_only=True)
+    before = frozen_state(shared)
+    design = central_composite(demo.FACTORS, seed=1)
+    attempts = [
+        lambda: shared.set_model("Impact", "Oven"),
+        lambda: shared.set_model("Oven"),
+        lambda: shared.set_data(demo.demo_data().iloc[:10]),
+        lambda: shared.exclude(3, "no reason needed"),
+        lambda: shared.include(3),
+        lambda: shared.new_study(design, {"Gloss": "GU"}),
+        lambda: setattr(shared, "models", {"Impact": "Oven"}),
+        lambda: setattr(shared, "exclusions", {3: "sneaky"}),
+        lambda: setattr(shared, "data", demo.demo_data().iloc[:10]),
+        lambda: setattr(shared, "fits", {}),
+        lambda: setattr(shared, "fit", None),
+        lambda: setattr(shared, "factors", ()),
+        lambda: shared.set_settings(Oven=500.0),  # read-only settings stay inside the tested region
+    ]
+    for attempt in attempts:
+        with pytest.raises(ReadOnlyError, match="read-only"):
+            attempt()
+        assert frozen_state(shared) == before
+    with pytest.raises(traitlets.TraitError, match="read-only"):
+        shared.read_only = False
+    shared.set_settings(Oven=180.0)  # moving a setting inside the region is allowed
+    shared.response = "Impact"  # so is choosing what to display
+    assert shared.settings["Oven"] == 180.0
+
+
+def test_read_only_rejects_crafted_browser_messages_to_every_view(monkeypatch):
+    log = install_recording_comm(monkeypatch)
+    shared = make_shared(read_only=True)
+    views = all_views(shared)
+    before = frozen_state(shared)
+    assert log, "the recording comm saw no messages: widgets were not opened through it"
+
+    effects, inspector, builder = views["effects"], views["residuals"], views["builder"]
+    browser_update(effects.model_text, value="Oven")  # a crafted model text
+    browser_update(effects.term_toggles["Oven"], value=False)  # a crafted term toggle
+    browser_update(inspector.run, index=2)
+    browser_update(inspector.reason, value="crafted")
+    browser_event(inspector.exclude_button, {"event": "click"})  # a click on a hidden, disabled button
+    browser_event(inspector.include_button, {"event": "click"})
+    browser_event(builder.create_button, {"event": "click"})
+    slider = views["sliders"].sliders["Oven"]
+    browser_update(slider, max=1000.0, value=900.0)  # raising a slider's max, then going past the region
+    assert frozen_state(shared) == before
+    assert shared.settings["Oven"] == 190.0 and slider.max == 210.0 and slider.value == 190.0
+    assert effects.model_text.value == demo.MODEL
+    assert effects.term_toggles["Oven"].value is True
+    assert "read-only" in shared.error
+
+    browser_update(slider, value=200.0)  # moving a slider inside the region is what read-only allows
+    assert shared.settings["Oven"] == 200.0
+
+
+def test_read_only_controls_are_disabled_and_hidden():
+    shared = make_shared(read_only=True)
+    inspector, effects, builder = ResidualInspector(shared), EffectsView(shared), DesignBuilder(shared)
+    assert inspector.exclude_button.disabled and inspector.exclude_button.layout.display == "none"
+    assert effects.model_text.disabled and all(t.disabled for t in effects.term_toggles.values())
+    assert builder.create_button.disabled
+
+
+# ----- design builder, optimiser, study ---------------------------------------------------------------
+def test_design_builder_previews_kernel_designs_and_creates_a_study(shared, views):
+    builder = views["builder"]
+    builder.options["seed"].value = 11
+    builder.family.value = "ccd"
+    reference = central_composite(list(demo.FACTORS), seed=11)  # kernel_core called directly
+    pd.testing.assert_frame_equal(builder.design.table, reference.table)
+    assert f"{len(reference)} runs" in builder.run_sheet.value
+    assert "Relative prediction variance" in builder.evaluation.value
+    builder.family.value = "fractional"
+    assert builder.design.resolution == 4 and "lw-resolution" in builder.structure.value
+    assert "Alias structure" in builder.structure.value
+    builder.family.value = "optimal"
+    builder.options["runs"].value = 16
+    builder.options["starts"].value = 2
+    builder.search()
+    assert builder.progress.value == 1.0 and len(builder.design) == 16
+    builder.family.value = "ccd"
+    builder.responses.value = "Gloss (GU), Hardness"
+    builder.create_button.click()
+    assert shared.responses == ("Gloss", "Hardness") and shared.units["Gloss"] == "GU"
+    assert shared.data["Gloss"].isna().all() and len(shared.data) == len(reference)
+    assert shared.fit is None and shared.fits == {}
+    assert [s.description for s in views["sliders"].sliders.values()] == [f.label for f in demo.FACTORS]
+    for view in views.values():
+        assert "Internal error" not in view.status.value
+
+
+def test_optimiser_shows_the_kernel_optimum_and_moves_the_sliders(shared, views):
+    optimiser = views["optimizer"]
+    optimiser.set_goal("Impact", "maximize", low=8.0, target=12.0)
+    assert shared.goals == {"Impact": {"goal": "maximize", "low": 8.0, "target": 12.0, "s": 1.0, "importance": 1.0}}
+    best = optimiser.run()
+    reference = optimize({"Impact": kernel_fit()}, shared.goals, starts=5, seed=3)  # kernel reference
+    assert best.overall == pytest.approx(reference.overall, rel=1e-9)
+    assert fmt(reference.overall, 3) in optimiser.result.value
+    optimiser.use_button.click()
+    for name, value in reference.settings.items():
+        assert shared.settings[name] == pytest.approx(value, rel=1e-9)
+        assert views["sliders"].sliders[name].value == pytest.approx(value, rel=1e-9)
+    views["slice"].quantity.value = "desirability"
+    assert float(np.max(views["slice"].heatmap.color)) <= 1.0
+
+
+def test_shared_model_over_a_study_writes_changes_through():
+    from kernel_core.study import Study
+
+    study = Study(demo.FACTORS)
+    study.add_response("Impact", "J")
+    study.add_stage("screen", demo.demo_design())
+    for run, value in zip(demo.demo_data()["run"], demo.demo_data()["Impact"]):
+        study.record(int(run), "Impact", float(value))
+    study.set_model("Impact", demo.MODEL)
+    shared = SharedModel.from_study(study)
+    shared.exclude(4, "sample dropped before testing")
+    shared.set_model("Impact", "Oven + Dwell")
+    assert list(study.exclusions["run"]) == [4]
+    assert study.models["Impact"] == "Oven + Dwell"
+    locked = SharedModel.from_study(study, read_only=True)
+    assert locked.exclusions == {4: "sample dropped before testing"}
+    with pytest.raises(ReadOnlyError):
+        locked.include(4)
+
+
+# ----- what reaches the browser -----------------------------------------------------------------------
+def test_bytes_per_slider_event_are_float32_and_only_what_changed(monkeypatch, capsys):
+    log = install_recording_comm(monkeypatch)
+    shared = make_shared()
+    views = {"sliders": FactorSliders(shared), "slice": SurfaceSlice(shared)}  # 100 x 100 slice
+    slider = views["sliders"].sliders["Film"]
+    log.clear()
+    browser_update(slider, value=62.0)
+    other_factor = message_bytes(log)
+    arrays = [v for data, _ in log for v in data.get("state", {}).values() if isinstance(v, dict) and "dtype" in v]
+    assert arrays and {a["dtype"] for a in arrays} == {"float32"}
+    keys = {k for data, _ in log for k in data.get("state", {})}
+    log.clear()
+    browser_update(views["sliders"].sliders["Oven"], value=200.0)  # an axis factor of the slice
+    axis_factor = message_bytes(log)
+    sent = {k for data, _ in log for k in data.get("state", {})}
+    assert "color" in keys and "color" not in sent  # the slice itself did not change: not re-sent
+    with capsys.disabled():
+        print(f"\n[bytes to the browser per slider event] non-axis factor: {other_factor} B; "
+              f"slice axis factor: {axis_factor} B")
+
+
+def test_run_sheet_export_is_the_kernel_writer_output(shared, views, tmp_path):
+    from kernel_core import read_run_sheet, write_run_sheet
+
+    builder = views["builder"]
+    builder.family.value = "box_behnken"
+    builder.responses.value = "Impact (J)"
+    reference = tmp_path / "reference.csv"
+    write_run_sheet(builder.design, reference, responses=("Impact",))  # kernel_core called directly
+    assert builder.export("csv") == reference.read_bytes()
+    builder.export("xlsx", path=tmp_path / "sheet.xlsx")
+    back = read_run_sheet(tmp_path / "sheet.xlsx")
+    assert len(back.table) == len(builder.design) and "Impact" in back.responses
+    assert "run sheet (CSV)" in builder.downloads.value and "run sheet (XLSX)" in builder.downloads.value
+
+
+def test_views_work_with_a_categorical_factor():
+    from kernel_core import Factor, full_factorial
+
+    factors = [Factor("Oven", 170, 210, units="°C"), Factor("Metal", levels=["steel", "brass"]), Factor("Film", 50, 90)]
+    design = full_factorial(factors, replicates=2, seed=1)
+    data = design.table.copy()
+    data["Impact"] = np.random.default_rng(1).normal(10, 1, len(data))  # invented data, seeded
+    shared = SharedModel(factors, data, "Impact", "linear", design=design)
+    views = [FactorSliders(shared), SurfaceSlice(shared), ResidualInspector(shared), EffectsView(shared),
+             PredictionsView(shared), DesignBuilder(shared)]
+    views[0].sliders["Metal"].value = "brass"
+    reference = fit(data, "Impact", "linear", factors=factors)  # kernel_core called directly
+    expected = reference.predict({"Oven": 190.0, "Metal": "brass", "Film": 70.0}).iloc[0]
+    assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in views[0].readout.value
+    assert list(views[1].x_factor.options) == ["Oven", "Film"]
+    with pytest.raises(LevelwiseError, match="one of its levels"):
+        shared.set_settings(Metal="copper")
+    for view in views:
+        assert view.status.value == "", type(view).__name__

@@ -1,0 +1,471 @@
+"""The design builder: factors, a design family with its options, a live preview, and "Create study".
+
+Every design and every number in the preview comes from kernel_core: the design
+functions (full and fractional factorials, Plackett–Burman, central composite,
+Box–Behnken, optimal designs by coordinate exchange, fold-over), ``Design``'s
+resolution, word-length pattern and alias structure, and ``evaluate`` (VIF,
+relative prediction variance, power). Optimal searches report progress through
+the kernel's ``progress`` callback to a progress bar.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import os
+import tempfile
+
+import ipywidgets as ipw
+import numpy as np
+import pandas as pd
+
+from kernel_core import (
+    Design,
+    Factor,
+    LevelwiseError,
+    box_behnken,
+    central_composite,
+    evaluate,
+    fold_over,
+    fractional_factorial,
+    full_factorial,
+    optimal_design,
+    plackett_burman,
+    write_run_sheet,
+)
+
+from ._base import View
+from .effects_view import table_html
+from .shared_model import SharedModel
+from .style import fmt
+
+FAMILIES = [
+    ("Two-level full factorial", "full"),
+    ("Two-level fractional factorial", "fractional"),
+    ("Plackett–Burman screening", "plackett_burman"),
+    ("Central composite (response surface)", "ccd"),
+    ("Box–Behnken (response surface)", "box_behnken"),
+    ("Optimal design (computer search)", "optimal"),
+    ("Fold-over of the current study's design", "fold_over"),
+]
+
+#: Which option widgets each family uses.
+FAMILY_OPTIONS = {
+    "full": ("center_points", "replicates", "blocks"),
+    "fractional": ("runs", "generators", "resolution", "center_points", "replicates", "blocks"),
+    "plackett_burman": ("runs", "center_points"),
+    "ccd": ("alpha", "ccd_kind", "center_points"),
+    "box_behnken": ("center_points",),
+    "optimal": ("model", "runs", "criterion", "constraints", "starts", "augment"),
+    "fold_over": ("fold_factor", "as_block"),
+}
+
+
+def parse_responses(text: str) -> dict:
+    """``"Impact (J), Gloss (GU)"`` -> ``{"Impact": "J", "Gloss": "GU"}``."""
+    out = {}
+    for part in text.split(","):
+        part = part.strip()
+        if not part:
+            continue
+        if part.endswith(")") and "(" in part:
+            name, units = part[:-1].split("(", 1)
+            out[name.strip()] = units.strip()
+        else:
+            out[part] = ""
+    if not out:
+        raise LevelwiseError(f"Name at least one response, e.g. 'Impact (J)'. Got {text!r}.")
+    return out
+
+
+class DesignBuilder(View):
+    """Plan a design, preview what it can estimate, and start a study from it.
+
+    Parameters
+    ----------
+    shared : SharedModel
+        "Create study" replaces the study held here (refused when read-only).
+
+    Attributes
+    ----------
+    factor_rows : list of dict of widgets
+        Per factor: ``name``, ``units`` (Text), ``low``, ``high`` (FloatText), ``type`` (Dropdown
+        continuous/categorical), ``levels`` (Text, comma-separated, categorical only).
+        Rows are ``lw-factor-row``; ``add_factor_button`` (``lw-add-factor``), ``remove_factor_button``
+        (``lw-remove-factor``).
+    family : ipywidgets.Dropdown
+        ``lw-design-family``; values ``full``, ``fractional``, ``plackett_burman``, ``ccd``, ``box_behnken``,
+        ``optimal``, ``fold_over``.
+    options : dict of str -> widget
+        ``center_points``, ``default_center_points``, ``replicates``, ``blocks``, ``runs``, ``generators``,
+        ``resolution``, ``alpha``, ``ccd_kind``, ``model``, ``criterion``, ``constraints``, ``starts``,
+        ``augment``, ``fold_factor``, ``as_block``, ``seed``, ``randomize`` (each ``lw-design-option``).
+    eval_model : ipywidgets.Text
+        Model to evaluate the design for (``lw-eval-model``).
+    search_button : ipywidgets.Button
+        Runs the optimal search (``lw-search``); ``progress`` (FloatProgress, ``lw-search-progress``).
+    run_sheet, structure, evaluation : ipywidgets.HTML
+        The preview: ``lw-run-sheet``, ``lw-design-structure``, ``lw-design-evaluation``.
+    responses : ipywidgets.Text
+        Response names with units, e.g. ``Impact (J), Gloss (GU)`` (``lw-new-responses``).
+    create_button : ipywidgets.Button
+        ``lw-create-study``.
+    downloads : ipywidgets.HTML
+        Links to the run sheet as CSV and XLSX (``lw-run-sheet-export``).
+    design : kernel_core.Design or None
+        The design previewed.
+    widget : ipywidgets.VBox
+        The whole view (``lw-design-builder``).
+    """
+
+    def __init__(self, shared: SharedModel):
+        super().__init__(shared)
+        self.design = None
+        self.factor_box = ipw.VBox().add_class("lw-factor-table")
+        self.factor_rows = []
+        for f in shared.factors:
+            self._add_factor_row(f)
+        self.add_factor_button = ipw.Button(description="Add a factor").add_class("lw-add-factor")
+        self.remove_factor_button = ipw.Button(description="Remove the last factor").add_class("lw-remove-factor")
+        self.add_factor_button.on_click(self.safely(lambda _: self.add_factor()))
+        self.remove_factor_button.on_click(self.safely(lambda _: self.remove_factor()))
+        self.family = ipw.Dropdown(options=FAMILIES, value="full", description="Design").add_class("lw-design-family")
+        wide = {"style": {"description_width": "initial"}}
+        self.options = {
+            "center_points": ipw.BoundedIntText(value=3, min=0, max=50, description="Centre points", **wide),
+            "default_center_points": ipw.Checkbox(value=True, description="usual number of centre points"),
+            "replicates": ipw.BoundedIntText(value=1, min=1, max=10, description="Replicates", **wide),
+            "blocks": ipw.Dropdown(options=[1, 2, 4, 8], value=1, description="Blocks", **wide),
+            "runs": ipw.IntText(value=0, description="Runs (0: smallest/automatic)", **wide),
+            "generators": ipw.Text(value="", description="Generators (e.g. E=ABCD)", **wide),
+            "resolution": ipw.Dropdown(options=[("automatic", 0), ("III", 3), ("IV", 4), ("V", 5)], value=0,
+                                       description="Resolution at least", **wide),
+            "alpha": ipw.Combobox(value="rotatable", options=["rotatable", "orthogonal", "face"],
+                                  description="Axial distance", **wide),
+            "ccd_kind": ipw.Dropdown(options=["circumscribed", "inscribed", "face"], value="circumscribed",
+                                     description="Axial points", **wide),
+            "model": ipw.Text(value="quadratic", description="Model to support", **wide),
+            "criterion": ipw.Dropdown(options=[("D (precise coefficients)", "D"), ("I (precise predictions)", "I")],
+                                      value="D", description="Criterion", **wide),
+            "constraints": ipw.Textarea(value="", placeholder="one per line, e.g. Oven + 10*Dwell <= 330",
+                                        description="Constraints", **wide),
+            "starts": ipw.BoundedIntText(value=10, min=1, max=200, description="Random starts", **wide),
+            "augment": ipw.Checkbox(value=False, description="keep the current study's runs and add to them"),
+            "fold_factor": ipw.Dropdown(options=[("every factor", "")], value="", description="Fold on", **wide),
+            "as_block": ipw.Checkbox(value=True, description="run the fold as a separate block"),
+            "seed": ipw.IntText(value=1, description="Seed (run order)", **wide),
+            "randomize": ipw.Checkbox(value=True, description="randomise the run order"),
+        }
+        for control in self.options.values():
+            control.add_class("lw-design-option")
+        self.eval_model = ipw.Text(value="linear", description="Evaluate for model",
+                                   **wide).add_class("lw-eval-model")
+        self.search_button = ipw.Button(description="Search for the optimal design").add_class("lw-search")
+        self.progress = ipw.FloatProgress(value=0.0, min=0.0, max=1.0, description="Search").add_class(
+            "lw-search-progress"
+        )
+        self.search_button.on_click(self.safely(lambda _: self.search()))
+        self.run_sheet = ipw.HTML().add_class("lw-run-sheet")
+        self.structure = ipw.HTML().add_class("lw-design-structure")
+        self.evaluation = ipw.HTML().add_class("lw-design-evaluation")
+        self.responses = ipw.Text(value=self._current_responses(), description="Responses",
+                                  **wide).add_class("lw-new-responses")
+        self.create_button = ipw.Button(description="Create study", button_style="").add_class("lw-create-study")
+        self.create_button.on_click(self.safely(lambda _: self.create_study()))
+        if shared.read_only:
+            self.create_button.disabled = True
+            self.create_button.layout.display = "none"
+        self.downloads = ipw.HTML().add_class("lw-run-sheet-export")
+        self.option_box = ipw.VBox().add_class("lw-design-options")
+        self.widget = ipw.VBox(
+            [
+                ipw.HTML("<b>Factors</b>: name, units, low and high settings, type"),
+                self.factor_box,
+                ipw.HBox([self.add_factor_button, self.remove_factor_button]),
+                self.family,
+                self.option_box,
+                ipw.HBox([self.options["seed"], self.options["randomize"]]),
+                ipw.HBox([self.search_button, self.progress]),
+                self.eval_model,
+                self.structure,
+                self.evaluation,
+                self.run_sheet,
+                self.downloads,
+                ipw.HBox([self.responses, self.create_button]),
+                self.status,
+            ]
+        ).add_class("lw-design-builder")
+        if any(getattr(f, "is_categorical", False) for f in shared.factors):
+            self.options["center_points"].value = 0  # a categorical factor has no centre
+        self.family.observe(self.safely(self._on_family), names="value")
+        for control in self.options.values():
+            control.observe(self.safely(self._on_option), names="value")
+        self.eval_model.observe(self.safely(self._on_option), names="value")
+        self.watch(self._on_study, names=["design", "factors"])
+        self.watch(self.show_shared_error, names=["error"])
+        self._on_family()
+
+    # ----- factors table ------------------------------------------------------------------------
+    def _add_factor_row(self, factor: Factor | None = None):
+        index = len(self.factor_rows)
+        name = factor.name if factor else "ABCDEFGHJKLMNOPQRSTUVWXYZ"[index % 25]
+        categorical = bool(factor is not None and getattr(factor, "is_categorical", False))
+        row = {
+            "name": ipw.Text(value=name, description="Name", layout=ipw.Layout(width="190px")),
+            "units": ipw.Text(value=factor.units if factor else "", description="Units",
+                              layout=ipw.Layout(width="150px")),
+            "low": ipw.FloatText(value=factor.low if factor and not categorical else -1.0, description="Low",
+                                 layout=ipw.Layout(width="150px")),
+            "high": ipw.FloatText(value=factor.high if factor and not categorical else 1.0, description="High",
+                                  layout=ipw.Layout(width="150px")),
+            "type": ipw.Dropdown(options=["continuous", "categorical"],
+                                 value="categorical" if categorical else "continuous",
+                                 description="Type", layout=ipw.Layout(width="200px")),
+            "levels": ipw.Text(value=", ".join(map(str, factor.levels)) if categorical else "",
+                               description="Levels", placeholder="e.g. steel, brass",
+                               layout=ipw.Layout(width="220px")),
+        }
+        for control in row.values():
+            control.observe(self.safely(self._on_option), names="value")
+        self.factor_rows.append(row)
+        self.factor_box.children = [
+            ipw.HBox(list(r.values())).add_class("lw-factor-row") for r in self.factor_rows
+        ]
+
+    def add_factor(self) -> None:
+        """Add a factor row (named A, B, C, ... by default)."""
+        self._add_factor_row()
+        self._on_option()
+
+    def remove_factor(self) -> None:
+        """Remove the last factor row (at least one stays)."""
+        if len(self.factor_rows) <= 1:
+            raise LevelwiseError("A design needs at least one factor.")
+        self.factor_rows.pop()
+        self.factor_box.children = self.factor_box.children[:-1]
+        self._on_option()
+
+    def factors(self) -> list[Factor]:
+        """The factors in the table (kernel_core validates them)."""
+        out = []
+        for i, row in enumerate(self.factor_rows):
+            try:
+                if row["type"].value == "categorical":
+                    levels = [v.strip() for v in row["levels"].value.split(",") if v.strip()]
+                    out.append(Factor(row["name"].value.strip(), units=row["units"].value.strip(), levels=levels))
+                else:
+                    out.append(Factor(row["name"].value.strip(), row["low"].value, row["high"].value,
+                                      units=row["units"].value.strip()))
+            except LevelwiseError as exc:
+                raise LevelwiseError(f"Factor row {i + 1}: {exc}") from None
+        return out
+
+    # ----- options ------------------------------------------------------------------------------
+    def _current_responses(self) -> str:
+        return ", ".join(f"{r} ({u})" if u else r for r, u in self.shared.units.items()) or "y"
+
+    def _on_study(self, change=None):
+        names = [("every factor", "")] + [(f.name, f.name) for f in self.shared.factors]
+        self.options["fold_factor"].options = names
+
+    def _on_family(self, change=None):
+        family = self.family.value
+        used = FAMILY_OPTIONS[family]
+        children = [self.options[name] for name in used]
+        if "center_points" in used and family in ("ccd", "box_behnken"):
+            children.append(self.options["default_center_points"])
+        self.option_box.children = children
+        self.search_button.layout.display = "" if family == "optimal" else "none"
+        self.progress.layout.display = "" if family == "optimal" else "none"
+        if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "linear":
+            self.eval_model.value = "quadratic"
+        elif family in ("full", "fractional", "plackett_burman") and self.eval_model.value == "quadratic":
+            self.eval_model.value = "linear"
+        self._on_option()
+
+    def _on_option(self, change=None):
+        if getattr(self, "_building", False):
+            return
+        if self.family.value == "optimal":
+            self.structure.value = "Press “Search for the optimal design” to run the search."
+            return
+        self.preview()
+
+    # ----- building -----------------------------------------------------------------------------
+    def build(self, progress=None) -> Design:
+        """The design the options describe, built by kernel_core."""
+        o = {name: control.value for name, control in self.options.items()}
+        seed, randomize = o["seed"], o["randomize"]
+        family = self.family.value
+        if family == "fold_over":
+            if self.shared.design is None:
+                raise LevelwiseError("The current study has no design to fold over: create one first.")
+            return fold_over(self.shared.design, o["fold_factor"] or None, as_block=o["as_block"],
+                             randomize=randomize, seed=seed)
+        factors = self.factors()
+        centre = None if (family in ("ccd", "box_behnken") and o["default_center_points"]) else o["center_points"]
+        if family == "full":
+            return full_factorial(factors, center_points=centre, replicates=o["replicates"], blocks=o["blocks"],
+                                  randomize=randomize, seed=seed)
+        if family == "fractional":
+            generators = [g.strip() for g in o["generators"].split(",") if g.strip()] or None
+            runs = o["runs"] or None
+            if runs is None and generators is None and not o["resolution"]:
+                runs = 2 ** max(len(factors) - 1, 2)  # nothing chosen yet: the half fraction
+            return fractional_factorial(
+                factors, runs=runs, generators=generators, resolution=o["resolution"] or None,
+                center_points=centre, replicates=o["replicates"], blocks=o["blocks"], randomize=randomize,
+                seed=seed,
+            )
+        if family == "plackett_burman":
+            return plackett_burman(factors, runs=o["runs"] or None, center_points=centre, randomize=randomize,
+                                   seed=seed)
+        if family == "ccd":
+            alpha = o["alpha"].strip()
+            try:
+                alpha = float(alpha)
+            except ValueError:
+                pass
+            return central_composite(factors, alpha=alpha, kind=o["ccd_kind"], center_points=centre,
+                                     randomize=randomize, seed=seed)
+        if family == "box_behnken":
+            return box_behnken(factors, center_points=centre, randomize=randomize, seed=seed)
+        constraints = [line.strip() for line in o["constraints"].splitlines() if line.strip()] or None
+        fixed = None
+        if o["augment"]:
+            fixed = self.shared.data[[f.name for f in factors]]
+        return optimal_design(
+            factors, o["model"], o["runs"], criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
+            starts=o["starts"], seed=seed, progress=progress, randomize=randomize,
+        )
+
+    def preview(self) -> Design | None:
+        """Build the design and show its run sheet, structure and evaluation; errors go to the status line."""
+        try:
+            design = self.build()
+        except LevelwiseError as exc:
+            self.show_error(str(exc))
+            return None
+        self._show(design)
+        return design
+
+    def search(self) -> Design | None:
+        """Run the optimal-design search, reporting progress to the progress bar."""
+        self.progress.value = 0.0
+
+        def report(fraction, message=""):
+            self.progress.value = float(fraction)
+            self.progress.description = "Search"
+            return True
+
+        try:
+            design = self.build(progress=report)
+        except LevelwiseError as exc:
+            self.show_error(str(exc))
+            return None
+        self.progress.value = 1.0
+        self._show(design)
+        return design
+
+    def _show(self, design: Design) -> None:
+        self.design = design
+        self.show_error("")
+        table = design.table
+        self.run_sheet.value = f"<b>Run sheet</b> ({len(table)} runs, in run order)" + table_html(
+            table.set_index("run"), "lw-table lw-run-sheet-table"
+        )
+        kind = str(design.kind)
+        facts = [f"<b>{html.escape(kind[:1].upper() + kind[1:])}</b>: {len(design)} runs"]
+        if design.resolution:
+            roman = {3: "III", 4: "IV", 5: "V", 6: "VI", 7: "VII", 8: "VIII"}.get(design.resolution,
+                                                                                   str(design.resolution))
+            facts.append(f'resolution <span class="lw-resolution">{roman}</span>')
+        if design.generators:
+            facts.append("generators " + html.escape(", ".join(design.generators)))
+        if design.word_length_pattern is not None and design.generators:
+            facts.append("word-length pattern " + html.escape(str(tuple(design.word_length_pattern))))
+        if design.block_confounded:
+            facts.append("confounded with blocks: " + html.escape(", ".join(design.block_confounded)))
+        extra = {k: v for k, v in getattr(design, "metadata", {}).items()
+                 if k in ("alpha", "d_efficiency", "average_prediction_variance")}
+        facts += [f"{html.escape(k.replace('_', ' '))} {fmt(float(v))}" for k, v in extra.items()]
+        aliases = ""
+        if design.generators:
+            pairs = [(effect, partners) for effect, partners in design.aliases(max_order=2).items() if partners]
+            if pairs:
+                items = "".join(f"<li>{html.escape(e)} = {html.escape(' = '.join(p))}</li>" for e, p in pairs)
+                aliases = (f'<div class="lw-aliases"><b>Alias structure</b> (up to two-factor terms)'
+                           f"<ul>{items}</ul></div>")
+            else:
+                aliases = ('<div class="lw-aliases">No main effect or two-factor interaction is aliased '
+                           "with another.</div>")
+        self.structure.value = "; ".join(facts) + "." + aliases
+        try:
+            ev = evaluate(design, self.eval_model.value)
+        except LevelwiseError as exc:
+            self.evaluation.value = f"Evaluation for model {html.escape(self.eval_model.value)!s} not available: " \
+                                    f"{html.escape(str(exc))}"
+        else:
+            self.evaluation.value = self._evaluation_html(ev)
+        self._exports(design)
+
+    def _evaluation_html(self, ev) -> str:
+        pv = ev.prediction_variance
+        per_term = pd.DataFrame({"VIF": ev.vif, f"power (effect {fmt(ev.delta)}σ, α = {fmt(ev.alpha)})": ev.power})
+        note = ""
+        if ev.inestimable:
+            note = ('<div class="lw-inestimable">Cannot be estimated with this design: '
+                    + html.escape(", ".join(ev.inestimable)) + "</div>")
+        return (
+            f"<b>What the design can estimate</b> for model {html.escape(self.eval_model.value)}: rank {ev.rank}, "
+            f"{ev.df_error} residual degrees of freedom. Relative prediction variance over the region: "
+            f"min {fmt(pv['min'])}, mean {fmt(pv['mean'])}, max {fmt(pv['max'])}."
+            + note + table_html(per_term, "lw-table lw-evaluation-table")
+        )
+
+    def _exports(self, design: Design) -> None:
+        """Run-sheet downloads (CSV and XLSX), written by ``kernel_core.write_run_sheet``."""
+        links = []
+        for kind, mime in (("csv", "text/csv"),
+                           ("xlsx", "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet")):
+            try:
+                payload = self.export(kind)
+            except LevelwiseError as exc:
+                links.append(f"{kind.upper()} not available ({html.escape(str(exc))})")
+                continue
+            data = base64.b64encode(payload).decode("ascii")
+            links.append(
+                f'<a download="run-sheet.{kind}" href="data:{mime};base64,{data}">run sheet ({kind.upper()})</a>'
+            )
+        self.downloads.value = "Download: " + " · ".join(links)
+
+    def export(self, kind: str, path=None) -> bytes:
+        """The previewed run sheet as CSV or XLSX bytes (also written to *path* when given)."""
+        if self.design is None:
+            raise LevelwiseError("Build a design first.")
+        if kind not in ("csv", "xlsx"):
+            raise LevelwiseError(f"The export kind must be 'csv' or 'xlsx'. Got {kind!r} instead.")
+        responses = tuple(parse_responses(self.responses.value))
+        with tempfile.TemporaryDirectory() as folder:
+            target = os.path.join(folder, f"run-sheet.{kind}")
+            write_run_sheet(self.design, target, responses=responses)
+            with open(target, "rb") as handle:
+                payload = handle.read()
+        if path is not None:
+            with open(path, "wb") as handle:
+                handle.write(payload)
+        return payload
+
+    # ----- the study ----------------------------------------------------------------------------
+    def create_study(self) -> None:
+        """Put a new study with blank responses, on the previewed design, into the shared model."""
+        design = self.design if self.design is not None else self.preview()
+        if design is None:
+            raise LevelwiseError("The design could not be built: see the message above.")
+        responses = parse_responses(self.responses.value)
+        self.shared.new_study(design, responses)
+        if np.all(~np.isfinite(self.shared.data[list(responses)].to_numpy(dtype=float))):
+            self.status.value = (
+                '<div class="lw-created">New study created: record the responses run by run, then every view fits.'
+                "</div>"
+            )

@@ -1,0 +1,210 @@
+"""The optimiser view: a goal per response, a desirability search, and "Use these settings".
+
+Goals are the Derringer–Suich desirability goals of ``kernel_core.optimize``
+(maximise, minimise, target; limits; weight; importance). Run calls
+:func:`kernel_core.optimize` on the shared fits; the result shows the best settings,
+each response's prediction with its intervals, the individual desirabilities and
+the overall desirability. Goals and runs are explorations: allowed read-only.
+"""
+
+from __future__ import annotations
+
+import html
+
+import ipywidgets as ipw
+import numpy as np
+
+from kernel_core import LevelwiseError, optimize
+
+from ._base import View
+from .shared_model import SharedModel
+from .style import fmt
+
+GOAL_CHOICES = [("no goal", "none"), ("maximise", "maximize"), ("minimise", "minimize"), ("hit a target", "target")]
+
+
+def goal_dict(kind, low, target, high, weight, importance) -> dict:
+    """The goal as ``kernel_core.optimize`` reads it (weight is the exponent s and/or t)."""
+    if kind == "maximize":
+        return {"goal": kind, "low": low, "target": target, "s": weight, "importance": importance}
+    if kind == "minimize":
+        return {"goal": kind, "target": target, "high": high, "t": weight, "importance": importance}
+    return {"goal": kind, "low": low, "target": target, "high": high, "s": weight, "t": weight,
+            "importance": importance}
+
+
+class OptimizerView(View):
+    """Goals per response, the desirability search, and moving the sliders to its result.
+
+    Parameters
+    ----------
+    shared : SharedModel
+    starts : int, default 20
+        Local searches of :func:`kernel_core.optimize`.
+    seed : int, optional
+        Seed of the search's starting points (repeatable results).
+
+    Attributes
+    ----------
+    goal_rows : dict of str -> dict of widgets
+        Per response: ``kind`` (Dropdown, ``lw-goal-kind``), ``low``, ``target``, ``high``
+        (FloatText, ``lw-goal-limit``), ``weight`` and ``importance`` (FloatText, ``lw-goal-weight``,
+        ``lw-goal-importance``).
+    run_button : ipywidgets.Button
+        ``lw-optimize``.
+    result : ipywidgets.HTML
+        Best settings, predictions with intervals, individual and overall desirability (``lw-optimum``;
+        overall D in ``span.lw-overall-desirability``).
+    use_button : ipywidgets.Button
+        "Use these settings" (``lw-use-optimum``).
+    optimum : kernel_core.optimize.Optimum or None
+        The last result.
+    widget : ipywidgets.VBox
+        The whole view (``lw-optimizer-view``).
+    """
+
+    def __init__(self, shared: SharedModel, *, starts: int = 20, seed=None):
+        super().__init__(shared)
+        self.starts, self.seed = int(starts), seed
+        self.optimum = None
+        self.goal_rows = {}
+        self.goal_box = ipw.VBox().add_class("lw-goals")
+        self.run_button = ipw.Button(description="Find the best settings").add_class("lw-optimize")
+        self.use_button = ipw.Button(description="Use these settings", disabled=True).add_class("lw-use-optimum")
+        self.result = ipw.HTML().add_class("lw-optimum")
+        self.run_button.on_click(self.safely(lambda _: self.run()))
+        self.use_button.on_click(self.safely(lambda _: self.use()))
+        self.widget = ipw.VBox(
+            [self.goal_box, self.run_button, self.result, self.use_button, self.status]
+        ).add_class("lw-optimizer-view")
+        self._build()
+        self.watch(self._build, names=["responses"])
+        self.watch(self._on_goals, names=["goals"])
+        self.watch(self.show_shared_error, names=["error"])
+
+    # ----- goal editors -------------------------------------------------------------------------
+    def _build(self, change=None):
+        rows = []
+        self.goal_rows = {}
+        for response in self.shared.responses:
+            values = self.shared.data[response].to_numpy(dtype=float)
+            values = values[np.isfinite(values)]
+            lo, hi = (float(values.min()), float(values.max())) if values.size else (0.0, 1.0)
+            units = self.shared.units.get(response, "")
+            unit = f" ({units})" if units else ""
+            row = {
+                "kind": ipw.Dropdown(options=GOAL_CHOICES, value="none", description=f"{response}{unit}",
+                                     style={"description_width": "initial"}).add_class("lw-goal-kind"),
+                "low": ipw.FloatText(value=lo, description="low", layout=ipw.Layout(width="150px")),
+                "target": ipw.FloatText(value=(lo + hi) / 2, description="target", layout=ipw.Layout(width="160px")),
+                "high": ipw.FloatText(value=hi, description="high", layout=ipw.Layout(width="150px")),
+                "weight": ipw.FloatText(value=1.0, description="weight", layout=ipw.Layout(width="150px")),
+                "importance": ipw.FloatText(value=1.0, description="importance", layout=ipw.Layout(width="180px")),
+            }
+            for key in ("low", "target", "high"):
+                row[key].add_class("lw-goal-limit")
+            row["weight"].add_class("lw-goal-weight")
+            row["importance"].add_class("lw-goal-importance")
+            for control in row.values():
+                control.observe(self.safely(self._on_edit), names="value")
+            self.goal_rows[response] = row
+            rows.append(ipw.HBox(list(row.values())))
+        self.goal_box.children = rows
+        self._on_goals()
+
+    def goals(self) -> dict:
+        """The goals set in the editors, ``{response: goal dict}`` (responses with no goal left out)."""
+        out = {}
+        for response, row in self.goal_rows.items():
+            kind = row["kind"].value
+            if kind != "none":
+                out[response] = goal_dict(kind, row["low"].value, row["target"].value, row["high"].value,
+                                          row["weight"].value, row["importance"].value)
+        return out
+
+    def set_goal(self, response: str, kind: str, *, low=None, target=None, high=None, weight=1.0, importance=1.0):
+        """Set one response's goal from code, e.g. ``view.set_goal("Impact", "maximize", low=8, target=12)``."""
+        if response not in self.goal_rows:
+            raise LevelwiseError(f"The response must be one of {list(self.goal_rows)}. Got {response!r}.")
+        row = self.goal_rows[response]
+        self._quiet = True
+        try:
+            for key, value in (("low", low), ("target", target), ("high", high), ("weight", weight),
+                               ("importance", importance)):
+                if value is not None:
+                    row[key].value = float(value)
+            row["kind"].value = kind
+        finally:
+            self._quiet = False
+        self._on_edit()
+
+    def _on_edit(self, change=None):
+        if getattr(self, "_quiet", False):
+            return
+        self.shared.set_goals(self.goals())
+
+    def _on_goals(self, change=None):
+        """Show goals set elsewhere (e.g. from code on the shared model) in the editors."""
+        self._quiet = True
+        try:
+            for response, row in self.goal_rows.items():
+                goal = self.shared.goals.get(response)
+                if goal is None:
+                    row["kind"].value = "none"
+                    continue
+                for key in ("low", "target", "high", "importance"):
+                    if key in goal:
+                        row[key].value = float(goal[key])
+                weight = goal.get("s", goal.get("t"))
+                if weight is not None:
+                    row["weight"].value = float(weight)
+                row["kind"].value = goal.get("goal", goal.get("kind", "none"))
+        finally:
+            self._quiet = False
+
+    # ----- the search ---------------------------------------------------------------------------
+    def run(self):
+        """Search for the settings of highest overall desirability; returns the kernel's Optimum."""
+        goals = self.goals()
+        if not goals:
+            raise LevelwiseError("Set a goal for at least one response first.")
+        missing = [r for r in goals if r not in self.shared.fits]
+        if missing:
+            raise LevelwiseError(f"No fit for response(s) {missing}: record values or fix the model first.")
+        self.optimum = optimize(dict(self.shared.fits), goals, starts=self.starts, seed=self.seed)
+        self.use_button.disabled = False
+        self._show()
+        return self.optimum
+
+    def use(self):
+        """Move the factor settings (and so every view) to the last optimum."""
+        if self.optimum is None:
+            raise LevelwiseError("Run the search first.")
+        self.shared.settings = {k: v for k, v in self.optimum.settings.items() if k in self.shared.settings}
+
+    def _show(self):
+        best = self.optimum
+        factors = {f.name: f for f in self.shared.factors}
+        settings = "".join(
+            f"<li>{html.escape(factors[name].label if name in factors else name)}: {fmt(value)}</li>"
+            for name, value in best.settings.items()
+        )
+        rows = []
+        for response, pred in best.predictions.iterrows():
+            units = self.shared.units.get(response, "")
+            unit = f" {html.escape(units)}" if units else ""
+            d = best.desirability.get(response, float("nan"))
+            rows.append(
+                f"<tr><th>{html.escape(str(response))}</th><td>{fmt(pred['mean'])}{unit}</td>"
+                f"<td>{fmt(pred['ci_low'])} to {fmt(pred['ci_high'])}{unit}</td>"
+                f"<td>{fmt(pred['pi_low'])} to {fmt(pred['pi_high'])}{unit}</td>"
+                f"<td>{fmt(d, 3)}</td></tr>"
+            )
+        self.result.value = (
+            f"<b>Best settings found</b><ul>{settings}</ul>"
+            '<table class="lw-table"><thead><tr><th>Response</th><th>expected mean</th>'
+            "<th>95% confidence interval for the mean</th><th>95% prediction interval for one run</th>"
+            "<th>desirability (0 to 1)</th></tr></thead>"
+            f"<tbody>{''.join(rows)}</tbody></table>"
+            f'Overall desirability: <span class="lw-overall-desirability">{fmt(best.overall, 3)}</span>'
+        )
