@@ -15,7 +15,7 @@ Exit codes: 0 success; 1 the command failed (the message says why); 2 bad usage 
 from __future__ import annotations
 
 import argparse
-import subprocess
+import os
 import sys
 from pathlib import Path
 
@@ -44,10 +44,10 @@ def _run_server(notebook, args, *, study_env: str | None, what: str, preheat: bo
     env = server_env({STUDY_ENV: study_env} if study_env else None)
     query = f"?token={args.token}" if args.token else ""
     print(f"levelwise: serving {what} at http://{args.ip}:{args.port}/{query} (Ctrl-C to stop)", flush=True)
-    try:
-        return subprocess.call(command, env=env, cwd=str(Path(notebook).parent))
-    except KeyboardInterrupt:
-        return EXIT_OK
+    # Become the voila server (exec): Ctrl-C and SIGTERM reach it directly, and no orphan is left behind.
+    os.chdir(Path(notebook).parent)
+    os.execve(command[0], command, env)
+    return EXIT_FAILURE  # pragma: no cover - execve does not return
 
 
 def serve(args) -> int:

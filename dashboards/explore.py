@@ -12,15 +12,14 @@ import html
 
 import ipywidgets as ipw
 
-import widgets
-
+from ._compose import find_view
 from .study_source import StudySource, open_study, shared_model
 from .summary import CAUTION
 
 #: Views of the workbench, in page order, each built on the shared model when widgets provides it.
 WORKBENCH_VIEWS = (
     "DesignBuilder", "EffectsView", "FactorSliders", "SurfaceSlice", "ResidualInspector", "PredictionsView",
-    "OptimiserView",
+    "OptimizerView",
 )
 
 
@@ -39,7 +38,7 @@ def build(source=None) -> ipw.VBox:
     banner = ipw.HTML(f'<div class="lw-caution">{CAUTION}</div>')
     views, boxes = [], []
     for name in WORKBENCH_VIEWS:
-        view_class = getattr(widgets, name, None)
+        view_class = find_view(name)
         if view_class is None:
             continue
         view = view_class(shared)

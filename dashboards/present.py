@@ -14,15 +14,14 @@ import json
 
 import ipywidgets as ipw
 
-import widgets
-
+from ._compose import find_view
+from .kernel_guard import silence_tracebacks
 from .study_source import StudySource, open_study, shared_model
 from .summary import CAUTION, fingerprint, fit_numbers, summary_html
 
-#: Views composed into the stakeholder page when :mod:`widgets` provides them, in page order.
-#: Each is built read-only on the shared model; mutating views (design builder, residual
-#: inspector, effects toggles) are deliberately absent.
-READ_ONLY_VIEWS = ("SurfaceSlice", "PredictionsView", "OptimiserView")
+#: The views of the stakeholder page, in page order (the workbench's mutating views, the design
+#: builder, the residual inspector and the effects view with its term toggles, are deliberately absent).
+READ_ONLY_VIEWS = ("FactorSliders", "SurfaceSlice", "PredictionsView", "OptimizerView")
 
 
 def current_fits(shared) -> dict:
@@ -39,13 +38,24 @@ def _state_of(shared) -> tuple:
     return shared.data, models, exclusions
 
 
+class ShownHTML(ipw.HTML):
+    """An HTML widget the page only shows: value updates arriving from a browser are ignored.
+
+    A client can send any widget state (see the stack notes); for text the kernel owns, such as
+    the study summary and its fingerprint, there is no legitimate update from the browser.
+    """
+
+    def set_state(self, sync_data):
+        return None
+
+
 class StudyReadout:
     """The study summary in words plus the fingerprint line, kept in step with the shared model."""
 
     def __init__(self, source: StudySource, shared):
         self.source, self.shared = source, shared
-        self.summary = ipw.HTML().add_class("lw-summary")
-        self.fingerprint = ipw.HTML().add_class("lw-fingerprint")
+        self.summary = ShownHTML().add_class("lw-summary")
+        self.fingerprint = ShownHTML().add_class("lw-fingerprint")
         self.refresh()
         shared.observe(self.refresh, names=[n for n in ("fit", "fits", "data", "exclusions") if shared.has_trait(n)])
         self.widget = ipw.VBox([self.summary, self.fingerprint])
@@ -61,12 +71,57 @@ class StudyReadout:
         )
 
 
+def study_goals(source: StudySource, shared) -> dict:
+    """The optimiser's goals from the study's recorded goals, limits from the observed range of each response."""
+    goals = {}
+    for name, spec in source.goals.items():
+        kind = (spec or {}).get("goal", "none")
+        if kind not in ("maximize", "minimize", "target") or name not in shared.data:
+            continue
+        values = shared.data[name].to_numpy(dtype=float)
+        values = values[values == values]
+        if values.size < 2 or values.min() == values.max():
+            continue
+        low, high = float(values.min()), float(values.max())
+        target = float(spec["target"]) if kind == "target" and spec.get("target") is not None else None
+        goals[name] = {
+            "maximize": {"low": low, "target": high},
+            "minimize": {"target": low, "high": high},
+            "target": {"low": low, "target": target, "high": high},
+        }[kind] | {"kind": kind}
+    return goals
+
+
+def _read_only_part(name: str, view, source: StudySource):
+    """The part of a view a stakeholder sees: no editors, only what shows the study and moves the settings."""
+    if name == "PredictionsView":
+        # Adding the current settings as a row is a viewer's note, not a change to the study.
+        return ipw.VBox([view.add_button, view.table, view.download]).add_class("lw-predictions-view")
+    if name == "OptimizerView":
+        heading = ShownHTML("<h3>Best settings for the study's goals</h3>")
+        goals = study_goals(source, view.shared)
+        if not goals:
+            return ipw.VBox([heading, ShownHTML("<p>The study records no goals to optimise.</p>")])
+        for response, goal in goals.items():
+            kind = goal.pop("kind")
+            if kind == "target" and goal.get("target") is None:
+                continue
+            view.set_goal(response, kind, **goal)
+        try:
+            view.run()
+        except Exception as exc:  # the page shows why, it never fails to render
+            return ipw.VBox([heading, ShownHTML(f"<p>No optimum: {html.escape(str(exc))}</p>")])
+        return ipw.VBox([heading, view.result, view.use_button]).add_class("lw-optimizer-view")
+    return view.widget
+
+
 def build(source=None) -> ipw.VBox:
     """The read-only stakeholder page for *source* (a path, ``"demo"``, or None: see :func:`open_study`)."""
+    silence_tracebacks()
     source = source if isinstance(source, StudySource) else open_study(source)
     shared = shared_model(source, read_only=True)
-    title = ipw.HTML(f"<h2>{html.escape(source.title)}</h2>").add_class("lw-title")
-    banner = ipw.HTML(f'<div class="lw-caution">{CAUTION}</div>').add_class("lw-banner")
+    title = ShownHTML(f"<h2>{html.escape(source.title)}</h2>").add_class("lw-title")
+    banner = ShownHTML(f'<div class="lw-caution">{CAUTION}</div>').add_class("lw-banner")
     readout = StudyReadout(source, shared)
     children = [title, banner, readout.widget]
     views = [readout]
@@ -75,15 +130,13 @@ def build(source=None) -> ipw.VBox:
                                     description="Response shown").add_class("lw-response-choice")
         chooser.observe(lambda change: setattr(shared, "response", change["new"]), names="value")
         children.append(chooser)
-    sliders = widgets.FactorSliders(shared)
-    children.append(sliders.widget)
-    views.append(sliders)
     for name in READ_ONLY_VIEWS:
-        view_class = getattr(widgets, name, None)
-        if view_class is not None:
-            view = view_class(shared)
-            children.append(view.widget)
-            views.append(view)
+        view_class = find_view(name)
+        if view_class is None:
+            continue
+        view = view_class(shared)
+        views.append(view)
+        children.append(_read_only_part(name, view, source))
     page = ipw.VBox(children).add_class("lw-present")
     page.shared, page.views, page.source = shared, views, source
     return page

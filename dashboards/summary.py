@@ -90,7 +90,19 @@ def summary_html(source, fits: dict) -> str:
     excluded = len(source.exclusions)
     runs = f"{n_runs} runs" + (f", of which {excluded} are left out of the fits with a recorded reason" if excluded
                                else "")
-    parts.append(f"<p>{len(source.factors)} factors, {runs}.</p><ul>{factor_items}</ul>")
+    stages = ""
+    if "stage" in source.data.columns:
+        counts = source.data["stage"].value_counts(sort=False)
+        stages = " Runs by stage, in order: " + ", ".join(
+            f"{html.escape(str(name))} ({count})" for name, count in counts.items()) + "."
+    achieved = ""
+    study = getattr(source, "study", None)
+    if study is not None and hasattr(study, "achieved"):
+        recorded = study.achieved()[[f.name for f in source.factors]].notna().any(axis=1).sum()
+        if recorded:
+            achieved = (f" {recorded} run(s) recorded an achieved setting that differs from the plan; the fits use "
+                        "the achieved settings.")
+    parts.append(f"<p>{len(source.factors)} factors, {runs}.{stages}{achieved}</p><ul>{factor_items}</ul>")
     for name in source.responses:
         fit = fits.get(name)
         units = source.units.get(name, "")

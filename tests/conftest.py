@@ -103,3 +103,83 @@ def served_workbench(chromium_path):
             proc.wait(timeout=15)
         except subprocess.TimeoutExpired:
             proc.kill()
+
+
+SCREENSHOTS = Path(__file__).parent.parent / "docs" / "screenshots"
+ARTIFACTS = Path(__file__).parent / "artifacts"
+
+
+class ServerOutput:
+    """Collects a server's output lines on a thread, so a test can wait for one."""
+
+    def __init__(self, proc: subprocess.Popen):
+        import threading
+
+        self.lines: list[str] = []
+        self.proc = proc
+        self.thread = threading.Thread(target=self._read, daemon=True)
+        self.thread.start()
+
+    def _read(self):
+        for line in self.proc.stdout:
+            self.lines.append(line)
+
+    def wait_for(self, text: str, timeout: float = 60.0) -> bool:
+        deadline = time.monotonic() + timeout
+        while time.monotonic() < deadline:
+            if any(text in line for line in self.lines):
+                return True
+            if self.proc.poll() is not None:
+                return False
+            time.sleep(0.1)
+        return False
+
+    def text(self) -> str:
+        return "".join(self.lines)
+
+
+def start_cli_server(args: list[str], port: int, env: dict | None = None):
+    """Start ``python -m dashboards.cli ARGS --port PORT``; returns (process, output) once it listens."""
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "dashboards.cli", *args, "--port", str(port)],
+        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, env=env,
+    )
+    output = ServerOutput(proc)
+    try:
+        wait_for_port(port, proc)
+    except Exception:
+        stop_server(proc)
+        raise
+    return proc, output
+
+
+def stop_server(proc: subprocess.Popen) -> None:
+    """Stop a server we started (SIGTERM, then SIGKILL after 15 s)."""
+    proc.terminate()
+    try:
+        proc.wait(timeout=15)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        proc.wait(timeout=5)
+
+
+@pytest.fixture(scope="module")
+def published_dir(tmp_path_factory):
+    """A folder written by ``levelwise publish demo``."""
+    from dashboards.cli import main
+
+    out = tmp_path_factory.mktemp("published") / "dashboard"
+    assert main(["publish", "demo", "--out", str(out)]) == 0
+    return out
+
+
+@pytest.fixture(scope="module")
+def served_published(chromium_path, published_dir):
+    """``levelwise view DIR`` on a free loopback port, its kernel pool filled; yields (base URL, output)."""
+    port = free_port()
+    proc, output = start_cli_server(["view", str(published_dir)], port)
+    output.wait_for("is filled with", timeout=60)  # the preheated kernel has run the notebook
+    try:
+        yield f"http://127.0.0.1:{port}/", output
+    finally:
+        stop_server(proc)

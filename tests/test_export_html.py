@@ -12,7 +12,6 @@ import pytest
 from dashboards.cli import main
 from dashboards.export_html import write_export
 from dashboards.study_source import open_study
-from kernel_core import fit
 
 SCREENSHOTS = __import__("pathlib").Path(__file__).parent.parent / "docs" / "screenshots"
 
@@ -25,9 +24,8 @@ def export_file(tmp_path_factory):
 
 
 def kernel_reference(source):
-    """Fits made directly with kernel_core (not through the page's payload), one per response."""
-    data = source.data.drop(index=[r for r in source.exclusions if r in source.data.index], errors="ignore")
-    return {name: fit(data, name, source.models[name], factors=source.factors) for name in source.responses}
+    """The kernel's fits of the study file, one per response (made by the Study, not from the page's payload)."""
+    return {name: source.study.fit(name) for name in source.responses}
 
 
 def test_export_is_one_self_contained_small_file(export_file):

@@ -1,0 +1,204 @@
+"""The published read-only dashboard (``levelwise publish`` + ``levelwise view``) in a real Chromium, and attacked
+over its kernel websocket. One served instance for the whole module; loopback only."""
+
+from __future__ import annotations
+
+import html
+import json
+import re
+import time
+import urllib.error
+import urllib.request
+from pathlib import Path
+
+import pytest
+import websocket
+from conftest import ARTIFACTS, SCREENSHOTS
+from kernel_ws import KernelClient
+
+from dashboards.study_source import open_study
+from widgets.style import fmt
+
+pytestmark = pytest.mark.browser
+
+#: Widget models whose presence in a read-only page would offer a change to the model or data.
+MUTATING_SELECTORS = [
+    # Every button but: the figures' own pan/zoom toolbars, the display choices (response shown, slice quantity),
+    # "Add current settings" (a row of the viewer's own prediction list) and "Use these settings" (moves the
+    # sliders to the optimum). None of these touches the data, the models or the exclusions.
+    "button:not(.toolbar_div button):not(.lw-response-choice button):not(.lw-slice-quantity button)"
+    ":not(.lw-add-prediction):not(.lw-use-optimum)",
+    "input[type=text]", "input[type=file]", "textarea", "input[type=checkbox]",
+    ".widget-text", ".widget-textarea", ".widget-upload", ".widget-checkbox",
+]
+
+
+@pytest.fixture(scope="module")
+def opened(served_published, browser):
+    """The page opened once; yields (page, first-view seconds)."""
+    url, _ = served_published
+    context = browser.new_context(viewport={"width": 1400, "height": 1000})
+    page = context.new_page()
+    from conftest import loopback_only
+
+    page.route("**/*", loopback_only)
+    started = time.monotonic()
+    page.goto(url, timeout=60_000)
+    page.locator(".lw-readout .lw-mean").first.wait_for(timeout=60_000)
+    first_view = time.monotonic() - started
+    yield page, first_view
+    context.close()
+
+
+def kernel_id_of(page) -> str:
+    match = re.search(r'"kernelId":\s*"([0-9a-f-]{36})"', page.content())
+    assert match, "the page names no kernel"
+    return match.group(1)
+
+
+def fits_shown(page) -> dict:
+    raw = page.locator(".lw-fingerprint .lw-fp").first.get_attribute("data-fits")
+    return json.loads(html.unescape(raw))
+
+
+def test_published_folder_holds_only_the_four_files(published_dir):
+    assert sorted(p.name for p in Path(published_dir).iterdir()) == sorted(
+        ["present.ipynb", "study.json", "voila.json", "README.md"]
+    )
+
+
+def test_renders_read_only_with_caution_and_summary(opened):
+    page, first_view = opened
+    text = page.locator(".lw-present").first.inner_text()
+    assert "Predictions hold only inside the tested region" in text
+    assert "safety review, local codes and licensed practice" in text
+    assert "Invented data" in text
+    assert re.search(r"Study fingerprint [0-9a-f]{16}", text)
+    assert "Traceback" not in page.content()
+    for selector in MUTATING_SELECTORS:
+        assert page.locator(selector).count() == 0, selector
+    # Report (not assert) the first view with a preheated kernel.
+    ARTIFACTS.mkdir(exist_ok=True)
+    (ARTIFACTS / "published_first_view.txt").write_text(f"{first_view:.2f} s\n")
+    print(f"\nfirst view of the published dashboard (preheated): {first_view:.2f} s")
+
+
+def slider_matches_kernel(page, keys) -> str:
+    """Press *keys* on the first factor's slider; the readout must show the kernel's mean at the page's settings."""
+    source = open_study("demo")
+    handle = page.locator(".lw-slider .noUi-handle").first
+    handle.focus()
+    for key in keys:
+        handle.press(key)
+    values = [float(h.get_attribute("aria-valuenow")) for h in page.locator(".lw-slider .noUi-handle").all()]
+    reference = source.study.fit(source.responses[0])  # the fit of the published study file, made here
+    settings = {f.name: v for f, v in zip(source.factors, values)}
+    expected = fmt(reference.predict(settings)["mean"].iloc[0])
+    page.wait_for_function(
+        "([sel, want]) => [...document.querySelectorAll(sel)].some(e => e.innerText === want)",
+        arg=[".lw-readout .lw-mean", expected], timeout=20_000,
+    )
+    return expected
+
+
+def test_slider_moves_prediction_to_kernel_value(opened):
+    page, _ = opened
+    before = page.locator(".lw-readout .lw-mean").first.inner_text()
+    assert slider_matches_kernel(page, ["ArrowRight"] * 4) != before
+    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+    page.screenshot(path=str(SCREENSHOTS / "published-dashboard.png"), full_page=True)
+
+
+def test_crafted_comm_messages_cannot_change_the_model(opened, served_published, tmp_path):
+    page, _ = opened
+    url, _ = served_published
+    before_fp = page.locator(".lw-fingerprint").first.inner_text()
+    before_fits = fits_shown(page)
+    client = KernelClient(url, kernel_id_of(page))
+    try:
+        ask = client.send("shell", "comm_info_request", {"target_name": "jupyter.widget"})
+        reply = client.wait_for("comm_info_reply", ask)
+        assert reply is not None, "comm_info_request went unanswered"
+        comms = list(reply["content"]["comms"])
+        assert len(comms) > 10  # every widget of the page is reachable: the attack surface is real
+        crafted = [
+            {"value": 1e12, "max": 1e12, "min": -1e12, "disabled": False},
+            {"value": "not a number", "description": "<script>alert(1)</script>"},
+            {"value": -1e12, "options": ["x"], "index": 5},
+            {"x": [0.0, 1.0], "y": [1e9, -1e9], "color": None},
+        ]
+        for comm_id in comms:
+            for state in crafted:
+                client.send("shell", "comm_msg", {"comm_id": comm_id,
+                                                  "data": {"method": "update", "state": state, "buffer_paths": []}})
+            client.send("shell", "comm_msg", {"comm_id": comm_id, "data": {"method": "custom",
+                                                                           "content": {"event": "click"}}})
+        marker = tmp_path / "executed"
+        code = f"open({str(marker)!r}, 'w').write('x')"
+        run = client.send("shell", "execute_request", {"code": code, "silent": False, "store_history": False,
+                                                      "user_expressions": {}, "allow_stdin": False,
+                                                      "stop_on_error": True})
+        messages = client.collect(4.0)
+        replies = [m for m in messages if m["parent_header"].get("msg_id") == run]
+        assert replies == []  # execute_request is dropped by the server: no reply, no status, nothing
+        assert not marker.exists()
+        assert not any("Traceback" in json.dumps(m.get("content", {})) for m in messages)
+    finally:
+        client.close()
+    time.sleep(0.5)
+    assert page.locator(".lw-fingerprint").first.inner_text() == before_fp
+    assert fits_shown(page) == before_fits  # the kernel's fits, read back from the page, are unchanged
+    assert "Traceback" not in page.content()
+    # And the model the kernel predicts with is still the published one (the crafted values may have
+    # moved the settings, which a viewer may do; Home brings the first factor to its low end).
+    slider_matches_kernel(page, ["Home", "ArrowRight"])
+
+
+def test_legacy_protocol_websocket_gets_400(opened, served_published):
+    page, _ = opened
+    url, _ = served_published
+    ws_url = url.replace("http://", "ws://") + f"api/kernels/{kernel_id_of(page)}/channels?session_id=legacy"
+    with pytest.raises(websocket.WebSocketBadStatusException) as refused:
+        websocket.create_connection(ws_url, timeout=10)  # offers no subprotocol: the legacy protocol
+    assert refused.value.status_code == 400
+    with pytest.raises(websocket.WebSocketBadStatusException) as other:
+        websocket.create_connection(ws_url + "2", subprotocols=["v2.other"], timeout=10)
+    assert other.value.status_code == 400
+
+
+@pytest.mark.parametrize("path", [
+    "api/contents", "api/contents/study.json", "tree", "study.json", "voila/files/study.json",
+    "voila/files/voila.json", "voila/files/README.md", "voila/files/present.ipynb", "voila/tree",
+    "voila/render/present.ipynb", "voila/api/contents/", "api/kernels", "api/sessions",
+])
+def test_paths_are_not_served(served_published, path):
+    url, _ = served_published
+    try:
+        with urllib.request.urlopen(url + path, timeout=10) as response:
+            status, body = response.status, response.read().decode("utf-8", "replace")
+    except urllib.error.HTTPError as exc:
+        status, body = exc.code, exc.read().decode("utf-8", "replace")
+    assert status in (403, 404, 405), (path, status)
+    assert '"audit"' not in body and "format_version" not in body  # the study file's content never leaks
+    assert "Traceback" not in body
+
+
+def test_report_viewer_kernel_memory(opened):
+    """Report (not assert) the resident memory of the kernel serving this viewer."""
+    page, _ = opened
+    kernel = kernel_id_of(page)
+    rss = None
+    for proc in Path("/proc").iterdir():
+        if not proc.name.isdigit():
+            continue
+        try:
+            cmdline = (proc / "cmdline").read_bytes().decode("utf-8", "replace")
+            if "ipykernel" in cmdline and kernel in cmdline:
+                status = (proc / "status").read_text()
+                rss = int(re.search(r"VmRSS:\s+(\d+) kB", status).group(1)) / 1024
+        except (OSError, AttributeError):
+            continue
+    assert rss is not None, "the viewer's kernel process was not found"
+    ARTIFACTS.mkdir(exist_ok=True)
+    (ARTIFACTS / "published_kernel_memory.txt").write_text(f"{rss:.0f} MB\n")
+    print(f"\nmemory of one viewer kernel: {rss:.0f} MB resident")

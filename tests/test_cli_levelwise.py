@@ -1,0 +1,137 @@
+"""The ``levelwise`` command: help on every command, documented exit codes, publish, view and serve arguments,
+and every hardened voila setting on the command line and in the published configuration."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+
+import pytest
+
+from dashboards import cli
+from dashboards.hardening import CONNECTION_CLASS, THREAD_ENV, offered_subprotocols, server_env, voila_config
+from dashboards.publish import PUBLISHED_FILES
+
+COMMANDS = ["serve", "publish", "view", "export-html"]
+
+
+def run_cli(*args):
+    return subprocess.run([sys.executable, "-m", "dashboards.cli", *args], capture_output=True, text=True, timeout=60)
+
+
+@pytest.mark.parametrize("command", [None, *COMMANDS])
+def test_help_on_every_command_names_the_exit_codes(command):
+    done = run_cli(*([command] if command else []), "--help")
+    assert done.returncode == 0
+    assert "usage: levelwise" in done.stdout
+    assert "Exit codes: 0 success, 1 failure" in done.stdout and "2 bad usage" in done.stdout
+
+
+@pytest.mark.parametrize("args", [[], ["bogus"], ["publish", "demo"], ["view"], ["serve", "--port", "0"],
+                                  ["serve", "--port", "many"], ["export-html", "demo"]])
+def test_bad_usage_exits_2(args):
+    done = run_cli(*args)
+    assert done.returncode == 2, done.stderr
+    assert "usage: levelwise" in done.stderr
+
+
+def test_publish_writes_exactly_the_four_files(tmp_path, capsys):
+    out = tmp_path / "board"
+    assert cli.main(["publish", "demo", "--out", str(out)]) == 0
+    assert sorted(p.name for p in out.iterdir()) == sorted(PUBLISHED_FILES)
+    assert f"levelwise view {out}" in capsys.readouterr().out
+    config = json.loads((out / "voila.json").read_text())
+    assert config == voila_config()
+    readme = (out / "README.md").read_text()
+    assert "levelwise view ." in readme and "Predictions hold only inside the tested region" in readme
+    notebook = json.loads((out / "present.ipynb").read_text())
+    code = [c for c in notebook["cells"] if c["cell_type"] == "code"]
+    assert len(code) == 1 and "".join(code[0]["source"]).count("\n") <= 2  # one import and one call
+    from kernel_core.study import Study
+
+    assert Study.load(out / "study.json").title == Study.load(cli.NOTEBOOKS / "data" / "demo_campaign.json").title
+
+
+def test_publish_refuses_a_non_empty_folder_and_a_missing_study(tmp_path, capsys):
+    (tmp_path / "old.txt").write_text("keep me")
+    assert cli.main(["publish", "demo", "--out", str(tmp_path)]) == 1
+    assert "must not exist yet or be empty" in capsys.readouterr().err
+    assert (tmp_path / "old.txt").read_text() == "keep me"
+    assert cli.main(["publish", str(tmp_path / "none.json"), "--out", str(tmp_path / "new")]) == 1
+    assert "does not exist" in capsys.readouterr().err
+    assert not (tmp_path / "new").exists()
+
+
+def test_publish_refuses_a_corrupt_study(tmp_path, capsys):
+    bad = tmp_path / "bad.json"
+    bad.write_text("{ not json")
+    assert cli.main(["publish", str(bad), "--out", str(tmp_path / "out")]) == 1
+    assert "levelwise publish:" in capsys.readouterr().err
+    assert not (tmp_path / "out").exists()
+
+
+def test_view_refuses_a_folder_that_was_not_published(tmp_path, capsys):
+    assert cli.main(["view", str(tmp_path)]) == 1
+    assert "is not a published folder" in capsys.readouterr().err
+
+
+def test_serve_refuses_a_missing_study(tmp_path, capsys):
+    assert cli.main(["serve", str(tmp_path / "none.json")]) == 1
+    assert "does not exist" in capsys.readouterr().err
+
+
+def test_voila_command_has_every_hardened_setting():
+    command = cli.voila_command("nb.ipynb", 9100)
+    joined = " ".join(command)
+    assert command[1:4] == ["-m", "voila", "nb.ipynb"]  # the standalone voila, one notebook, never the extension
+    assert "--no-browser" in command and "--port=9100" in command
+    assert "--Voila.ip=127.0.0.1" in command  # loopback unless --ip
+    assert "--VoilaConfiguration.strip_sources=True" in command
+    assert "--VoilaConfiguration.show_tracebacks=False" in command
+    assert "--VoilaConfiguration.file_allowlist=[]" in command  # no file of the folder is served
+    assert "--VoilaConfiguration.preheat_kernel=True" in command
+    assert "--VoilaConfiguration.default_pool_size=1" in command
+    assert "--MappingKernelManager.cull_idle_timeout=600" in command
+    assert "--MappingKernelManager.cull_interval=60" in command
+    assert f"--Voila.kernel_websocket_connection_class={CONNECTION_CLASS}" in command
+    assert "--Voila.token=" in command  # no token by default
+    assert "--debug" not in joined and "jupyter" not in command[0]
+    with_token = cli.voila_command("nb.ipynb", 9100, ip="0.0.0.0", token="s3cret")
+    assert "--Voila.ip=0.0.0.0" in with_token and "--Voila.token=s3cret" in with_token
+
+
+def test_voila_accepts_the_hardened_settings():
+    """voila itself parses every setting (a misspelt option would be ignored or refused)."""
+    from voila.app import Voila
+
+    app = Voila()
+    app.parse_command_line(cli.voila_command("x.ipynb", 9100)[3:])
+    config = app.config
+    assert config.VoilaConfiguration.strip_sources is True
+    assert config.VoilaConfiguration.show_tracebacks is False
+    assert config.VoilaConfiguration.file_allowlist == []
+    assert config.VoilaConfiguration.preheat_kernel is True
+    assert config.Voila.kernel_websocket_connection_class == CONNECTION_CLASS
+    from jupyter_server.services.kernels.kernelmanager import AsyncMappingKernelManager
+
+    # voila's kernel manager is a subclass of this one; MappingKernelManager settings reach it by name.
+    manager = AsyncMappingKernelManager(config=config)
+    assert manager.cull_idle_timeout == 600 and manager.cull_interval == 60 and manager.cull_connected is True
+
+
+def test_one_blas_thread_per_kernel():
+    env = server_env({"LEVELWISE_STUDY": "demo"})
+    for name, value in THREAD_ENV.items():
+        assert env[name] == "1", name
+    assert env["LEVELWISE_STUDY"] == "demo"
+
+
+def test_the_connection_class_is_importable_and_subclasses_jupyter_servers():
+    from jupyter_server.services.kernels.connection.channels import ZMQChannelsWebsocketConnection
+
+    from dashboards.hardening import V1OnlyWebsocketConnection
+
+    assert issubclass(V1OnlyWebsocketConnection, ZMQChannelsWebsocketConnection)
+    assert offered_subprotocols("v1.kernel.websocket.jupyter.org,  x ") == ["v1.kernel.websocket.jupyter.org", "x"]
+    assert offered_subprotocols("") == []
