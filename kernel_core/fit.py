@@ -96,6 +96,9 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
     return array
 
 
+_PLAIN_NUMBERS = (int, float, np.float64, np.float32, np.int64, np.int32)
+
+
 def _read_only(*arrays):
     """Mark arrays read-only, so a Fit's numbers cannot be changed in place."""
     for array in arrays:
@@ -207,6 +210,11 @@ class Fit:
     def run_settings(self) -> np.ndarray:
         """(n, k) natural settings of the runs in the fit (achieved where recorded)."""
         return self.settings_all if self._order is None else self.settings_all[self._order]
+
+    @property
+    def settings(self) -> np.ndarray:
+        """Same as :attr:`run_settings` (``kernel_core.reduce.refit`` reads this name)."""
+        return self.run_settings
 
     def _replace(self, **changes) -> Fit:
         """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace)."""
@@ -432,12 +440,22 @@ class Fit:
 
     @cached_property
     def max_abs_correlation(self) -> float:
-        """Largest |correlation| between two non-constant model columns (0 for an orthogonal design)."""
-        X = self.X[:, np.ptp(self.X, axis=0) > 0] if self.n else self.X
-        if X.shape[1] < 2:
+        """Largest |correlation| between two non-constant model columns of different terms.
+
+        0 for an orthogonal design. The contrast columns of one categorical term are correlated by
+        construction (0.5 for sum-to-zero contrasts in a balanced design), so pairs within a term are
+        left out.
+        """
+        X = self.X
+        varying = np.flatnonzero(np.ptp(X, axis=0) > 0) if self.n else np.zeros(0, dtype=int)
+        if len(varying) < 2:
             return 0.0
-        corr = np.corrcoef(X, rowvar=False)
-        np.fill_diagonal(corr, 0.0)
+        corr = np.corrcoef(X[:, varying], rowvar=False)
+        term_of = np.full(self.p, -1)
+        for g, (_, cols) in enumerate(self.groups):
+            term_of[list(cols)] = g
+        same = term_of[varying][:, None] == term_of[varying][None, :]
+        corr[same] = 0.0
         return float(np.abs(corr).max())
 
     @property
@@ -567,6 +585,17 @@ class Fit:
         Categorical factors are given by level and become level indices; a level that was not in
         the data is an error (it has no estimated effect).
         """
+        if isinstance(settings, dict) and not self.categories:
+            # Fast path for the interactive case (one setting of plain numbers); anything else, and
+            # every error message, goes through the general path below.
+            try:
+                row = [settings[name] for name in self.factor_names]
+            except KeyError:
+                row = None
+            if row is not None and all(type(v) in _PLAIN_NUMBERS for v in row):
+                array = np.array([row], dtype=float)
+                if np.isfinite(array).all():
+                    return array
         if isinstance(settings, pd.DataFrame):
             frame = settings
         elif isinstance(settings, dict):
@@ -652,12 +681,18 @@ class Fit:
             raise LevelwiseError(f"The 'points' parameter must be an integer from 2 to 100000. Got {describe(points)}.")
         base = self.settings_array(settings)[0]
         j = self.factor_names.index(factor)
-        if factor in self.categories:
-            labels = np.array(self.categories[factor], dtype=object)
-            x = np.arange(len(labels), dtype=float)
-        else:
-            labels = x = np.linspace(self.coding.low[j], self.coding.high[j], int(points))
-        grid = np.repeat(base[None, :], len(x), axis=0)
+        grids = self.__dict__.setdefault("_trace_grids", {})  # the x values per (factor, points), cached
+        key = (j, int(points))
+        if key not in grids:
+            if factor in self.categories:
+                labels = np.array(self.categories[factor], dtype=object)
+                grids[key] = (labels, np.arange(len(labels), dtype=float))
+            else:
+                x = np.linspace(self.coding.low[j], self.coding.high[j], int(points))
+                grids[key] = (x, x)
+        labels, x = grids[key]
+        grid = np.empty((len(x), len(base)))
+        grid[:] = base
         grid[:, j] = x
         mean, ci_half, pi_half = self.predictor.intervals(grid, level)
         return {"x": labels, "mean": mean, "ci_half": ci_half, "pi_half": pi_half}

@@ -62,15 +62,37 @@ class ModelSpec:
 
 
 def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarray:
-    """Evaluate every term (a row of *exponents*) at each row of *coded*: an (n, p) matrix."""
-    coded = np.atleast_2d(coded)
-    # Column-major: each term is one contiguous column, and LAPACK's QR takes it without a copy.
-    columns = np.asfortranarray(coded, dtype=dtype)
-    out = np.ones((coded.shape[0], exponents.shape[0]), dtype=dtype, order="F")
+    """Evaluate every term (a row of *exponents*) at each row of *coded*: an (n, p) matrix.
+
+    Each power of each factor is computed once and shared by the terms that use it. The result is
+    column-major, as LAPACK's QR wants it.
+    """
+    coded = np.atleast_2d(np.asarray(coded, dtype=dtype))
+    m, p = coded.shape[0], exponents.shape[0]
+    k = coded.shape[1]
+    if m * exponents.size <= 50_000 and k:
+        # Few rows (the interactive path): one power table for all factors, one gather, one product.
+        top = int(exponents.max(initial=0))
+        table = np.empty((m, k, top + 1), dtype=dtype)
+        table[:, :, 0] = 1.0
+        for d in range(1, top + 1):
+            table[:, :, d] = table[:, :, d - 1] * coded
+        return np.asfortranarray(table[:, np.arange(k)[None, :], exponents].prod(axis=2))
+    # Many rows (building a model matrix): contiguous power columns per factor, one product per term.
+    out = np.ones((m, p), dtype=dtype, order="F")
+    powers = {}
+    for i in np.flatnonzero(exponents.any(axis=0)):
+        first = np.ascontiguousarray(coded[:, i])
+        # x ** d rounds once (repeated products would round d - 1 times).
+        powers[i] = [None, first] + [first**d for d in range(2, int(exponents[:, i].max()) + 1)]
     for j, row in enumerate(exponents):
-        for i in np.flatnonzero(row):
-            power = row[i]
-            out[:, j] *= columns[:, i] if power == 1 else columns[:, i] ** power
+        factors = np.flatnonzero(row)
+        if not len(factors):
+            continue
+        column = out[:, j]
+        np.copyto(column, powers[factors[0]][row[factors[0]]])
+        for i in factors[1:]:
+            np.multiply(column, powers[i][row[i]], out=column)
     return out
 
 

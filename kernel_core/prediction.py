@@ -68,19 +68,49 @@ class Predictor:
     contrasts: tuple = ()
     max_leverage: float = np.inf
 
+    def __post_init__(self):
+        # Compile the exponent matrix once. v = [1, x, x^2, ..., x^top] (each power for every coded
+        # variable) and every term is the product of at most F entries of v, picked by index.
+        exponents = np.asarray(self.exponents)
+        p, k = exponents.shape
+        top = int(exponents.max(initial=0))
+        width = max(1, int((exponents > 0).sum(axis=1).max(initial=0)))
+        picks = np.zeros((width, p), dtype=np.intp)
+        for j, row in enumerate(exponents):
+            for slot, i in enumerate(np.flatnonzero(row)):
+                picks[slot, j] = 1 + (row[i] - 1) * k + i
+        inv_scale = 1.0 / np.asarray(self.scale, dtype=float)
+        object.__setattr__(self, "_plan", (k, top, picks, inv_scale))
+
     def rows(self, natural: np.ndarray) -> np.ndarray:
         """Model rows for an (m, k) array of natural settings."""
-        return monomials(encode(natural, self.center, self.scale, self.contrasts), self.exponents)
+        k, top, picks, inv_scale = self._plan
+        if self.contrasts:
+            coded = encode(natural, self.center, self.scale, self.contrasts)
+        else:
+            natural = np.asarray(natural, dtype=float)
+            coded = (natural.reshape(1, -1) if natural.ndim == 1 else natural) - self.center
+            coded *= inv_scale
+        m = coded.shape[0]
+        if m * picks.size > 2_000_000 or coded.shape[1] == 0:
+            return monomials(coded, self.exponents)
+        parts = [np.ones((m, 1)), coded]
+        for _ in range(2, top + 1):
+            parts.append(parts[-1] * coded)
+        v = np.concatenate(parts, axis=1)
+        x = v[:, picks[0]]
+        for slot in range(1, len(picks)):
+            x *= v[:, picks[slot]]
+        return x
 
     def mean_and_leverage(self, natural: np.ndarray):
         """Predicted mean and leverage ``x (X'X)^-1 x'`` at each row of *natural*."""
         x = self.rows(natural)
-        return x @ self.beta, np.square(x @ self.rinv).sum(axis=1)
+        xr = x @ self.rinv
+        return x @ self.beta, np.einsum("ij,ij->i", xr, xr)
 
     def intervals(self, natural: np.ndarray, level: float):
         """Mean, CI half-width and PI half-width at each row of *natural*."""
         mean, h = self.mean_and_leverage(natural)
-        q = self.t_of_level(level)
-        ci_half = q * self.s * np.sqrt(h)
-        pi_half = q * self.s * np.sqrt(1.0 + h)
-        return mean, ci_half, pi_half
+        qs = self.t_of_level(level) * self.s
+        return mean, qs * np.sqrt(h), qs * np.sqrt(1.0 + h)

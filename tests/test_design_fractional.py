@@ -198,3 +198,16 @@ def test_blocks_reach_highest_orders():
     # 2^15 in 4 blocks: three contrasts, each of order >= 10 is possible (weights 10, 10, 10 overlap in 5).
     big = full_factorial(15, blocks=4, randomize=False)
     assert min(len(e) for e in big.block_confounded) >= 10
+
+
+def test_search_is_bounded_and_keeps_a_valid_design():
+    from kernel_core.fractional import minimum_aberration
+
+    # A 2^(17-11) search cut short by a tiny node budget still returns a design, flagged incomplete; the
+    # odd-weight incumbent has resolution IV (all words of even length: a counting argument, common practice).
+    masks, pattern, complete = minimum_aberration(17, 6, budget=5)
+    assert not complete and len(masks) == 11 and len(set(masks)) == 11
+    assert pattern[:3] == (0, 0, 0)
+    basic = np.array(list(itertools.product((-1, 1), repeat=6)))
+    added = [np.prod(basic[:, [j for j in range(6) if mask >> j & 1]], axis=1) for mask in masks]
+    assert brute_force_wlp(np.column_stack([basic, *added]))[:3] == (0, 0, 0)

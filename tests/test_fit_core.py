@@ -318,3 +318,38 @@ def test_fit_is_immutable_and_exclusion_leaves_the_original_alone():
     assert result.beta == pytest.approx(before, rel=0, abs=0) and result.n == len(data)
     assert reduced.exclusions == ((2, "spilled sample"),) and result.exclusions == ()
     assert reduced.orthogonality["excluded_runs"] == (2,)
+
+
+@pytest.mark.parametrize("model", ["quadratic", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
+def test_compiled_predictor_rows_equal_the_product_of_powers(model):
+    rng = np.random.default_rng(12)
+    data = pd.DataFrame(rng.uniform(-1, 1, (40, 3)), columns=list("ABC"))
+    data["y"] = rng.normal(size=40)
+    result = fit(data, "y", model)
+    for m in (1, 7, 300):
+        natural = rng.uniform(-1, 1, (m, len(result.factor_names)))
+        coded = (natural - result.coding.center) / result.coding.scale
+        # Direct definition (common practice): each term is the product of coded factors to their powers.
+        expected = np.prod(coded[:, None, :] ** result.spec.exponents[None, :, :], axis=2)
+        assert result.predictor.rows(natural) == pytest.approx(expected, rel=1e-13, abs=1e-15)
+
+
+def test_balanced_categorical_design_counts_as_orthogonal():
+    result = fit(categorical_data(), "y", "Temp * Supplier")
+    # Balanced 2 x 3 layout: columns of different terms are uncorrelated (common practice); the two contrast
+    # columns of Supplier are correlated 0.5 by construction and are not a loss of orthogonality.
+    assert result.max_abs_correlation == pytest.approx(0.0, abs=1e-12)
+    assert abs(np.corrcoef(result.X[:, 2], result.X[:, 3])[0, 1]) == pytest.approx(0.5)  # numpy corrcoef
+
+
+def test_refit_on_fewer_terms_keeps_the_achieved_settings():
+    # kernel_core.reduce.refit reads Fit.settings: the settings actually used (achieved where recorded).
+    from kernel_core.reduce import refit
+
+    data = planned_design()
+    data["A (achieved)"] = data["A"] + np.linspace(-0.4, 0.4, len(data))
+    full = fit(data, "y", "A + B + C + A:B", factors=FACTORS3)
+    smaller = refit(full, [[0, 0, 0], [1, 0, 0], [0, 1, 0]])
+    achieved = data[["A", "B", "C"]].assign(A=data["A (achieved)"])
+    ref = ols_on(achieved, data["y"], ["A", "B"])  # statsmodels OLS on the achieved matrix
+    assert smaller.beta == pytest.approx(ref.params, rel=1e-10)
