@@ -57,6 +57,50 @@ def _calibrate(fn, min_sample: float, slow: float) -> tuple[int, float | None]:
     return max(1, math.ceil(min_sample / max(second, 1e-9))), None
 
 
+def interleaved_group(functions: dict, *, repeats: int, limited: dict | None = None, min_sample: float = 0.005,
+                      budget: float = float("inf"), slow: float = 0.5):
+    """Time several callables in turn, repeat by repeat, rotating which goes first.
+
+    Parameters
+    ----------
+    functions : dict of str -> callable
+        Zero-argument callables, timed in rotation.
+    repeats : int
+        Samples of each.
+    limited : dict of str -> int, optional
+        Fewer samples for a very slow callable, spread evenly over the repeats.
+    min_sample, budget, slow
+        As in :func:`interleaved`.
+
+    Returns
+    -------
+    (dict of str -> Samples, bool)
+        The samples per name, and whether the budget cut the repeats short.
+    """
+    start = time.perf_counter()
+    limited = limited or {}
+    names = list(functions)
+    samples, due = {}, {}
+    for name in names:
+        side = samples[name] = Samples()
+        side.number, warm = _calibrate(functions[name], min_sample, slow)
+        wanted = max(1, min(repeats, limited.get(name, repeats)))
+        if warm is not None:
+            side.times.append(warm)
+            wanted -= 1
+        due[name] = set(np.linspace(0, repeats - 1, wanted).round().astype(int).tolist()) if wanted > 0 else set()
+    cut = False
+    for i in range(repeats):
+        if i >= 3 and time.perf_counter() - start > budget:
+            cut = True
+            break
+        turn = names[i % len(names):] + names[:i % len(names)]  # rotate which side goes first
+        for name in turn:
+            if i in due[name]:
+                samples[name].times.append(_time(functions[name], samples[name].number))
+    return samples, cut
+
+
 def interleaved(ours, reference=None, *, repeats: int, reference_repeats: int | None = None,
                 min_sample: float = 0.005, budget: float = float("inf"), slow: float = 0.5):
     """Time *ours* and *reference* alternately, *repeats* samples each.
@@ -81,33 +125,8 @@ def interleaved(ours, reference=None, *, repeats: int, reference_repeats: int | 
     (Samples, Samples or None, bool)
         Our samples, the reference's, and whether the budget cut the repeats short.
     """
-    start = time.perf_counter()
-    mine = Samples()
-    mine.number, warm = _calibrate(ours, min_sample, slow)
-    if warm is not None:
-        mine.times.append(warm)
-    theirs = None
-    ref_at: set = set()
-    if reference is not None:
-        theirs = Samples()
-        theirs.number, warm_ref = _calibrate(reference, min_sample, slow)
-        wanted = repeats if reference_repeats is None else max(1, min(repeats, reference_repeats))
-        if warm_ref is not None:
-            theirs.times.append(warm_ref)
-            wanted -= 1
-        ref_at = set(np.linspace(0, repeats - 1, wanted).round().astype(int).tolist()) if wanted > 0 else set()
-    cut = False
-    for i in range(repeats):
-        if i >= 3 and time.perf_counter() - start > budget:
-            cut = True
-            break
-        pair = []
-        if len(mine.times) < repeats:
-            pair.append((ours, mine))
-        if theirs is not None and i in ref_at:
-            pair.append((reference, theirs))
-        if i % 2:
-            pair.reverse()  # alternate which side goes first
-        for fn, side in pair:
-            side.times.append(_time(fn, side.number))
-    return mine, theirs, cut
+    functions = {"ours": ours} if reference is None else {"ours": ours, "reference": reference}
+    limited = {} if reference_repeats is None else {"reference": reference_repeats}
+    samples, cut = interleaved_group(functions, repeats=repeats, limited=limited, min_sample=min_sample,
+                                     budget=budget, slow=slow)
+    return samples["ours"], samples.get("reference"), cut
