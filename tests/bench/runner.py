@@ -138,6 +138,8 @@ def parse(argv):
     parser.add_argument("--budget", type=float, default=None,
                         help="Seconds per case after which no new repeats start (default 300, quick 20).")
     parser.add_argument("--out", default="bench-results.json", help="Where to write the JSON results.")
+    parser.add_argument("--table-from", default=None, metavar="FILE",
+                        help="Print the Markdown table of an earlier results file and exit (runs nothing).")
     args = parser.parse_args(argv)
     cases = [c.strip() for c in args.cases.split(",") if c.strip()]
     unknown = sorted(set(cases) - set(ALL_CASES))
@@ -152,6 +154,13 @@ def parse(argv):
 
 def main(argv=None) -> int:
     args, cases = parse(argv)
+    if args.table_from:
+        results = json.loads(Path(args.table_from).read_text())
+        info = results["machine"]
+        print(f"{results['mode']} run of {results['started_utc']}, {info['cpu_count']} CPUs ({info['cpu_model']}), "
+              f"load average {info.get('load_average')}, {results['repeats']} repeats\n")
+        print(table(results["rows"]))
+        return 0
     from threadpoolctl import threadpool_info, threadpool_limits
 
     from .kernel_cases import CASES, Config
