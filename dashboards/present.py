@@ -17,7 +17,7 @@ import ipywidgets as ipw
 from ._compose import find_view
 from .kernel_guard import silence_tracebacks
 from .study_source import StudySource, open_study, shared_model
-from .summary import CAUTION, fingerprint, fit_numbers, summary_html
+from .summary import caution_html, fingerprint, fit_numbers, summary_html
 
 #: The views of the stakeholder page, in page order (the workbench's mutating views, the design
 #: builder, the residual inspector and the effects view with its term toggles, are deliberately absent).
@@ -121,7 +121,7 @@ def build(source=None) -> ipw.VBox:
     source = source if isinstance(source, StudySource) else open_study(source)
     shared = shared_model(source, read_only=True)
     title = ShownHTML(f"<h2>{html.escape(source.title)}</h2>").add_class("lw-title")
-    banner = ShownHTML(f'<div class="lw-caution">{CAUTION}</div>').add_class("lw-banner")
+    banner = ShownHTML(caution_html()).add_class("lw-banner")
     readout = StudyReadout(source, shared)
     children = [title, banner, readout.widget]
     views = [readout]

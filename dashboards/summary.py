@@ -20,6 +20,15 @@ CAUTION = (
 )
 
 
+#: Inline style of the caution banner (a dashboard page has no stylesheet of ours).
+CAUTION_STYLE = "background:#fff4e0;border-left:5px solid #E69F00;padding:0.5em 0.9em;margin:0.5em 0"
+
+
+def caution_html() -> str:
+    """The caution banner as an HTML block."""
+    return f'<div class="lw-caution" style="{CAUTION_STYLE}">{CAUTION}</div>'
+
+
 def _num(value: float, digits: int = 4) -> str:
     if value != value:
         return "not available"

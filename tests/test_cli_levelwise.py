@@ -122,7 +122,7 @@ def test_voila_accepts_the_hardened_settings():
 
 def test_one_blas_thread_per_kernel():
     env = server_env({"LEVELWISE_STUDY": "demo"})
-    for name, value in THREAD_ENV.items():
+    for name in THREAD_ENV:
         assert env[name] == "1", name
     assert env["LEVELWISE_STUDY"] == "demo"
 

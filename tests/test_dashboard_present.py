@@ -1,0 +1,94 @@
+"""The read-only stakeholder page and the workbench, built headless (no browser, no kernel)."""
+
+from __future__ import annotations
+
+import ipywidgets as ipw
+import pytest
+
+from dashboards import explore, present
+from dashboards.study_source import DEMO, STUDY_ENV, locate, open_study
+from dashboards.summary import CAUTION, fingerprint
+from kernel_core import LevelwiseError
+from widgets import ReadOnlyError
+
+#: Widget types that edit something: none may appear on the stakeholder page.
+EDITORS = (ipw.Text, ipw.Textarea, ipw.FloatText, ipw.IntText, ipw.Checkbox, ipw.FileUpload, ipw.BoundedFloatText)
+
+
+def walk(widget):
+    yield widget
+    for child in getattr(widget, "children", ()) or ():
+        yield from walk(child)
+
+
+@pytest.fixture(scope="module")
+def page():
+    return present.build("demo")
+
+
+def test_present_is_read_only_in_python(page):
+    shared = page.shared
+    assert shared.read_only
+    fits_before = dict(shared.fits)
+    for attempt in (
+        lambda: shared.set_model("Impact", "Oven"),
+        lambda: shared.exclude(4, "trying"),
+        lambda: shared.set_data(shared.data.iloc[:5]),
+    ):
+        with pytest.raises(ReadOnlyError):
+            attempt()
+    assert dict(shared.fits) == fits_before
+    shared.set_settings(Oven=200.0)  # moving the settings is what a viewer may do
+    assert shared.settings["Oven"] == 200.0
+
+
+def test_present_has_no_editors_and_shows_the_caution(page):
+    found = [type(w).__name__ for w in walk(page) if isinstance(w, EDITORS)]
+    assert found == []
+    buttons = {w.description for w in walk(page) if isinstance(w, ipw.Button)}
+    assert buttons <= {"Add current settings", "Use these settings"}
+    text = " ".join(w.value for w in walk(page) if isinstance(w, ipw.HTML))
+    assert CAUTION in text
+    assert "Invented data" in text and "fold-over (16)" in text and "screen (20)" in text
+    assert "2 run(s) recorded an achieved setting" in text
+    assert "Best settings found" in text  # the optimum for the study's goals
+
+
+def test_summary_widgets_ignore_browser_updates(page):
+    readout = page.views[0]
+    before = readout.fingerprint.value
+    readout.fingerprint.set_state({"value": "<b>defaced</b>"})  # what a crafted comm update would call
+    readout.summary.set_state({"value": "defaced"})
+    assert readout.fingerprint.value == before and "defaced" not in readout.summary.value
+
+
+def test_fingerprint_follows_data_models_and_exclusions():
+    source = open_study("demo")
+    base = fingerprint(source.data, source.models, source.exclusions)
+    assert base == fingerprint(source.data.copy(), dict(source.models), dict(source.exclusions))
+    changed = source.data.copy()
+    changed.iloc[0, changed.columns.get_loc("Impact")] += 0.01
+    assert fingerprint(changed, source.models, source.exclusions) != base
+    assert fingerprint(source.data, {**source.models, "Impact": "Oven"}, source.exclusions) != base
+    assert fingerprint(source.data, source.models, {4: "why"}) != base
+
+
+def test_workbench_is_writable_and_composes_every_view():
+    page = explore.build("demo")
+    assert not page.shared.read_only
+    names = {type(v).__name__ for v in page.views}
+    assert {"DesignBuilder", "EffectsView", "FactorSliders", "SurfaceSlice", "ResidualInspector",
+            "PredictionsView", "OptimizerView"} <= names
+    page.shared.exclude(4, "operator note")
+    assert 4 in page.shared.exclusions
+
+
+def test_study_is_found_by_env_then_file_then_demo(tmp_path, monkeypatch):
+    monkeypatch.delenv(STUDY_ENV, raising=False)
+    assert locate(here=tmp_path) == DEMO
+    (tmp_path / "study.json").write_text("{}")
+    assert locate(here=tmp_path) == tmp_path / "study.json"
+    monkeypatch.setenv(STUDY_ENV, str(tmp_path / "other.json"))
+    assert locate(here=tmp_path) == tmp_path / "other.json"
+    with pytest.raises(LevelwiseError, match="does not exist"):
+        open_study(None)
