@@ -3,7 +3,7 @@
 Goals (issue 4):
 - one interactive refresh (point prediction with CI/PI, k traces of 50 points, and a 100 x 100 slice with CI/PI
   when ``kernel_core.surface`` is present) for a 5-factor quadratic: >= 50x faster than statsmodels
-  ``get_prediction`` on numpy arrays;
+  ``get_prediction`` on numpy arrays (the traces through ``Fit.traces``, all factors in one batch);
 - diagnostics at n = 10,000: >= 1000x faster than statsmodels ``get_influence().summary_frame()``;
 - an exclusion: >= 10x faster than a statsmodels refit;
 - a fit of n = 100,000 rows, p = 21: within 1.5x of a plain pivoted-QR solve.
@@ -67,8 +67,7 @@ def refresh(quick):
 
     def ours():
         result.predictor.intervals(np.array([[0.2] * 5]), 0.95)
-        for f in FACTORS:
-            result.trace(f, settings)
+        result.traces(settings)
         if has_slice:
             result.slice("A", "B", settings, shape=(100, 100))
 

@@ -402,6 +402,30 @@ class Fit:
             scale += [self.coding.scale[j] if contrast is None else 1.0] * width
         return np.array(center), np.array(scale)
 
+    @cached_property
+    def setting_deviation_summary(self) -> pd.DataFrame | None:
+        """Per factor: runs moved from plan, largest and root-mean-square |achieved - planned| in
+        natural units, and the largest as a fraction of the factor's half-range (coded units).
+        None when the data carries no achieved settings."""
+        dev = self.setting_deviations
+        if dev is None:
+            return None
+        values = dev.to_numpy(dtype=float)
+        half = np.array([self.coding.high[self.factor_names.index(c)] - self.coding.low[self.factor_names.index(c)]
+                         for c in dev.columns]) / 2.0
+        largest = np.abs(values).max(axis=0) if len(values) else np.zeros(len(dev.columns))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            coded = np.where(half > 0, largest / half, np.nan)
+        return pd.DataFrame(
+            {
+                "runs_moved": np.count_nonzero(values, axis=0),
+                "max_abs": largest,
+                "rms": np.sqrt(np.mean(values**2, axis=0)) if len(values) else largest,
+                "max_abs_coded": coded,
+            },
+            index=pd.Index(dev.columns, name="factor"),
+        )
+
     # ----- ANOVA, diagnostics, orthogonality -------------------------------------------------
     @cached_property
     def anova(self) -> pd.DataFrame:
@@ -696,6 +720,38 @@ class Fit:
         grid[:, j] = x
         mean, ci_half, pi_half = self.predictor.intervals(grid, level)
         return {"x": labels, "mean": mean, "ci_half": ci_half, "pi_half": pi_half}
+
+    def traces(self, settings, points: int = 50, level: float | None = None) -> dict:
+        """:meth:`trace` for every factor at once: ``{factor: {"x", "mean", "ci_half", "pi_half"}}``.
+
+        The continuous factors' curves are evaluated in one batch (one model evaluation for all of
+        them), which is what a refresh of every slider's curve needs.
+        """
+        level = self.level if level is None else _check_level(level)
+        base = self.settings_array(settings)[0]
+        points = int(points)
+        grids = self.__dict__.setdefault("_trace_grids", {})
+        key = ("all", points)
+        if key not in grids:
+            continuous = [j for j, name in enumerate(self.factor_names) if name not in self.categories]
+            template = np.full((len(continuous) * points, len(self.factor_names)), np.nan)
+            xs = {}
+            for b, j in enumerate(continuous):
+                xs[j] = np.linspace(self.coding.low[j], self.coding.high[j], points)
+                template[b * points : (b + 1) * points, j] = xs[j]
+            grids[key] = (continuous, template, np.isnan(template), xs)
+        continuous, template, blank, xs = grids[key]
+        out = {}
+        if continuous:
+            grid = np.where(blank, base, template)
+            mean, ci_half, pi_half = self.predictor.intervals(grid, level)
+            for b, j in enumerate(continuous):
+                part = slice(b * points, (b + 1) * points)
+                out[self.factor_names[j]] = {"x": xs[j], "mean": mean[part], "ci_half": ci_half[part],
+                                             "pi_half": pi_half[part]}
+        for name in self.categories:
+            out[name] = self.trace(name, settings, points, level)
+        return {name: out[name] for name in self.factor_names}
 
     # ----- delegations to the analysis modules (imported lazily) ------------------------------
     @property

@@ -353,3 +353,59 @@ def test_refit_on_fewer_terms_keeps_the_achieved_settings():
     achieved = data[["A", "B", "C"]].assign(A=data["A (achieved)"])
     ref = ols_on(achieved, data["y"], ["A", "B"])  # statsmodels OLS on the achieved matrix
     assert smaller.beta == pytest.approx(ref.params, rel=1e-10)
+
+
+@pytest.mark.parametrize("model", ["quadratic", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
+def test_trace_equals_point_predictions_for_several_models(model):
+    rng = np.random.default_rng(13)
+    data = pd.DataFrame(rng.uniform(-1, 1, (40, 3)), columns=list("ABC"))
+    data["y"] = rng.normal(size=40)
+    result = fit(data, "y", model)
+    names = result.factor_names
+    settings = {n: 0.3 for n in names}
+    for name in names:
+        trace = result.trace(name, settings, points=9)
+        points = pd.DataFrame({n: trace["x"] if n == name else 0.3 for n in names})
+        direct = result.predict(points)  # point predictions, row by row (the general path)
+        assert trace["mean"] == pytest.approx(direct["mean"].to_numpy(), rel=1e-12, abs=1e-13)
+        assert trace["ci_half"] == pytest.approx((direct["ci_high"] - direct["mean"]).to_numpy(), rel=1e-9)
+        assert trace["pi_half"] == pytest.approx((direct["pi_high"] - direct["mean"]).to_numpy(), rel=1e-12)
+
+
+def test_traces_of_all_factors_equal_single_traces():
+    data = categorical_data()
+    data["Speed"] = np.linspace(10, 20, len(data))
+    result = fit(data, "y", "Temp * Supplier + Speed + I(Speed**2)")
+    settings = {"Temp": 0.2, "Supplier": "west", "Speed": 12.0}
+    batch = result.traces(settings, points=11)
+    assert list(batch) == list(result.factor_names)
+    for name in result.factor_names:
+        single = result.trace(name, settings, points=11)  # one factor at a time (checked against predict above)
+        for key in ("mean", "ci_half", "pi_half"):
+            assert batch[name][key] == pytest.approx(single[key], rel=1e-12, abs=1e-13)
+        assert list(batch[name]["x"]) == list(single["x"])
+
+
+def test_fit_reads_the_achieved_columns_of_a_run_sheet():
+    # kernel_core.runsheet writes "<factor> (achieved)" columns, blank = as planned: the convention fit() reads.
+    from kernel_core.runsheet import run_sheet
+
+    design = full_factorial(FACTORS3, center_points=2, seed=4)
+    sheet = run_sheet(design, responses=["y"])
+    rng = np.random.default_rng(4)
+    sheet["y"] = 2 + 0.05 * sheet["A"] + rng.normal(0, 0.1, len(sheet))
+    sheet.loc[3, "A (achieved)"] = sheet.loc[3, "A"] + 2.5
+    sheet.loc[7, "C (achieved)"] = sheet.loc[7, "C"] - 4.0
+    result = fit(sheet, "y", "A + B + C", factors=design.factors)
+    actual = sheet[["A", "B", "C"]].copy()
+    actual.loc[3, "A"] += 2.5
+    actual.loc[7, "C"] -= 4.0
+    ref = ols_on(actual, sheet["y"], ["A", "B", "C"])  # statsmodels OLS on the achieved settings
+    assert result.beta == pytest.approx(ref.params, rel=1e-10)
+    assert result.setting_deviations.loc[3, "A"] == pytest.approx(2.5)  # the perturbation above
+    assert result.setting_deviations.loc[7, "C"] == pytest.approx(-4.0)  # the perturbation above
+    assert np.count_nonzero(result.setting_deviations.to_numpy()) == 2
+    summary = result.setting_deviation_summary
+    assert summary.loc["A", "runs_moved"] == 1 and summary.loc["B", "runs_moved"] == 0
+    assert summary.loc["A", "max_abs_coded"] == pytest.approx(2.5 / 10)  # A: 10..30, half-range 10
+    assert summary.loc["C", "rms"] == pytest.approx(np.sqrt(16 / len(sheet)))  # one run moved by 4
