@@ -24,7 +24,6 @@ from .optimize import (
     target,
 )
 from .reduce import Reduction, reduce, refit
-from .study import Study
 from .surface import slice_grid, slice_polynomials
 
 __all__ = [
@@ -82,8 +81,9 @@ __all__ += [
     "read_run_sheet",
     "run_sheet",
     "write_run_sheet",
-    "Study",
-    "StudyFileError",
-    "OutsideEditError",
-    "ImportDataError",
 ]
+
+# The study file and data exchange (issue 7).
+from .study import Study  # noqa: E402
+
+__all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]

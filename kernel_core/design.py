@@ -410,6 +410,11 @@ def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=T
     k = len(factors)
     if k > 15:
         raise LevelwiseError(f"A full factorial is limited to 15 factors here. Got {k} factors instead.")
+    if 2**k * replicates + center_points > 1_000_000:  # a typo such as replicates=10**6 must not hang the kernel
+        raise LevelwiseError(
+            f"The design would have {2**k * replicates + center_points} runs; the limit is 1,000,000. "
+            f"Check 'replicates' ({replicates}) and 'center_points' ({center_points})."
+        )
     return build_two_level(factors, k, [], [], center_points=center_points, replicates=replicates, blocks=blocks,
                            randomize=randomize, seed=seed, kind="full factorial", generators=())
 

@@ -73,7 +73,8 @@ def split_header(header: str) -> tuple[str, str | None]:
 
 
 # ----- reading ---------------------------------------------------------------------------------
-def read_table(source, *, sheet: str | None = None, delimiter: str = ",") -> pd.DataFrame:
+def read_table(source, *, sheet: str | None = None, delimiter: str = ",", header_row: int | None = None
+               ) -> pd.DataFrame:
     """Read a CSV or XLSX file into a DataFrame of raw cell values (object dtype, header from row 1).
 
     Parameters
@@ -84,6 +85,9 @@ def read_table(source, *, sheet: str | None = None, delimiter: str = ",") -> pd.
         Worksheet of an XLSX file (default: the first).
     delimiter : str
         CSV field separator.
+    header_row : int, optional
+        The row (1 = first) holding the column names; default the first non-blank row. Rows
+        above it (a title, notes) are ignored.
 
     Raises
     ------
@@ -96,6 +100,14 @@ def read_table(source, *, sheet: str | None = None, delimiter: str = ",") -> pd.
         rows = _xlsx_rows(raw, name, sheet)
     else:
         rows = _csv_rows(raw, name, delimiter)
+    if header_row is not None:
+        if isinstance(header_row, bool) or not isinstance(header_row, int) or not 1 <= header_row <= len(rows):
+            raise ImportDataError(
+                f"The 'header_row' must be a row number from 1 to {len(rows)}. Got {describe(header_row)} instead."
+            )
+        rows = [[None]] * (header_row - 1) + rows[header_row - 1:]
+        if all(_blank(cell) for cell in rows[header_row - 1]):
+            raise ImportDataError(f"The 'header_row' {header_row} of '{name}' is blank.")
     return _to_frame(rows, name)
 
 
@@ -160,36 +172,49 @@ def _xlsx_rows(raw: bytes, name: str, sheet: str | None) -> list[list]:
 
 
 def _to_frame(rows: list[list], name: str) -> pd.DataFrame:
-    while rows and all(_blank(cell) for cell in rows[-1]):
-        rows.pop()
-    if not rows:
+    """Header = the first non-blank row; blank rows are skipped and blank columns dropped.
+
+    The index of the result is the spreadsheet row number of each record (the first row is 1).
+    """
+    filled = [i for i, row in enumerate(rows) if not all(_blank(cell) for cell in row)]
+    if not filled:
         raise ImportDataError(f"The file '{name}' is empty: it needs a header row.")
-    header = list(rows[0])
+    top = filled[0]
+    header_row = top + 1
+    header = list(rows[top])
     while header and _blank(header[-1]):
         header.pop()
     problems = []
     names = []
     for j, cell in enumerate(header):
         text = "" if cell is None else str(cell).strip()
-        if not text:
-            problems.append(Problem(1, _letter(j), "the header cell is blank; every column needs a name"))
-        elif text in names:
-            problems.append(Problem(1, text, f"the header {text!r} appears twice (columns {names.index(text) + 1} "
-                                             f"and {j + 1})"))
+        if text and text in names:
+            problems.append(Problem(header_row, text, f"the header {text!r} appears twice (columns "
+                                                      f"{names.index(text) + 1} and {j + 1})"))
         names.append(text)
-    body = []
-    for i, row in enumerate(rows[1:], start=2):
-        cells = list(row)
+    body, numbers = [], []
+    for i in filled[1:]:
+        cells = list(rows[i])
         while len(cells) > len(names) and _blank(cells[-1]):
             cells.pop()
         if len(cells) > len(names):
-            problems.append(Problem(i, None, f"the row has {len(cells)} cells but the header has {len(names)}"))
+            problems.append(Problem(i + 1, _letter(len(names)), f"the row has {len(cells)} cells but the header "
+                                                                f"(row {header_row}) has {len(names)}"))
             continue
         body.append(cells + [None] * (len(names) - len(cells)))
+        numbers.append(i + 1)
+    for j, text in enumerate(names):
+        if not text:
+            used = [numbers[k] for k, row in enumerate(body) if not _blank(row[j])]
+            if used:
+                problems.append(Problem(header_row, _letter(j), f"the header cell is blank but the column has "
+                                                                f"values (first in row {used[0]}); name it"))
     if problems:
         raise _error(name, problems)
-    frame = pd.DataFrame(body, columns=names, dtype=object) if body else pd.DataFrame(columns=names, dtype=object)
-    frame.index = pd.RangeIndex(2, 2 + len(frame))  # the spreadsheet row of each record
+    keep = [j for j, text in enumerate(names) if text]
+    frame = pd.DataFrame([[row[j] for j in keep] for row in body], columns=[names[j] for j in keep], dtype=object)
+    frame.index = pd.Index(numbers, dtype="int64")  # the spreadsheet row of each record
+    frame.attrs["header_row"] = header_row
     return frame
 
 
@@ -303,7 +328,7 @@ def _check_mapping(mapping, columns, study, name) -> dict:
 # ----- importing -------------------------------------------------------------------------------
 def import_table(study, source, mapping=None, *, sheet: str | None = None, stage: str | None = None,
                  overwrite: bool = False, reason: str | None = None, delimiter: str = ",",
-                 decimal: str = ".") -> ImportReport:
+                 decimal: str = ".", header_row: int | None = None) -> ImportReport:
     """Merge a CSV or XLSX table into *study* by run id; all or nothing.
 
     Parameters
@@ -316,11 +341,14 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         the study is added, with the units declared in its header.
     stage : str, optional
         Rows whose run id is not in the study become new runs of this (new) stage, planned at
-        their factor columns. Without it an unknown run id is a problem.
+        their factor columns; they get the study's next run ids, in the file's run-id order
+        (``ImportReport.runs_added``). Without it an unknown run id is a problem.
     overwrite : bool, default False
         Replace recorded values that differ from the file. Without it they are problems.
     reason : str, optional
         Written in the audit log with every change.
+    sheet, delimiter, header_row
+        As for :func:`read_table`; ``decimal`` is the decimal mark of numbers written as text.
 
     Returns
     -------
@@ -345,8 +373,9 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         frame.columns = [str(c) for c in frame.columns]
         frame.index = pd.RangeIndex(2, 2 + len(frame))
     else:
-        frame = read_table(source, sheet=sheet, delimiter=delimiter)
+        frame = read_table(source, sheet=sheet, delimiter=delimiter, header_row=header_row)
     columns = list(frame.columns)
+    header_row = frame.attrs.get("header_row", 1)
     mapping = guess_mapping(columns, study) if mapping is None else _check_mapping(mapping, columns, study, name)
     problems: list[Problem] = []
     warnings: list[Problem] = []
@@ -364,7 +393,7 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
                 continue
             expected = factors[key].units if role != "responses" else responses[key].units
             if units is not None and units != expected:
-                problems.append(Problem(1, column, f"the header declares units {units!r} but "
+                problems.append(Problem(header_row, column, f"the header declares units {units!r} but "
                                                    f"{'factor' if role != 'responses' else 'response'} {key!r} "
                                                    f"is in {expected!r}"))
     if mapping["run"] is None:

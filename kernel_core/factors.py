@@ -103,6 +103,11 @@ class Factor:
                 f"Factor {self.name!r}: 'low' must be less than 'high'. "
                 f"Got low={self.low!r}, high={self.high!r} instead."
             )
+        if not (0.0 < (self.high - self.low) / 2.0 < math.inf and math.isfinite((self.low + self.high) / 2.0)):
+            raise LevelwiseError(
+                f"Factor {self.name!r}: the range from 'low' to 'high' must be a positive finite width (coded units "
+                f"divide by it). Got low={self.low!r}, high={self.high!r} instead."
+            )
 
     @property
     def is_categorical(self) -> bool:

@@ -126,8 +126,10 @@ def _run_id(value, field: str = "run") -> int:
     integral = isinstance(value, (int, np.integer)) or (
         isinstance(value, (float, np.floating)) and math.isfinite(value) and float(value).is_integer()
     )
-    if isinstance(value, bool) or not integral or value < 1:
-        raise LevelwiseError(f"The '{field}' must be a run id (an integer >= 1). Got {describe(value)} instead.")
+    if isinstance(value, bool) or not integral or not 1 <= value <= 2**53 - 1:
+        raise LevelwiseError(
+            f"The '{field}' must be a run id (an integer from 1 to 2**53 - 1). Got {describe(value)} instead."
+        )
     return int(value)
 
 
@@ -201,9 +203,10 @@ _RUN_KEYS = frozenset(("run", "stage", "block", "std_order", "point_type", "plan
 def _run_ok(run) -> bool:
     if type(run) is not dict or run.keys() != _RUN_KEYS:
         return False
-    if type(run["run"]) is not int or run["run"] < 1 or type(run["block"]) is not int:
-        return False
-    if type(run["std_order"]) is not int or type(run["stage"]) is not str or type(run["point_type"]) is not str:
+    for key, low in (("run", 1), ("block", -_MAX_INT), ("std_order", -_MAX_INT)):
+        if type(run[key]) is not int or not low <= run[key] <= _MAX_INT:
+            return False
+    if type(run["stage"]) is not str or type(run["point_type"]) is not str:
         return False
     for block in ("planned", "achieved", "responses"):
         values = run[block]
@@ -249,6 +252,41 @@ def _json_path(parts) -> str:
 
 
 # ----- migrations ------------------------------------------------------------------------------
+_MAX_INT = 2**53 - 1  # integers exact in every JSON reader; the schema caps run ids, blocks and orders here
+
+_V0_SCHEMA = {
+    "type": "object",
+    "required": ["format_version", "factors", "response", "runs"],
+    "properties": {
+        "title": {"type": "string"},
+        "notes": {"type": "string"},
+        "model": {"type": ["string", "null"]},
+        "factors": {"type": "array"},
+        "response": {
+            "type": "object",
+            "required": ["name"],
+            "properties": {"name": {"type": "string", "minLength": 1}, "units": {"type": "string"}},
+        },
+        "runs": {
+            "type": "array",
+            "items": {
+                "type": "object",
+                "required": ["run", "settings"],
+                "properties": {
+                    "run": {"type": "integer", "minimum": 1, "maximum": _MAX_INT},
+                    "settings": {"type": "object"},
+                    "result": {"type": ["number", "null"]},
+                    "block": {"type": "integer", "minimum": -_MAX_INT, "maximum": _MAX_INT},
+                    "std_order": {"type": "integer", "minimum": -_MAX_INT, "maximum": _MAX_INT},
+                    "point_type": {"type": "string"},
+                },
+            },
+        },
+        "excluded": {"type": "array", "items": {"type": "integer", "minimum": 1, "maximum": _MAX_INT}},
+    },
+}
+
+
 def migrate_v0(document: dict) -> dict:
     """Turn a format-0 study (the draft layout: one response, ``settings`` and ``result`` per run,
     excluded run ids without reasons, no audit and no hash) into a format-1 document.
@@ -256,50 +294,41 @@ def migrate_v0(document: dict) -> dict:
     Raises
     ------
     StudyFileError
-        When the format-0 document lacks a field the migration needs; the message names it.
+        When the format-0 document breaks that layout; the message names the field.
     """
+    validator = _validator().evolve(schema=_V0_SCHEMA)
+    errors = sorted(validator.iter_errors(document), key=lambda e: list(map(str, e.absolute_path)))
+    if errors:
+        raise StudyFileError(
+            f"The format-0 study cannot be migrated: field '{_json_path(errors[0].absolute_path)}': "
+            f"{errors[0].message[:200]}"
+        )
     when = _now()
-
-    def need(container, key, where):
-        if not isinstance(container, dict) or key not in container:
-            raise StudyFileError(f"The format-0 study file has no field '{where}'; it cannot be migrated.")
-        return container[key]
-
-    factors = need(document, "factors", "factors")
-    response = need(document, "response", "response")
-    runs = need(document, "runs", "runs")
-    if not isinstance(runs, list) or not isinstance(factors, list):
-        raise StudyFileError("The format-0 fields 'factors' and 'runs' must be lists; the file cannot be migrated.")
-    name = need(response, "name", "response.name")
+    name = document["response"]["name"]
     stage = "stage 1"
-    new_runs = []
-    for i, run in enumerate(runs):
-        record = {
-            "run": need(run, "run", f"runs[{i}].run"),
+    runs = []
+    for i, run in enumerate(document["runs"]):
+        runs.append({
+            "run": run["run"],
             "stage": stage,
-            "block": run.get("block", 1) if isinstance(run, dict) else 1,
-            "std_order": run.get("std_order", i + 1) if isinstance(run, dict) else i + 1,
-            "point_type": run.get("point_type", "") if isinstance(run, dict) else "",
-            "planned": need(run, "settings", f"runs[{i}].settings"),
+            "block": run.get("block", 1),
+            "std_order": run.get("std_order", i + 1),
+            "point_type": run.get("point_type", ""),
+            "planned": run["settings"],
             "achieved": {},
-            "responses": {},
-        }
-        if run.get("result") is not None:
-            record["responses"][name] = run["result"]
-        new_runs.append(record)
-    excluded = document.get("excluded", [])
-    if not isinstance(excluded, list):
-        raise StudyFileError("The format-0 field 'excluded' must be a list of run ids; the file cannot be migrated.")
+            "responses": {name: run["result"]} if run.get("result") is not None else {},
+        })
     data = {
         "title": document.get("title", ""),
-        "factors": factors,
-        "responses": [{"name": name, "units": response.get("units", ""), "goal": "none", "target": None}],
+        "factors": document["factors"],
+        "responses": [{"name": name, "units": document["response"].get("units", ""), "goal": "none",
+                       "target": None}],
         "stages": [{"name": stage, "description": "runs of a format-0 file", "created": when}],
-        "runs": new_runs,
+        "runs": runs,
         "exclusions": [
             {"run": run, "response": None, "reason": "excluded in a format-0 file (no reason was recorded)",
              "when": when}
-            for run in excluded
+            for run in document.get("excluded", [])
         ],
         "models": {name: document["model"]} if document.get("model") else {},
         "notes": document.get("notes", ""),
@@ -543,7 +572,7 @@ class Study:
         if column not in table:
             return [default] * n if default is not None else None
         values = pd.to_numeric(table[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
-        bad = ~np.isfinite(values) | (values != np.round(values))
+        bad = ~np.isfinite(values) | (values != np.round(values)) | (np.abs(values) > 2**53 - 1)
         if bad.any():
             row = int(np.flatnonzero(bad)[0])
             raise LevelwiseError(
@@ -708,7 +737,32 @@ class Study:
             frame = frame.drop(index=drop)
         return frame
 
-    table = data
+    def table(self) -> pd.DataFrame:
+        """Every run (nothing dropped), settings as run, every response, and an ``excluded`` column.
+
+        ``excluded`` holds the reasons, e.g. ``"all: panel dropped"`` or ``"Impact: bubbles"``
+        (``""`` when the run is used for every response). For showing the study; fit on :meth:`data`.
+        """
+        frame = self._frame("actual")
+        notes = {run: [] for run in self._runs}
+        for item in self._exclusions:
+            scope = "all" if item["response"] is None else item["response"]
+            notes[item["run"]].append(f"{scope}: {item['reason']}")
+        frame["excluded"] = pd.array(["; ".join(notes[run]) for run in frame.index], dtype=object)
+        return frame
+
+    @property
+    def response_names(self) -> list[str]:
+        return list(self._responses)
+
+    @property
+    def revision(self) -> int:
+        """A number that grows with every change (the length of the audit log): cheap change detection."""
+        return len(self._audit)
+
+    def copy(self) -> Study:
+        """An independent copy (same data and audit log)."""
+        return Study.from_json(self.to_json(), source="<copy>")
 
     def planned(self) -> pd.DataFrame:
         """Planned settings: the run sheet with one column per factor (index = run id)."""
@@ -831,7 +885,13 @@ class Study:
             raw = path.read_bytes()
         except OSError as exc:
             raise StudyFileError(f"The study file '{path}' could not be read: {exc.strerror or exc}.") from exc
-        return cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+        try:
+            return cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+        except StudyFileError as exc:
+            bak = path.with_name(path.name + ".bak")
+            if not bak.exists():
+                raise
+            raise type(exc)(f"{exc} The previous version saved by levelwise is kept in '{bak}'.") from None
 
     @classmethod
     def from_json(cls, text, *, source: str = "<text>", accept_outside_edits: bool = False) -> Study:
@@ -886,6 +946,11 @@ class Study:
         outside = False
         try:
             expected = content_hash(data, audit)
+        except UnicodeEncodeError:
+            raise StudyFileError(
+                f"The study file '{source}' holds text that is not valid Unicode (a lone surrogate escape such as "
+                "\\ud800) in its 'data' or 'audit' block."
+            ) from None
         except ValueError as exc:  # NaN/inf from a number too large for a float
             raise StudyFileError(f"The study file '{source}' holds a number that is not finite: {exc}.") from None
         if expected != document["sha256"] and not migrated:

@@ -28,6 +28,11 @@ def test_truncated_and_corrupt_json(tmp_path):
     path.write_text(text[: len(text) // 2], encoding="utf-8")
     with pytest.raises(StudyFileError, match=r"'.*t.json' is not valid JSON \(truncated or corrupt\?\).*line \d+"):
         Study.load(path)
+    (tmp_path / "t.json.bak").write_text(text, encoding="utf-8")
+    with pytest.raises(StudyFileError, match=r"not valid JSON.*The previous version saved by levelwise is kept in "
+                                             r"'.*t.json.bak'"):
+        Study.load(path)
+    (tmp_path / "t.json.bak").unlink()
     path.write_bytes(b"\x00\xff\xfe garbage")
     with pytest.raises(StudyFileError, match="is not UTF-8 text"):
         Study.load(path)
@@ -197,3 +202,11 @@ def test_names_that_cannot_be_used():
         study.exclude(1, "  ")
     with pytest.raises(LevelwiseError, match="'design' has no column for factor\\(s\\) \\['Dwell'\\]"):
         study.add_stage("t", pd.DataFrame({"Oven": [170.0]}))
+
+
+def test_lone_surrogate_escape_in_file(tmp_path):
+    text = saved_text(tmp_path).replace('"screen"', '"scr\\ud800een"')
+    path = tmp_path / "s2.json"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(StudyFileError, match="not valid Unicode \\(a lone surrogate"):
+        Study.load(path, accept_outside_edits=True)

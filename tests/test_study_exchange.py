@@ -188,6 +188,33 @@ def test_xlsx_import_with_explicit_mapping(tmp_path):
         import_table(study, path, mapping, sheet="other")
 
 
+def test_xlsx_with_a_title_above_the_header_and_blank_rows(tmp_path):
+    study = planned_study()
+    book = openpyxl.Workbook()
+    sheet = book.active
+    sheet["B1"] = "Cure trial results (invented)"
+    sheet["B3"], sheet["C3"], sheet["D3"] = "run", "Oven [K]", "Impact"
+    sheet["B4"], sheet["C4"], sheet["D4"] = 1, 443.15, 7.0
+    sheet["B6"], sheet["C6"], sheet["D6"] = 2, 483.15, "x"
+    path = tmp_path / "titled.xlsx"
+    book.save(path)
+    with pytest.raises(ImportDataError) as excinfo:
+        import_table(study, path)
+    # The first non-blank row is the header: B1 holds a title only, so its row is taken as the header here
+    # and the real header row has more cells than it.
+    assert excinfo.value.problems[0].row == 3
+    # Told where the header is, the title is ignored and rows keep their sheet numbers.
+    with pytest.raises(ImportDataError) as excinfo:
+        import_table(study, path, header_row=3)
+    assert problems_of(excinfo) == [(3, "Oven [K]"), (4, "Oven [K]"), (6, "Oven [K]"), (6, "Impact")]
+    sheet.delete_rows(1, 2)  # without the title the header is row 1; rows keep their sheet numbers
+    book.save(path)
+    with pytest.raises(ImportDataError) as excinfo:
+        import_table(study, path)
+    # Header units (row 1), Kelvin values that differ from the planned °C settings (rows 2 and 4), text (row 4).
+    assert problems_of(excinfo) == [(1, "Oven [K]"), (2, "Oven [K]"), (4, "Oven [K]"), (4, "Impact")]
+
+
 def test_mapping_problems_are_named():
     study = planned_study()
     with pytest.raises(ImportDataError, match="column 'Temp': mapped to factors 'Oven' but not in the file"):
@@ -284,3 +311,13 @@ def test_figures_draw_the_arrays_the_views_use(tmp_path):
     np.testing.assert_allclose(offsets[:, 0], fit.fitted)
     np.testing.assert_allclose(offsets[:, 1], fit.residuals)
     assert save_figure(res, tmp_path / "res.png").read_bytes()[:4] == b"\x89PNG"
+
+
+def test_matplotlib_and_jsonschema_are_imported_only_when_used():
+    import subprocess
+    import sys
+
+    code = ("import sys, kernel_core, kernel_core.study, kernel_core.exchange, kernel_core.figures\n"
+            "print(sorted(m for m in ('matplotlib', 'jsonschema', 'openpyxl') if m in sys.modules))")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == "[]"

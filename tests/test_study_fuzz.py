@@ -16,6 +16,7 @@ import os
 import re
 import signal
 from datetime import datetime
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -120,14 +121,14 @@ def csv_inputs(draw):
 
 
 @given(csv_inputs(), st.sampled_from([None, "new", "screen"]), st.booleans(), st.sampled_from([",", ";"]),
-       st.sampled_from([".", ","]))
+       st.sampled_from([".", ","]), st.one_of(st.none(), st.none(), st.integers(-1, 4)))
 @fuzz("csv")
-def test_fuzz_csv_import(case, stage, overwrite, delimiter, decimal):
+def test_fuzz_csv_import(case, stage, overwrite, delimiter, decimal, header_row):
     data, mapping = case
     study = small_study()
     before = study.to_dict()
     result = call("csv", import_table, study, data, mapping, stage=stage, overwrite=overwrite,
-                  delimiter=delimiter, decimal=decimal)
+                  delimiter=delimiter, decimal=decimal, header_row=header_row)
     if result is None:
         assert study.to_dict() == before  # a failed import changes nothing
     else:
@@ -171,6 +172,7 @@ def test_fuzz_xlsx_import(data, stage):
 
 # ----- study files -----------------------------------------------------------------------------
 BASE_DOCUMENT = json.loads(small_study().to_json())
+BASE_V0 = json.loads((Path(__file__).parent / "data" / "study_v0.json").read_text(encoding="utf-8"))
 Study.from_json(json.dumps(BASE_DOCUMENT))  # warm up: the first load imports jsonschema
 json_values = st.recursive(
     st.none() | st.booleans() | st.integers(-10**30, 10**30) | st.floats(allow_nan=False) | st.text(max_size=8),
@@ -187,7 +189,7 @@ def study_texts(draw):
         return draw(st.binary(max_size=100))
     if choice == 1:
         return text[: draw(st.integers(0, len(text)))]
-    document = copy.deepcopy(BASE_DOCUMENT)
+    document = copy.deepcopy(BASE_V0 if choice == 3 else BASE_DOCUMENT)  # format 0 goes through the migration
     for _ in range(draw(st.integers(1, 3))):
         node, key = None, None
         current = document

@@ -138,6 +138,16 @@ def test_returned_frames_are_copies():
     assert study.to_dict()["runs"][0]["planned"]["Oven"] != -5.0
 
 
+def test_copy_is_independent_and_revision_counts_changes():
+    study = small_study()
+    twin = study.copy()
+    assert twin.to_dict() == study.to_dict() and twin.audit == study.audit
+    revision = study.revision
+    twin.record(2, "Gloss", 80.0)
+    assert twin.revision == revision + 1 and study.revision == revision
+    assert np.isnan(study.data(apply_exclusions=False).loc[2, "Gloss"])
+
+
 def test_recorded_value_needs_overwrite():
     study = small_study()
     with pytest.raises(LevelwiseError, match=r"response 'Impact' of run 1 is already recorded as 8.25; pass "
@@ -153,6 +163,10 @@ def test_exclusions_apply_to_data_and_fits():
     data = study.data()
     assert 7 not in data.index  # excluded from every response
     assert np.isnan(data.loc[4, "Impact"])  # excluded from Impact only
+    table = study.table()
+    assert len(table) == len(study) and table.loc[4, "Impact"] == 9.0  # nothing dropped or blanked
+    assert table.loc[4, "excluded"] == "Impact: panel dropped" and table.loc[7, "excluded"] == "all: wrong powder batch"
+    assert table.loc[1, "excluded"] == ""
     fit = study.fit("Impact")
     assert sorted(fit.runs) == [r for r in range(1, 11) if r not in (4, 7)]
     assert set(study.fits()) == {"Impact"}

@@ -7,6 +7,8 @@ kernel's numbers); the demo data is the invented, seeded scenario of kernel_core
 from __future__ import annotations
 
 import asyncio
+import io
+import threading
 from unittest import mock
 
 import numpy as np
@@ -102,10 +104,12 @@ def test_moving_a_setting_updates_every_view_to_the_kernel_numbers(shared, views
     assert float(marker.y[0]) == pytest.approx(expected["mean"], **F32)
 
     surface = views["slice"]
+    surface.flush()  # refreshes are coalesced when an event loop runs (e.g. a browser test's)
     grid = slice_grid(reference, "Oven", "Dwell", shared.settings, shape=(40, 30))
     assert np.asarray(surface.heatmap.color) == pytest.approx(grid["mean"], **F32)
     assert (float(surface.marker.x[0]), float(surface.marker.y[0])) == (204.0, 9.0)
     surface.quantity.value = "pi_half"
+    surface.flush()
     assert np.asarray(surface.heatmap.color) == pytest.approx(grid["pi_half"], **F32)
 
     # The row added before the move keeps its own settings; a new row takes the new ones.
@@ -140,6 +144,7 @@ def test_clicking_the_slice_sets_both_axis_factors(shared, views):
 
 def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):
     surface = views["slice"]
+    surface.flush()
     before = surface.redraws
 
     async def drag():
@@ -147,7 +152,10 @@ def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):
             shared.set_settings(Film=film)
         await asyncio.sleep(0.1)
 
-    asyncio.run(drag())
+    # A fresh event loop in its own thread, as a kernel has (another test's loop may be set on this one).
+    worker = threading.Thread(target=asyncio.run, args=(drag(),))
+    worker.start()
+    worker.join(10)
     assert surface.redraws == before + 1  # five slider events, one slice computed
     grid = slice_grid(kernel_fit(), "Oven", "Dwell", shared.settings, shape=(40, 30))
     assert np.asarray(surface.heatmap.color) == pytest.approx(grid["mean"], **F32)  # the latest value won
@@ -155,8 +163,10 @@ def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):
 
 def test_moving_an_axis_factor_only_moves_the_marker(shared, views):
     surface = views["slice"]
+    surface.flush()
     before = surface.redraws
     shared.set_settings(Oven=177.0)
+    surface.flush()
     assert surface.redraws == before
     assert float(surface.marker.x[0]) == 177.0
 
@@ -179,6 +189,7 @@ def test_an_exclusion_from_the_inspector_refits_every_view(shared, views):
     )
     expected = reference.predict(shared.settings).iloc[0]
     assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in views["sliders"].readout.value
+    views["slice"].flush()
     grid = slice_grid(reference, "Oven", "Dwell", shared.settings, shape=(40, 30))
     assert np.asarray(views["slice"].heatmap.color) == pytest.approx(grid["mean"], **F32)
     assert len(views["slice"].excluded_points.x) == 1  # excluded runs stay visible, marked
@@ -379,6 +390,7 @@ def test_optimiser_shows_the_kernel_optimum_and_moves_the_sliders(shared, views)
         assert shared.settings[name] == pytest.approx(value, rel=1e-9)
         assert views["sliders"].sliders[name].value == pytest.approx(value, rel=1e-9)
     views["slice"].quantity.value = "desirability"
+    views["slice"].flush()
     assert float(np.max(views["slice"].heatmap.color)) <= 1.0
 
 
@@ -408,14 +420,17 @@ def test_bytes_per_slider_event_are_float32_and_only_what_changed(monkeypatch, c
     shared = make_shared()
     views = {"sliders": FactorSliders(shared), "slice": SurfaceSlice(shared)}  # 100 x 100 slice
     slider = views["sliders"].sliders["Film"]
+    views["slice"].flush()
     log.clear()
     browser_update(slider, value=62.0)
+    views["slice"].flush()  # the coalesced slice refresh belongs to this event
     other_factor = message_bytes(log)
     arrays = [v for data, _ in log for v in data.get("state", {}).values() if isinstance(v, dict) and "dtype" in v]
     assert arrays and {a["dtype"] for a in arrays} == {"float32"}
     keys = {k for data, _ in log for k in data.get("state", {})}
     log.clear()
     browser_update(views["sliders"].sliders["Oven"], value=200.0)  # an axis factor of the slice
+    views["slice"].flush()
     axis_factor = message_bytes(log)
     sent = {k for data, _ in log for k in data.get("state", {})}
     assert "color" in keys and "color" not in sent  # the slice itself did not change: not re-sent
@@ -458,3 +473,40 @@ def test_views_work_with_a_categorical_factor():
         shared.set_settings(Metal="copper")
     for view in views:
         assert view.status.value == "", type(view).__name__
+
+
+def test_line_marks_never_end_in_nan(shared, views):
+    # bqplot places a Lines mark's label at its last point; a trailing NaN gave the browser
+    # "translate(undefined, undefined)" errors (seen in Chromium against a served page).
+    views["residuals"].plot.value = "leverage"
+    for mark in (views["slice"].contour_lines, views["residuals"].guides):
+        assert len(mark.x) and np.isfinite(mark.x[-1]) and np.isfinite(mark.y[-1])
+
+
+def test_prediction_rows_are_edited_through_the_form_and_exported(shared, views):
+    table = views["predictions"]
+    table.add_current()
+    table.add_current()
+    browser_update(table.row_choice, index=1)
+    table.editors["Oven"].value = 175.0
+    table.editors["Catalyst"].value = 1.45
+    table.save_button.click()
+    expected = kernel_fit().predict({"Oven": 175.0, "Dwell": 12.0, "Film": 70.0, "Catalyst": 1.45}).iloc[0]
+    frame = table.to_frame()
+    assert frame.loc[1, "Impact ci_high"] == pytest.approx(expected["ci_high"], rel=1e-12)
+    assert frame.loc[0, "Oven"] == 190.0  # the other row is untouched
+    csv = pd.read_csv(io.StringIO(table.to_csv()), index_col="row")
+    assert csv.loc[1, "Impact pi_low"] == pytest.approx(expected["pi_low"], rel=1e-12)
+    assert "Download the table (CSV)" in table.download.value
+    with pytest.raises(LevelwiseError, match="must be finite"):
+        table.edit_row(0, Oven=float("inf"))
+
+
+def test_hovering_a_residual_point_shows_that_run(shared, views):
+    inspector = views["residuals"]
+    browser_event(inspector.used, {"event": "hover", "data": {"index": 0}})
+    run = inspector.run.value
+    label = shared.label_of(run)
+    diag = kernel_fit().diagnostics.loc[label]  # kernel_core called directly
+    assert f"Run {run}" in inspector.detail.value
+    assert fmt(diag["cooks_distance"]) in inspector.detail.value and fmt(diag["leverage"]) in inspector.detail.value

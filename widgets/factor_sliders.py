@@ -4,7 +4,7 @@ Each trace shows the predicted response against one factor with the others held
 at the current settings, with the confidence band for the mean (darker, solid
 edge) and the prediction band for a single new run (lighter, dashed edge), and a
 marker at the current setting. Every number comes from ``Fit.predict`` and
-``Fit.trace`` (kernel_core).
+``Fit.traces`` (kernel_core).
 """
 
 from __future__ import annotations
@@ -217,10 +217,11 @@ class FactorSliders(View):
             return
         mean_here = float(current.predict(shared.settings)["mean"].iloc[0])
         lows, highs = [], []
+        curves = current.traces(shared.settings, points=self.points)  # every factor's curve in one batch
         for f in shared.factors:
             if f.name not in self._marks:
                 continue
-            tr = current.trace(f.name, shared.settings, points=self.points)
+            tr = curves[f.name]
             pi_band, ci_band, mean, marker = self._marks[f.name]
             x = f32(tr["x"])
             with pi_band.hold_sync(), ci_band.hold_sync(), mean.hold_sync(), marker.hold_sync():

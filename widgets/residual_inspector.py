@@ -219,7 +219,8 @@ class ResidualInspector(View):
                 r = cook_contour(level, current.p, h)
                 xs += [h, [np.nan], h, [np.nan]]
                 ys += [r, [np.nan], -r, [np.nan]]
-            guides_x, guides_y = f32(np.concatenate(xs)), f32(np.concatenate(ys))
+            # No NaN after the last segment: bqplot places a line's label at its last point.
+            guides_x, guides_y = f32(np.concatenate(xs[:-1])), f32(np.concatenate(ys[:-1]))
             xlabel, ylabel = "Leverage", "Studentized residual (dashed: Cook's distance 0.5 and 1)"
         else:
             y = diag["residual"].to_numpy()

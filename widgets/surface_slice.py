@@ -60,7 +60,8 @@ def contour_paths(x, y, z, levels):
         labels.append((float(middle[0]), float(middle[1])) if np.all(np.isfinite(middle)) else None)
     if not xs:
         return np.array([], dtype=np.float32), np.array([], dtype=np.float32), labels
-    return f32(np.concatenate(xs)), f32(np.concatenate(ys)), labels
+    # No NaN after the last segment: bqplot places a line's label at its last point.
+    return f32(np.concatenate(xs[:-1])), f32(np.concatenate(ys[:-1])), labels
 
 
 class SurfaceSlice(View):
@@ -187,6 +188,12 @@ class SurfaceSlice(View):
         self._coalescer.request()
 
     def _on_shared(self, change=None):
+        """Cheap parts now (the error line, the marker); the slice itself coalesced."""
+        self.show_shared_error()
+        x, y = self.x_factor.value, self.y_factor.value
+        if x in self.shared.settings and y in self.shared.settings:
+            with self.marker.hold_sync():
+                set_if_changed(self.marker, x=f32([self.shared.settings[x]]), y=f32([self.shared.settings[y]]))
         self._coalescer.request()
 
     def _on_click(self, mark, content):
@@ -201,7 +208,8 @@ class SurfaceSlice(View):
             self.shared.error = str(exc)
 
     def flush(self) -> None:
-        """Draw now whatever refresh is pending."""
+        """Draw now whatever refresh is pending (inside a running event loop the slice is drawn
+        shortly after the last change; code that reads the slice's arrays at once calls this first)."""
         self._coalescer.flush()
 
     def _target_axes(self):
