@@ -168,9 +168,15 @@ def case_refresh(cfg: Config) -> list[dict]:
             out.append(result.get_prediction(quadratic_rows(surface)).summary_frame(alpha=1 - LEVEL))
         return out
 
+    batch = getattr(fitted, "traces", None)  # every factor's curve in one call, as the sliders do
+
     def ours(with_slice: bool):
         out = [fitted.predict(settings)]
-        out += [fitted.trace(name, settings, points=50) for name in NAMES]
+        if callable(batch):
+            curves = batch(settings, points=50)
+            out += [curves[name] for name in NAMES]
+        else:
+            out += [fitted.trace(name, settings, points=50) for name in NAMES]
         if with_slice:
             out.append(slice_fn(settings))
         return out
@@ -199,7 +205,9 @@ def case_refresh(cfg: Config) -> list[dict]:
         diff = max(diff, float(np.max(np.abs(tr["mean"] - frame["mean"].to_numpy()))),
                    float(np.max(np.abs(tr["pi_half"] - (frame["obs_ci_upper"] - frame["mean"]).to_numpy()))))
     rows = []
-    common = f"5-factor quadratic (p = 21) on a 32-run CCD ({design_note})"
+    common = (f"5-factor quadratic (p = 21) on a 32-run CCD ({design_note}); ours: Fit.predict, "
+              + ("Fit.traces (all 5 curves in one batch)" if callable(batch) else "Fit.trace per factor")
+              + (", Fit.slice" if slice_fn is not None else ""))
     for with_slice in (True, False):
         label = "full refresh: point + 5 traces x 50 + 100x100 slice" if with_slice else \
             "point + 5 traces x 50 (no slice)"
