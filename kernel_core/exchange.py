@@ -57,6 +57,31 @@ class ImportReport:
     warnings: tuple = field(default_factory=tuple)
 
 
+_MARK = re.compile(r"\s*\(achieved\)\s*", re.IGNORECASE)
+
+
+def parse_header(header: str) -> tuple[str, str | None, bool]:
+    """Name, units and whether the column holds achieved settings.
+
+    ``"Oven (achieved) [°C]"``, ``"Oven (achieved)"`` (the run-sheet convention of
+    :mod:`kernel_core.runsheet`), ``"Oven achieved"`` and ``"achieved Oven"`` are achieved settings.
+
+    >>> parse_header("Oven (achieved) [°C]")
+    ('Oven', '°C', True)
+    >>> parse_header("Impact (J)")
+    ('Impact', 'J', False)
+    """
+    mark = _MARK.search(header)
+    if mark:
+        name, units = split_header((header[: mark.start()] + " " + header[mark.end():]).strip())
+        return name, units, True
+    name, units = split_header(header)
+    words = _ACHIEVED.match(name)
+    if words:
+        return (words.group("a") or words.group("b")).strip(), units, True
+    return name, units, False
+
+
 def split_header(header: str) -> tuple[str, str | None]:
     """Split ``"Oven [°C]"`` or ``"Oven (°C)"`` into ``("Oven", "°C")``; no units gives ``None``.
 
@@ -267,22 +292,23 @@ def guess_mapping(columns, study) -> dict:
     """A column mapping guessed from header names (units in ``[...]`` or ``(...)`` are ignored).
 
     Returns a dict with ``"run"`` (a column or None), ``"factors"``, ``"achieved"`` and
-    ``"responses"`` (each a dict of study name -> column). A header ``"Oven achieved"`` or
-    ``"achieved Oven"`` maps to the achieved setting of ``Oven``; a header naming neither a
-    factor nor a known response is left out.
+    ``"responses"`` (each a dict of study name -> column). A header ``"Oven (achieved)"``,
+    ``"Oven achieved"`` or ``"achieved Oven"`` maps to the achieved setting of ``Oven`` (see
+    :func:`parse_header`); a header naming neither a factor nor a known response is left out.
     """
     mapping = {"run": None, "factors": {}, "achieved": {}, "responses": {}}
     factors = set(study.factor_names)
     responses = set(study.responses)
     for column in columns:
         base, _ = split_header(str(column))
-        achieved = _ACHIEVED.match(base)
+        name, _, achieved = parse_header(str(column))
         if base.lower() == "run" and mapping["run"] is None:
             mapping["run"] = column
+        elif achieved and name in factors and (_MARK.search(str(column)) or base not in factors | responses):
+            # "(achieved)" always marks an achieved setting; "Oven achieved" only when no factor has that name.
+            mapping["achieved"].setdefault(name, column)
         elif base in factors:
             mapping["factors"].setdefault(base, column)
-        elif achieved and (achieved.group("a") or achieved.group("b")) in factors:
-            mapping["achieved"].setdefault(achieved.group("a") or achieved.group("b"), column)
         elif base in responses:
             mapping["responses"].setdefault(base, column)
     return mapping
@@ -387,7 +413,7 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
     for role, items in (("factors", mapping["factors"]), ("achieved", mapping["achieved"]),
                         ("responses", mapping["responses"])):
         for key, column in items.items():
-            _, units = split_header(column)
+            _, units = split_header(column) if role != "achieved" else parse_header(column)[:2]
             if role == "responses" and key not in responses:
                 new_units[key] = units or ""
                 continue
@@ -432,8 +458,39 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
 
     # Ranges: the factor's low..high widened to every planned setting (axial points are in range).
     planned = study.planned()
-    lo = {f: min(factors[f].low, planned[f].min()) if len(planned) else factors[f].low for f in factors}
-    hi = {f: max(factors[f].high, planned[f].max()) if len(planned) else factors[f].high for f in factors}
+    continuous = [f for f in factors if not getattr(factors[f], "levels", ())]
+    lo = {f: min(factors[f].low, planned[f].min()) if len(planned) else factors[f].low for f in continuous}
+    hi = {f: max(factors[f].high, planned[f].max()) if len(planned) else factors[f].high for f in continuous}
+
+    def setting(cell, factor):
+        """(value, problem): a number, or one of a categorical factor's levels."""
+        if factor in lo:
+            return _number(cell, decimal)
+        if _blank(cell):
+            return None, None
+        levels = factors[factor].levels
+        candidates = [cell, str(cell).strip()]
+        number, _ = _number(cell, decimal)
+        if number is not None:
+            candidates.append(number)
+        for candidate in candidates:
+            for level in levels:
+                if type(level) is type(candidate) and level == candidate or (
+                    not isinstance(level, str) and isinstance(candidate, float) and level == candidate
+                ):
+                    return level, None
+        return None, f"{describe(cell)} is not one of the levels {list(levels)!r} of {factor!r}"
+
+    def outside(value, factor) -> bool:
+        return factor in lo and not lo[factor] <= value <= hi[factor]
+
+    def same(a, b) -> bool:
+        if isinstance(a, str) or isinstance(b, str):
+            return a == b
+        return math.isclose(a, b, rel_tol=1e-9, abs_tol=1e-12)
+
+    def missing(value) -> bool:
+        return value is None or (isinstance(value, float) and np.isnan(value))
 
     current = study.data(apply_exclusions=False)
     achieved_now = study.achieved()
@@ -443,7 +500,7 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
         is_new = run_id not in existing
         settings = {}
         for factor, column in mapping["factors"].items():
-            value, bad = _number(frame.at[row, column], decimal)
+            value, bad = setting(frame.at[row, column], factor)
             if bad:
                 problems.append(Problem(row, column, bad))
                 continue
@@ -454,13 +511,14 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
                 continue
             if is_new:
                 settings[factor] = value
-            elif not math.isclose(value, planned.at[run_id, factor], rel_tol=1e-9, abs_tol=1e-12):
-                was = float(planned.at[run_id, factor])
+            elif not same(value, planned.at[run_id, factor]):
+                was = planned.at[run_id, factor]
+                was = was if isinstance(was, str) else float(was)
                 problems.append(Problem(row, column, f"run {run_id} was planned at {was!r} "
                                                      f"but the file says {value!r}; map the column under "
                                                      "'achieved' if it holds the settings actually run"))
                 continue
-            if not lo[factor] <= value <= hi[factor]:
+            if outside(value, factor):
                 warnings.append(Problem(row, column, f"{value!r} is outside the design range "
                                                      f"{float(lo[factor])!r} to {float(hi[factor])!r} of {factor!r} "
                                                      "(kept)", "warning"))
@@ -468,7 +526,8 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
             new_runs[run_id] = settings
         for kind, items in (("achieved", mapping["achieved"]), ("responses", mapping["responses"])):
             for key, column in items.items():
-                value, bad = _number(frame.at[row, column], decimal)
+                cell = frame.at[row, column]
+                value, bad = setting(cell, key) if kind == "achieved" else _number(cell, decimal)
                 if bad:
                     problems.append(Problem(row, column, bad))
                     continue
@@ -476,17 +535,18 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
                     continue
                 if kind == "achieved":
                     old = np.nan if is_new else achieved_now.at[run_id, key]
-                    if not lo[key] <= value <= hi[key]:
+                    if outside(value, key):
                         warnings.append(Problem(row, column, f"{value!r} is outside the design range "
                                                              f"{float(lo[key])!r} to {float(hi[key])!r} of {key!r} "
                                                              "(kept)", "warning"))
                 else:
                     old = np.nan if is_new or key not in current.columns else current.at[run_id, key]
-                if not np.isnan(old):
+                if not missing(old):
                     if old == value:
                         continue
                     if not overwrite:
-                        problems.append(Problem(row, column, f"run {run_id} already has {key!r} = {float(old)!r}; the "
+                        old = old if isinstance(old, str) else float(old)
+                        problems.append(Problem(row, column, f"run {run_id} already has {key!r} = {old!r}; the "
                                                              f"file says {value!r} (pass overwrite=True to "
                                                              "replace it)"))
                         continue
@@ -527,7 +587,7 @@ def run_sheet(study, *, achieved: bool = False) -> pd.DataFrame:
     if achieved:
         done = study.achieved()
         for f in study.factors:
-            sheet[_header(f"{f.name} achieved", f.units)] = done[f.name]
+            sheet[_header(f"{f.name} (achieved)", f.units)] = done[f.name]
     values = study.data(apply_exclusions=False)
     for name, response in study.responses.items():
         sheet[_header(name, response.units)] = values[name]
@@ -540,42 +600,10 @@ def coefficient_table(fit) -> pd.DataFrame:
 
 
 def anova_table(fit) -> pd.DataFrame:
-    """Analysis of variance of a fit: one row per term (extra sum of squares of the term given all
-    the others, on 1 df), then ``Model``, ``Residual`` and ``Total``.
-
-    The per-term sum of squares is t² s² (the drop in SSE when only that term leaves the model),
-    which equals the partial (type III) sum of squares for one-column terms.
-    """
-    from scipy import stats
-
-    coef = fit.coefficients
-    df_res = fit.df_resid
-    s2 = fit.s ** 2 if df_res > 0 else float("nan")
-    rows = []
-    for term in fit.terms:
-        if term == "Intercept":
-            continue
-        ss = float(coef.at[term, "t"] ** 2 * s2)
-        rows.append({"source": term, "df": 1, "sum_sq": ss, "mean_sq": ss})
-    y = fit.y
-    centre = y.mean() if fit.spec.has_intercept else 0.0
-    sst = float(((y - centre) ** 2).sum())
-    model_df = fit.p - (1 if fit.spec.has_intercept else 0)
-    rows.append({"source": "Model", "df": model_df, "sum_sq": sst - fit.sse,
-                 "mean_sq": (sst - fit.sse) / model_df if model_df else float("nan")})
-    rows.append({"source": "Residual", "df": df_res, "sum_sq": fit.sse, "mean_sq": s2})
-    rows.append({"source": "Total", "df": fit.n - (1 if fit.spec.has_intercept else 0), "sum_sq": sst,
-                 "mean_sq": float("nan")})
-    table = pd.DataFrame(rows)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        f_value = table["mean_sq"] / s2
-    f_value[table["source"].isin(["Residual", "Total"])] = np.nan
-    table["F"] = f_value
-    table["p_value"] = [
-        float(stats.f.sf(f, d, df_res)) if df_res > 0 and np.isfinite(f) else float("nan")
-        for f, d in zip(table["F"], table["df"])
-    ]
-    return table
+    """The fit's analysis of variance (:attr:`Fit.anova`: model, terms, residual split into
+    curvature, lack of fit and pure error where the runs allow) as a flat table with a ``source``
+    column, the same numbers the views show."""
+    return fit.anova.reset_index()
 
 
 def prediction_table(fit, settings, level: float | None = None) -> pd.DataFrame:
@@ -635,6 +663,7 @@ __all__ = [
     "import_table",
     "prediction_table",
     "read_table",
+    "parse_header",
     "run_sheet",
     "split_header",
 ]

@@ -122,6 +122,41 @@ def _finite(value, field: str) -> float:
     return number
 
 
+def _setting(factor: Factor, value, field: str):
+    """A planned or achieved setting: a finite number, or one of a categorical factor's levels."""
+    levels = getattr(factor, "levels", ())
+    if not levels:
+        return _finite(value, field)
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, str):
+        value = value.strip()
+    for level in levels:
+        if type(level) is type(value) and level == value or (
+            not isinstance(level, str) and not isinstance(value, (str, bool)) and level == value
+        ):
+            return level
+    raise LevelwiseError(
+        f"The '{field}' must be one of the levels {list(levels)!r} of factor {factor.name!r}. "
+        f"Got {describe(value)} instead."
+    )
+
+
+def _plain(value):
+    """A float for numbers (JSON-friendly), levels as they are."""
+    return value if isinstance(value, str) else float(value)
+
+
+def _factor_entry(f: Factor) -> dict:
+    if _is_categorical(f):
+        return {"name": f.name, "levels": list(f.levels), "units": f.units}
+    return {"name": f.name, "low": f.low, "high": f.high, "units": f.units}
+
+
+def _is_categorical(factor) -> bool:
+    return bool(getattr(factor, "levels", ()))
+
+
 def _run_id(value, field: str = "run") -> int:
     integral = isinstance(value, (int, np.integer)) or (
         isinstance(value, (float, np.floating)) and math.isfinite(value) and float(value).is_integer()
@@ -208,9 +243,9 @@ def _run_ok(run) -> bool:
             return False
     if type(run["stage"]) is not str or type(run["point_type"]) is not str:
         return False
-    for block in ("planned", "achieved", "responses"):
+    for block, kinds in (("planned", (int, float, str)), ("achieved", (int, float, str)), ("responses", (int, float))):
         values = run[block]
-        if type(values) is not dict or any(type(v) not in (int, float) for v in values.values()):
+        if type(values) is not dict or any(type(v) not in kinds for v in values.values()):
             return False
     return True
 
@@ -368,6 +403,11 @@ class Study:
     def __init__(self, factors, *, title: str = "", notes: str = ""):
         self._factors = as_factors(factors)
         for f in self._factors:
+            for level in getattr(f, "levels", ()):
+                if isinstance(level, str):
+                    _text(level, f"level of factor {f.name!r}", empty=False)
+                else:
+                    _finite(level, f"level of factor {f.name!r}")
             _name(f.name, "factor name")
             _text(f.units, f"units of factor {f.name!r}")
         self._title = _text(title, "title")
@@ -532,6 +572,12 @@ class Study:
         n = len(table)
         settings = {}
         for f in self._factors:
+            if _is_categorical(f):
+                settings[f.name] = [
+                    _setting(f, value, f"planned setting of factor {f.name!r} in row {row + 1} of the design")
+                    for row, value in enumerate(table[f.name].tolist())
+                ]
+                continue
             values = pd.to_numeric(table[f.name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
             bad = ~np.isfinite(values)
             if bad.any():
@@ -558,7 +604,7 @@ class Study:
                 "block": block[i],
                 "std_order": std_order[i] if std_order is not None else i + 1,
                 "point_type": point_type[i],
-                "planned": {f: float(settings[f][i]) for f in names},
+                "planned": {f: _plain(settings[f][i]) for f in names},
                 "achieved": {},
                 "responses": {},
             }
@@ -599,16 +645,18 @@ class Study:
         reason = _reason(reason)
         record = self._run(run)
         factor = self._factor(factor).name
-        old = self._set_value(record, "achieved", factor, value, overwrite, f"achieved setting of {factor!r}")
+        old = self._set_value(record, "achieved", factor, value, overwrite, f"achieved setting of {factor!r}",
+                              self._factor(factor))
         self._log_value("record_achieved", record, factor, value, old, reason)
 
-    def _set_value(self, record, block, key, value, overwrite, label):
+    def _set_value(self, record, block, key, value, overwrite, label, factor=None):
         old = record[block].get(key)
         if value is None:
             if not overwrite:
                 raise LevelwiseError(f"Clearing the {label} of run {record['run']} needs overwrite=True.")
         else:
-            value = _finite(value, f"{label} of run {record['run']}")
+            field = f"{label} of run {record['run']}"
+            value = _finite(value, field) if factor is None else _setting(factor, value, field)
         if old is not None and not overwrite and old != value:
             raise LevelwiseError(
                 f"The {label} of run {record['run']} is already recorded as {old!r}; "
@@ -635,7 +683,8 @@ class Study:
                 self._response(key)
             else:
                 self._factor(key)
-            value = _finite(value, f"{key} of run {record['run']}")
+            field = f"{key} of run {record['run']}"
+            value = _finite(value, field) if kind == "responses" else _setting(self._factor(key), value, field)
             old = record[kind].get(key)
             if old is not None and old != value and not overwrite:
                 raise LevelwiseError(
@@ -709,11 +758,13 @@ class Study:
             "std_order": np.array([r["std_order"] for r in runs], dtype=np.int64),
             "point_type": pd.array([r["point_type"] for r in runs], dtype=object),
         }
-        for f in self.factor_names:
+        for factor in self._factors:
+            f, dtype = factor.name, (object if _is_categorical(factor) else float)
+            missing = None if _is_categorical(factor) else np.nan
             if factor_block == "actual":
-                columns[f] = np.array([r["achieved"].get(f, r["planned"][f]) for r in runs], dtype=float)
+                columns[f] = np.array([r["achieved"].get(f, r["planned"][f]) for r in runs], dtype=dtype)
             else:
-                columns[f] = np.array([r[factor_block].get(f, np.nan) for r in runs], dtype=float)
+                columns[f] = np.array([r[factor_block].get(f, missing) for r in runs], dtype=dtype)
         for name in self._responses:
             columns[name] = np.array([r["responses"].get(name, np.nan) for r in runs], dtype=float)
         return pd.DataFrame(columns, index=index)
@@ -800,7 +851,7 @@ class Study:
         return (
             {
                 "title": self._title,
-                "factors": [{"name": f.name, "low": f.low, "high": f.high, "units": f.units} for f in self._factors],
+                "factors": [_factor_entry(f) for f in self._factors],
                 "responses": [{"name": name, **spec} for name, spec in self._responses.items()],
                 "stages": self._stages,
                 "runs": runs,
@@ -974,7 +1025,10 @@ class Study:
         factors = []
         for i, item in enumerate(data["factors"]):
             try:
-                factors.append(Factor(item["name"], item["low"], item["high"], item["units"]))
+                if "levels" in item:
+                    factors.append(Factor(item["name"], units=item["units"], levels=tuple(item["levels"])))
+                else:
+                    factors.append(Factor(item["name"], item["low"], item["high"], item["units"]))
                 _name(item["name"], "factor name")
                 _text(item["units"], "units")
             except LevelwiseError as exc:
@@ -1013,18 +1067,22 @@ class Study:
                 extra = sorted(set(run[block]) - allowed)
                 if extra:
                     fail(f"{where}.{block}", f"{extra} are not among {sorted(allowed)}")
+            settings = {}
             for block in ("planned", "achieved", "responses"):
+                settings[block] = {}
                 for key, value in run[block].items():
+                    field = f"{where}.{block}.{key}"
                     try:
-                        _finite(value, f"{where}.{block}.{key}")
-                    except LevelwiseError:
-                        fail(f"{where}.{block}.{key}", f"must be a finite number; got {describe(value)}")
+                        if block == "responses":
+                            settings[block][key] = _finite(value, field)
+                        else:
+                            settings[block][key] = _plain(_setting(study._factor(key), value, field))
+                    except LevelwiseError as exc:
+                        fail(field, str(exc))
             study._runs[run_id] = {
                 "run": run_id, "stage": run["stage"], "block": int(run["block"]), "std_order": int(run["std_order"]),
                 "point_type": run["point_type"],
-                "planned": {k: float(v) for k, v in run["planned"].items()},
-                "achieved": {k: float(v) for k, v in run["achieved"].items()},
-                "responses": {k: float(v) for k, v in run["responses"].items()},
+                **settings,
             }
         for i, item in enumerate(data["exclusions"]):
             item = {**item, "run": int(item["run"])}
@@ -1063,7 +1121,10 @@ class Study:
             "factors = [",
         ]
         for f in self._factors:
-            lines.append(f"    Factor({f.name!r}, {f.low!r}, {f.high!r}, units={f.units!r}),")
+            if _is_categorical(f):
+                lines.append(f"    Factor({f.name!r}, units={f.units!r}, levels={list(f.levels)!r}),")
+            else:
+                lines.append(f"    Factor({f.name!r}, {f.low!r}, {f.high!r}, units={f.units!r}),")
         lines += [
             "]",
             "# Settings as run: achieved where recorded, planned otherwise. Index = run id.",

@@ -175,10 +175,17 @@ def evaluate_polynomials(poly: dict, x_natural, y_natural) -> dict:
     mc, vc = poly["mean_coef"], poly["var_coef"]
     vu1, vv1 = np.vander(u, mc.shape[0], increasing=True), np.vander(v, mc.shape[1], increasing=True)
     vu2, vv2 = np.vander(u, vc.shape[0], increasing=True), np.vander(v, vc.shape[1], increasing=True)
-    mean = vv1 @ mc.T @ vu1.T
-    h = np.maximum(vv2 @ vc.T @ vu2.T, 0.0)  # a sum of squares; clip rounding below zero
+    mean = vv1 @ (mc.T @ vu1.T)
+    h = vv2 @ (vc.T @ vu2.T)
+    np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
     ts = poly["t"] * poly["s"]
-    return {"mean": mean, "ci_half": ts * np.sqrt(h), "pi_half": ts * np.sqrt(1.0 + h)}
+    # In place: this runs on every slider event over the whole grid.
+    ci_half = np.sqrt(h)
+    ci_half *= ts
+    h += 1.0
+    pi_half = np.sqrt(h, out=h)
+    pi_half *= ts
+    return {"mean": mean, "ci_half": ci_half, "pi_half": pi_half}
 
 
 def slice_grid(fit, x: str, y: str, settings=None, shape=(100, 100), level: float | None = None) -> dict:

@@ -70,11 +70,17 @@ def test_future_format_version(tmp_path):
 
 def test_schema_errors_name_the_field(tmp_path):
     document = json.loads(saved_text(tmp_path))
-    document["data"]["runs"][2]["planned"]["Oven"] = "hot"
+    document["data"]["runs"][2]["planned"]["Oven"] = None
     path = tmp_path / "bad.json"
     path.write_text(json.dumps(document), encoding="utf-8")
-    with pytest.raises(StudyFileError, match=r"field 'data.runs\[2\].planned.Oven': 'hot' is not of type 'number'"):
+    with pytest.raises(StudyFileError, match=r"field 'data.runs\[2\].planned.Oven': None is not of type 'number', "
+                                             r"'string'"):
         Study.load(path)
+    document["data"]["runs"][2]["planned"]["Oven"] = "hot"  # text is allowed only for a categorical factor
+    path.write_text(json.dumps(document), encoding="utf-8")
+    with pytest.raises(StudyFileError, match=r"bad field 'data.runs\[2\].planned.Oven': .* must be a finite number. "
+                                             r"Got 'hot'"):
+        Study.load(path, accept_outside_edits=True)
 
 
 def test_rule_errors_name_the_field(tmp_path):
@@ -210,3 +216,31 @@ def test_lone_surrogate_escape_in_file(tmp_path):
     path.write_text(text, encoding="utf-8")
     with pytest.raises(StudyFileError, match="not valid Unicode \\(a lone surrogate"):
         Study.load(path, accept_outside_edits=True)
+
+
+def test_categorical_factor_round_trip_and_fit(tmp_path):
+    factors = [Factor("Oven", 170, 210, "°C"), Factor("Metal", levels=["steel", "brass"])]
+    design = pd.DataFrame({"Oven": [170, 210, 170, 210, 190, 190],
+                           "Metal": ["steel", "steel", "brass", "brass", "steel", "brass"]})
+    study = Study(factors)
+    study.add_stage("screen", design)
+    study.add_response("Impact", "J")
+    for run, value in zip(study.run_ids, [6.0, 8.1, 7.0, 9.2, 7.4, 8.2]):  # invented
+        study.record(run, "Impact", value)
+    study.record_achieved(5, "Metal", "brass", reason="wrong panel rack")
+    with pytest.raises(LevelwiseError, match=r"must be one of the levels \['steel', 'brass'\] of factor 'Metal'. "
+                                             r"Got 'copper'"):
+        study.record_achieved(6, "Metal", "copper")
+    study.set_model("Impact", "Oven + Metal")
+    path = study.save(tmp_path / "cat.json")
+    loaded = Study.load(path)
+    assert loaded.to_dict() == study.to_dict()
+    assert loaded.factors[1].levels == ("steel", "brass")
+    assert list(loaded.data()["Metal"]) == ["steel", "steel", "brass", "brass", "brass", "brass"]
+    fit = loaded.fit("Impact")
+    assert fit.n == 6
+    namespace: dict = {}
+    exec(compile(loaded.to_code(path), "<to_code>", "exec"), namespace)  # noqa: S102
+    pd.testing.assert_frame_equal(namespace["fits"]["Impact"].coefficients, fit.coefficients)
+    with pytest.raises(LevelwiseError, match=r"planned setting of factor 'Metal' in row 1 of the design' must be one"):
+        study.add_stage("more", pd.DataFrame({"Oven": [170], "Metal": ["iron"]}))

@@ -253,6 +253,7 @@ def test_anova_table_matches_statsmodels():
 
     study, fit = demo_fit()
     table = anova_table(fit).set_index("source")
+    pd.testing.assert_frame_equal(table, fit.anova)  # the exported table is the one the views show
     coded = pd.DataFrame({f.name: f.to_coded(study.data()[f.name]) for f in study.factors})
     coded["Impact"] = study.data()["Impact"].to_numpy()
     reference = smf.ols("Impact ~ Oven + Dwell + Film + Catalyst + Oven:Dwell + Oven:Catalyst", coded).fit()
@@ -275,7 +276,8 @@ def test_table_exports_read_back(tmp_path):
         np.testing.assert_allclose(coefficients["estimate"], coefficient_table(fit)["estimate"], rtol=1e-12)
         assert list(coefficients["term"]) == list(fit.terms)
         anova = read_table(export_anova(fit, tmp_path / f"a{suffix}"))
-        assert list(anova["source"])[-3:] == ["Model", "Residual", "Total"]
+        assert list(anova["source"]) == list(fit.anova.index)
+        np.testing.assert_allclose(anova["sum_sq"].astype(float), fit.anova["sum_sq"], rtol=1e-12)
         predictions = read_table(export_predictions(fit, settings, tmp_path / f"p{suffix}"))
         expected = fit.predict(pd.DataFrame({"Oven": [175.0, 205.0], "Dwell": 12.0, "Film": 70.0,
                                              "Catalyst": 1.0}))
@@ -321,3 +323,58 @@ def test_matplotlib_and_jsonschema_are_imported_only_when_used():
             "print(sorted(m for m in ('matplotlib', 'jsonschema', 'openpyxl') if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
+
+
+def test_a_filled_design_run_sheet_imports_into_the_study(tmp_path):
+    from kernel_core.runsheet import run_sheet as design_run_sheet
+
+    design = full_factorial(FACTORS, center_points=2, randomize=False)
+    study = Study(FACTORS)
+    study.add_stage("screen", design)
+    study.add_response("Impact", units="J")
+    sheet = design_run_sheet(design, responses=["Impact"])
+    assert "Oven (achieved)" in sheet.columns  # the run-sheet convention of kernel_core.runsheet
+    sheet.loc[1, "Oven (achieved)"] = 212.5  # invented
+    sheet["Impact"] = [7.0, 9.5, 8.25, 10.0, 9.0, 9.1]  # invented
+    path = tmp_path / "filled.csv"
+    sheet.to_csv(path, index=False)
+    report = import_table(study, path)
+    assert report.values_recorded == 7
+    assert study.achieved().loc[2, "Oven"] == 212.5
+    assert [str(w) for w in report.warnings] == [
+        "warning: row 3, column 'Oven (achieved)': 212.5 is outside the design range 170.0 to 210.0 of 'Oven' (kept)"
+    ]
+
+
+def test_parse_header_forms():
+    from kernel_core.exchange import parse_header
+
+    assert parse_header("Oven (achieved) [°C]") == ("Oven", "°C", True)
+    assert parse_header("Oven (Achieved)") == ("Oven", None, True)
+    assert parse_header("achieved Oven [°C]") == ("Oven", "°C", True)
+    assert parse_header("Oven [°C]") == ("Oven", "°C", False)
+    assert "Oven (achieved) [°C]" in run_sheet(planned_study(), achieved=True).columns
+
+
+def test_import_with_a_categorical_factor():
+    factors = [Factor("Oven", 170, 210, "°C"), Factor("Metal", levels=["steel", "brass"])]
+    study = Study(factors)
+    study.add_stage("screen", pd.DataFrame({"Oven": [170.0, 210.0], "Metal": ["steel", "brass"]}))
+    study.add_response("Impact")
+    data = csv_bytes("""
+    run,Oven,Metal,Metal (achieved),Impact
+    1,170,steel,copper,7.0
+    2,210,steel,,8.0
+    """)
+    with pytest.raises(ImportDataError) as excinfo:
+        import_table(study, data)
+    assert problems_of(excinfo) == [(2, "Metal (achieved)"), (3, "Metal")]
+    assert "'copper' is not one of the levels ['steel', 'brass'] of 'Metal'" in str(excinfo.value)
+    assert "run 2 was planned at 'brass' but the file says 'steel'" in str(excinfo.value)
+    report = import_table(study, csv_bytes("""
+    run,Oven,Metal,Metal (achieved),Impact
+    1,170, steel ,brass,7.0
+    2,210,brass,,8.0
+    """))
+    assert report.values_recorded == 3
+    assert study.achieved().loc[1, "Metal"] == "brass" and list(study.data()["Metal"]) == ["brass", "brass"]

@@ -77,9 +77,15 @@ def call(kind: str, function, *args, **kwargs):
 FACTORS = [Factor("Oven", 170, 210, "°C"), Factor("Dwell", 8, 16, "min")]
 
 
-def small_study() -> Study:
-    study = Study(FACTORS)
-    study.add_stage("screen", full_factorial(FACTORS, center_points=1, randomize=False))
+METAL = Factor("Metal", levels=["steel", "brass", 3])
+
+
+def small_study(categorical: bool = False) -> Study:
+    study = Study(FACTORS + [METAL] if categorical else FACTORS)
+    table = full_factorial(FACTORS, center_points=1, randomize=False).table
+    if categorical:
+        table = table.assign(Metal=["steel", "brass", 3, "steel", "brass"])
+    study.add_stage("screen", table)
     study.add_response("Impact", units="J")
     study.record(1, "Impact", 7.0)
     return study
@@ -87,8 +93,10 @@ def small_study() -> Study:
 
 # ----- cells and tables ------------------------------------------------------------------------
 HEADERS = ["run", "Run", "Oven", "Oven [°C]", "Oven [K]", "Oven (°C)", "Dwell", "Dwell [min]", "Oven achieved",
-           "achieved Dwell", "Impact", "Impact [J]", "Impact [kJ]", "Gloss [GU]", ""]
-TRICKY = ["nan", "inf", "-inf", "1e400", "1,5", " 3 ", "NaN", "TRUE", "0x10", "1_000", "−2", "٣", "1e-400", "+.5"]
+           "achieved Dwell", "Impact", "Impact [J]", "Impact [kJ]", "Gloss [GU]", "", "Metal", "Metal (achieved)",
+           "Oven (achieved) [°C]"]
+TRICKY = ["nan", "inf", "-inf", "1e400", "1,5", " 3 ", "NaN", "TRUE", "0x10", "1_000", "−2", "٣", "1e-400", "+.5",
+          "steel", "brass", "3.0", " brass"]
 text_cells = st.one_of(
     st.integers(-3, 12).map(str),
     st.floats(allow_nan=True, allow_infinity=True).map(repr),
@@ -113,19 +121,19 @@ def csv_inputs(draw):
         pick = st.sampled_from(header + ["missing"])
         mapping = {
             "run": draw(st.one_of(st.none(), pick)),
-            "factors": draw(st.dictionaries(st.sampled_from(["Oven", "Dwell", "Speed"]), pick, max_size=2)),
-            "achieved": draw(st.dictionaries(st.sampled_from(["Oven", "Dwell"]), pick, max_size=2)),
+            "factors": draw(st.dictionaries(st.sampled_from(["Oven", "Dwell", "Speed", "Metal"]), pick, max_size=2)),
+            "achieved": draw(st.dictionaries(st.sampled_from(["Oven", "Dwell", "Metal"]), pick, max_size=2)),
             "responses": draw(st.dictionaries(st.sampled_from(["Impact", "Gloss", "Oven"]), pick, max_size=2)),
         }
     return buffer.getvalue().encode("utf-8", "surrogatepass"), mapping
 
 
 @given(csv_inputs(), st.sampled_from([None, "new", "screen"]), st.booleans(), st.sampled_from([",", ";"]),
-       st.sampled_from([".", ","]), st.one_of(st.none(), st.none(), st.integers(-1, 4)))
+       st.sampled_from([".", ","]), st.one_of(st.none(), st.none(), st.integers(-1, 4)), st.booleans())
 @fuzz("csv")
-def test_fuzz_csv_import(case, stage, overwrite, delimiter, decimal, header_row):
+def test_fuzz_csv_import(case, stage, overwrite, delimiter, decimal, header_row, categorical):
     data, mapping = case
-    study = small_study()
+    study = small_study(categorical)
     before = study.to_dict()
     result = call("csv", import_table, study, data, mapping, stage=stage, overwrite=overwrite,
                   delimiter=delimiter, decimal=decimal, header_row=header_row)
@@ -162,16 +170,17 @@ def xlsx_inputs(draw):
     return buffer.getvalue()
 
 
-@given(xlsx_inputs(), st.sampled_from([None, "new"]))
+@given(xlsx_inputs(), st.sampled_from([None, "new"]), st.booleans())
 @fuzz("xlsx")
-def test_fuzz_xlsx_import(data, stage):
-    study = small_study()
+def test_fuzz_xlsx_import(data, stage, categorical):
+    study = small_study(categorical)
     call("xlsx", import_table, study, data, stage=stage)
     Study.from_json(study.to_json())
 
 
 # ----- study files -----------------------------------------------------------------------------
 BASE_DOCUMENT = json.loads(small_study().to_json())
+BASE_CATEGORICAL = json.loads(small_study(categorical=True).to_json())
 BASE_V0 = json.loads((Path(__file__).parent / "data" / "study_v0.json").read_text(encoding="utf-8"))
 Study.from_json(json.dumps(BASE_DOCUMENT))  # warm up: the first load imports jsonschema
 json_values = st.recursive(
@@ -189,7 +198,8 @@ def study_texts(draw):
         return draw(st.binary(max_size=100))
     if choice == 1:
         return text[: draw(st.integers(0, len(text)))]
-    document = copy.deepcopy(BASE_V0 if choice == 3 else BASE_DOCUMENT)  # format 0 goes through the migration
+    # Format 0 goes through the migration; a categorical factor through the level checks.
+    document = copy.deepcopy({3: BASE_V0, 4: BASE_CATEGORICAL, 5: BASE_CATEGORICAL}.get(choice, BASE_DOCUMENT))
     for _ in range(draw(st.integers(1, 3))):
         node, key = None, None
         current = document
@@ -210,7 +220,8 @@ def study_texts(draw):
         elif action == "number":
             node[key] = draw(st.one_of(st.integers(-10**400, 10**400), st.floats(allow_nan=False)))
         elif action == "string":
-            node[key] = draw(st.sampled_from(["", "run", "Oven", "Impact", "A + B", "screen", "Oven:Dwell", "1e9"]))
+            node[key] = draw(st.sampled_from(["", "run", "Oven", "Impact", "A + B", "screen", "Oven:Dwell", "1e9",
+                                              "steel", "brass", "Metal"]))
         else:
             node[key] = draw(json_values)
     if isinstance(document, dict) and draw(st.booleans()):
