@@ -25,9 +25,9 @@ test: $(VENV)/.installed-test
 	$(BIN)/ruff check .
 	$(BIN)/python -m pytest kernel_core widgets dashboards tests
 
+# Benchmarks: same-run ratios against references (tests/bench). QUICK=1 for a short run (< 2 min).
 bench: $(VENV)/.installed-test
-	PYTHONPATH=. $(BIN)/python benchmarks/bench_design.py
-	PYTHONPATH=. $(BIN)/python benchmarks/bench_fit.py
+	$(BIN)/python -m tests.bench $(if $(QUICK),--quick,)
 
 lint: $(VENV)/.installed-test
 	$(BIN)/ruff check .

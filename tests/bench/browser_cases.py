@@ -1,0 +1,383 @@
+"""Browser benchmark cases 6-8: real Chromium (playwright) against voila on 127.0.0.1.
+
+6. slider step to updated prediction text, timed in the page (performance.now() at the
+   keydown, a MutationObserver on the readout), over N steps;
+7. first view of a dashboard served with a preheated kernel;
+8. resident memory of the one kernel serving a viewer (from /proc).
+Every request that is not to this machine is aborted.
+"""
+
+from __future__ import annotations
+
+import os
+import shutil
+import signal
+import socket
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+from .rows import make_row, unavailable
+
+CHROMIUM = os.environ.get("LEVELWISE_CHROMIUM", "/usr/bin/chromium")
+READOUT = ".lw-readout"
+MEAN = ".lw-readout .lw-mean"
+HANDLE = ".lw-slider .noUi-handle"
+
+INSTALL_OBSERVER = """
+() => {
+  const state = {last: null, t0: null, changes: []};
+  // Every response's mean in the readout: one step changes at least one of them even where a
+  // single rounded mean stays the same.
+  const mean = () => {
+    const els = document.querySelectorAll('.lw-readout .lw-mean');
+    return els.length ? Array.from(els, el => el.innerText).join(' | ') : null;
+  };
+  state.last = mean();
+  document.addEventListener('keydown', () => { state.t0 = performance.now(); }, true);
+  new MutationObserver(() => {
+    const text = mean();
+    if (text !== null && text !== state.last) {
+      state.last = text;
+      state.changes.push({t: performance.now(), t0: state.t0, text: text});
+    }
+  }).observe(document.querySelector('.lw-readout'), {subtree: true, childList: true, characterData: true});
+  window.__lwBench = state;
+}
+"""
+
+
+def free_port() -> int:
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", 0))
+        return sock.getsockname()[1]
+
+
+def wait_for_port(port: int, proc: subprocess.Popen, timeout: float = 60.0) -> None:
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        if proc.poll() is not None:
+            raise RuntimeError(f"the server exited early with code {proc.returncode}")
+        with socket.socket() as sock:
+            if sock.connect_ex(("127.0.0.1", port)) == 0:
+                return
+        time.sleep(0.1)
+    raise TimeoutError(f"nothing listened on 127.0.0.1:{port} within {timeout} s")
+
+
+def children(pid: int) -> list[int]:
+    """Direct child processes of *pid*, from /proc."""
+    found = []
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            stat = (entry / "stat").read_text()
+        except OSError:
+            continue
+        fields = stat[stat.rindex(")") + 2:].split()
+        if int(fields[1]) == pid:
+            found.append(int(entry.name))
+    return found
+
+
+def cmdline(pid: int) -> bytes:
+    try:
+        return Path(f"/proc/{pid}/cmdline").read_bytes().replace(b"\0", b" ")
+    except OSError:
+        return b""
+
+
+def kernel_pids(server_pid: int) -> list[int]:
+    return [pid for pid in children(server_pid) if b"ipykernel" in cmdline(pid)]
+
+
+def rss_mb(pid: int) -> float | None:
+    try:
+        for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+            if line.startswith("VmRSS:"):
+                return int(line.split()[1]) / 1024.0
+    except OSError:
+        return None
+    return None
+
+
+def pss_mb(pid: int) -> float | None:
+    try:
+        for line in Path(f"/proc/{pid}/smaps_rollup").read_text().splitlines():
+            if line.startswith("Pss:"):
+                return int(line.split()[1]) / 1024.0
+    except OSError:
+        return None
+    return None
+
+
+def cpu_seconds(pid: int) -> float | None:
+    try:
+        stat = Path(f"/proc/{pid}/stat").read_text()
+    except OSError:
+        return None
+    fields = stat[stat.rindex(")") + 2:].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
+def wait_until_idle(pid: int, quiet: float = 1.0, timeout: float = 60.0) -> None:
+    """Wait until process *pid* used no CPU for *quiet* seconds (a preheated kernel is ready)."""
+    deadline = time.monotonic() + timeout
+    last = cpu_seconds(pid)
+    while time.monotonic() < deadline:
+        time.sleep(quiet)
+        now = cpu_seconds(pid)
+        if now is None or now == last:
+            return
+        last = now
+
+
+def wait_for_kernels(server_pid: int, count: int, timeout: float = 60.0) -> list[int]:
+    deadline = time.monotonic() + timeout
+    while time.monotonic() < deadline:
+        pids = kernel_pids(server_pid)
+        if len(pids) >= count:
+            return pids
+        time.sleep(0.2)
+    return kernel_pids(server_pid)
+
+
+class Server:
+    """A voila (or levelwise) server on a free loopback port, in its own process group."""
+
+    def __init__(self, command: list[str], port: int, log: Path):
+        env = dict(os.environ, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1")
+        self.port = port
+        self.log = open(log, "w")  # noqa: SIM115 - closed in stop()
+        self.proc = subprocess.Popen(command, stdout=self.log, stderr=subprocess.STDOUT, env=env,
+                                     start_new_session=True)
+        wait_for_port(port, self.proc)
+        self.url = f"http://127.0.0.1:{port}/"
+
+    def voila_pid(self) -> int:
+        """The voila process: ours, or our child when ours is the ``levelwise`` launcher."""
+        for pid in [self.proc.pid, *children(self.proc.pid)]:
+            if b"voila" in cmdline(pid):
+                return pid
+        return self.proc.pid
+
+    def stop(self) -> None:
+        try:
+            os.killpg(self.proc.pid, signal.SIGTERM)  # the group we started: voila and its kernels
+            self.proc.wait(timeout=15)
+        except (ProcessLookupError, subprocess.TimeoutExpired):
+            try:
+                os.killpg(self.proc.pid, signal.SIGKILL)
+            except ProcessLookupError:
+                pass
+        self.log.close()
+
+
+def loopback_only(route):
+    url = route.request.url
+    if url.startswith(("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:", "file:")):
+        route.continue_()
+    else:
+        route.abort()
+
+
+def cli(*args) -> list[str]:
+    return [sys.executable, "-m", "dashboards.cli", *map(str, args)]
+
+
+def workbench(port: int, preheat: bool) -> tuple[list[str], str]:
+    """``levelwise serve`` (the workbench on the demo study); with preheating, voila run directly."""
+    if not preheat:
+        return cli("serve", "--port", port), "workbench via levelwise serve (kernel not preheated)"
+    from dashboards import NOTEBOOKS
+    from dashboards.cli import voila_command
+
+    try:
+        command = voila_command(NOTEBOOKS / "explore.ipynb", port, preheat=True, pool_size=1)
+    except TypeError:  # an older voila_command without the preheat options
+        command = voila_command(NOTEBOOKS / "explore.ipynb", port) + ["--preheat_kernel=True", "--pool_size=1"]
+    return command, "workbench (dashboards/explore.ipynb) on voila with a preheated pool of 1"
+
+
+def published_dashboard(workdir: Path, port: int) -> tuple[list[str] | None, str]:
+    """``levelwise publish demo`` + ``levelwise view`` when the CLI has them, else (None, why not)."""
+    try:
+        from dashboards import cli as lw_cli
+    except ImportError:
+        return None, "dashboards.cli missing"
+    if not all(hasattr(lw_cli, name) for name in ("publish", "view")):
+        return None, "levelwise publish/view not available"
+    failures = []
+    example = Path(__file__).resolve().parents[1] / "data" / "study_example.json"
+    for i, study in enumerate(["demo", example] if example.is_file() else ["demo"]):
+        out = workdir / f"published-{i}"
+        done = subprocess.run(cli("publish", study, "--out", out), capture_output=True, text=True, timeout=180)
+        if done.returncode == 0:
+            name = "the demo study" if study == "demo" else f"tests/data/{example.name}"
+            return cli("view", out, "--port", port), \
+                f"published read-only dashboard of {name} (levelwise publish + levelwise view, pool of 1)"
+        said = (done.stdout + done.stderr).strip()[-200:]
+        failures.append(f"levelwise publish {Path(str(study)).name} failed: {said}")
+    return None, "; ".join(failures)
+
+
+def launch(pw):
+    return pw.chromium.launch(
+        executable_path=CHROMIUM if os.path.exists(CHROMIUM) else shutil.which("chromium"),
+        headless=True,
+        args=["--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+              "--disable-background-networking", "--disable-component-update", "--disable-sync"],
+    )
+
+
+def new_page(browser):
+    context = browser.new_context(viewport={"width": 1400, "height": 1000})
+    page = context.new_page()
+    page.route("**/*", loopback_only)
+    return context, page
+
+
+def slider_steps(page, steps: int) -> tuple[list[float], int]:
+    """Latencies (ms) from keydown to changed prediction text, and the number of steps with no change."""
+    page.evaluate(INSTALL_OBSERVER)
+    handle = page.locator(HANDLE).first
+    handle.focus()
+    latencies, missed = [], 0
+    key = "ArrowRight"
+    for _ in range(steps):
+        value = float(handle.get_attribute("aria-valuenow"))
+        if value >= float(handle.get_attribute("aria-valuemax")):
+            key = "ArrowLeft"
+        elif value <= float(handle.get_attribute("aria-valuemin")):
+            key = "ArrowRight"
+        before = page.evaluate("window.__lwBench.changes.length")
+        handle.press(key)
+        try:
+            page.wait_for_function("n => window.__lwBench.changes.length > n", arg=before, timeout=2_000)
+        except Exception:  # noqa: BLE001 - the text did not change (same rounded value) or the step was lost
+            missed += 1
+            continue
+        change = page.evaluate("window.__lwBench.changes[window.__lwBench.changes.length - 1]")
+        latencies.append(change["t"] - change["t0"])
+        page.wait_for_timeout(100)  # let the trace updates of this step land before the next key
+    return latencies, missed
+
+
+def case_browser(quick: bool, workdir: Path) -> list[dict]:
+    """Cases 6, 7 and 8."""
+    if not (os.path.exists(CHROMIUM) or shutil.which("chromium")):
+        status = f"skipped (Chromium not found at {CHROMIUM})"
+        return [
+            unavailable("slider_p50", "6. slider step to prediction text, p50", kind="absolute", unit="ms",
+                        goal="<= 80 ms", goal_value=80.0, status=status),
+            unavailable("slider_p95", "6. slider step to prediction text, p95", kind="absolute", unit="ms",
+                        goal="<= 150 ms", goal_value=150.0, status=status),
+            unavailable("first_view", "7. first view with preheating", kind="absolute", goal="<= 3 s",
+                        goal_value=3.0, status=status),
+            unavailable("kernel_memory", "8. memory of one viewer's kernel (RSS)", kind="absolute", unit="MB",
+                        goal="(report)", goal_value=None, status=status),
+        ]
+    from playwright.sync_api import sync_playwright
+
+    steps = 20 if quick else 50
+    views = 2 if quick else 5
+    rows = []
+    with sync_playwright() as pw:
+        browser = launch(pw)
+        try:
+            rows += _slider_and_memory(browser, steps, workdir)
+            rows += _first_view(browser, views, workdir)
+        finally:
+            browser.close()
+    return rows
+
+
+def _slider_and_memory(browser, steps: int, workdir: Path) -> list[dict]:
+    port = free_port()
+    command, where = workbench(port, preheat=False)
+    server = Server(command, port, workdir / "voila-slider.log")
+    try:
+        context, page = new_page(browser)
+        try:
+            page.goto(server.url, timeout=60_000)
+            page.locator(MEAN).first.wait_for(timeout=60_000)
+            page.locator(HANDLE).first.wait_for(timeout=60_000)
+            page.wait_for_timeout(500)
+            latencies, missed = slider_steps(page, steps)
+            kernels = kernel_pids(server.voila_pid())
+            memory = [(pid, rss_mb(pid), pss_mb(pid)) for pid in kernels]
+        finally:
+            context.close()
+    finally:
+        server.stop()
+    note = f"{len(latencies)} of {steps} steps changed a displayed mean ({missed} left every rounded mean as it " \
+           f"was and are not counted); {where}; timed in the page: keydown to the MutationObserver seeing " \
+           "new text in .lw-readout .lw-mean"
+    status = "ok" if latencies else "error: no step changed the prediction text"
+    rows = [
+        make_row("slider_p50", f"6. slider step to prediction text, p50 of {steps} steps", kind="absolute",
+                 unit="ms", goal="<= 80 ms", goal_value=80.0,
+                 ours=float(np.percentile(latencies, 50)) if latencies else None,
+                 ours_repeats=len(latencies), note=note, status=status),
+        make_row("slider_p95", f"6. slider step to prediction text, p95 of {steps} steps", kind="absolute",
+                 unit="ms", goal="<= 150 ms", goal_value=150.0,
+                 ours=float(np.percentile(latencies, 95)) if latencies else None,
+                 ours_repeats=len(latencies), note=note, status=status,
+                 latencies_ms=[round(x, 2) for x in latencies]),
+    ]
+    if len(memory) == 1 and memory[0][1] is not None:
+        pid, rss, pss = memory[0]
+        rows.append(make_row("kernel_memory", "8. memory of one viewer's kernel (RSS)", kind="absolute", unit="MB",
+                             goal="(report)", goal_value=None, ours=rss, ours_repeats=1, pss_mb=pss,
+                             note=f"VmRSS of the one ipykernel serving the page after the slider steps "
+                                  f"(PSS {pss:.0f} MB); {where}"))
+    else:
+        rows.append(unavailable("kernel_memory", "8. memory of one viewer's kernel (RSS)", kind="absolute",
+                                unit="MB", goal="(report)", goal_value=None,
+                                status=f"error: expected one kernel process, found {len(memory)}"))
+    return rows
+
+
+def _first_view(browser, views: int, workdir: Path) -> list[dict]:
+    port = free_port()
+    command, what = published_dashboard(workdir, port)
+    if command is None:
+        fallback = what
+        command, what = workbench(port, preheat=True)
+        what += f" ({fallback})"
+    server = Server(command, port, workdir / "voila-first-view.log")
+    times = []
+    try:
+        for _ in range(views):
+            pool = wait_for_kernels(server.voila_pid(), 1)
+            for pid in pool:
+                wait_until_idle(pid)  # the preheated kernel has run the notebook
+            context, page = new_page(browser)
+            try:
+                start = time.perf_counter()
+                page.goto(server.url, timeout=60_000)
+                page.wait_for_function(
+                    "sel => { const el = document.querySelector(sel); return el && el.innerText.trim() !== ''; }",
+                    arg=MEAN, timeout=60_000)
+                times.append(time.perf_counter() - start)
+            finally:
+                context.close()
+            # the pool refills; the next view waits for the new kernel to go idle
+            wait_for_kernels(server.voila_pid(), len(pool) + 1, timeout=10)
+    finally:
+        server.stop()
+    return [make_row("first_view", f"7. first view with preheating, median of {len(times)} views", kind="absolute",
+                     goal="<= 3 s", goal_value=3.0, ours=float(np.median(times)) if times else None,
+                     ours_repeats=len(times), views_s=[round(t, 3) for t in times],
+                     note=f"{what}; page.goto to the prediction text shown, new browser context per view, "
+                          "pool kernel idle before each view")]
+
+
+def run(quick: bool) -> list[dict]:
+    with tempfile.TemporaryDirectory(prefix="levelwise-bench-") as tmp:
+        return case_browser(quick, Path(tmp))
