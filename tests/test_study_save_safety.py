@@ -39,8 +39,18 @@ def test_save_killed_at_random_moments_never_leaves_a_broken_file(tmp_path):
     study.save(path)
     saved = {sha(path.read_bytes())}
     rng = random.Random(20261201)
+    # Kill within a few save-durations of the child starting, measured here, so that on a slow or
+    # loaded machine the kills still land inside saves rather than all before the first one.
+    started = time.perf_counter()
+    for _ in range(3):
+        sha(study.to_json().encode("utf-8"))
+        study.save(path)
+    cycle = (time.perf_counter() - started) / 3
+    saved.add(sha(path.read_bytes()))
     kills = interrupted_writes = 0
-    for attempt in range(220):
+    for attempt in range(1000):
+        if kills >= 220 and interrupted_writes > 0:
+            break
         ready_r, ready_w = os.pipe()
         pid = os.fork()
         if pid == 0:  # the child: save as fast as it can until it is killed
@@ -60,7 +70,7 @@ def test_save_killed_at_random_moments_never_leaves_a_broken_file(tmp_path):
         os.close(ready_w)
         assert os.read(ready_r, 1) == b"!"
         os.close(ready_r)
-        time.sleep(rng.uniform(0.0, 0.004))
+        time.sleep(rng.uniform(0.0, 3.0 * cycle + 0.002))
         os.kill(pid, signal.SIGKILL)
         _, status = os.waitpid(pid, 0)
         assert os.WIFSIGNALED(status) and os.WTERMSIG(status) == signal.SIGKILL
