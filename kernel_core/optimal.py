@@ -15,53 +15,22 @@ feasible set is an interval, whose end points join the candidate levels, so runs
 
 from __future__ import annotations
 
-import ast
 import math
-import re
 
 import numpy as np
 import pandas as pd
 
 from ._errors import LevelwiseError, describe
+from .constraints import parse_constraint
 from .design import Design, _check_count, _check_seed
 from .factors import as_factors
-from .formula import _substitute, parse_model
+from .formula import parse_model
 
 #: Passes over the runs per start, at most (keeps every search bounded).
 MAX_PASSES = 40
 
 
 # -- constraints -----------------------------------------------------------------------------------------------
-def _linear(node, k, text):
-    """(coefficients, constant) of a linear expression over f0..f{k-1}."""
-    if isinstance(node, ast.Constant) and isinstance(node.value, (int, float)) and not isinstance(node.value, bool):
-        return np.zeros(k), float(node.value)
-    if isinstance(node, ast.Name) and re.fullmatch(r"f\d+", node.id):
-        coef = np.zeros(k)
-        coef[int(node.id[1:])] = 1.0
-        return coef, 0.0
-    if isinstance(node, ast.UnaryOp) and isinstance(node.op, (ast.USub, ast.UAdd)):
-        c, b = _linear(node.operand, k, text)
-        return (-c, -b) if isinstance(node.op, ast.USub) else (c, b)
-    if isinstance(node, ast.BinOp) and isinstance(node.op, (ast.Add, ast.Sub)):
-        c1, b1 = _linear(node.left, k, text)
-        c2, b2 = _linear(node.right, k, text)
-        return (c1 + c2, b1 + b2) if isinstance(node.op, ast.Add) else (c1 - c2, b1 - b2)
-    if isinstance(node, ast.BinOp) and isinstance(node.op, (ast.Mult, ast.Div)):
-        c1, b1 = _linear(node.left, k, text)
-        c2, b2 = _linear(node.right, k, text)
-        if isinstance(node.op, ast.Div):
-            if c2.any() or b2 == 0:
-                raise LevelwiseError(f"The constraint {text!r} divides by a factor or by zero; it must be linear.")
-            return c1 / b2, b1 / b2
-        if c1.any() and c2.any():
-            raise LevelwiseError(f"The constraint {text!r} multiplies two factors; constraints must be linear.")
-        return (c1 * b2, b1 * b2) if c1.any() or not c2.any() else (c2 * b1, b2 * b1)
-    raise LevelwiseError(
-        f"The constraint {text!r} is not a linear expression in the factors such as 'A + 2*B <= 1.5'."
-    )
-
-
 def parse_constraints(constraints, factors):
     """Linear constraints in natural units -> (G, h) with G x <= h in coded units.
 
@@ -86,25 +55,7 @@ def parse_constraints(constraints, factors):
     center = np.array([0.0 if f.is_categorical else f.center for f in factors])
     half = np.array([1.0 if f.is_categorical else f.half_range for f in factors])
     for text in constraints:
-        if not isinstance(text, str) or len(re.findall(r"<=|>=|<|>", text)) != 1:
-            raise LevelwiseError(
-                "Each item of 'constraints' must be one inequality such as 'A + B <= 1.5'. "
-                f"Got {describe(text)} instead."
-            )
-        op = re.search(r"<=|>=|<|>", text).group(0)
-        left, right = text.split(op)
-        try:
-            lt = ast.parse(_substitute(left, names).strip(), mode="eval").body
-            rt = ast.parse(_substitute(right, names).strip(), mode="eval").body
-        except SyntaxError:
-            raise LevelwiseError(f"The constraint {text!r} could not be read.") from None
-        c1, b1 = _linear(lt, k, text)
-        c2, b2 = _linear(rt, k, text)
-        a, b = c1 - c2, b2 - b1  # a.x <= b
-        if op in (">=", ">"):
-            a, b = -a, -b
-        if not a.any():
-            raise LevelwiseError(f"The constraint {text!r} names no factor.")
+        a, b = parse_constraint(text, names)  # a . x <= b, natural units
         named = [f.name for f, coef in zip(factors, a) if coef and f.is_categorical]
         if named:
             raise LevelwiseError(f"The constraint {text!r} names categorical factor(s) {named}; constraints must "
