@@ -43,7 +43,7 @@ from ._errors import LevelwiseError, LevelwiseWarning, describe
 from .design import META_COLUMNS
 from .factors import Factor
 from .formula import ModelSpec, monomials, names_in_model, parse_model, term_name
-from .prediction import Predictor, encode
+from .prediction import InteractivePlan, Predictor, encode
 
 #: Suffix of a column holding the achieved setting of a factor: ``"Oven (achieved)"``.
 ACHIEVED_SUFFIX = " (achieved)"
@@ -97,6 +97,7 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
 
 
 _PLAIN_NUMBERS = (int, float, np.float64, np.float32, np.int64, np.int32)
+_PLAIN_TYPES = frozenset(_PLAIN_NUMBERS)
 
 
 def _read_only(*arrays):
@@ -603,6 +604,145 @@ class Fit:
             max_leverage=float(self.leverage.max()) if self.n else np.inf,
         )
 
+    @cached_property
+    def interactive_plan(self) -> InteractivePlan | None:
+        """Per-fit constants of :meth:`refresh` (None when the model has categorical factors)."""
+        if self.contrasts or self.spec.exponents.shape != (self.p, len(self.factor_names)):
+            return None
+        return InteractivePlan(self.spec.exponents, self.beta, self.rinv, self.coding.center, self.coding.scale,
+                               self.coding.low, self.coding.high)
+
+    @cached_property
+    def _factor_set(self) -> frozenset:
+        return frozenset(self.factor_names)
+
+    def settings_vector(self, settings) -> np.ndarray:
+        """Validate one setting given as a dict ``{factor: number}`` (natural units) into a (k,) array.
+
+        Checked by hand, without pandas (this runs on every slider event). Categorical factors are
+        given by level. Every factor must be given, no other name, each a finite number.
+        """
+        if not isinstance(settings, dict):
+            raise LevelwiseError(
+                "The 'settings' parameter must be a dict of factor -> natural setting. "
+                f"Got {describe(settings)} instead."
+            )
+        names = self.factor_names
+        if len(settings) != len(names) or not self._factor_set.issuperset(settings):
+            missing = [name for name in names if name not in settings]
+            if missing:
+                raise LevelwiseError(
+                    f"The 'settings' parameter is missing factor(s) {missing}; it must give every factor of the "
+                    f"model {list(names)}."
+                )
+            unknown = [key for key in settings if key not in self._factor_set]
+            raise LevelwiseError(
+                f"The 'settings' parameter names {[str(key) for key in unknown]}, which the model does not have; "
+                f"its factors are {list(names)}."
+            )
+        row = [settings[name] for name in names]
+        if not self.categories:
+            for value in row:
+                if type(value) not in _PLAIN_TYPES or not math.isfinite(value):
+                    break
+            else:
+                return np.array(row, dtype=float)
+        vector = np.empty(len(names))
+        for j, (name, value) in enumerate(zip(names, row)):
+            if name in self.categories:
+                vector[j] = _level_indices([value], name, self.categories[name], "setting")[0]
+                if np.isnan(vector[j]):
+                    raise LevelwiseError(
+                        f"The setting for categorical factor {name!r} must be one of its levels "
+                        f"{list(self.categories[name])}. Got {describe(value)} instead."
+                    )
+                continue
+            if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+                raise LevelwiseError(
+                    f"The setting for factor {name!r} must be a finite number. Got {describe(value)} instead."
+                )
+            if not math.isfinite(value):
+                raise LevelwiseError(
+                    f"The setting for factor {name!r} must be a finite number. Got {describe(value)} instead."
+                )
+            vector[j] = value
+        return vector
+
+    def refresh(self, settings, level: float | None = None, points: int | None = 50, slice_axes=None,
+                shape=(100, 100)) -> dict:
+        """Everything one slider event needs, in one call, as numpy arrays (no DataFrames).
+
+        Parameters
+        ----------
+        settings : dict
+            ``{factor: natural setting}`` for every factor of the model (a level for a categorical one).
+        level : float, optional
+            Confidence level of the intervals (the fit's level by default).
+        points : int or None
+            Points per factor trace; None computes no traces.
+        slice_axes : (str, str), optional
+            The factors across and up a surface slice; None computes no slice.
+        shape : (int, int)
+            Grid points of the slice along its two axes.
+
+        Returns
+        -------
+        dict
+            ``point``: ``mean``, ``ci_low``, ``ci_high``, ``pi_low``, ``pi_high``, ``leverage`` (floats)
+            and ``extrapolated`` (bool), as one row of :meth:`predict`; ``traces``: as :meth:`traces`
+            (or None); ``slice``: as :meth:`slice` (or None).
+
+        Raises
+        ------
+        LevelwiseError
+            A setting that is missing, not a finite number, an unknown level or names no factor of
+            the model; a bad ``level``, ``points``, ``slice_axes`` or ``shape``.
+        """
+        natural = self.settings_vector(settings)
+        if level is None:
+            level = self.level
+        elif level != self.level:
+            level = _check_level(level)
+        if points is not None and (isinstance(points, bool) or not isinstance(points, (int, np.integer))
+                                   or not 2 <= points <= 100_000):
+            raise LevelwiseError(f"The 'points' parameter must be an integer from 2 to 100000 or None. "
+                                 f"Got {describe(points)}.")
+        plan = self.interactive_plan
+        if plan is None:  # categorical factors: the general path
+            point = self.predict(settings, level).iloc[0]
+            out = {"point": {key: (bool(point[key]) if key == "extrapolated" else float(point[key]))
+                             for key in point.index}}
+            out["traces"] = None if points is None else self.traces(settings, int(points), level)
+            out["slice"] = None if slice_axes is None else self.slice(*_axes(slice_axes), settings, shape, level)
+            return out
+        ts = self.t_quantile(level) * self.s
+        powers = plan.powers(natural)
+        out = {"point": plan.point(natural, powers, ts, self.predictor.max_leverage)}
+        out["traces"] = None if points is None else self._trace_dict(plan, powers, ts, int(points))
+        out["slice"] = None
+        if slice_axes is not None:
+            ix, iy = self._slice_axes(slice_axes)
+            out["slice"] = plan.slice(powers, ts, ix, iy, _shape(shape))
+        return out
+
+    def _trace_dict(self, plan, powers, ts, points):
+        xs, mean, ci, pi = plan.traces(powers, ts, points)
+        return {name: {"x": xs[j], "mean": mean[j], "ci_half": ci[j], "pi_half": pi[j]}
+                for j, name in enumerate(self.factor_names)}
+
+    def _slice_axes(self, slice_axes):
+        cache = self.__dict__.setdefault("_slice_axes_cache", {})
+        try:
+            return cache[slice_axes]
+        except (KeyError, TypeError):
+            pass
+        from .surface import _slice_factors
+
+        x, y = _axes(slice_axes)
+        result = _slice_factors(self, x, y)
+        cache[(x, y)] = result
+        return result
+
     def settings_array(self, settings) -> np.ndarray:
         """Validate factor settings (dict or DataFrame, natural units) into an (m, k) array.
 
@@ -730,6 +870,9 @@ class Fit:
         level = self.level if level is None else _check_level(level)
         base = self.settings_array(settings)[0]
         points = int(points)
+        plan = self.interactive_plan
+        if plan is not None and 2 <= points <= 100_000:
+            return self._trace_dict(plan, plan.powers(base), self.t_quantile(level) * self.s, points)
         grids = self.__dict__.setdefault("_trace_grids", {})
         key = ("all", points)
         if key not in grids:
@@ -787,6 +930,26 @@ class Fit:
 
     def __repr__(self) -> str:
         return f"<Fit {self.response} ~ {self.spec.formula}: n={self.n}, p={self.p}, s={self.s:.4g}>"
+
+
+def _axes(slice_axes) -> tuple:
+    """The two slice factors from ``slice_axes``."""
+    try:
+        x, y = slice_axes
+    except (TypeError, ValueError):
+        raise LevelwiseError(
+            f"The 'slice_axes' parameter must be a pair of factor names (across, up). Got {describe(slice_axes)} instead."
+        ) from None
+    return x, y
+
+
+def _shape(shape) -> tuple:
+    if type(shape) is tuple and len(shape) == 2 and type(shape[0]) is int and type(shape[1]) is int \
+            and shape[0] >= 2 and shape[1] >= 2:
+        return shape
+    from .surface import _check_shape
+
+    return _check_shape(shape)
 
 
 def _level_indices(values: pd.Series, name: str, levels: tuple, role: str) -> np.ndarray:
