@@ -218,11 +218,15 @@ class Fit:
         return self.run_settings
 
     def _replace(self, **changes) -> Fit:
-        """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace)."""
+        """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace).
+
+        Arrays are shared, not copied (they are read-only); derived values are recomputed on demand.
+        """
         new = object.__new__(Fit)
-        values = {name: self.__dict__[name] for name in _FIELDS}
+        state = self.__dict__
+        values = {name: state[name] for name in _FIELDS}
         values.update(changes)
-        new.__dict__.update(values)
+        object.__setattr__(new, "__dict__", values)
         return new
 
     @cached_property
@@ -520,36 +524,63 @@ class Fit:
                 f"The 'run' parameter of exclude must be a run in this fit {list(self.runs)[:20]}. "
                 f"Got {describe(run)} instead."
             )
-        if self.n - 1 < self.p:
+        n = self.n
+        if n - 1 < self.p:
             raise LevelwiseError(
-                f"Run {run!r} cannot be excluded: the model has {self.p} terms and only {self.n - 1} runs would remain."
+                f"Run {run!r} cannot be excluded: the model has {self.p} terms and only {n - 1} runs would remain."
             )
-        ordinal = int(self._ordinals[i])
+        order = self._order
+        ordinal = i if order is None else int(order[i])
         x = self.X_all[ordinal]
-        v = self.rinv.T @ x
+        rinv = self.rinv
+        both = x @ self._rinv_beta  # x R^-1, then the fitted value x beta
+        v = both[:-1]
         h = float(v @ v)
         if h > 1.0 - 1e-10:
             raise LevelwiseError(
                 f"Run {run!r} cannot be excluded: its leverage is 1, so without it at least one term of the "
                 "model could not be estimated. Drop a term or keep the run."
             )
-        e = self.y_all[ordinal] - x @ self.beta
-        cx = self.rinv @ v
-        beta = self.beta - cx * e / (1.0 - h)
-        a = (1.0 / np.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
-        rinv = self.rinv + a * np.outer(cx, v)
-        return self._replace(
-            beta=_read_only(beta),
-            rinv=_read_only(rinv),
+        e = float(self.y_all[ordinal]) - float(both[-1])
+        cx = rinv @ v
+        a = (1.0 / math.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
+        # [R^-1 | beta] in one update: R^-1 + a cx v' and beta - cx e / (1 - h).
+        w = both * a
+        w[-1] = -e / (1.0 - h)
+        new_rb = np.multiply.outer(cx, w)
+        new_rb += self._rinv_beta
+        new_rb.flags.writeable = False
+        new_rinv, new_beta = new_rb[:, :-1], new_rb[:, -1]
+        if order is None:
+            every = np.arange(n)
+            new_order = np.concatenate((every[:i], every[i + 1 :]))
+        else:
+            new_order = np.concatenate((order[:i], order[i + 1 :]))
+        new = self._replace(
+            beta=new_beta,
+            rinv=new_rinv,
             exclusions=self.exclusions + ((run, reason.strip()),),
-            _order=np.concatenate((self._ordinals[:i], self._ordinals[i + 1 :])),
+            _order=new_order,
         )
+        new.__dict__["_rinv_beta"] = new_rb
+        # The residual sum of squares loses the run's deleted residual: SSE - e^2 / (1 - h)
+        # (Belsley, Kuh & Welsch 1980). Kept only when no digits cancel; else recomputed on demand.
+        sse = self.sse
+        smaller = sse - e * e / (1.0 - h)
+        if smaller > 1e-6 * sse:
+            new.__dict__["sse"] = smaller
+        return new
+
+    @cached_property
+    def _rinv_beta(self) -> np.ndarray:
+        """``[R^-1 | beta]`` side by side (one product gives x R^-1 and x beta)."""
+        return np.column_stack([self.rinv, self.beta])
 
     def _position(self, run):
         """Row of *run* among the runs in the fit, or None."""
         ordinal = self._ordinal_of(run)
-        if ordinal is None:
-            return None
+        if ordinal is None or self._order is None:
+            return ordinal
         i = int(np.searchsorted(self._ordinals, ordinal))
         return i if i < self.n and self._ordinals[i] == ordinal else None
 
