@@ -969,7 +969,8 @@ def _axes(slice_axes) -> tuple:
         x, y = slice_axes
     except (TypeError, ValueError):
         raise LevelwiseError(
-            f"The 'slice_axes' parameter must be a pair of factor names (across, up). Got {describe(slice_axes)} instead."
+            "The 'slice_axes' parameter must be a pair of factor names (across, up). "
+            f"Got {describe(slice_axes)} instead."
         ) from None
     return x, y
 
