@@ -144,7 +144,7 @@ class InteractivePlan:
         self.low = np.asarray(low, dtype=float)
         self.high = np.asarray(high, dtype=float)
         tol = 1e-9 * self.scale
-        self.low_tol, self.high_tol = self.low - tol, self.high + tol
+        self._lows, self._highs = (self.low - tol).tolist(), (self.high + tol).tolist()
         self.rinv_beta = np.ascontiguousarray(np.column_stack([self.rinv, self.beta]))  # (p, p+1)
         # onehot[j, c, a] = 1 when model column c holds factor j to the power a.
         onehot = np.zeros((k, p, self.D + 1))
@@ -152,6 +152,10 @@ class InteractivePlan:
         self.onehot = onehot
         # Row j: every factor but j (the held ones for factor j's trace).
         self._held = np.array([[i for i in range(k) if i != j] for j in range(k)], dtype=np.intp).reshape(k, k - 1)
+        # spread[j, c, a*(p+1) + q] = onehot[j, c, a] * [R^-1 | beta][c, q]: one product with the held
+        # factors' column constants gives, per factor and power, the row of R^-1 and the mean coefficient.
+        spread = onehot[:, :, :, None] * self.rinv_beta[None, :, None, :]
+        self._spread = np.ascontiguousarray(spread.reshape(k, p, (self.D + 1) * (p + 1)))
         self._traces = {}
         self._slices = {}
 
@@ -165,9 +169,8 @@ class InteractivePlan:
             coded = (np.array(xs) - self.center[:, None]) / self.scale[:, None]
             vander = coded[:, :, None] ** np.arange(self.D + 1)  # (k, points, D+1)
             # Basis of [h | mean]: the products of two powers (for the gram matrix), then the powers.
-            outer = (vander[:, :, :, None] * vander[:, :, None, :]).reshape(self.k, points, -1)
-            basis = np.concatenate((outer, vander), axis=2)
-            self._traces[points] = (xs, basis)
+            outer = np.ascontiguousarray((vander[:, :, :, None] * vander[:, :, None, :]).reshape(self.k, points, -1))
+            self._traces[points] = (xs, outer, np.ascontiguousarray(vander))
         return self._traces[points]
 
     def slice_plan(self, ix: int, iy: int, shape):
@@ -215,31 +218,26 @@ class InteractivePlan:
         xr = both[:-1]
         mean, h = float(both[-1]), float(xr @ xr)
         ci, pi = ts * math.sqrt(h), ts * math.sqrt(1.0 + h)
-        outside = h > max_leverage * (1.0 + 1e-9) + 1e-12 or bool(
-            (natural < self.low_tol).any() or (natural > self.high_tol).any())
+        outside = h > max_leverage * (1.0 + 1e-9) + 1e-12 or any(
+            value < low or value > high for value, low, high in zip(natural.tolist(), self._lows, self._highs))
         return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
                 "pi_high": mean + pi, "leverage": h, "extrapolated": outside}
 
     def traces(self, powers: np.ndarray, ts: float, points: int):
         """Mean, CI and PI half-widths along every factor, (k, points) each, and the x grids."""
-        xs, basis = self.trace_grids(points)
+        xs, outer, vander = self.trace_grids(points)
         k, p, width = self.k, self.p, self.D + 1
         const = powers[:, self._held].prod(axis=2).T  # (k, p): each column's factor from the held factors
-        weights = const[:, :, None] * self.onehot  # (k, p, D+1)
-        # One product gives, per factor and power, the row of R^-1 (first p) and the mean coefficient (last).
-        z = np.matmul(weights.transpose(0, 2, 1), self.rinv_beta)  # (k, D+1, p+1)
+        z = np.matmul(const[:, None, :], self._spread).reshape(k, width, p + 1)
         rows = z[:, :, :p]
-        coef = np.zeros((k, width * width + width, 2))
-        coef[:, : width * width, 0] = np.matmul(rows, rows.transpose(0, 2, 1)).reshape(k, -1)
-        coef[:, width * width :, 1] = z[:, :, p]
-        values = np.matmul(basis, coef)  # (k, points, 2): h and mean
-        mean = values[:, :, 1]
-        h = np.maximum(values[:, :, 0], 0.0)
+        gram = np.matmul(rows, rows.transpose(0, 2, 1))  # (k, D+1, D+1)
+        gram *= ts * ts  # so that h below is already (t s)^2 x (X'X)^-1 x'
+        h = np.matmul(outer, gram.reshape(k, width * width, 1)).reshape(k, -1)
+        mean = np.matmul(vander, z[:, :, p:]).reshape(k, -1)
+        np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
         ci = np.sqrt(h)
-        ci *= ts
-        h += 1.0
+        h += ts * ts
         pi = np.sqrt(h, out=h)
-        pi *= ts
         return xs, mean, ci, pi
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape) -> dict:
@@ -250,12 +248,11 @@ class InteractivePlan:
         mean_coef = (weights @ self.beta).reshape(plan["dx"] + 1, plan["dy"] + 1)
         z = weights @ self.rinv
         var_coef = ((z @ z.T).ravel() @ plan["to_variance"]).reshape(2 * plan["dx"] + 1, 2 * plan["dy"] + 1)
+        var_coef *= ts * ts  # so that h below is already (t s)^2 x (X'X)^-1 x'
         mean = plan["vv1"] @ (mean_coef.T @ plan["vu1"])
         h = plan["vv2"] @ (var_coef.T @ plan["vu2"])
         np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
         ci = np.sqrt(h)
-        ci *= ts
-        h += 1.0
+        h += ts * ts
         pi = np.sqrt(h, out=h)
-        pi *= ts
         return {"x": plan["xs"], "y": plan["ys"], "mean": mean, "ci_half": ci, "pi_half": pi}
