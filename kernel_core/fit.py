@@ -551,11 +551,8 @@ class Fit:
         new_rb += self._rinv_beta
         new_rb.flags.writeable = False
         new_rinv, new_beta = new_rb[:, :-1], new_rb[:, -1]
-        if order is None:
-            every = np.arange(n)
-            new_order = np.concatenate((every[:i], every[i + 1 :]))
-        else:
-            new_order = np.concatenate((order[:i], order[i + 1 :]))
+        every = self._ordinals
+        new_order = np.concatenate((every[:i], every[i + 1 :]))
         new = self._replace(
             beta=new_beta,
             rinv=new_rinv,
@@ -569,6 +566,7 @@ class Fit:
         smaller = sse - e * e / (1.0 - h)
         if smaller > 1e-6 * sse:
             new.__dict__["sse"] = smaller
+            new.__dict__["s"] = math.sqrt(smaller / (n - 1 - self.p)) if n - 1 > self.p else float("nan")
         return new
 
     @cached_property
