@@ -698,7 +698,7 @@ class Fit:
         return vector
 
     def refresh(self, settings, level: float | None = None, points: int | None = 50, slice_axes=None,
-                shape=(100, 100)) -> dict:
+                shape=(100, 100), point: bool = True) -> dict:
         """Everything one slider event needs, in one call, as numpy arrays (no DataFrames).
 
         Parameters
@@ -713,13 +713,15 @@ class Fit:
             The factors across and up a surface slice; None computes no slice.
         shape : (int, int)
             Grid points of the slice along its two axes.
+        point : bool
+            False computes no point prediction (a view that shows only the slice).
 
         Returns
         -------
         dict
             ``point``: ``mean``, ``ci_low``, ``ci_high``, ``pi_low``, ``pi_high``, ``leverage`` (floats)
-            and ``extrapolated`` (bool), as one row of :meth:`predict`; ``traces``: as :meth:`traces`
-            (or None); ``slice``: as :meth:`slice` (or None).
+            and ``extrapolated`` (bool), as one row of :meth:`predict` (or None); ``traces``: as
+            :meth:`traces` (or None); ``slice``: as :meth:`slice` (or None).
 
         Raises
         ------
@@ -738,15 +740,17 @@ class Fit:
                                  f"Got {describe(points)}.")
         plan = self.interactive_plan
         if plan is None:  # categorical factors: the general path
-            point = self.predict(settings, level).iloc[0]
-            out = {"point": {key: (bool(point[key]) if key == "extrapolated" else float(point[key]))
-                             for key in point.index}}
+            out = {"point": None}
+            if point:
+                row = self.predict(settings, level).iloc[0]
+                out["point"] = {key: (bool(row[key]) if key == "extrapolated" else float(row[key]))
+                                for key in row.index}
             out["traces"] = None if points is None else self.traces(settings, int(points), level)
             out["slice"] = None if slice_axes is None else self.slice(*_axes(slice_axes), settings, shape, level)
             return out
         ts = self.t_quantile(level) * self.s
         powers = plan.powers(natural)
-        out = {"point": plan.point(natural, powers, ts, self.predictor.max_leverage)}
+        out = {"point": plan.point(natural, powers, ts, self.predictor.max_leverage) if point else None}
         out["traces"] = None if points is None else self._trace_dict(plan, powers, ts, int(points))
         out["slice"] = None
         if slice_axes is not None:

@@ -196,9 +196,12 @@ class InteractivePlan:
             v = (ys - self.center[iy]) / self.scale[iy]
             others = np.ones(self.k, dtype=bool)
             others[[ix, iy]] = False
+            # spread[c, i*(p+1) + q] = to_monomial[c, i] * [R^-1 | beta][c, q]: one product with the
+            # fixed factors' column constants gives each monomial's row of R^-1 and its mean coefficient.
+            spread = (to_monomial[:, :, None] * self.rinv_beta[:, None, :]).reshape(self.p, m * (self.p + 1))
             self._slices[key] = {
-                "xs": xs, "ys": ys, "dx": dx, "dy": dy, "others": others,
-                "to_monomial": to_monomial, "to_variance": to_variance,
+                "xs": xs, "ys": ys, "dx": dx, "dy": dy, "m": m, "others": others, "spread": spread,
+                "to_variance": to_variance,
                 "vu1": np.vander(u, dx + 1, increasing=True).T.copy(),
                 "vv1": np.vander(v, dy + 1, increasing=True),
                 "vu2": np.vander(u, 2 * dx + 1, increasing=True).T.copy(),
@@ -244,9 +247,10 @@ class InteractivePlan:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""
         plan = self.slice_plan(ix, iy, shape)
         const = powers[:, plan["others"]].prod(axis=1)
-        weights = plan["to_monomial"].T * const  # (m, p)
-        mean_coef = (weights @ self.beta).reshape(plan["dx"] + 1, plan["dy"] + 1)
-        z = weights @ self.rinv
+        p = self.p
+        both = (const @ plan["spread"]).reshape(plan["m"], p + 1)
+        mean_coef = both[:, p].reshape(plan["dx"] + 1, plan["dy"] + 1)
+        z = both[:, :p]
         var_coef = ((z @ z.T).ravel() @ plan["to_variance"]).reshape(2 * plan["dx"] + 1, 2 * plan["dy"] + 1)
         var_coef *= ts * ts  # so that h below is already (t s)^2 x (X'X)^-1 x'
         mean = plan["vv1"] @ (mean_coef.T @ plan["vu1"])

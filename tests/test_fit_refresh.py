@@ -93,6 +93,8 @@ def test_slice_equals_separable_slice_and_statsmodels(study, axes):
     got = ours.refresh(SETTINGS, points=None, slice_axes=axes, shape=(13, 9))["slice"]
     assert got["mean"].shape == (9, 13)
     same = ours.slice(x, y, SETTINGS, shape=(13, 9))
+    alone = ours.refresh(SETTINGS, points=None, slice_axes=axes, shape=(13, 9), point=False)
+    assert alone["point"] is None and np.array_equal(alone["slice"]["pi_half"], got["pi_half"])
     separable = evaluate_polynomials(slice_polynomials(ours, x, y, SETTINGS), got["x"], got["y"])
     for key in ("mean", "ci_half", "pi_half"):
         assert np.max(np.abs(got[key] - same[key])) < 1e-12

@@ -218,7 +218,8 @@ class SurfaceSlice(View):
     # ----- drawing ------------------------------------------------------------------------------
     def _kernel_slice(self, current, x, y) -> dict:
         """The slice grids from one kernel call (Fit.refresh, the interactive path)."""
-        return current.refresh(self.shared.settings, points=None, slice_axes=(x, y), shape=self.shape)["slice"]
+        return current.refresh(self.shared.settings, points=None, slice_axes=(x, y), shape=self.shape,
+                               point=False)["slice"]
 
     def _quantity_grid(self, current, x, y):
         grid = self._kernel_slice(current, x, y)

@@ -178,7 +178,8 @@ def case_refresh(cfg: Config) -> list[dict]:
             sliders = refresh(settings, points=50)
             out = [sliders["point"]] + [sliders["traces"][name] for name in NAMES]
             if with_slice:
-                out.append(refresh(settings, points=None, slice_axes=(NAMES[0], NAMES[1]), shape=(100, 100))["slice"])
+                out.append(refresh(settings, points=None, slice_axes=(NAMES[0], NAMES[1]), shape=(100, 100),
+                                   point=False)["slice"])
             return out
         out = [fitted.predict(settings)]
         if callable(batch):
@@ -218,7 +219,8 @@ def case_refresh(cfg: Config) -> list[dict]:
     if callable(refresh):
         common = (f"5-factor quadratic (p = 21) on a 32-run CCD ({design_note}); ours: the widgets' kernel calls "
                   "per slider event: Fit.refresh(settings, points=50) (sliders: point + 5 traces), and with the "
-                  "slice Fit.refresh(settings, points=None, slice_axes=('A', 'B'), shape=(100, 100)) (surface view)")
+                  "slice Fit.refresh(settings, points=None, slice_axes=('A', 'B'), shape=(100, 100), point=False) "
+                  "(surface view)")
     else:
         common = (f"5-factor quadratic (p = 21) on a 32-run CCD ({design_note}); ours: Fit.predict, "
                   + ("Fit.traces (all 5 curves in one batch)" if callable(batch) else "Fit.trace per factor")
