@@ -636,7 +636,7 @@ class Fit:
     @cached_property
     def interactive_plan(self) -> InteractivePlan | None:
         """Per-fit constants of :meth:`refresh` (None when the model has categorical factors)."""
-        if self.contrasts or self.spec.exponents.shape != (self.p, len(self.factor_names)):
+        if self.contrasts or not self.factor_names or self.spec.exponents.shape != (self.p, len(self.factor_names)):
             return None
         return InteractivePlan(self.spec.exponents, self.beta, self.rinv, self.coding.center, self.coding.scale,
                                self.coding.low, self.coding.high)
