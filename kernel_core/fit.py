@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import operator
 import warnings
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -223,8 +224,7 @@ class Fit:
         Arrays are shared, not copied (they are read-only); derived values are recomputed on demand.
         """
         new = object.__new__(Fit)
-        state = self.__dict__
-        values = {name: state[name] for name in _FIELDS}
+        values = dict(zip(_FIELDS, _FIELD_GETTER(self.__dict__)))
         values.update(changes)
         object.__setattr__(new, "__dict__", values)
         return new
@@ -1465,5 +1465,6 @@ def fit(
 
 
 _FIELDS = tuple(f.name for f in dataclasses.fields(Fit))
+_FIELD_GETTER = operator.itemgetter(*_FIELDS)
 
 __all__ = ["ACHIEVED_SUFFIX", "Coding", "Factor", "Fit", "fit", "sum_to_zero"]

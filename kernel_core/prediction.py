@@ -156,6 +156,9 @@ class InteractivePlan:
         # factors' column constants gives, per factor and power, the row of R^-1 and the mean coefficient.
         spread = onehot[:, :, :, None] * self.rinv_beta[None, :, None, :]
         self._spread = np.ascontiguousarray(spread.reshape(k, p, (self.D + 1) * (p + 1)))
+        self._inv_scale = 1.0 / self.scale
+        self._ones = np.ones(k)
+        self._flat = (E * k + np.arange(k)).ravel()  # (power, factor) -> place in the table of powers
         self._traces = {}
         self._slices = {}
 
@@ -212,8 +215,11 @@ class InteractivePlan:
     # ----- per event ----------------------------------------------------------------------------
     def powers(self, natural: np.ndarray) -> np.ndarray:
         """(p, k) coded setting of each factor raised to its exponent in each column."""
-        coded = (natural - self.center) / self.scale
-        return coded[None, :] ** self.Ef
+        coded = (natural - self.center) * self._inv_scale
+        table = [self._ones, coded]  # every power of every coded factor, by repeated products
+        for _ in range(2, self.D + 1):
+            table.append(table[-1] * coded)
+        return np.concatenate(table[: self.D + 1]).take(self._flat).reshape(self.p, self.k)
 
     def point(self, natural: np.ndarray, powers: np.ndarray, ts: float, max_leverage: float) -> dict:
         """Mean, CI, PI, leverage and extrapolation flag at one natural setting."""
