@@ -224,9 +224,9 @@ class Fit:
         Arrays are shared, not copied (they are read-only); derived values are recomputed on demand.
         """
         new = object.__new__(Fit)
-        values = dict(zip(_FIELDS, _FIELD_GETTER(self.__dict__)))
+        values = new.__dict__
+        values.update(zip(_FIELDS, _FIELD_GETTER(self.__dict__)))
         values.update(changes)
-        object.__setattr__(new, "__dict__", values)
         return new
 
     @cached_property
