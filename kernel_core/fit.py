@@ -28,6 +28,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import operator
 import warnings
 from dataclasses import dataclass, field
 from functools import cached_property
@@ -43,7 +44,7 @@ from ._errors import LevelwiseError, LevelwiseWarning, describe
 from .design import META_COLUMNS
 from .factors import Factor
 from .formula import ModelSpec, monomials, names_in_model, parse_model, term_name
-from .prediction import Predictor, encode
+from .prediction import InteractivePlan, Predictor, encode
 
 #: Suffix of a column holding the achieved setting of a factor: ``"Oven (achieved)"``.
 ACHIEVED_SUFFIX = " (achieved)"
@@ -97,6 +98,7 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
 
 
 _PLAIN_NUMBERS = (int, float, np.float64, np.float32, np.int64, np.int32)
+_PLAIN_TYPES = frozenset(_PLAIN_NUMBERS)
 
 
 def _read_only(*arrays):
@@ -217,11 +219,14 @@ class Fit:
         return self.run_settings
 
     def _replace(self, **changes) -> Fit:
-        """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace)."""
+        """A new Fit with some fields changed and no cached values (cheaper than dataclasses.replace).
+
+        Arrays are shared, not copied (they are read-only); derived values are recomputed on demand.
+        """
         new = object.__new__(Fit)
-        values = {name: self.__dict__[name] for name in _FIELDS}
+        values = new.__dict__
+        values.update(zip(_FIELDS, _FIELD_GETTER(self.__dict__)))
         values.update(changes)
-        new.__dict__.update(values)
         return new
 
     @cached_property
@@ -519,36 +524,61 @@ class Fit:
                 f"The 'run' parameter of exclude must be a run in this fit {list(self.runs)[:20]}. "
                 f"Got {describe(run)} instead."
             )
-        if self.n - 1 < self.p:
+        n = self.n
+        if n - 1 < self.p:
             raise LevelwiseError(
-                f"Run {run!r} cannot be excluded: the model has {self.p} terms and only {self.n - 1} runs would remain."
+                f"Run {run!r} cannot be excluded: the model has {self.p} terms and only {n - 1} runs would remain."
             )
-        ordinal = int(self._ordinals[i])
+        order = self._order
+        ordinal = i if order is None else int(order[i])
         x = self.X_all[ordinal]
-        v = self.rinv.T @ x
+        rinv = self.rinv
+        both = x @ self._rinv_beta  # x R^-1, then the fitted value x beta
+        v = both[:-1]
         h = float(v @ v)
         if h > 1.0 - 1e-10:
             raise LevelwiseError(
                 f"Run {run!r} cannot be excluded: its leverage is 1, so without it at least one term of the "
                 "model could not be estimated. Drop a term or keep the run."
             )
-        e = self.y_all[ordinal] - x @ self.beta
-        cx = self.rinv @ v
-        beta = self.beta - cx * e / (1.0 - h)
-        a = (1.0 / np.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
-        rinv = self.rinv + a * np.outer(cx, v)
-        return self._replace(
-            beta=_read_only(beta),
-            rinv=_read_only(rinv),
+        e = float(self.y_all[ordinal]) - float(both[-1])
+        cx = rinv @ v
+        a = (1.0 / math.sqrt(1.0 - h) - 1.0) / h if h > 0 else 0.5
+        # [R^-1 | beta] in one update: R^-1 + a cx v' and beta - cx e / (1 - h).
+        w = both * a
+        w[-1] = -e / (1.0 - h)
+        new_rb = np.multiply.outer(cx, w)
+        new_rb += self._rinv_beta
+        new_rb.flags.writeable = False
+        new_rinv, new_beta = new_rb[:, :-1], new_rb[:, -1]
+        every = self._ordinals
+        new_order = np.concatenate((every[:i], every[i + 1 :]))
+        new = self._replace(
+            beta=new_beta,
+            rinv=new_rinv,
             exclusions=self.exclusions + ((run, reason.strip()),),
-            _order=np.concatenate((self._ordinals[:i], self._ordinals[i + 1 :])),
+            _order=new_order,
         )
+        new.__dict__["_rinv_beta"] = new_rb
+        # The residual sum of squares loses the run's deleted residual: SSE - e^2 / (1 - h)
+        # (Belsley, Kuh & Welsch 1980). Kept only when no digits cancel; else recomputed on demand.
+        sse = self.sse
+        smaller = sse - e * e / (1.0 - h)
+        if smaller > 1e-6 * sse:
+            new.__dict__["sse"] = smaller
+            new.__dict__["s"] = math.sqrt(smaller / (n - 1 - self.p)) if n - 1 > self.p else float("nan")
+        return new
+
+    @cached_property
+    def _rinv_beta(self) -> np.ndarray:
+        """``[R^-1 | beta]`` side by side (one product gives x R^-1 and x beta)."""
+        return np.column_stack([self.rinv, self.beta])
 
     def _position(self, run):
         """Row of *run* among the runs in the fit, or None."""
         ordinal = self._ordinal_of(run)
-        if ordinal is None:
-            return None
+        if ordinal is None or self._order is None:
+            return ordinal
         i = int(np.searchsorted(self._ordinals, ordinal))
         return i if i < self.n and self._ordinals[i] == ordinal else None
 
@@ -602,6 +632,149 @@ class Fit:
             contrasts=self.contrasts,
             max_leverage=float(self.leverage.max()) if self.n else np.inf,
         )
+
+    @cached_property
+    def interactive_plan(self) -> InteractivePlan | None:
+        """Per-fit constants of :meth:`refresh` (None when the model has categorical factors)."""
+        if self.contrasts or not self.factor_names or self.spec.exponents.shape != (self.p, len(self.factor_names)):
+            return None
+        return InteractivePlan(self.spec.exponents, self.beta, self.rinv, self.coding.center, self.coding.scale,
+                               self.coding.low, self.coding.high)
+
+    @cached_property
+    def _factor_set(self) -> frozenset:
+        return frozenset(self.factor_names)
+
+    def settings_vector(self, settings) -> np.ndarray:
+        """Validate one setting given as a dict ``{factor: number}`` (natural units) into a (k,) array.
+
+        Checked by hand, without pandas (this runs on every slider event). Categorical factors are
+        given by level. Every factor must be given, no other name, each a finite number.
+        """
+        if not isinstance(settings, dict):
+            raise LevelwiseError(
+                "The 'settings' parameter must be a dict of factor -> natural setting. "
+                f"Got {describe(settings)} instead."
+            )
+        names = self.factor_names
+        if len(settings) != len(names) or not self._factor_set.issuperset(settings):
+            missing = [name for name in names if name not in settings]
+            if missing:
+                raise LevelwiseError(
+                    f"The 'settings' parameter is missing factor(s) {missing}; it must give every factor of the "
+                    f"model {list(names)}."
+                )
+            unknown = [key for key in settings if key not in self._factor_set]
+            raise LevelwiseError(
+                f"The 'settings' parameter names {[str(key) for key in unknown]}, which the model does not have; "
+                f"its factors are {list(names)}."
+            )
+        row = [settings[name] for name in names]
+        if not self.categories:
+            for value in row:
+                if type(value) not in _PLAIN_TYPES or not math.isfinite(value):
+                    break
+            else:
+                return np.array(row, dtype=float)
+        vector = np.empty(len(names))
+        for j, (name, value) in enumerate(zip(names, row)):
+            if name in self.categories:
+                vector[j] = _level_indices([value], name, self.categories[name], "setting")[0]
+                if np.isnan(vector[j]):
+                    raise LevelwiseError(
+                        f"The setting for categorical factor {name!r} must be one of its levels "
+                        f"{list(self.categories[name])}. Got {describe(value)} instead."
+                    )
+                continue
+            if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
+                raise LevelwiseError(
+                    f"The setting for factor {name!r} must be a finite number. Got {describe(value)} instead."
+                )
+            if not math.isfinite(value):
+                raise LevelwiseError(
+                    f"The setting for factor {name!r} must be a finite number. Got {describe(value)} instead."
+                )
+            vector[j] = value
+        return vector
+
+    def refresh(self, settings, level: float | None = None, points: int | None = 50, slice_axes=None,
+                shape=(100, 100), point: bool = True) -> dict:
+        """Everything one slider event needs, in one call, as numpy arrays (no DataFrames).
+
+        Parameters
+        ----------
+        settings : dict
+            ``{factor: natural setting}`` for every factor of the model (a level for a categorical one).
+        level : float, optional
+            Confidence level of the intervals (the fit's level by default).
+        points : int or None
+            Points per factor trace; None computes no traces.
+        slice_axes : (str, str), optional
+            The factors across and up a surface slice; None computes no slice.
+        shape : (int, int)
+            Grid points of the slice along its two axes.
+        point : bool
+            False computes no point prediction (a view that shows only the slice).
+
+        Returns
+        -------
+        dict
+            ``point``: ``mean``, ``ci_low``, ``ci_high``, ``pi_low``, ``pi_high``, ``leverage`` (floats)
+            and ``extrapolated`` (bool), as one row of :meth:`predict` (or None); ``traces``: as
+            :meth:`traces` (or None); ``slice``: as :meth:`slice` (or None).
+
+        Raises
+        ------
+        LevelwiseError
+            A setting that is missing, not a finite number, an unknown level or names no factor of
+            the model; a bad ``level``, ``points``, ``slice_axes`` or ``shape``.
+        """
+        natural = self.settings_vector(settings)
+        if level is None:
+            level = self.level
+        elif level != self.level:
+            level = _check_level(level)
+        if points is not None and (isinstance(points, bool) or not isinstance(points, (int, np.integer))
+                                   or not 2 <= points <= 100_000):
+            raise LevelwiseError(f"The 'points' parameter must be an integer from 2 to 100000 or None. "
+                                 f"Got {describe(points)}.")
+        plan = self.interactive_plan
+        if plan is None:  # categorical factors: the general path
+            out = {"point": None}
+            if point:
+                row = self.predict(settings, level).iloc[0]
+                out["point"] = {key: (bool(row[key]) if key == "extrapolated" else float(row[key]))
+                                for key in row.index}
+            out["traces"] = None if points is None else self.traces(settings, int(points), level)
+            out["slice"] = None if slice_axes is None else self.slice(*_axes(slice_axes), settings, shape, level)
+            return out
+        ts = self.t_quantile(level) * self.s
+        powers = plan.powers(natural)
+        out = {"point": plan.point(natural, powers, ts, self.predictor.max_leverage) if point else None}
+        out["traces"] = None if points is None else self._trace_dict(plan, powers, ts, int(points))
+        out["slice"] = None
+        if slice_axes is not None:
+            ix, iy = self._slice_axes(slice_axes)
+            out["slice"] = plan.slice(powers, ts, ix, iy, _shape(shape))
+        return out
+
+    def _trace_dict(self, plan, powers, ts, points):
+        xs, mean, ci, pi = plan.traces(powers, ts, points)
+        return {name: {"x": xs[j], "mean": mean[j], "ci_half": ci[j], "pi_half": pi[j]}
+                for j, name in enumerate(self.factor_names)}
+
+    def _slice_axes(self, slice_axes):
+        cache = self.__dict__.setdefault("_slice_axes_cache", {})
+        try:
+            return cache[slice_axes]
+        except (KeyError, TypeError):
+            pass
+        from .surface import _slice_factors
+
+        x, y = _axes(slice_axes)
+        result = _slice_factors(self, x, y)
+        cache[(x, y)] = result
+        return result
 
     def settings_array(self, settings) -> np.ndarray:
         """Validate factor settings (dict or DataFrame, natural units) into an (m, k) array.
@@ -730,6 +903,9 @@ class Fit:
         level = self.level if level is None else _check_level(level)
         base = self.settings_array(settings)[0]
         points = int(points)
+        plan = self.interactive_plan
+        if plan is not None and 2 <= points <= 100_000:
+            return self._trace_dict(plan, plan.powers(base), self.t_quantile(level) * self.s, points)
         grids = self.__dict__.setdefault("_trace_grids", {})
         key = ("all", points)
         if key not in grids:
@@ -787,6 +963,27 @@ class Fit:
 
     def __repr__(self) -> str:
         return f"<Fit {self.response} ~ {self.spec.formula}: n={self.n}, p={self.p}, s={self.s:.4g}>"
+
+
+def _axes(slice_axes) -> tuple:
+    """The two slice factors from ``slice_axes``."""
+    try:
+        x, y = slice_axes
+    except (TypeError, ValueError):
+        raise LevelwiseError(
+            "The 'slice_axes' parameter must be a pair of factor names (across, up). "
+            f"Got {describe(slice_axes)} instead."
+        ) from None
+    return x, y
+
+
+def _shape(shape) -> tuple:
+    if type(shape) is tuple and len(shape) == 2 and type(shape[0]) is int and type(shape[1]) is int \
+            and shape[0] >= 2 and shape[1] >= 2:
+        return shape
+    from .surface import _check_shape
+
+    return _check_shape(shape)
 
 
 def _level_indices(values: pd.Series, name: str, levels: tuple, role: str) -> np.ndarray:
@@ -1268,5 +1465,6 @@ def fit(
 
 
 _FIELDS = tuple(f.name for f in dataclasses.fields(Fit))
+_FIELD_GETTER = operator.itemgetter(*_FIELDS)
 
 __all__ = ["ACHIEVED_SUFFIX", "Coding", "Factor", "Fit", "fit", "sum_to_zero"]

@@ -222,6 +222,13 @@ def slice_grid(fit, x: str, y: str, settings=None, shape=(100, 100), level: floa
     ix, iy = _slice_factors(fit, x, y)
     xs = np.linspace(fit.coding.low[ix], fit.coding.high[ix], nx)
     ys = np.linspace(fit.coding.low[iy], fit.coding.high[iy], ny)
+    plan = getattr(fit, "interactive_plan", None)
+    if plan is not None:
+        # The same cached evaluation as Fit.refresh (the interactive path), so both agree exactly.
+        level = _check_level(fit, level)
+        out = plan.slice(plan.powers(_base_settings(fit, settings)), fit.t_quantile(level) * fit.s, ix, iy, (nx, ny))
+        return {"x": out["x"], "y": out["y"], "mean": out["mean"], "ci_half": out["ci_half"],
+                "pi_half": out["pi_half"]}
     if _is_polynomial(fit):
         out = evaluate_polynomials(slice_polynomials(fit, x, y, settings, level), xs, ys)
     else:

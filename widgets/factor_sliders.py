@@ -3,8 +3,9 @@
 Each trace shows the predicted response against one factor with the others held
 at the current settings, with the confidence band for the mean (darker, solid
 edge) and the prediction band for a single new run (lighter, dashed edge), and a
-marker at the current setting. Every number comes from ``Fit.predict`` and
-``Fit.traces`` (kernel_core).
+marker at the current setting. Every number comes from one ``Fit.refresh`` call
+per response and event (kernel_core's interactive path: the point prediction and
+every factor's trace, without DataFrames).
 """
 
 from __future__ import annotations
@@ -195,14 +196,19 @@ class FactorSliders(View):
         for name, slider in self.sliders.items():
             if slider.value != shared.settings[name]:
                 slider.value = shared.settings[name]
-        blocks = []
+        blocks, shown = [], None
         for response in shared.responses:
             current = shared.fits.get(response)
             if current is None:
                 blocks.append(f"<b>{html.escape(response)}</b>: no fit yet (no recorded values or the model failed).")
                 continue
-            pred = current.predict(shared.settings).iloc[0]
-            blocks.append(readout_html(shared, response, pred, current.level))
+            # One kernel call per response and event (Fit.refresh: no DataFrames); the displayed
+            # response's call also brings every factor's trace.
+            with_traces = current is shared.fit
+            result = current.refresh(shared.settings, points=self.points if with_traces else None)
+            if with_traces:
+                shown = result
+            blocks.append(readout_html(shared, response, result["point"], current.level))
         self.readout.value = "<hr>".join(blocks)
         outside = shared.extrapolating()
         self.notice.value = (
@@ -215,9 +221,11 @@ class FactorSliders(View):
         current = shared.fit
         if current is None:
             return
-        mean_here = float(current.predict(shared.settings)["mean"].iloc[0])
+        if shown is None:
+            shown = current.refresh(shared.settings, points=self.points)
+        mean_here = shown["point"]["mean"]
         lows, highs = [], []
-        curves = current.traces(shared.settings, points=self.points)  # every factor's curve in one batch
+        curves = shown["traces"]  # every factor's curve, from the same kernel call
         for f in shared.factors:
             if f.name not in self._marks:
                 continue

@@ -6,7 +6,7 @@ by ``contourpy`` and drawn as one ``Lines`` mark (NaN-separated segments). The
 design points are projected onto the slice; the current setting carries the same
 marker as in every view. Clicking the slice sets the two axis factors.
 
-Grids come from :func:`kernel_core.surface.slice_grid` (exact separable polynomial
+Grids come from one ``Fit.refresh`` call per redraw (exact separable polynomial
 evaluation). Refreshes are coalesced: a burst of slider events redraws once, with
 the latest settings, and a change of the axis factors' own settings only moves the
 marker (the slice itself does not depend on them).
@@ -23,7 +23,6 @@ import numpy as np
 
 from kernel_core import LevelwiseError
 from kernel_core.optimize import as_goal, overall_desirability
-from kernel_core.surface import slice_grid
 
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel
@@ -217,8 +216,13 @@ class SurfaceSlice(View):
         return np.linspace(fx.low, fx.high, CLICK_GRID), np.linspace(fy.low, fy.high, CLICK_GRID)
 
     # ----- drawing ------------------------------------------------------------------------------
+    def _kernel_slice(self, current, x, y) -> dict:
+        """The slice grids from one kernel call (Fit.refresh, the interactive path)."""
+        return current.refresh(self.shared.settings, points=None, slice_axes=(x, y), shape=self.shape,
+                               point=False)["slice"]
+
     def _quantity_grid(self, current, x, y):
-        grid = slice_grid(current, x, y, self.shared.settings, shape=self.shape)
+        grid = self._kernel_slice(current, x, y)
         if self.quantity.value != "desirability":
             return grid, grid[self.quantity.value]
         goals = {r: g for r, g in self.shared.goals.items() if r in self.shared.fits}
@@ -227,7 +231,7 @@ class SurfaceSlice(View):
         d, weights = [], []
         for response, spec in goals.items():
             goal = as_goal(spec, response)
-            mean = slice_grid(self.shared.fits[response], x, y, self.shared.settings, shape=self.shape)["mean"]
+            mean = self._kernel_slice(self.shared.fits[response], x, y)["mean"]
             d.append(goal(mean))
             weights.append(goal.importance)
         return grid, overall_desirability(np.stack(d, axis=-1), weights)
