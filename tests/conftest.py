@@ -4,13 +4,13 @@ from __future__ import annotations
 
 import os
 import shutil
-import socket
 import subprocess
 import sys
 import time
 from pathlib import Path
 
 import pytest
+from servers import free_port, wait_for_port
 
 DATA = Path(__file__).parent / "data"
 CHROMIUM = os.environ.get("LEVELWISE_CHROMIUM", "/usr/bin/chromium")
@@ -21,24 +21,6 @@ INSTALL_HINT = "Install Debian's chromium (apt-get install chromium) to run the 
 @pytest.fixture(scope="session")
 def data_dir() -> Path:
     return DATA
-
-
-def free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
-
-def wait_for_port(port: int, proc: subprocess.Popen, timeout: float = 60.0) -> None:
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        if proc.poll() is not None:
-            raise RuntimeError(f"the server exited early with code {proc.returncode}")
-        with socket.socket() as sock:
-            if sock.connect_ex(("127.0.0.1", port)) == 0:
-                return
-        time.sleep(0.2)
-    raise TimeoutError(f"nothing listened on 127.0.0.1:{port} within {timeout} s")
 
 
 @pytest.fixture(scope="session")

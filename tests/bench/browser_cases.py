@@ -12,7 +12,6 @@ from __future__ import annotations
 import os
 import shutil
 import signal
-import socket
 import subprocess
 import sys
 import tempfile
@@ -20,6 +19,8 @@ import time
 from pathlib import Path
 
 import numpy as np
+
+from tests.servers import free_port, wait_for_port
 
 from .rows import make_row, unavailable
 
@@ -49,24 +50,6 @@ INSTALL_OBSERVER = """
   window.__lwBench = state;
 }
 """
-
-
-def free_port() -> int:
-    with socket.socket() as sock:
-        sock.bind(("127.0.0.1", 0))
-        return sock.getsockname()[1]
-
-
-def wait_for_port(port: int, proc: subprocess.Popen, timeout: float = 60.0) -> None:
-    deadline = time.monotonic() + timeout
-    while time.monotonic() < deadline:
-        if proc.poll() is not None:
-            raise RuntimeError(f"the server exited early with code {proc.returncode}")
-        with socket.socket() as sock:
-            if sock.connect_ex(("127.0.0.1", port)) == 0:
-                return
-        time.sleep(0.1)
-    raise TimeoutError(f"nothing listened on 127.0.0.1:{port} within {timeout} s")
 
 
 def children(pid: int) -> list[int]:
