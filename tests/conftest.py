@@ -10,7 +10,7 @@ import time
 from pathlib import Path
 
 import pytest
-from servers import free_port, wait_for_port
+from servers import free_port, loopback_only, wait_for_port
 
 DATA = Path(__file__).parent / "data"
 CHROMIUM = os.environ.get("LEVELWISE_CHROMIUM", "/usr/bin/chromium")
@@ -51,15 +51,6 @@ def browser(chromium_path):
         )
         yield browser
         browser.close()
-
-
-def loopback_only(route):
-    """Abort every request that is not to this machine, so nothing waits on the network."""
-    url = route.request.url
-    if url.startswith(("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:", "file:")):
-        route.continue_()
-    else:
-        route.abort()
 
 
 @pytest.fixture

@@ -25,3 +25,12 @@ def wait_for_port(port: int, proc: subprocess.Popen, timeout: float = 60.0) -> N
                 return
         time.sleep(0.1)
     raise TimeoutError(f"nothing listened on 127.0.0.1:{port} within {timeout} s")
+
+
+def loopback_only(route):
+    """Playwright route handler: abort every request that is not to this machine, so nothing waits on the network."""
+    url = route.request.url
+    if url.startswith(("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:", "file:")):
+        route.continue_()
+    else:
+        route.abort()

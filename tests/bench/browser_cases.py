@@ -20,7 +20,7 @@ from pathlib import Path
 
 import numpy as np
 
-from tests.servers import free_port, wait_for_port
+from tests.servers import free_port, loopback_only, wait_for_port
 
 from .rows import make_row, unavailable
 
@@ -159,14 +159,6 @@ class Server:
             except ProcessLookupError:
                 pass
         self.log.close()
-
-
-def loopback_only(route):
-    url = route.request.url
-    if url.startswith(("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:", "file:")):
-        route.continue_()
-    else:
-        route.abort()
 
 
 def cli(*args) -> list[str]:
