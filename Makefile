@@ -23,7 +23,7 @@ dashboard: $(VENV)/.installed
 
 test: $(VENV)/.installed-test
 	$(BIN)/ruff check .
-	$(BIN)/python -m pytest kernel_core widgets dashboards tests
+	$(BIN)/python -m pytest tests
 
 # Benchmarks: same-run ratios against references (tests/bench). QUICK=1 for a short run (< 2 min).
 bench: $(VENV)/.installed-test

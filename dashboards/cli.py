@@ -28,7 +28,7 @@ EPILOG = "Exit codes: 0 success, 1 failure (the message says why), 2 bad usage."
 
 
 def voila_command(notebook, port: int, ip: str = "127.0.0.1", **options) -> list[str]:
-    """The hardened standalone voila command line (see :mod:`dashboards.hardening`)."""
+    """The hardened standalone voila command line (see :mod:`levelwise.dashboards.hardening`)."""
     from .hardening import voila_command as hardened
 
     return hardened(notebook, port=port, ip=ip, **options)
@@ -66,7 +66,7 @@ def serve(args) -> int:
 
 
 def publish(args) -> int:
-    from kernel_core import LevelwiseError
+    from levelwise import LevelwiseError
 
     from .publish import publish as write_folder
 
@@ -95,7 +95,7 @@ def view(args) -> int:
 
 
 def export_html(args) -> int:
-    from kernel_core import LevelwiseError
+    from levelwise import LevelwiseError
 
     from .export_html import write_export
 

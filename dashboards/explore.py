@@ -1,8 +1,8 @@
 """Composition of the explore workbench (used by ``explore.ipynb``).
 
 The full workbench on one writable shared model: design builder, effects, effect sliders,
-surface slice, residual inspector, predictions and optimiser, each where :mod:`widgets`
-provides it. The study comes from :func:`dashboards.study_source.open_study` (the
+surface slice, residual inspector, predictions and optimiser, each where :mod:`levelwise.widgets`
+provides it. The study comes from :func:`levelwise.dashboards.study_source.open_study` (the
 ``LEVELWISE_STUDY`` environment variable that ``levelwise serve STUDY`` sets, else the demo).
 """
 
@@ -12,7 +12,7 @@ import html
 
 import ipywidgets as ipw
 
-from kernel_core import LevelwiseError
+from levelwise import LevelwiseError
 
 from ._compose import find_view
 from .present import unavailable

@@ -1,7 +1,7 @@
 """The offline single-file export: one HTML page that still computes, with no network and no Python.
 
 The page embeds, per response, exactly what the kernel's cached predictor holds
-(:class:`kernel_core.prediction.Predictor`): the exponent matrix, the coded coefficients,
+(:class:`levelwise.prediction.Predictor`): the exponent matrix, the coded coefficients,
 the coding centre and half-range, ``R^-1`` from the pivoted QR, ``s`` and the t quantile of
 the residual degrees of freedom. A small hand-written script evaluates, at the slider
 settings, the same formulas as the kernel::

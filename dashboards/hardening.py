@@ -33,7 +33,7 @@ from tornado import web
 V1_PROTOCOL = "v1.kernel.websocket.jupyter.org"
 
 #: Dotted path of the connection class, as voila's configuration wants it.
-CONNECTION_CLASS = "dashboards.hardening.V1OnlyWebsocketConnection"
+CONNECTION_CLASS = "levelwise.dashboards.hardening.V1OnlyWebsocketConnection"
 
 #: Seconds a kernel may sit idle (no message, no connection) before it is shut down.
 CULL_IDLE_TIMEOUT = 600

@@ -2,7 +2,7 @@
 
 The page shows one study, read-only: the study in words, the caution banner, the effect
 sliders with their traces, the surface slice, the predictions and the optimum, as far as
-those views exist in :mod:`widgets`. Read-only is enforced by the shared model in Python
+those views exist in :mod:`levelwise.widgets`. Read-only is enforced by the shared model in Python
 (``read_only=True``): nothing a browser sends can change the data, the models or the
 exclusions. The page carries no control that would try.
 """
@@ -14,7 +14,7 @@ import json
 
 import ipywidgets as ipw
 
-from kernel_core import LevelwiseError
+from levelwise import LevelwiseError
 
 from ._compose import find_view
 from .kernel_guard import silence_tracebacks

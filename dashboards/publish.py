@@ -1,7 +1,7 @@
 """Write a self-contained published dashboard folder.
 
 The folder holds exactly four files, nothing a viewer should not download and nothing the
-server would hand out (voila serves none of the folder's files; see :mod:`dashboards.hardening`):
+server would hand out (voila serves none of the folder's files; see :mod:`levelwise.dashboards.hardening`):
 
 - ``present.ipynb`` — the read-only stakeholder notebook (one import and one call);
 - ``study.json`` — the study it shows;
@@ -15,7 +15,7 @@ import json
 import shutil
 from pathlib import Path
 
-from kernel_core import LevelwiseError
+from levelwise import LevelwiseError
 
 from . import NOTEBOOKS
 from .hardening import voila_config
@@ -97,7 +97,7 @@ def publish(study, out) -> Path:
     elif str(study) == DEMO:
         raise LevelwiseError(
             "The demo study cannot be published by this installation: it has no study-file support "
-            "(kernel_core.study) to write it."
+            "(levelwise.study) to write it."
         )
     config = voila_config()
     (out / "voila.json").write_text(json.dumps(config, indent=2) + "\n", encoding="utf-8")

@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from kernel_core import LevelwiseError
+from levelwise import LevelwiseError
 
 #: Environment variable naming the study a dashboard shows.
 STUDY_ENV = "LEVELWISE_STUDY"
@@ -34,7 +34,7 @@ class StudySource:
     Attributes
     ----------
     title : str
-    factors : tuple of kernel_core.Factor
+    factors : tuple of levelwise.Factor
     data : pandas.DataFrame
         One row per run, natural units, factor and response columns.
     responses : tuple of str
@@ -45,7 +45,7 @@ class StudySource:
     invented : bool
         True for the demo: every view says the data is invented.
     study : object or None
-        The ``kernel_core`` Study read from a file, when there is one.
+        The ``levelwise`` Study read from a file, when there is one.
     path : pathlib.Path or None
     """
 
@@ -74,7 +74,7 @@ def locate(explicit=None, here=None) -> str | Path:
     return beside if beside.is_file() else DEMO
 
 
-#: The invented demo campaign's study file, written by ``python -m kernel_core.demo_campaign``.
+#: The invented demo campaign's study file, written by ``python -m levelwise.demo_campaign``.
 DEMO_FILE = Path(__file__).parent / "data" / "demo_campaign.json"
 
 
@@ -84,14 +84,14 @@ def demo_source() -> StudySource:
 
 
 def demo_study():
-    """The invented demo campaign as a ``kernel_core`` Study, read from the shipped file."""
-    from kernel_core.study import Study
+    """The invented demo campaign as a ``levelwise`` Study, read from the shipped file."""
+    from levelwise.study import Study
 
     return Study.load(DEMO_FILE)
 
 
 def from_study(study, *, invented=False, path=None) -> StudySource:
-    """A :class:`StudySource` over a ``kernel_core.study.Study``."""
+    """A :class:`StudySource` over a ``levelwise.study.Study``."""
     responses = study.responses
     exclusions = study.exclusions
     return StudySource(
@@ -127,14 +127,14 @@ def open_study(source=None) -> StudySource:
     path = Path(where)
     if not path.is_file():
         raise LevelwiseError(f"The study file {str(path)!r} does not exist. Give a study JSON file or 'demo'.")
-    from kernel_core.study import Study
+    from levelwise.study import Study
 
     return from_study(Study.load(path), path=path)
 
 
 def shared_model(source: StudySource, *, read_only: bool, response: str | None = None):
     """The widgets' :class:`SharedModel` over *source* (read-only for stakeholders)."""
-    from widgets import SharedModel
+    from levelwise.widgets import SharedModel
 
     if source.study is not None:
         return SharedModel.from_study(source.study, read_only=read_only, response=response)

@@ -5,6 +5,7 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
+from ._version import __version__
 from .boxcox import BoxCoxResult, box_cox
 from .design import Design, full_factorial
 from .effects import LenthResult, effects, half_normal, lenth
@@ -27,6 +28,7 @@ from .reduce import Reduction, reduce, refit
 from .surface import slice_grid, slice_polynomials
 
 __all__ = [
+    "__version__",
     "Design",
     "Factor",
     "Fit",

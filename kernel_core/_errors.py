@@ -1,9 +1,9 @@
-"""Exception and warning types raised by kernel_core.
+"""Exception and warning types raised by levelwise.
 
 Every error that bad input can cause is a :class:`LevelwiseError` (a
 ``ValueError``), whose message names the field, says what is allowed and echoes
 what arrived. Callers (the widgets, the CLI) catch this one type and show the
-message; anything else escaping kernel_core is a bug.
+message; anything else escaping levelwise is a bug.
 """
 
 from __future__ import annotations

@@ -1,4 +1,4 @@
-"""Analysis of variance for a :class:`~kernel_core.fit.Fit`.
+"""Analysis of variance for a :class:`~levelwise.fit.Fit`.
 
 Term sums of squares are *partial* and respect hierarchy (often called "type II"):
 a term is tested after every other term except those that contain it, where a

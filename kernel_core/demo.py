@@ -2,7 +2,7 @@
 
 Every number here is invented for demonstration. The responses are generated from
 the stated invented true model below plus seeded normal noise; they describe no
-real process, coating or oven. Run ``python -m kernel_core.demo`` to print the table.
+real process, coating or oven. Run ``python -m levelwise.demo`` to print the table.
 """
 
 from __future__ import annotations

@@ -21,7 +21,7 @@ Responses: impact resistance (J, maximise), 60° gloss (gloss units, on target a
 yellowness index (minimise). The study's models are quadratic in Oven, Dwell and Film, linear in
 the other three factors.
 
-Run ``python -m kernel_core.demo_campaign PATH`` to write the study file. The file shipped with
+Run ``python -m levelwise.demo_campaign PATH`` to write the study file. The file shipped with
 levelwise (``dashboards/data/demo_campaign.json``) is exactly what this writes; a test checks it.
 """
 
@@ -127,7 +127,7 @@ def _record(study, rng, run: int, skip=()) -> None:
 
 
 def campaign_study():
-    """Build the invented campaign as a :class:`kernel_core.study.Study` (deterministic)."""
+    """Build the invented campaign as a :class:`levelwise.study.Study` (deterministic)."""
     from .study import Study
 
     rng = np.random.default_rng(SEED)
@@ -194,6 +194,6 @@ def write(path) -> None:
 
 if __name__ == "__main__":  # pragma: no cover - the command-line entry point
     if len(sys.argv) != 2:
-        print("usage: python -m kernel_core.demo_campaign PATH", file=sys.stderr)
+        print("usage: python -m levelwise.demo_campaign PATH", file=sys.stderr)
         sys.exit(2)
     write(sys.argv[1])

@@ -142,7 +142,7 @@ class Design:
         if self._structure is None:
             raise LevelwiseError(
                 f"'{what}' is defined for regular two-level designs only; this is a {self.kind} design. "
-                "Use kernel_core.evaluate(design, model) for its alias matrix."
+                "Use levelwise.evaluate(design, model) for its alias matrix."
             )
         return self._structure
 
@@ -178,7 +178,7 @@ class Design:
 
         Examples
         --------
-        >>> from kernel_core import fractional_factorial
+        >>> from levelwise import fractional_factorial
         >>> d = fractional_factorial(3, generators=["C=AB"], randomize=False)
         >>> d.aliases(max_order=2)["A"]
         ['BC']
@@ -189,7 +189,7 @@ class Design:
     def to_run_sheet(self, responses=("y",)) -> pd.DataFrame:
         """Run sheet in run order: planned settings, blank achieved-setting and response columns.
 
-        See :func:`kernel_core.runsheet.run_sheet`.
+        See :func:`levelwise.runsheet.run_sheet`.
         """
         from .runsheet import run_sheet
 

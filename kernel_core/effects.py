@@ -50,7 +50,7 @@ def effects(fit) -> pd.Series:
     Examples
     --------
     >>> import pandas as pd
-    >>> from kernel_core import fit
+    >>> from levelwise import fit
     >>> d = pd.DataFrame({"A": [-1, 1, -1, 1], "B": [-1, -1, 1, 1], "y": [1.0, 3.0, 2.0, 4.5]})
     >>> effects(fit(d, "y", "A + B")).round(3).to_dict()
     {'A': 2.25, 'B': 1.25}

@@ -4,7 +4,7 @@ The per-factor traces come from :meth:`Fit.trace` (the mean with the confidence 
 mean, dark and solid, and the prediction band for one new run, light and dashed), the residual
 plot from ``Fit.fitted`` and ``Fit.residuals``. Browser-side saving of bqplot figures is
 unreliable, so exports are drawn here with matplotlib's Agg renderer. matplotlib is imported
-inside the functions: importing ``kernel_core`` stays lean.
+inside the functions: importing ``levelwise`` stays lean.
 """
 
 from __future__ import annotations

@@ -215,7 +215,7 @@ class Fit:
 
     @property
     def settings(self) -> np.ndarray:
-        """Same as :attr:`run_settings` (``kernel_core.reduce.refit`` reads this name)."""
+        """Same as :attr:`run_settings` (``levelwise.reduce.refit`` reads this name)."""
         return self.run_settings
 
     def _replace(self, **changes) -> Fit:
@@ -435,7 +435,7 @@ class Fit:
     @cached_property
     def anova(self) -> pd.DataFrame:
         """ANOVA table: model, each term (partial SS respecting hierarchy), residual split into
-        curvature, lack of fit and pure error when the runs allow it. See :mod:`kernel_core.anova`."""
+        curvature, lack of fit and pure error when the runs allow it. See :mod:`levelwise.anova`."""
         from .anova import anova_table
 
         return anova_table(
@@ -462,7 +462,7 @@ class Fit:
 
     @cached_property
     def diagnostics(self) -> pd.DataFrame:
-        """Per-run diagnostics in closed form (see :mod:`kernel_core.diagnostics`)."""
+        """Per-run diagnostics in closed form (see :mod:`levelwise.diagnostics`)."""
         from .diagnostics import influence_table
 
         return influence_table(self.X, self.beta, self.residuals, self.rinv, self.runs, self.terms)
@@ -932,31 +932,31 @@ class Fit:
     # ----- delegations to the analysis modules (imported lazily) ------------------------------
     @property
     def effects(self):
-        """Effects (2 x coded coefficient for two-level terms); see :mod:`kernel_core.effects`."""
+        """Effects (2 x coded coefficient for two-level terms); see :mod:`levelwise.effects`."""
         from .effects import effects
 
         return effects(self)
 
     def lenth(self, alpha: float = 0.05):
-        """Lenth's (1989) PSE, ME, SME and the active effects; see :mod:`kernel_core.effects`."""
+        """Lenth's (1989) PSE, ME, SME and the active effects; see :mod:`levelwise.effects`."""
         from .effects import lenth
 
         return lenth(self, alpha)
 
     def half_normal(self):
-        """Half-normal plot coordinates of the effects; see :mod:`kernel_core.effects`."""
+        """Half-normal plot coordinates of the effects; see :mod:`levelwise.effects`."""
         from .effects import half_normal
 
         return half_normal(self)
 
     def slice(self, x, y, settings, shape=(100, 100), level=None):
-        """Surface-slice grids of mean and CI/PI half-widths; see :mod:`kernel_core.surface`."""
+        """Surface-slice grids of mean and CI/PI half-widths; see :mod:`levelwise.surface`."""
         from .surface import slice_grid
 
         return slice_grid(self, x, y, settings, shape, level)
 
     def box_cox(self):
-        """Box–Cox λ with a 95% CI and a suggestion; see :mod:`kernel_core.boxcox`."""
+        """Box–Cox λ with a 95% CI and a suggestion; see :mod:`levelwise.boxcox`."""
         from .boxcox import box_cox
 
         return box_cox(self)

@@ -329,7 +329,7 @@ def fractional_factorial(
         Minimum resolution wanted. With *runs*, an error if no fraction of that size reaches it; without *runs*,
         the smallest run count that reaches it.
     center_points, replicates, blocks, randomize, seed
-        As in :func:`kernel_core.full_factorial`.
+        As in :func:`levelwise.full_factorial`.
 
     Returns
     -------

@@ -32,7 +32,7 @@ def fit_responses(data, models: dict, factors=None, **options) -> dict:
     factors : list of Factor, optional
         Shared coding ranges.
     **options
-        Passed on to :func:`kernel_core.fit.fit` (``coding``, ``level``).
+        Passed on to :func:`levelwise.fit.fit` (``coding``, ``level``).
 
     Returns
     -------

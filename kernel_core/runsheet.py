@@ -48,7 +48,7 @@ def run_sheet(design: Design, responses=("y",)) -> pd.DataFrame:
 
     Examples
     --------
-    >>> from kernel_core import full_factorial
+    >>> from levelwise import full_factorial
     >>> list(run_sheet(full_factorial(2, randomize=False), responses=["yield"]).columns)
     ['run', 'std_order', 'block', 'point_type', 'A', 'B', 'A (achieved)', 'B (achieved)', 'yield']
     """

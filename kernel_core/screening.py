@@ -53,7 +53,7 @@ def plackett_burman(factors, runs=None, center_points=0, randomize=True, seed=No
     -------
     Design
         Not a regular fraction: main effects are partially aliased with two-factor interactions (use
-        :func:`kernel_core.evaluate` for the alias matrix).
+        :func:`levelwise.evaluate` for the alias matrix).
 
     Examples
     --------

@@ -211,7 +211,7 @@ def _reject_constant(name):
 
 
 def _schema() -> dict:
-    text = resources.files("kernel_core").joinpath("study_schema.json").read_text(encoding="utf-8")
+    text = resources.files("levelwise").joinpath("study_schema.json").read_text(encoding="utf-8")
     return json.loads(text)
 
 
@@ -390,7 +390,7 @@ class Study:
 
     Examples
     --------
-    >>> from kernel_core import Factor, full_factorial
+    >>> from levelwise import Factor, full_factorial
     >>> s = Study([Factor("A", 0, 1), Factor("B", 10, 20, "min")], title="demo")
     >>> s.add_stage("screen", full_factorial(s.factors, randomize=False))
     [1, 2, 3, 4]
@@ -545,7 +545,7 @@ class Study:
         name : str
             Unique stage name, e.g. ``"screen"``, ``"fold-over"``, ``"surface"``.
         design : Design or pandas.DataFrame
-            A :class:`~kernel_core.design.Design` or a table with one column per study factor
+            A :class:`~levelwise.design.Design` or a table with one column per study factor
             (natural units) and optionally ``block``, ``std_order`` and ``point_type``.
 
         Returns
@@ -838,7 +838,7 @@ class Study:
         return fit(self.data(), response, model, factors=list(self._factors), level=level)
 
     def fits(self, *, level: float = 0.95) -> dict:
-        """A :class:`~kernel_core.fit.Fit` for every response that has a model."""
+        """A :class:`~levelwise.fit.Fit` for every response that has a model."""
         return {response: self.fit(response, level=level) for response in self._responses if response in self._models}
 
     # ----- the file --------------------------------------------------------------------------
@@ -1114,8 +1114,8 @@ class Study:
         path = str(path) if path is not None else "study.json"
         lines = [
             "# Rebuilds the analysis of this study from its file.",
-            "from kernel_core import Factor, fit",
-            "from kernel_core.study import Study",
+            "from levelwise import Factor, fit",
+            "from levelwise.study import Study",
             "",
             f"study = Study.load({path!r})",
             "factors = [",

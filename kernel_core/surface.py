@@ -212,7 +212,7 @@ def slice_grid(fit, x: str, y: str, settings=None, shape=(100, 100), level: floa
     Examples
     --------
     >>> import pandas as pd
-    >>> from kernel_core import fit
+    >>> from levelwise import fit
     >>> d = pd.DataFrame({"A": [-1, 1, -1, 1, 0], "B": [-1, -1, 1, 1, 0], "y": [1.0, 3.0, 2.0, 4.5, 2.4]})
     >>> grid = slice_grid(fit(d, "y", "A + B"), "A", "B", shape=(3, 2))
     >>> grid["mean"].shape

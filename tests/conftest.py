@@ -67,7 +67,7 @@ def served_workbench(chromium_path):
     """``levelwise serve`` on a free loopback port; yields the base URL."""
     port = free_port()
     proc = subprocess.Popen(
-        [sys.executable, "-m", "dashboards.cli", "serve", "--port", str(port)],
+        [sys.executable, "-m", "levelwise.dashboards.cli", "serve", "--port", str(port)],
         stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True,
     )
     try:
@@ -121,9 +121,9 @@ class ServerOutput:
 
 
 def start_cli_server(args: list[str], port: int, env: dict | None = None):
-    """Start ``python -m dashboards.cli ARGS --port PORT``; returns (process, output) once it listens."""
+    """Start ``python -m levelwise.dashboards.cli ARGS --port PORT``; returns (process, output) once it listens."""
     proc = subprocess.Popen(
-        [sys.executable, "-m", "dashboards.cli", *args, "--port", str(port)],
+        [sys.executable, "-m", "levelwise.dashboards.cli", *args, "--port", str(port)],
         stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True, env=env,
     )
     output = ServerOutput(proc)
@@ -176,7 +176,7 @@ def wait_until_children_idle(pid: int, quiet: float = 1.5, timeout: float = 90.0
 @pytest.fixture(scope="module")
 def published_dir(tmp_path_factory):
     """A folder written by ``levelwise publish demo``."""
-    from dashboards.cli import main
+    from levelwise.dashboards.cli import main
 
     out = tmp_path_factory.mktemp("published") / "dashboard"
     assert main(["publish", "demo", "--out", str(out)]) == 0

@@ -1,4 +1,4 @@
-"""Brute-force checks used by the design tests, written independently of kernel_core's GF(2) code."""
+"""Brute-force checks used by the design tests, written independently of levelwise's GF(2) code."""
 
 import numpy as np
 

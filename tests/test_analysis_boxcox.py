@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from kernel_core import LevelwiseError, box_cox, fit
+from levelwise import LevelwiseError, box_cox, fit
 
 
 def test_intercept_only_model_matches_scipy():

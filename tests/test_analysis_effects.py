@@ -11,7 +11,7 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from kernel_core import Factor, LevelwiseError, effects, fit, half_normal, lenth
+from levelwise import Factor, LevelwiseError, effects, fit, half_normal, lenth
 
 CODED = [Factor(name, -1, 1) for name in ("X1", "X2", "X3")]
 
@@ -29,7 +29,7 @@ def eddy(data_dir):
 
 
 def lenth_by_hand(values, alpha=0.05):
-    """Lenth (1989) formulas, written out independently of kernel_core."""
+    """Lenth (1989) formulas, written out independently of levelwise."""
     c = np.abs(np.asarray(values, dtype=float))
     m = len(c)
     s0 = 1.5 * np.median(c)  # Lenth 1989: s0 = 1.5 median|c_j|

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kernel_core import (
+from levelwise import (
     Factor,
     LevelwiseError,
     fit,

@@ -7,7 +7,7 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from kernel_core import Factor, LevelwiseError, fit, reduce, refit
+from levelwise import Factor, LevelwiseError, fit, reduce, refit
 
 CODED = [Factor(name, -1, 1) for name in ("X1", "X2", "X3")]
 

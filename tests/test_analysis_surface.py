@@ -1,6 +1,6 @@
 """Surface slices by exact separable polynomial evaluation, against point predictions and statsmodels.
 
-References: kernel_core's own point predictor (``Fit.predict``, itself checked against statsmodels elsewhere) and
+References: levelwise's own point predictor (``Fit.predict``, itself checked against statsmodels elsewhere) and
 statsmodels ``OLS.get_prediction`` (reference library) on a model written in natural units.
 """
 
@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 import statsmodels.formula.api as smf
 
-from kernel_core import Factor, LevelwiseError, fit, slice_grid, slice_polynomials
+from levelwise import Factor, LevelwiseError, fit, slice_grid, slice_polynomials
 
 NAMES = ["x1", "x2", "x3", "x4", "x5"]
 

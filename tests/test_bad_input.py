@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kernel_core import Factor, LevelwiseError, fit, full_factorial, parse_model
+from levelwise import Factor, LevelwiseError, fit, full_factorial, parse_model
 
 
 def small_data():

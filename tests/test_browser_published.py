@@ -16,8 +16,8 @@ import websocket
 from conftest import ARTIFACTS, SCREENSHOTS
 from kernel_ws import KernelClient
 
-from dashboards.study_source import open_study
-from widgets.style import fmt
+from levelwise.dashboards.study_source import open_study
+from levelwise.widgets.style import fmt
 
 pytestmark = pytest.mark.browser
 
@@ -75,7 +75,7 @@ def test_renders_read_only_with_caution_and_summary(opened):
     assert "Invented data" in text
     assert re.search(r"Study fingerprint [0-9a-f]{16}", text)
     assert "Traceback" not in page.content()
-    assert "from dashboards.present import build" not in page.content()  # sources stripped
+    assert "from levelwise.dashboards.present import build" not in page.content()  # sources stripped
     for selector in MUTATING_SELECTORS:
         assert page.locator(selector).count() == 0, selector
     # Report (not assert) the first view with a preheated kernel.

@@ -8,8 +8,8 @@ import re
 import pytest
 from conftest import SCREENSHOTS, loopback_only
 
-from dashboards.study_source import open_study
-from widgets.style import fmt
+from levelwise.dashboards.study_source import open_study
+from levelwise.widgets.style import fmt
 
 pytestmark = pytest.mark.browser
 
@@ -96,7 +96,7 @@ def test_excluding_a_run_changes_the_coefficients(workbench, study):
     workbench.locator(".lw-exclude-reason input").first.fill("powder batch mix-up noted by the operator")
     workbench.locator("button.lw-exclude").first.click()
     data = study.data().drop(index=run)
-    from kernel_core import fit
+    from levelwise import fit
 
     refit = fit(data, "Impact", study.models["Impact"], factors=list(study.factors))  # the kernel's refit, made here
     expected = fmt(float(refit.coefficients.loc["Intercept", "estimate"]), 4)

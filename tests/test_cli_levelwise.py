@@ -12,15 +12,16 @@ import urllib.request
 
 import pytest
 
-from dashboards import cli
-from dashboards.hardening import CONNECTION_CLASS, THREAD_ENV, offered_subprotocols, server_env, voila_config
-from dashboards.publish import PUBLISHED_FILES
+from levelwise.dashboards import cli
+from levelwise.dashboards.hardening import CONNECTION_CLASS, THREAD_ENV, offered_subprotocols, server_env, voila_config
+from levelwise.dashboards.publish import PUBLISHED_FILES
 
 COMMANDS = ["serve", "publish", "view", "export-html"]
 
 
 def run_cli(*args):
-    return subprocess.run([sys.executable, "-m", "dashboards.cli", *args], capture_output=True, text=True, timeout=60)
+    command = [sys.executable, "-m", "levelwise.dashboards.cli", *args]
+    return subprocess.run(command, capture_output=True, text=True, timeout=60)
 
 
 @pytest.mark.parametrize("command", [None, *COMMANDS])
@@ -51,7 +52,7 @@ def test_publish_writes_exactly_the_four_files(tmp_path, capsys):
     notebook = json.loads((out / "present.ipynb").read_text())
     code = [c for c in notebook["cells"] if c["cell_type"] == "code"]
     assert len(code) == 1 and "".join(code[0]["source"]).count("\n") <= 2  # one import and one call
-    from kernel_core.study import Study
+    from levelwise.study import Study
 
     assert Study.load(out / "study.json").title == Study.load(cli.NOTEBOOKS / "data" / "demo_campaign.json").title
 
@@ -133,7 +134,7 @@ def test_one_blas_thread_per_kernel():
 def test_the_connection_class_is_importable_and_subclasses_jupyter_servers():
     from jupyter_server.services.kernels.connection.channels import ZMQChannelsWebsocketConnection
 
-    from dashboards.hardening import V1OnlyWebsocketConnection
+    from levelwise.dashboards.hardening import V1OnlyWebsocketConnection
 
     assert issubclass(V1OnlyWebsocketConnection, ZMQChannelsWebsocketConnection)
     assert offered_subprotocols("v1.kernel.websocket.jupyter.org,  x ") == ["v1.kernel.websocket.jupyter.org", "x"]

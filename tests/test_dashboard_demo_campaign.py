@@ -7,10 +7,10 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from dashboards.study_source import DEMO_FILE, open_study
-from kernel_core import LevelwiseError, fit
-from kernel_core import demo_campaign as campaign
-from kernel_core.study import Study
+from levelwise import LevelwiseError, fit
+from levelwise import demo_campaign as campaign
+from levelwise.dashboards.study_source import DEMO_FILE, open_study
+from levelwise.study import Study
 
 
 @pytest.fixture(scope="module")

@@ -5,11 +5,11 @@ from __future__ import annotations
 import ipywidgets as ipw
 import pytest
 
-from dashboards import explore, present
-from dashboards.study_source import DEMO, STUDY_ENV, locate, open_study
-from dashboards.summary import CAUTION, fingerprint
-from kernel_core import LevelwiseError
-from widgets import ReadOnlyError
+from levelwise import LevelwiseError
+from levelwise.dashboards import explore, present
+from levelwise.dashboards.study_source import DEMO, STUDY_ENV, locate, open_study
+from levelwise.dashboards.summary import CAUTION, fingerprint
+from levelwise.widgets import ReadOnlyError
 
 #: Widget types that edit something: none may appear on the stakeholder page.
 EDITORS = (ipw.Text, ipw.Textarea, ipw.FloatText, ipw.IntText, ipw.Checkbox, ipw.FileUpload, ipw.BoundedFloatText)

@@ -2,8 +2,8 @@
 
 import pytest
 
-from kernel_core import Factor, LevelwiseError, full_factorial
-from kernel_core.factors import as_factors, default_names
+from levelwise import Factor, LevelwiseError, full_factorial
+from levelwise.factors import as_factors, default_names
 
 
 def test_continuous_factor_unchanged():

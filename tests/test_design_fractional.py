@@ -7,8 +7,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kernel_core import LevelwiseError, fold_over, fractional_factorial, full_factorial
-from kernel_core.factors import default_names
+from levelwise import LevelwiseError, fold_over, fractional_factorial, full_factorial
+from levelwise.factors import default_names
 from tests.design_helpers import brute_force_wlp, factorial_part
 
 DATA = Path(__file__).parent / "data"
@@ -76,7 +76,7 @@ def test_given_generators_and_aliases():
 
 
 def test_named_factor_generators():
-    from kernel_core import Factor
+    from levelwise import Factor
 
     fs = [Factor("Oven", 0, 1), Factor("Dwell", 0, 1), Factor("Film", 0, 1)]
     d = fractional_factorial(fs, generators=["Film=Oven:Dwell"], randomize=False)
@@ -201,7 +201,7 @@ def test_blocks_reach_highest_orders():
 
 
 def test_search_is_bounded_and_keeps_a_valid_design():
-    from kernel_core.fractional import minimum_aberration
+    from levelwise.fractional import minimum_aberration
 
     # A 2^(17-11) search cut short by a tiny node budget still returns a design, flagged incomplete; the
     # odd-weight incumbent has resolution IV (all words of even length: a counting argument, common practice).

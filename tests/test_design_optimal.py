@@ -5,7 +5,7 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from kernel_core import (
+from levelwise import (
     Factor,
     LevelwiseError,
     evaluate,

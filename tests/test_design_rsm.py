@@ -7,9 +7,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kernel_core import LevelwiseError, box_behnken, central_composite, parse_model, plackett_burman
-from kernel_core.rsm_designs import BB_GROUPS
-from kernel_core.screening import plackett_burman_matrix
+from levelwise import LevelwiseError, box_behnken, central_composite, parse_model, plackett_burman
+from levelwise.rsm_designs import BB_GROUPS
+from levelwise.screening import plackett_burman_matrix
 
 DATA = Path(__file__).parent / "data"
 
@@ -110,6 +110,6 @@ def test_box_behnken_bad_k():
     with pytest.raises(LevelwiseError, match="box_behnken handles 3 to 7 factors. Got 2"):
         box_behnken(2)
     with pytest.raises(LevelwiseError, match="continuous"):
-        from kernel_core import Factor
+        from levelwise import Factor
 
         box_behnken([Factor("A", 0, 1), Factor("B", 0, 1), Factor("M", levels=["x", "y"])])

@@ -5,7 +5,7 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from kernel_core import (
+from levelwise import (
     Factor,
     LevelwiseError,
     LevelwiseWarning,

@@ -1,4 +1,4 @@
-"""kernel_core against the NIST/SEMATECH e-Handbook, section 5.6.1 (eddy-current probe 2^3 factorial).
+"""levelwise against the NIST/SEMATECH e-Handbook, section 5.6.1 (eddy-current probe 2^3 factorial).
 
 Every expected value below is as published in the e-Handbook, section 5.6.1 "Eddy Current Probe
 Sensitivity Case Study" (data file SPLETT3, vendored in tests/data with its source line).
@@ -7,7 +7,7 @@ Sensitivity Case Study" (data file SPLETT3, vendored in tests/data with its sour
 import pandas as pd
 import pytest
 
-from kernel_core import Factor, fit
+from levelwise import Factor, fit
 
 CODED = [Factor(name, -1, 1) for name in ("X1", "X2", "X3")]
 

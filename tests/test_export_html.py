@@ -10,9 +10,9 @@ import numpy as np
 import pytest
 from conftest import SCREENSHOTS
 
-from dashboards.cli import main
-from dashboards.export_html import write_export
-from dashboards.study_source import open_study
+from levelwise.dashboards.cli import main
+from levelwise.dashboards.export_html import write_export
+from levelwise.dashboards.study_source import open_study
 
 
 @pytest.fixture(scope="module")
@@ -112,8 +112,8 @@ def test_export_computes_offline_like_the_kernel(export_file, browser):
 
 def test_export_of_a_saturated_fit_says_not_available(tmp_path):
     """A fit with no residual degrees of freedom has no s: the page gets null, never NaN (invalid JSON)."""
-    from kernel_core import Factor, full_factorial
-    from kernel_core.study import Study
+    from levelwise import Factor, full_factorial
+    from levelwise.study import Study
 
     study = Study([Factor("A", 0, 1), Factor("B", 10, 20, "min")], title="saturated (invented)")
     study.add_stage("screen", full_factorial(study.factors, randomize=False))

@@ -1,4 +1,4 @@
-"""kernel_core.fit: aliasing named, achieved settings, missing responses, saturated fits, categorical factors,
+"""levelwise.fit: aliasing named, achieved settings, missing responses, saturated fits, categorical factors,
 natural-unit coefficients and bad input. Each expected value names its source beside it."""
 
 import itertools
@@ -10,7 +10,7 @@ import pytest
 import statsmodels.api as sm
 import statsmodels.formula.api as smf
 
-from kernel_core import Factor, LevelwiseError, LevelwiseWarning, fit, full_factorial
+from levelwise import Factor, LevelwiseError, LevelwiseWarning, fit, full_factorial
 
 CODED5 = [Factor(name, -1, 1) for name in "ABCDE"]
 
@@ -343,8 +343,8 @@ def test_balanced_categorical_design_counts_as_orthogonal():
 
 
 def test_refit_on_fewer_terms_keeps_the_achieved_settings():
-    # kernel_core.reduce.refit reads Fit.settings: the settings actually used (achieved where recorded).
-    from kernel_core.reduce import refit
+    # levelwise.reduce.refit reads Fit.settings: the settings actually used (achieved where recorded).
+    from levelwise.reduce import refit
 
     data = planned_design()
     data["A (achieved)"] = data["A"] + np.linspace(-0.4, 0.4, len(data))
@@ -387,8 +387,8 @@ def test_traces_of_all_factors_equal_single_traces():
 
 
 def test_fit_reads_the_achieved_columns_of_a_run_sheet():
-    # kernel_core.runsheet writes "<factor> (achieved)" columns, blank = as planned: the convention fit() reads.
-    from kernel_core.runsheet import run_sheet
+    # levelwise.runsheet writes "<factor> (achieved)" columns, blank = as planned: the convention fit() reads.
+    from levelwise.runsheet import run_sheet
 
     design = full_factorial(FACTORS3, center_points=2, seed=4)
     sheet = run_sheet(design, responses=["y"])

@@ -1,4 +1,4 @@
-"""kernel_core.fit against the NIST StRD linear least-squares certified values.
+"""levelwise.fit against the NIST StRD linear least-squares certified values.
 
 Every expected value is read from the vendored certified file (NIST Statistical Reference Datasets, "Linear
 Least Squares Regression", itl.nist.gov/div898/strd/lls/lls.shtml; see tests/data/SOURCES.md). The yardstick
@@ -14,7 +14,7 @@ import math
 import pandas as pd
 import pytest
 
-from kernel_core import fit
+from levelwise import fit
 
 SETS = ["Norris", "Pontius", "NoInt1", "NoInt2", "Longley", "Wampler1", "Wampler2"]
 REQUIRED_LRE = 9.0  # issue 4 acceptance: LRE >= 9 on every certified value

@@ -1,4 +1,4 @@
-"""kernel_core.fit diagnostics, ANOVA, lack of fit and exclusions against statsmodels (a reference library).
+"""levelwise.fit diagnostics, ANOVA, lack of fit and exclusions against statsmodels (a reference library).
 
 Every expected value comes from statsmodels 0.15 (OLS, OLSInfluence, anova_lm, get_prediction), except the
 lack-of-fit F, which is computed here by hand from the replicate groups (textbook formula, common practice):
@@ -16,7 +16,7 @@ from scipy import stats
 from statsmodels.stats.anova import anova_lm
 from statsmodels.stats.outliers_influence import OLSInfluence, variance_inflation_factor
 
-from kernel_core import Factor, LevelwiseError, fit, full_factorial
+from levelwise import Factor, LevelwiseError, fit, full_factorial
 
 FACTORS = [Factor("A", 10, 30, "°C"), Factor("B", 0.5, 2.5, "bar"), Factor("C", 100, 300, "rpm")]
 TERMS = ["A", "B", "C", "A:B", "A:C", "B:C"]

@@ -14,8 +14,8 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from kernel_core import Factor, LevelwiseError, fit
-from kernel_core.surface import evaluate_polynomials, slice_polynomials
+from levelwise import Factor, LevelwiseError, fit
+from levelwise.surface import evaluate_polynomials, slice_polynomials
 
 FACTORS = [Factor("A", 10, 30), Factor("B", 0.5, 2.5), Factor("C", 100, 300), Factor("D", -5, 5),
            Factor("E", 1, 2)]

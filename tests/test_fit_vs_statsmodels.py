@@ -1,11 +1,11 @@
-"""kernel_core fits against statsmodels OLS (a general-purpose reference library) on random designs."""
+"""levelwise fits against statsmodels OLS (a general-purpose reference library) on random designs."""
 
 import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
 
-from kernel_core import Factor, fit, full_factorial
+from levelwise import Factor, fit, full_factorial
 
 
 @pytest.fixture(scope="module", params=[0, 1, 2])

@@ -8,8 +8,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kernel_core import Factor, ImportDataError, LevelwiseError, Study, StudyFileError, full_factorial
-from kernel_core.exchange import import_table
+from levelwise import Factor, ImportDataError, LevelwiseError, Study, StudyFileError, full_factorial
+from levelwise.exchange import import_table
 
 FACTORS = [Factor("Oven", 170, 210, "°C"), Factor("Dwell", 8, 16, "min")]
 

@@ -9,8 +9,8 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from kernel_core import Factor, ImportDataError, Study, full_factorial
-from kernel_core.exchange import (
+from levelwise import Factor, ImportDataError, Study, full_factorial
+from levelwise.exchange import (
     anova_table,
     coefficient_table,
     export_anova,
@@ -236,7 +236,7 @@ def test_header_units_and_guessed_mapping():
 
 
 def demo_fit():
-    from kernel_core import demo
+    from levelwise import demo
 
     study = Study(list(demo.FACTORS))
     study.add_stage("screen", demo.demo_design())
@@ -287,7 +287,7 @@ def test_table_exports_read_back(tmp_path):
 
 
 def test_figures_draw_the_arrays_the_views_use(tmp_path):
-    from kernel_core.figures import figure_bytes, residual_figure, save_figure, trace_figure
+    from levelwise.figures import figure_bytes, residual_figure, save_figure, trace_figure
 
     _, fit = demo_fit()
     settings = {"Oven": 190.0, "Dwell": 12.0, "Film": 70.0, "Catalyst": 1.0}
@@ -319,21 +319,21 @@ def test_matplotlib_and_jsonschema_are_imported_only_when_used():
     import subprocess
     import sys
 
-    code = ("import sys, kernel_core, kernel_core.study, kernel_core.exchange, kernel_core.figures\n"
+    code = ("import sys, levelwise, levelwise.study, levelwise.exchange, levelwise.figures\n"
             "print(sorted(m for m in ('matplotlib', 'jsonschema', 'openpyxl') if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
 
 
 def test_a_filled_design_run_sheet_imports_into_the_study(tmp_path):
-    from kernel_core.runsheet import run_sheet as design_run_sheet
+    from levelwise.runsheet import run_sheet as design_run_sheet
 
     design = full_factorial(FACTORS, center_points=2, randomize=False)
     study = Study(FACTORS)
     study.add_stage("screen", design)
     study.add_response("Impact", units="J")
     sheet = design_run_sheet(design, responses=["Impact"])
-    assert "Oven (achieved)" in sheet.columns  # the run-sheet convention of kernel_core.runsheet
+    assert "Oven (achieved)" in sheet.columns  # the run-sheet convention of levelwise.runsheet
     sheet.loc[1, "Oven (achieved)"] = 212.5  # invented
     sheet["Impact"] = [7.0, 9.5, 8.25, 10.0, 9.0, 9.1]  # invented
     path = tmp_path / "filled.csv"
@@ -347,7 +347,7 @@ def test_a_filled_design_run_sheet_imports_into_the_study(tmp_path):
 
 
 def test_parse_header_forms():
-    from kernel_core.exchange import parse_header
+    from levelwise.exchange import parse_header
 
     assert parse_header("Oven (achieved) [°C]") == ("Oven", "°C", True)
     assert parse_header("Oven (Achieved)") == ("Oven", None, True)

@@ -1,5 +1,5 @@
 """Fuzzing with hypothesis: over 10,000 generated inputs to the CSV and XLSX imports, the study-file
-reader and the public kernel_core entry points (Factor, full_factorial, fit, parse_model, predict).
+reader and the public levelwise entry points (Factor, full_factorial, fit, parse_model, predict).
 
 Every failure must be a LevelwiseError (or a documented subclass) whose message names what was wrong;
 any other exception type fails the test, and an alarm per case catches hangs. The runs are
@@ -24,9 +24,9 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from kernel_core import Factor, LevelwiseError, Study, fit, full_factorial, parse_model
-from kernel_core.exchange import import_table
-from kernel_core.study import content_hash
+from levelwise import Factor, LevelwiseError, Study, fit, full_factorial, parse_model
+from levelwise.exchange import import_table
+from levelwise.study import content_hash
 
 RANDOM = os.environ.get("LEVELWISE_FUZZ_RANDOM") == "1"
 COUNTS: dict[str, int] = {}
@@ -244,7 +244,7 @@ def test_fuzz_study_file_load(text, accept):
             call("study_file", study.fit, response)
 
 
-# ----- kernel_core entry points ----------------------------------------------------------------
+# ----- levelwise entry points ----------------------------------------------------------------
 FACTOR_NAMES = ["A", "B", "C", "I", "Q", "x y", "Température", "f0", "Intercept"]
 formula_tokens = st.sampled_from(
     FACTOR_NAMES + ["+", "-", "*", ":", "**", "(", ")", "I(", "C(", "`", "~", "1", "0", "2", "-1", " ", "^",

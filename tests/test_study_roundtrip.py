@@ -11,8 +11,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kernel_core import Factor, LevelwiseError, OutsideEditError, Study, full_factorial
-from kernel_core.study import FORMAT_VERSION, content_hash
+from levelwise import Factor, LevelwiseError, OutsideEditError, Study, full_factorial
+from levelwise.study import FORMAT_VERSION, content_hash
 
 FACTORS = [Factor("Oven", 170, 210, "°C"), Factor("Dwell", 8, 16, "min"), Factor("Film", 50, 90, "µm")]
 
@@ -214,7 +214,7 @@ def test_format_0_file_is_migrated(data_dir, tmp_path):
 def test_every_shipped_example_validates_against_the_schema(data_dir):
     from importlib import resources
 
-    schema = json.loads(resources.files("kernel_core").joinpath("study_schema.json").read_text(encoding="utf-8"))
+    schema = json.loads(resources.files("levelwise").joinpath("study_schema.json").read_text(encoding="utf-8"))
     jsonschema.Draft202012Validator.check_schema(schema)
     examples = sorted(data_dir.glob("study_*.json"))
     assert [p.name for p in examples] == ["study_example.json", "study_v0.json"]

@@ -12,7 +12,7 @@ import time
 
 import pytest
 
-from kernel_core import Factor, Study, StudyFileError, full_factorial
+from levelwise import Factor, Study, StudyFileError, full_factorial
 
 FACTORS = [Factor("Oven", 170, 210, "°C"), Factor("Dwell", 8, 16, "min"), Factor("Film", 50, 90, "µm"),
            Factor("Catalyst", 0.5, 1.5, "%")]

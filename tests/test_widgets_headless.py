@@ -5,10 +5,10 @@ from unittest import mock
 import numpy as np
 import pytest
 
-from kernel_core import LevelwiseError, demo, fit
-from widgets import FactorSliders, SharedModel
-from widgets.shared_model import ReadOnlyError
-from widgets.style import fmt
+from levelwise import LevelwiseError, demo, fit
+from levelwise.widgets import FactorSliders, SharedModel
+from levelwise.widgets.shared_model import ReadOnlyError
+from levelwise.widgets.style import fmt
 
 
 @pytest.fixture

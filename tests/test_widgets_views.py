@@ -1,6 +1,6 @@
 """Every view on one shared model, driven headless through traits, methods and browser-shaped messages.
 
-Reference numbers come from kernel_core called directly in the test (the views must show exactly the
+Reference numbers come from levelwise called directly in the test (the views must show exactly the
 kernel's numbers); the demo data is the invented, seeded scenario of kernel_core/demo.py.
 """
 
@@ -17,9 +17,9 @@ import pytest
 import traitlets
 from widget_support import browser_event, browser_update, install_recording_comm, message_bytes
 
-from kernel_core import LevelwiseError, central_composite, demo, fit, optimize
-from kernel_core.surface import slice_grid
-from widgets import (
+from levelwise import LevelwiseError, central_composite, demo, fit, optimize
+from levelwise.surface import slice_grid
+from levelwise.widgets import (
     DesignBuilder,
     EffectsView,
     FactorSliders,
@@ -30,7 +30,7 @@ from widgets import (
     SharedModel,
     SurfaceSlice,
 )
-from widgets.style import fmt
+from levelwise.widgets.style import fmt
 
 F32 = {"rel": 2e-6, "abs": 2e-5}  # float32 on the wire: ~7 significant digits
 
@@ -88,7 +88,7 @@ def views(shared):
 def test_moving_a_setting_updates_every_view_to_the_kernel_numbers(shared, views):
     views["predictions"].add_current()
     shared.settings = {"Oven": 204.0, "Dwell": 9.0, "Film": 81.0, "Catalyst": 1.3}
-    reference = kernel_fit()  # kernel_core called directly
+    reference = kernel_fit()  # levelwise called directly
     expected = reference.predict(shared.settings).iloc[0]
 
     readout = views["sliders"].readout.value
@@ -182,7 +182,7 @@ def test_an_exclusion_from_the_inspector_refits_every_view(shared, views):
     inspector.reason.value = "coating gun clogged during this run"
     inspector.exclude_button.click()
 
-    reference = kernel_fit(drop_runs=[run])  # kernel_core refit from scratch without the run
+    reference = kernel_fit(drop_runs=[run])  # levelwise refit from scratch without the run
     assert shared.exclusions == {run: "coating gun clogged during this run"}
     assert shared.fit.coefficients["estimate"].to_numpy() == pytest.approx(
         reference.coefficients["estimate"].to_numpy(), rel=1e-10
@@ -354,7 +354,7 @@ def test_design_builder_previews_kernel_designs_and_creates_a_study(shared, view
     builder = views["builder"]
     builder.options["seed"].value = 11
     builder.family.value = "ccd"
-    reference = central_composite(list(demo.FACTORS), seed=11)  # kernel_core called directly
+    reference = central_composite(list(demo.FACTORS), seed=11)  # levelwise called directly
     pd.testing.assert_frame_equal(builder.design.table, reference.table)
     assert f"{len(reference)} runs" in builder.run_sheet.value
     assert "Relative prediction variance" in builder.evaluation.value
@@ -395,7 +395,7 @@ def test_optimiser_shows_the_kernel_optimum_and_moves_the_sliders(shared, views)
 
 
 def test_shared_model_over_a_study_writes_changes_through():
-    from kernel_core.study import Study
+    from levelwise.study import Study
 
     study = Study(demo.FACTORS)
     study.add_response("Impact", "J")
@@ -440,13 +440,13 @@ def test_bytes_per_slider_event_are_float32_and_only_what_changed(monkeypatch, c
 
 
 def test_run_sheet_export_is_the_kernel_writer_output(shared, views, tmp_path):
-    from kernel_core import read_run_sheet, write_run_sheet
+    from levelwise import read_run_sheet, write_run_sheet
 
     builder = views["builder"]
     builder.family.value = "box_behnken"
     builder.responses.value = "Impact (J)"
     reference = tmp_path / "reference.csv"
-    write_run_sheet(builder.design, reference, responses=("Impact",))  # kernel_core called directly
+    write_run_sheet(builder.design, reference, responses=("Impact",))  # levelwise called directly
     assert builder.export("csv") == reference.read_bytes()
     builder.export("xlsx", path=tmp_path / "sheet.xlsx")
     back = read_run_sheet(tmp_path / "sheet.xlsx")
@@ -455,7 +455,7 @@ def test_run_sheet_export_is_the_kernel_writer_output(shared, views, tmp_path):
 
 
 def test_views_work_with_a_categorical_factor():
-    from kernel_core import Factor, full_factorial
+    from levelwise import Factor, full_factorial
 
     factors = [Factor("Oven", 170, 210, units="°C"), Factor("Metal", levels=["steel", "brass"]), Factor("Film", 50, 90)]
     design = full_factorial(factors, replicates=2, seed=1)
@@ -465,7 +465,7 @@ def test_views_work_with_a_categorical_factor():
     views = [FactorSliders(shared), SurfaceSlice(shared), ResidualInspector(shared), EffectsView(shared),
              PredictionsView(shared), DesignBuilder(shared)]
     views[0].sliders["Metal"].value = "brass"
-    reference = fit(data, "Impact", "linear", factors=factors)  # kernel_core called directly
+    reference = fit(data, "Impact", "linear", factors=factors)  # levelwise called directly
     expected = reference.predict({"Oven": 190.0, "Metal": "brass", "Film": 70.0}).iloc[0]
     assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in views[0].readout.value
     assert list(views[1].x_factor.options) == ["Oven", "Film"]
@@ -507,6 +507,6 @@ def test_hovering_a_residual_point_shows_that_run(shared, views):
     browser_event(inspector.used, {"event": "hover", "data": {"index": 0}})
     run = inspector.run.value
     label = shared.label_of(run)
-    diag = kernel_fit().diagnostics.loc[label]  # kernel_core called directly
+    diag = kernel_fit().diagnostics.loc[label]  # levelwise called directly
     assert f"Run {run}" in inspector.detail.value
     assert fmt(diag["cooks_distance"]) in inspector.detail.value and fmt(diag["leverage"]) in inspector.detail.value

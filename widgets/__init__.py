@@ -1,6 +1,6 @@
 """levelwise views: the shared fitted model and the widgets bound to it.
 
-Imports point one way: ``dashboards`` -> ``widgets`` -> ``kernel_core``.
+Imports point one way: ``dashboards`` -> ``widgets`` -> ``levelwise``.
 """
 
 try:

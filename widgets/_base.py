@@ -9,7 +9,7 @@ import traceback
 import ipywidgets as ipw
 import numpy as np
 
-from kernel_core import LevelwiseError
+from levelwise import LevelwiseError
 
 
 def f32(values) -> np.ndarray:

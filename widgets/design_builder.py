@@ -1,6 +1,6 @@
 """The design builder: factors, a design family with its options, a live preview, and "Create study".
 
-Every design and every number in the preview comes from kernel_core: the design
+Every design and every number in the preview comes from levelwise: the design
 functions (full and fractional factorials, Plackett–Burman, central composite,
 Box–Behnken, optimal designs by coordinate exchange, fold-over), ``Design``'s
 resolution, word-length pattern and alias structure, and ``evaluate`` (VIF,
@@ -19,7 +19,7 @@ import ipywidgets as ipw
 import numpy as np
 import pandas as pd
 
-from kernel_core import (
+from levelwise import (
     Design,
     Factor,
     LevelwiseError,
@@ -112,7 +112,7 @@ class DesignBuilder(View):
         ``lw-create-study``.
     downloads : ipywidgets.HTML
         Links to the run sheet as CSV and XLSX (``lw-run-sheet-export``).
-    design : kernel_core.Design or None
+    design : levelwise.Design or None
         The design previewed.
     widget : ipywidgets.VBox
         The whole view (``lw-design-builder``).
@@ -246,7 +246,7 @@ class DesignBuilder(View):
         self._on_option()
 
     def factors(self) -> list[Factor]:
-        """The factors in the table (kernel_core validates them)."""
+        """The factors in the table (levelwise validates them)."""
         out = []
         for i, row in enumerate(self.factor_rows):
             try:
@@ -293,7 +293,7 @@ class DesignBuilder(View):
 
     # ----- building -----------------------------------------------------------------------------
     def build(self, progress=None) -> Design:
-        """The design the options describe, built by kernel_core."""
+        """The design the options describe, built by levelwise."""
         o = {name: control.value for name, control in self.options.items()}
         seed, randomize = o["seed"], o["randomize"]
         family = self.family.value
@@ -424,7 +424,7 @@ class DesignBuilder(View):
         )
 
     def _exports(self, design: Design) -> None:
-        """Run-sheet downloads (CSV and XLSX), written by ``kernel_core.write_run_sheet``."""
+        """Run-sheet downloads (CSV and XLSX), written by ``levelwise.write_run_sheet``."""
         links = []
         for kind, mime in (("csv", "text/csv"),
                            ("xlsx", "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet")):

@@ -1,6 +1,6 @@
 """The effects view: half-normal plot with Lenth's margins, ranked effects, model terms, ANOVA and coefficients.
 
-Every number comes from kernel_core: ``Fit.half_normal``, ``Fit.lenth`` (Lenth 1989),
+Every number comes from levelwise: ``Fit.half_normal``, ``Fit.lenth`` (Lenth 1989),
 ``Fit.effects``, ``Fit.coefficients`` and ``Fit.anova``. Toggling a term writes a new
 formula through :meth:`SharedModel.set_model`, keeping the model hierarchical: adding
 a term adds the terms it contains (A and B for A:B), removing one removes the terms
@@ -16,8 +16,8 @@ import ipywidgets as ipw
 import numpy as np
 import pandas as pd
 
-from kernel_core import LevelwiseError, parse_model
-from kernel_core.reduce import formula_of
+from levelwise import LevelwiseError, parse_model
+from levelwise.reduce import formula_of
 
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel

@@ -4,7 +4,7 @@ Each trace shows the predicted response against one factor with the others held
 at the current settings, with the confidence band for the mean (darker, solid
 edge) and the prediction band for a single new run (lighter, dashed edge), and a
 marker at the current setting. Every number comes from one ``Fit.refresh`` call
-per response and event (kernel_core's interactive path: the point prediction and
+per response and event (levelwise's interactive path: the point prediction and
 every factor's trace, without DataFrames).
 """
 
@@ -16,7 +16,7 @@ import bqplot as bq
 import ipywidgets as ipw
 import numpy as np
 
-from kernel_core import LevelwiseError
+from levelwise import LevelwiseError
 
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical

@@ -1,8 +1,8 @@
 """The optimiser view: a goal per response, a desirability search, and "Use these settings".
 
-Goals are the Derringer–Suich desirability goals of ``kernel_core.optimize``
+Goals are the Derringer–Suich desirability goals of ``levelwise.optimize``
 (maximise, minimise, target; limits; weight; importance). Run calls
-:func:`kernel_core.optimize` on the shared fits; the result shows the best settings,
+:func:`levelwise.optimize` on the shared fits; the result shows the best settings,
 each response's prediction with its intervals, the individual desirabilities and
 the overall desirability. Goals and runs are explorations: allowed read-only.
 """
@@ -14,7 +14,7 @@ import html
 import ipywidgets as ipw
 import numpy as np
 
-from kernel_core import LevelwiseError, optimize
+from levelwise import LevelwiseError, optimize
 
 from ._base import View
 from .shared_model import SharedModel
@@ -24,7 +24,7 @@ GOAL_CHOICES = [("no goal", "none"), ("maximise", "maximize"), ("minimise", "min
 
 
 def goal_dict(kind, low, target, high, weight, importance) -> dict:
-    """The goal as ``kernel_core.optimize`` reads it (weight is the exponent s and/or t)."""
+    """The goal as ``levelwise.optimize`` reads it (weight is the exponent s and/or t)."""
     if kind == "maximize":
         return {"goal": kind, "low": low, "target": target, "s": weight, "importance": importance}
     if kind == "minimize":
@@ -40,7 +40,7 @@ class OptimizerView(View):
     ----------
     shared : SharedModel
     starts : int, default 20
-        Local searches of :func:`kernel_core.optimize`.
+        Local searches of :func:`levelwise.optimize`.
     seed : int, optional
         Seed of the search's starting points (repeatable results).
 
@@ -57,7 +57,7 @@ class OptimizerView(View):
         overall D in ``span.lw-overall-desirability``).
     use_button : ipywidgets.Button
         "Use these settings" (``lw-use-optimum``).
-    optimum : kernel_core.optimize.Optimum or None
+    optimum : levelwise.optimize.Optimum or None
         The last result.
     widget : ipywidgets.VBox
         The whole view (``lw-optimizer-view``).

@@ -14,8 +14,8 @@ import ipywidgets as ipw
 import numpy as np
 import pandas as pd
 
-from kernel_core import LevelwiseError
-from kernel_core._errors import describe
+from levelwise import LevelwiseError
+from levelwise._errors import describe
 
 from ._base import View
 from .shared_model import SharedModel, is_categorical

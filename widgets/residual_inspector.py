@@ -14,7 +14,7 @@ import bqplot as bq
 import ipywidgets as ipw
 import numpy as np
 
-from kernel_core import LevelwiseError
+from levelwise import LevelwiseError
 
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical

@@ -4,7 +4,7 @@
 synced to the browser). It holds the study: the factors, the design and the run
 data, the responses with their units and models, the exclusions with their
 reasons and the current factor settings. The outputs are ``fits`` (one immutable
-:class:`kernel_core.Fit` per response, the whole dict *replaced* on every refit)
+:class:`levelwise.Fit` per response, the whole dict *replaced* on every refit)
 and ``fit`` (the fit of the displayed ``response``). Each refit notifies the
 observers of ``fits`` and of ``fit`` exactly once.
 
@@ -34,8 +34,8 @@ import numpy as np
 import pandas as pd
 import traitlets
 
-from kernel_core import Design, Factor, Fit, LevelwiseError, fit
-from kernel_core._errors import describe
+from levelwise import Design, Factor, Fit, LevelwiseError, fit
+from levelwise._errors import describe
 
 #: Traits that only a writable model may change (the inputs and the outputs of fitting).
 PROTECTED = ("factors", "design", "data", "responses", "units", "models", "exclusions", "fits", "fit")
@@ -46,7 +46,7 @@ class ReadOnlyError(LevelwiseError):
 
 
 def is_categorical(factor: Factor) -> bool:
-    """True for a factor with named levels (kernel_core ``Factor(name, levels=[...])``)."""
+    """True for a factor with named levels (levelwise ``Factor(name, levels=[...])``)."""
     return bool(getattr(factor, "is_categorical", False))
 
 
@@ -87,7 +87,7 @@ class SharedModel(traitlets.HasTraits):
         Units per response.
     response_units : str, optional
         Units of *response* (a shortcut for ``units={response: ...}``).
-    design : kernel_core.Design, optional
+    design : levelwise.Design, optional
         The planned design, when known.
     exclusions : dict, optional
         ``{run id: reason}`` of runs left out of every fit.
@@ -100,14 +100,14 @@ class SharedModel(traitlets.HasTraits):
 
     Examples
     --------
-    >>> from kernel_core import demo
+    >>> from levelwise import demo
     >>> shared = SharedModel(demo.FACTORS, demo.demo_data(), demo.RESPONSE, demo.MODEL)
     >>> shared.set_model(demo.RESPONSE, "Oven + Dwell")
     >>> shared.fit.terms
     ('Intercept', 'Oven', 'Dwell')
     """
 
-    factors = traitlets.Tuple(help="The study's factors (kernel_core.Factor), in column order.")
+    factors = traitlets.Tuple(help="The study's factors (levelwise.Factor), in column order.")
     design = _NoneChecked(Design, allow_none=True, help="The planned design, when known.")
     data = traitlets.Instance(pd.DataFrame, help="The runs, natural units, one column per factor and response.")
     responses = traitlets.Tuple(help="Names of the response columns of the study.")
@@ -126,7 +126,7 @@ class SharedModel(traitlets.HasTraits):
     level = traitlets.Float(0.95, read_only=True, help="Confidence level of every interval shown.")
     read_only = traitlets.Bool(False, read_only=True, help="When true, only settings and display choices change.")
     study = _NoneChecked(
-        object, allow_none=True, help="The kernel_core Study this model writes through to, when it wraps one."
+        object, allow_none=True, help="The levelwise Study this model writes through to, when it wraps one."
     )
 
     def __init__(
@@ -190,10 +190,10 @@ class SharedModel(traitlets.HasTraits):
         self.set_trait("read_only", bool(read_only))  # last: the model is built before it is locked
         self.observe(self._on_response, names="response")
 
-    # ----- construction from a kernel_core Study (issue 7), when available -----------------------
+    # ----- construction from a levelwise Study (issue 7), when available -----------------------
     @classmethod
     def from_study(cls, study, *, read_only=False, response=None):
-        """A shared model over a :class:`kernel_core.study.Study`; changes are written through to it.
+        """A shared model over a :class:`levelwise.study.Study`; changes are written through to it.
 
         Exclusions, model changes and inclusions made here are recorded in the study (and so in
         its audit log); save the study to keep them. Exclusions of one response only (a study
@@ -358,7 +358,7 @@ class SharedModel(traitlets.HasTraits):
     def exclude(self, run, reason: str) -> None:
         """Leave run *run* out of every fit, for the stated *reason* (refused when read-only).
 
-        Each response's fit loses the run by kernel_core's rank-one update (``Fit.exclude``). If the
+        Each response's fit loses the run by levelwise's rank-one update (``Fit.exclude``). If the
         kernel refuses (say the run's leverage is 1), nothing changes and the error says why.
         """
         self._check_writable("excluding a run")
@@ -416,7 +416,7 @@ class SharedModel(traitlets.HasTraits):
         """
         self._check_writable("creating a study")
         if not isinstance(design, Design):
-            raise LevelwiseError(f"The 'design' parameter must be a kernel_core Design. Got {describe(design)}.")
+            raise LevelwiseError(f"The 'design' parameter must be a levelwise Design. Got {describe(design)}.")
         units = dict(responses) if isinstance(responses, dict) else {name: "" for name in responses}
         if not units:
             raise LevelwiseError("A new study needs at least one response name.")
@@ -463,7 +463,7 @@ class SharedModel(traitlets.HasTraits):
         return np.isin(self.run_ids().astype(object), np.array(list(self.exclusions), dtype=object))
 
     def label_of(self, run):
-        """The row label of ``data`` for run id *run* (what kernel_core's ``Fit.runs`` holds)."""
+        """The row label of ``data`` for run id *run* (what levelwise's ``Fit.runs`` holds)."""
         matches = self.data.index[self.run_ids() == run]
         if len(matches) != 1:
             raise LevelwiseError(f"The run id {run!r} must name exactly one row of the data; it names {len(matches)}.")

@@ -21,8 +21,8 @@ import contourpy
 import ipywidgets as ipw
 import numpy as np
 
-from kernel_core import LevelwiseError
-from kernel_core.optimize import as_goal, overall_desirability
+from levelwise import LevelwiseError
+from levelwise.optimize import as_goal, overall_desirability
 
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel
@@ -82,7 +82,7 @@ class SurfaceSlice(View):
         Axis factors (``lw-slice-x``, ``lw-slice-y``); a display choice, allowed read-only.
     quantity : ipywidgets.ToggleButtons
         ``mean``, ``ci_half``, ``pi_half`` or ``desirability`` (``lw-slice-quantity``); the overall
-        desirability uses the shared model's ``goals`` (kernel_core ``Goal`` and ``overall_desirability``).
+        desirability uses the shared model's ``goals`` (levelwise ``Goal`` and ``overall_desirability``).
     figure : bqplot.Figure
         ``lw-slice``: ``heatmap`` (HeatMap), ``contour_lines`` (Lines), ``contour_labels`` (Label),
         ``points`` (design points, Scatter), ``marker`` (current setting), ``targets`` (click grid).

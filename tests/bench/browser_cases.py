@@ -162,15 +162,15 @@ class Server:
 
 
 def cli(*args) -> list[str]:
-    return [sys.executable, "-m", "dashboards.cli", *map(str, args)]
+    return [sys.executable, "-m", "levelwise.dashboards.cli", *map(str, args)]
 
 
 def workbench(port: int, preheat: bool) -> tuple[list[str], str]:
     """``levelwise serve`` (the workbench on the demo study); with preheating, voila run directly."""
     if not preheat:
         return cli("serve", "--port", port), "workbench via levelwise serve (kernel not preheated)"
-    from dashboards import NOTEBOOKS
-    from dashboards.cli import voila_command
+    from levelwise.dashboards import NOTEBOOKS
+    from levelwise.dashboards.cli import voila_command
 
     try:
         command = voila_command(NOTEBOOKS / "explore.ipynb", port, preheat=True, pool_size=1)
@@ -182,9 +182,9 @@ def workbench(port: int, preheat: bool) -> tuple[list[str], str]:
 def published_dashboard(workdir: Path, port: int) -> tuple[list[str] | None, str]:
     """``levelwise publish demo`` + ``levelwise view`` when the CLI has them, else (None, why not)."""
     try:
-        from dashboards import cli as lw_cli
+        from levelwise.dashboards import cli as lw_cli
     except ImportError:
-        return None, "dashboards.cli missing"
+        return None, "levelwise.dashboards.cli missing"
     if not all(hasattr(lw_cli, name) for name in ("publish", "view")):
         return None, "levelwise publish/view not available"
     failures = []

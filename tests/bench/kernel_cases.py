@@ -37,7 +37,7 @@ def missing(what: str) -> str:
 
 # ----- invented data -----------------------------------------------------------------------------
 def factors():
-    from kernel_core import Factor
+    from levelwise import Factor
 
     return [Factor(name, -1.0, 1.0) for name in NAMES]
 
@@ -70,15 +70,15 @@ def hand_ccd() -> np.ndarray:
 
 def ccd_32() -> tuple[np.ndarray, str]:
     """The 32-run CCD in coded units, from ``central_composite`` when it exists."""
-    import kernel_core
+    import levelwise
 
-    builder = getattr(kernel_core, "central_composite", None)
+    builder = getattr(levelwise, "central_composite", None)
     if builder is not None:
         try:
             design = builder(factors(), alpha="rotatable", center_points=6, randomize=False)
             coded = design.coded.to_numpy(dtype=float)
             if coded.shape == (32, K):
-                return coded, "kernel_core.central_composite(5 factors, rotatable, 6 centre runs)"
+                return coded, "levelwise.central_composite(5 factors, rotatable, 6 centre runs)"
             note = f"central_composite gave {coded.shape[0]} runs, not 32; "
         except Exception as exc:  # noqa: BLE001 - reported, then the hand-built design is used
             note = f"central_composite failed ({type(exc).__name__}: {exc}); "
@@ -100,12 +100,12 @@ def _slice_function(fitted):
     if callable(method):
         return lambda settings: method(NAMES[0], NAMES[1], settings, shape=(100, 100)), "Fit.slice"
     try:
-        from kernel_core import surface
+        from levelwise import surface
     except ImportError:
-        return None, "Fit.slice / kernel_core.surface.slice_grid"
+        return None, "Fit.slice / levelwise.surface.slice_grid"
     grid = getattr(surface, "slice_grid", None)
     if grid is None:
-        return None, "kernel_core.surface.slice_grid"
+        return None, "levelwise.surface.slice_grid"
     return lambda settings: grid(fitted, NAMES[0], NAMES[1], settings, shape=(100, 100)), "surface.slice_grid"
 
 
@@ -140,7 +140,7 @@ def case_refresh(cfg: Config) -> list[dict]:
     import statsmodels.api as sm
     from scipy import linalg, stats
 
-    from kernel_core import fit
+    from levelwise import fit
 
     coded, design_note = ccd_32()
     rng = np.random.default_rng(SEED)
@@ -297,7 +297,7 @@ def _diagnostics_agreement(table, frame) -> float | None:
 def case_diagnostics(cfg: Config) -> list[dict]:
     import statsmodels.api as sm
 
-    from kernel_core import fit
+    from levelwise import fit
 
     rows = []
     for n in (1_000, 10_000):
@@ -340,7 +340,7 @@ def case_diagnostics(cfg: Config) -> list[dict]:
 def case_exclusion(cfg: Config) -> list[dict]:
     import statsmodels.api as sm
 
-    from kernel_core import fit
+    from levelwise import fit
 
     name = "3. exclude one run (32-run CCD, p = 21), vs statsmodels refit"
     coded, design_note = ccd_32()
@@ -380,7 +380,7 @@ def case_exclusion(cfg: Config) -> list[dict]:
 def case_fit(cfg: Config) -> list[dict]:
     from scipy import linalg
 
-    from kernel_core import fit
+    from levelwise import fit
 
     n = 30_000 if cfg.quick else 100_000
     frame, coded, y = random_study(n, SEED + 4)
@@ -398,7 +398,7 @@ def case_fit(cfg: Config) -> list[dict]:
 
     diff = float(np.max(np.abs(np.sort(ours()) - np.sort(reference()))))
     a, b, cut = interleaved(ours, reference, repeats=cfg.repeats, min_sample=cfg.min_sample, budget=cfg.budget)
-    note = ("ours: kernel_core.fit from a DataFrame (validation, coding, model matrix, pivoted QR); reference: "
+    note = ("ours: levelwise.fit from a DataFrame (validation, coding, model matrix, pivoted QR); reference: "
             "scipy.linalg.qr(pivoting=True) + triangular solve on a prebuilt model matrix")
     if cfg.quick:
         note += "; quick mode: n = 30,000"
@@ -423,10 +423,10 @@ def _clear_caches(module) -> int:
 def case_designs(cfg: Config) -> list[dict]:
     import importlib
 
-    import kernel_core
+    import levelwise
 
-    design_module = importlib.import_module(kernel_core.fractional_factorial.__module__) \
-        if hasattr(kernel_core, "fractional_factorial") else None
+    design_module = importlib.import_module(levelwise.fractional_factorial.__module__) \
+        if hasattr(levelwise, "fractional_factorial") else None
     rows = []
     for k, runs in ((15, 16), (11, 64)):
         name = f"5. minimum-aberration search, k = {k} at {runs} runs"
@@ -440,7 +440,7 @@ def case_designs(cfg: Config) -> list[dict]:
 
         def search(k=k, runs=runs, made=made):
             _clear_caches(design_module)
-            made.append(kernel_core.fractional_factorial(k, runs=runs, randomize=False))
+            made.append(levelwise.fractional_factorial(k, runs=runs, randomize=False))
 
         # The first call counts as a sample (slow=0): a search is timed cold every time.
         a, _, cut = interleaved(search, None, repeats=cfg.repeats, min_sample=0.0, budget=cfg.budget, slow=0.0)
@@ -453,7 +453,7 @@ def case_designs(cfg: Config) -> list[dict]:
                                      else "no memo caches in the module")
                                   + (" (time budget cut repeats)" if cut else "")))
     name = "5. D-optimal design, 6 factors, quadratic, 40 runs, 10 starts"
-    builder = getattr(kernel_core, "optimal_design", None)
+    builder = getattr(levelwise, "optimal_design", None)
     if builder is None:
         rows.append(unavailable("d_optimal", name, kind="absolute", goal="<= 3 s", goal_value=3.0,
                                 status=missing("optimal_design")))

@@ -1,6 +1,6 @@
 """Write tests/data/study_example.json: an INVENTED two-stage study in the current file format.
 
-The numbers come from kernel_core.demo (invented, seeded) plus a second, invented centre-point
+The numbers come from levelwise.demo (invented, seeded) plus a second, invented centre-point
 stage. Run ``PYTHONPATH=. python tests/data/make_example_study.py`` from the repository root.
 """
 
@@ -9,13 +9,13 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from kernel_core import demo
-from kernel_core.study import Study
+from levelwise import demo
+from levelwise.study import Study
 
 
 def build() -> Study:
     study = Study(list(demo.FACTORS), title="Invented powder-coating cure study (example)",
-                  notes="INVENTED data from kernel_core.demo; no real process.")
+                  notes="INVENTED data from levelwise.demo; no real process.")
     study.add_stage("screen", demo.demo_design(), description="2^4 full factorial with 3 centre points")
     study.add_response(demo.RESPONSE, units=demo.RESPONSE_UNITS, goal="maximize")
     study.add_response("Gloss", units="GU", goal="target", target=85.0)
