@@ -6,26 +6,36 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
 from ._version import __version__
-from .boxcox import BoxCoxResult, box_cox
 from .design import Design, full_factorial
-from .effects import LenthResult, effects, half_normal, lenth
 from .factors import Factor
-from .fit import Fit, fit
-from .formula import ModelSpec, parse_model
-from .optimize import (
+from .model import (
+    BoxCoxResult,
+    Fit,
     Goal,
+    LenthResult,
+    ModelSpec,
     Optimum,
+    PredictionEngine,
+    Reduction,
     SteepestPath,
+    box_cox,
+    effects,
+    fit,
     fit_responses,
+    half_normal,
+    lenth,
     maximize,
     minimize,
     optimize,
     overall_desirability,
+    parse_model,
+    predict,
+    reduce,
+    refit,
+    slice_grid,
     steepest_path,
     target,
 )
-from .reduce import Reduction, reduce, refit
-from .surface import slice_grid, slice_polynomials
 
 __all__ = [
     "__version__",
@@ -35,9 +45,11 @@ __all__ = [
     "LevelwiseError",
     "LevelwiseWarning",
     "ModelSpec",
+    "PredictionEngine",
     "fit",
     "full_factorial",
     "parse_model",
+    "predict",
     # analysis on a fit
     "BoxCoxResult",
     "Goal",
@@ -57,7 +69,6 @@ __all__ = [
     "reduce",
     "refit",
     "slice_grid",
-    "slice_polynomials",
     "steepest_path",
     "target",
 ]

@@ -12,7 +12,7 @@ from scipy import stats
 
 from ._errors import LevelwiseError, describe
 from .design import Design
-from .formula import monomials, parse_model, term_name
+from .model import monomials, parse_model, term_name
 from .optimal import moment_matrix, sample_region
 
 
@@ -102,7 +102,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
     Examples
     --------
     >>> from levelwise import full_factorial
-    >>> ev = evaluate(full_factorial(3, randomize=False), "linear")
+    >>> ev = evaluate(full_factorial(3, randomize=False), "main_effects")
     >>> ev.rank, ev.df_error, round(float(ev.vif["A"]), 9)
     (4, 4, 1.0)
     """
@@ -115,7 +115,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
     names = design.factor_names
     spec = parse_model(model, names)
     coded = design.coded.to_numpy(dtype=float)
-    X = spec.matrix(coded)
+    X = monomials(np.asarray(coded, dtype=float), spec.exponents)
     n, p = X.shape
     if p > n:
         raise LevelwiseError(f"The model {model!r} has {p} terms but the design has only {n} runs.")
@@ -183,7 +183,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
                     pts = np.vstack([pts, np.array(list(itertools.product((-1.0, 1.0), repeat=k)))])
             W = moment_matrix(spec.exponents, discrete=discrete)
         pts[:, discrete] = np.where(pts[:, discrete] < 0, -1.0, 1.0)
-        F = spec.matrix(pts)
+        F = monomials(np.asarray(pts, dtype=float), spec.exponents)
         v = np.einsum("ij,jk,ik->i", F, XtXi, F)
         pv = {"min": float(v.min()), "mean": float(np.trace(XtXi @ W)), "max": float(v.max())}
         if df_error > 0:

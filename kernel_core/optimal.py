@@ -24,7 +24,7 @@ from ._errors import LevelwiseError, describe
 from .constraints import parse_constraint
 from .design import Design, _check_count, _check_seed
 from .factors import as_factors
-from .formula import parse_model
+from .model import parse_model
 
 #: Passes over the runs per start, at most (keeps every search bounded).
 MAX_PASSES = 40
@@ -121,7 +121,7 @@ def moment_matrix(exponents, G=None, h=None, rng=None, discrete=None):
         # 0 for odd a, 1 for even a.
         moments = np.where(total % 2 == 0, np.where(discrete, 1.0, 1.0 / (total + 1.0)), 0.0)
         return moments.prod(axis=2)
-    from .formula import monomials
+    from .model import monomials
 
     sample = sample_region(G, h, k, 20000, rng or np.random.default_rng(0))
     sample[:, discrete] = np.where(sample[:, discrete] < 0, -1.0, 1.0)
@@ -181,7 +181,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     factors : list of Factor or int
         Continuous factors, or categorical factors with 2 levels (coded -1/+1, never in a squared term).
     model : str
-        Wilkinson formula or preset ``"linear"``, ``"interactions"``, ``"quadratic"``.
+        Wilkinson formula or preset ``"main_effects"``, ``"two_factor_interactions"``, ``"full_second_order"``.
     runs : int
         Number of new runs to choose (in addition to *fixed_runs*).
     criterion : {"D", "I"}, default "D"
@@ -213,7 +213,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
 
     Examples
     --------
-    >>> d = optimal_design(2, "linear", runs=4, seed=1, randomize=False)
+    >>> d = optimal_design(2, "main_effects", runs=4, seed=1, randomize=False)
     >>> round(d.metadata["d_efficiency"], 6)
     100.0
     """

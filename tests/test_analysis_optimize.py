@@ -25,7 +25,8 @@ from levelwise import (
 ALPHA = 1.633  # e-Handbook 5.5.3.2.2 axial distance, printed 1.63 (see module docstring)
 NAMES = ["X1", "X2", "X3"]
 CODED = [Factor(n, -1, 1) for n in NAMES]
-MODELS = {"Y1": "quadratic", "Y2": "quadratic", "Y3": "linear", "Y4": "quadratic"}  # e-Handbook 5.5.3.2.2
+MODELS = {"Y1": "full_second_order", "Y2": "full_second_order", "Y3": "main_effects",  # e-Handbook 5.5.3.2.2
+          "Y4": "full_second_order"}
 
 # e-Handbook 5.5.3.2.2, the four fitted models (coded units), as printed
 PUBLISHED = {
@@ -183,7 +184,7 @@ def test_goal_for_an_unfitted_response_is_refused(fits):
 def test_fit_responses_names_the_failing_response(data_dir):
     data = pd.read_csv(data_dir / "IMPROVE-5_5_3_2_2.csv")
     with pytest.raises(LevelwiseError, match="Response 'Y2'"):
-        fit_responses(data, {"Y1": "linear", "Y2": "X1 + Nope"}, factors=CODED)
+        fit_responses(data, {"Y1": "main_effects", "Y2": "X1 + Nope"}, factors=CODED)
 
 
 def test_steepest_path_follows_the_coded_coefficients():

@@ -22,7 +22,7 @@ import ipywidgets as ipw
 import numpy as np
 
 from levelwise import LevelwiseError
-from levelwise.optimize import as_goal, overall_desirability
+from levelwise.model._optimize import as_goal, overall_desirability
 
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel

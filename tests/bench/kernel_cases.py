@@ -102,10 +102,10 @@ def _slice_function(fitted):
     try:
         from levelwise import surface
     except ImportError:
-        return None, "Fit.slice / levelwise.surface.slice_grid"
+        return None, "Fit.slice / levelwise.slice_grid"
     grid = getattr(surface, "slice_grid", None)
     if grid is None:
-        return None, "levelwise.surface.slice_grid"
+        return None, "levelwise.slice_grid"
     return lambda settings: grid(fitted, NAMES[0], NAMES[1], settings, shape=(100, 100)), "surface.slice_grid"
 
 
@@ -145,7 +145,7 @@ def case_refresh(cfg: Config) -> list[dict]:
     coded, design_note = ccd_32()
     rng = np.random.default_rng(SEED)
     y = invented_response(coded, rng)
-    fitted = fit(frame_of(coded, y), "y", "quadratic", factors=factors())
+    fitted = fit(frame_of(coded, y), "y", "full_second_order", factors=factors())
     settings = {"A": 0.3, "B": -0.2, "C": 0.5, "D": 0.1, "E": -0.4}
     point = np.array([[settings[n] for n in NAMES]])
     line = np.linspace(-1.0, 1.0, 50)
@@ -305,7 +305,7 @@ def case_diagnostics(cfg: Config) -> list[dict]:
         case_id = f"diagnostics_{n}"
         goal, goal_value = (">= 1000x", 1000.0) if n == 10_000 else ("(report)", None)
         frame, coded, y = random_study(n, SEED + n)
-        fitted = fit(frame, "y", "quadratic", factors=factors())
+        fitted = fit(frame, "y", "full_second_order", factors=factors())
         getter = _diagnostics_getter(fitted)
         if getter is None:
             rows.append(unavailable(case_id, name, kind="speedup", goal=goal, goal_value=goal_value,
@@ -346,7 +346,7 @@ def case_exclusion(cfg: Config) -> list[dict]:
     coded, design_note = ccd_32()
     y = invented_response(coded, np.random.default_rng(SEED))
     frame = frame_of(coded, y)
-    fitted = fit(frame, "y", "quadratic", factors=factors())
+    fitted = fit(frame, "y", "full_second_order", factors=factors())
     if not callable(getattr(fitted, "exclude", None)):
         return [unavailable("exclude_one", name, kind="speedup", goal=">= 10x", goal_value=10.0,
                             status=missing("Fit.exclude"))]
@@ -388,7 +388,7 @@ def case_fit(cfg: Config) -> list[dict]:
     fs = factors()
 
     def ours():
-        return fit(frame, "y", "quadratic", factors=fs).beta
+        return fit(frame, "y", "full_second_order", factors=fs).beta
 
     def reference():
         q, r, piv = linalg.qr(x_ref, mode="economic", pivoting=True)
@@ -461,7 +461,7 @@ def case_designs(cfg: Config) -> list[dict]:
     counter = itertools.count()
 
     def optimal():
-        return builder(6, "quadratic", 40, criterion="D", starts=10, seed=next(counter))
+        return builder(6, "full_second_order", 40, criterion="D", starts=10, seed=next(counter))
 
     a, _, cut = interleaved(optimal, None, repeats=cfg.repeats, min_sample=0.0, budget=cfg.budget, slow=0.0)
     rows.append(make_row("d_optimal", name, kind="absolute", goal="<= 3 s", goal_value=3.0, ours=a.median,

@@ -13,9 +13,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
+from ..constraints import parse_constraint
 from ._fitview import require_continuous
-from .constraints import parse_constraint
 
 GOAL_KINDS = ("maximize", "minimize", "target")
 
@@ -28,7 +28,7 @@ def fit_responses(data, models: dict, factors=None, **options) -> dict:
     ----------
     data : pandas.DataFrame
     models : dict
-        Response column -> model (formula or preset), e.g. ``{"Y1": "quadratic", "Y3": "linear"}``.
+        Response column -> model (formula or preset), e.g. ``{"Y1": "full_second_order", "Y3": "main_effects"}``.
     factors : list of Factor, optional
         Shared coding ranges.
     **options
@@ -44,7 +44,7 @@ def fit_responses(data, models: dict, factors=None, **options) -> dict:
     LevelwiseError
         The message of any failed fit, prefixed with the response it belongs to.
     """
-    from .fit import fit as fit_model
+    from ._fit import fit as fit_model
 
     if not isinstance(models, dict) or not models:
         raise LevelwiseError(
