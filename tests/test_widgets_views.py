@@ -378,8 +378,8 @@ def test_design_builder_previews_kernel_designs_and_creates_a_study(shared, view
 
 def test_optimiser_shows_the_kernel_optimum_and_moves_the_sliders(shared, views):
     optimiser = views["optimizer"]
-    optimiser.set_goal("Impact", "maximize", low=8.0, target=12.0)
-    assert shared.goals == {"Impact": {"goal": "maximize", "low": 8.0, "target": 12.0, "s": 1.0, "importance": 1.0}}
+    optimiser.set_goal("Impact", "maximize", lower_limit=8.0, target=12.0)
+    assert shared.goals == {"Impact": {"goal": "maximize", "lower_limit": 8.0, "target": 12.0, "s": 1.0, "weight": 1.0}}
     best = optimiser.run()
     reference = optimize({"Impact": kernel_fit()}, shared.goals, starts=5, seed=3)  # kernel reference
     assert best.overall == pytest.approx(reference.overall, rel=1e-9)

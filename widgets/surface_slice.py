@@ -233,7 +233,7 @@ class SurfaceSlice(View):
             goal = as_goal(spec, response)
             mean = self._kernel_slice(self.shared.fits[response], x, y)["mean"]
             d.append(goal(mean))
-            weights.append(goal.importance)
+            weights.append(goal.weight)
         return grid, overall_desirability(np.stack(d, axis=-1), weights)
 
     def _redraw(self):
