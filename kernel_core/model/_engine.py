@@ -46,6 +46,8 @@ from ._polynomials import PolynomialPlan
 
 _PLAIN_TYPES = frozenset((int, float, np.float64, np.float32, np.int64, np.int32))
 _BLANK = object()
+#: Settings per block when predicting many at once (the model rows of a block stay in cache).
+_BLOCK = 2048
 
 
 def check_points(points) -> int:
@@ -143,6 +145,7 @@ class PredictionEngine:
         self._highs_list = [hi if u else math.inf for hi, u in zip(self._highs.tolist(), self._continuous_used)]
         self._limit = self.max_leverage * (1.0 + 1e-9) + 1e-12
         self._fb = np.ascontiguousarray(np.column_stack([self.cov_factor, self.beta]))
+        self._fb_t = np.ascontiguousarray(self._fb.T)
         self._quantiles = {}
         self._grids = {}
         self._compile()
@@ -181,6 +184,35 @@ class PredictionEngine:
         for slot in range(1, len(picks)):
             x *= v[:, picks[slot]]
         return x
+
+    def _mean_and_leverage_columns(self, natural_t: np.ndarray):
+        """Mean and h for a (k, m) array of settings (one row per factor): the layout for many settings.
+
+        Every power of a coded factor is a contiguous row, so a model column is a product of whole
+        rows (no strided gathers), and one (p+1, p) x (p, m) product gives the mean and x F.
+        """
+        if self.contrasts:
+            return self.mean_and_leverage(natural_t.T)
+        m = natural_t.shape[1]
+        if m > _BLOCK:  # blocks of rows small enough to stay in cache (one Python step per block)
+            mean, h = np.empty(m), np.empty(m)
+            for start in range(0, m, _BLOCK):
+                part = slice(start, start + _BLOCK)
+                mean[part], h[part] = self._mean_and_leverage_columns(natural_t[:, part])
+            return mean, h
+        coded = natural_t - self.center[:, None]
+        coded *= self._inv_scale[:, None]
+        m, picks = coded.shape[1], self._picks
+        parts = [np.ones((1, m)), coded]
+        for _ in range(2, self._top + 1):
+            parts.append(parts[-1] * coded)
+        v = np.concatenate(parts, axis=0)
+        x = v[picks[0]]
+        for slot in range(1, len(picks)):
+            x *= v[picks[slot]]
+        both = self._fb_t @ x
+        xf = both[:-1]
+        return both[-1], np.einsum("ij,ij->j", xf, xf)
 
     @property
     def plan(self) -> PolynomialPlan | None:
@@ -260,9 +292,13 @@ class PredictionEngine:
 
     def table(self, settings) -> np.ndarray:
         """Settings as a dict (one setting), a dict of equal-length lists or a DataFrame -> (m, k) array."""
+        return self.columns(settings).T
+
+    def columns(self, settings) -> np.ndarray:
+        """:meth:`table` laid out by factor: a (k, m) array, one contiguous row per factor."""
         if isinstance(settings, dict):
             if not any(isinstance(v, (list, tuple, np.ndarray, pd.Series)) for v in settings.values()):
-                return self.vector(settings)[None, :]
+                return self.vector(settings)[:, None]
             self._refuse_names(settings)
             columns = {key: np.atleast_1d(np.asarray(value, dtype=object)) for key, value in settings.items()}
             lengths = {len(v) for v in columns.values()} - {1}
@@ -281,24 +317,18 @@ class PredictionEngine:
                 f"Got {describe(settings)} instead."
             )
         self._refuse_missing(frame.columns)
-        out = np.empty((m, self.k))
-        out[:] = self.center
+        out = np.empty((self.k, m))
         for j, name in enumerate(self.factor_names):
-            if name in self.categories:
-                out[:, j] = 0.0
             if not self.used[j] and name not in frame.columns:
-                continue
-            if name in self.categories:
-                out[:, j] = _level_indices(frame[name], name, self.categories[name], "settings")
-                continue
-            values = frame[name].to_numpy()
-            if values.dtype.kind in "fiu":
-                out[:, j] = values
+                out[j] = 0.0 if name in self.categories else self.center[j]
+            elif name in self.categories:
+                out[j] = _level_indices(frame[name], name, self.categories[name], "settings")
             else:
-                out[:, j] = _numeric_column(frame, name, "setting")
+                values = frame[name].to_numpy()
+                out[j] = values if values.dtype.kind in "fiu" else _numeric_column(frame, name, "setting")
         bad = ~np.isfinite(out)
         if bad.any():
-            row, col = np.argwhere(bad)[0]
+            col, row = np.argwhere(bad.T)[0][::-1]
             raise LevelwiseError(
                 f"The setting for factor {self.factor_names[col]!r} in row {row + 1} must be a finite number. "
                 f"Got {out[row, col]!r} instead."
@@ -338,28 +368,34 @@ class PredictionEngine:
 
     def extrapolated(self, natural: np.ndarray, h: np.ndarray) -> np.ndarray:
         """The extrapolation rule: a used continuous factor outside its range, or h above the runs' largest."""
+        return self._extrapolated_columns(np.asarray(natural, dtype=float).T, h)
+
+    def _extrapolated_columns(self, natural_t: np.ndarray, h: np.ndarray) -> np.ndarray:
         used = self._continuous_used
-        outside = ((natural[:, used] < self._lows[used]) | (natural[:, used] > self._highs[used])).any(axis=1)
+        part = natural_t[used]
+        outside = ((part < self._lows[used, None]) | (part > self._highs[used, None])).any(axis=0)
         return outside | (h > self._limit)
 
     def predict(self, settings, level=None) -> pd.DataFrame:
         """Mean, CI, PI, leverage (h) and the extrapolation flag at each setting (see ``Fit.predict``)."""
         level = self._level(level)
-        natural = self.table(settings)
-        mean, ci, pi, h = self.bands(natural, level)
+        natural_t = self.columns(settings)
+        mean, h = self._mean_and_leverage_columns(natural_t)
+        c = self._scale(level)
+        ci, pi = c * np.sqrt(h), c * np.sqrt(h + self.extra)
         return pd.DataFrame({
             "mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi, "pi_high": mean + pi,
-            "leverage": h, "extrapolated": self.extrapolated(natural, h),
+            "leverage": h, "extrapolated": self._extrapolated_columns(natural_t, h),
         })
 
-    def point(self, settings, level=None, natural=None) -> dict:
+    def point(self, settings, level=None, natural=None, powers=None) -> dict:
         """One setting -> ``mean``, ``ci_low/high``, ``pi_low/high``, ``leverage``, ``extrapolated``."""
         level = self._level(level)
         if natural is None:
             natural = self.vector(settings)
         plan = self.plan
         if plan is not None:
-            mean, h = plan.mean_and_leverage(plan.powers(natural))
+            mean, h = plan.mean_and_leverage(plan.powers(natural) if powers is None else powers)
         else:
             means, hs = self.mean_and_leverage(natural[None, :])
             mean, h = float(means[0]), float(hs[0])
@@ -431,8 +467,9 @@ class PredictionEngine:
             start += len(labels)
         return out
 
-    def _traces_of(self, plan, base, level, points):
-        xs, mean, ci, pi = plan.traces(plan.powers(base), self._scale(level), points, self.extra)
+    def _traces_of(self, plan, base, level, points, powers=None):
+        powers = plan.powers(base) if powers is None else powers
+        xs, mean, ci, pi = plan.traces(powers, self._scale(level), points, self.extra)
         return {name: {"x": xs[j], "mean": mean[j], "ci_half": ci[j], "pi_half": pi[j]}
                 for j, name in enumerate(self.factor_names)}
 
@@ -449,7 +486,7 @@ class PredictionEngine:
                 )
         return ix, iy
 
-    def slice(self, x, y, settings, shape=(100, 100), level=None, base=None) -> dict:
+    def slice(self, x, y, settings, shape=(100, 100), level=None, base=None, powers=None) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors *x* (across) and *y* (up)."""
         level = self._level(level)
         ix, iy = self.slice_axes(x, y)
@@ -458,7 +495,8 @@ class PredictionEngine:
             base = self.vector(settings, free=(x, y))
         plan = self.plan
         if plan is not None:
-            out = plan.slice(plan.powers(base), self._scale(level), ix, iy, (nx, ny), self.extra)
+            powers = plan.powers(base) if powers is None else powers
+            out = plan.slice(powers, self._scale(level), ix, iy, (nx, ny), self.extra)
             return {"x": out["x"], "y": out["y"], "mean": out["mean"], "ci_half": out["ci_half"],
                     "pi_half": out["pi_half"]}
         xs = np.linspace(self.low[ix], self.high[ix], nx)
@@ -477,12 +515,13 @@ class PredictionEngine:
         level = self._level(level)
         if points is not None:
             points = check_points(points)
-        out = {"point": self.point(None, level, natural) if point else None}
         plan = self.plan
+        powers = plan.powers(natural) if plan is not None else None  # shared by the point, traces and slice
+        out = {"point": self.point(None, level, natural, powers) if point else None}
         if points is None:
             out["traces"] = None
         elif plan is not None:
-            out["traces"] = self._traces_of(plan, natural, level, points)
+            out["traces"] = self._traces_of(plan, natural, level, points, powers)
         else:
             out["traces"] = self.traces(settings, points, level)
         out["slice"] = None
@@ -494,7 +533,7 @@ class PredictionEngine:
                     "The 'slice_axes' parameter must be a pair of factor names (across, up). "
                     f"Got {describe(slice_axes)} instead."
                 ) from None
-            out["slice"] = self.slice(x, y, None, shape, level, base=natural)
+            out["slice"] = self.slice(x, y, None, shape, level, base=natural, powers=powers)
         return out
 
     # ----- the offline page ---------------------------------------------------------------------

@@ -351,7 +351,7 @@ def case_exclusion(cfg: Config) -> list[dict]:
         return [unavailable("exclude_one", name, kind="speedup", goal=">= 10x", goal_value=10.0,
                             status=missing("Fit.exclude"))]
     drop = 3  # a cube run
-    label = frame.index[drop]
+    label = fitted.runs[drop]  # its run id (the frame has no run column: 1..n)
     x_ref = quadratic_rows(coded)
     keep = np.ones(len(y), dtype=bool)
     keep[drop] = False
@@ -374,6 +374,47 @@ def case_exclusion(cfg: Config) -> list[dict]:
                           f"31 runs then params and s (no coefficient table on either side); {design_note}"
                           + (" (time budget cut repeats)" if cut else ""),
                      max_abs_diff=float(diff))]
+
+
+# ----- case 3b: predict on a table ---------------------------------------------------------------
+def case_predict(cfg: Config) -> list[dict]:
+    """Fit.predict on a DataFrame (mean, CI, PI, leverage, extrapolation) against statsmodels' formula
+    get_prediction(...).summary_frame on the same rows, for one row and for 10,000 rows."""
+    import statsmodels.formula.api as smf
+
+    from levelwise import fit
+
+    coded, design_note = ccd_32()
+    y = invented_response(coded, np.random.default_rng(SEED + 3))
+    frame = frame_of(coded, y)
+    fitted = fit(frame, "y", "full_second_order", factors=factors())
+    terms = list(NAMES) + [f"{a}:{b}" for a, b in itertools.combinations(NAMES, 2)] + [f"I({n}**2)" for n in NAMES]
+    model = smf.ols("y ~ " + " + ".join(terms), data=frame).fit()  # coded units: factors run from -1 to 1
+    rows = []
+    for case_id, m, goal in (("predict_1_row", 1, 20.0), ("predict_10000_rows", 10_000, 50.0)):
+        rng = np.random.default_rng(SEED + m)
+        table = pd.DataFrame(rng.uniform(-1.0, 1.0, (m, K)), columns=list(NAMES))
+
+        def ours(table=table):
+            return fitted.predict(table)
+
+        def reference(table=table):
+            return model.get_prediction(table).summary_frame(alpha=1 - LEVEL)
+
+        mine, theirs = ours(), reference()
+        diff = max(float(np.max(np.abs(mine["mean"].to_numpy() - theirs["mean"].to_numpy()))),
+                   float(np.max(np.abs(mine["ci_high"].to_numpy() - theirs["mean_ci_upper"].to_numpy()))),
+                   float(np.max(np.abs(mine["pi_low"].to_numpy() - theirs["obs_ci_lower"].to_numpy()))))
+        a, b, cut = interleaved(ours, reference, repeats=cfg.repeats, min_sample=cfg.min_sample, budget=cfg.budget)
+        rows.append(make_row(
+            case_id, f"3b. predict on a DataFrame of {m:,} row{'s' if m > 1 else ''} (p = 21), vs statsmodels formula",
+            kind="speedup", goal=f">= {goal:g}x", goal_value=goal, ours=a.median, reference=b.median,
+            ours_repeats=len(a.times), reference_repeats=len(b.times),
+            note="ours: Fit.predict(DataFrame) (settings check, coding, model rows, mean, CI, PI, leverage, "
+                 "extrapolation flag); reference: statsmodels formula OLS get_prediction(DataFrame).summary_frame; "
+                 f"{design_note}" + (" (time budget cut repeats)" if cut else ""),
+            max_abs_diff=diff))
+    return rows
 
 
 # ----- case 4: fitting a large data set ----------------------------------------------------------
@@ -474,6 +515,7 @@ CASES = {
     "refresh": case_refresh,
     "diagnostics": case_diagnostics,
     "exclusion": case_exclusion,
+    "predict": case_predict,
     "fit": case_fit,
     "designs": case_designs,
 }
