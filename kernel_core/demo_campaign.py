@@ -33,9 +33,7 @@ from datetime import UTC, datetime, timedelta
 
 import numpy as np
 
-from .factors import Factor
-from .fractional import fold_over, fractional_factorial
-from .rsm_designs import central_composite
+from .design import Factor, central_composite, fold_over, fractional_factorial
 
 #: Seed of the invented campaign; change it and every number changes.
 SEED = 20261202

@@ -39,7 +39,7 @@ import numpy as np
 import pandas as pd
 
 from ._errors import LevelwiseError, OutsideEditError, StudyFileError, describe
-from .factors import Factor, as_factors
+from .design import Factor, as_factors
 from .formula import parse_model
 
 #: The format this version of levelwise writes.

@@ -8,7 +8,7 @@ import pandas as pd
 import pytest
 
 from levelwise import LevelwiseError, fold_over, fractional_factorial, full_factorial
-from levelwise.factors import default_names
+from levelwise.design import default_names
 from tests.design_helpers import brute_force_wlp, factorial_part
 
 DATA = Path(__file__).parent / "data"
@@ -201,7 +201,7 @@ def test_blocks_reach_highest_orders():
 
 
 def test_search_is_bounded_and_keeps_a_valid_design():
-    from levelwise.fractional import minimum_aberration
+    from levelwise.design import minimum_aberration
 
     # A 2^(17-11) search cut short by a tiny node budget still returns a design, flagged incomplete; the
     # odd-weight incumbent has resolution IV (all words of even length: a counting argument, common practice).

@@ -8,8 +8,7 @@ import pandas as pd
 import pytest
 
 from levelwise import LevelwiseError, box_behnken, central_composite, parse_model, plackett_burman
-from levelwise.rsm_designs import BB_GROUPS
-from levelwise.screening import plackett_burman_matrix
+from levelwise.design import BB_GROUPS, plackett_burman_matrix
 
 DATA = Path(__file__).parent / "data"
 

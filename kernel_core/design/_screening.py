@@ -11,9 +11,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
-from .design import Design, _check_count
-from .factors import as_factors
+from .._errors import LevelwiseError, describe
+from ._design import Design, _check_count
+from ._factors import as_factors
 
 #: Generator rows (first row of the cyclic part), "+" high and "-" low.
 GENERATORS = {

@@ -8,9 +8,10 @@ import numbers
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
-from .design import Design, _check_count, basic_runs
-from .factors import as_factors
+from .._errors import LevelwiseError, describe
+from ._design import Design, _check_count
+from ._factorial import basic_runs
+from ._factors import as_factors
 
 
 def _continuous(factors, what):
@@ -90,7 +91,7 @@ def central_composite(factors, alpha="rotatable", kind="circumscribed", center_p
         cube = basic_runs(k)
         cube_label = f"2^{k}"
     else:
-        from .fractional import fractional_factorial
+        from ._fractional import fractional_factorial
 
         if fraction_p is None:
             frac = fractional_factorial(k, resolution=5, randomize=False)
