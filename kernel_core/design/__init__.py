@@ -16,7 +16,7 @@ The modules behind it are private and laid out by role:
 
 from ._aberration import minimum_aberration
 from ._constraints import parse_constraint
-from ._design import META_COLUMNS, Design
+from ._design import COLUMN_RENAMES, META_COLUMNS, ROLE_RENAMES, ROLES, Design
 from ._evaluation import DesignEvaluation, evaluate
 from ._factorial import full_factorial
 from ._factors import Factor, as_factors, default_names
@@ -30,7 +30,10 @@ from ._screening import plackett_burman, plackett_burman_matrix
 
 __all__ = [
     "BB_GROUPS",
+    "COLUMN_RENAMES",
     "META_COLUMNS",
+    "ROLES",
+    "ROLE_RENAMES",
     "Design",
     "DesignEvaluation",
     "Factor",

@@ -101,7 +101,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
     Examples
     --------
     >>> from levelwise import full_factorial
-    >>> ev = evaluate(full_factorial(3, randomize=False), "linear")
+    >>> ev = evaluate(full_factorial(3, randomize=False), "A + B + C")
     >>> ev.rank, ev.df_error, round(float(ev.vif["A"]), 9)
     (4, 4, 1.0)
     """

@@ -155,13 +155,13 @@ def build_two_level(factors, m, gen_masks, gen_signs, *, center_points, replicat
     coded = np.vstack([corners] * replicates)
     blk = np.concatenate([block_no] * replicates)
     std = np.arange(1, n_corner * replicates + 1)
-    ptype = ["factorial"] * len(coded)
+    role = ["corner"] * len(coded)
     if center_points:
         per_block = np.resize(np.arange(1, (1 << b) + 1), center_points)
         coded = np.vstack([coded, np.zeros((center_points, k))])
         blk = np.concatenate([blk, np.sort(per_block)])
         std = np.concatenate([std, np.arange(len(std) + 1, len(std) + center_points + 1)])
-        ptype += ["center"] * center_points
+        role += ["centre"] * center_points
     order = np.argsort(blk, kind="stable")
     meta = dict(metadata or {})
     if b:
@@ -171,8 +171,8 @@ def build_two_level(factors, m, gen_masks, gen_signs, *, center_points, replicat
             ":".join(f.name for j, f in enumerate(factors[:m]) if g >> j & 1)
             for g in block_gens
         ]
-    return Design(factors, coded[order], np.asarray(ptype, dtype=object)[order], blk[order], randomize=randomize,
-                  seed=seed, std_order=std[order], kind=kind, structure=structure, metadata=meta)
+    return Design(factors, coded[order], np.asarray(role, dtype=object)[order], blk[order], randomize=randomize,
+                  seed=seed, standard_order=std[order], kind=kind, structure=structure, metadata=meta)
 
 
 def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=True, seed=None) -> Design:
@@ -208,8 +208,8 @@ def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=T
     Examples
     --------
     >>> d = full_factorial(3, center_points=2, randomize=False)
-    >>> len(d), list(d.table.point_type[-2:])
-    (10, ['center', 'center'])
+    >>> len(d), list(d.table.role[-2:])
+    (10, ['centre', 'centre'])
     >>> full_factorial(3, blocks=2, randomize=False).block_confounded
     ['ABC']
     """

@@ -184,11 +184,11 @@ def fractional_factorial(
                                  blocks=blocks, randomize=False, seed=seed, kind="fractional factorial")
         # Back to the user's factor order, keeping the generators as written.
         coded = design.coded[names].to_numpy()
-        corner = design.table.point_type.to_numpy() == "factorial"
+        corner = design.table.role.to_numpy() == "corner"
         structure = structure_from_runs(coded[corner], names, block_contrasts(design.table.block.to_numpy()[corner]),
                                         tuple(t for _, _, _, t in parsed))
-        result = Design(factors, coded, design.table.point_type.to_numpy(), design.table.block.to_numpy(),
-                        randomize=randomize, seed=seed, std_order=design.table.std_order.to_numpy(),
+        result = Design(factors, coded, design.table.role.to_numpy(), design.table.block.to_numpy(),
+                        randomize=randomize, seed=seed, standard_order=design.table.standard_order.to_numpy(),
                         kind="fractional factorial", structure=structure,
                         metadata={k_: v for k_, v in design.metadata.items() if k_ == "block_generators"})
         if resolution is not None and (result.resolution or k + 1) < resolution:

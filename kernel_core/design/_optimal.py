@@ -30,9 +30,20 @@ MAX_PASSES = 40
 
 
 # -- coordinate exchange ----------------------------------------------------------------------------------------
+def _last_of(table, column, default):
+    """Largest whole number in *column* of the fixed runs (*default* when the column is absent or not whole)."""
+    if column not in table.columns or not len(table):
+        return default
+    values = pd.to_numeric(table[column], errors="coerce")
+    if values.isna().any() or (values % 1 != 0).any():
+        return default
+    return int(values.max())
+
+
 def _fixed_coded(fixed_runs, factors):
+    """Coded settings of the fixed runs, with their last run id and last block (run ids continue after them)."""
     if fixed_runs is None:
-        return np.zeros((0, len(factors)))
+        return np.zeros((0, len(factors))), 0, 0
     if isinstance(fixed_runs, Design):
         fixed_runs = fixed_runs.table
     if not isinstance(fixed_runs, pd.DataFrame):
@@ -56,7 +67,7 @@ def _fixed_coded(fixed_runs, factors):
                 f"{describe(fixed_runs[f.name].iloc[row])} instead."
             )
         cols.append(f.to_coded(values.to_numpy(dtype=float)))
-    return np.column_stack(cols)
+    return np.column_stack(cols), _last_of(fixed_runs, "run", len(fixed_runs)), _last_of(fixed_runs, "block", 1)
 
 
 def _interval(G, h, point, j):
@@ -81,15 +92,18 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     factors : list of Factor or int
         Continuous factors, or categorical factors with 2 levels (coded -1/+1, never in a squared term).
     model : str
-        Wilkinson formula or preset ``"linear"``, ``"interactions"``, ``"quadratic"``.
+        Wilkinson formula or a model preset (see :func:`levelwise.parse_model`).
     runs : int
-        Number of new runs to choose (in addition to *fixed_runs*).
+        Number of new runs to choose (besides *fixed_runs*).
     criterion : {"D", "I"}, default "D"
         D: maximise det(X'X). I: minimise the average relative prediction variance over the region.
     constraints : str or list of str, optional
         Linear inequalities in natural units, e.g. ``["A + B <= 1.5", "A >= 0.2"]``.
     fixed_runs : Design or DataFrame, optional
-        Runs already made (natural units, one column per factor); they are kept and the new runs augment them.
+        Runs already made (natural units, one column per factor): the new runs are chosen to augment them, and
+        only the new runs are returned, as the next stage. Their run ids continue after the fixed runs' (the
+        ``run`` column when there is one, else their count) and they form the block after the fixed runs' last.
+        ``fixed.combine(new)`` gives both together when *fixed_runs* is a Design.
     starts : int, default 10
         Random starts; the best design is kept.
     seed : int, optional
@@ -98,13 +112,15 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         Called as ``progress(fraction_done, message)`` after each start; if it returns ``False`` the search
         stops and the best design so far is returned.
     randomize : bool, default True
-        Randomise the run order (within blocks: fixed runs are block 1, new runs block 2).
+        Randomise the order of the new runs.
 
     Returns
     -------
     Design
-        ``metadata`` holds ``d_efficiency`` (100 det(X'X)^(1/p) / n, percent), ``average_prediction_variance``
-        (mean of x'(X'X)^-1 x over the region, in units of sigma^2), ``log_det``, ``criterion`` and ``starts_run``.
+        The new runs (role ``"optimal"``). ``metadata`` holds ``d_efficiency`` (100 det(X'X)^(1/p) / n, percent),
+        ``average_prediction_variance`` (mean of x'(X'X)^-1 x over the region, in units of sigma^2), ``log_det``,
+        ``criterion``, ``starts_run`` and ``fixed_runs``; with fixed runs the first three describe the fixed and
+        new runs together (n of them), the design the search optimised.
 
     Raises
     ------
@@ -113,7 +129,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
 
     Examples
     --------
-    >>> d = optimal_design(2, "linear", runs=4, seed=1, randomize=False)
+    >>> d = optimal_design(2, "A + B", runs=4, seed=1, randomize=False)
     >>> round(d.metadata["d_efficiency"], 6)
     100.0
     """
@@ -144,7 +160,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
             f"The model {model!r} raises categorical factor(s) {squared} to a power; a two-level categorical "
             "factor has no curvature. Use a model without those terms."
         )
-    fixed = _fixed_coded(fixed_runs, factors)
+    fixed, last_run, last_block = _fixed_coded(fixed_runs, factors)
     n = runs + len(fixed)
     if n < p:
         raise LevelwiseError(
@@ -250,8 +266,6 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
             "Use more runs, a simpler model or a larger region."
         )
     d_eff = 100.0 * math.exp(logdet / p) / n
-    ptype = ["fixed"] * n_fixed + ["optimal"] * runs
-    block = [1] * n_fixed + [2 if n_fixed else 1] * runs
     meta = {
         "criterion": criterion,
         "model": spec.formula,
@@ -261,8 +275,10 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         "average_prediction_variance": apv,
         "log_det": logdet,
         "starts_run": start + 1,
+        "fixed_runs": n_fixed,
     }
-    design = Design(factors, points, ptype, block, randomize=randomize, seed=seed, kind=f"{criterion}-optimal",
+    design = Design(factors, points[n_fixed:], ["optimal"] * runs, [last_block + 1 if n_fixed else 1] * runs,
+                    randomize=randomize, seed=seed, first_run=last_run + 1, kind=f"{criterion}-optimal",
                     metadata=meta)
     design._region = (G, h)
     return design

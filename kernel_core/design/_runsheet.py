@@ -1,6 +1,6 @@
 """Run sheets: the planned runs in run order, written to CSV or XLSX (read back by ``_runsheet_reader``).
 
-A run sheet has the columns ``run, std_order, block, point_type``, one planned column per factor (natural
+A run sheet has the columns ``run, standard_order, block, role``, one planned column per factor (natural
 units), one ``"<factor> (achieved)"`` column per factor for the setting actually reached (blank = as planned),
 and one blank column per response. The XLSX file has a second sheet, ``design``, with the design's metadata, so
 a filled sheet can be read back without the Design object.
@@ -47,7 +47,7 @@ def run_sheet(design: Design, responses=("y",)) -> pd.DataFrame:
     --------
     >>> from levelwise import full_factorial
     >>> list(run_sheet(full_factorial(2, randomize=False), responses=["yield"]).columns)
-    ['run', 'std_order', 'block', 'point_type', 'A', 'B', 'A (achieved)', 'B (achieved)', 'yield']
+    ['run', 'standard_order', 'block', 'role', 'A', 'B', 'A (achieved)', 'B (achieved)', 'yield']
     """
     if not isinstance(design, Design):
         raise LevelwiseError(f"The 'design' parameter must be a Design. Got {describe(design)} instead.")

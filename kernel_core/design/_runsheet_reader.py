@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, LevelwiseWarning, describe
-from ._design import META_COLUMNS, Design
+from ._design import COLUMN_RENAMES, META_COLUMNS, ROLE_RENAMES, Design
 from ._factors import Factor
 from ._runsheet import ACHIEVED, SHEET_META, SHEET_RUNS, _responses
 
@@ -30,7 +30,7 @@ class FilledRunSheet:
     factors : tuple of Factor
     responses : tuple of str
     data : pandas.DataFrame
-        ``run, std_order, block, point_type``, one column per factor holding the achieved setting where one was
+        ``run, standard_order, block, role``, one column per factor holding the achieved setting where one was
         entered and the planned one otherwise, then the responses: ready for fitting on the actual settings.
     missing_responses : dict
         Response name -> list of run ids with no value.
@@ -76,6 +76,8 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
     Parameters
     ----------
     source : str, path or pandas.DataFrame
+        A sheet from an older levelwise (columns ``std_order`` and ``point_type``, role names such as
+        ``"factorial"``) is read with today's names (:data:`levelwise.design.ROLE_RENAMES`).
     design : Design, optional
         The planned design; if omitted, the XLSX ``design`` sheet supplies the factors.
     responses : list of str, optional
@@ -127,6 +129,10 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
     achieved = [n + ACHIEVED for n in names]
     responses = _responses(responses, [*META_COLUMNS, *names, *achieved])
     table.columns = [str(c) for c in table.columns]
+    # A sheet written by an older levelwise: its column names and role values as they are called today.
+    table = table.rename(columns={old: new for old, new in COLUMN_RENAMES.items() if new not in table.columns})
+    if "role" in table.columns:
+        table["role"] = [ROLE_RENAMES.get(v, v) if isinstance(v, str) else v for v in table["role"]]
     expected = [*META_COLUMNS, *names, *achieved, *responses]
     unknown = [c for c in table.columns if c not in expected]
     missing = [c for c in expected if c not in table.columns]
@@ -156,10 +162,10 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
         if strange:
             raise LevelwiseError(f"The run sheet has run id(s) {strange} that the design does not have.")
     out = pd.DataFrame({"run": run_ids})
-    for col in ("std_order", "block"):
+    for col in ("standard_order", "block"):
         values = _numeric(table, col, run_ids)
         out[col] = values.astype(int) if values.notna().all() and (values % 1 == 0).all() else values
-    out["point_type"] = table["point_type"]
+    out["role"] = table["role"]
     data = out.copy()
     for f, a in zip(factors, achieved):
         if f.is_categorical:

@@ -81,8 +81,8 @@ def plackett_burman(factors, runs=None, center_points=0, randomize=True, seed=No
     if center_points and any(f.is_categorical for f in factors):
         raise LevelwiseError("The 'center_points' parameter must be 0 when a factor is categorical.")
     coded = np.vstack([matrix[:, :k], np.zeros((center_points, k))])
-    ptype = ["factorial"] * runs + ["center"] * center_points
-    return Design(factors, coded, ptype, randomize=randomize, seed=seed, kind="Plackett-Burman",
+    role = ["corner"] * runs + ["centre"] * center_points
+    return Design(factors, coded, role, randomize=randomize, seed=seed, kind="Plackett-Burman",
                   metadata={"generator_row": GENERATORS[runs]})
 
 
