@@ -35,7 +35,7 @@ import pandas as pd
 import scipy.linalg
 
 from .._errors import LevelwiseError, LevelwiseWarning, describe
-from ..design import META_COLUMNS
+from ..design._design import META_COLUMNS
 from ._coding import _coding_for, _expand, encode, sum_to_zero
 from ._formula import PRESETS, ModelSpec, monomials, names_in_model, parse_model
 from ._inputs import (
@@ -122,7 +122,7 @@ def fit(
             f"Got {describe(response)} instead."
         )
     if factors is not None:
-        from ..factors import as_factors
+        from ..design import as_factors
 
         factors = as_factors(factors)
         names = [f.name for f in factors]
