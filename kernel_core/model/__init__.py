@@ -7,7 +7,8 @@ Private modules by role (import the names from here or from ``levelwise``):
 - ``_coding`` natural <-> coded, sum-to-zero contrasts, categorical expansion
 - ``_numerics`` pivoted QR, rank and aliases, extended-precision re-solve
 - ``_fit`` :func:`fit`; ``_result`` the :class:`Fit` result; ``_exclusions`` rank-one exclude/include
-- ``_engine`` the one :class:`PredictionEngine`; ``_polynomials`` exact trace/slice polynomials;
+- ``_engine`` the one :class:`PredictionEngine`; ``_settings`` its settings check; ``_polynomials`` exact
+  trace/slice polynomials;
   ``_slices`` :func:`slice_grid`
 - ``_anova``, ``_diagnostics``, ``_effects``, ``_boxcox``, ``_reduce``, ``_optimize`` analyses of a fit
 """

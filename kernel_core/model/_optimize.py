@@ -221,23 +221,10 @@ def _factor_union(fits: dict) -> tuple[list[str], dict]:
 
 
 def _mean_function(fit, names: list[str]):
-    """Fast mean prediction from an (m, k_all) array of natural settings (no DataFrames, no Python loops)."""
+    """Mean prediction from an (m, k_all) array of natural settings, through the fit's prediction engine."""
     columns = [names.index(n) for n in fit.factor_names]
-    exponents = getattr(fit.spec, "exponents", None)
-    if exponents is not None and np.shape(exponents) == (len(fit.beta), len(fit.factor_names)):
-        exponents = np.asarray(exponents, dtype=float)
-        center = np.asarray(fit.coding.center, dtype=float)
-        scale = np.asarray(fit.coding.scale, dtype=float)
-        beta = np.asarray(fit.beta, dtype=float)
-
-        def mean(natural):
-            coded = (natural[:, columns] - center) / scale
-            return np.prod(coded[:, None, :] ** exponents[None, :, :], axis=2) @ beta
-
-        return mean
-    return lambda natural: fit.predict(pd.DataFrame(natural[:, columns], columns=list(fit.factor_names)))[
-        "mean"
-    ].to_numpy()
+    engine = fit.engine
+    return lambda natural: engine.mean_and_leverage(natural[:, columns])[0]
 
 
 def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None) -> Optimum:
