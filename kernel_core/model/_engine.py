@@ -45,6 +45,7 @@ from ._inputs import _check_level
 from ._polynomials import PolynomialPlan
 from ._settings import SettingsCheck, check_points, check_shape
 
+_PREDICTION_COLUMNS = ("mean", "ci_low", "ci_high", "pi_low", "pi_high", "leverage")
 #: Settings per block when predicting many at once (the model rows of a block stay in cache).
 _BLOCK = 2048
 
@@ -243,11 +244,22 @@ class PredictionEngine(SettingsCheck):
         natural_t = self.columns(settings)
         mean, h = self._mean_and_leverage_columns(natural_t)
         c = self._scale(level)
-        ci, pi = c * np.sqrt(h), c * np.sqrt(h + self.extra)
-        return pd.DataFrame({
-            "mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi, "pi_high": mean + pi,
-            "leverage": h, "extrapolated": self._extrapolated_columns(natural_t, h),
-        })
+        # One (6, m) block written in place becomes the frame's float columns without a copy.
+        block = np.empty((6, len(mean)))
+        ci, pi = block[1], block[3]
+        np.sqrt(h, out=ci)
+        ci *= c
+        np.add(h, self.extra, out=pi)
+        np.sqrt(pi, out=pi)
+        pi *= c
+        block[0], block[5] = mean, h
+        np.add(mean, ci, out=block[2])
+        np.subtract(mean, ci, out=ci)
+        np.add(mean, pi, out=block[4])
+        np.subtract(mean, pi, out=pi)
+        frame = pd.DataFrame(block.T, columns=_PREDICTION_COLUMNS, copy=False)
+        frame["extrapolated"] = self._extrapolated_columns(natural_t, h)
+        return frame
 
     def point(self, settings, level=None, natural=None, powers=None) -> dict:
         """One setting -> ``mean``, ``ci_low/high``, ``pi_low/high``, ``leverage``, ``extrapolated``."""
