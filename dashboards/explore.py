@@ -15,6 +15,7 @@ import ipywidgets as ipw
 from levelwise import LevelwiseError
 
 from ._compose import find_view
+from .kernel_guard import guard_kernel
 from .present import unavailable
 from .study_source import StudySource, open_study, shared_model
 from .summary import caution_html
@@ -33,6 +34,7 @@ def demo_shared_model(read_only: bool = False):
 
 def build(source=None) -> ipw.VBox:
     """The workbench on *source* (a path, ``"demo"``, a StudySource or None: see :func:`open_study`)."""
+    guard_kernel()
     try:
         source = source if isinstance(source, StudySource) else open_study(source)
         shared = shared_model(source, read_only=False)
