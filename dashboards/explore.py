@@ -13,6 +13,7 @@ import html
 import ipywidgets as ipw
 
 from levelwise import LevelwiseError
+from levelwise.widgets.style import NO_MATH
 
 from ._compose import find_view
 from .kernel_guard import guard_kernel
@@ -52,6 +53,6 @@ def build(source=None) -> ipw.VBox:
         view = view_class(shared)
         views.append(view)
         boxes.append(view.widget)
-    page = ipw.VBox([title, banner, *boxes]).add_class("lw-explore")
+    page = ipw.VBox([title, banner, *boxes]).add_class("lw-explore").add_class(NO_MATH)  # no text is typeset
     page.shared, page.views, page.source = shared, views, source
     return page

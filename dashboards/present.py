@@ -16,6 +16,7 @@ import re
 import ipywidgets as ipw
 
 from levelwise import LevelwiseError
+from levelwise.widgets.style import NO_MATH
 
 from ._compose import find_view
 from .kernel_guard import guard_kernel, log_line
@@ -146,7 +147,7 @@ def unavailable(exc) -> ipw.VBox:
         f'<h2>This dashboard cannot show its study</h2><div class="lw-error">{html.escape(without_paths(str(exc)))}'
         "</div>"
     ).add_class("lw-unavailable")
-    page = ipw.VBox([message, ShownHTML(caution_html())]).add_class("lw-present")
+    page = ipw.VBox([message, ShownHTML(caution_html())]).add_class("lw-present").add_class(NO_MATH)
     page.shared, page.views, page.source = None, [], None
     return page
 
@@ -176,6 +177,6 @@ def build(source=None) -> ipw.VBox:
         view = view_class(shared)
         views.append(view)
         children.append(_read_only_part(name, view, source))
-    page = ipw.VBox(children).add_class("lw-present")
+    page = ipw.VBox(children).add_class("lw-present").add_class(NO_MATH)  # no text on the page is typeset
     page.shared, page.views, page.source = shared, views, source
     return page

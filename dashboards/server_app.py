@@ -31,6 +31,9 @@ KERNEL_MB = 250
 #: Seconds a page view may take to start its kernel before its place is given back.
 START_GRACE = 120
 
+#: Stylesheet links of voila's template to other hosts (an icon font on a CDN): dropped from the page, so no
+#: request leaves the server's host (the page's icons come from voila's own bundle).
+_FOREIGN_LINK = re.compile(r"""<link\b[^>]*\bhref=["']?(?:https?:)?//[^>]*>""", re.IGNORECASE)
 _KERNEL_ID = re.compile(r'"kernelId":\s*"([0-9a-f-]{36})"')
 
 BUSY_PAGE = """<!doctype html>
@@ -115,6 +118,8 @@ class LimitedVoilaHandler(TornadoVoilaHandler):
                 limits.release(self._lw_view)
 
     def write(self, chunk):
+        if isinstance(chunk, str) and "<link" in chunk:
+            chunk = _FOREIGN_LINK.sub("", chunk)
         view = getattr(self, "_lw_view", None)
         if view is not None and view["kernel"] is None and isinstance(chunk, str):
             found = _KERNEL_ID.search(chunk)

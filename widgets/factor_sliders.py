@@ -20,7 +20,7 @@ from levelwise import LevelwiseError
 
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical
-from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, PI_COLOR, WORDS, fmt
+from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, PI_COLOR, WORDS, fmt, inert_html
 
 
 def band(mean, half):
@@ -101,7 +101,8 @@ class FactorSliders(View):
         for f in self.shared.factors:
             if is_categorical(f):
                 choice = ipw.Dropdown(options=list(f.levels), value=self.shared.settings[f.name],
-                                      description=f.label, style={"description_width": "initial"})
+                                      description=inert_html(f.label), description_allow_html=True,
+                                      style={"description_width": "initial"})
                 choice.add_class("lw-level-choice")
                 choice.observe(self.safely(self._on_slider), names="value")
                 self.sliders[f.name] = choice
@@ -111,7 +112,8 @@ class FactorSliders(View):
                 min=f.low,
                 max=f.high,
                 step=(f.high - f.low) / 100.0,
-                description=f.label,
+                description=inert_html(f.label),  # plain text: never typeset as math, never markup
+                description_allow_html=True,
                 continuous_update=True,
                 readout_format=".4g",
                 style={"description_width": "initial"},
