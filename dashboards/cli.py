@@ -44,10 +44,12 @@ def _run_server(notebook, args, *, study_env: str | None, what: str, preheat: bo
         notebook, args.port, args.ip, token=args.token, preheat=preheat, pool_size=getattr(args, "pool_size", 1),
         config_dir=config_dir, cull_idle_timeout=idle, cull_interval=max(1, min(CULL_INTERVAL, idle // 2)),
         max_kernels=getattr(args, "max_kernels", 0), max_kernels_per_client=getattr(args, "per_client", PER_CLIENT),
+        base_url=getattr(args, "base_url", "/"),
     )
     env = server_env({STUDY_ENV: study_env} if study_env else None)
     query = f"?token={args.token}" if args.token else ""
-    print(f"levelwise: serving {what} at http://{args.ip}:{args.port}/{query} (Ctrl-C to stop)", flush=True)
+    prefix = "/" + getattr(args, "base_url", "/").strip("/") + "/" if getattr(args, "base_url", "/").strip("/") else "/"
+    print(f"levelwise: serving {what} at http://{args.ip}:{args.port}{prefix}{query} (Ctrl-C to stop)", flush=True)
     # Become the voila server (exec): Ctrl-C and SIGTERM reach it directly, and no orphan is left behind.
     os.chdir(Path(notebook).parent)
     os.execve(command[0], command, env)
@@ -148,6 +150,8 @@ def _server_options(parser) -> None:
     parser.add_argument("--port", type=_port, default=DEFAULT_PORT, help=f"Port (default {DEFAULT_PORT}).")
     parser.add_argument("--ip", default="127.0.0.1",
                         help="Address to bind (default 127.0.0.1: this machine only; 0.0.0.0 for every interface).")
+    parser.add_argument("--base-url", default="/", dest="base_url",
+                        help="Path prefix the server answers under, behind a proxy (e.g. /services/NAME/; default /).")
     parser.add_argument("--token", default=None,
                         help="Require this token (?token=... in the URL). Default: no token, which is safe on "
                              "127.0.0.1 only.")

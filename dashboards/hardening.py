@@ -46,6 +46,8 @@ CONNECTION_CLASS = "levelwise.dashboards.hardening.V1OnlyWebsocketConnection"
 MAX_MESSAGE_BYTES = 1024 * 1024
 #: The comm target the browser's widget manager opens to fetch the widgets' state; the only one it may open.
 CONTROL_TARGET = "jupyter.widget.control"
+#: What a refused frame counts against a connection's message rate (an accepted message counts 1).
+REFUSED_COST = 0.1
 #: Refused frames by kind, for this server process (the log has the first of each kind per connection).
 REFUSALS: dict[str, int] = {}
 
@@ -114,7 +116,7 @@ class V1OnlyWebsocketConnection(ZMQChannelsWebsocketConnection):
             raise web.HTTPError(400, f"This server only speaks the {V1_PROTOCOL} kernel websocket protocol.")
         self._refused: dict[str, int] = {}
         self._tokens, self._stamp = float(self.message_burst), time.monotonic()
-        self._control_opened = 0
+        self._control_opened, self._cost = 0, 1.0
         # Tornado awaits what on_message returns before it reads the next frame: our on_message can pause.
         self.websocket_handler.on_message = self.receive
         return await super().prepare()
@@ -122,6 +124,7 @@ class V1OnlyWebsocketConnection(ZMQChannelsWebsocketConnection):
     # -- incoming ---------------------------------------------------------------------------------------
     def refuse(self, kind: str, detail: str) -> None:
         """Count a refused frame; log the first of each kind on this connection (one line, no traceback)."""
+        self._cost = REFUSED_COST  # a refused frame never reaches the kernel: it costs the server little
         seen = self._refused.get(kind, 0)
         self._refused[kind] = seen + 1
         REFUSALS[kind] = REFUSALS.get(kind, 0) + 1
@@ -134,11 +137,12 @@ class V1OnlyWebsocketConnection(ZMQChannelsWebsocketConnection):
         now = time.monotonic()
         self._tokens = min(float(self.message_burst), self._tokens + (now - self._stamp) * self.message_rate)
         self._stamp = now
-        self._tokens -= 1.0
+        self._cost = 1.0
         try:
             self.handle_incoming_message(message)
         except Exception as exc:  # noqa: BLE001 - a malformed message fails quietly, with one log line
             self.refuse("malformed", f"{type(exc).__name__}: {exc}")
+        self._tokens -= self._cost
         if self._tokens < 0:
             return asyncio.sleep(-self._tokens / self.message_rate)
         return None
@@ -157,23 +161,25 @@ class V1OnlyWebsocketConnection(ZMQChannelsWebsocketConnection):
             header = json.loads(parts[0])
             if not isinstance(header, dict) or not isinstance(header.get("msg_type"), str):
                 raise FrameRefused("the header is not a message header")
+            content = json.loads(parts[3])
+            if not isinstance(content, dict):
+                raise FrameRefused("the content is not an object")
+            if header["msg_type"].startswith("comm_") and header["msg_type"] != "comm_info_request" and not (
+                isinstance(content.get("comm_id"), str) and isinstance(content.get("data", {}), dict)
+            ):
+                raise FrameRefused("a comm message without a comm id or with data that is not an object")
         except FrameRefused as exc:
             self.refuse("frame", str(exc))
             return
         except ValueError as exc:
             self.refuse("frame", f"unreadable header ({type(exc).__name__})")
             return
-        if header["msg_type"] == "comm_open" and not self._comm_open_allowed(channel, header, parts):
+        if header["msg_type"] == "comm_open" and not self._comm_open_allowed(header, content):
             return
         super().handle_incoming_message(bytes(incoming_msg))
 
-    def _comm_open_allowed(self, channel: str, header: dict, parts: list[bytes]) -> bool:
-        try:
-            content = json.loads(parts[3])
-            target = content.get("target_name") if isinstance(content, dict) else None
-            comm_id = content.get("comm_id") if isinstance(content, dict) else None
-        except ValueError:
-            target = comm_id = None
+    def _comm_open_allowed(self, header: dict, content: dict) -> bool:
+        target, comm_id = content.get("target_name"), content.get("comm_id")
         if target == CONTROL_TARGET and self._control_opened < self.control_opens:
             self._control_opened += 1
             return True
@@ -315,6 +321,7 @@ def voila_command(
     cull_interval: int = CULL_INTERVAL,
     max_kernels: int = 0,
     max_kernels_per_client: int = PER_CLIENT,
+    base_url: str = "/",
     config_dir=None,
 ) -> list[str]:
     """The standalone voila command line for one notebook, with every hardened setting.
@@ -334,6 +341,8 @@ def voila_command(
     if config_dir is not None:
         command.append(f"--Voila.config_file_paths={json.dumps([str(config_dir)])}")
     command += config_arguments(config)
+    if base_url not in ("", "/"):
+        command.append(f"--Voila.base_url=/{base_url.strip('/')}/")
     command.append(f"--Voila.token={token}" if token else "--Voila.token=")
     return command
 
