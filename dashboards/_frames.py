@@ -35,7 +35,8 @@ def v1_parts(frame, max_offsets: int = MAX_OFFSETS) -> tuple[str, list[bytes]]:
     """The channel and message parts of a v1 frame, or :class:`FrameRefused` when its layout is inconsistent.
 
     Layout (jupyter_server's ``serialize_msg_to_ws_v1``): an 8-byte little-endian count *n*, *n* 8-byte
-    offsets, then the channel name and the parts, offset *i* being where part *i* starts.
+    offsets, then the channel name and the parts; offsets *i* and *i + 1* bound part *i* (the channel is
+    part 0), so the last offset is the end of the last part. Read as ``deserialize_msg_from_ws_v1`` reads it.
 
     Examples
     --------
@@ -64,9 +65,7 @@ def v1_parts(frame, max_offsets: int = MAX_OFFSETS) -> tuple[str, list[bytes]]:
         channel = frame[offsets[0]: offsets[1]].decode("ascii")
     except UnicodeDecodeError:
         raise FrameRefused("channel name is not text") from None
-    parts = [frame[offsets[i]: offsets[i + 1]] for i in range(1, count - 1)]
-    parts.append(frame[offsets[-1]:])
-    return channel, parts
+    return channel, [frame[offsets[i]: offsets[i + 1]] for i in range(1, count - 1)]
 
 
 def nesting_depth(text: bytes) -> int:
@@ -90,6 +89,8 @@ def nesting_depth(text: bytes) -> int:
 def check_depth(parts: list[bytes], max_depth: int = MAX_DEPTH, json_parts: int = 4) -> None:
     """Refuse a message whose JSON parts (the first *json_parts*) nest deeper than *max_depth*."""
     for part in parts[:json_parts]:
+        if part.count(b"[") + part.count(b"{") <= max_depth:
+            continue  # cannot nest deeper than it has brackets
         depth = nesting_depth(part)
         if depth > max_depth:
             raise FrameRefused(f"JSON nested {depth} deep (at most {max_depth})")
