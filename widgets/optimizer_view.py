@@ -19,7 +19,7 @@ from levelwise import LevelwiseError, optimize
 
 from ._base import View
 from .shared_model import SharedModel
-from .style import fmt
+from .style import fmt, inert_html
 
 GOAL_CHOICES = [("no goal", "none"), ("maximise", "maximize"), ("minimise", "minimize"), ("hit a target", "target")]
 
@@ -98,8 +98,9 @@ class OptimizerView(View):
             lo, hi = (float(values.min()), float(values.max())) if values.size else (0.0, 1.0)
             units = self.shared.units.get(response, "")
             unit = f" ({units})" if units else ""
-            row = {"kind": ipw.Dropdown(options=GOAL_CHOICES, value="none", description=f"{response}{unit}",
-                                        style={"description_width": "initial"}).add_class("lw-goal-kind")}
+            kind = ipw.Dropdown(options=GOAL_CHOICES, value="none", description=inert_html(f"{response}{unit}"),
+                                description_allow_html=True, style={"description_width": "initial"})
+            row = {"kind": kind.add_class("lw-goal-kind")}
             start = {"lower_limit": lo, "target": (lo + hi) / 2, "upper_limit": hi}
             for key, label in GOAL_FIELDS:
                 row[key] = ipw.FloatText(value=start.get(key, 1.0), description=label,
