@@ -67,7 +67,7 @@ from .evaluation import DesignEvaluation, evaluate  # noqa: E402
 from .fractional import fold_over, fractional_factorial  # noqa: E402
 from .optimal import optimal_design  # noqa: E402
 from .rsm_designs import box_behnken, central_composite  # noqa: E402
-from .runsheet import FilledRunSheet, read_run_sheet, run_sheet, write_run_sheet  # noqa: E402
+from .runsheet import run_sheet, write_run_sheet  # noqa: E402
 from .screening import plackett_burman  # noqa: E402
 
 __all__ += [
@@ -86,6 +86,35 @@ __all__ += [
 ]
 
 # The study file and data exchange (issue 7).
-from .study import Study  # noqa: E402
+from .study import (  # noqa: E402
+    FilledRunSheet,
+    ImportReport,
+    Problem,
+    Study,
+    export_anova,
+    export_coefficients,
+    export_predictions,
+    export_run_sheet,
+    export_table,
+    import_table,
+    read_run_sheet,
+    read_table,
+    study_run_sheet,
+)
 
-__all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
+__all__ += [
+    "ImportDataError",
+    "ImportReport",
+    "OutsideEditError",
+    "Problem",
+    "Study",
+    "StudyFileError",
+    "export_anova",
+    "export_coefficients",
+    "export_predictions",
+    "export_run_sheet",
+    "export_table",
+    "import_table",
+    "read_table",
+    "study_run_sheet",
+]

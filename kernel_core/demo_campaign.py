@@ -101,7 +101,7 @@ def truth(response: str, natural: dict) -> float:
 @contextmanager
 def _fixed_clock(start=datetime(2026, 11, 2, 7, 30, tzinfo=UTC)):
     """Audit timestamps from a fixed, advancing clock, so the generated file is the same every time."""
-    from . import study as study_module
+    from .study import _values
 
     ticks = iter(range(10**6))
 
@@ -109,12 +109,12 @@ def _fixed_clock(start=datetime(2026, 11, 2, 7, 30, tzinfo=UTC)):
         moment = start + timedelta(minutes=next(ticks))
         return moment.isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
-    saved = study_module._now
-    study_module._now = now
+    saved = _values.now
+    _values.now = now
     try:
         yield
     finally:
-        study_module._now = saved
+        _values.now = saved
 
 
 def _record(study, rng, run: int, skip=()) -> None:
@@ -148,7 +148,8 @@ def campaign_study():
         screen_ids = study.add_stage("screen", screen, description="2^(6-2) resolution IV screen, 4 centre points",
                                      reason="find the active factors")
         oven = screen.table["Oven"].to_numpy()
-        factorial = np.flatnonzero(screen.table["point_type"].to_numpy() == "factorial")
+        roles = screen.table["role" if "role" in screen.table else "point_type"].to_numpy()
+        factorial = np.flatnonzero(np.isin(roles, ("corner", "factorial")))
         missed = {
             int(factorial[oven[factorial] == FACTORS[0].high][0]): OVEN_MISSES["high"],
             int(factorial[oven[factorial] == FACTORS[0].low][0]): OVEN_MISSES["low"],
@@ -177,7 +178,8 @@ def campaign_study():
             if f.name not in ACTIVE:
                 table[f.name] = f.center
         surface_ids = study.add_stage("surface", table, description="face-centred central composite on "
-                                      + ", ".join(ACTIVE), reason="model curvature in the active factors")
+                                      + ", ".join(ACTIVE), reason="model curvature in the active factors",
+                                      renumber=True)  # an independent design: its runs follow the study's
         for run in surface_ids:
             _record(study, rng, run)
         for response in RESPONSES:
