@@ -28,7 +28,7 @@ def workbench(served_workbench, browser):
 
 @pytest.fixture(scope="module")
 def study():
-    return open_study("demo").study
+    return open_study("demo")
 
 
 def slider_values(page) -> list[float]:

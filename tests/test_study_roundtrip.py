@@ -283,3 +283,10 @@ def test_add_stage_keeps_the_run_ids_of_an_augmentation_and_refuses_repeated_one
     assert study.add_stage("confirm", screen, renumber=True) == list(range(17, 25))
     with pytest.raises(LevelwiseError, match=r"names run id\(s\) \[3\] more than once"):
         study.add_stage("twice", screen.table.assign(run=[1, 2, 3, 3, 30, 31, 32, 33]))
+
+
+def test_exclusions_table_keeps_none_for_every_response():
+    study = small_study()  # run 4 excluded from Impact only, run 7 from every response
+    rows = study.exclusions[["run", "response"]].values.tolist()
+    assert rows == [[4, "Impact"], [7, None]]
+    assert study.exclusions["response"].iloc[1] is None  # not NaN: "every response" stays distinguishable

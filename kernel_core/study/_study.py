@@ -119,9 +119,13 @@ class Study(StudyTables, StudyFile):
     @property
     def exclusions(self) -> pd.DataFrame:
         """One row per exclusion: ``run``, ``response`` (None: every response), ``reason``, ``when``."""
-        return pd.DataFrame(self._exclusions, columns=["run", "response", "reason", "when"]).astype(
-            {"run": "int64"}
-        )
+        items = self._exclusions
+        return pd.DataFrame({
+            "run": np.array([item["run"] for item in items], dtype=np.int64),
+            "response": pd.Series([item["response"] for item in items], dtype=object),  # None: every response
+            "reason": pd.Series([item["reason"] for item in items], dtype=object),
+            "when": pd.Series([item["when"] for item in items], dtype=object),
+        })
 
     def __len__(self) -> int:
         return len(self._runs)

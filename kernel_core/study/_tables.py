@@ -94,13 +94,15 @@ class StudyTables:
         return self._frame("achieved")[["run", *self.factor_names]]
 
     # ----- fitting ---------------------------------------------------------------------------
-    def fit_table(self, response: str | None = None) -> pd.DataFrame:
-        """The table :meth:`fit` hands to :func:`levelwise.fit`: one row per run (index = run id), exclusions applied.
+    def fit_table(self, response: str | None = None, *, apply_exclusions: bool = True) -> pd.DataFrame:
+        """The table :meth:`fit` hands to :func:`levelwise.fit`: one row per run (index = run id).
 
         Factor columns hold the *planned* settings; a ``"<factor> (achieved)"`` column is added for each
         continuous factor with an achieved setting recorded (NaN where the run went as planned), so the
-        fit uses the settings as run and reports :attr:`Fit.setting_deviations`. With *response*, runs
-        excluded from that response only are dropped as well.
+        fit uses the settings as run and reports :attr:`Fit.setting_deviations`. With *apply_exclusions*,
+        runs excluded from every response are dropped, and with *response* those excluded from that
+        response only as well (the shared model of the widgets fits every run and leaves the excluded
+        ones out by the kernel's update instead, so that the fit keeps their reasons).
         """
         frame = self._frame("planned")
         achieved = self._frame("achieved")
@@ -109,6 +111,8 @@ class StudyTables:
                 frame[factor.name + ACHIEVED] = achieved[factor.name]
             elif _is_categorical(factor):
                 frame[factor.name] = self._frame("actual")[factor.name]
+        if not apply_exclusions:
+            return frame
         drop = {item["run"] for item in self._exclusions
                 if item["response"] is None or (response is not None and item["response"] == response)}
         return frame.drop(index=sorted(drop))
