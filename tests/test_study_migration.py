@@ -68,11 +68,22 @@ def test_format_1_example_migrates_to_the_runs_of_the_current_example():
 
 
 def test_shipped_demo_of_format_1_migrates_to_the_regenerated_demo():
-    old = Study.load(DATA / "demo_campaign_v1.json")
-    shipped = Study.load(SHIPPED)
-    assert old.to_dict()["runs"] == shipped.to_dict()["runs"]
-    assert old.to_dict()["exclusions"] == shipped.to_dict()["exclusions"]
-    assert old.models == shipped.models
+    old = Study.load(DATA / "demo_campaign_v1.json").to_dict()
+    shipped = Study.load(SHIPPED).to_dict()
+    # The same seeded script wrote both. The fold-over stage is now randomised on its own (fold_over returns only
+    # the new runs), so its run order and the noise drawn for each run differ; the screen and the surface
+    # stage (whose noise is drawn after the same number of draws) are the same runs, value for value.
+    for stage in ("screen", "surface"):
+        assert [r for r in old["runs"] if r["stage"] == stage] == [r for r in shipped["runs"] if r["stage"] == stage]
+
+    def folded(document):
+        return sorted(
+            (tuple(sorted(r["planned"].items())), r["role"], r["block"]) for r in document["runs"]
+            if r["stage"] == "fold-over"
+        )
+
+    assert len(folded(shipped)) == 16 and folded(old) == folded(shipped)  # the same 16 mirrored settings
+    assert old["exclusions"] == shipped["exclusions"] and old["models"] == shipped["models"]
 
 
 def test_the_frozen_mapping_of_format_1():

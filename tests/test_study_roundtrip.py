@@ -290,3 +290,21 @@ def test_exclusions_table_keeps_none_for_every_response():
     rows = study.exclusions[["run", "response"]].values.tolist()
     assert rows == [[4, "Impact"], [7, None]]
     assert study.exclusions["response"].iloc[1] is None  # not NaN: "every response" stays distinguishable
+
+
+def test_a_fold_over_stage_adds_only_the_new_runs():
+    from levelwise import fold_over, fractional_factorial
+
+    factors = [Factor(name, -1, 1) for name in "ABCDEFG"]
+    study = Study(factors)
+    screen = fractional_factorial(factors, runs=8, seed=1)
+    study.add_stage("screen", screen)
+    new = fold_over(screen, seed=2)
+    ids = study.add_stage("fold-over", new)
+    assert ids == list(new.table["run"]) and sorted(ids) == list(range(9, 17))  # ids continue after 1..8
+    assert len(study) == 16
+    planned = study.planned()
+    assert set(planned.loc[ids, "block"]) == {2}
+    with pytest.raises(LevelwiseError, match=r"repeats run id\(s\) \[1, 2, 3, 4, 5, 6, 7, 8, 9, 10, '...'\]"):
+        study.add_stage("both", screen.combine(new))  # the old runs again: refused, nothing added
+    assert len(study) == 16

@@ -12,7 +12,7 @@ import json
 from pathlib import Path
 
 from .._errors import LevelwiseError, OutsideEditError, StudyFileError, describe
-from ..factors import Factor
+from ..design import Factor
 from ._format import FORMAT_VERSION, _pretty, _reject_constant, _validate, content_hash, write_atomically
 from ._migrations import MIGRATIONS
 from ._values import _factor_entry, _finite, _is_categorical, _name, _plain, _setting, _text, engine_model

@@ -15,7 +15,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from .._errors import ImportDataError, LevelwiseError, LevelwiseWarning, describe
-from ..factors import Factor
+from ..design import Factor
 from ._import import import_table
 from ._table_reader import Problem, _error, parse_header, read_table
 from ._tables import ACHIEVED

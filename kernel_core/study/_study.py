@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, describe
-from ..factors import Factor, as_factors
+from ..design import Factor, as_factors
 from . import _values
 from ._persist import StudyFile
 from ._tables import StudyTables

@@ -9,7 +9,7 @@ from datetime import UTC, datetime
 import numpy as np
 
 from .._errors import LevelwiseError, describe
-from ..factors import Factor
+from ..design import Factor
 
 #: Column names used by :meth:`Study.data` and :meth:`Study.table`; no factor or response may take them.
 RESERVED_NAMES = ("run", "stage", "block", "standard_order", "role", "excluded")

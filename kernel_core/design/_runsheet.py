@@ -1,10 +1,10 @@
-"""Run sheets: the planned runs in run order, written to CSV or XLSX and read back after the experiment.
+"""Run sheets: the planned runs in run order, written to CSV or XLSX (read back by
+:func:`levelwise.read_run_sheet`, in :mod:`levelwise.study`).
 
-A run sheet has the columns ``run, std_order, block, point_type``, one planned column per factor (natural
+A run sheet has the columns ``run, standard_order, block, role``, one planned column per factor (natural
 units), one ``"<factor> (achieved)"`` column per factor for the setting actually reached (blank = as planned),
 and one blank column per response. The XLSX file has a second sheet, ``design``, with the design's metadata, so
-a filled sheet can be read back without the Design object (:func:`levelwise.read_run_sheet`, in the study package,
-which goes through the one table importer).
+a filled sheet can be read back without the Design object.
 """
 
 from __future__ import annotations
@@ -15,8 +15,8 @@ import os
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
-from .design import META_COLUMNS, Design
+from .._errors import LevelwiseError, describe
+from ._design import META_COLUMNS, Design
 
 ACHIEVED = " (achieved)"
 SHEET_RUNS = "runs"
@@ -48,7 +48,7 @@ def run_sheet(design: Design, responses=("y",)) -> pd.DataFrame:
     --------
     >>> from levelwise import full_factorial
     >>> list(run_sheet(full_factorial(2, randomize=False), responses=["yield"]).columns)
-    ['run', 'std_order', 'block', 'point_type', 'A', 'B', 'A (achieved)', 'B (achieved)', 'yield']
+    ['run', 'standard_order', 'block', 'role', 'A', 'B', 'A (achieved)', 'B (achieved)', 'yield']
     """
     if not isinstance(design, Design):
         raise LevelwiseError(f"The 'design' parameter must be a Design. Got {describe(design)} instead.")
