@@ -13,8 +13,10 @@ import html
 import ipywidgets as ipw
 
 from levelwise import LevelwiseError, Study
+from levelwise.widgets.style import NO_MATH
 
 from ._compose import find_view
+from .kernel_guard import guard_kernel
 from .present import unavailable
 from .study_source import is_invented, open_study, shared_model, title_of
 from .summary import caution_html
@@ -33,6 +35,7 @@ def demo_shared_model(read_only: bool = False):
 
 def build(source=None) -> ipw.VBox:
     """The workbench on *source* (a Study, a path, ``"demo"`` or None: see :func:`open_study`)."""
+    guard_kernel()
     try:
         study = source if isinstance(source, Study) else open_study(source)
         shared = shared_model(study, read_only=False)
@@ -50,6 +53,6 @@ def build(source=None) -> ipw.VBox:
         view = view_class(shared)
         views.append(view)
         boxes.append(view.widget)
-    page = ipw.VBox([title, banner, *boxes]).add_class("lw-explore")
+    page = ipw.VBox([title, banner, *boxes]).add_class("lw-explore").add_class(NO_MATH)  # no text is typeset
     page.shared, page.views, page.study = shared, views, study
     return page
