@@ -4,7 +4,14 @@ Pure numpy / pandas / scipy / statsmodels. Nothing here imports Jupyter,
 widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
-from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
+from ._errors import (
+    ImportDataError,
+    LevelwiseError,
+    LevelwiseWarning,
+    OutsideEditError,
+    StudyConflictError,
+    StudyFileError,
+)
 from ._version import __version__
 from .design import (
     Design,
@@ -125,6 +132,7 @@ __all__ += [
     "OutsideEditError",
     "Problem",
     "Study",
+    "StudyConflictError",
     "StudyFileError",
     "export_anova",
     "export_coefficients",

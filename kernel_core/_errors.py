@@ -36,6 +36,14 @@ class OutsideEditError(StudyFileError):
     """
 
 
+class StudyConflictError(StudyFileError):
+    """The study file changed on disk since this study was loaded or last saved (another process saved it).
+
+    Saving would overwrite those changes, so the save is refused. Load the file again to see them, save to another
+    path, or save with ``overwrite=True`` to replace them.
+    """
+
+
 class ImportDataError(LevelwiseError):
     """A CSV or XLSX import with problems; ``problems`` lists each one with its row and column."""
 

@@ -15,11 +15,12 @@ import hashlib
 import json
 import os
 import shutil
+import stat
 import tempfile
 from importlib import resources
 from pathlib import Path
 
-from .._errors import StudyFileError
+from .._errors import StudyConflictError, StudyFileError
 
 #: The format this version of levelwise writes.
 FORMAT_VERSION = 2
@@ -140,27 +141,144 @@ def _json_path(parts) -> str:
 
 
 # ----- writing -----------------------------------------------------------------------------------
-def write_atomically(path: Path, payload: bytes) -> Path:
+def real_path(path: Path) -> Path:
+    """The file a save writes: *path* itself, or the target of *path* when it is a symbolic link."""
+    return Path(os.path.realpath(path)) if path.is_symlink() else path
+
+
+def file_revision(path: Path) -> str | None:
+    """SHA-256 (hex) of the bytes of the file at *path*, or None when there is no file."""
+    try:
+        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    except FileNotFoundError:
+        return None
+
+
+def _umask() -> int:
+    """The process umask, read without changing it where the system allows (Linux: /proc/self/status)."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as handle:
+            for line in handle:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError):
+        pass
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _is_leftover(name: str, target: str) -> bool:
+    """True for the temporary files a save of *target* writes (``.<target>.XXXX.tmp``, ``.<target>.bak.XXXX.tmp``)."""
+    return name.startswith(f".{target}.") and name.endswith(".tmp")
+
+
+class _FolderLock:
+    """An exclusive lock on a folder, held while a save checks, writes and renames there, and while leftovers
+    of an interrupted save are removed (so that no other levelwise process's temporary file is in flight).
+    A killed process's lock is released by the system. Where folders cannot be locked this does nothing."""
+
+    def __init__(self, folder: Path):
+        self.folder, self.fd = folder, None
+
+    def __enter__(self):
+        try:
+            import fcntl
+
+            self.fd = os.open(self.folder, os.O_RDONLY)
+            fcntl.flock(self.fd, fcntl.LOCK_EX)
+        except (ImportError, OSError):
+            if self.fd is not None:
+                os.close(self.fd)
+            self.fd = None
+        return self
+
+    def __exit__(self, *exc):
+        if self.fd is not None:
+            os.close(self.fd)  # closing the descriptor releases the lock
+            self.fd = None
+
+
+def remove_leftovers(path: Path, *, locked: bool = False) -> list[Path]:
+    """Remove the temporary files that an interrupted save of *path* (or of its symlink target) left behind.
+
+    Returns the files removed. Called by every save and load of the study.
+    """
+    target = real_path(Path(path))
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        return []
+    removed = []
+    lock = _FolderLock(folder) if not locked else None
+    if lock is not None:
+        lock.__enter__()
+    try:
+        for entry in os.scandir(folder):
+            if _is_leftover(entry.name, target.name) and entry.is_file(follow_symlinks=False):
+                try:
+                    os.unlink(entry.path)
+                    removed.append(Path(entry.path))
+                except OSError:
+                    pass
+    except OSError:
+        pass
+    finally:
+        if lock is not None:
+            lock.__exit__(None, None, None)
+    return removed
+
+
+def write_atomically(path: Path, payload: bytes, *, expected: str | None = None, check: bool = False) -> str:
     """Write *payload* to *path* without ever leaving a half-written file; the old file becomes ``<path>.bak``.
+
+    A symbolic link at *path* is followed: its target is updated and the link kept. An existing file keeps its
+    mode; a new file gets the mode the umask allows (``0o666 & ~umask``). Temporary files left by an
+    interrupted earlier save are removed first.
+
+    With *check*, a file on disk must still have the SHA-256 *expected* (a deleted file may be written); otherwise
+    :class:`StudyConflictError` is raised and nothing is written. The check and the write hold one lock on the
+    folder, so two levelwise processes saving at once are serialised and the second one sees the conflict.
+
+    Returns the SHA-256 of *payload* (the file's new revision).
 
     Raises
     ------
+    StudyConflictError
+        *check* is set and the file changed since *expected* was read.
     StudyFileError
         The write failed; the message names the path and the operating-system error.
     """
-    folder = path.parent if str(path.parent) else Path(".")
+    target = real_path(path)
+    folder = target.parent if str(target.parent) else Path(".")
     tmp_name = None
     try:
-        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(payload)
-            handle.flush()
-            os.fsync(handle.fileno())
-        if path.exists():
-            _keep_backup(path)
-        os.replace(tmp_name, path)
-        tmp_name = None
-        _fsync_folder(folder)
+        with _FolderLock(folder):
+            remove_leftovers(target, locked=True)
+            if check:
+                current = file_revision(target)
+                if current is not None and current != expected:
+                    raise StudyConflictError(
+                        f"The study file '{path}' was changed by another process or program since this study was "
+                        "loaded or last saved; saving "
+                        "would overwrite those changes, so nothing was written. Load the file again "
+                        "(Study.load) and repeat your changes, save to another path, or save with "
+                        "overwrite=True to replace the file on disk."
+                    )
+            try:
+                mode = stat.S_IMODE(os.stat(target).st_mode)
+            except FileNotFoundError:
+                mode = 0o666 & ~_umask()
+            fd, tmp_name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=folder)
+            with os.fdopen(fd, "wb") as handle:
+                os.fchmod(handle.fileno(), mode)
+                handle.write(payload)
+                handle.flush()
+                os.fsync(handle.fileno())
+            if target.exists():
+                _keep_backup(target)
+            os.replace(tmp_name, target)
+            tmp_name = None
+            _fsync_folder(folder)
     except OSError as exc:
         reason = os.strerror(exc.errno) if exc.errno else str(exc)
         if exc.errno == errno.ENOSPC:
@@ -174,7 +292,7 @@ def write_atomically(path: Path, payload: bytes) -> Path:
                 os.unlink(tmp_name)
             except OSError:
                 pass
-    return path
+    return hashlib.sha256(payload).hexdigest()
 
 
 def _keep_backup(path: Path) -> None:

@@ -8,14 +8,30 @@ outside levelwise unless ``accept_outside_edits=True``.
 from __future__ import annotations
 
 import copy
+import hashlib
 import json
+import os
 from pathlib import Path
 
 from .._errors import LevelwiseError, OutsideEditError, StudyFileError, describe
 from ..design import Factor
-from ._format import FORMAT_VERSION, _pretty, _reject_constant, _validate, content_hash, write_atomically
+from ._format import (
+    FORMAT_VERSION,
+    _pretty,
+    _reject_constant,
+    _validate,
+    content_hash,
+    real_path,
+    remove_leftovers,
+    write_atomically,
+)
 from ._migrations import MIGRATIONS
 from ._values import _factor_entry, _finite, _is_categorical, _name, _plain, _setting, _text, checked_model
+
+
+def _file_key(path: Path) -> str:
+    """The key under which a study remembers a file's revision: the absolute path of the file written."""
+    return os.path.abspath(real_path(path))
 
 
 def _edited_outside(document: dict, source: str) -> bool:
@@ -65,20 +81,40 @@ class StudyFile:
                     "sha256": content_hash(data, audit)}
         return _pretty(document) + "\n"
 
-    def save(self, path) -> Path:
+    def save(self, path, *, overwrite: bool = False) -> Path:
         """Write the study to *path* without ever leaving a half-written file.
 
         The text goes to a temporary file in the same folder, which is fsynced and renamed over
         *path*; the previous file is first kept as ``<path>.bak`` (one generation). If anything
         fails (disk full, permission denied, the process killed), *path* still holds the previous
-        complete version.
+        complete version, and the temporary file left behind is removed by the next save or load.
+        A symbolic link is followed (its target is updated); an existing file keeps its mode, a new
+        one gets the umask's.
+
+        A study remembers the SHA-256 of the file it was loaded from or last saved to. If that file
+        changed since (another process saved it), the save is refused with
+        :class:`StudyConflictError` instead of silently overwriting the other changes.
+
+        Parameters
+        ----------
+        path : str or Path
+        overwrite : bool, default False
+            Replace the file even if it changed since this study last read or wrote it.
 
         Raises
         ------
+        StudyConflictError
+            The file changed since this study was loaded or last saved (and *overwrite* is False).
         StudyFileError
             The write failed; the message names the path and the operating-system error.
         """
-        return write_atomically(Path(path), self.to_json().encode("utf-8"))
+        path = Path(path)
+        key = _file_key(path)
+        known = self._file_revisions.get(key)
+        self._file_revisions[key] = write_atomically(
+            path, self.to_json().encode("utf-8"), expected=known, check=known is not None and not overwrite
+        )
+        return path
 
     @classmethod
     def load(cls, path, *, accept_outside_edits: bool = False):
@@ -100,12 +136,15 @@ class StudyFile:
             The data was edited outside levelwise and *accept_outside_edits* is False.
         """
         path = Path(path)
+        remove_leftovers(path)
         try:
             raw = path.read_bytes()
         except OSError as exc:
             raise StudyFileError(f"The study file '{path}' could not be read: {exc.strerror or exc}.") from exc
         try:
-            return cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+            study = cls.from_json(raw, source=str(path), accept_outside_edits=accept_outside_edits)
+            study._file_revisions[_file_key(path)] = hashlib.sha256(raw).hexdigest()
+            return study
         except StudyFileError as exc:
             bak = path.with_name(path.name + ".bak")
             if not bak.exists():

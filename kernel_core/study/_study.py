@@ -78,6 +78,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
         self._exclusions: list[dict] = []
         self._models: dict[str, str] = {}
         self._audit: list[dict] = []
+        self._file_revisions: dict[str, str] = {}  # file -> SHA-256 of its bytes at this study's load or last save
         self._log("create", f"study created with factors {[f.name for f in self._factors]}")
 
     # ----- read-only views -------------------------------------------------------------------
