@@ -4,7 +4,8 @@ The per-factor traces come from :meth:`Fit.trace` (the mean with the confidence 
 mean, dark and solid, and the prediction band for one new run, light and dashed), the residual
 plot from ``Fit.fitted`` and ``Fit.residuals``. Browser-side saving of bqplot figures is
 unreliable, so exports are drawn here with matplotlib's Agg renderer. matplotlib is imported
-inside the functions: importing ``levelwise`` stays lean.
+inside the functions: importing ``levelwise`` stays lean. Names are drawn as plain text (no ``$...$``
+maths), and figures hold no spreadsheet cells, so no name can act as a formula in them.
 """
 
 from __future__ import annotations
@@ -59,8 +60,8 @@ def trace_figure(fit, settings, factors=None, points: int = 50, level: float | N
         ax.plot(x, mean + tr["pi_half"], color=_BLUE, linestyle="--", linewidth=1)
         ax.plot(x, mean, color=_BLUE, linewidth=2, label="predicted mean")
         ax.axvline(base[list(fit.factor_names).index(name)], color=_VERMILION, linewidth=1)
-        ax.set_xlabel(name)
-    axes[0].set_ylabel(fit.response)
+        ax.set_xlabel(name, parse_math=False)  # names are plain text: no $...$ maths
+    axes[0].set_ylabel(fit.response, parse_math=False)
     axes[0].legend(fontsize="x-small", loc="best")
     return fig
 
@@ -71,7 +72,7 @@ def residual_figure(fit):
     ax = fig.subplots()
     ax.axhline(0.0, color=_GREY, linewidth=1)
     ax.scatter(fit.fitted, fit.residuals, color=_BLUE, s=18)
-    ax.set_xlabel(f"fitted {fit.response}")
+    ax.set_xlabel(f"fitted {fit.response}", parse_math=False)
     ax.set_ylabel("residual")
     return fig
 

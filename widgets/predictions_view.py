@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from levelwise import LevelwiseError
+from levelwise._cells import guarded_frame
 from levelwise._errors import describe
 
 from ._base import View
@@ -135,8 +136,8 @@ class PredictionsView(View):
         return out
 
     def to_csv(self) -> str:
-        """The table as CSV text."""
-        return self.to_frame().to_csv(index_label="row")
+        """The table as CSV text (text that a spreadsheet would read as a formula gets a quote prefix)."""
+        return guarded_frame(self.to_frame()).to_csv(index_label="row")
 
     # ----- helpers ------------------------------------------------------------------------------
     def _index(self, index) -> int:

@@ -15,6 +15,7 @@ import os
 import numpy as np
 import pandas as pd
 
+from .._cells import write_csv, write_xlsx
 from .._errors import LevelwiseError, describe
 from ._design import META_COLUMNS, Design
 
@@ -77,6 +78,8 @@ def _metadata_rows(design: Design, responses) -> list[tuple[str, str]]:
 def write_run_sheet(design: Design, path, responses=("y",)) -> str:
     """Write the run sheet to *path* (``.csv`` or ``.xlsx``); XLSX gets a second ``design`` sheet of metadata.
 
+    Text that a spreadsheet would read as a formula stays text (see ``levelwise._cells``).
+
     Returns
     -------
     str
@@ -85,12 +88,10 @@ def write_run_sheet(design: Design, path, responses=("y",)) -> str:
     path = os.fspath(path)
     sheet = run_sheet(design, responses)
     if path.lower().endswith(".csv"):
-        sheet.to_csv(path, index=False)
+        write_csv(sheet, path, index=False)
     elif path.lower().endswith(".xlsx"):
         meta = pd.DataFrame(_metadata_rows(design, _responses(responses, [])), columns=["field", "value"])
-        with pd.ExcelWriter(path, engine="openpyxl") as writer:
-            sheet.to_excel(writer, sheet_name=SHEET_RUNS, index=False)
-            meta.to_excel(writer, sheet_name=SHEET_META, index=False)
+        write_xlsx({SHEET_RUNS: sheet, SHEET_META: meta}, path)
     else:
         raise LevelwiseError(f"The 'path' must end in .csv or .xlsx. Got {path!r} instead.")
     return path

@@ -6,6 +6,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from .._cells import write_csv, write_xlsx
 from .._errors import LevelwiseError
 from ._tables import ACHIEVED
 
@@ -53,16 +54,20 @@ def prediction_table(fit, settings, level: float | None = None) -> pd.DataFrame:
 
 
 def export_table(frame: pd.DataFrame, path, *, sheet_name: str = "table") -> Path:
-    """Write *frame* to a ``.csv`` (UTF-8) or ``.xlsx`` file, chosen by the suffix of *path*."""
+    """Write *frame* to a ``.csv`` (UTF-8) or ``.xlsx`` file, chosen by the suffix of *path*.
+
+    Text that a spreadsheet would read as a formula (starting with ``=``, ``+``, ``-``, ``@``, a tab or a
+    carriage return) stays text: a single-quote prefix in CSV, a string cell in XLSX (see ``levelwise._cells``).
+    """
     path = Path(path)
     suffix = path.suffix.lower()
     if suffix not in (".csv", ".xlsx"):
         raise LevelwiseError(f"The export 'path' must end in .csv or .xlsx. Got {str(path)!r} instead.")
     try:
         if suffix == ".csv":
-            frame.to_csv(path, index=False, encoding="utf-8")
+            write_csv(frame, path, index=False, encoding="utf-8")
         else:
-            frame.to_excel(path, index=False, sheet_name=sheet_name[:31], engine="openpyxl")
+            write_xlsx({sheet_name: frame}, path)
     except OSError as exc:
         raise LevelwiseError(f"The table could not be written to '{path}': {exc.strerror or exc}.") from exc
     return path

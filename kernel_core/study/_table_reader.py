@@ -20,6 +20,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from .._cells import unguard_text
 from .._errors import ImportDataError, describe
 
 _HEADER = re.compile(r"^\s*(?P<name>.*?)\s*(?:\[(?P<units>[^\]]*)\])?\s*$", re.DOTALL)
@@ -153,7 +154,9 @@ def _csv_rows(raw: bytes, name: str, delimiter: str) -> list[list]:
     if "\x00" in text:
         raise ImportDataError(f"The file '{name}' holds NUL bytes: it is not a CSV text file.")
     try:
-        return [row for row in csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)]
+        # A single-quote prefix that keeps text from being read as a formula (our exports write it) is undone.
+        reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
+        return [[unguard_text(cell) for cell in row] for row in reader]
     except csv.Error as exc:
         raise ImportDataError(f"The file '{name}' is not valid CSV: {exc}.") from None
 
