@@ -8,6 +8,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .._errors import LevelwiseError, describe
+from .._limits import check_length
 
 _LETTERS = "ABCDEFGHJKLMNOPQRSTUVWXYZ"  # I is skipped: it reads as 1 and as the identity
 
@@ -55,6 +56,8 @@ class Factor:
             raise LevelwiseError(
                 f"The 'units' of factor {self.name!r} must be a string. Got {describe(self.units)} instead."
             )
+        check_length(self.name, "name", "name")
+        check_length(self.units, f"units of factor {self.name!r}", "units")
         levels = self.levels
         if levels is None:
             levels = ()
@@ -76,6 +79,8 @@ class Factor:
                     f"The 'levels' of factor {self.name!r} must be at least 2 distinct levels. "
                     f"Got {describe(levels)} instead."
                 )
+            for level in levels:
+                check_length(level, f"level of factor {self.name!r}", "name")
             return
         if self.low is None or self.high is None:
             raise LevelwiseError(

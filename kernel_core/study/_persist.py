@@ -230,13 +230,24 @@ class StudyFile:
                 else:
                     factors.append(Factor(item["name"], item["low"], item["high"], item["units"]))
                 _name(item["name"], "factor name")
-                _text(item["units"], "units")
+                _text(item["units"], "units", kind="units")
             except LevelwiseError as exc:
                 fail(f"data.factors[{i}]", str(exc))
+        for field, kind in (("title", "title"), ("notes", "notes")):
+            try:
+                _text(data[field], field, kind=kind)
+            except LevelwiseError as exc:
+                fail(f"data.{field}", str(exc))
         try:
             study = cls(factors, title=data["title"], notes=data["notes"])
         except LevelwiseError as exc:
             fail("data.factors", str(exc))
+        for i, entry in enumerate(audit):
+            if entry.get("reason") is not None:
+                try:
+                    _text(entry["reason"], "reason", kind="reason")
+                except LevelwiseError as exc:
+                    fail(f"audit[{i}].reason", str(exc))
         study._audit = [dict(entry) for entry in audit]
         names = set(study.factor_names)
         for i, spec in enumerate(data["responses"]):
@@ -249,6 +260,14 @@ class StudyFile:
             except LevelwiseError as exc:
                 fail(f"data.responses[{i}]", str(exc))
         for i, stage in enumerate(data["stages"]):
+            try:
+                _text(stage["name"], "stage name", kind="name")
+            except LevelwiseError as exc:
+                fail(f"data.stages[{i}].name", str(exc))
+            try:
+                _text(stage.get("description", ""), "description", kind="notes")
+            except LevelwiseError as exc:
+                fail(f"data.stages[{i}].description", str(exc))
             if any(s["name"] == stage["name"] for s in study._stages):
                 fail(f"data.stages[{i}].name", f"the stage name {stage['name']!r} appears twice")
             study._stages.append(dict(stage))
@@ -286,6 +305,10 @@ class StudyFile:
             }
         for i, item in enumerate(data["exclusions"]):
             item = {**item, "run": int(item["run"])}
+            try:
+                _text(item["reason"], "reason", kind="reason")
+            except LevelwiseError as exc:
+                fail(f"data.exclusions[{i}].reason", str(exc))
             if item["run"] not in study._runs:
                 fail(f"data.exclusions[{i}].run", f"run {item['run']} is not in the study")
             if item["response"] is not None and item["response"] not in study._responses:

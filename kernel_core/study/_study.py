@@ -65,13 +65,13 @@ class Study(StudyRecords, StudyTables, StudyFile):
         for f in self._factors:
             for level in getattr(f, "levels", ()):
                 if isinstance(level, str):
-                    _text(level, f"level of factor {f.name!r}", empty=False)
+                    _text(level, f"level of factor {f.name!r}", empty=False, kind="name")
                 else:
                     _finite(level, f"level of factor {f.name!r}")
             _name(f.name, "factor name")
-            _text(f.units, f"units of factor {f.name!r}")
-        self._title = _text(title, "title")
-        self._notes = _text(notes, "notes")
+            _text(f.units, f"units of factor {f.name!r}", kind="units")
+        self._title = _text(title, "title", kind="title")
+        self._notes = _text(notes, "notes", kind="notes")
         self._stages: list[dict] = []
         self._runs: dict[int, dict] = {}
         self._responses: dict[str, dict] = {}
@@ -167,12 +167,12 @@ class Study(StudyRecords, StudyTables, StudyFile):
     def set_notes(self, text: str, *, reason: str | None = None) -> None:
         """Replace the free-text notes."""
         reason = _reason(reason)
-        self._notes = _text(text, "notes")
+        self._notes = _text(text, "notes", kind="notes")
         self._log("notes", f"notes set ({len(text)} characters)", reason)
 
     def set_title(self, title: str) -> None:
         """Replace the title."""
-        self._title = _text(title, "title")
+        self._title = _text(title, "title", kind="title")
         self._log("title", f"title set to {title!r}")
 
     def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None) -> None:
@@ -193,7 +193,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
 
     @staticmethod
     def _response_spec(name, units, goal, target) -> dict:
-        units = _text(units, f"units of response {name!r}")
+        units = _text(units, f"units of response {name!r}", kind="units")
         if goal not in GOALS:
             raise LevelwiseError(f"The 'goal' of response {name!r} must be one of {list(GOALS)}. Got {describe(goal)}.")
         if goal == "target":
@@ -222,9 +222,9 @@ class Study(StudyRecords, StudyTables, StudyFile):
         new runs; pass ``renumber=True`` for an independent design numbered from 1). A table
         without a ``run`` column gets ids after the study's.
         """
-        name = _text(name, "stage name", empty=False)
+        name = _text(name, "stage name", empty=False, kind="name")
         reason = _reason(reason)
-        description = _text(description, "description")
+        description = _text(description, "description", kind="notes")
         if any(stage["name"] == name for stage in self._stages):
             raise LevelwiseError(f"The 'stage name' {name!r} is already used; stage names must be unique.")
         table = getattr(design, "table", design)

@@ -9,6 +9,7 @@ from datetime import UTC, datetime
 import numpy as np
 
 from .._errors import LevelwiseError, describe
+from .._limits import check_length
 from ..design import Factor
 
 #: Column names used by :meth:`Study.data` and :meth:`Study.table`; no factor or response may take them.
@@ -51,8 +52,9 @@ def now() -> str:
     return datetime.now(UTC).isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
 
-def _text(value, field: str, *, empty: bool = True) -> str:
-    """A string that can be written as UTF-8 (no lone surrogates)."""
+def _text(value, field: str, *, empty: bool = True, kind: str | None = None) -> str:
+    """A string that can be written as UTF-8 (no lone surrogates), no longer than the limit of its *kind*
+    (:data:`levelwise._limits.TEXT_LIMITS`)."""
     if not isinstance(value, str):
         raise LevelwiseError(f"The '{field}' must be a string. Got {describe(value)} instead.")
     try:
@@ -64,11 +66,13 @@ def _text(value, field: str, *, empty: bool = True) -> str:
         ) from None
     if not empty and not value.strip():
         raise LevelwiseError(f"The '{field}' must be a non-empty string. Got {describe(value)} instead.")
+    if kind is not None:
+        check_length(value, field, kind)
     return value
 
 
 def _name(value, field: str) -> str:
-    name = _text(value, field, empty=False)
+    name = _text(value, field, empty=False, kind="name")
     if name in RESERVED_NAMES:
         raise LevelwiseError(
             f"The '{field}' may not be one of the reserved column names {list(RESERVED_NAMES)}. Got {name!r} instead."
@@ -137,7 +141,7 @@ def _run_id(value, field: str = "run") -> int:
 def _reason(reason, field: str = "reason", required: bool = False) -> str | None:
     if reason is None and not required:
         return None
-    return _text(reason, field, empty=False)
+    return _text(reason, field, empty=False, kind="reason")
 
 
 
