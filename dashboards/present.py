@@ -16,7 +16,7 @@ import re
 import ipywidgets as ipw
 
 from levelwise import LevelwiseError, Study
-from levelwise.widgets.style import NO_MATH
+from levelwise.widgets.style import NO_MATH, wrapped_html
 
 from ._compose import find_view
 from .kernel_guard import guard_kernel, log_line
@@ -160,7 +160,7 @@ def build(source=None) -> ipw.VBox:
         shared = shared_model(study, read_only=True)
     except (LevelwiseError, OSError) as exc:  # the page says what is wrong; it never shows a traceback
         return unavailable(exc)
-    title = ShownHTML(f"<h2>{html.escape(title_of(study))}</h2>").add_class("lw-title")
+    title = ShownHTML(wrapped_html(title_of(study), "h2")).add_class("lw-title")
     banner = ShownHTML(caution_html()).add_class("lw-banner")
     readout = StudyReadout(shared)
     children = [title, banner, readout.widget]

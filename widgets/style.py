@@ -69,20 +69,45 @@ def figure_layout(width: int = 320, height: int = 260):
 NO_MATH = "mathjax_ignore"
 
 
+#: Inline style of a user-supplied label: one line, cut with an ellipsis at the width it is given (the full text
+#: is in the tooltip), so a long name never stretches the page.
+FIT_LABEL = ("display:inline-block;max-width:100%;overflow:hidden;text-overflow:ellipsis;white-space:nowrap;"
+             "vertical-align:bottom")
+
+#: Inline style of a block of user-supplied text (a title, a note): wrapped anywhere, never wider than the page.
+WRAP_TEXT = "overflow-wrap:anywhere;word-break:break-word;max-width:100%"
+
+
 def inert_html(text: str) -> str:
-    """User text as inert HTML for a widget label: escaped, and marked so that ``$...$`` is never typeset.
+    """User text as inert HTML for a widget label: escaped, marked so that ``$...$`` is never typeset, and cut
+    with an ellipsis where the label is too narrow, the full text in a tooltip (``title`` attribute).
 
     ipywidgets typesets every description label with MathJax, so a factor named ``$\\style{color:red}{BIG}$``
     would restyle the page. Use with ``description_allow_html=True``.
 
     Examples
     --------
-    >>> inert_html("Oven $x$ <b>")
-    '<span class="mathjax_ignore">Oven $x$ &lt;b&gt;</span>'
+    >>> inert_html("Oven $x$ <b>")  # doctest: +ELLIPSIS
+    '<span class="mathjax_ignore"><span class="lw-text" title="Oven $x$ &lt;b&gt;" style="...">Oven $x$ &lt;b&gt;...'
     """
     import html
 
-    return f'<span class="{NO_MATH}">{html.escape(str(text), quote=True)}</span>'
+    escaped = html.escape(str(text), quote=True)
+    return (f'<span class="{NO_MATH}"><span class="lw-text" title="{escaped}" style="{FIT_LABEL}">{escaped}'
+            "</span></span>")
+
+
+def wrapped_html(text: str, tag: str = "span") -> str:
+    """User text as an inert HTML block that wraps (long words broken) and never overflows the page.
+
+    Examples
+    --------
+    >>> wrapped_html("a<b", "h2")  # doctest: +ELLIPSIS
+    '<h2 class="mathjax_ignore" style="overflow-wrap:anywhere;...">a&lt;b</h2>'
+    """
+    import html
+
+    return f'<{tag} class="{NO_MATH}" style="{WRAP_TEXT}">{html.escape(str(text), quote=True)}</{tag}>'
 
 
 def plain_text(label: str) -> str:
@@ -94,8 +119,10 @@ def plain_text(label: str) -> str:
     'Oven $x$ <b>'
     """
     import html
+    import re
 
-    prefix, suffix = f'<span class="{NO_MATH}">', "</span>"
-    if label.startswith(prefix) and label.endswith(suffix):
-        return html.unescape(label[len(prefix):-len(suffix)])
+    match = re.fullmatch(rf'<span class="{NO_MATH}"><span class="lw-text" title="[^"]*" style="[^"]*">(.*)'
+                         r"</span></span>", label, flags=re.S)
+    if match:
+        return html.unescape(match.group(1))
     return label
