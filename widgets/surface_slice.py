@@ -39,6 +39,32 @@ from .style import (
 CLICK_GRID = 41
 
 
+#: The largest colour code; the codes 0..CODES span the quantity's finite range, CODES + 1 marks a cell that is
+#: not finite (drawn beyond the colour map's end, and decoded as NaN).
+CODES = 254
+
+
+def quantise(z) -> tuple[np.ndarray, float, float]:
+    """*z* as uint8 codes 0..CODES over its finite range [low, high] (CODES + 1 where not finite)."""
+    z = np.asarray(z, dtype=float)
+    finite = np.isfinite(z)
+    if not finite.any():
+        return np.full(z.shape, CODES + 1, np.uint8), 0.0, 1.0
+    low, high = float(z[finite].min()), float(z[finite].max())
+    span = high - low
+    codes = np.zeros(z.shape) if span <= 0 else np.rint((np.where(finite, z, low) - low) / span * CODES)
+    codes = codes.astype(np.uint8)
+    codes[~finite] = CODES + 1
+    return codes, low, (high if span > 0 else low + 1.0)
+
+
+def decode(codes, low: float, high: float) -> np.ndarray:
+    """The values that uint8 *codes* from :func:`quantise` stand for (NaN for the not-finite code)."""
+    codes = np.asarray(codes)
+    values = low + codes.astype(float) / CODES * (high - low)
+    return np.where(codes > CODES, np.nan, values)
+
+
 def contour_paths(x, y, z, levels):
     """Contour lines of *z* on the grid *x*, *y* as NaN-separated x/y arrays, via contourpy.
 
@@ -113,9 +139,13 @@ class SurfaceSlice(View):
         self.caption = ipw.HTML().add_class("lw-slice-caption")
 
         self.sx, self.sy = bq.LinearScale(), bq.LinearScale()
-        self.sc = bq.ColorScale(colors=CIVIDIS)
+        # The heat map's colours are sent as uint8 codes 0..254 (one byte a cell: 10,000 bytes for 100 x 100);
+        # ``sc`` maps the codes onto the colour map, and the colour axis reads ``label_scale``, the same colour
+        # map over the quantity's own range, so the colours and the axis's numbers agree.
+        self.sc = bq.ColorScale(colors=CIVIDIS, min=0.0, max=float(CODES))
+        self.label_scale = bq.ColorScale(colors=CIVIDIS)
         self.heatmap = bq.HeatMap(
-            x=f32([0, 1]), y=f32([0, 1]), color=np.zeros((2, 2), np.float32),
+            x=f32([0, 1]), y=f32([0, 1]), color=np.zeros((2, 2), np.uint8),
             scales={"x": self.sx, "y": self.sy, "color": self.sc},
         )
         self.contour_lines = bq.Lines(
@@ -138,7 +168,7 @@ class SurfaceSlice(View):
         )
         self.targets.on_element_click(self.safely(self._on_click))
         self.marker = bq.Scatter(scales={"x": self.sx, "y": self.sy}, **CURRENT_MARKER)
-        self.color_axis = bq.ColorAxis(scale=self.sc, side="right", label="")
+        self.color_axis = bq.ColorAxis(scale=self.label_scale, side="right", label="")
         self.x_axis = bq.Axis(scale=self.sx, label="", num_ticks=5)
         self.y_axis = bq.Axis(scale=self.sy, side="left", label="", num_ticks=5)
         self.figure = bq.Figure(
@@ -155,6 +185,7 @@ class SurfaceSlice(View):
 
         self._key = None
         self.redraws = 0  # how many slices were computed (coalescing is visible here)
+        self._range = (0.0, 1.0)  # the finite range of the quantity drawn (what the uint8 codes span)
         self._coalescer = Coalescer(self.safely(self._redraw))
         for control in (self.x_factor, self.y_factor, self.quantity):
             control.observe(self.safely(self._on_choice), names="value")
@@ -261,8 +292,13 @@ class SurfaceSlice(View):
         run_x, run_y, used = self._design_points(x, y)
         tx, ty = self._target_axes()
         gx, gy = np.meshgrid(tx, ty)
+        codes, low, high = quantise(z)
         with self.heatmap.hold_sync():
-            set_if_changed(self.heatmap, x=f32(grid["x"]), y=f32(grid["y"]), color=f32(z))
+            set_if_changed(self.heatmap, x=f32(grid["x"]), y=f32(grid["y"]), color=codes)
+        if (self.label_scale.min, self.label_scale.max) != (low, high):
+            with self.label_scale.hold_sync():
+                self.label_scale.min, self.label_scale.max = low, high
+        self._range = (low, high)
         with self.contour_lines.hold_sync():
             set_if_changed(self.contour_lines, x=cx, y=cy)
         shown = [(pos, lev) for pos, lev in zip(labels, levels) if pos is not None]
@@ -293,6 +329,11 @@ class SurfaceSlice(View):
             "Click the slice to move the two axis factors there."
         )
         self._key = key
+
+    def shown_values(self) -> np.ndarray:
+        """The quantity the heat map shows, decoded from its uint8 codes (NaN where the quantity is not finite);
+        within half a code step, (high - low) / 508, of the computed grid."""
+        return decode(np.asarray(self.heatmap.color), *self._range)
 
     def _design_points(self, x, y):
         data = self.shared.data
