@@ -5,6 +5,7 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
+from ._progress import SearchStoppedWarning, TextProgress
 from ._version import __version__
 from .boxcox import BoxCoxResult, box_cox
 from .design import (
@@ -96,3 +97,4 @@ __all__ += [
 from .study import Study  # noqa: E402
 
 __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
+__all__ += ["SearchStoppedWarning", "TextProgress"]
