@@ -1,9 +1,17 @@
-"""What every view shares: the error line, safe callbacks, coalesced refreshes, float32 arrays."""
+"""What every view shares: the error line, safe callbacks, coalesced refreshes, float32 arrays, long work.
+
+Long work (:class:`LongTask`): inside a kernel or Voilà a search runs on a worker thread, so the page stays
+live and its Stop button is heard; every widget change is made on the kernel's main thread, through the event
+loop (``loop.call_soon_threadsafe``): ipykernel 7 refuses comm messages sent from other threads. Without a
+running loop (plain Python, headless tests) the work runs at once in the caller's thread.
+"""
 
 from __future__ import annotations
 
 import asyncio
 import html
+import threading
+import time
 import traceback
 
 import ipywidgets as ipw
@@ -67,6 +75,165 @@ class Coalescer:
             self._handle = None
 
 
+class Debouncer:
+    """Run *work* once the requests have stopped for *delay* seconds: every request restarts the wait.
+
+    Used where one change starts expensive work (a design search), so typing or clicking "Add a factor" five
+    times starts one search, not five. Without a running loop the work runs at once.
+    """
+
+    def __init__(self, work, delay: float = 0.6):
+        self.work, self.delay, self._handle = work, delay, None
+
+    def request(self) -> None:
+        try:
+            loop = asyncio.get_running_loop()
+        except RuntimeError:
+            self.work()
+            return
+        if self._handle is not None:
+            self._handle.cancel()
+        self._handle = loop.call_later(self.delay, self._run)
+
+    @property
+    def pending(self) -> bool:
+        return self._handle is not None
+
+    def _run(self) -> None:
+        self._handle = None
+        self.work()
+
+    def flush(self) -> None:
+        """Run pending work now."""
+        if self._handle is not None:
+            self._handle.cancel()
+            self._handle = None
+            self.work()
+
+    def cancel(self) -> None:
+        if self._handle is not None:
+            self._handle.cancel()
+            self._handle = None
+
+
+class _Token:
+    """One run of a :class:`LongTask`: its stop flag, and whether its result is still wanted."""
+
+    def __init__(self):
+        self.stop = threading.Event()
+        self.wanted = True
+        self.last_shown = 0.0
+
+
+class LongTask:
+    """A progress bar, a message and a Stop button for work that can take seconds.
+
+    ``start(work, done)`` calls ``work(progress)``, where ``progress(fraction, message)`` is the callback the
+    levelwise searches take (it returns False once Stop is pressed, and the search then returns the best
+    result so far); then ``done(result, error)`` on the kernel's main thread. Starting again, or
+    :meth:`discard`, stops the previous run and drops its result.
+
+    Attributes
+    ----------
+    progress : ipywidgets.FloatProgress
+        ``lw-search-progress``.
+    message : ipywidgets.HTML
+        What the search is doing (``lw-search-message``).
+    stop_button : ipywidgets.Button
+        ``lw-search-stop``; shown while work runs.
+    widget : ipywidgets.HBox
+    """
+
+    def __init__(self, label: str = "Search"):
+        self.progress = ipw.FloatProgress(value=0.0, min=0.0, max=1.0, description=label).add_class(
+            "lw-search-progress")
+        self.message = ipw.HTML().add_class("lw-search-message")
+        self.stop_button = ipw.Button(description="Stop (keep the best so far)", button_style="warning",
+                                      layout=ipw.Layout(width="auto", display="none")).add_class("lw-search-stop")
+        self.stop_button.on_click(lambda _: self.stop())
+        self.widget = ipw.HBox([self.progress, self.stop_button, self.message]).add_class("lw-long-task")
+        self._token = None
+        self.thread = None
+
+    @property
+    def running(self) -> bool:
+        return self._token is not None
+
+    def start(self, work, done) -> None:
+        self.discard()
+        token = self._token = _Token()
+        self.progress.value = 0.0
+        self.message.value = "Working…"
+        self.stop_button.layout.display = ""
+        try:
+            loop = asyncio.get_running_loop()
+        except RuntimeError:
+            loop = None
+        if loop is None:
+            def report(fraction, message=""):
+                self._show(token, fraction, message)
+                return not token.stop.is_set()
+
+            try:
+                result, error = work(report), None
+            except Exception as exc:  # noqa: BLE001 - handed to done()
+                result, error = None, exc
+            self._finish(token, result, error, done)
+            return
+
+        def report(fraction, message=""):
+            now = time.monotonic()
+            if now - token.last_shown > 0.1 or fraction >= 1.0:  # at most ~10 messages a second
+                token.last_shown = now
+                loop.call_soon_threadsafe(self._show, token, fraction, message)
+            return not token.stop.is_set()
+
+        def run():
+            try:
+                result, error = work(report), None
+            except Exception as exc:  # noqa: BLE001 - handed to done() on the main thread
+                result, error = None, exc
+            try:
+                loop.call_soon_threadsafe(self._finish, token, result, error, done)
+            except RuntimeError:  # the loop closed (kernel shutting down)
+                pass
+
+        self.thread = threading.Thread(target=run, name="levelwise-search", daemon=True)
+        self.thread.start()
+
+    def _show(self, token, fraction, message) -> None:
+        if token is not self._token:
+            return
+        self.progress.value = float(fraction)
+        if message:
+            self.message.value = html.escape(str(message))
+
+    def _finish(self, token, result, error, done) -> None:
+        if token is not self._token or not token.wanted:
+            return
+        self._token = None
+        self.stop_button.layout.display = "none"
+        if error is None:
+            self.progress.value = 1.0
+        self.message.value = ""
+        done(result, error)
+
+    def stop(self) -> None:
+        """Ask the running work to stop; it returns the best result so far, which is still shown."""
+        if self._token is not None:
+            self._token.stop.set()
+            self.message.value = "Stopping: keeping the best found so far…"
+
+    def discard(self) -> None:
+        """Stop the running work and drop its result (the inputs changed)."""
+        if self._token is not None:
+            self._token.stop.set()
+            self._token.wanted = False
+            self._token = None
+            self.stop_button.layout.display = "none"
+            self.message.value = ""
+
+
 class View:
     """Base of every view: a shared model, a status line, safe callbacks and ``close()``.
 
@@ -104,6 +271,10 @@ class View:
 
     def show_shared_error(self, change=None) -> None:
         self.status.value = error_html(self.shared.error)
+
+    def _repr_mimebundle_(self, **kwargs):
+        """A view shows itself as the last line of a notebook cell (its widget)."""
+        return self.widget._repr_mimebundle_(**kwargs)
 
     def close(self) -> None:
         for handler, names in self._watched:

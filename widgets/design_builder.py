@@ -4,8 +4,10 @@ Every design and every number in the preview comes from levelwise: the design
 functions (full and fractional factorials, Plackett–Burman, central composite,
 Box–Behnken, optimal designs by coordinate exchange, fold-over), ``Design``'s
 resolution, word-length pattern and alias structure, and ``evaluate`` (VIF,
-relative prediction variance, power). Optimal searches report progress through
-the kernel's ``progress`` callback to a progress bar.
+relative prediction variance, power). Searches (optimal designs, fractions without
+generators) run off the main thread with a progress bar and a Stop button that keeps
+the best design so far (``LongTask``); changes of the inputs are gathered until they
+settle (``Debouncer``) before anything is rebuilt.
 """
 
 from __future__ import annotations
@@ -34,7 +36,7 @@ from levelwise import (
     write_run_sheet,
 )
 
-from ._base import View
+from ._base import Debouncer, LongTask, View
 from .effects_view import table_html
 from .shared_model import SharedModel
 from .style import fmt
@@ -103,7 +105,12 @@ class DesignBuilder(View):
     eval_model : ipywidgets.Text
         Model to evaluate the design for (``lw-eval-model``).
     search_button : ipywidgets.Button
-        Runs the optimal search (``lw-search``); ``progress`` (FloatProgress, ``lw-search-progress``).
+        Runs the search now (``lw-search``; optimal designs and fractions without generators).
+    task : LongTask
+        The running search: ``progress`` (FloatProgress, ``lw-search-progress``), ``stop_button``
+        (``lw-search-stop``: stops the search and keeps the best design so far).
+    rebuild : Debouncer
+        Input changes wait until they have settled (``settle_seconds``) before the design is rebuilt.
     run_sheet, structure, evaluation : ipywidgets.HTML
         The preview: ``lw-run-sheet``, ``lw-design-structure``, ``lw-design-evaluation``.
     responses : ipywidgets.Text
@@ -118,9 +125,13 @@ class DesignBuilder(View):
         The whole view (``lw-design-builder``).
     """
 
+    #: Seconds of quiet after the last input change before the design is rebuilt.
+    settle_seconds = 0.6
+
     def __init__(self, shared: SharedModel):
         super().__init__(shared)
         self.design = None
+        self.rebuild = Debouncer(self._rebuild, delay=self.settle_seconds)
         self.factor_box = ipw.VBox().add_class("lw-factor-table")
         self.factor_rows = []
         for f in shared.factors:
@@ -161,10 +172,10 @@ class DesignBuilder(View):
             control.add_class("lw-design-option")
         self.eval_model = ipw.Text(value="linear", description="Evaluate for model",
                                    **wide).add_class("lw-eval-model")
-        self.search_button = ipw.Button(description="Search for the optimal design").add_class("lw-search")
-        self.progress = ipw.FloatProgress(value=0.0, min=0.0, max=1.0, description="Search").add_class(
-            "lw-search-progress"
-        )
+        self.search_button = ipw.Button(description="Search now", layout=ipw.Layout(width="auto")).add_class(
+            "lw-search")
+        self.task = LongTask("Search")
+        self.progress = self.task.progress
         self.search_button.on_click(self.safely(lambda _: self.search()))
         self.run_sheet = ipw.HTML().add_class("lw-run-sheet")
         self.structure = ipw.HTML().add_class("lw-design-structure")
@@ -186,7 +197,7 @@ class DesignBuilder(View):
                 self.family,
                 self.option_box,
                 ipw.HBox([self.options["seed"], self.options["randomize"]]),
-                ipw.HBox([self.search_button, self.progress]),
+                ipw.HBox([self.search_button, self.task.widget]),
                 self.eval_model,
                 self.structure,
                 self.evaluation,
@@ -276,8 +287,11 @@ class DesignBuilder(View):
         if "center_points" in used and family in ("ccd", "box_behnken"):
             children.append(self.options["default_center_points"])
         self.option_box.children = children
-        self.search_button.layout.display = "" if family == "optimal" else "none"
-        self.progress.layout.display = "" if family == "optimal" else "none"
+        searching = family in ("optimal", "fractional")
+        self.search_button.description = ("Search for the optimal design" if family == "optimal"
+                                          else "Search for the best fraction now")
+        self.search_button.layout.display = "" if searching else "none"
+        self.task.widget.layout.display = "" if searching else "none"
         if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "linear":
             self.eval_model.value = "quadratic"
         elif family in ("full", "fractional", "plackett_burman") and self.eval_model.value == "quadratic":
@@ -287,14 +301,32 @@ class DesignBuilder(View):
     def _on_option(self, change=None):
         if getattr(self, "_building", False):
             return
+        self.task.discard()  # a search for the old inputs is no longer wanted
+        self.rebuild.request()
+
+    def _searches(self) -> bool:
+        """True when building the current choice runs a search (optimal designs, fractions without generators)."""
+        family = self.family.value
+        return family == "optimal" or (family == "fractional" and not self.options["generators"].value.strip())
+
+    def _rebuild(self) -> None:
+        """Inputs have settled: rebuild the preview (fractions searched in the background; optimal on request)."""
         if self.family.value == "optimal":
             self.structure.value = "Press “Search for the optimal design” to run the search."
             return
-        self.preview()
+        if self._searches():
+            self.safely(self.search)()
+        else:
+            self.preview()
 
     # ----- building -----------------------------------------------------------------------------
     def build(self, progress=None) -> Design:
-        """The design the options describe, built by levelwise."""
+        """The design the options describe, built by levelwise (here and now)."""
+        return self.recipe()(progress)
+
+    def recipe(self):
+        """``make(progress) -> Design`` for the current inputs: the inputs are read here, on the main thread,
+        so *make* can run on a worker thread."""
         o = {name: control.value for name, control in self.options.items()}
         seed, randomize = o["seed"], o["randomize"]
         family = self.family.value
@@ -304,44 +336,46 @@ class DesignBuilder(View):
             # The new runs form the next block, after the current runs; the preview shows both together, with the
             # structure of the combined design.
             base = self.shared.design
-            return base.combine(fold_over(base, o["fold_factor"] or None, center_points=o["fold_center_points"],
-                                          randomize=randomize, seed=seed))
+            return lambda progress: base.combine(fold_over(
+                base, o["fold_factor"] or None, center_points=o["fold_center_points"], randomize=randomize,
+                seed=seed))
         factors = self.factors()
         centre = None if (family in ("ccd", "box_behnken") and o["default_center_points"]) else o["center_points"]
         if family == "full":
-            return full_factorial(factors, center_points=centre, replicates=o["replicates"], blocks=o["blocks"],
-                                  randomize=randomize, seed=seed)
+            return lambda progress: full_factorial(factors, center_points=centre, replicates=o["replicates"],
+                                                   blocks=o["blocks"], randomize=randomize, seed=seed)
         if family == "fractional":
             generators = [g.strip() for g in o["generators"].split(",") if g.strip()] or None
             runs = o["runs"] or None
             if runs is None and generators is None and not o["resolution"]:
                 runs = 2 ** max(len(factors) - 1, 2)  # nothing chosen yet: the half fraction
-            return fractional_factorial(
+            return lambda progress: fractional_factorial(
                 factors, runs=runs, generators=generators, resolution=o["resolution"] or None,
                 center_points=centre, replicates=o["replicates"], blocks=o["blocks"], randomize=randomize,
-                seed=seed,
+                seed=seed, progress=progress if progress is not None else False,
             )
         if family == "plackett_burman":
-            return plackett_burman(factors, runs=o["runs"] or None, center_points=centre, randomize=randomize,
-                                   seed=seed)
+            return lambda progress: plackett_burman(factors, runs=o["runs"] or None, center_points=centre,
+                                                    randomize=randomize, seed=seed)
         if family == "ccd":
             alpha = o["alpha"].strip()
             try:
                 alpha = float(alpha)
             except ValueError:
                 pass
-            return central_composite(factors, alpha=alpha, kind=o["ccd_kind"], center_points=centre,
-                                     randomize=randomize, seed=seed)
+            return lambda progress: central_composite(factors, alpha=alpha, kind=o["ccd_kind"],
+                                                      center_points=centre, randomize=randomize, seed=seed)
         if family == "box_behnken":
-            return box_behnken(factors, center_points=centre, randomize=randomize, seed=seed)
+            return lambda progress: box_behnken(factors, center_points=centre, randomize=randomize, seed=seed)
         constraints = [line.strip() for line in o["constraints"].splitlines() if line.strip()] or None
         fixed = None
         if o["augment"]:  # the new runs only, numbered after the current ones
             data = self.shared.data
             fixed = data[(["run"] if "run" in data.columns else []) + [f.name for f in factors]]
-        return optimal_design(
+        return lambda progress: optimal_design(
             factors, o["model"], o["runs"], criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
-            starts=o["starts"], seed=seed, progress=progress, randomize=randomize,
+            starts=o["starts"], seed=seed, progress=progress if progress is not None else False,
+            randomize=randomize,
         )
 
     def preview(self) -> Design | None:
@@ -355,22 +389,36 @@ class DesignBuilder(View):
         return design
 
     def search(self) -> Design | None:
-        """Run the optimal-design search, reporting progress to the progress bar."""
-        self.progress.value = 0.0
+        """Run the search now, on a worker thread inside a kernel, with progress and a Stop button.
 
-        def report(fraction, message=""):
-            self.progress.value = float(fraction)
-            self.progress.description = "Search"
-            return True
-
+        Returns the design when the search ran at once (no event loop: plain Python, tests), else None; the
+        design is shown when the search ends (``task.stop()`` ends it early with the best design so far).
+        """
+        self.rebuild.cancel()
         try:
-            design = self.build(progress=report)
+            make = self.recipe()
         except LevelwiseError as exc:
             self.show_error(str(exc))
             return None
-        self.progress.value = 1.0
+        self.show_error("")
+        self.task.start(make, self._searched)
+        return None if self.task.running else self.design
+
+    def _searched(self, design, error) -> None:
+        if error is not None:
+            if isinstance(error, LevelwiseError):
+                self.show_error(str(error))
+            else:
+                self.show_error(f"Internal error in the search: {type(error).__name__}: {error}")
+            return
         self._show(design)
-        return design
+        if design.metadata.get("search_complete") is False:
+            why = {"cancelled": "stopped on request", "interrupted": "interrupted"}.get(
+                design.metadata.get("stopped"), "stopped at its time and size limit")
+            self.status.value = (
+                f'<div class="lw-search-incomplete">The search was {why}: this is the best design found so far, '
+                "not necessarily the best there is.</div>"
+            )
 
     def _show(self, design: Design) -> None:
         self.design = design
