@@ -13,6 +13,7 @@ import html
 import threading
 import time
 import traceback
+import weakref
 
 import ipywidgets as ipw
 import numpy as np
@@ -234,6 +235,12 @@ class LongTask:
             self.message.value = ""
 
 
+#: Per shared model, the views that show its error, in the order they were made, and the view the user last
+#: acted in. The shared model's error (a model typo, a failed fit) is shown once, in that view (else the first).
+_ERROR_VIEWS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+_ERROR_OWNER: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+
+
 class View:
     """Base of every view: a shared model, a status line, safe callbacks and ``close()``.
 
@@ -244,12 +251,23 @@ class View:
         self.shared = shared
         self.status = ipw.HTML().add_class("lw-status")
         self._watched = []
+        try:
+            _ERROR_VIEWS.setdefault(shared, []).append(weakref.ref(self))
+        except TypeError:
+            pass
 
     def watch(self, handler, names) -> None:
         """Observe *names* of the shared model with *handler*, made safe for the event loop."""
         safe = self.safely(handler)
         self.shared.observe(safe, names=names)
         self._watched.append((safe, names))
+
+    def claim_shared_errors(self) -> None:
+        """Show the shared model's errors in this view from now on (call it where the user edits the model)."""
+        try:
+            _ERROR_OWNER[self.shared] = weakref.ref(self)
+        except TypeError:
+            pass
 
     def safely(self, handler):
         """Wrap a callback so that no exception reaches the event loop; errors go to the status line."""
@@ -270,13 +288,27 @@ class View:
         self.status.value = error_html(message)
 
     def show_shared_error(self, change=None) -> None:
-        self.status.value = error_html(self.shared.error)
+        """Show the shared model's error here if this view is the one to show it (see :meth:`safely`)."""
+        self.status.value = error_html(self.shared.error) if self._shows_shared_error() else ""
+
+    def _shows_shared_error(self) -> bool:
+        try:
+            views = _ERROR_VIEWS.get(self.shared, [])
+        except TypeError:
+            return True
+        live = [ref() for ref in views if ref() is not None and not getattr(ref(), "_closed", False)]
+        owner = _ERROR_OWNER.get(self.shared)
+        owner = owner() if owner is not None else None
+        if owner is None or owner not in live or not hasattr(owner, "status"):
+            owner = live[0] if live else self
+        return owner is self
 
     def _repr_mimebundle_(self, **kwargs):
         """A view shows itself as the last line of a notebook cell (its widget)."""
         return self.widget._repr_mimebundle_(**kwargs)
 
     def close(self) -> None:
+        self._closed = True
         for handler, names in self._watched:
             self.shared.unobserve(handler, names=names)
         self._watched = []

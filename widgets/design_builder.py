@@ -32,11 +32,13 @@ from levelwise import (
     fractional_factorial,
     full_factorial,
     optimal_design,
+    parse_model,
     plackett_burman,
     write_run_sheet,
 )
 
 from ._base import Debouncer, LongTask, View
+from ._number import NumberField
 from .effects_view import table_html
 from .shared_model import SharedModel
 from .style import fmt
@@ -61,6 +63,27 @@ FAMILY_OPTIONS = {
     "optimal": ("model", "runs", "criterion", "constraints", "starts", "augment"),
     "fold_over": ("fold_factor", "fold_center_points"),
 }
+
+
+#: What "Runs 0" means, per family (shown under the options, so the hint is always true).
+RUNS_ZERO = {
+    "fractional": "Runs 0: the smallest fraction of the chosen resolution, or the half fraction when the "
+                  "resolution is automatic.",
+    "plackett_burman": "Runs 0: the smallest Plackett–Burman size for the factors (a multiple of 4 above their "
+                       "number).",
+    "optimal": "Runs 0: as many runs as the model has terms (the smallest that can estimate it, with no "
+               "residual degrees of freedom).",
+}
+
+
+def generator_example(names) -> str:
+    """A valid generator for *names*: the last factor as the product of the first (up to four) others."""
+    names = [str(n) for n in names]
+    if len(names) < 3:
+        return ""
+    basic = names[: min(len(names) - 1, 4)]
+    joiner = "" if all(len(n) == 1 for n in names) else ":"
+    return f"{names[-1]}={joiner.join(basic)}"
 
 
 def parse_responses(text: str) -> dict:
@@ -91,8 +114,8 @@ class DesignBuilder(View):
     Attributes
     ----------
     factor_rows : list of dict of widgets
-        Per factor: ``name``, ``units`` (Text), ``low``, ``high`` (FloatText), ``type`` (Dropdown
-        continuous/categorical), ``levels`` (Text, comma-separated, categorical only).
+        Per factor: ``name``, ``units`` (Text), ``low``, ``high`` (NumberField: decimal point or comma),
+        ``type`` (Dropdown continuous/categorical), ``levels`` (Text, comma-separated, categorical only).
         Rows are ``lw-factor-row``; ``add_factor_button`` (``lw-add-factor``), ``remove_factor_button``
         (``lw-remove-factor``).
     family : ipywidgets.Dropdown
@@ -143,34 +166,34 @@ class DesignBuilder(View):
         self.family = ipw.Dropdown(options=FAMILIES, value="full", description="Design").add_class("lw-design-family")
         wide = {"style": {"description_width": "initial"}}
         self.options = {
-            "center_points": ipw.BoundedIntText(value=3, min=0, max=50, description="Centre points", **wide),
+            "center_points": NumberField(3, integer=True, minimum=0, maximum=50, description="Centre points", **wide),
             "default_center_points": ipw.Checkbox(value=True, description="usual number of centre points"),
-            "replicates": ipw.BoundedIntText(value=1, min=1, max=10, description="Replicates", **wide),
+            "replicates": NumberField(1, integer=True, minimum=1, maximum=10, description="Replicates", **wide),
             "blocks": ipw.Dropdown(options=[1, 2, 4, 8], value=1, description="Blocks", **wide),
-            "runs": ipw.IntText(value=0, description="Runs (0: smallest/automatic)", **wide),
-            "generators": ipw.Text(value="", description="Generators (e.g. E=ABCD)", **wide),
+            "runs": NumberField(0, integer=True, minimum=0, maximum=100_000, description="Runs (0: automatic)", **wide),
+            "generators": ipw.Text(value="", description="Generators", continuous_update=False, **wide),
             "resolution": ipw.Dropdown(options=[("automatic", 0), ("III", 3), ("IV", 4), ("V", 5)], value=0,
                                        description="Resolution at least", **wide),
             "alpha": ipw.Combobox(value="rotatable", options=["rotatable", "orthogonal", "face"],
                                   description="Axial distance", **wide),
             "ccd_kind": ipw.Dropdown(options=["circumscribed", "inscribed", "face"], value="circumscribed",
                                      description="Axial points", **wide),
-            "model": ipw.Text(value="quadratic", description="Model to support", **wide),
+            "model": ipw.Text(value="quadratic", description="Model to support", continuous_update=False, **wide),
             "criterion": ipw.Dropdown(options=[("D (precise coefficients)", "D"), ("I (precise predictions)", "I")],
                                       value="D", description="Criterion", **wide),
             "constraints": ipw.Textarea(value="", placeholder="one per line, e.g. Oven + 10*Dwell <= 330",
-                                        description="Constraints", **wide),
-            "starts": ipw.BoundedIntText(value=10, min=1, max=200, description="Random starts", **wide),
+                                        description="Constraints", continuous_update=False, **wide),
+            "starts": NumberField(10, integer=True, minimum=1, maximum=200, description="Random starts", **wide),
             "augment": ipw.Checkbox(value=False, description="keep the current study's runs and add to them"),
             "fold_factor": ipw.Dropdown(options=[("every factor", "")], value="", description="Fold on", **wide),
-            "fold_center_points": ipw.BoundedIntText(value=0, min=0, max=50, description="Centre points in the fold",
-                                                     **wide),
-            "seed": ipw.IntText(value=1, description="Seed (run order)", **wide),
+            "fold_center_points": NumberField(0, integer=True, minimum=0, maximum=50,
+                                              description="Centre points in the fold", **wide),
+            "seed": NumberField(1, integer=True, minimum=0, description="Seed (run order)", **wide),
             "randomize": ipw.Checkbox(value=True, description="randomise the run order"),
         }
         for control in self.options.values():
             control.add_class("lw-design-option")
-        self.eval_model = ipw.Text(value="linear", description="Evaluate for model",
+        self.eval_model = ipw.Text(value="linear", description="Evaluate for model", continuous_update=False,
                                    **wide).add_class("lw-eval-model")
         self.search_button = ipw.Button(description="Search now", layout=ipw.Layout(width="auto")).add_class(
             "lw-search")
@@ -189,6 +212,7 @@ class DesignBuilder(View):
             self.create_button.layout.display = "none"
         self.downloads = ipw.HTML().add_class("lw-run-sheet-export")
         self.option_box = ipw.VBox().add_class("lw-design-options")
+        self.hint = ipw.HTML().add_class("lw-option-hint")
         self.widget = ipw.VBox(
             [
                 ipw.HTML("<b>Factors</b>: name, units, low and high settings, type"),
@@ -196,6 +220,7 @@ class DesignBuilder(View):
                 ipw.HBox([self.add_factor_button, self.remove_factor_button]),
                 self.family,
                 self.option_box,
+                self.hint,
                 ipw.HBox([self.options["seed"], self.options["randomize"]]),
                 ipw.HBox([self.search_button, self.task.widget]),
                 self.eval_model,
@@ -223,18 +248,18 @@ class DesignBuilder(View):
         name = factor.name if factor else "ABCDEFGHJKLMNOPQRSTUVWXYZ"[index % 25]
         categorical = bool(factor is not None and getattr(factor, "is_categorical", False))
         row = {
-            "name": ipw.Text(value=name, description="Name", layout=ipw.Layout(width="190px")),
-            "units": ipw.Text(value=factor.units if factor else "", description="Units",
+            "name": ipw.Text(value=name, description="Name", continuous_update=False, layout=ipw.Layout(width="190px")),
+            "units": ipw.Text(value=factor.units if factor else "", description="Units", continuous_update=False,
                               layout=ipw.Layout(width="150px")),
-            "low": ipw.FloatText(value=factor.low if factor and not categorical else -1.0, description="Low",
+            "low": NumberField(factor.low if factor and not categorical else -1.0, description="Low",
                                  layout=ipw.Layout(width="150px")),
-            "high": ipw.FloatText(value=factor.high if factor and not categorical else 1.0, description="High",
+            "high": NumberField(factor.high if factor and not categorical else 1.0, description="High",
                                   layout=ipw.Layout(width="150px")),
             "type": ipw.Dropdown(options=["continuous", "categorical"],
                                  value="categorical" if categorical else "continuous",
                                  description="Type", layout=ipw.Layout(width="200px")),
             "levels": ipw.Text(value=", ".join(map(str, factor.levels)) if categorical else "",
-                               description="Levels", placeholder="e.g. steel, brass",
+                               description="Levels", placeholder="e.g. steel, brass", continuous_update=False,
                                layout=ipw.Layout(width="220px")),
         }
         for control in row.values():
@@ -302,7 +327,24 @@ class DesignBuilder(View):
         if getattr(self, "_building", False):
             return
         self.task.discard()  # a search for the old inputs is no longer wanted
+        self._hint()
         self.rebuild.request()
+
+    def _hint(self) -> None:
+        """Hints that match the family and the factor names in the table."""
+        family = self.family.value
+        lines = []
+        if family in RUNS_ZERO:
+            lines.append(RUNS_ZERO[family])
+        if family == "fractional":
+            names = [row["name"].value.strip() for row in self.factor_rows]
+            example = generator_example(names)
+            placeholder = f"e.g. {example}" if example else "needs 3 factors or more"
+            self.options["generators"].placeholder = placeholder
+            lines.append("Generators: empty to search for the best fraction, or added factor = product of others, "
+                         f"separated by commas ({html.escape(placeholder)}; names with more than one letter are "
+                         "joined with ':').")
+        self.hint.value = "<br>".join(lines)
 
     def _searches(self) -> bool:
         """True when building the current choice runs a search (optimal designs, fractions without generators)."""
@@ -368,12 +410,13 @@ class DesignBuilder(View):
         if family == "box_behnken":
             return lambda progress: box_behnken(factors, center_points=centre, randomize=randomize, seed=seed)
         constraints = [line.strip() for line in o["constraints"].splitlines() if line.strip()] or None
+        runs = o["runs"] or len(parse_model(o["model"], [f.name for f in factors]).terms)
         fixed = None
         if o["augment"]:  # the new runs only, numbered after the current ones
             data = self.shared.data
             fixed = data[(["run"] if "run" in data.columns else []) + [f.name for f in factors]]
         return lambda progress: optimal_design(
-            factors, o["model"], o["runs"], criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
+            factors, o["model"], runs, criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
             starts=o["starts"], seed=seed, progress=progress if progress is not None else False,
             randomize=randomize,
         )

@@ -17,6 +17,7 @@ import numpy as np
 from levelwise import LevelwiseError, optimize
 
 from ._base import View
+from ._number import NumberField
 from .shared_model import SharedModel
 from .style import fmt
 
@@ -48,7 +49,7 @@ class OptimizerView(View):
     ----------
     goal_rows : dict of str -> dict of widgets
         Per response: ``kind`` (Dropdown, ``lw-goal-kind``), ``low``, ``target``, ``high``
-        (FloatText, ``lw-goal-limit``), ``weight`` and ``importance`` (FloatText, ``lw-goal-weight``,
+        (NumberField, ``lw-goal-limit``), ``weight`` and ``importance`` (NumberField, ``lw-goal-weight``,
         ``lw-goal-importance``).
     run_button : ipywidgets.Button
         ``lw-optimize``.
@@ -95,11 +96,11 @@ class OptimizerView(View):
             row = {
                 "kind": ipw.Dropdown(options=GOAL_CHOICES, value="none", description=f"{response}{unit}",
                                      style={"description_width": "initial"}).add_class("lw-goal-kind"),
-                "low": ipw.FloatText(value=lo, description="low", layout=ipw.Layout(width="150px")),
-                "target": ipw.FloatText(value=(lo + hi) / 2, description="target", layout=ipw.Layout(width="160px")),
-                "high": ipw.FloatText(value=hi, description="high", layout=ipw.Layout(width="150px")),
-                "weight": ipw.FloatText(value=1.0, description="weight", layout=ipw.Layout(width="150px")),
-                "importance": ipw.FloatText(value=1.0, description="importance", layout=ipw.Layout(width="180px")),
+                "low": NumberField(lo, description="low", layout=ipw.Layout(width="150px")),
+                "target": NumberField((lo + hi) / 2, description="target", layout=ipw.Layout(width="160px")),
+                "high": NumberField(hi, description="high", layout=ipw.Layout(width="150px")),
+                "weight": NumberField(1.0, description="weight", layout=ipw.Layout(width="150px")),
+                "importance": NumberField(1.0, description="importance", layout=ipw.Layout(width="180px")),
             }
             for key in ("low", "target", "high"):
                 row[key].add_class("lw-goal-limit")
