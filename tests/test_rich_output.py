@@ -51,3 +51,34 @@ def test_a_view_displays_itself():
     view = FactorSliders(shared)
     bundle = view._repr_mimebundle_()
     assert bundle["application/vnd.jupyter.widget-view+json"]["model_id"] == view.widget.model_id
+
+
+def test_builder_saves_its_figure_and_exports_its_evaluation_table(tmp_path):
+    import io
+
+    from levelwise.widgets import DesignBuilder, SharedModel
+
+    shared = SharedModel(demo.FACTORS, demo.demo_data(), responses=["Impact"], models={"Impact": demo.MODEL},
+                         units={"Impact": "J"}, design=demo.demo_design())
+    builder = DesignBuilder(shared)
+    builder.family.value = "ccd"
+    files = builder.figure_export.render()
+    assert files["png"].startswith(b"\x89PNG\r\n\x1a\n")
+    svg = files["svg"].decode("utf-8")
+    assert "<svg" in svg
+    # Axis labels carry units and the caption says what is drawn (matplotlib writes SVG text as paths, with the
+    # text in comments unless svg.fonttype is 'none'; the PNG holds no text), so check the figure itself.
+    fig = builder.figure()
+    labels = [ax.get_xlabel() for ax in fig.axes if ax.get_visible()]
+    assert "Oven [°C]" in labels and "Dwell [min]" in labels  # the demo factors carry units
+    assert f"{len(builder.design)} runs" in fig._supxlabel.get_text()
+    assert "design.png" in builder.figure_export.links.value and "design.svg" in builder.figure_export.links.value
+    builder.figure_export.save(tmp_path / "design.svg")
+    assert (tmp_path / "design.svg").read_bytes().startswith(b"<?xml")
+    csv = builder.evaluation_export.payload("csv").decode("utf-8")
+    back = pd.read_csv(io.StringIO(csv), index_col=0)
+    ev = evaluate(builder.design, builder.eval_model.value)  # levelwise called directly
+    np.testing.assert_allclose(back["VIF"].to_numpy(), ev.vif.to_numpy(), rtol=1e-12)
+    xlsx = pd.read_excel(io.BytesIO(builder.evaluation_export.payload("xlsx")), index_col=0)
+    np.testing.assert_allclose(xlsx["VIF"].to_numpy(), ev.vif.to_numpy(), rtol=1e-12)
+    assert "design-evaluation.csv" in builder.evaluation_export.widget.value

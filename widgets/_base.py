@@ -241,6 +241,92 @@ _ERROR_VIEWS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 _ERROR_OWNER: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
 
 
+XLSX_MIME = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+
+
+def download_link(payload: bytes, filename: str, mime: str, text: str) -> str:
+    """An ``<a download>`` link carrying *payload* (works in Voilà and JupyterLab, no server route)."""
+    import base64
+
+    data = base64.b64encode(payload).decode("ascii")
+    return f'<a download="{html.escape(filename)}" href="data:{mime};base64,{data}">{html.escape(text)}</a>'
+
+
+def table_bytes(frame, kind: str, units: dict | None = None) -> bytes:
+    """*frame* as CSV (UTF-8) or XLSX bytes, units in the headers as ``name [units]``."""
+    import io
+
+    from levelwise import LevelwiseError
+
+    out = frame.rename(columns={c: f"{c} [{u}]" for c, u in (units or {}).items() if u and c in frame.columns})
+    if kind == "csv":
+        return out.to_csv(index=out.index.name is not None).encode("utf-8")
+    if kind == "xlsx":
+        buffer = io.BytesIO()
+        out.to_excel(buffer, index=out.index.name is not None, engine="openpyxl")
+        return buffer.getvalue()
+    raise LevelwiseError(f"The table export kind must be 'csv' or 'xlsx'. Got {kind!r} instead.")
+
+
+class TableExport:
+    """CSV and XLSX download links for a table a view shows (``lw-table-export``). Attach ``widget`` to the
+    view and call :meth:`update` whenever the table changes; :meth:`payload` gives the bytes in Python."""
+
+    def __init__(self, name: str, label: str = "table"):
+        self.name, self.label = name, label
+        self.frame, self.units = None, None
+        self.widget = ipw.HTML().add_class("lw-table-export")
+
+    def update(self, frame, units: dict | None = None) -> None:
+        self.frame, self.units = frame, units
+        links = [download_link(table_bytes(frame, "csv", units), f"{self.name}.csv", "text/csv",
+                               f"{self.label} (CSV)"),
+                 download_link(table_bytes(frame, "xlsx", units), f"{self.name}.xlsx", XLSX_MIME,
+                               f"{self.label} (XLSX)")]
+        self.widget.value = "Download: " + " · ".join(links)
+
+    def payload(self, kind: str) -> bytes:
+        from levelwise import LevelwiseError
+
+        if self.frame is None:
+            raise LevelwiseError(f"There is no {self.label} to export yet.")
+        return table_bytes(self.frame, kind, self.units)
+
+
+class FigureExport:
+    """"Save figure": PNG and SVG drawn on the server by matplotlib (``levelwise.figures``), with units and a
+    caption, offered as download links (``lw-save-figure``, links in ``lw-figure-links``).
+
+    *make_figure* returns a matplotlib figure of what the view shows (labels with units, a caption).
+    """
+
+    def __init__(self, view, make_figure, name: str):
+        self.make_figure, self.name = make_figure, name
+        self.button = ipw.Button(description="Save figure (PNG, SVG)", layout=ipw.Layout(width="auto")).add_class(
+            "lw-save-figure")
+        self.links = ipw.HTML().add_class("lw-figure-links")
+        self.button.on_click(view.safely(lambda _: self.render()))
+        self.widget = ipw.HBox([self.button, self.links])
+
+    def render(self) -> dict:
+        """Draw the figure now; returns ``{"png": bytes, "svg": bytes}`` and shows the links."""
+        from levelwise.figures import figure_bytes
+
+        fig = self.make_figure()
+        out = {"png": figure_bytes(fig, "png"), "svg": figure_bytes(fig, "svg")}
+        self.links.value = " · ".join([
+            download_link(out["png"], f"{self.name}.png", "image/png", f"{self.name}.png"),
+            download_link(out["svg"], f"{self.name}.svg", "image/svg+xml", f"{self.name}.svg"),
+        ])
+        return out
+
+    def save(self, path):
+        """Write the figure to a .png or .svg file (by suffix)."""
+        from levelwise.figures import save_figure
+
+        return save_figure(self.make_figure(), path)
+
+
 class View:
     """Base of every view: a shared model, a status line, safe callbacks and ``close()``.
 

@@ -37,7 +37,7 @@ from levelwise import (
     write_run_sheet,
 )
 
-from ._base import Debouncer, LongTask, View
+from ._base import Debouncer, FigureExport, LongTask, TableExport, View
 from ._number import NumberField
 from .effects_view import table_html
 from .shared_model import SharedModel
@@ -211,6 +211,8 @@ class DesignBuilder(View):
             self.create_button.disabled = True
             self.create_button.layout.display = "none"
         self.downloads = ipw.HTML().add_class("lw-run-sheet-export")
+        self.evaluation_export = TableExport("design-evaluation", "evaluation table")
+        self.figure_export = FigureExport(self, self.figure, "design")
         self.option_box = ipw.VBox().add_class("lw-design-options")
         self.hint = ipw.HTML().add_class("lw-option-hint")
         self.widget = ipw.VBox(
@@ -226,8 +228,10 @@ class DesignBuilder(View):
                 self.eval_model,
                 self.structure,
                 self.evaluation,
+                self.evaluation_export.widget,
                 self.run_sheet,
                 self.downloads,
+                self.figure_export.widget,
                 ipw.HBox([self.responses, self.create_button]),
                 self.status,
             ]
@@ -503,11 +507,26 @@ class DesignBuilder(View):
                                     f"{html.escape(str(exc))}"
         else:
             self.evaluation.value = self._evaluation_html(ev)
+            self.evaluation_export.update(self._evaluation_frame(ev))
         self._exports(design)
+
+    @staticmethod
+    def _evaluation_frame(ev) -> pd.DataFrame:
+        frame = pd.DataFrame({"VIF": ev.vif, f"power (effect {fmt(ev.delta)}σ, α = {fmt(ev.alpha)})": ev.power})
+        frame.index.name = "term"
+        return frame
+
+    def figure(self):
+        """The previewed design's runs as a matplotlib figure (natural units, with a caption)."""
+        from levelwise.figures import design_figure
+
+        if self.design is None:
+            raise LevelwiseError("Build a design first.")
+        return design_figure(self.design)
 
     def _evaluation_html(self, ev) -> str:
         pv = ev.prediction_variance
-        per_term = pd.DataFrame({"VIF": ev.vif, f"power (effect {fmt(ev.delta)}σ, α = {fmt(ev.alpha)})": ev.power})
+        per_term = self._evaluation_frame(ev)
         note = ""
         if ev.inestimable:
             note = ('<div class="lw-inestimable">Cannot be estimated with this design: '
