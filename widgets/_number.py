@@ -78,19 +78,26 @@ class NumberField(ipw.VBox):
     error = traitlets.Unicode("")
 
     def __init__(self, value=0.0, *, description="", integer=False, minimum=None, maximum=None,
-                 layout=None, style=None, placeholder=""):
+                 layout=None, style=None, placeholder="", description_allow_html=False):
         self.integer, self.minimum, self.maximum = integer, minimum, maximum
         if integer:
             self.add_traits(value=traitlets.Int(0))
         kwargs = {"layout": layout} if layout is not None else {}
         self.text = ipw.Text(value=_show(int(value) if integer else float(value)), description=description,
                              continuous_update=False, placeholder=placeholder,
+                             description_allow_html=description_allow_html,
                              style=style or {}, **kwargs).add_class("lw-number")
         self.message = ipw.HTML().add_class("lw-number-error")
         super().__init__([self.text, self.message])
         self.value = int(value) if integer else float(value)
         self.text.observe(self._on_text, names="value")
         self.observe(self._on_value, names="value")
+
+    @property
+    def field_name(self) -> str:
+        """The description as plain text (it may be inert HTML), for messages."""
+        text = re.sub(r"<[^>]*>", "", self.text.description or "number")
+        return html.unescape(text)
 
     @property
     def description(self) -> str:
@@ -110,7 +117,7 @@ class NumberField(ipw.VBox):
 
     def _on_text(self, change) -> None:
         try:
-            number = parse_number(change["new"], field=self.text.description or "number", integer=self.integer,
+            number = parse_number(change["new"], field=self.field_name, integer=self.integer,
                                   minimum=self.minimum, maximum=self.maximum)
         except LevelwiseError as exc:
             self.error = str(exc)
