@@ -57,13 +57,14 @@ def test_optimal_search_stopped_by_callback_keeps_best_start():
         calls.append(message)
         return len(calls) < 2
 
-    design = optimal_design(3, "quadratic", runs=12, starts=50, seed=3, randomize=False, progress=stop_after_two)
+    design = optimal_design(3, "full_second_order", runs=12, starts=50, seed=3, randomize=False,
+                            progress=stop_after_two)
     assert calls == ["start 1 of 50", "start 2 of 50"]
     assert design.metadata["starts_run"] == 2
     assert design.metadata["search_complete"] is False
     assert design.metadata["stopped"] == "cancelled"
     # The first two starts of the same seed, run to the end, give the same best design.
-    full = optimal_design(3, "quadratic", runs=12, starts=2, seed=3, randomize=False, progress=False)
+    full = optimal_design(3, "full_second_order", runs=12, starts=2, seed=3, randomize=False, progress=False)
     assert full.metadata["search_complete"] is True
     assert design.metadata["log_det"] == pytest.approx(full.metadata["log_det"], rel=1e-12)
 
@@ -128,7 +129,7 @@ SCRIPT = r"""
 import sys, warnings
 import levelwise as lw
 warnings.simplefilter("always")
-design = lw.optimal_design(4, "quadratic", runs=20, starts=100000, seed=1, randomize=False, progress=True)
+design = lw.optimal_design(4, "full_second_order", runs=20, starts=100000, seed=1, randomize=False, progress=True)
 print("RESULT", design.metadata["stopped"], design.metadata["search_complete"], design.metadata["starts_run"],
       len(design), flush=True)
 """

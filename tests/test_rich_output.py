@@ -39,7 +39,7 @@ def test_design_html_has_summary_units_and_runs():
     assert "10 runs" in text and "resolution 4" in text and "D=Oven:Dwell:C" in text
     assert "Oven 150 to 200 degC" in text and "<th>Oven [degC]</th>" in text
     assert text.count("<tr>") == 1 + 10
-    ev = evaluate(design, "linear")._repr_html_()
+    ev = evaluate(design, "main_effects")._repr_html_()
     assert "rank 5" in ev and "5 residual degrees of freedom" in ev and "VIF" in ev
 
 

@@ -72,12 +72,12 @@ def test_builder_factor_limits_take_a_decimal_comma():
 def test_runs_zero_means_what_the_hint_says_for_optimal_designs():
     builder = DesignBuilder(make_shared())
     builder.family.value = "optimal"
-    builder.options["model"].value = "quadratic"
+    builder.options["model"].value = "full_second_order"
     builder.options["runs"].value = 0
     builder.options["starts"].value = 2
     assert "as many runs as the model has terms" in builder.hint.value
     design = builder.search()
-    terms = len(parse_model("quadratic", [f.name for f in demo.FACTORS]).terms)
+    terms = len(parse_model("full_second_order", [f.name for f in demo.FACTORS]).terms)
     assert design is not None and len(design) == terms == 15
 
 

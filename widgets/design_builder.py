@@ -178,7 +178,8 @@ class DesignBuilder(View):
                                   description="Axial distance", **wide),
             "ccd_kind": ipw.Dropdown(options=["circumscribed", "inscribed", "face"], value="circumscribed",
                                      description="Axial points", **wide),
-            "model": ipw.Text(value="quadratic", description="Model to support", continuous_update=False, **wide),
+            "model": ipw.Text(value="full_second_order", description="Model to support", continuous_update=False,
+                              **wide),
             "criterion": ipw.Dropdown(options=[("D (precise coefficients)", "D"), ("I (precise predictions)", "I")],
                                       value="D", description="Criterion", **wide),
             "constraints": ipw.Textarea(value="", placeholder="one per line, e.g. Oven + 10*Dwell <= 330",
@@ -193,7 +194,7 @@ class DesignBuilder(View):
         }
         for control in self.options.values():
             control.add_class("lw-design-option")
-        self.eval_model = ipw.Text(value="linear", description="Evaluate for model", continuous_update=False,
+        self.eval_model = ipw.Text(value="main_effects", description="Evaluate for model", continuous_update=False,
                                    **wide).add_class("lw-eval-model")
         self.search_button = ipw.Button(description="Search now", layout=ipw.Layout(width="auto")).add_class(
             "lw-search")
@@ -321,10 +322,10 @@ class DesignBuilder(View):
                                           else "Search for the best fraction now")
         self.search_button.layout.display = "" if searching else "none"
         self.task.widget.layout.display = "" if searching else "none"
-        if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "linear":
-            self.eval_model.value = "quadratic"
-        elif family in ("full", "fractional", "plackett_burman") and self.eval_model.value == "quadratic":
-            self.eval_model.value = "linear"
+        if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "main_effects":
+            self.eval_model.value = "full_second_order"
+        elif family in ("full", "fractional", "plackett_burman") and self.eval_model.value == "full_second_order":
+            self.eval_model.value = "main_effects"
         self._on_option()
 
     def _on_option(self, change=None):

@@ -235,7 +235,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     if criterion not in ("D", "I"):
         raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
     reporter = Reporter(progress, label=f"{criterion}-optimal search")
-    from ..formula import parse_model
+    from ..model import parse_model
 
     names = [f.name for f in factors]
     spec = parse_model(model, names)
