@@ -5,6 +5,7 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
+from ._progress import SearchStoppedWarning, TextProgress
 from ._version import __version__
 from .design import (
     Design,
@@ -135,3 +136,4 @@ __all__ += [
     "read_table",
     "study_run_sheet",
 ]
+__all__ += ["SearchStoppedWarning", "TextProgress"]
