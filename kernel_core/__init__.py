@@ -89,3 +89,8 @@ __all__ += [
 from .study import Study  # noqa: E402
 
 __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
+
+# Mixtures (issue 12).
+from ._mixture_region import Component, Mixture  # noqa: E402
+
+__all__ += ["Component", "Mixture"]
