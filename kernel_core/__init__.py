@@ -94,3 +94,6 @@ __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
 from ._mixture_region import Component, Mixture  # noqa: E402
 
 __all__ += ["Component", "Mixture"]
+from ._mixture_designs import extreme_vertices, mixture_process, simplex_centroid, simplex_lattice  # noqa: E402
+
+__all__ += ["extreme_vertices", "mixture_process", "simplex_centroid", "simplex_lattice"]

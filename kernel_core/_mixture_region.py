@@ -182,8 +182,9 @@ class Mixture:
             )
         # Bounds implied by the others (a component cannot exceed T - sum of the other lows, ...).
         self.declared_lows, self.declared_highs = low, high
-        self.lows = np.maximum(low, T - (high.sum() - high))
-        self.highs = np.minimum(high, T - (low.sum() - low))
+        others = ~np.eye(len(low), dtype=bool)  # sums over the other components, added directly (no cancellation)
+        self.lows = np.maximum(low, T - np.array([high[o].sum() for o in others]))
+        self.highs = np.minimum(high, T - np.array([low[o].sum() for o in others]))
         self.constraint_text = [constraints] if isinstance(constraints, str) else list(constraints or [])
         from .constraints import parse_constraint
 
