@@ -97,3 +97,6 @@ __all__ += ["Component", "Mixture"]
 from ._mixture_designs import extreme_vertices, mixture_process, simplex_centroid, simplex_lattice  # noqa: E402
 
 __all__ += ["extreme_vertices", "mixture_process", "simplex_centroid", "simplex_lattice"]
+from ._mixture_models import MixtureFit, cox_traces, fit_mixture  # noqa: E402
+
+__all__ += ["MixtureFit", "cox_traces", "fit_mixture"]
