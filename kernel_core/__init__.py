@@ -100,3 +100,6 @@ __all__ += ["extreme_vertices", "mixture_process", "simplex_centroid", "simplex_
 from ._mixture_models import MixtureFit, cox_traces, fit_mixture  # noqa: E402
 
 __all__ += ["MixtureFit", "cox_traces", "fit_mixture"]
+from ._mixture_slices import move_component, ternary_slice  # noqa: E402
+
+__all__ += ["move_component", "ternary_slice"]
