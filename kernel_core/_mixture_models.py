@@ -18,6 +18,7 @@ a :class:`MixtureFit`, a :class:`~levelwise.Fit` that
 from __future__ import annotations
 
 import dataclasses
+import math
 from dataclasses import dataclass
 from functools import cached_property
 
@@ -160,11 +161,97 @@ class MixtureFit(Fit):
         """The point prediction and the Cox-direction traces at a blend (no surface slice for mixtures yet)."""
         if slice_axes is not None:
             raise LevelwiseError("A surface slice of a mixture fit is not available yet; use slice_axes=None.")
+        fast = self._fast_blend(settings)
+        if fast is not None and (points is None or (type(points) is int and 2 <= points <= 100_000)):
+            return self._fast_refresh(*fast, level, points, point)
         out = {"point": None, "slice": None}
         if point:
             row = self.predict(settings, level).iloc[0]
             out["point"] = {k: (bool(row[k]) if k == "extrapolated" else float(row[k])) for k in row.index}
         out["traces"] = None if points is None else self.traces(settings, points, level)
+        return out
+
+    @cached_property
+    def _fast_constants(self):
+        info = self.mixture_info
+        m = info.mixture
+        return (info.names, m.q, m.total, 1e-9 * m.total, m.declared_lows.tolist(), m.declared_highs.tolist(),
+                len(m.G) > 0, [(f.center, f.half_range) for f in info.process],
+                m.lows if info.pseudo else 0.0, m.pseudo_range if info.pseudo else m.total)
+
+    def _fast_blend(self, settings):
+        """(amounts, model variables) of a valid blend given as a dict of plain numbers; None otherwise (the
+        general path then checks it and names what is wrong). Plain Python: this runs on every slider event."""
+        names, q, total, tol, lows, highs, constrained, process, offset, divisor = self._fast_constants
+        if type(settings) is not dict or len(settings) != len(names):
+            return None
+        try:
+            row = [settings[n] for n in names]
+        except KeyError:
+            return None
+        for value in row:
+            if type(value) is not float and type(value) is not int:
+                return None
+            if value != value or value in (math.inf, -math.inf):
+                return None
+        xs = row[:q]
+        if abs(math.fsum(xs) - total) > tol:
+            return None
+        for value, lo, hi in zip(xs, lows, highs):
+            if value < lo - tol or value > hi + tol:
+                return None
+        x = np.array(xs, dtype=float)
+        if constrained:
+            m = self.mixture_info.mixture
+            if (m.G @ x > m.h + tol).any():
+                return None
+        variables = np.empty(len(row))
+        variables[:q] = (x - offset) / divisor
+        for j, (centre, half) in enumerate(process):
+            variables[q + j] = (row[q + j] - centre) / half
+        return x, variables
+
+    def _fast_refresh(self, x, variables, level, points, point):
+        """One slider event on a checked blend: the point and every Cox trace in one predictor call."""
+        info = self.mixture_info
+        m = info.mixture
+        q = m.q
+        level = self.level if level is None else _check_level(level)
+        count = 1 + (q * points if points is not None else 0)
+        rows = np.empty((count, len(variables)))
+        rows[0] = variables
+        if points is not None:
+            ts, grid = _cox_grid(m, x, points)
+            offset, divisor = self._fast_constants[-2:]
+            np.divide(grid.reshape(-1, q) - offset, divisor, out=rows[1:, :q])
+            if info.process:
+                rows[1:, q:] = variables[q:]
+        predictor = self.predictor
+        mean, h = predictor.mean_and_leverage(rows)
+        qs = self.t_quantile(level) * self.s
+        ci, pi = qs * np.sqrt(h), qs * np.sqrt(1.0 + h)
+        out = {"point": None, "slice": None, "traces": None}
+        if point:
+            mu, c, p, lev = float(mean[0]), float(ci[0]), float(pi[0]), float(h[0])
+            outside = bool(lev > predictor.max_leverage * (1.0 + 1e-9) + 1e-12)
+            if info.process:
+                coded = variables[q:]
+                outside = outside or bool((np.abs(coded) > 1.0 + 1e-9).any())
+            out["point"] = {"mean": mu, "ci_low": mu - c, "ci_high": mu + c, "pi_low": mu - p, "pi_high": mu + p,
+                            "leverage": lev, "extrapolated": outside}
+        if points is not None:
+            traces = {}
+            change = (ts - x[:, None]) / m.total
+            mean_t, ci_t, pi_t = (a[1:].reshape(q, points) for a in (mean, ci, pi))
+            for i, name in enumerate(info.names[:q]):
+                traces[name] = {"x": change[i], "amount": ts[i], "blends": grid[i], "mean": mean_t[i],
+                                "ci_half": ci_t[i], "pi_half": pi_t[i]}
+            for j, f in enumerate(info.process):
+                grid_p = np.repeat(variables[None, :], points, axis=0)
+                grid_p[:, q + j] = np.linspace(-1.0, 1.0, points)
+                mu, c, p = predictor.intervals(grid_p, level)
+                traces[f.name] = {"x": f.to_natural(grid_p[:, q + j]), "mean": mu, "ci_half": c, "pi_half": p}
+            out["traces"] = traces
         return out
 
     def slice(self, *args, **kwargs):
@@ -302,7 +389,8 @@ def fit_mixture(data, response, model, components, *, total=None, process=(), ps
     if missing:
         raise LevelwiseError(f"The data has no column for component(s) or process factor(s) {missing}.")
     y = pd.to_numeric(data[response], errors="coerce")
-    used = data.loc[y.notna().to_numpy()]
+    has_y = y.notna().to_numpy()
+    used = data.loc[has_y]
     amounts = np.column_stack([pd.to_numeric(used[n], errors="coerce").to_numpy(dtype=float)
                                for n in mixture.names])
     mixture.check_blends(amounts, "data", rows=[f"{label!r}" for label in used.index])
@@ -314,7 +402,7 @@ def fit_mixture(data, response, model, components, *, total=None, process=(), ps
                              "run with a response.")
     variables = info.variables(amounts, proc)
     frame = pd.DataFrame(variables, columns=info.names, index=used.index)
-    frame[response] = y.loc[used.index].to_numpy(dtype=float)
+    frame[response] = y.to_numpy(dtype=float)[has_y]
     if "run" in used.columns:
         frame["run"] = used["run"].to_numpy()
     E = model_exponents(model, mixture.names, [f.name for f in process])
@@ -323,25 +411,103 @@ def fit_mixture(data, response, model, components, *, total=None, process=(), ps
     return _wrap(base, info)
 
 
-def _cox_interval(mixture, r, i):
-    """Feasible amounts t of component i along its Cox direction from the blend r (others keep their relative
-    proportions: x_j = r_j (T - t) / (T - r_i))."""
+def _cox_constants(mixture):
+    """Per-mixture constants of :func:`_cox_lines`, cached on the Mixture."""
+    cached = mixture.__dict__.get("_cox_constants")
+    if cached is None:
+        q = mixture.q
+        eye = np.eye(q)
+        G = np.vstack([-eye, eye, mixture.G])
+        h = np.concatenate([-mixture.declared_lows, mixture.declared_highs, mixture.h])
+        cached = mixture.__dict__["_cox_constants"] = (eye, 1.0 - eye, np.ascontiguousarray(G.T), h,
+                                                       (1.0 - eye) / (q - 1))
+    return cached
+
+
+def _cox_lines(mixture, r):
+    """The Cox direction of every component from the blend r, at once.
+
+    Line i: x(t) = A[i] + t B[i] with x_i = t and x_j = r_j (T - t) / (T - r_i) (the others keep their relative
+    proportions; from a pure blend they share equally). Returns (A, B, lo, hi): the feasible t of line i is
+    [lo[i], hi[i]] (bounds and constraints)."""
+    T = mixture.total
+    eye, off, GT, h, equal = _cox_constants(mixture)
+    if not len(mixture.G) and mixture.q <= 8:
+        return _cox_lines_bounds(mixture, r, eye)
+    rest = T - r
+    pure = rest <= 1e-12 * T
+    share = r[None, :] / np.where(pure, 1.0, rest)[:, None] * off
+    if pure.any():
+        share[pure] = equal[pure]
+    A = share * T
+    B = eye - share
+    slope = B @ GT
+    room = h - A @ GT
+    ratio = np.divide(room, slope, out=np.zeros_like(room), where=np.abs(slope) > 1e-12)
+    lo = np.where(slope < -1e-12, ratio, -np.inf).max(axis=1)
+    hi = np.where(slope > 1e-12, ratio, np.inf).min(axis=1)
+    return A, B, lo, hi
+
+
+def _cox_lines_bounds(mixture, r, eye):
+    """:func:`_cox_lines` for a region of bounds only, in plain Python (a few components: faster than arrays).
+
+    Along line i the others are x_j = s_j (T - t), s_j = r_j / (T - r_i); L_j <= x_j <= U_j gives
+    T - U_j / s_j <= t <= T - L_j / s_j for s_j > 0, and L_i <= t <= U_i."""
     T, q = mixture.total, mixture.q
-    a = np.zeros(q)
-    b = np.zeros(q)
-    rest = T - r[i]
-    share = r / rest if rest > 1e-12 * T else (1.0 - np.eye(q)[i]) / (q - 1)
-    share[i] = 0.0
-    a[:] = share * T
-    b[:] = -share
-    a[i], b[i] = 0.0, 1.0
-    eye = np.eye(q)
-    G = np.vstack([-eye, eye, mixture.G])
-    h = np.concatenate([-mixture.declared_lows, mixture.declared_highs, mixture.h])
-    slope, room = G @ b, h - G @ a
-    lo = max([room[k] / slope[k] for k in range(len(G)) if slope[k] < -1e-12], default=-np.inf)
-    hi = min([room[k] / slope[k] for k in range(len(G)) if slope[k] > 1e-12], default=np.inf)
-    return a, b, lo, hi
+    lows, highs = mixture.__dict__.get("_bounds_lists") or mixture.__dict__.setdefault(
+        "_bounds_lists", (mixture.declared_lows.tolist(), mixture.declared_highs.tolist()))
+    rv = r.tolist()
+    shares, lo, hi = [], [], []
+    for i in range(q):
+        rest = T - rv[i]
+        if rest > 1e-12 * T:
+            share = [rv[j] / rest if j != i else 0.0 for j in range(q)]
+        else:
+            share = [1.0 / (q - 1) if j != i else 0.0 for j in range(q)]
+        a, b = lows[i], highs[i]
+        for j in range(q):
+            sj = share[j]
+            if sj > 0.0:
+                top = T - lows[j] / sj
+                bottom = T - highs[j] / sj
+                if top < b:
+                    b = top
+                if bottom > a:
+                    a = bottom
+        shares.append(share)
+        lo.append(a)
+        hi.append(b)
+    share = np.array(shares)
+    return share * T, eye - share, np.array(lo), np.array(hi)
+
+
+def _cox_interval(mixture, r, i):
+    """The Cox line of component i from the blend r: (a, b, lo, hi); see :func:`_cox_lines`."""
+    A, B, lo, hi = _cox_lines(mixture, np.asarray(r, dtype=float))
+    return A[i], B[i], lo[i], hi[i]
+
+
+def _cox_grid(mixture, r, points):
+    """(t (q, points), blends (q, points, q)) along every component's Cox line over its feasible range."""
+    A, B, lo, hi = _cox_lines(mixture, r)
+    unit = _unit_grid(points)
+    t = lo[:, None] + (hi - lo)[:, None] * unit
+    # A[i, i] = 0 and B[i, i] = 1, so component i's own column is exactly t.
+    blends = t[:, :, None] * B[:, None, :]
+    blends += A[:, None, :]
+    return t, blends
+
+
+_UNIT_GRIDS: dict = {}
+
+
+def _unit_grid(points):
+    grid = _UNIT_GRIDS.get(points)
+    if grid is None:
+        grid = _UNIT_GRIDS[points] = np.linspace(0.0, 1.0, points)[None, :]
+        grid.flags.writeable = False
+    return grid
 
 
 def cox_traces(fit, reference, points: int = 50, level=None, only=None) -> dict:
@@ -374,13 +540,11 @@ def cox_traces(fit, reference, points: int = 50, level=None, only=None) -> dict:
     r = mixture.amounts_from(reference)[0]
     process_natural = np.array([f.to_natural(base[0, mixture.q + j]) for j, f in enumerate(info.process)])
     out = {}
+    ts, grid = _cox_grid(mixture, r, int(points))
     for i, name in enumerate(mixture.names):
         if only is not None and name != only:
             continue
-        a, b, lo, hi = _cox_interval(mixture, r, i)
-        t = np.linspace(lo, hi, int(points))
-        blends = a[None, :] + t[:, None] * b[None, :]
-        blends[:, i] = t
+        t, blends = ts[i], grid[i]
         proc = np.tile(process_natural, (len(t), 1)) if info.process else None
         mean, ci, pi = fit.predictor.intervals(info.variables(blends, proc), level)
         out[name] = {"x": (t - r[i]) / mixture.total, "amount": t, "blends": blends, "mean": mean,

@@ -106,3 +106,36 @@ def test_process_factor_trace_and_total_100():
     assert tr["Temp"]["x"] == pytest.approx([150, 160, 170, 180, 190])
     hand = pd.DataFrame({"A": [50.0] * 5, "B": [30.0] * 5, "C": [20.0] * 5, "Temp": [150, 160, 170, 180, 190]})
     assert tr["Temp"]["mean"] == pytest.approx(f.predict(hand)["mean"].to_numpy(), abs=1e-10)
+
+
+def test_fast_refresh_equals_the_general_path(setup):
+    # A dict of plain floats takes the fast path; numpy scalars take the general (checked) path: same numbers.
+    f, _ = setup
+    plain = f.refresh({"x1": 0.2, "x2": 0.3, "x3": 0.5}, points=9)
+    general = f.refresh({"x1": np.float64(0.2), "x2": np.float64(0.3), "x3": np.float64(0.5)}, points=9)
+    for key in ("mean", "ci_low", "pi_high", "leverage"):
+        assert plain["point"][key] == pytest.approx(general["point"][key], abs=1e-12)
+    for name in NAMES:
+        for key in ("x", "amount", "mean", "ci_half", "pi_half"):
+            assert plain["traces"][name][key] == pytest.approx(general["traces"][name][key], abs=1e-12)
+    # a blend that is not valid is refused on both paths
+    with pytest.raises(LevelwiseError, match="sum"):
+        f.refresh({"x1": 0.2, "x2": 0.3, "x3": 0.6})
+
+
+def test_fast_refresh_with_process_factor_and_pseudo_components():
+    comps = [lw.Component("A", 0.1), lw.Component("B", 0.2), lw.Component("C")]
+    mix = lw.simplex_lattice(comps, 3, randomize=False)  # 10 blends x 2 temperatures, 12 terms
+    d = lw.mixture_process(mix, [lw.Factor("Temp", 150, 190)], randomize=False)
+    data = d.table[["A", "B", "C", "Temp"]].copy()
+    data["y"] = np.random.default_rng(12).normal(size=len(data)) + data["A"] * 3
+    f = lw.fit_mixture(data, "y", ("scheffe_quadratic", "main_effects"), mix.mixture,
+                       process=[lw.Factor("Temp", 150, 190)], pseudo=True)
+    blend = {"A": 0.3, "B": 0.4, "C": 0.3, "Temp": 175.0}
+    fast = f.refresh(blend, points=6)
+    assert np.isfinite(fast["point"]["pi_high"])
+    general = f.refresh({k: np.float64(v) for k, v in blend.items()}, points=6)
+    assert fast["point"]["pi_high"] == pytest.approx(general["point"]["pi_high"], abs=1e-12)
+    for name in ("A", "B", "C", "Temp"):
+        assert fast["traces"][name]["mean"] == pytest.approx(general["traces"][name]["mean"], abs=1e-12)
+    assert f.refresh({**blend, "Temp": 200.0}, points=None)["point"]["extrapolated"]

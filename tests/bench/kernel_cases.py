@@ -470,10 +470,13 @@ def case_designs(cfg: Config) -> list[dict]:
     return rows
 
 
+from .mixture_cases import case_mixture_refresh  # noqa: E402 - case 7 lives in its own module
+
 CASES = {
     "refresh": case_refresh,
     "diagnostics": case_diagnostics,
     "exclusion": case_exclusion,
     "fit": case_fit,
     "designs": case_designs,
+    "mixture": case_mixture_refresh,
 }
