@@ -49,6 +49,30 @@ def _split(factors, constraints):
     return mixture, process, constraints
 
 
+def _fixed_variables(fixed_runs, mixture, process):
+    """Fixed runs as model variables (proportions, coded process settings), checked."""
+    import pandas as pd
+
+    from .design import Design
+
+    if fixed_runs is None:
+        return np.zeros((0, mixture.q + len(process))), np.zeros((0, mixture.q))
+    table = fixed_runs.table if isinstance(fixed_runs, Design) else fixed_runs
+    if not isinstance(table, pd.DataFrame):
+        raise LevelwiseError(f"The 'fixed_runs' parameter must be a Design or a DataFrame of component amounts "
+                             f"(and process settings). Got {describe(fixed_runs)} instead.")
+    amounts = mixture.amounts_from(table, "fixed_runs")
+    cols = [amounts / mixture.total]
+    for f in process:
+        if f.name not in table.columns:
+            raise LevelwiseError(f"The 'fixed_runs' table has no column for process factor {f.name!r}.")
+        values = pd.to_numeric(table[f.name], errors="coerce").to_numpy(dtype=float)
+        if not np.isfinite(values).all():
+            raise LevelwiseError(f"The 'fixed_runs' column {f.name!r} must hold numbers.")
+        cols.append(f.to_coded(values)[:, None])
+    return np.hstack(cols), amounts
+
+
 def _gain(A, W, phi, x, Y, criterion):
     """Best candidate row of *Y* to replace model row *x*: (index, accept)."""
     Ax = A @ x
@@ -130,13 +154,12 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     Called by :func:`levelwise.optimal_design` when its factors hold Components or a Mixture. *model* is a
     Scheffé preset, a pair (Scheffé preset, process model) or a formula over the components and process factors
     (no intercept). *constraints* are linear inequalities over component amounts and process settings in natural
-    units. *fixed_runs* is not supported yet for mixtures.
+    units. *fixed_runs* (a Design or DataFrame with the component amounts and process settings) are kept and
+    the new runs augment them (fixed runs in block 1, new runs in block 2).
     """
     from .constraints import parse_constraint
 
     mixture, process, constraints = _split(factors, constraints)
-    if fixed_runs is not None:
-        raise LevelwiseError("The 'fixed_runs' parameter is not supported for mixture optimal designs yet.")
     runs = _check_count(runs, "runs", 1)
     starts = _check_count(starts, "starts", 1)
     seed = _check_seed(seed)
@@ -148,9 +171,11 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     names = mixture.names + [f.name for f in process]
     E = model_exponents(model, mixture.names, [f.name for f in process])
     p = len(E)
-    if runs < p:
-        raise LevelwiseError(f"The model {model!r} has {p} terms but the design would have only {runs} runs; "
-                             f"'runs' must be at least {p}.")
+    fixed, fixed_amounts = _fixed_variables(fixed_runs, mixture, process)
+    n_fixed = len(fixed)
+    if runs + n_fixed < p:
+        raise LevelwiseError(f"The model {model!r} has {p} terms but the design would have only {runs + n_fixed} "
+                             f"runs ({runs} new + {n_fixed} fixed); 'runs' must be at least {p - n_fixed}.")
     T = mixture.total
     # Every inequality over v = [proportions, coded process]: G v <= h.
     eye = np.eye(q + k)
@@ -192,7 +217,7 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     best = None
     start = 0
     for start in range(starts):
-        points = sample(runs, rng)
+        points = np.vstack([fixed, sample(runs, rng)])
         F = monomials(points, E)
         M = F.T @ F
         ridge = 0.0 if np.linalg.matrix_rank(M) == p else 1e-6 * max(1.0, np.trace(M) / p)
@@ -200,7 +225,7 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
         phi = float(np.trace(A @ W)) if W is not None else 0.0
         for _ in range(MAX_PASSES):
             changed = False
-            for i in range(runs):
+            for i in range(n_fixed, n_fixed + runs):
                 for j in range(q + k):
                     cand = _candidates(G, h, points[i], j, q, k)
                     if not len(cand):
@@ -235,11 +260,13 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     amounts = points[:, :q] * T
     amounts[:, -1] = T - amounts[:, :-1].sum(axis=1)  # the sum exactly at the total
     amounts = np.clip(amounts, mixture.declared_lows, mixture.declared_highs)
+    amounts[:n_fixed] = fixed_amounts  # the fixed runs exactly as given
     meta = {"criterion": criterion, "model": model if isinstance(model, str) else list(model),
-            "constraints": texts, "d_efficiency": 100.0 * math.exp(logdet / p) / runs, "log_det": logdet,
+            "constraints": texts, "d_efficiency": 100.0 * math.exp(logdet / p) / (runs + n_fixed), "log_det": logdet,
             "starts_run": start + 1}
-    design = mixture_design(mixture, amounts, ["optimal"] * runs, process=process,
+    design = mixture_design(mixture, amounts, ["fixed"] * n_fixed + ["optimal"] * runs, process=process,
                             process_coded=points[:, q:] if k else None, kind=f"{criterion}-optimal mixture",
+                            block=[1] * n_fixed + [2 if n_fixed else 1] * runs,
                             randomize=randomize, seed=seed, metadata=meta)
     design._mixture_inequalities = (G, h)
     return design

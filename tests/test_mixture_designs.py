@@ -12,6 +12,7 @@ prediction variance p over the region).
 import math
 
 import numpy as np
+import pandas as pd
 import pytest
 
 import levelwise as lw
@@ -172,3 +173,18 @@ def test_evaluate_simplex_lattice():
     assert np.allclose(ev.alias_matrix["A:B:C"], 0.0)
     ev = lw.evaluate(lw.simplex_centroid(3, randomize=False), "scheffe_special_cubic")
     assert ev.rank == 7
+
+
+def test_optimal_mixture_augments_fixed_runs():
+    # Augmenting the {3, 1} lattice (3 pure blends) for the quadratic: the 3 new runs must be the binary blends,
+    # which complete the D-optimal {3, 2} lattice (Kiefer 1961, from memory).
+    fixed = lw.simplex_lattice(3, 1, randomize=False)
+    d = lw.optimal_design(lw.Mixture(3), "scheffe_quadratic", 3, fixed_runs=fixed, seed=2, randomize=False)
+    r = np.array(roles(d))
+    assert (r == "fixed").sum() == 3 and (r == "optimal").sum() == 3
+    new = d.table[["A", "B", "C"]].to_numpy()[r == "optimal"]
+    assert {tuple(x) for x in np.round(new, 9)} == {(0.5, 0.5, 0.0), (0.5, 0.0, 0.5), (0.0, 0.5, 0.5)}
+    assert set(d.table["block"][r == "fixed"]) == {1} and set(d.table["block"][r == "optimal"]) == {2}
+    with pytest.raises(LevelwiseError, match="sum"):
+        lw.optimal_design(lw.Mixture(3), "scheffe_linear", 3, fixed_runs=pd.DataFrame({"A": [0.5], "B": [0.2],
+                                                                                       "C": [0.2]}))
