@@ -98,10 +98,10 @@ from .study import Study  # noqa: E402
 __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
 
 # Mixtures (issue 12).
-from ._mixture_region import Component, Mixture  # noqa: E402
+from .design import Component, Mixture  # noqa: E402
 
 __all__ += ["Component", "Mixture"]
-from ._mixture_designs import extreme_vertices, mixture_process, simplex_centroid, simplex_lattice  # noqa: E402
+from .design import extreme_vertices, mixture_process, simplex_centroid, simplex_lattice  # noqa: E402
 
 __all__ += ["extreme_vertices", "mixture_process", "simplex_centroid", "simplex_lattice"]
 from ._mixture_models import MixtureFit, cox_traces, fit_mixture  # noqa: E402

@@ -15,8 +15,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ._mixture_designs import extreme_vertices, mixture_design, role_column
-from ._mixture_region import Component, Mixture
+from .design._mixture import extreme_vertices, mixture_design, role_column
+from .design._mixture_region import Component, Mixture
 
 #: Seed of the invented stage; change it and every number changes.
 SEED = 20261212

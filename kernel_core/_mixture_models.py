@@ -27,9 +27,9 @@ import pandas as pd
 from scipy import stats
 
 from ._errors import LevelwiseError, describe
-from ._mixture_region import Mixture, as_mixture
 from ._mixture_terms import SCHEFFE_PRESETS, formula_text, model_exponents, scheffe_cubic_canonical
-from .factors import Factor, as_factors
+from .design import Factor, as_factors
+from .design._mixture_region import Mixture, as_mixture
 from .fit import _FIELDS, Fit, _check_level
 from .fit import fit as _fit
 from .formula import monomials, term_name

@@ -29,7 +29,7 @@ def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, sta
     """
     from scipy import optimize as sopt
 
-    from .constraints import parse_constraint
+    from .design import parse_constraint
     from .optimize import Optimum, as_goal, overall_desirability
 
     if not isinstance(fits, dict) or not fits or not all(isinstance(f, MixtureFit) for f in fits.values()):

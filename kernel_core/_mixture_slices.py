@@ -14,7 +14,7 @@ import numpy as np
 
 from ._errors import LevelwiseError, describe
 from ._mixture_models import MixtureFit, _cox_interval
-from ._mixture_region import Mixture
+from .design._mixture_region import Mixture
 
 SQRT3_2 = np.sqrt(3.0) / 2.0
 

@@ -17,7 +17,7 @@ import pytest
 
 import levelwise as lw
 from levelwise import LevelwiseError
-from levelwise._mixture_designs import role_column
+from levelwise.design._mixture import role_column
 
 
 def roles(design):
@@ -177,14 +177,14 @@ def test_evaluate_simplex_lattice():
 
 def test_optimal_mixture_augments_fixed_runs():
     # Augmenting the {3, 1} lattice (3 pure blends) for the quadratic: the 3 new runs must be the binary blends,
-    # which complete the D-optimal {3, 2} lattice (Kiefer 1961, from memory).
+    # which complete the D-optimal {3, 2} lattice (Kiefer 1961, from memory). As optimal_design does for process
+    # factors, only the new runs come back, as the next stage (run ids 4..6, block 2).
     fixed = lw.simplex_lattice(3, 1, randomize=False)
     d = lw.optimal_design(lw.Mixture(3), "scheffe_quadratic", 3, fixed_runs=fixed, seed=2, randomize=False)
-    r = np.array(roles(d))
-    assert (r == "fixed").sum() == 3 and (r == "optimal").sum() == 3
-    new = d.table[["A", "B", "C"]].to_numpy()[r == "optimal"]
+    assert roles(d) == ["optimal"] * 3 and d.metadata["fixed_runs"] == 3
+    assert list(d.table["run"]) == [4, 5, 6] and set(d.table["block"]) == {2}
+    new = d.table[["A", "B", "C"]].to_numpy()
     assert {tuple(x) for x in np.round(new, 9)} == {(0.5, 0.5, 0.0), (0.5, 0.0, 0.5), (0.0, 0.5, 0.5)}
-    assert set(d.table["block"][r == "fixed"]) == {1} and set(d.table["block"][r == "optimal"]) == {2}
     with pytest.raises(LevelwiseError, match="sum"):
         lw.optimal_design(lw.Mixture(3), "scheffe_linear", 3, fixed_runs=pd.DataFrame({"A": [0.5], "B": [0.2],
                                                                                        "C": [0.2]}))

@@ -17,13 +17,14 @@ import math
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
-from ._mixture_designs import mixture_design
+from .._errors import LevelwiseError, describe
+from .._mixture_terms import model_exponents
+from ..formula import monomials
+from ._design import _check_count, _check_seed
+from ._factors import Factor
+from ._mixture import mixture_design
 from ._mixture_region import Component, Mixture, as_mixture
-from ._mixture_terms import model_exponents
-from .design import _check_count, _check_seed
-from .factors import Factor
-from .formula import monomials
+from ._optimal import _last_of
 
 MAX_PASSES = 40
 GRID = 11
@@ -53,10 +54,10 @@ def _fixed_variables(fixed_runs, mixture, process):
     """Fixed runs as model variables (proportions, coded process settings), checked."""
     import pandas as pd
 
-    from .design import Design
+    from ._design import Design
 
     if fixed_runs is None:
-        return np.zeros((0, mixture.q + len(process))), np.zeros((0, mixture.q))
+        return np.zeros((0, mixture.q + len(process))), 0, 1
     table = fixed_runs.table if isinstance(fixed_runs, Design) else fixed_runs
     if not isinstance(table, pd.DataFrame):
         raise LevelwiseError(f"The 'fixed_runs' parameter must be a Design or a DataFrame of component amounts "
@@ -70,7 +71,7 @@ def _fixed_variables(fixed_runs, mixture, process):
         if not np.isfinite(values).all():
             raise LevelwiseError(f"The 'fixed_runs' column {f.name!r} must hold numbers.")
         cols.append(f.to_coded(values)[:, None])
-    return np.hstack(cols), amounts
+    return np.hstack(cols), _last_of(table, "run", len(table)), _last_of(table, "block", 1)
 
 
 def _gain(A, W, phi, x, Y, criterion):
@@ -154,10 +155,11 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     Called by :func:`levelwise.optimal_design` when its factors hold Components or a Mixture. *model* is a
     Scheffé preset, a pair (Scheffé preset, process model) or a formula over the components and process factors
     (no intercept). *constraints* are linear inequalities over component amounts and process settings in natural
-    units. *fixed_runs* (a Design or DataFrame with the component amounts and process settings) are kept and
-    the new runs augment them (fixed runs in block 1, new runs in block 2).
+    units. *fixed_runs* (a Design or DataFrame with the component amounts and process settings): the new runs
+    augment them and only the new runs are returned, as the next stage (run ids after the fixed runs', the block
+    after their last), as :func:`levelwise.optimal_design` does.
     """
-    from .constraints import parse_constraint
+    from ._constraints import parse_constraint
 
     mixture, process, constraints = _split(factors, constraints)
     runs = _check_count(runs, "runs", 1)
@@ -171,7 +173,7 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     names = mixture.names + [f.name for f in process]
     E = model_exponents(model, mixture.names, [f.name for f in process])
     p = len(E)
-    fixed, fixed_amounts = _fixed_variables(fixed_runs, mixture, process)
+    fixed, last_run, last_block = _fixed_variables(fixed_runs, mixture, process)
     n_fixed = len(fixed)
     if runs + n_fixed < p:
         raise LevelwiseError(f"The model {model!r} has {p} terms but the design would have only {runs + n_fixed} "
@@ -259,14 +261,13 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
                              "Use more runs or a simpler model.")
     amounts = points[:, :q] * T
     amounts[:, -1] = T - amounts[:, :-1].sum(axis=1)  # the sum exactly at the total
-    amounts = np.clip(amounts, mixture.declared_lows, mixture.declared_highs)
-    amounts[:n_fixed] = fixed_amounts  # the fixed runs exactly as given
+    amounts = np.clip(amounts, mixture.declared_lows, mixture.declared_highs)[n_fixed:]
     meta = {"criterion": criterion, "model": model if isinstance(model, str) else list(model),
             "constraints": texts, "d_efficiency": 100.0 * math.exp(logdet / p) / (runs + n_fixed), "log_det": logdet,
-            "starts_run": start + 1}
-    design = mixture_design(mixture, amounts, ["fixed"] * n_fixed + ["optimal"] * runs, process=process,
-                            process_coded=points[:, q:] if k else None, kind=f"{criterion}-optimal mixture",
-                            block=[1] * n_fixed + [2 if n_fixed else 1] * runs,
+            "starts_run": start + 1, "fixed_runs": n_fixed}
+    design = mixture_design(mixture, amounts, ["optimal"] * runs, process=process,
+                            process_coded=points[n_fixed:, q:] if k else None, kind=f"{criterion}-optimal mixture",
+                            block=[last_block + 1 if n_fixed else 1] * runs, first_run=last_run + 1,
                             randomize=randomize, seed=seed, metadata=meta)
     design._mixture_inequalities = (G, h)
     return design

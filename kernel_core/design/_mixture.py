@@ -18,17 +18,15 @@ import math
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
+from ._design import Design, _check_count, _check_seed
+from ._factors import Factor, as_factors
 from ._mixture_region import Mixture, as_mixture
-from .design import Design, _check_count, _check_seed
-from .factors import Factor, as_factors
 
 
-def _make_design(factors, coded, roles, *, kind, randomize, seed, metadata, block=None):
-    # The role column is Design's third positional parameter (``point_type`` until the issue-11 rename to
-    # ``role``), so this call needs no change when the keyword is renamed.
-    return Design(factors, coded, np.asarray(roles, dtype=object), block, randomize=randomize, seed=seed,
-                  kind=kind, metadata=metadata)
+def _make_design(factors, coded, roles, *, kind, randomize, seed, metadata, block=None, first_run=1):
+    return Design(factors, coded, role=np.asarray(roles, dtype=object), block=block, randomize=randomize, seed=seed,
+                  first_run=first_run, kind=kind, metadata=metadata)
 
 
 def role_column(design) -> str:
@@ -41,7 +39,7 @@ def _order_column(design) -> str:
 
 
 def mixture_design(mixture: Mixture, amounts, roles, *, process=(), process_coded=None, kind, randomize=True,
-                   seed=None, metadata=None, block=None) -> Design:
+                   seed=None, metadata=None, block=None, first_run=1) -> Design:
     """A Design of blends (amounts, (n, q)) with optional process factors (coded settings, (n, k))."""
     amounts = np.atleast_2d(np.asarray(amounts, dtype=float))
     mixture.check_blends(amounts, "design point")
@@ -53,7 +51,7 @@ def mixture_design(mixture: Mixture, amounts, roles, *, process=(), process_code
     meta = {"mixture_components": mixture.names, "mixture_total": mixture.total,
             "mixture_constraints": list(mixture.constraint_text), **(metadata or {})}
     design = _make_design(factors, coded, roles, kind=kind, randomize=randomize, seed=seed, metadata=meta,
-                          block=block)
+                          block=block, first_run=first_run)
     # The table holds the exact amounts (not amounts rebuilt from coded values).
     std = design.table[_order_column(design)].to_numpy() - 1
     for j, name in enumerate(mixture.names):
@@ -252,7 +250,7 @@ def mixture_process(mixture_design_, process, *, randomize=True, seed=None) -> D
                              f"Got {describe(mixture_design_)}.")
     _check_seed(seed)
     if not isinstance(process, Design):
-        from .design import full_factorial
+        from ._factorial import full_factorial
 
         process = full_factorial(as_factors(process, "process"), randomize=False)
     clash = sorted(set(process.factor_names) & set(mixture.names))
@@ -286,9 +284,9 @@ def evaluate_mixture(design, model, alias_terms=None, delta: float = 2.0, alpha:
     coded process factors; the prediction variance over the mixture region (times the process cube)."""
     import dataclasses
 
-    from ._mixture_terms import formula_text, model_exponents, next_order
-    from .evaluation import evaluate
-    from .formula import monomials
+    from .._mixture_terms import formula_text, model_exponents, next_order
+    from ..formula import monomials
+    from ._evaluation import evaluate
 
     mixture = design.mixture
     names, values = model_variables(design)

@@ -17,8 +17,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
-from .factors import Factor, default_names
+from .._errors import LevelwiseError, describe
+from ._factors import Factor, default_names
 
 #: Largest number of components (vertex enumeration is exponential in q).
 MAX_COMPONENTS = 16
@@ -186,7 +186,7 @@ class Mixture:
         self.lows = np.maximum(low, T - np.array([high[o].sum() for o in others]))
         self.highs = np.minimum(high, T - np.array([low[o].sum() for o in others]))
         self.constraint_text = [constraints] if isinstance(constraints, str) else list(constraints or [])
-        from .constraints import parse_constraint
+        from ._constraints import parse_constraint
 
         rows = [parse_constraint(text, names) for text in self.constraint_text]
         self.G = np.array([a for a, _ in rows], dtype=float).reshape(len(rows), self.q)
