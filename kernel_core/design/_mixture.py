@@ -284,8 +284,8 @@ def evaluate_mixture(design, model, alias_terms=None, delta: float = 2.0, alpha:
     coded process factors; the prediction variance over the mixture region (times the process cube)."""
     import dataclasses
 
-    from .._mixture_terms import formula_text, model_exponents, next_order
-    from ..formula import monomials
+    from ..model._formula import monomials
+    from ..model._mixture_terms import formula_text, model_exponents, next_order
     from ._evaluation import evaluate
 
     mixture = design.mixture

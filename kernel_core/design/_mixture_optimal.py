@@ -18,8 +18,6 @@ import math
 import numpy as np
 
 from .._errors import LevelwiseError, describe
-from .._mixture_terms import model_exponents
-from ..formula import monomials
 from ._design import _check_count, _check_seed
 from ._factors import Factor
 from ._mixture import mixture_design
@@ -159,6 +157,8 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     augment them and only the new runs are returned, as the next stage (run ids after the fixed runs', the block
     after their last), as :func:`levelwise.optimal_design` does.
     """
+    from ..model._formula import monomials
+    from ..model._mixture_terms import model_exponents
     from ._constraints import parse_constraint
 
     mixture, process, constraints = _split(factors, constraints)

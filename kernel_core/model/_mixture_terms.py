@@ -20,7 +20,7 @@ import itertools
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 
 SCHEFFE_PRESETS = ("scheffe_linear", "scheffe_quadratic", "scheffe_special_cubic", "scheffe_cubic")
 PROCESS_PRESETS = ("main_effects", "two_factor_interactions", "full_second_order")
@@ -66,7 +66,7 @@ def process_exponents(model, names) -> np.ndarray:
             rows += list(2 * eye)
         return np.array(rows, dtype=int).reshape(-1, k)
     if isinstance(model, str):
-        from .formula import parse_model
+        from ._formula import parse_model
 
         E = parse_model(model, names).exponents
         return E[E.any(axis=1)]
@@ -97,7 +97,7 @@ def model_exponents(model, components, process=()) -> np.ndarray:
         rows.sort(key=lambda r: (int(r[q:].sum() > 0), int(r[q:].sum()), int(r[:q].sum())))
         return np.array(rows, dtype=int)
     if isinstance(model, str) and model.strip():
-        from .formula import parse_model
+        from ._formula import parse_model
 
         E = parse_model(model, components + process).exponents
         E = E[E.any(axis=1)]
@@ -123,7 +123,7 @@ def next_order(model, components, process=()) -> np.ndarray:
 
 def formula_text(exponents, names) -> str:
     """A no-intercept Wilkinson formula for the exponent rows (every name in backticks)."""
-    from .reduce import formula_of
+    from ._reduce import formula_of
 
     return formula_of(exponents, names)
 

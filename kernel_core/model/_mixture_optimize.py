@@ -12,8 +12,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
-from ._mixture_models import MixtureFit
+from .._errors import LevelwiseError, describe
+from ._mixture import MixtureFit
 
 
 def _weight(goal) -> float:
@@ -29,8 +29,8 @@ def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, sta
     """
     from scipy import optimize as sopt
 
-    from .design import parse_constraint
-    from .optimize import Optimum, as_goal, overall_desirability
+    from ..design import parse_constraint
+    from ._optimize import Optimum, as_goal, overall_desirability
 
     if not isinstance(fits, dict) or not fits or not all(isinstance(f, MixtureFit) for f in fits.values()):
         raise LevelwiseError(f"optimize over a mixture needs every fit to be a mixture fit. Got {describe(fits)}.")
@@ -82,7 +82,7 @@ def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, sta
             info = fits[r].mixture_info
             sub = v[:, columns[r]]
             variables = info.variables(sub[:, :q], sub[:, q:] if info.process else None)
-            out.append(fits[r].predictor.mean_and_leverage(variables)[0])
+            out.append(fits[r].engine.mean_and_leverage(variables)[0])
         return np.column_stack(out)
 
     def overall(v):

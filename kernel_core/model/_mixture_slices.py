@@ -4,7 +4,7 @@
   direction, Cox 1971, *Biometrika* 58, 155-159), so the blend still sums to the total. The amount is clipped
   to the range that keeps every bound and constraint.
 * :func:`ternary_slice`: three chosen components vary over a triangular grid, the other components (and process
-  factors) held at the reference blend; the mean and CI/PI half-widths come from the fit's predictor. Grid points
+  factors) held at the reference blend; the mean and CI/PI half-widths come from the fit's engine. Grid points
   outside the region (bounds, constraints) are NaN.
 """
 
@@ -12,9 +12,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
-from ._mixture_models import MixtureFit, _cox_interval
-from .design._mixture_region import Mixture
+from .._errors import LevelwiseError, describe
+from ..design._mixture_region import Mixture
+from ._mixture import MixtureFit
+from ._mixture_engine import _cox_interval
 
 SQRT3_2 = np.sqrt(3.0) / 2.0
 
@@ -89,7 +90,7 @@ def ternary_slice(fit: MixtureFit, axes, settings, points: int = 60, level=None)
     if isinstance(points, bool) or not isinstance(points, (int, np.integer)) or not 2 <= points <= 1000:
         raise LevelwiseError(f"The 'points' parameter must be an integer from 2 to 1000. Got {describe(points)}.")
     level = fit.level if level is None else level
-    base = fit.settings_array(settings)  # checks the reference blend
+    base = fit.engine.vector(settings)[None, :]  # checks the reference blend
     r = mixture.amounts_from(settings)[0]
     idx = [mixture.names.index(a) for a in axes]
     share = mixture.total - float(np.delete(r, idx).sum())
@@ -109,10 +110,9 @@ def ternary_slice(fit: MixtureFit, axes, settings, points: int = 60, level=None)
         process = np.tile([f.to_natural(base[0, mixture.q + j]) for j, f in enumerate(info.process)],
                           (int(inside.sum()), 1)) if info.process else None
         variables = info.variables(blends[inside], process)
-        m, c, p = fit.predictor.intervals(variables, level)
-        h = fit.predictor.mean_and_leverage(variables)[1]
+        m, c, p, h = fit.engine.bands(variables, level)
         mean[inside], ci[inside], pi[inside] = m, c, p
-        extrapolated[inside] = h > fit.predictor.max_leverage * (1.0 + 1e-9) + 1e-12
+        extrapolated[inside] = fit.engine.extrapolated(variables, h)
     x = bary[:, 1] + 0.5 * bary[:, 2]
     y = SQRT3_2 * bary[:, 2]
     return {"x": x, "y": y, "barycentric": bary, "blends": blends, "inside": inside, "mean": mean,
