@@ -11,7 +11,8 @@ The modules behind it are private and laid out by role:
 * ``_screening``: Plackett-Burman designs; ``_response_surface``: central composite and Box-Behnken designs.
 * ``_constraints``, ``_region``, ``_optimal``: linear constraints, the factor region, optimal designs.
 * ``_evaluation``: what a design can estimate.
-* ``_runsheet``: writing run sheets; ``_runsheet_reader``: reading filled ones back.
+* ``_runsheet``: writing run sheets (read back by :func:`levelwise.read_run_sheet`, in :mod:`levelwise.study`,
+  through the one table importer).
 * ``_mixture_region``: mixture :class:`Component` and the :class:`Mixture` region (bounds, vertices,
   pseudo-components); ``_mixture``: simplex-lattice, simplex-centroid and extreme-vertices designs and
   mixture-process crossings; ``_mixture_optimal``: optimal designs over a mixture region (issue 12).
