@@ -21,6 +21,13 @@ ROLES = {
     "edge_midpoint": "the middle of an edge (or face) of the cube: some factors at low/high, the rest at their "
                      "centres (Box-Behnken)",
     "optimal": "a run chosen by the optimal-design search",
+    # mixtures (issue 12)
+    "vertex": "a vertex of the mixture region (a pure component on the simplex)",
+    "edge_centroid": "the centroid of an edge of the mixture region (a binary blend on the simplex)",
+    "face_centroid": "the centroid of a face of the mixture region",
+    "overall_centroid": "the centroid of the mixture region (the average of its vertices)",
+    "lattice": "a point of a simplex lattice that is no vertex or centroid",
+    "interior_check": "an axial blend halfway from the overall centroid to a vertex",
 }
 
 #: History of the role names: the value an older levelwise wrote (column ``point_type``) -> the role today.

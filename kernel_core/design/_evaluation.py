@@ -124,6 +124,10 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
     """
     if not isinstance(design, Design):
         raise LevelwiseError(f"The 'design' parameter must be a Design. Got {describe(design)} instead.")
+    if getattr(design, "mixture", None) is not None:  # mixture designs (issue 12): proportions, mixture region
+        from ._mixture import evaluate_mixture
+
+        return evaluate_mixture(design, model, alias_terms, delta, alpha)
     if not (isinstance(alpha, float | int) and 0 < alpha < 1):
         raise LevelwiseError(f"The 'alpha' parameter must be in (0, 1). Got {describe(alpha)} instead.")
     if not (isinstance(delta, float | int) and delta > 0):

@@ -221,6 +221,14 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     >>> round(d.metadata["d_efficiency"], 6)
     100.0
     """
+    from ._mixture_region import Component, Mixture
+
+    if isinstance(factors, Mixture) or (isinstance(factors, (list, tuple))
+                                        and any(isinstance(f, (Component, Mixture)) for f in factors)):
+        from ._mixture_optimal import mixture_optimal_design  # mixtures (issue 12): Cox-direction exchange
+
+        return mixture_optimal_design(factors, model, runs, criterion, constraints, fixed_runs, starts, seed,
+                                      progress if callable(progress) else None, randomize)
     factors = as_factors(factors)
     for f in factors:
         if f.is_categorical and len(f.levels) != 2:
