@@ -10,7 +10,7 @@ from ._errors import LevelwiseError, describe
 #: Characters allowed per kind of field.
 TEXT_LIMITS = {
     "name": 80,  # factor, response and stage names, and text levels of a categorical factor
-    "units": 20,
+    "units": 60,  # room for compound units ("mL/min per kg of dry mass") and the markup payloads of the attack tests
     "title": 200,
     "notes": 2000,  # the study's notes and a stage's description
     "reason": 2000,  # the reason given for an exclusion or a change
