@@ -155,7 +155,8 @@ def test_size_limited_write_keeps_the_old_file(tmp_path):
     study = study_with_runs()
     path = study.save(tmp_path / "study.json")
     before = path.read_bytes()
-    study.set_notes("x" * (2 * len(before)))  # the new file is about three times as large
+    # The new file is about three times as large: 132 more runs (notes are limited to 2,000 characters).
+    study.add_stage("more", full_factorial(FACTORS, center_points=4, replicates=8, seed=2), renumber=True)
     pid = os.fork()
     if pid == 0:
         code = 1
