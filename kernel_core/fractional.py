@@ -30,6 +30,7 @@ import time
 import numpy as np
 
 from ._errors import LevelwiseError, describe
+from ._splitplot_designs import maybe_split_plot
 from ._twolevel import popcount, structure_from_runs
 from .design import Design, _check_count, build_two_level
 from .factors import as_factors
@@ -329,7 +330,7 @@ def fractional_factorial(
         Minimum resolution wanted. With *runs*, an error if no fraction of that size reaches it; without *runs*,
         the smallest run count that reaches it.
     center_points, replicates, blocks, randomize, seed
-        As in :func:`levelwise.full_factorial`.
+        As in :func:`levelwise.full_factorial` (hard-to-change factors give a split-plot design there too).
 
     Returns
     -------
@@ -387,7 +388,7 @@ def fractional_factorial(
                 f"The generators give resolution {result.resolution}, below the requested 'resolution' "
                 f"{resolution}. Got generators {list(generators)!r}."
             )
-        return result
+        return maybe_split_plot(result, replicates, randomize, seed)
     if runs is None and resolution is None:
         raise LevelwiseError("fractional_factorial needs 'runs', 'generators' or 'resolution'. Got none of them.")
     if runs is not None:
@@ -415,9 +416,10 @@ def fractional_factorial(
             "or a lower 'resolution'."
         )
     meta["search_complete"] = bool(complete)
-    return build_two_level(factors, m, masks, [1] * len(masks), center_points=center_points, replicates=replicates,
-                           blocks=blocks, randomize=randomize, seed=seed, kind="fractional factorial",
-                           metadata=meta)
+    design = build_two_level(factors, m, masks, [1] * len(masks), center_points=center_points,
+                             replicates=replicates, blocks=blocks, randomize=randomize, seed=seed,
+                             kind="fractional factorial", metadata=meta)
+    return maybe_split_plot(design, replicates, randomize, seed)
 
 
 def _block_columns(design: Design):
