@@ -257,6 +257,27 @@ def _column_constant_within(X, codes, count):
     return spread <= 1e-9 * np.maximum(1.0, np.abs(X).max(axis=0, initial=0.0))
 
 
+def _moment_start(X, y, Zw, wp_codes, constant, df_wp, df_resid):
+    """REML starting value: the stratum (method-of-moments) estimate of sigma2_wp / sigma2_e.
+
+    In a balanced split-plot this is the REML estimate itself (when positive), so the optimiser only
+    confirms it; otherwise it starts close. Floored at 1e-3 to stay inside the parameter space.
+    """
+    from statsmodels.regression.mixed_linear_model import MixedLMParams
+
+    full = np.hstack([Zw, X])
+    resid = y - full @ np.linalg.lstsq(full, y, rcond=None)[0]
+    s2 = float(resid @ resid) / df_resid
+    sizes = Zw.sum(axis=0)
+    means = (Zw.T @ y) / sizes
+    between = (Zw.T @ X[:, constant]) / sizes[:, None]
+    w = np.sqrt(sizes)
+    coef = np.linalg.lstsq(between * w[:, None], means * w, rcond=None)[0]
+    ms_wp = float((sizes * (means - between @ coef) ** 2).sum()) / df_wp
+    ratio = max((ms_wp - s2) / (len(y) / len(sizes)), 0.0) / s2 if s2 > 0 else 1.0
+    return MixedLMParams.from_components(np.zeros(X.shape[1]), cov_re=np.array([[max(ratio, 1e-3)]]))
+
+
 def fit_mixed(data, response, model, *, whole_plot, random_block=None, least_squares, **options) -> MixedFit:
     """Fit the split-plot mixed model; see :class:`MixedFit`. *least_squares* builds the coded model."""
     if not isinstance(data, pd.DataFrame):
@@ -306,8 +327,10 @@ def fit_mixed(data, response, model, *, whole_plot, random_block=None, least_squ
         )
     from statsmodels.regression.mixed_linear_model import MixedLM
 
+    start = None
     if block is None:
         sm_model = MixedLM(y, X, groups=group_codes)
+        start = _moment_start(X, y, Zw, wp_codes, constant, df_wp, df_resid)
     else:
         from statsmodels.regression.mixed_linear_model import VCSpec
 
@@ -321,7 +344,7 @@ def fit_mixed(data, response, model, *, whole_plot, random_block=None, least_squ
     notes = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        result = sm_model.fit(reml=True)
+        result = sm_model.fit(reml=True, start_params=start)
     for w in caught:
         text = str(w.message)
         if "boundary" not in text and text not in notes:
@@ -336,19 +359,26 @@ def fit_mixed(data, response, model, *, whole_plot, random_block=None, least_squ
     comps = {k: max(v, 0.0) for k, v in comps.items()}
     components = pd.Series(comps, name="variance")
     # GLS at the REML components: whiten each independent group by the Cholesky factor of its covariance.
-    Xw, yw = np.empty_like(X), np.empty_like(y)
     s2wp, s2b = comps["whole_plot"], comps.get("block", 0.0)
-    for g in np.unique(group_codes):
-        rows = np.flatnonzero(group_codes == g)
-        codes = wp_codes[rows]
-        same = (codes[:, None] == codes[None, :]).astype(float)
-        v = s2 * np.eye(len(rows)) + s2wp * same + s2b
-        chol = np.linalg.cholesky(v)
-        Xw[rows] = scipy.linalg.solve_triangular(chol, X[rows], lower=True)
-        yw[rows] = scipy.linalg.solve_triangular(chol, y[rows], lower=True)
-    q, r = np.linalg.qr(Xw)
-    beta = scipy.linalg.solve_triangular(r, q.T @ yw)
-    rinv = scipy.linalg.solve_triangular(r, np.eye(p))
+    Xy = np.column_stack([X, y])
+    if block is None:
+        # V_j = s2 (I - P_j) + (s2 + n_j s2wp) P_j with P_j the averaging projector of whole plot j, so
+        # V_j^(-1/2) = (I - P_j) / s + P_j / sqrt(s2 + n_j s2wp): subtract a share of each whole-plot mean.
+        sizes = np.bincount(wp_codes, minlength=W).astype(float)
+        sums = np.zeros((W, p + 1))
+        np.add.at(sums, wp_codes, Xy)
+        shrink = 1.0 - math.sqrt(s2) / np.sqrt(s2 + sizes * s2wp)
+        white = (Xy - (shrink / sizes)[wp_codes, None] * sums[wp_codes]) / math.sqrt(s2)
+    else:
+        white = np.empty_like(Xy)
+        for g in np.unique(group_codes):
+            rows = np.flatnonzero(group_codes == g)
+            codes = wp_codes[rows]
+            v = s2 * np.eye(len(rows)) + s2wp * (codes[:, None] == codes[None, :]) + s2b
+            white[rows] = np.linalg.solve(np.linalg.cholesky(v), Xy[rows])
+    q, r = np.linalg.qr(white[:, :p])
+    rinv = scipy.linalg.lapack.dtrtri(r, lower=0)[0]
+    beta = rinv @ (q.T @ white[:, p])
     fit = MixedFit(base, wp, block, components, beta, rinv, df_wp, df_resid, wp_terms, whole_plot, notes, result)
     for name in fit.zero_components:
         fit.notes.insert(0, (

@@ -477,3 +477,7 @@ CASES = {
     "fit": case_fit,
     "designs": case_designs,
 }
+
+from .fits_cases import case_splitplot  # noqa: E402  (issue 13)
+
+CASES["splitplot"] = case_splitplot
