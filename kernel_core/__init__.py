@@ -91,8 +91,9 @@ from .study import Study  # noqa: E402
 __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
 
 # Split-plot and GLM fits (issues 13, 15)
+from ._glm import GlmFit  # noqa: E402
 from ._mixed import DENOMINATOR_RULE, MixedFit  # noqa: E402
 from ._splitplot_designs import split_plot_order  # noqa: E402
 from .fit import least_squares  # noqa: E402
 
-__all__ += ["DENOMINATOR_RULE", "MixedFit", "least_squares", "split_plot_order"]
+__all__ += ["DENOMINATOR_RULE", "GlmFit", "MixedFit", "least_squares", "split_plot_order"]
