@@ -18,6 +18,7 @@ import pandas as pd
 from scipy import special, stats
 
 from ._errors import LevelwiseError, describe
+from ._interactive_families import InteractiveFamily
 from .prediction import Predictor
 
 FAMILIES = {"binomial": ("logit", "probit"), "poisson": ("log",)}
@@ -84,7 +85,7 @@ def _dmu_deta(link, eta):
     return np.exp(eta)
 
 
-class GlmFit:
+class GlmFit(InteractiveFamily):
     """A binomial or Poisson fit. Build it with ``levelwise.fit(..., family=...)``.
 
     Attributes
@@ -303,7 +304,7 @@ class GlmFit:
         """The shared evaluator: link-scale coefficients and their covariance factor (s = 1)."""
         b = self.base
         return Predictor(exponents=self.exponents, beta=self.beta, rinv=self.cov_factor, center=b.coding.center,
-                         scale=b.coding.scale, s=1.0, t_of_level=lambda level: stats.norm.ppf(0.5 + level / 2),
+                         scale=b.coding.scale, s=1.0, t_of_level=self.z_quantile,
                          contrasts=b.contrasts)
 
     @cached_property
@@ -327,6 +328,32 @@ class GlmFit:
                           "at_high": high, "change": high - low}
         return pd.DataFrame.from_dict(rows, orient="index").rename_axis("variable")
 
+    def z_quantile(self, level: float) -> float:
+        """Two-sided normal quantile (Wald intervals, as statsmodels GLM), cached per level."""
+        cache = self.__dict__.setdefault("_z_cache", {})
+        if level not in cache:
+            if isinstance(level, bool) or not isinstance(level, (int, float)) or not 0 < level < 1:
+                raise LevelwiseError(f"The 'level' parameter must be a number in (0, 1). Got {describe(level)}.")
+            cache[level] = float(stats.norm.ppf(0.5 + level / 2.0))
+        return cache[level]
+
+    def _bands(self, eta, var, level):
+        """Link-scale mean +/- z * SE, transformed by the inverse link (never leaves the valid range)."""
+        se = np.sqrt(var)
+        half = self.z_quantile(level) * se
+        with np.errstate(over="ignore"):
+            return {"mean": _inverse_link(self.link, eta), "ci_low": _inverse_link(self.link, eta - half),
+                    "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta, "link_se": se}
+
+    def _plan_scaling(self):
+        return 1.0, self.z_quantile
+
+    def _bands_from_halves(self, eta, half, _pi, level):
+        with np.errstate(over="ignore"):
+            return {"mean": _inverse_link(self.link, eta), "ci_low": _inverse_link(self.link, eta - half),
+                    "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta,
+                    "link_se": half / self.z_quantile(level)}
+
     def predict(self, settings, level: float | None = None, exposure=None) -> pd.DataFrame:
         """Probability (binomial) or rate per unit exposure (Poisson) with a CI made on the link scale.
 
@@ -335,13 +362,7 @@ class GlmFit:
         """
         level = self.level if level is None else level
         natural = self.base.settings_array(settings)
-        eta, var = self.predictor.mean_and_leverage(natural)
-        half = stats.norm.ppf(0.5 + level / 2.0) * np.sqrt(var)
-        with np.errstate(over="ignore"):
-            out = pd.DataFrame({"mean": _inverse_link(self.link, eta),
-                                "ci_low": _inverse_link(self.link, eta - half),
-                                "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta,
-                                "link_se": np.sqrt(var)})
+        out = pd.DataFrame(self._bands(*self.predictor.mean_and_leverage(natural), level))
         if exposure is not None and self.family == "poisson":
             out["expected_count"] = out["mean"] * np.asarray(exposure, dtype=float)
         out["extrapolated"] = self.base.predict(settings)["extrapolated"].to_numpy()

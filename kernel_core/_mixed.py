@@ -22,6 +22,7 @@ import scipy.linalg
 from scipy import stats
 
 from ._errors import LevelwiseError, LevelwiseWarning, describe
+from ._interactive_families import InteractiveFamily
 from ._splitplot_designs import WHOLE_PLOT_COLUMN, check_whole_plot_column
 from .prediction import Predictor
 
@@ -50,7 +51,7 @@ def _rank(a):
     return int(np.linalg.matrix_rank(a)) if a.size else 0
 
 
-class MixedFit:
+class MixedFit(InteractiveFamily):
     """A split-plot fit: linear mixed model by REML. Build it with ``levelwise.fit(..., whole_plot=...)``.
 
     Attributes
@@ -219,20 +220,40 @@ class MixedFit:
                          contrasts=b.contrasts)
 
     def t_quantile(self, level: float) -> float:
-        return float(stats.t.ppf(0.5 + level / 2.0, self.df_whole_plot))
+        """Two-sided t quantile on the whole-plot stratum df (cached per level)."""
+        cache = self.__dict__.setdefault("_t_cache", {})
+        if level not in cache:
+            if isinstance(level, bool) or not isinstance(level, (int, float)) or not 0 < level < 1:
+                raise LevelwiseError(f"The 'level' parameter must be a number in (0, 1). Got {describe(level)}.")
+            cache[level] = float(stats.t.ppf(0.5 + level / 2.0, self.df_whole_plot))
+        return cache[level]
+
+    @cached_property
+    def _new_run_variance(self) -> float:
+        return float(self.variance_components.sum())
+
+    def _bands(self, mean, var_mean, level):
+        q = self.t_quantile(level)
+        ci, pi = q * np.sqrt(var_mean), q * np.sqrt(var_mean + self._new_run_variance)
+        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi, "pi_high": mean + pi,
+                "ci_half": ci, "pi_half": pi}
+
+    def _plan_scaling(self):
+        return math.sqrt(self._new_run_variance), self.t_quantile
+
+    def _bands_from_halves(self, mean, ci, pi, level):
+        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi, "pi_high": mean + pi,
+                "ci_half": ci, "pi_half": pi}
 
     def predict(self, settings, level: float | None = None) -> pd.DataFrame:
         """Mean, CI for the mean and PI for one new run (both variance components), see :data:`INTERVAL_RULE`."""
         level = self.level if level is None else level
-        base_rows = self.base.predict(settings, level)
         natural = self.base.settings_array(settings)
         mean, var_mean = self.predictor.mean_and_leverage(natural)
-        q = self.t_quantile(level)
-        extra = float(self.variance_components.sum())
-        ci, pi = q * np.sqrt(var_mean), q * np.sqrt(var_mean + extra)
-        return pd.DataFrame({"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
-                             "pi_high": mean + pi, "se_mean": np.sqrt(var_mean),
-                             "extrapolated": base_rows["extrapolated"].to_numpy()})
+        out = pd.DataFrame(self._bands(mean, var_mean, level)).drop(columns=["ci_half", "pi_half"])
+        out["se_mean"] = np.sqrt(var_mean)
+        out["extrapolated"] = self.base.predict(settings, level)["extrapolated"].to_numpy()
+        return out
 
     # -- the cost of ignoring the whole plots -------------------------------------------------------
     @cached_property

@@ -259,3 +259,33 @@ def test_missing_response_leaves_the_fit_and_run_ids_are_kept():
     assert f.n == len(t) - 2 and len(f.missing_runs) == 2
     assert len(f.diagnostics) == f.n and list(f.diagnostics.index) == list(f.runs)
     assert "No interval for one new count" in f.new_observation_note
+
+
+def test_refresh_point_traces_and_slice_agree_with_predict():
+    t = _data(2)
+    f = lw.fit(t, "passed", MODEL, factors=FACTORS, family="binomial", trials="tested")
+    settings = {"Oven": 185.0, "Dwell": 12.0, "Metal": "brass"}
+    out = f.refresh(settings, points=9, slice_axes=("Oven", "Dwell"), shape=(3, 6))
+    row = f.predict(settings).iloc[0]
+    for key in ("mean", "ci_low", "ci_high"):
+        assert out["point"][key] == pytest.approx(row[key], rel=1e-12)
+    metal = out["traces"]["Metal"]
+    assert list(metal["x"]) == ["steel", "brass"]
+    expected = f.predict({"Oven": 185.0, "Dwell": 12.0, "Metal": ["steel", "brass"]})
+    np.testing.assert_allclose(metal["ci_low"], expected["ci_low"], rtol=1e-12)
+    oven = out["traces"]["Oven"]
+    np.testing.assert_allclose(oven["mean"], f.predict(
+        pd.DataFrame({"Oven": np.linspace(160, 200, 9), "Dwell": 12.0, "Metal": "brass"}))["mean"], rtol=1e-12)
+    assert out["slice"]["mean"].shape == (6, 3)
+
+
+def test_refresh_polynomial_path_for_continuous_factors():
+    t = _data(3)
+    f = lw.fit(t, "defects", "Oven * Dwell", factors=FACTORS[:2], family="poisson", exposure="area")
+    out = f.refresh({"Oven": 170.0, "Dwell": 9.0}, points=11)
+    row = f.predict({"Oven": 170.0, "Dwell": 9.0}).iloc[0]
+    assert out["point"]["ci_low"] == pytest.approx(row["ci_low"], rel=1e-10)
+    assert f._plan is not None  # every factor continuous: the polynomial trace plan is used
+    expected = f.predict(pd.DataFrame({"Oven": np.linspace(160, 200, 11), "Dwell": 9.0}))
+    for key in ("mean", "ci_low", "ci_high"):
+        np.testing.assert_allclose(out["traces"]["Oven"][key], expected[key], rtol=1e-10)

@@ -229,3 +229,24 @@ def test_statsmodels_mixedlm_balanced_bse_matches():
     ref = sm.MixedLM.from_formula(REF_FORMULA, t, groups=t["whole_plot"]).fit(reml=True)
     for ours, theirs in TERMS.items():
         assert f.coefficients.loc[ours, "std_error"] == pytest.approx(ref.bse_fe[theirs], rel=1e-4)
+
+
+def test_refresh_point_traces_and_slice_agree_with_predict():
+    factors, t = _split_plot_data(4, replicates=3)
+    f = lw.fit(t, "y", MODEL, factors=factors, whole_plot="whole_plot")
+    settings = {"Oven": 172.0, "Dwell": 7.5, "Film": 66.0}
+    out = f.refresh(settings, points=7, slice_axes=("Oven", "Film"), shape=(5, 4))
+    row = f.predict(settings).iloc[0]
+    for key in ("mean", "ci_low", "ci_high", "pi_low", "pi_high"):
+        assert out["point"][key] == pytest.approx(row[key], rel=1e-12)
+    trace = out["traces"]["Dwell"]
+    grid = pd.DataFrame({"Oven": 172.0, "Dwell": np.linspace(5, 15, 7), "Film": 66.0})
+    expected = f.predict(grid)
+    np.testing.assert_allclose(trace["x"], grid["Dwell"])
+    np.testing.assert_allclose(trace["pi_high"], expected["pi_high"], rtol=1e-12)
+    s = out["slice"]
+    assert s["mean"].shape == (4, 5)
+    corner = f.predict({"Oven": 200.0, "Dwell": 7.5, "Film": 80.0}).iloc[0]
+    assert s["ci_high"][-1, -1] == pytest.approx(corner["ci_high"], rel=1e-12)
+    with pytest.raises(LevelwiseError, match="missing factor"):
+        f.refresh({"Oven": 170.0})

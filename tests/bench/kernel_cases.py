@@ -478,6 +478,7 @@ CASES = {
     "designs": case_designs,
 }
 
-from .fits_cases import case_splitplot  # noqa: E402  (issue 13)
+from .fits_cases import case_family_sliders, case_splitplot  # noqa: E402  (issues 13, 15)
 
 CASES["splitplot"] = case_splitplot
+CASES["family_sliders"] = case_family_sliders
