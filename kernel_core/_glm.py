@@ -354,6 +354,12 @@ class GlmFit(InteractiveFamily):
                     "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta,
                     "link_se": half / self.z_quantile(level)}
 
+    def mean_at(self, natural) -> np.ndarray:
+        """Probability or rate per unit exposure at an (m, k) array of natural settings (no checks)."""
+        eta, _ = self.predictor.mean_and_leverage(natural)
+        with np.errstate(over="ignore"):
+            return _inverse_link(self.link, eta)
+
     def predict(self, settings, level: float | None = None, exposure=None) -> pd.DataFrame:
         """Probability (binomial) or rate per unit exposure (Poisson) with a CI made on the link scale.
 

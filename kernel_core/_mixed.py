@@ -94,6 +94,7 @@ class MixedFit(InteractiveFamily):
     runs = property(lambda self: self.base.runs)
     missing_runs = property(lambda self: self.base.missing_runs)
     coding = property(lambda self: self.base.coding)
+    spec = property(lambda self: self.base.spec)
     categories = property(lambda self: self.base.categories)
     level = property(lambda self: self.base.level)
     n = property(lambda self: self.base.n)

@@ -214,7 +214,9 @@ def _factor_union(fits: dict) -> tuple[list[str], dict]:
 def _mean_function(fit, names: list[str]):
     """Fast mean prediction from an (m, k_all) array of natural settings (no DataFrames, no Python loops)."""
     columns = [names.index(n) for n in fit.factor_names]
-    exponents = getattr(fit.spec, "exponents", None)
+    if callable(getattr(fit, "mean_at", None)):  # GLM fits: the mean on the response scale (issue 15)
+        return lambda natural: fit.mean_at(natural[:, columns])
+    exponents = getattr(getattr(fit, "spec", None), "exponents", None)
     if exponents is not None and np.shape(exponents) == (len(fit.beta), len(fit.factor_names)):
         exponents = np.asarray(exponents, dtype=float)
         center = np.asarray(fit.coding.center, dtype=float)

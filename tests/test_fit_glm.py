@@ -289,3 +289,18 @@ def test_refresh_polynomial_path_for_continuous_factors():
     expected = f.predict(pd.DataFrame({"Oven": np.linspace(160, 200, 11), "Dwell": 9.0}))
     for key in ("mean", "ci_low", "ci_high"):
         np.testing.assert_allclose(out["traces"]["Oven"][key], expected[key], rtol=1e-10)
+
+
+def test_desirability_goal_on_a_pass_rate():
+    """A goal on a probability: pass rate at least 30 %, fully satisfying from 98 %."""
+    t = _data(9, replicates=3)
+    f = lw.fit(t, "passed", "Oven * Dwell", factors=FACTORS[:2], family="binomial", trials="tested")
+    best = lw.optimize({"passed": f}, {"passed": lw.maximize(0.30, 0.98)}, seed=1)
+    row = f.predict(best.settings).iloc[0]
+    assert best.predictions.loc["passed", "mean"] == pytest.approx(row["mean"], rel=1e-12)
+    assert 0 < best.predictions.loc["passed", "mean"] < 1
+    # The optimum is the corner with the largest fitted pass rate among the region's corners and centre.
+    corners = pd.DataFrame({"Oven": [160.0, 160.0, 200.0, 200.0, 180.0], "Dwell": [5.0, 15.0, 5.0, 15.0, 10.0]})
+    assert row["mean"] >= f.predict(corners)["mean"].max() - 1e-9
+    expected_d = min(1.0, max(0.0, (row["mean"] - 0.30) / (0.98 - 0.30)))
+    assert best.desirability["passed"] == pytest.approx(expected_d, rel=1e-9)

@@ -250,3 +250,15 @@ def test_refresh_point_traces_and_slice_agree_with_predict():
     assert s["ci_high"][-1, -1] == pytest.approx(corner["ci_high"], rel=1e-12)
     with pytest.raises(LevelwiseError, match="missing factor"):
         f.refresh({"Oven": 170.0})
+
+
+def test_optimize_uses_the_split_plot_intervals():
+    factors, t = _split_plot_data(6, replicates=3)
+    f = lw.fit(t, "y", MODEL, factors=factors, whole_plot="whole_plot")
+    best = lw.optimize({"y": f}, {"y": lw.maximize(45.0, 60.0)}, seed=2)
+    row = f.predict(best.settings).iloc[0]
+    for key in ("mean", "ci_low", "pi_high"):
+        assert best.predictions.loc["y", key] == pytest.approx(row[key], rel=1e-12)
+    # The whole-plot variance widens the PI beyond the least-squares one at the same setting.
+    ols = lw.least_squares(t, "y", MODEL, factors=factors).predict(best.settings).iloc[0]
+    assert row["pi_high"] - row["mean"] > ols["pi_high"] - ols["mean"]
