@@ -104,6 +104,7 @@ def split_plot_order(design, replicates: int = 1, randomize: bool = True, seed=N
     result.seed = seed
     result._metadata.update(
         {
+            "whole_plot_effects": _whole_plot_effects(result, numbers),
             "hard_to_change": hard,
             "whole_plots": int(numbers.max()),
             "randomization": "restricted: whole plots in random order within each block, runs in random order "
@@ -111,6 +112,26 @@ def split_plot_order(design, replicates: int = 1, randomize: bool = True, seed=N
         }
     )
     return result
+
+
+def _whole_plot_effects(design, numbers, max_order=2):
+    """Main effects and two-factor interactions whose columns are constant within every whole plot.
+
+    These are estimated from whole-plot totals and tested against the whole-plot error.
+    """
+    import itertools
+
+    coded = design.coded.to_numpy()
+    names = design.factor_names
+    joiner = "" if all(len(n) == 1 for n in names) else ":"
+    out = []
+    for order in range(1, max_order + 1):
+        for combo in itertools.combinations(range(len(names)), order):
+            column = coded[:, list(combo)].prod(axis=1)
+            spread = [np.ptp(column[numbers == w]) for w in np.unique(numbers)]
+            if max(spread) == 0:
+                out.append(joiner.join(names[j] for j in combo))
+    return out
 
 
 def maybe_split_plot(design, replicates: int = 1, randomize: bool = True, seed=None):

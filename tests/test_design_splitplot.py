@@ -105,6 +105,8 @@ def test_fractional_factorial_split_plot_keeps_alias_structure():
     assert d.aliases(2) == plain.aliases(2)
     assert d.table["whole_plot"].nunique() == 4
     _check_restricted(d, ["A", "B"])
+    # Effects constant within whole plots (tested on the whole-plot stratum): A, B and AB only here.
+    assert d.metadata["whole_plot_effects"] == ["A", "B", "AB"]
     searched = lw.fractional_factorial(factors, runs=8, seed=1)
     assert searched.resolution == 3
     _check_restricted(searched, ["A", "B"])
