@@ -36,14 +36,15 @@ def hard_to_change_factors(factors) -> list[str]:
     return [f.name for f in factors if getattr(f, "hard_to_change", False)]
 
 
-def split_plot_order(design, replicates: int = 1, randomize: bool = True, seed=None):
+def split_plot_order(design, replicates: int = 1, randomize: bool = True, seed=None, plots=None):
     """The split-plot version of a two-level *design*: whole plots and the restricted run order.
 
     Whole plots are the distinct settings of the hard-to-change factors within each replicate and block
     (centre points of a block form one whole plot of their own). With *randomize*, the whole plots of each
     block come in random order and the runs within each whole plot in random order (seeded by *seed*);
     blocks stay in sequence and each whole plot's runs are contiguous. Without it, whole plots and runs
-    follow standard order.
+    follow standard order. *plots* (one label per row of ``design.table``) gives the whole plots explicitly,
+    as an optimal split-plot design does.
 
     Returns a new Design whose table carries a ``whole_plot`` column (numbered 1, 2, ... in run order) and
     whose metadata lists the hard-to-change factors and the number of whole plots.
@@ -76,6 +77,8 @@ def split_plot_order(design, replicates: int = 1, randomize: bool = True, seed=N
         (int(b), int(r), tuple(float(v) for v in row))
         for b, r, row in zip(block, replicate, coded[:, hard_cols])
     ]
+    if plots is not None:
+        keys = [(int(b), label) for b, label in zip(block, np.asarray(plots)[order])]
     distinct = {}
     plot_of = np.array([distinct.setdefault(key, len(distinct)) for key in keys])
     rng = np.random.default_rng(seed) if randomize else None

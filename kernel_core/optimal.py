@@ -173,7 +173,7 @@ def _interval(G, h, point, j):
 
 
 def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_runs=None, starts=10, seed=None,
-                   progress=None, randomize=True) -> Design:
+                   progress=None, randomize=True, whole_plots=None, variance_ratio=1.0) -> Design:
     """D- or I-optimal design by coordinate exchange.
 
     Parameters
@@ -199,6 +199,11 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         stops and the best design so far is returned.
     randomize : bool, default True
         Randomise the run order (within blocks: fixed runs are block 1, new runs block 2).
+    whole_plots : int, optional
+        A split-plot design in this many whole plots (factors with ``hard_to_change=True`` constant within
+        each), by coordinate exchange over whole plots and sub-plots (``levelwise._splitplot_optimal``).
+    variance_ratio : float, default 1
+        Whole-plot variance / residual variance assumed by the split-plot criterion.
 
     Returns
     -------
@@ -218,6 +223,14 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     100.0
     """
     factors = as_factors(factors)
+    if whole_plots is not None:  # split-plot designs (issue 13)
+        if constraints is not None or fixed_runs is not None:
+            raise LevelwiseError("A split-plot optimal design ('whole_plots') takes no 'constraints' or "
+                                 "'fixed_runs' yet.")
+        from ._splitplot_optimal import split_plot_optimal
+
+        return split_plot_optimal(factors, model, runs, whole_plots, criterion, variance_ratio, starts, seed,
+                                  progress, randomize)
     for f in factors:
         if f.is_categorical and len(f.levels) != 2:
             raise LevelwiseError(

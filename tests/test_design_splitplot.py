@@ -122,3 +122,66 @@ def test_run_sheet_shows_whole_plots():
 def test_every_factor_hard_is_refused():
     with pytest.raises(LevelwiseError, match="easy factor"):
         lw.full_factorial([lw.Factor("A", 0, 1, hard_to_change=True), lw.Factor("B", 0, 1, hard_to_change=True)])
+
+
+# -- optimal split-plot designs (Goos & Vandebroek 2001; Jones & Goos 2007) -----------------------------------
+def _information(table, names, rows_of, eta):
+    x = table[names].to_numpy(dtype=float)
+    F = rows_of(x)
+    wp = table["whole_plot"].to_numpy()
+    V = np.eye(len(x)) + eta * (wp[:, None] == wp[None, :])
+    return F.T @ np.linalg.solve(V, F)
+
+
+def _two_factor_rows(x):
+    a, b, c = x.T
+    return np.column_stack([np.ones(len(x)), a, b, c, a * b, a * c, b * c])
+
+
+def test_optimal_split_plot_structure_and_criterion():
+    fs = [lw.Factor("A", -1, 1, hard_to_change=True), lw.Factor("B", -1, 1), lw.Factor("C", -1, 1)]
+    d = lw.optimal_design(fs, "(A+B+C)**2", runs=16, whole_plots=4, seed=1)
+    _check_restricted(d, ["A"])
+    assert d.table["whole_plot"].nunique() == 4 and (d.table.groupby("whole_plot").size() == 4).all()
+    M = _information(d.table, ["A", "B", "C"], _two_factor_rows, 1.0)
+    assert d.metadata["log_det"] == pytest.approx(np.linalg.slogdet(M)[1], rel=1e-10)
+    # At least as good as the 2^3 split-plot factorial in 2 replicates (same runs and whole plots).
+    ff = lw.full_factorial(fs, replicates=2, randomize=False)
+    assert d.metadata["log_det"] >= np.linalg.slogdet(
+        _information(ff.table, ["A", "B", "C"], _two_factor_rows, 1.0))[1] - 1e-9
+
+
+def test_optimal_split_plot_without_whole_plot_variance_is_the_ordinary_optimum():
+    fs = [lw.Factor("A", -1, 1, hard_to_change=True), lw.Factor("B", -1, 1), lw.Factor("C", -1, 1)]
+    d = lw.optimal_design(fs, "(A+B+C)**2", runs=16, whole_plots=4, variance_ratio=0.0, seed=2)
+    # eta = 0: M = X'X; an orthogonal +-1 design of 16 runs and 7 columns has det = 16^7 (the maximum).
+    assert d.metadata["log_det"] == pytest.approx(7 * np.log(16.0), rel=1e-12)
+
+
+def test_optimal_split_plot_i_criterion_and_quadratic_levels():
+    fs = [lw.Factor("A", -1, 1, hard_to_change=True), lw.Factor("B", -1, 1)]
+    d = lw.optimal_design(fs, "A + B + A:B + I(A**2) + I(B**2)", runs=18, whole_plots=6, criterion="I", seed=3,
+                          starts=4)
+    _check_restricted(d, ["A"])
+    assert set(d.table["A"]) <= {-1.0, 0.0, 1.0} and d.table["A"].nunique() == 3
+
+    def rows(x):
+        a, b = x.T
+        return np.column_stack([np.ones(len(x)), a, b, a * b, a * a, b * b])
+
+    M = _information(d.table, ["A", "B"], rows, 1.0)
+    # Moment matrix over the square [-1, 1]^2 (mean of x^i y^j: 1/(i+1) * 1/(j+1) for even powers, else 0).
+    powers = np.array([[0, 0], [1, 0], [0, 1], [1, 1], [2, 0], [0, 2]])
+    total = powers[:, None, :] + powers[None, :, :]
+    Wm = np.where(total % 2 == 0, 1.0 / (total + 1.0), 0.0).prod(axis=2)
+    assert d.metadata["average_prediction_variance"] == pytest.approx(np.trace(np.linalg.solve(M, Wm)), rel=1e-10)
+
+
+def test_optimal_split_plot_bad_input():
+    fs = [lw.Factor("A", -1, 1, hard_to_change=True), lw.Factor("B", -1, 1)]
+    with pytest.raises(LevelwiseError, match="whole_plots"):
+        lw.optimal_design(fs, "A + B", runs=4, whole_plots=6)
+    with pytest.raises(LevelwiseError, match="variance_ratio"):
+        lw.optimal_design(fs, "A + B", runs=8, whole_plots=4, variance_ratio=-1.0)
+    with pytest.raises(LevelwiseError, match="hard_to_change"):
+        lw.optimal_design([lw.Factor("A", -1, 1), lw.Factor("B", -1, 1)], "A + B", runs=8, whole_plots=4)
