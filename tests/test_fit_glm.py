@@ -52,6 +52,10 @@ def test_binomial_against_statsmodels_glm(seed, link):
     _close(f.coefficients.loc[names, "ci_low"], ref.conf_int()[0][list(TERMS.values())])
     assert f.deviance == pytest.approx(ref.deviance, rel=RTOL)
     assert f.pearson_chi2 == pytest.approx(ref.pearson_chi2, rel=RTOL)
+    # Pearson chi-square by its definition, sum (y - m p)^2 / (m p (1 - p)) (common practice), with the trials.
+    p_hat, m = ref.fittedvalues.to_numpy(), t["tested"].to_numpy()
+    assert f.pearson_chi2 == pytest.approx((((t["passed"] - m * p_hat) ** 2) / (m * p_hat * (1 - p_hat))).sum(),
+                                           rel=1e-10)
     if link == "logit":
         _close(f.coefficients.loc[names, "odds_ratio"], np.exp(ref.params[list(TERMS.values())]))
     # Prediction: mean and CI on the probability scale (statsmodels: link-scale interval, transformed).
