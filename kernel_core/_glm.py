@@ -143,7 +143,6 @@ class GlmFit(InteractiveFamily):
     # -- what the fit is ------------------------------------------------------------------------------
     response = property(lambda self: self.base.response)
     runs = property(lambda self: self.base.runs)
-    missing_runs = property(lambda self: self.base.missing_runs)
     factor_names = property(lambda self: self.base.factor_names)
     coding = property(lambda self: self.base.coding)
     categories = property(lambda self: self.base.categories)
@@ -423,5 +422,8 @@ def fit_glm(data, response, model, *, family, trials=None, exposure=None, link=N
                                      f"positive. Got {exposure_all[row]:g} instead.")
     base = least_squares(data.drop(columns=drop), response, model, **options)
     counts = counts_all[keep]
-    return GlmFit(base, family, link, counts, None if trials_all is None else trials_all[keep],
-                  None if exposure_all is None else exposure_all[keep], np.arange(base.p))
+    fit = GlmFit(base, family, link, counts, None if trials_all is None else trials_all[keep],
+                 None if exposure_all is None else exposure_all[keep], np.arange(base.p))
+    return fit._remember(data, response, lambda changed: fit_glm(
+        changed, response, model, family=family, trials=trials, exposure=exposure, link=link,
+        least_squares=least_squares, **options), zip(base.runs, np.flatnonzero(keep)))

@@ -121,3 +121,46 @@ class InteractiveFamily:
         grid[:, iy] = np.repeat(gy, nx)
         bands = self._bands(*self.predictor.mean_and_leverage(grid), level)
         return {"x": gx, "y": gy, **{key: value.reshape(ny, nx) for key, value in bands.items()}}
+
+    # -- exclusions: refit without the run (the model is not linear in the data, so no rank-one update) -------
+    exclusions: tuple = ()
+    _origin = None  # (data, response column, refit(data) -> fit, {run id: data row})
+
+    def _remember(self, data, response, refit, rows):
+        self._origin = (data, response, refit, dict(rows))
+        return self
+
+    @property
+    def missing_runs(self) -> tuple:
+        """Runs without a response (excluded runs are listed in :attr:`exclusions` instead)."""
+        excluded = {run for run, _ in self.exclusions}
+        return tuple(run for run in self.base.missing_runs if run not in excluded)
+
+    def _with_exclusions(self, exclusions):
+        data, response, refit, rows = self._origin
+        changed = data.copy()
+        column = list(changed.columns).index(response)
+        for run, _ in exclusions:
+            changed.iloc[rows[run], column] = np.nan
+        out = refit(changed)
+        out.exclusions = tuple(exclusions)
+        out._origin = self._origin
+        return out
+
+    def exclude(self, run, reason: str):
+        """A new fit without *run* (a run id), refitted; *reason* says why (kept in :attr:`exclusions`)."""
+        if not isinstance(reason, str) or not reason.strip():
+            raise LevelwiseError(f"The 'reason' parameter of exclude must be a non-empty text saying why run "
+                                 f"{run!r} is left out. Got {describe(reason)} instead.")
+        if self._origin is None or run not in list(self.runs):
+            raise LevelwiseError(f"The 'run' parameter of exclude must be a run in this fit "
+                                 f"{list(self.runs)[:20]}. Got {describe(run)} instead.")
+        return self._with_exclusions(self.exclusions + ((run, reason),))
+
+    def include(self, run):
+        """A new fit with the excluded *run* back in."""
+        excluded = [r for r, _ in self.exclusions]
+        if run not in excluded:
+            raise LevelwiseError(f"The 'run' parameter of include must be an excluded run {excluded}. "
+                                 f"Got {describe(run)} instead.")
+        return self._with_exclusions(tuple(item for item in self.exclusions if item[0] != run))

@@ -92,7 +92,6 @@ class MixedFit(InteractiveFamily):
     terms = property(lambda self: self.base.terms)
     factor_names = property(lambda self: self.base.factor_names)
     runs = property(lambda self: self.base.runs)
-    missing_runs = property(lambda self: self.base.missing_runs)
     coding = property(lambda self: self.base.coding)
     spec = property(lambda self: self.base.spec)
     categories = property(lambda self: self.base.categories)
@@ -408,7 +407,9 @@ def fit_mixed(data, response, model, *, whole_plot, random_block=None, least_squ
             f"{name.replace('_', ' ')}s vary no more than the runs within them. The fit still stands; the tests "
             "keep the stratum degrees of freedom, which is conservative."
         ))
-    return fit
+    return fit._remember(data, response, lambda changed: fit_mixed(
+        changed, response, model, whole_plot=whole_plot, random_block=random_block, least_squares=least_squares,
+        **options), zip(base.runs, np.flatnonzero(keep)))
 
 
 def warn_if_whole_plots_ignored(result, data, refit, stacklevel=3):

@@ -308,3 +308,21 @@ def test_desirability_goal_on_a_pass_rate():
     assert row["mean"] >= f.predict(corners)["mean"].max() - 1e-9
     expected_d = min(1.0, max(0.0, (row["mean"] - 0.30) / (0.98 - 0.30)))
     assert best.desirability["passed"] == pytest.approx(expected_d, rel=1e-9)
+
+
+def test_exclude_and_include_refit_by_run_id():
+    t = _data(2)
+    t["run"] = np.arange(1, len(t) + 1)
+    f = lw.fit(t, "passed", MODEL, factors=FACTORS, family="binomial", trials="tested")
+    run = f.runs[4]
+    g = f.exclude(run, "label smudged")
+    assert g.exclusions == ((run, "label smudged"),) and run not in list(g.runs) and g.missing_runs == ()
+    # The same as fitting without that row (statsmodels GLM on the remaining runs).
+    rest = t.drop(index=t.index[4])
+    ref = smf.glm(REF.format(y="passed + failed"), rest, family=sm.families.Binomial()).fit()
+    _close(g.coefficients.loc[list(TERMS), "estimate"], ref.params[list(TERMS.values())])
+    back = g.include(run)
+    _close(back.coefficients["estimate"], f.coefficients["estimate"])
+    assert back.exclusions == ()
+    with pytest.raises(LevelwiseError, match="non-empty text"):
+        f.exclude(run, " ")

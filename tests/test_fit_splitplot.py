@@ -262,3 +262,13 @@ def test_optimize_uses_the_split_plot_intervals():
     # The whole-plot variance widens the PI beyond the least-squares one at the same setting.
     ols = lw.least_squares(t, "y", MODEL, factors=factors).predict(best.settings).iloc[0]
     assert row["pi_high"] - row["mean"] > ols["pi_high"] - ols["mean"]
+
+
+def test_exclude_refits_the_split_plot_model():
+    factors, t = _split_plot_data(8, replicates=3)
+    f = lw.fit(t, "y", MODEL, factors=factors, whole_plot="whole_plot")
+    run = f.runs[2]
+    g = f.exclude(run, "oven alarm")
+    direct = lw.fit(t.drop(index=t.index[2]), "y", MODEL, factors=factors, whole_plot="whole_plot")
+    np.testing.assert_allclose(g.coefficients["estimate"], direct.coefficients["estimate"], rtol=1e-10)
+    assert g.exclusions == ((run, "oven alarm"),) and g.n == f.n - 1
