@@ -23,7 +23,7 @@ from scipy import stats
 
 from ._errors import LevelwiseError, LevelwiseWarning, describe
 from ._interactive_families import InteractiveFamily
-from ._splitplot_designs import WHOLE_PLOT_COLUMN, check_whole_plot_column
+from .design._splitplot import WHOLE_PLOT_COLUMN, check_whole_plot_column
 from .prediction import Predictor
 
 DENOMINATOR_RULE = (

@@ -15,7 +15,7 @@ import pandas as pd
 
 from ._errors import LevelwiseError, describe
 from ._fitview import require_continuous
-from .constraints import parse_constraint
+from .design import parse_constraint
 
 GOAL_KINDS = ("maximize", "minimize", "target")
 

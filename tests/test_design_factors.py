@@ -3,7 +3,7 @@
 import pytest
 
 from levelwise import Factor, LevelwiseError, full_factorial
-from levelwise.factors import as_factors, default_names
+from levelwise.design import as_factors, default_names
 
 
 def test_continuous_factor_unchanged():

@@ -13,7 +13,7 @@ import inspect
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 
 #: Name of the design-table column that numbers the whole plots (1, 2, ... in run order).
 WHOLE_PLOT_COLUMN = "whole_plot"
@@ -49,7 +49,7 @@ def split_plot_order(design, replicates: int = 1, randomize: bool = True, seed=N
     Returns a new Design whose table carries a ``whole_plot`` column (numbered 1, 2, ... in run order) and
     whose metadata lists the hard-to-change factors and the number of whole plots.
     """
-    from .design import Design
+    from ._design import Design
 
     hard = hard_to_change_factors(design.factors)
     if not hard:

@@ -18,8 +18,8 @@ import math
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
-from ._splitplot_designs import hard_to_change_factors, split_plot_order
+from .._errors import LevelwiseError, describe
+from ._splitplot import hard_to_change_factors, split_plot_order
 
 MAX_PASSES = 40
 
@@ -43,10 +43,10 @@ def _score(M, W, criterion):
 def split_plot_optimal(factors, model, runs, whole_plots, criterion="D", variance_ratio=1.0, starts=10, seed=None,
                        progress=None, randomize=True):
     """D- or I-optimal split-plot design; see :func:`levelwise.optimal_design` (``whole_plots=``)."""
-    from .design import Design, _check_count, _check_seed
-    from .factors import as_factors
-    from .formula import parse_model
-    from .optimal import moment_matrix
+    from ..formula import parse_model
+    from ._design import Design, _check_count, _check_seed
+    from ._factors import as_factors
+    from ._region import moment_matrix
 
     factors = as_factors(factors)
     hard = hard_to_change_factors(factors)
