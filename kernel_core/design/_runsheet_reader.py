@@ -133,7 +133,10 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
     table = table.rename(columns={old: new for old, new in COLUMN_RENAMES.items() if new not in table.columns})
     if "role" in table.columns:
         table["role"] = [ROLE_RENAMES.get(v, v) if isinstance(v, str) else v for v in table["role"]]
-    expected = [*META_COLUMNS, *names, *achieved, *responses]
+    # A split-plot sheet also numbers its whole plots (issue 13).
+    extra = ["whole_plot"] if "whole_plot" in table.columns or (
+        design is not None and "whole_plot" in design.table.columns) else []
+    expected = [*META_COLUMNS, *extra, *names, *achieved, *responses]
     unknown = [c for c in table.columns if c not in expected]
     missing = [c for c in expected if c not in table.columns]
     if unknown or missing:
@@ -162,7 +165,7 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
         if strange:
             raise LevelwiseError(f"The run sheet has run id(s) {strange} that the design does not have.")
     out = pd.DataFrame({"run": run_ids})
-    for col in ("standard_order", "block"):
+    for col in ("standard_order", "block", *extra):
         values = _numeric(table, col, run_ids)
         out[col] = values.astype(int) if values.notna().all() and (values % 1 == 0).all() else values
     out["role"] = table["role"]
