@@ -186,7 +186,7 @@ class GlmFit(InteractiveFamily):
         se = np.sqrt(np.einsum("ij,ij->i", self.cov_factor, self.cov_factor))
         z = self.beta / se
         q = stats.norm.ppf(0.5 + self.level / 2.0)
-        table = pd.DataFrame({"estimate": self.beta, "std_error": se, "z": z, "p": 2 * stats.norm.sf(np.abs(z)),
+        table = pd.DataFrame({"estimate": self.beta, "std_error": se, "z": z, "p_value": 2 * stats.norm.sf(np.abs(z)),
                               "ci_low": self.beta - q * se, "ci_high": self.beta + q * se},
                              index=pd.Index(self.terms, name="term"))
         ratio = {"logit": "odds_ratio", "log": "rate_ratio"}.get(self.link)
@@ -245,10 +245,10 @@ class GlmFit(InteractiveFamily):
             with_term = self.deviance if not above else self._deviance_without(above)
             without = self._deviance_without(above + list(cols))
             lr, df = without - with_term, len(cols)
-            row = {"df": df, "lr_chi2": lr, "p": float(stats.chi2.sf(lr, df))}
+            row = {"df": df, "lr_chi2": lr, "p_value": float(stats.chi2.sf(lr, df))}
             if self.scale_mode == "quasi":
                 f = lr / df / self.scale
-                row.update({"F": f, "p": float(stats.f.sf(f, df, self.df_resid))})
+                row.update({"F": f, "p_value": float(stats.f.sf(f, df, self.df_resid))})
             rows[label] = row
         return pd.DataFrame.from_dict(rows, orient="index").rename_axis("term")
 
@@ -264,13 +264,13 @@ class GlmFit(InteractiveFamily):
             removable = [t for t in labels if not hierarchy
                          or not any(current._contains(term_exp[o], term_exp[t]) for o in labels)]
             candidates = table.loc[removable] if removable else table.iloc[:0]
-            if candidates.empty or candidates["p"].max() <= alpha:
+            if candidates.empty or candidates["p_value"].max() <= alpha:
                 break
-            worst = candidates["p"].idxmax()
+            worst = candidates["p_value"].idxmax()
             cols = dict(current.groups)[worst]
             keep = [i for i in range(current.p) if i not in set(cols)]
             steps.append({"step": len(steps) + 1, "term": worst, "lr_chi2": float(candidates.loc[worst, "lr_chi2"]),
-                          "p_value": float(candidates.loc[worst, "p"]), "deviance": current.deviance})
+                          "p_value": float(candidates.loc[worst, "p_value"]), "deviance": current.deviance})
             current = GlmFit(current.base, current.family, current.link, current.counts, current.trials,
                              current.exposure, current.columns[keep], scale_mode=current.scale_mode)
         return current, pd.DataFrame(steps, columns=["step", "term", "lr_chi2", "p_value", "deviance"])

@@ -130,7 +130,7 @@ class MixedFit(InteractiveFamily):
         q = stats.t.ppf(0.5 + self.level / 2.0, df)
         return pd.DataFrame(
             {"estimate": self.beta, "std_error": se, "stratum": stratum, "df": df, "t": t,
-             "p": 2.0 * stats.t.sf(np.abs(t), df), "ci_low": self.beta - q * se, "ci_high": self.beta + q * se},
+             "p_value": 2.0 * stats.t.sf(np.abs(t), df), "ci_low": self.beta - q * se, "ci_high": self.beta + q * se},
             index=pd.Index(self.terms, name="term"),
         )
 
@@ -147,7 +147,7 @@ class MixedFit(InteractiveFamily):
             stratum = "whole-plot" if label in wp else "sub-plot"
             den = self.df_whole_plot if stratum == "whole-plot" else self.df_residual
             rows[label] = {"stratum": stratum, "df": len(cols), "df_denominator": den, "F": f,
-                           "p": float(stats.f.sf(f, len(cols), den))}
+                           "p_value": float(stats.f.sf(f, len(cols), den))}
         return pd.DataFrame.from_dict(rows, orient="index").rename_axis("term")
 
     # -- residuals by whole plot --------------------------------------------------------------------

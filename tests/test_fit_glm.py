@@ -168,7 +168,7 @@ def test_reduce_by_likelihood_ratio_keeps_hierarchy():
     assert len(steps) >= 1 and (steps["p_value"] > 0.05).all()
     kept = [label for label, _ in final.groups]
     assert (final.anova.loc[[k for k in kept if not any(k != o and set(k.split(":")) < set(o.split(":"))
-                                                         for o in kept)], "p"] <= 0.05).all()
+                                                         for o in kept)], "p_value"] <= 0.05).all()
     for term in kept:  # hierarchy: every factor of a kept interaction is kept
         for part in term.split(":"):
             assert part in kept
