@@ -424,6 +424,6 @@ def fit_glm(data, response, model, *, family, trials=None, exposure=None, link=N
     counts = counts_all[keep]
     fit = GlmFit(base, family, link, counts, None if trials_all is None else trials_all[keep],
                  None if exposure_all is None else exposure_all[keep], np.arange(base.p))
-    return fit._remember(data, response, lambda changed: fit_glm(
-        changed, response, model, family=family, trials=trials, exposure=exposure, link=link,
+    return fit._remember(data, response, lambda changed, formula: fit_glm(
+        changed, response, formula, family=family, trials=trials, exposure=exposure, link=link,
         least_squares=least_squares, **options), zip(base.runs, np.flatnonzero(keep)))

@@ -136,13 +136,14 @@ class InteractiveFamily:
         excluded = {run for run, _ in self.exclusions}
         return tuple(run for run in self.base.missing_runs if run not in excluded)
 
-    def _with_exclusions(self, exclusions):
+    def _with_exclusions(self, exclusions, model=None):
+        """Refit on the original data less *exclusions*, with *model* (a formula) or this fit's model."""
         data, response, refit, rows = self._origin
         changed = data.copy()
         column = list(changed.columns).index(response)
         for run, _ in exclusions:
             changed.iloc[rows[run], column] = np.nan
-        out = refit(changed)
+        out = refit(changed, self.base.spec.formula if model is None else model)
         out.exclusions = tuple(exclusions)
         out._origin = self._origin
         return out

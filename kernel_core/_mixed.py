@@ -255,6 +255,41 @@ class MixedFit(InteractiveFamily):
         out["extrapolated"] = self.base.predict(settings, level)["extrapolated"].to_numpy()
         return out
 
+    # -- backward elimination -----------------------------------------------------------------------
+    def reduce(self, alpha: float = 0.05, hierarchy: bool = True):
+        """Backward elimination by the stratum F tests of :attr:`anova`, refitting (REML) after each removal.
+
+        With *hierarchy* a term stays while a term containing it stays. Returns (final fit, steps).
+        """
+        from .reduce import formula_of
+
+        if isinstance(alpha, bool) or not isinstance(alpha, (int, float)) or not 0 < alpha < 1:
+            raise LevelwiseError(f"The 'alpha' parameter of reduce must be in (0, 1). Got {describe(alpha)} instead.")
+        term_exp = {label: exp for (label, _), exp in zip(self.base.groups, self.base.group_exponents)}
+        intercept = bool((np.asarray(self.base.spec.exponents).sum(axis=1) == 0).any())
+
+        def contains(big, small):
+            return (big >= small).all() and (big != small).any()
+
+        current, steps = self, []
+        while True:
+            table = current.anova
+            labels = list(table.index)
+            removable = [t for t in labels if not hierarchy
+                         or not any(contains(term_exp[o], term_exp[t]) for o in labels)]
+            candidates = table.loc[removable]
+            if candidates.empty or candidates["p_value"].max() <= alpha:
+                break
+            worst = candidates["p_value"].idxmax()
+            steps.append({"step": len(steps) + 1, "term": worst, "stratum": candidates.loc[worst, "stratum"],
+                          "F": float(candidates.loc[worst, "F"]),
+                          "p_value": float(candidates.loc[worst, "p_value"])})
+            rows = [term_exp[t] for t in labels if t != worst]
+            if intercept:
+                rows = [np.zeros(len(self.factor_names), dtype=int)] + rows
+            current = current._with_exclusions(current.exclusions, model=formula_of(rows, self.factor_names))
+        return current, pd.DataFrame(steps, columns=["step", "term", "stratum", "F", "p_value"])
+
     # -- the cost of ignoring the whole plots -------------------------------------------------------
     @cached_property
     def ignoring_whole_plots(self) -> pd.DataFrame:
@@ -407,8 +442,8 @@ def fit_mixed(data, response, model, *, whole_plot, random_block=None, least_squ
             f"{name.replace('_', ' ')}s vary no more than the runs within them. The fit still stands; the tests "
             "keep the stratum degrees of freedom, which is conservative."
         ))
-    return fit._remember(data, response, lambda changed: fit_mixed(
-        changed, response, model, whole_plot=whole_plot, random_block=random_block, least_squares=least_squares,
+    return fit._remember(data, response, lambda changed, formula: fit_mixed(
+        changed, response, formula, whole_plot=whole_plot, random_block=random_block, least_squares=least_squares,
         **options), zip(base.runs, np.flatnonzero(keep)))
 
 

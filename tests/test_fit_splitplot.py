@@ -272,3 +272,21 @@ def test_exclude_refits_the_split_plot_model():
     direct = lw.fit(t.drop(index=t.index[2]), "y", MODEL, factors=factors, whole_plot="whole_plot")
     np.testing.assert_allclose(g.coefficients["estimate"], direct.coefficients["estimate"], rtol=1e-10)
     assert g.exclusions == ((run, "oven alarm"),) and g.n == f.n - 1
+
+
+def test_reduce_by_stratum_tests_refits_by_reml():
+    factors, t = _split_plot_data(10, replicates=4)
+    f = lw.fit(t, "y", "Oven * Dwell * Film", factors=factors, whole_plot="whole_plot")
+    final, steps = lw.reduce(f, alpha=0.05)
+    assert len(steps) >= 1 and (steps["p_value"] > 0.05).all()
+    assert isinstance(final, lw.MixedFit)
+    kept = list(final.anova.index)
+    for term in kept:  # hierarchy
+        for part in term.split(":"):
+            assert part in kept
+    # The final fit is the REML fit of the remaining terms (statsmodels MixedLM reference on coded columns).
+    formula = "y ~ " + " + ".join(term.replace("Oven", "a").replace("Dwell", "b").replace("Film", "c")
+                                  for term in kept)
+    ref = smf.mixedlm(formula, t, groups=t["whole_plot"]).fit(reml=True)
+    assert final.variance_components["residual"] == pytest.approx(float(ref.scale), rel=1e-4)
+    assert final.coefficients.loc["Oven", "estimate"] == pytest.approx(ref.fe_params["a"], rel=1e-4)
