@@ -1,17 +1,18 @@
 """The offline single-file export: one HTML page that still computes, with no network and no Python.
 
-The page embeds, per response, exactly what the kernel's cached predictor holds
-(:class:`levelwise.prediction.Predictor`): the exponent matrix, the coded coefficients,
-the coding centre and half-range, ``R^-1`` from the pivoted QR, ``s`` and the t quantile of
-the residual degrees of freedom. A small hand-written script evaluates, at the slider
-settings, the same formulas as the kernel::
+The page embeds, per response, exactly the payload of the fit's prediction engine
+(:meth:`levelwise.PredictionEngine.payload`): the factors, the exponent matrix, the coded
+coefficients, a factor F of their covariance, the coding centre and half-range, the factor
+ranges, the half-width scale c (t quantile times s) and the leverage limit. A small
+hand-written script evaluates, at the slider settings, the same formulas as the engine::
 
     coded = (x - centre) / scale
     row_j = prod_i coded_i ** E[j, i]
     mean  = row . beta
-    h     = || row R^-1 ||^2
-    CI    = mean -/+ t * s * sqrt(h)         (confidence interval for the mean)
-    PI    = mean -/+ t * s * sqrt(1 + h)     (prediction interval for a single new run)
+    h     = || row F ||^2
+    CI    = mean -/+ c * sqrt(h)             (confidence interval for the mean)
+    PI    = mean -/+ c * sqrt(h + extra)     (prediction interval for a single new run)
+    extrapolated: a factor the model uses outside [low, high], or h > limit
 
 and draws the per-factor traces with their bands and the surface slice in plain SVG and
 canvas. Nothing is fetched: no CDN, no fonts, no scripts from elsewhere. The numbers at
@@ -55,30 +56,13 @@ def payload(source: StudySource) -> dict:
         fit = fits.get(name)
         if fit is None:
             continue
-        predictor = fit.predictor
-        # The predictor's columns follow the fit's factor order; map them onto the page's factor order.
-        order = [list(fit.factor_names).index(n) if n in fit.factor_names else -1 for n in factor_names]
-        exponents = np.zeros((fit.p, len(factor_names)), dtype=int)
-        center = np.zeros(len(factor_names))
-        scale = np.ones(len(factor_names))
-        for page_col, fit_col in enumerate(order):
-            if fit_col >= 0:
-                exponents[:, page_col] = predictor.exponents[:, fit_col]
-                center[page_col] = predictor.center[fit_col]
-                scale[page_col] = predictor.scale[fit_col]
         responses.append({
             "name": name,
             "units": source.units.get(name, ""),
             "terms": list(fit.terms),
-            "exponents": exponents.tolist(),
-            "beta": [float(b) for b in predictor.beta],
-            "rinv": [[float(v) for v in row] for row in predictor.rinv],
-            "center": center.tolist(),
-            "scale": scale.tolist(),
-            "s": _finite_or_none(predictor.s),
+            "s": _finite_or_none(fit.s),
             "df": int(fit.df_resid),
-            "level": float(fit.level),
-            "t": _finite_or_none(fit.t_quantile(fit.level)),
+            **fit.engine.payload(),  # the one prediction engine: the page evaluates exactly this
         })
     runs = source.data[factor_names].to_numpy(dtype=float)
     runs = runs[np.isfinite(runs).all(axis=1)]

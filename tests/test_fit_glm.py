@@ -289,7 +289,7 @@ def test_refresh_polynomial_path_for_continuous_factors():
     out = f.refresh({"Oven": 170.0, "Dwell": 9.0}, points=11)
     row = f.predict({"Oven": 170.0, "Dwell": 9.0}).iloc[0]
     assert out["point"]["ci_low"] == pytest.approx(row["ci_low"], rel=1e-10)
-    assert f._plan is not None  # every factor continuous: the polynomial trace plan is used
+    assert f.engine.plan is not None  # every factor continuous: the exact trace polynomials are used
     expected = f.predict(pd.DataFrame({"Oven": np.linspace(160, 200, 11), "Dwell": 9.0}))
     for key in ("mean", "ci_low", "ci_high"):
         np.testing.assert_allclose(out["traces"]["Oven"][key], expected[key], rtol=1e-10)

@@ -185,8 +185,8 @@ def test_residuals_by_whole_plot_and_run_ids():
     factors, t = _split_plot_data(5, replicates=3)
     f = lw.fit(t, "y", MODEL, factors=factors, whole_plot="whole_plot")
     d = f.diagnostics
-    assert list(d.index) == list(f.runs)
-    np.testing.assert_allclose(d["residual"], t["y"] - d["fitted"], atol=1e-10)
+    assert list(d.index) == list(f.runs) == list(t["run"])  # run ids (the design's run column)
+    np.testing.assert_allclose(d["residual"], t.set_index("run")["y"] - d["fitted"], atol=1e-10)
     np.testing.assert_allclose(d["conditional_residual"], d["residual"] - d["whole_plot_effect"], atol=1e-12)
     by = f.residuals_by_whole_plot
     assert by["runs"].sum() == len(t) and len(by) == t["whole_plot"].nunique()
@@ -243,13 +243,13 @@ def test_refresh_point_traces_and_slice_agree_with_predict():
     grid = pd.DataFrame({"Oven": 172.0, "Dwell": np.linspace(5, 15, 7), "Film": 66.0})
     expected = f.predict(grid)
     np.testing.assert_allclose(trace["x"], grid["Dwell"])
-    np.testing.assert_allclose(trace["pi_high"], expected["pi_high"], rtol=1e-12)
+    np.testing.assert_allclose(trace["mean"] + trace["pi_half"], expected["pi_high"], rtol=1e-12)
     s = out["slice"]
     assert s["mean"].shape == (4, 5)
     corner = f.predict({"Oven": 200.0, "Dwell": 7.5, "Film": 80.0}).iloc[0]
-    assert s["ci_high"][-1, -1] == pytest.approx(corner["ci_high"], rel=1e-12)
-    with pytest.raises(LevelwiseError, match="missing factor"):
-        f.refresh({"Oven": 170.0})
+    assert s["mean"][-1, -1] + s["ci_half"][-1, -1] == pytest.approx(corner["ci_high"], rel=1e-12)
+    with pytest.raises(LevelwiseError, match="Film"):
+        f.refresh({"Oven": 170.0, "Dwell": 7.5})
 
 
 def test_optimize_uses_the_split_plot_intervals():

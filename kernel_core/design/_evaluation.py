@@ -111,12 +111,12 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
         raise LevelwiseError(f"The 'alpha' parameter must be in (0, 1). Got {describe(alpha)} instead.")
     if not (isinstance(delta, float | int) and delta > 0):
         raise LevelwiseError(f"The 'delta' parameter must be a positive number. Got {describe(delta)} instead.")
-    from ..formula import monomials, parse_model, term_name
+    from ..model import monomials, parse_model, term_name
 
     names = design.factor_names
     spec = parse_model(model, names)
     coded = design.coded.to_numpy(dtype=float)
-    X = spec.matrix(coded)
+    X = monomials(np.asarray(coded, dtype=float), spec.exponents)
     n, p = X.shape
     if p > n:
         raise LevelwiseError(f"The model {model!r} has {p} terms but the design has only {n} runs.")
@@ -184,7 +184,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
                     pts = np.vstack([pts, np.array(list(itertools.product((-1.0, 1.0), repeat=k)))])
             W = moment_matrix(spec.exponents, discrete=discrete)
         pts[:, discrete] = np.where(pts[:, discrete] < 0, -1.0, 1.0)
-        F = spec.matrix(pts)
+        F = monomials(np.asarray(pts, dtype=float), spec.exponents)
         v = np.einsum("ij,jk,ik->i", F, XtXi, F)
         pv = {"min": float(v.min()), "mean": float(np.trace(XtXi @ W)), "max": float(v.max())}
         if df_error > 0:

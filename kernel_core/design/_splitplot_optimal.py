@@ -43,7 +43,7 @@ def _score(M, W, criterion):
 def split_plot_optimal(factors, model, runs, whole_plots, criterion="D", variance_ratio=1.0, starts=10, seed=None,
                        progress=None, randomize=True):
     """D- or I-optimal split-plot design; see :func:`levelwise.optimal_design` (``whole_plots=``)."""
-    from ..formula import parse_model
+    from ..model import parse_model
     from ._design import Design, _check_count, _check_seed
     from ._factors import as_factors
     from ._region import moment_matrix

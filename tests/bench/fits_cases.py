@@ -72,11 +72,11 @@ def _split_plot_frame():
 def _event_rows(fitted, point=(0.3, -0.5, 0.1, 0.8), points=50):
     """Model rows of one slider event: the point, then each factor's 50-point trace (as case_refresh)."""
     point = np.array([point])
-    out = [fitted.predictor.rows(point)]
+    out = [fitted.engine.rows(point)]
     for j in range(point.shape[1]):
         grid = np.repeat(point, points, axis=0)
         grid[:, j] = np.linspace(-1.0, 1.0, points)
-        out.append(fitted.predictor.rows(grid))
+        out.append(fitted.engine.rows(grid))
     return out
 
 

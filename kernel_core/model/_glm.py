@@ -17,9 +17,8 @@ import numpy as np
 import pandas as pd
 from scipy import special, stats
 
-from ._errors import LevelwiseError, describe
-from ._interactive_families import InteractiveFamily
-from .prediction import Predictor
+from .._errors import LevelwiseError, describe
+from ._families import FitFamily
 
 FAMILIES = {"binomial": ("logit", "probit"), "poisson": ("log",)}
 #: Pearson chi-square / df above which overdispersion is reported and the quasi-likelihood scale offered.
@@ -85,7 +84,7 @@ def _dmu_deta(link, eta):
     return np.exp(eta)
 
 
-class GlmFit(InteractiveFamily):
+class GlmFit(FitFamily):
     """A binomial or Poisson fit. Build it with ``levelwise.fit(..., family=...)``.
 
     Attributes
@@ -298,13 +297,15 @@ class GlmFit(InteractiveFamily):
                              "pearson_residual": pearson, "leverage": h, "cooks_distance": cooks}, index=self.runs)
 
     # -- effects and prediction -----------------------------------------------------------------------
+    @property
+    def _engine_columns(self):
+        return self.columns
+
     @cached_property
-    def predictor(self) -> Predictor:
-        """The shared evaluator: link-scale coefficients and their covariance factor (s = 1)."""
-        b = self.base
-        return Predictor(exponents=self.exponents, beta=self.beta, rinv=self.cov_factor, center=b.coding.center,
-                         scale=b.coding.scale, s=1.0, t_of_level=self.z_quantile,
-                         contrasts=b.contrasts)
+    def engine(self):
+        """The prediction engine on the link scale: coefficients, ``Cov(beta) = F F'``, normal quantiles (Wald,
+        as statsmodels GLM). :meth:`predict` and :meth:`refresh` transform its bands by the inverse link."""
+        return self._engine(self.exponents, df=None)
 
     @cached_property
     def effects(self) -> pd.DataFrame:
@@ -329,33 +330,17 @@ class GlmFit(InteractiveFamily):
 
     def z_quantile(self, level: float) -> float:
         """Two-sided normal quantile (Wald intervals, as statsmodels GLM), cached per level."""
-        cache = self.__dict__.setdefault("_z_cache", {})
-        if level not in cache:
-            if isinstance(level, bool) or not isinstance(level, (int, float)) or not 0 < level < 1:
-                raise LevelwiseError(f"The 'level' parameter must be a number in (0, 1). Got {describe(level)}.")
-            cache[level] = float(stats.norm.ppf(0.5 + level / 2.0))
-        return cache[level]
+        return self.engine.quantile(self.engine._level(level))
 
-    def _bands(self, eta, var, level):
-        """Link-scale mean +/- z * SE, transformed by the inverse link (never leaves the valid range)."""
-        se = np.sqrt(var)
-        half = self.z_quantile(level) * se
+    def _transform(self, eta, half):
+        """Link-scale mean +/- half-width, transformed by the inverse link (never leaves the valid range)."""
         with np.errstate(over="ignore"):
             return {"mean": _inverse_link(self.link, eta), "ci_low": _inverse_link(self.link, eta - half),
-                    "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta, "link_se": se}
-
-    def _plan_scaling(self):
-        return 1.0, self.z_quantile
-
-    def _bands_from_halves(self, eta, half, _pi, level):
-        with np.errstate(over="ignore"):
-            return {"mean": _inverse_link(self.link, eta), "ci_low": _inverse_link(self.link, eta - half),
-                    "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta,
-                    "link_se": half / self.z_quantile(level)}
+                    "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta}
 
     def mean_at(self, natural) -> np.ndarray:
         """Probability or rate per unit exposure at an (m, k) array of natural settings (no checks)."""
-        eta, _ = self.predictor.mean_and_leverage(natural)
+        eta, _ = self.engine.mean_and_leverage(natural)
         with np.errstate(over="ignore"):
             return _inverse_link(self.link, eta)
 
@@ -365,13 +350,35 @@ class GlmFit(InteractiveFamily):
         ``exposure`` (Poisson) also gives the expected count for that exposure. There is no interval for one
         new count; see :attr:`new_observation_note`.
         """
-        level = self.level if level is None else level
-        natural = self.base.settings_array(settings)
-        out = pd.DataFrame(self._bands(*self.predictor.mean_and_leverage(natural), level))
+        link = self.engine.predict(settings, level)
+        eta = link["mean"].to_numpy()
+        out = pd.DataFrame(self._transform(eta, link["ci_high"].to_numpy() - eta))
+        out["link_se"] = np.sqrt(link["leverage"].to_numpy())
         if exposure is not None and self.family == "poisson":
             out["expected_count"] = out["mean"] * np.asarray(exposure, dtype=float)
-        out["extrapolated"] = self.base.predict(settings)["extrapolated"].to_numpy()
+        out["extrapolated"] = link["extrapolated"].to_numpy()
         return out
+
+    def _curve(self, curve):
+        return {"x": curve["x"], **self._transform(curve["mean"], curve["ci_half"])}
+
+    def refresh(self, settings, level=None, points=50, slice_axes=None, shape=(100, 100), point=True) -> dict:
+        """One slider event (see ``Fit.refresh``) on the response scale: bands ``ci_low``/``ci_high`` made on the
+        link scale and transformed; no prediction interval (see :attr:`new_observation_note`)."""
+        out = self.engine.refresh(settings, level, points, slice_axes, shape, point)
+        if out["point"] is not None:
+            p = out["point"]
+            bands = self._transform(p["mean"], p["ci_high"] - p["mean"])
+            out["point"] = {**{k: float(v) for k, v in bands.items()}, "extrapolated": p["extrapolated"]}
+        if out["traces"] is not None:
+            out["traces"] = {name: self._curve(curve) for name, curve in out["traces"].items()}
+        if out["slice"] is not None:
+            sl = out["slice"]
+            out["slice"] = {"x": sl["x"], "y": sl["y"], **self._transform(sl["mean"], sl["ci_half"])}
+        return out
+
+    def traces(self, settings, points=50, level=None) -> dict:
+        return {name: self._curve(c) for name, c in self.engine.traces(settings, points, level).items()}
 
     def __repr__(self) -> str:
         return (f"<GlmFit {self.family} ({self.link}) {self.response} ~ {self.base.spec.formula}: {self.n} runs, "

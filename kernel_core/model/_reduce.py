@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 from ._fitview import require_continuous
 
 
@@ -43,7 +43,7 @@ def _natural_settings(fit) -> pd.DataFrame:
     names = list(fit.factor_names)
     stored = getattr(fit, "settings", None)
     if isinstance(stored, np.ndarray) and stored.shape == (len(fit.runs), len(names)):
-        return pd.DataFrame(stored, columns=names, index=fit.runs)
+        return pd.DataFrame(stored, columns=names, index=fit.runs).assign(run=np.asarray(fit.runs))
     columns = {}
     for j, name in enumerate(names):
         unit = np.zeros(len(names), dtype=int)
@@ -57,7 +57,7 @@ def _natural_settings(fit) -> pd.DataFrame:
         if match.size:
             coded = np.asarray(fit.X, dtype=float)[:, match[0]]
             columns[name] = coded * fit.coding.scale[j] + fit.coding.center[j]
-    return pd.DataFrame(columns, index=fit.runs)
+    return pd.DataFrame(columns, index=fit.runs).assign(run=np.asarray(fit.runs))
 
 
 def refit(fit, exponents, data: pd.DataFrame | None = None):
@@ -72,16 +72,20 @@ def refit(fit, exponents, data: pd.DataFrame | None = None):
     data : pandas.DataFrame, optional
         The original data. Without it, the settings are read back from the fit's linear columns.
     """
-    from .design import Factor
-    from .fit import fit as fit_model
+    from ..design import Factor
+    from ._fit import fit as fit_model
 
     require_continuous(fit, "Refitting on a subset of terms")
     names = list(fit.factor_names)
     if data is None:
         frame = _natural_settings(fit)
     else:
-        frame = data.loc[fit.runs, [n for n in names if n in data.columns]].copy()
+        from ._inputs import _run_ids
+
+        position = pd.Series(np.arange(len(data)), index=_run_ids(data))
+        frame = data.iloc[position.loc[fit.runs].to_numpy()][[n for n in names if n in data.columns]].copy()
     frame[fit.response] = np.asarray(fit.y, dtype=float)
+    frame["run"] = np.asarray(fit.runs)  # the refit names its runs by the same run ids
     low, high = np.asarray(fit.coding.low, float), np.asarray(fit.coding.high, float)
     center, scale = np.asarray(fit.coding.center, float), np.asarray(fit.coding.scale, float)
     # coding="none" stores centre 0 and scale 1; "auto" stores the factor's centre and half-range.

@@ -4,7 +4,7 @@ The variance components come from statsmodels ``MixedLM`` (REML). The fixed effe
 are the generalised least-squares solution at those components: each group of correlated runs (a whole
 plot, or a block when blocks are random) is whitened by the Cholesky factor of its covariance
 ``V = sigma2_e I + sigma2_wp Z Z' (+ sigma2_block 1 1')``, and the whitened model is solved by QR, so
-``Cov(beta) = (X' V^-1 X)^-1 = R^-1 R^-T`` and ``R^-1`` is the covariance factor handed to the predictor.
+``Cov(beta) = (X' V^-1 X)^-1 = R^-1 R^-T`` and ``R^-1`` is the covariance factor handed to the prediction engine.
 
 Denominator degrees of freedom follow the between-within (containment) rule, stated in
 :data:`DENOMINATOR_RULE`; in a balanced split-plot they give the classical stratum ANOVA tests.
@@ -21,10 +21,9 @@ import pandas as pd
 import scipy.linalg
 from scipy import stats
 
-from ._errors import LevelwiseError, LevelwiseWarning, describe
-from ._interactive_families import InteractiveFamily
-from .design._splitplot import WHOLE_PLOT_COLUMN, check_whole_plot_column
-from .prediction import Predictor
+from .._errors import LevelwiseError, LevelwiseWarning, describe
+from ..design._splitplot import WHOLE_PLOT_COLUMN, check_whole_plot_column
+from ._families import FitFamily
 
 DENOMINATOR_RULE = (
     "between-within (containment) rule: a term whose model columns are constant within every whole plot "
@@ -51,7 +50,7 @@ def _rank(a):
     return int(np.linalg.matrix_rank(a)) if a.size else 0
 
 
-class MixedFit(InteractiveFamily):
+class MixedFit(FitFamily):
     """A split-plot fit: linear mixed model by REML. Build it with ``levelwise.fit(..., whole_plot=...)``.
 
     Attributes
@@ -210,50 +209,41 @@ class MixedFit(InteractiveFamily):
                              "whole_plot_effect": g["whole_plot_effect"].first(),
                              "conditional_sd": g["conditional_residual"].std(ddof=0)})
 
-    # -- prediction ---------------------------------------------------------------------------------
+    # -- prediction: the one engine, with the GLS covariance factor ----------------------------------
+    _engine_columns = slice(None)
+
     @cached_property
-    def predictor(self) -> Predictor:
-        """The shared evaluator with the GLS coefficients and their covariance factor (s = 1)."""
-        b = self.base
-        return Predictor(exponents=b.spec.exponents, beta=self.beta, rinv=self.cov_factor,
-                         center=b.coding.center, scale=b.coding.scale, s=1.0, t_of_level=self.t_quantile,
-                         contrasts=b.contrasts)
+    def engine(self):
+        """The prediction engine: GLS coefficients, ``Cov(beta) = F F'``, t on the whole-plot stratum df, and a
+        new run's variance = the sum of the variance components (see :data:`INTERVAL_RULE`)."""
+        return self._engine(self.base.spec.exponents, df=self.df_whole_plot,
+                            new_run_variance=float(self.variance_components.sum()))
 
     def t_quantile(self, level: float) -> float:
         """Two-sided t quantile on the whole-plot stratum df (cached per level)."""
-        cache = self.__dict__.setdefault("_t_cache", {})
-        if level not in cache:
-            if isinstance(level, bool) or not isinstance(level, (int, float)) or not 0 < level < 1:
-                raise LevelwiseError(f"The 'level' parameter must be a number in (0, 1). Got {describe(level)}.")
-            cache[level] = float(stats.t.ppf(0.5 + level / 2.0, self.df_whole_plot))
-        return cache[level]
-
-    @cached_property
-    def _new_run_variance(self) -> float:
-        return float(self.variance_components.sum())
-
-    def _bands(self, mean, var_mean, level):
-        q = self.t_quantile(level)
-        ci, pi = q * np.sqrt(var_mean), q * np.sqrt(var_mean + self._new_run_variance)
-        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi, "pi_high": mean + pi,
-                "ci_half": ci, "pi_half": pi}
-
-    def _plan_scaling(self):
-        return math.sqrt(self._new_run_variance), self.t_quantile
-
-    def _bands_from_halves(self, mean, ci, pi, level):
-        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi, "pi_high": mean + pi,
-                "ci_half": ci, "pi_half": pi}
+        return self.engine.quantile(self.engine._level(level))
 
     def predict(self, settings, level: float | None = None) -> pd.DataFrame:
-        """Mean, CI for the mean and PI for one new run (both variance components), see :data:`INTERVAL_RULE`."""
-        level = self.level if level is None else level
-        natural = self.base.settings_array(settings)
-        mean, var_mean = self.predictor.mean_and_leverage(natural)
-        out = pd.DataFrame(self._bands(mean, var_mean, level)).drop(columns=["ci_half", "pi_half"])
-        out["se_mean"] = np.sqrt(var_mean)
-        out["extrapolated"] = self.base.predict(settings, level)["extrapolated"].to_numpy()
+        """Mean, CI for the mean and PI for one new run (both variance components), see :data:`INTERVAL_RULE`.
+
+        ``leverage`` is ``x Cov(beta) x'`` (the variance of the mean) and ``se_mean`` its square root.
+        """
+        out = self.engine.predict(settings, level)
+        out.insert(5, "se_mean", np.sqrt(out["leverage"].to_numpy()))
         return out
+
+    def refresh(self, settings, level=None, points=50, slice_axes=None, shape=(100, 100), point=True) -> dict:
+        """One slider event (see ``Fit.refresh``), with the split-plot intervals."""
+        return self.engine.refresh(settings, level, points, slice_axes, shape, point)
+
+    def trace(self, factor, settings, points=50, level=None) -> dict:
+        return self.engine.trace(factor, settings, points, level)
+
+    def traces(self, settings, points=50, level=None) -> dict:
+        return self.engine.traces(settings, points, level)
+
+    def slice(self, x, y, settings, shape=(100, 100), level=None) -> dict:
+        return self.engine.slice(x, y, settings, shape, level)
 
     # -- backward elimination -----------------------------------------------------------------------
     def reduce(self, alpha: float = 0.05, hierarchy: bool = True):
@@ -261,7 +251,7 @@ class MixedFit(InteractiveFamily):
 
         With *hierarchy* a term stays while a term containing it stays. Returns (final fit, steps).
         """
-        from .reduce import formula_of
+        from ._reduce import formula_of
 
         if isinstance(alpha, bool) or not isinstance(alpha, (int, float)) or not 0 < alpha < 1:
             raise LevelwiseError(f"The 'alpha' parameter of reduce must be in (0, 1). Got {describe(alpha)} instead.")

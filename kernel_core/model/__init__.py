@@ -1,0 +1,79 @@
+"""Models: formulas, least-squares fits, the prediction engine and the analyses of a fit.
+
+Private modules by role (import the names from here or from ``levelwise``):
+
+- ``_formula`` Wilkinson formulas and presets -> :class:`ModelSpec` (an exponent matrix)
+- ``_inputs`` checks of the fit's input (numeric columns, levels, achieved settings, run ids)
+- ``_coding`` natural <-> coded, sum-to-zero contrasts, categorical expansion
+- ``_numerics`` pivoted QR, rank and aliases, extended-precision re-solve
+- ``_fit`` :func:`fit`; ``_result`` the :class:`Fit` result; ``_exclusions`` rank-one exclude/include
+- ``_engine`` the one :class:`PredictionEngine`; ``_settings`` its settings check; ``_polynomials`` exact
+  trace/slice polynomials;
+  ``_slices`` :func:`slice_grid`
+- ``_mixed`` split-plot fits by REML (:class:`MixedFit`); ``_glm`` binomial and Poisson fits
+  (:class:`GlmFit`); ``_families`` what they share (engine arguments, exclusions by refitting)
+- ``_anova``, ``_diagnostics``, ``_effects``, ``_boxcox``, ``_reduce``, ``_optimize`` analyses of a fit
+"""
+
+from ._boxcox import BoxCoxResult, box_cox
+from ._coding import Coding
+from ._effects import LenthResult, effects, half_normal, lenth
+from ._engine import PredictionEngine, predict
+from ._fit import fit, least_squares
+from ._formula import PRESETS, ModelSpec, monomials, parse_model, term_name
+from ._glm import GlmFit
+from ._inputs import ACHIEVED_SUFFIX
+from ._mixed import DENOMINATOR_RULE, MixedFit
+from ._optimize import (
+    Goal,
+    Optimum,
+    SteepestPath,
+    fit_responses,
+    maximize,
+    minimize,
+    optimize,
+    overall_desirability,
+    steepest_path,
+    target,
+)
+from ._reduce import Reduction, reduce, refit
+from ._result import Fit
+from ._slices import slice_grid
+
+__all__ = [
+    "ACHIEVED_SUFFIX",
+    "DENOMINATOR_RULE",
+    "GlmFit",
+    "MixedFit",
+    "least_squares",
+    "PRESETS",
+    "BoxCoxResult",
+    "Coding",
+    "Fit",
+    "Goal",
+    "LenthResult",
+    "ModelSpec",
+    "Optimum",
+    "PredictionEngine",
+    "Reduction",
+    "SteepestPath",
+    "box_cox",
+    "effects",
+    "fit",
+    "fit_responses",
+    "half_normal",
+    "lenth",
+    "maximize",
+    "minimize",
+    "monomials",
+    "optimize",
+    "overall_desirability",
+    "parse_model",
+    "predict",
+    "reduce",
+    "refit",
+    "slice_grid",
+    "steepest_path",
+    "target",
+    "term_name",
+]
