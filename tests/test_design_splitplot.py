@@ -185,14 +185,3 @@ def test_optimal_split_plot_bad_input():
         lw.optimal_design(fs, "A + B", runs=8, whole_plots=4, variance_ratio=-1.0)
     with pytest.raises(LevelwiseError, match="hard_to_change"):
         lw.optimal_design([lw.Factor("A", -1, 1), lw.Factor("B", -1, 1)], "A + B", runs=8, whole_plots=4)
-
-
-@pytest.mark.parametrize("suffix", ["csv", "xlsx"])
-def test_run_sheet_round_trip_keeps_whole_plots(tmp_path, suffix):
-    from levelwise.design import write_run_sheet
-
-    d = lw.full_factorial(_factors(("Oven",)), seed=6)
-    path = tmp_path / f"sheet.{suffix}"
-    write_run_sheet(d, path, responses=["y"])
-    filled = lw.read_run_sheet(path, design=d)
-    assert filled.data["whole_plot"].tolist() == d.table["whole_plot"].tolist()
