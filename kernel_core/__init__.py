@@ -151,3 +151,9 @@ __all__ += ["MixtureFit", "cox_traces", "fit_mixture"]
 from .model import move_component, ternary_slice  # noqa: E402
 
 __all__ += ["move_component", "ternary_slice"]
+
+# Split-plot and GLM fits (issues 13, 15)
+from .design import split_plot_order  # noqa: E402
+from .model import DENOMINATOR_RULE, GlmFit, MixedFit, least_squares  # noqa: E402
+
+__all__ += ["DENOMINATOR_RULE", "GlmFit", "MixedFit", "least_squares", "split_plot_order"]

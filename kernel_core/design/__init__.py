@@ -16,6 +16,8 @@ The modules behind it are private and laid out by role:
 * ``_mixture_region``: mixture :class:`Component` and the :class:`Mixture` region (bounds, vertices,
   pseudo-components); ``_mixture``: simplex-lattice, simplex-centroid and extreme-vertices designs and
   mixture-process crossings; ``_mixture_optimal``: optimal designs over a mixture region (issue 12).
+* ``_splitplot``: whole plots of hard-to-change factors and the restricted randomisation;
+  ``_splitplot_optimal``: D- and I-optimal split-plot designs (``optimal_design(whole_plots=...)``).
 """
 
 from ._aberration import minimum_aberration
@@ -33,6 +35,7 @@ from ._region import parse_constraints
 from ._response_surface import BB_GROUPS, box_behnken, central_composite, orthogonal_alpha, rotatable_alpha
 from ._runsheet import run_sheet, write_run_sheet
 from ._screening import plackett_burman, plackett_burman_matrix
+from ._splitplot import WHOLE_PLOT_COLUMN, split_plot_order
 
 __all__ = [
     "BB_GROUPS",
@@ -68,4 +71,7 @@ __all__ = [
     "simplex_centroid",
     "simplex_lattice",
     "write_run_sheet",
+    # split-plot designs (issue 13)
+    "WHOLE_PLOT_COLUMN",
+    "split_plot_order",
 ]

@@ -195,6 +195,10 @@ def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=T
     seed : int, optional
         Seed for a reproducible run order.
 
+    Factors declared ``hard_to_change=True`` make a split-plot design: whole plots (a ``whole_plot`` column)
+    are the settings of those factors times the replicates, and the randomisation is restricted (see
+    ``levelwise.design._splitplot.split_plot_order``).
+
     Returns
     -------
     Design
@@ -224,6 +228,9 @@ def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=T
             f"The design would have {2**k * replicates + center_points} runs; the limit is 1,000,000. "
             f"Check 'replicates' ({replicates}) and 'center_points' ({center_points})."
         )
-    return build_two_level(factors, k, [], [], center_points=center_points, replicates=replicates, blocks=blocks,
-                           randomize=randomize, seed=seed, kind="full factorial", generators=())
+    design = build_two_level(factors, k, [], [], center_points=center_points, replicates=replicates, blocks=blocks,
+                             randomize=randomize, seed=seed, kind="full factorial", generators=())
+    from ._splitplot import maybe_split_plot  # hard-to-change factors: whole plots (issue 13)
+
+    return maybe_split_plot(design, replicates, randomize, seed)
 

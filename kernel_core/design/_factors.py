@@ -27,6 +27,9 @@ class Factor:
     levels : sequence, optional
         For a categorical factor (give it instead of ``low``/``high``): at least 2 distinct levels, e.g.
         ``["steel", "brass"]``. In two-level designs the first level is coded -1 and the second +1.
+    hard_to_change : bool, default False
+        True for a factor that is slow or costly to reset (a furnace set-point, a mould). Two-level designs
+        then hold it constant over whole plots and restrict the randomisation (split-plot designs).
 
     Examples
     --------
@@ -45,8 +48,15 @@ class Factor:
     high: float | None = None
     units: str = ""
     levels: tuple = ()
+    hard_to_change: bool = False
 
     def __post_init__(self):
+        if not isinstance(self.hard_to_change, (bool, np.bool_)):
+            raise LevelwiseError(
+                f"The 'hard_to_change' flag of a Factor must be True or False. Got {describe(self.hard_to_change)} "
+                "instead."
+            )
+        object.__setattr__(self, "hard_to_change", bool(self.hard_to_change))
         if not isinstance(self.name, str) or not self.name.strip():
             raise LevelwiseError(
                 f"The 'name' of a Factor must be a non-empty string. Got {describe(self.name)} instead."

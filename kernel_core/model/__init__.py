@@ -10,6 +10,8 @@ Private modules by role (import the names from here or from ``levelwise``):
 - ``_engine`` the one :class:`PredictionEngine`; ``_settings`` its settings check; ``_polynomials`` exact
   trace/slice polynomials;
   ``_slices`` :func:`slice_grid`
+- ``_mixed`` split-plot fits by REML (:class:`MixedFit`); ``_glm`` binomial and Poisson fits
+  (:class:`GlmFit`); ``_families`` what they share (engine arguments, exclusions by refitting)
 - ``_anova``, ``_diagnostics``, ``_effects``, ``_boxcox``, ``_reduce``, ``_optimize`` analyses of a fit
 - mixtures (issue 12): ``_mixture_terms`` Scheffé presets and mixture-process crossings; ``_mixture``
   :func:`fit_mixture` and :class:`MixtureFit`; ``_mixture_engine`` its prediction engine (blend check, Cox
@@ -21,9 +23,11 @@ from ._boxcox import BoxCoxResult, box_cox
 from ._coding import Coding
 from ._effects import LenthResult, effects, half_normal, lenth
 from ._engine import PredictionEngine, predict
-from ._fit import fit
+from ._fit import fit, least_squares
 from ._formula import PRESETS, ModelSpec, monomials, parse_model, term_name
+from ._glm import GlmFit
 from ._inputs import ACHIEVED_SUFFIX
+from ._mixed import DENOMINATOR_RULE, MixedFit
 from ._mixture import MixtureFit, fit_mixture
 from ._mixture_engine import MixtureEngine, cox_traces
 from ._mixture_slices import move_component, ternary_slice
@@ -45,6 +49,10 @@ from ._slices import slice_grid
 
 __all__ = [
     "ACHIEVED_SUFFIX",
+    "DENOMINATOR_RULE",
+    "GlmFit",
+    "MixedFit",
+    "least_squares",
     "PRESETS",
     "BoxCoxResult",
     "Coding",

@@ -223,6 +223,8 @@ def _factor_union(fits: dict) -> tuple[list[str], dict]:
 def _mean_function(fit, names: list[str]):
     """Mean prediction from an (m, k_all) array of natural settings, through the fit's prediction engine."""
     columns = [names.index(n) for n in fit.factor_names]
+    if callable(getattr(fit, "mean_at", None)):  # GLM fits: the mean on the response scale (issue 15)
+        return lambda natural: fit.mean_at(natural[:, columns])
     engine = fit.engine
     return lambda natural: engine.mean_and_leverage(natural[:, columns])[0]
 

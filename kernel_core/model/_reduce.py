@@ -159,6 +159,9 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
             f"The 'alpha' parameter of reduce must be a number in the open interval (0, 1). Got {describe(alpha)} "
             "instead."
         )
+    if getattr(fit, "kind", None) in ("glm", "mixed"):  # likelihood-ratio (issue 15) / stratum F tests (issue 13)
+        final, steps = fit.reduce(alpha, hierarchy)
+        return Reduction(fit=final, steps=steps, initial=fit, alpha=float(alpha), hierarchy=bool(hierarchy))
     require_continuous(fit, "Backward elimination (reduce)")
     if fit.df_resid <= 0:
         raise LevelwiseError(
