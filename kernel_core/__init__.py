@@ -89,3 +89,16 @@ __all__ += [
 from .study import Study  # noqa: E402
 
 __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
+
+# Beyond two levels (issue 14).
+from ._conference import conference_matrix  # noqa: E402
+from ._definitive_screening import SecondOrderAliasing, definitive_screening, second_order_aliasing  # noqa: E402
+from ._general_factorial import general_factorial  # noqa: E402
+
+__all__ += [
+    "SecondOrderAliasing",
+    "conference_matrix",
+    "definitive_screening",
+    "general_factorial",
+    "second_order_aliasing",
+]
