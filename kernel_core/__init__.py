@@ -94,6 +94,7 @@ __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
 from ._conference import conference_matrix  # noqa: E402
 from ._definitive_screening import SecondOrderAliasing, definitive_screening, second_order_aliasing  # noqa: E402
 from ._general_factorial import general_factorial  # noqa: E402
+from ._term_tests import term_tests  # noqa: E402
 
 __all__ += [
     "SecondOrderAliasing",
@@ -101,4 +102,5 @@ __all__ += [
     "definitive_screening",
     "general_factorial",
     "second_order_aliasing",
+    "term_tests",
 ]

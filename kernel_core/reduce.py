@@ -155,7 +155,10 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
             f"The 'alpha' parameter of reduce must be a number in the open interval (0, 1). Got {describe(alpha)} "
             "instead."
         )
-    require_continuous(fit, "Backward elimination (reduce)")
+    if getattr(fit, "contrasts", ()):  # categorical factors: whole terms by partial F (issue 14)
+        from ._term_tests import reduce_terms
+
+        return reduce_terms(fit, alpha, hierarchy, data)
     if fit.df_resid <= 0:
         raise LevelwiseError(
             f"The model {fit.spec.formula!r} has no residual degrees of freedom ({fit.n} runs, {fit.p} terms), "
