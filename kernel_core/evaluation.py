@@ -112,6 +112,10 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
         raise LevelwiseError(f"The 'alpha' parameter must be in (0, 1). Got {describe(alpha)} instead.")
     if not (isinstance(delta, float | int) and delta > 0):
         raise LevelwiseError(f"The 'delta' parameter must be a positive number. Got {describe(delta)} instead.")
+    from ._categorical_design import evaluate_levels, has_many_levels
+
+    if has_many_levels(design.factors):  # categorical factors with more than 2 levels (issue 14)
+        return evaluate_levels(design, model, alias_terms, delta, alpha)
     names = design.factor_names
     spec = parse_model(model, names)
     coded = design.coded.to_numpy(dtype=float)

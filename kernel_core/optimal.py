@@ -179,7 +179,8 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     Parameters
     ----------
     factors : list of Factor or int
-        Continuous factors, or categorical factors with 2 levels (coded -1/+1, never in a squared term).
+        Continuous factors and categorical factors (never in a squared term). With a categorical factor of more
+        than 2 levels the search is ``levelwise._categorical_design.coordinate_exchange`` (over its levels).
     model : str
         Wilkinson formula or preset ``"linear"``, ``"interactions"``, ``"quadratic"``.
     runs : int
@@ -218,12 +219,11 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     100.0
     """
     factors = as_factors(factors)
-    for f in factors:
-        if f.is_categorical and len(f.levels) != 2:
-            raise LevelwiseError(
-                f"optimal_design takes continuous factors and categorical factors with 2 levels; factor {f.name!r} "
-                f"has {len(f.levels)} levels."
-            )
+    from ._categorical_design import coordinate_exchange, has_many_levels
+
+    if has_many_levels(factors):  # categorical factors with more than 2 levels (issue 14)
+        return coordinate_exchange(factors, model, runs, criterion, constraints, fixed_runs, starts, seed, progress,
+                                   randomize)
     discrete = np.array([f.is_categorical for f in factors])
     runs = _check_count(runs, "runs", 1)
     starts = _check_count(starts, "starts", 1)
