@@ -74,6 +74,11 @@ class LevelSlice:
                 position += 1
         self.spec = _Spec(fit.spec.formula, E[:, keep_vars], tuple(fit.spec.terms))
         self.beta = np.asarray(fit.beta, dtype=float) * const
+        # x (X'X)^-1 x' with x = const * monomials: scale the rows of the square root R^-1 by const.
+        self.rinv = np.asarray(fit.rinv, dtype=float) * const[:, None]
+        self.s = fit.s
+        self.level = fit.level
+        self.t_quantile = fit.t_quantile
 
     def _full(self, frame: pd.DataFrame) -> pd.DataFrame:
         frame = pd.DataFrame(frame).copy()
@@ -83,6 +88,25 @@ class LevelSlice:
 
     def predict(self, settings, level=None) -> pd.DataFrame:
         return self.fit.predict(self._full(settings), level)
+
+
+def hold_levels(fit, settings):
+    """(LevelSlice of *fit* at the categorical levels in *settings*, the settings of its continuous factors).
+
+    A categorical factor missing from *settings* is held at its first level.
+    """
+    settings = dict(settings or {})
+    held = {}
+    for name, levels in fit.categories.items():
+        value = settings.pop(name, levels[0])
+        match = [lv for lv in levels if lv == value or str(lv) == str(value)]
+        if not match:
+            raise LevelwiseError(
+                f"The setting for categorical factor {name!r} must be one of its levels {list(levels)}. "
+                f"Got {describe(value)} instead."
+            )
+        held[name] = match[0]
+    return LevelSlice(fit, held), settings
 
 
 def _categorical_levels(fits: dict, region) -> dict:
@@ -218,4 +242,4 @@ def steepest_path_levels(fit, step: float = 1.0, steps: int = 10, ascent: bool =
                      level_effects=pd.DataFrame(rows))
 
 
-__all__ = ["LevelOptimum", "LevelPath", "LevelSlice", "optimize_levels", "steepest_path_levels"]
+__all__ = ["LevelOptimum", "LevelPath", "LevelSlice", "hold_levels", "optimize_levels", "steepest_path_levels"]

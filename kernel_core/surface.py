@@ -114,7 +114,8 @@ def slice_polynomials(fit, x: str, y: str, settings=None, level: float | None = 
     x, y : str
         The two slice factors.
     settings : dict, optional
-        Natural settings of the other factors; a factor left out sits at the centre of its range.
+        Natural settings of the other factors; a factor left out sits at the centre of its range (a
+        categorical factor at its first level). Categorical factors are held at their level.
     level : float, optional
         Confidence level of ``t``; defaults to the fit's level.
 
@@ -127,6 +128,11 @@ def slice_polynomials(fit, x: str, y: str, settings=None, level: float | None = 
     """
     level = _check_level(fit, level)
     ix, iy = _slice_factors(fit, x, y)
+    if categorical_names(fit):  # held at their levels in settings: a polynomial in the rest (issue 14)
+        from ._categorical_search import hold_levels
+
+        fit, settings = hold_levels(fit, settings)
+        ix, iy = _slice_factors(fit, x, y)
     if not _is_polynomial(fit):
         raise LevelwiseError(
             f"The model {fit.spec.formula!r} is not a polynomial in the factors, so it has no slice polynomials."
