@@ -45,6 +45,33 @@ def _finite_or_none(value):
     return value if np.isfinite(value) else None
 
 
+def _variables(fit, predictor, factor_names, factors) -> list:
+    """The fit's coded variables on the page: a continuous factor's (x - center) / scale, or one contrast column
+    of a categorical factor as a value per level of the page's factor (None for a level the fit never saw)."""
+    out = []
+    for j, name in enumerate(fit.factor_names):
+        i = factor_names.index(name)
+        contrasts = getattr(fit, "contrasts", ()) or ()
+        if name in (getattr(fit, "categories", None) or {}):
+            seen = list(fit.categories[name])
+            contrast = contrasts[j]
+            for c in range(contrast.shape[1]):
+                table = [float(contrast[seen.index(lv), c]) if lv in seen else None for lv in factors[i].levels]
+                out.append({"factor": i, "table": table})
+        else:
+            out.append({"factor": i, "center": float(predictor.center[j]), "scale": float(predictor.scale[j])})
+    return out
+
+
+def _run_column(values, factor) -> np.ndarray:
+    """A run-table column as numbers: natural settings, or the level index of a categorical factor."""
+    levels = list(getattr(factor, "levels", ()) or ())
+    if not levels:
+        return np.asarray(values, dtype=float)
+    index = {str(level): k for k, level in enumerate(levels)}
+    return np.array([index.get(str(v), np.nan) for v in values], dtype=float)
+
+
 def payload(source: StudySource) -> dict:
     """Everything the page needs, as plain JSON-able numbers (the model per response, the runs, the text)."""
     shared = shared_model(source, read_only=True)
@@ -56,31 +83,20 @@ def payload(source: StudySource) -> dict:
         if fit is None:
             continue
         predictor = fit.predictor
-        # The predictor's columns follow the fit's factor order; map them onto the page's factor order.
-        order = [list(fit.factor_names).index(n) if n in fit.factor_names else -1 for n in factor_names]
-        exponents = np.zeros((fit.p, len(factor_names)), dtype=int)
-        center = np.zeros(len(factor_names))
-        scale = np.ones(len(factor_names))
-        for page_col, fit_col in enumerate(order):
-            if fit_col >= 0:
-                exponents[:, page_col] = predictor.exponents[:, fit_col]
-                center[page_col] = predictor.center[fit_col]
-                scale[page_col] = predictor.scale[fit_col]
         responses.append({
             "name": name,
             "units": source.units.get(name, ""),
             "terms": list(fit.terms),
-            "exponents": exponents.tolist(),
+            "exponents": np.asarray(predictor.exponents, dtype=int).tolist(),
+            "vars": _variables(fit, predictor, factor_names, source.factors),
             "beta": [float(b) for b in predictor.beta],
             "rinv": [[float(v) for v in row] for row in predictor.rinv],
-            "center": center.tolist(),
-            "scale": scale.tolist(),
             "s": _finite_or_none(predictor.s),
             "df": int(fit.df_resid),
             "level": float(fit.level),
             "t": _finite_or_none(fit.t_quantile(fit.level)),
         })
-    runs = source.data[factor_names].to_numpy(dtype=float)
+    runs = np.column_stack([_run_column(source.data[f.name], f) for f in source.factors])
     runs = runs[np.isfinite(runs).all(axis=1)]
     models = {name: source.models.get(name, "") for name in source.responses}
     return {
@@ -90,6 +106,7 @@ def payload(source: StudySource) -> dict:
         "caution": CAUTION,
         "fingerprint": fingerprint(shared.data, models, dict(getattr(shared, "exclusions", {}) or {})),
         "factors": [
+            {"name": f.name, "units": f.units, "levels": list(f.levels)} if getattr(f, "levels", ()) else
             {"name": f.name, "units": f.units, "low": float(f.low), "high": float(f.high),
              "center": float(f.center)}
             for f in source.factors
