@@ -287,7 +287,7 @@ def evaluate_levels(design, model, alias_terms=None, delta: float = 2.0, alpha: 
     with the prediction variance over every level of each categorical factor (5 levels per continuous factor,
     up to 15,625 points; else 4096 seeded random points) and the exact moment matrix for its mean.
     """
-    from .evaluation import DesignEvaluation
+    from .evaluation import DesignEvaluation, _second_order
 
     if not (isinstance(alpha, float | int) and 0 < alpha < 1):
         raise LevelwiseError(f"The 'alpha' parameter must be in (0, 1). Got {describe(alpha)} instead.")
@@ -379,6 +379,7 @@ def evaluate_levels(design, model, alias_terms=None, delta: float = 2.0, alpha: 
         vif=pd.Series(vif, index=body_names, name="vif"), correlation=pd.DataFrame(C, index=body_names,
                                                                                    columns=body_names),
         prediction_variance=pv, power=power, delta=float(delta), alpha=float(alpha),
+        second_order=_second_order(design),
     )
 
 

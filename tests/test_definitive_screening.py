@@ -110,3 +110,16 @@ def test_definitive_screening_bad_input():
         lw.definitive_screening(4, extra_centre_runs=-1)
     with pytest.raises(LevelwiseError, match="one of them continuous"):
         lw.definitive_screening([Factor("S", levels=["a", "b"]), Factor("T", levels=["x", "y"])])
+
+
+def test_evaluate_reports_the_second_order_alias_structure():
+    d = lw.definitive_screening(6, seed=1)
+    ev = lw.evaluate(d, "A + B + C + D + E + F")
+    so = ev.second_order
+    assert so.max_abs_main_vs_second_order == 0.0  # Jones & Nachtsheim 2011
+    assert so.correlation.shape == (21, 21) and so.confounded_pairs == ()
+    # In the resolution IV half fraction 2^(4-1) with D = ABC the two-factor interactions are confounded in
+    # pairs, AB = CD (common practice).
+    frac = lw.fractional_factorial(4, generators=["D=ABC"], randomize=False)
+    pairs = lw.evaluate(frac, "A + B + C + D").second_order.confounded_pairs
+    assert ("A:B", "C:D") in pairs
