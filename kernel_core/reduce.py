@@ -134,7 +134,8 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
     At each step the removable term with the largest p-value (t test on the current fit) is
     dropped and the model is refitted. With ``hierarchy=True`` a term is removable only
     when no remaining term contains it (A stays while A:B or A^2 stays). The intercept is
-    never removed.
+    never removed. With categorical factors each term is tested as one term by its partial F
+    and leaves with all its columns (``levelwise._term_tests.reduce_terms``).
 
     Parameters
     ----------
