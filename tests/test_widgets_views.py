@@ -560,3 +560,25 @@ def test_design_builder_offers_general_factorial_and_definitive_screening(shared
     assert len(builder.design) == 3 * 3 * 2 * 2
     assert set(builder.design.table[factors[1].name]) == {"north", "east", "south"}
     assert builder.status.value == ""
+
+
+def test_optimiser_searches_over_the_levels_of_a_categorical_factor():
+    from levelwise import Factor, full_factorial, optimize
+
+    factors = [Factor("Oven", 170, 210, units="°C"), Factor("Supplier", levels=["north", "east", "south"])]
+    design = full_factorial(factors, replicates=2, seed=3)
+    data = design.table.copy()
+    shift = data["Supplier"].map({"north": 0.0, "east": 2.0, "south": -1.0})
+    data["Impact"] = 10 + (data["Oven"] - 190) / 20 + shift + np.random.default_rng(3).normal(0, 0.2, len(data))
+    shared = SharedModel(factors, data, "Impact", "Oven + Supplier", design=design)
+    view = OptimizerView(shared, seed=1, starts=3)
+    view.set_goal("Impact", "maximize", low=5, target=15)
+    best = view.run()
+    reference = optimize({"Impact": fit(data, "Impact", "Oven + Supplier", factors=factors)},
+                         {"Impact": {"goal": "maximize", "low": 5, "target": 15}}, starts=3, seed=1)
+    assert best.winner == reference.winner == {"Supplier": "east"}  # the largest invented shift
+    assert "lw-level-results" in view.result.value and "Supplier = east" in view.result.value
+    view.use()
+    assert shared.settings["Supplier"] == "east"
+    assert view.status.value == ""
+    view.close()
