@@ -17,9 +17,8 @@ from levelwise.study import Study
 LEVELS = ["north", "east", "south"]
 
 
-@pytest.fixture(scope="module")
-def categorical_export(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("export-categorical")
+def categorical_study(path):
+    """A study with a three-level categorical factor and an invented, seeded response, saved to *path*."""
     factors = [Factor("Oven", 160, 200, "°C"), Factor("Time", 10, 20, "min"), Factor("Supplier", levels=LEVELS)]
     study = Study(factors, title="three suppliers (invented)")
     study.add_stage("screen", full_factorial(factors, replicates=2, seed=1))
@@ -30,8 +29,14 @@ def categorical_export(tmp_path_factory):
         a, b = (row.Oven - 180) / 20, (row.Time - 15) / 5
         study.record(run, "y", float(30 + 2 * a - b + shift[row.Supplier] + 0.8 * a * b + rng.normal(0, 0.3)))
     study.set_model("y", "Oven + Time + Supplier + Oven:Time + Oven:Supplier")
-    path = folder / "study.json"
     study.save(path)
+    return path
+
+
+@pytest.fixture(scope="module")
+def categorical_export(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("export-categorical")
+    path = categorical_study(folder / "study.json")
     return path, write_export(str(path), folder / "study.html")
 
 
