@@ -128,3 +128,16 @@ def test_general_factorial_bad_input():
 def test_two_level_full_factorial_unchanged_by_delegation():
     d = lw.full_factorial(3, blocks=2, randomize=False)
     assert d.kind == "full factorial" and d.block_confounded == ["ABC"]
+
+
+def test_mixed_level_blocks_confound_only_an_interaction_of_the_two_level_factors():
+    factors = [Factor("A", 0, 1), Factor("B", 0, 1), Factor("S", levels=["a", "b", "c"])]
+    d = lw.full_factorial(factors, blocks=2, seed=7)
+    assert d.metadata["block_generators"] == [{"A": 1, "B": 1}] and d.metadata["block_modulus"] == 2
+    for _, part in d.table.groupby("block"):
+        assert len(part) == 6
+        # Every level of every factor equally often in each block: no main effect is confounded with blocks.
+        for name in ("A", "B", "S"):
+            assert len(set(Counter(part[name]).values())) == 1 and part[name].nunique() == (3 if name == "S" else 2)
+        # A x B is: the block holds A = B or A != B only (AB interaction confounded; common practice).
+        assert (part["A"] == part["B"]).nunique() == 1
