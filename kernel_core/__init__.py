@@ -7,9 +7,23 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
 from ._version import __version__
 from .boxcox import BoxCoxResult, box_cox
-from .design import Design, full_factorial
+from .design import (
+    Design,
+    DesignEvaluation,
+    Factor,
+    box_behnken,
+    central_composite,
+    evaluate,
+    fold_over,
+    fractional_factorial,
+    full_factorial,
+    optimal_design,
+    plackett_burman,
+    run_sheet,
+    write_run_sheet,
+)
+from .design._runsheet_reader import FilledRunSheet, read_run_sheet
 from .effects import LenthResult, effects, half_normal, lenth
-from .factors import Factor
 from .fit import Fit, fit
 from .formula import ModelSpec, parse_model
 from .optimize import (
@@ -62,14 +76,7 @@ __all__ = [
     "target",
 ]
 
-# Design generation (issue 3).
-from .evaluation import DesignEvaluation, evaluate  # noqa: E402
-from .fractional import fold_over, fractional_factorial  # noqa: E402
-from .optimal import optimal_design  # noqa: E402
-from .rsm_designs import box_behnken, central_composite  # noqa: E402
-from .runsheet import FilledRunSheet, read_run_sheet, run_sheet, write_run_sheet  # noqa: E402
-from .screening import plackett_burman  # noqa: E402
-
+# Design generation (levelwise.design).
 __all__ += [
     "DesignEvaluation",
     "FilledRunSheet",
@@ -91,10 +98,14 @@ from .study import Study  # noqa: E402
 __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
 
 # Beyond two levels (issue 14).
-from ._conference import conference_matrix  # noqa: E402
-from ._definitive_screening import SecondOrderAliasing, definitive_screening, second_order_aliasing  # noqa: E402
-from ._general_factorial import general_factorial  # noqa: E402
 from ._term_tests import term_tests  # noqa: E402
+from .design import (  # noqa: E402
+    SecondOrderAliasing,
+    conference_matrix,
+    definitive_screening,
+    general_factorial,
+    second_order_aliasing,
+)
 
 __all__ += [
     "SecondOrderAliasing",

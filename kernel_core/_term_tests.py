@@ -53,7 +53,7 @@ def _frame(fit, data):
 
 def refit_terms(fit, group_rows, data=None):
     """Refit *fit* keeping the terms of ``fit.groups`` at positions *group_rows* (and the intercept if any)."""
-    from .factors import Factor
+    from .design import Factor
     from .fit import fit as fit_model
     from .reduce import formula_of
 

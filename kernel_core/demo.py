@@ -10,8 +10,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from .design import Design, full_factorial
-from .factors import Factor
+from .design import Design, Factor, full_factorial
 
 #: Seed of the invented data; change it and every demo number changes.
 SEED = 20261201

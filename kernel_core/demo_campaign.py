@@ -33,9 +33,7 @@ from datetime import UTC, datetime, timedelta
 
 import numpy as np
 
-from .factors import Factor
-from .fractional import fold_over, fractional_factorial
-from .rsm_designs import central_composite
+from .design import Factor, central_composite, fold_over, fractional_factorial
 
 #: Seed of the invented campaign; change it and every number changes.
 SEED = 20261202
@@ -148,7 +146,7 @@ def campaign_study():
         screen_ids = study.add_stage("screen", screen, description="2^(6-2) resolution IV screen, 4 centre points",
                                      reason="find the active factors")
         oven = screen.table["Oven"].to_numpy()
-        factorial = np.flatnonzero(screen.table["point_type"].to_numpy() == "factorial")
+        factorial = np.flatnonzero(screen.table["role"].to_numpy() == "corner")
         missed = {
             int(factorial[oven[factorial] == FACTORS[0].high][0]): OVEN_MISSES["high"],
             int(factorial[oven[factorial] == FACTORS[0].low][0]): OVEN_MISSES["low"],
@@ -162,10 +160,8 @@ def campaign_study():
         study.set_notes(study.notes + f" Run {screen_ids[damaged]}: panel damaged in handling before the impact "
                         "test, so its impact resistance is missing.", reason="record the missing value")
 
-        folded = fold_over(screen, factor=FOLD_FACTOR, as_block=True, seed=SEED + 1)
-        new_block = folded.table["block"].max()
-        fold_runs = folded.table[folded.table["block"] == new_block]
-        fold_ids = study.add_stage("fold-over", fold_runs, description=f"fold-over on {FOLD_FACTOR}",
+        folded = fold_over(screen, factor=FOLD_FACTOR, seed=SEED + 1)  # only the 16 new runs, in block 2
+        fold_ids = study.add_stage("fold-over", folded, description=f"fold-over on {FOLD_FACTOR}",
                                    reason="separate Oven:Dwell from Film:Airflow")
         for run in fold_ids:
             _record(study, rng, run)

@@ -64,7 +64,7 @@ def parse_header(header: str) -> tuple[str, str | None, bool]:
     """Name, units and whether the column holds achieved settings.
 
     ``"Oven (achieved) [°C]"``, ``"Oven (achieved)"`` (the run-sheet convention of
-    :mod:`levelwise.runsheet`), ``"Oven achieved"`` and ``"achieved Oven"`` are achieved settings.
+    :func:`levelwise.write_run_sheet`), ``"Oven achieved"`` and ``"achieved Oven"`` are achieved settings.
 
     >>> parse_header("Oven (achieved) [°C]")
     ('Oven', '°C', True)

@@ -41,8 +41,7 @@ import scipy.linalg
 from scipy import stats
 
 from ._errors import LevelwiseError, LevelwiseWarning, describe
-from .design import META_COLUMNS
-from .factors import Factor
+from .design import META_COLUMNS, Factor
 from .formula import ModelSpec, monomials, names_in_model, parse_model, term_name
 from .prediction import InteractivePlan, Predictor, encode
 
@@ -1298,7 +1297,7 @@ def fit(
             f"Got {describe(response)} instead."
         )
     if factors is not None:
-        from .factors import as_factors
+        from .design import as_factors
 
         factors = as_factors(factors)
         names = [f.name for f in factors]

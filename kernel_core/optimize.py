@@ -14,7 +14,7 @@ import numpy as np
 import pandas as pd
 
 from ._errors import LevelwiseError, describe
-from .constraints import parse_constraint
+from .design import parse_constraint
 
 GOAL_KINDS = ("maximize", "minimize", "target")
 

@@ -72,7 +72,7 @@ def refit(fit, exponents, data: pd.DataFrame | None = None):
     data : pandas.DataFrame, optional
         The original data. Without it, the settings are read back from the fit's linear columns.
     """
-    from .factors import Factor
+    from .design import Factor
     from .fit import fit as fit_model
 
     require_continuous(fit, "Refitting on a subset of terms")

@@ -39,7 +39,7 @@ import numpy as np
 import pandas as pd
 
 from ._errors import LevelwiseError, OutsideEditError, StudyFileError, describe
-from .factors import Factor, as_factors
+from .design import Factor, as_factors
 from .formula import parse_model
 
 #: The format this version of levelwise writes.
@@ -590,9 +590,12 @@ class Study:
                 )
             settings[f.name] = values
         block = self._int_column(table, "block", 1, n)
-        std_order = self._int_column(table, "std_order", None, n)
+        # A Design's table names these standard_order and role (levelwise.design); older tables std_order/point_type.
+        order_column = "standard_order" if "standard_order" in table else "std_order"
+        role_column = "role" if "role" in table else "point_type"
+        std_order = self._int_column(table, order_column, None, n)
         point_type = (
-            [_text(str(v), "point_type") for v in table["point_type"]] if "point_type" in table else [""] * n
+            [_text(str(v), role_column) for v in table[role_column]] if role_column in table else [""] * n
         )
         start = max(self._runs, default=0) + 1
         ids = list(range(start, start + n))

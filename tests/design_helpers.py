@@ -20,6 +20,6 @@ def brute_force_wlp(coded):
 def factorial_part(design):
     """Coded runs of the factorial points, in standard order."""
     table = design.table
-    keep = (table.point_type == "factorial").to_numpy()
-    order = np.argsort(table.std_order.to_numpy()[keep])
+    keep = (table.role == "corner").to_numpy()
+    order = np.argsort(table.standard_order.to_numpy()[keep])
     return design.coded.to_numpy()[keep][order]

@@ -35,7 +35,7 @@ def test_three_stages_with_the_planned_runs(study):
     counts = data["stage"].value_counts().to_dict()
     assert counts == {"screen": 20, "fold-over": 16, "surface": 18}  # 2^(6-2)+4 centre; 16 folded; CCD 8+6+4
     screen = data[data["stage"] == "screen"]
-    assert (screen["point_type"] == "center").sum() == 4
+    assert (screen["point_type"] == "centre").sum() == 4
     surface = study.planned()[data["stage"] == "surface"]
     for name in ("Catalyst", "Airflow", "Pretreat"):  # held at the centre in the response-surface stage
         assert surface[name].nunique() == 1

@@ -8,7 +8,7 @@ import pytest
 
 import levelwise as lw
 from levelwise import Factor, LevelwiseError
-from levelwise._conference import SHIPPED_ORDERS, conference_matrix, is_conference, paley
+from levelwise.design._conference import SHIPPED_ORDERS, conference_matrix, is_conference, paley
 
 
 # -- conference matrices -------------------------------------------------------------------------------------------
@@ -73,8 +73,8 @@ def test_definitive_screening_properties(k):
 def test_definitive_screening_extra_centre_runs_and_roles():
     d = lw.definitive_screening(6, extra_centre_runs=3, randomize=False)
     assert len(d) == 13 + 3
-    assert Counter(d.table["point_type"]) == {"fold_pair": 12, "centre": 4}
-    assert (d.coded[d.table["point_type"] == "centre"].to_numpy() == 0).all()
+    assert Counter(d.table["role"]) == {"fold_pair": 12, "centre": 4}
+    assert (d.coded[d.table["role"] == "centre"].to_numpy() == 0).all()
 
 
 def test_definitive_screening_with_two_level_categorical_factors():
@@ -123,3 +123,9 @@ def test_evaluate_reports_the_second_order_alias_structure():
     frac = lw.fractional_factorial(4, generators=["D=ABC"], randomize=False)
     pairs = lw.evaluate(frac, "A + B + C + D").second_order.confounded_pairs
     assert ("A:B", "C:D") in pairs
+
+
+def test_definitive_screening_roles_are_documented():
+    from levelwise.design import ROLES
+
+    assert set(lw.definitive_screening(5).table["role"]) == {"fold_pair", "centre"} <= set(ROLES)

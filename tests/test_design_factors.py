@@ -3,7 +3,7 @@
 import pytest
 
 from levelwise import Factor, LevelwiseError, full_factorial
-from levelwise.factors import as_factors, default_names
+from levelwise.design import as_factors, default_names
 
 
 def test_continuous_factor_unchanged():
@@ -26,7 +26,7 @@ def test_categorical_in_two_level_design():
     assert set(d.coded["Metal"]) == {-1.0, 1.0}
     # Centre runs with a categorical factor: that many at each of its levels (issue 14).
     d = full_factorial([Factor("Oven", 160, 200), Factor("Metal", levels=["steel", "brass"])], center_points=2)
-    centre = d.table[d.table["point_type"] == "center"]
+    centre = d.table[d.table["role"] == "centre"]
     assert sorted(centre["Metal"]) == ["brass", "brass", "steel", "steel"] and set(centre["Oven"]) == {180.0}
 
 

@@ -7,8 +7,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from levelwise import LevelwiseError, fold_over, fractional_factorial, full_factorial
-from levelwise.factors import default_names
+from levelwise import Design, LevelwiseError, fold_over, fractional_factorial, full_factorial
+from levelwise.design import default_names
 from tests.design_helpers import brute_force_wlp, factorial_part
 
 DATA = Path(__file__).parent / "data"
@@ -140,30 +140,110 @@ def test_randomisation_seeded_within_blocks():
     b = full_factorial(4, blocks=2, center_points=2, seed=11)
     c = full_factorial(4, blocks=2, center_points=2, seed=12)
     pd.testing.assert_frame_equal(a.table, b.table)
-    assert not a.table.std_order.equals(c.table.std_order)
+    assert not a.table.standard_order.equals(c.table.standard_order)
     assert a.table.block.is_monotonic_increasing  # blocks kept in sequence
-    assert sorted(a.table.std_order) == list(range(1, 19))
+    assert sorted(a.table.standard_order) == list(range(1, 19))
 
 
-def test_full_fold_over_res3_gives_res4():
-    d = fractional_factorial(7, runs=8, randomize=False)
+#: The textbook 2^(7-4) resolution III design D=AB, E=AC, F=BC, G=ABC (Box, Hunter & Hunter 2005, ch. 6; from
+#: memory). Folded over on every factor, the odd-length words of its defining relation drop out (common practice):
+#: the combined 16 runs keep exactly the seven 4-letter words, resolution IV, and the odd-length words (seven of
+#: length 3 and ABCDEFG) are confounded with the fold-over block. The words are recomputed by brute force below.
+TEXTBOOK_7_4 = ["D=AB", "E=AC", "F=BC", "G=ABC"]
+TEXTBOOK_7_4_FOLDED_WORDS = {"ABCG", "ABEF", "ACDF", "ADEG", "BCDE", "BDFG", "CEFG"}
+
+
+def _brute_force_words(coded, names):
+    """Words of the defining relation: products of factor columns constant over the runs (brute force)."""
+    out = {}
+    for r in range(1, len(names) + 1):
+        for combo in itertools.combinations(range(len(names)), r):
+            column = coded[:, list(combo)].prod(axis=1)
+            if np.all(column == column[0]):
+                out["".join(names[j] for j in combo)] = int(column[0])
+    return out
+
+
+def test_fold_over_returns_only_the_new_runs_as_the_next_stage():
+    d = fractional_factorial(7, generators=TEXTBOOK_7_4, seed=3)
+    before = d.table.copy()
+    new = fold_over(d, seed=4)
+    pd.testing.assert_frame_equal(d.table, before)  # the original is untouched
+    assert len(new) == 8
+    assert sorted(new.table.run) == list(range(9, 17))  # run ids continue after the original's
+    assert sorted(new.table.standard_order) == list(range(9, 17))
+    assert set(new.table.block) == {2} and set(new.table.role) == {"corner"}
+    # Each new run mirrors one original run (every sign reversed).
+    assert sorted(map(tuple, -d.coded.to_numpy())) == sorted(map(tuple, new.coded.to_numpy()))
+    # Its own seeded randomisation: the same seed gives the same order, another seed another order.
+    pd.testing.assert_frame_equal(fold_over(d, seed=4).table, new.table)
+    orders = {tuple(fold_over(d, seed=s).table.standard_order) for s in range(6)}
+    assert len(orders) > 1
+    # Not randomised: the mirrors in the original's standard order.
+    plain = fold_over(d, randomize=False)
+    np.testing.assert_array_equal(plain.coded.to_numpy(), -factorial_part(d))
+
+
+def test_combine_of_a_full_fold_over_gives_the_known_resolution_iv_design():
+    d = fractional_factorial(7, generators=TEXTBOOK_7_4, seed=3)
     assert d.resolution == 3
-    f = fold_over(d, randomize=False)
-    assert len(f) == 16 and f.resolution == 4  # full fold-over of resolution III gives IV (common practice)
-    assert brute_force_wlp(f.coded.to_numpy())[2] == 0
-    assert f.generators and all(len(g.split("=")[1]) == 3 for g in f.generators)
-    assert all(v == [] for key, v in f.aliases(2).items() if len(key) == 1)
+    both = d.combine(fold_over(d, seed=4))
+    pd.testing.assert_frame_equal(both.table.iloc[:8], d.table)  # old runs first, in their original order
+    assert both.table.run.tolist() == list(range(1, 17))
+    assert len(both) == 16 and both.resolution == 4
+    names = both.factor_names
+    assert set(_brute_force_words(both.coded.to_numpy(), names)) == TEXTBOOK_7_4_FOLDED_WORDS
+    assert {w.lstrip("-") for w in both.defining_relation} == TEXTBOOK_7_4_FOLDED_WORDS
+    assert both.word_length_pattern == (0, 7, 0, 0, 0)  # the seven 4-letter words
+    assert brute_force_wlp(both.coded.to_numpy())[2] == 0
+    # The original's odd-length words are now confounded with the fold-over block.
+    original = _brute_force_words(d.coded.to_numpy(), names)
+    odd = {w for w in original if len(w) % 2}
+    assert len(odd) == 8 and set(both.block_confounded[0].split(" = ")) == {w for w in odd if len(w) == 3}
+    assert all(v == [] for key, v in both.aliases(2).items() if len(key) == 1)  # main effects clear of 2fi
 
 
-def test_fold_as_block_and_single_factor():
+def test_fold_on_one_factor_and_centre_points():
     d = fractional_factorial(7, runs=8, randomize=False)
-    blocked = fold_over(d, as_block=True, randomize=False)
-    assert blocked.table.block.nunique() == 2
-    assert blocked.block_confounded  # the removed odd-length words are now confounded with the fold block
-    single = fold_over(d, factor="A", randomize=False)
+    single = d.combine(fold_over(d, factor="A", seed=1))
     assert single.aliases(2)["A"] == []  # folding on A frees A from two-factor interactions (common practice)
+    folded_a = fold_over(d, factor="A", randomize=False).coded.to_numpy()
+    np.testing.assert_array_equal(folded_a[:, 0], -factorial_part(d)[:, 0])  # only A's column reversed
+    np.testing.assert_array_equal(folded_a[:, 1:], factorial_part(d)[:, 1:])
+    with_centre = fold_over(d, center_points=2, seed=1)
+    assert len(with_centre) == 10 and (with_centre.table.role == "centre").sum() == 2
+    assert sorted(with_centre.table.run) == list(range(9, 19))
+    assert (with_centre.coded.to_numpy()[(with_centre.table.role == "centre").to_numpy()] == 0).all()
+    assert d.combine(with_centre).resolution == 4  # centre runs do not change the two-level structure
     with pytest.raises(LevelwiseError, match="'factor' parameter must name a factor"):
         fold_over(d, factor="Z")
+    with pytest.raises(LevelwiseError, match="corner runs"):
+        fold_over(Design(d.factors, np.zeros((2, 7)), ["centre", "centre"]))
+    with pytest.raises(LevelwiseError, match="must be a Design"):
+        fold_over(d.table)
+
+
+def test_fold_over_of_a_blocked_design_mirrors_its_blocks():
+    d = fractional_factorial(6, runs=16, blocks=2, seed=5)
+    new = fold_over(d, seed=6)
+    assert set(new.table.block) == {3, 4}  # blocks 1, 2 -> 3, 4
+    for b in (1, 2):
+        mirrored = -d.coded.to_numpy()[(d.table.block == b).to_numpy()]
+        got = new.coded.to_numpy()[(new.table.block == b + 2).to_numpy()]
+        assert sorted(map(tuple, mirrored)) == sorted(map(tuple, got))
+
+
+def test_combine_checks_its_input():
+    d = fractional_factorial(4, generators=["D=ABC"], seed=1)
+    with pytest.raises(LevelwiseError, match="repeats run id"):
+        d.combine(d)
+    with pytest.raises(LevelwiseError, match="same factors"):
+        d.combine(full_factorial(3, seed=1))
+    with pytest.raises(LevelwiseError, match="must be a Design"):
+        d.combine(d.table)
+    # A combination with runs that are neither corner nor centre runs has no two-level structure.
+    axial = Design(d.factors, 2 * np.eye(4), ["axial"] * 4, first_run=9)
+    assert d.combine(axial).resolution is None and not d.combine(axial).is_regular
 
 
 def test_default_names_in_large_fraction():
@@ -201,7 +281,7 @@ def test_blocks_reach_highest_orders():
 
 
 def test_search_is_bounded_and_keeps_a_valid_design():
-    from levelwise.fractional import minimum_aberration
+    from levelwise.design import minimum_aberration
 
     # A 2^(17-11) search cut short by a tiny node budget still returns a design, flagged incomplete; the
     # odd-weight incumbent has resolution IV (all words of even length: a counting argument, common practice).

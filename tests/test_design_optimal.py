@@ -79,10 +79,20 @@ def test_fixed_runs_augment_and_progress():
     calls = []
     d = optimal_design(2, "quadratic", runs=5, fixed_runs=base, seed=1, starts=4,
                        progress=lambda f, msg: calls.append(f))
-    assert len(d) == 9 and calls == [0.25, 0.5, 0.75, 1.0]
-    fixed = d.table[d.table.point_type == "fixed"]
-    assert sorted(map(tuple, fixed[["A", "B"]].to_numpy())) == sorted(map(tuple, base.table[["A", "B"]].to_numpy()))
-    assert (d.table.block[d.table.point_type == "optimal"] == 2).all()
+    assert calls == [0.25, 0.5, 0.75, 1.0]
+    # Only the new runs come back, as the next stage: block 2, run ids 5..9 after the four fixed runs.
+    assert len(d) == 5 and set(d.table.role) == {"optimal"}
+    assert (d.table.block == 2).all() and sorted(d.table.run) == [5, 6, 7, 8, 9]
+    assert d.metadata["fixed_runs"] == 4
+    both = base.combine(d)
+    assert both.table.run.tolist() == list(range(1, 10))
+    pd.testing.assert_frame_equal(both.table.iloc[:4], base.table)  # the fixed runs first, untouched
+    # The search optimised the nine runs together: its log det is that of the combined model matrix.
+    assert d.metadata["log_det"] == pytest.approx(np.log(_det(both, "quadratic")), rel=1e-9)
+    # A table of earlier runs: run ids continue after its 'run' column, the block after its 'block' column.
+    table = base.table.assign(run=[11, 12, 13, 14], block=3)
+    later = optimal_design(2, "quadratic", runs=5, fixed_runs=table, seed=1, starts=2)
+    assert sorted(later.table.run) == [15, 16, 17, 18, 19] and set(later.table.block) == {4}
     stopped = []
     optimal_design(2, "linear", runs=4, starts=10, progress=lambda f, m: stopped.append(f) or False)
     assert len(stopped) == 1  # returning False stops the search

@@ -8,8 +8,7 @@ import pandas as pd
 import pytest
 
 from levelwise import LevelwiseError, box_behnken, central_composite, parse_model, plackett_burman
-from levelwise.rsm_designs import BB_GROUPS
-from levelwise.screening import plackett_burman_matrix
+from levelwise.design import BB_GROUPS, plackett_burman_matrix
 
 DATA = Path(__file__).parent / "data"
 
@@ -41,7 +40,7 @@ def test_rotatable_alpha_table():
         assert d.metadata["cube_points"] == row.cube_points_F
         assert len(d) == row.runs_without_center_points
         assert d.metadata["alpha"] == pytest.approx(row.alpha_rotatable, abs=5e-7)
-        axial = d.coded.to_numpy()[(d.table.point_type == "axial").to_numpy()]
+        axial = d.coded.to_numpy()[(d.table.role == "axial").to_numpy()]
         assert len(axial) == row.axial_points
         assert np.abs(axial).max() == pytest.approx(row.alpha_rotatable, abs=5e-7)
         if p:

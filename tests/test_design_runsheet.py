@@ -21,7 +21,7 @@ FACTORS = [Factor("Oven", 160, 200, units="°C"), Factor("Metal", levels=["steel
 def test_sheet_columns_in_run_order():
     d = full_factorial(FACTORS, seed=2)
     sheet = d.to_run_sheet(responses=["Gloss", "Adhesion"])
-    assert list(sheet.columns) == ["run", "std_order", "block", "point_type", "Oven", "Metal",
+    assert list(sheet.columns) == ["run", "standard_order", "block", "role", "Oven", "Metal",
                                    "Oven (achieved)", "Metal (achieved)", "Gloss", "Adhesion"]
     assert sheet.run.tolist() == [1, 2, 3, 4]
     pd.testing.assert_frame_equal(sheet[["Oven", "Metal"]], d.table[["Oven", "Metal"]])

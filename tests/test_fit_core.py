@@ -387,8 +387,8 @@ def test_traces_of_all_factors_equal_single_traces():
 
 
 def test_fit_reads_the_achieved_columns_of_a_run_sheet():
-    # levelwise.runsheet writes "<factor> (achieved)" columns, blank = as planned: the convention fit() reads.
-    from levelwise.runsheet import run_sheet
+    # levelwise.design.run_sheet writes "<factor> (achieved)" columns, blank = as planned: the convention fit() reads.
+    from levelwise.design import run_sheet
 
     design = full_factorial(FACTORS3, center_points=2, seed=4)
     sheet = run_sheet(design, responses=["y"])

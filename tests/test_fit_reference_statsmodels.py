@@ -118,9 +118,9 @@ def test_lack_of_fit_by_hand():
     sse = float(np.sum(ours.residuals**2))
     df_lof_total = groups.ngroups - 4
     # Centre points exist in a two-level design, so 1 df of the lack of fit is the curvature test.
-    n_c = int((data["point_type"] == "center").sum())
-    y_c = data.loc[data["point_type"] == "center", "y"].mean()
-    y_f = data.loc[data["point_type"] != "center", "y"].mean()
+    n_c = int((data["role"] == "centre").sum())
+    y_c = data.loc[data["role"] == "centre", "y"].mean()
+    y_f = data.loc[data["role"] != "centre", "y"].mean()
     n_f = len(data) - n_c
     ss_curv = n_f * n_c * (y_f - y_c) ** 2 / (n_f + n_c)  # curvature SS for a 2-level design with centre points
     ss_lof = sse - ss_pe - ss_curv

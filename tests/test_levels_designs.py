@@ -3,6 +3,7 @@
 import itertools
 from collections import Counter
 
+import numpy as np
 import pytest
 
 import levelwise as lw
@@ -66,7 +67,7 @@ def test_mixed_level_full_factorial_every_combination_once_per_replicate(replica
     counts = _combinations(d.table, names)
     assert set(counts) == wanted and set(counts.values()) == {replicates}
     # Within each standard-order replicate every combination appears exactly once.
-    std = d.table.set_index("std_order").sort_index()
+    std = d.table.set_index("standard_order").sort_index()
     for r in range(replicates):
         part = std.loc[r * 72 + 1:(r + 1) * 72]
         assert set(_combinations(part, names).values()) == {1} and len(part) == 72
@@ -77,9 +78,9 @@ def test_general_factorial_seeded_randomisation():
     b = lw.full_factorial(MIXED, seed=11)
     c = lw.full_factorial(MIXED, seed=12)
     assert a.table.equals(b.table)
-    assert not a.table["std_order"].equals(c.table["std_order"])
+    assert not a.table["standard_order"].equals(c.table["standard_order"])
     plain = lw.full_factorial(MIXED, randomize=False)
-    assert plain.table["std_order"].tolist() == list(range(1, 73))
+    assert plain.table["standard_order"].tolist() == list(range(1, 73))
     # Standard order: first factor changes fastest (as the two-level builder).
     assert plain.table["Supplier"].tolist()[:4] == ["a", "b", "c", "a"]
 
@@ -110,7 +111,7 @@ def test_three_level_factorial_in_three_blocks_confounds_an_interaction_componen
 def test_general_factorial_centre_runs_at_each_level_of_categorical_factors():
     factors = [Factor("Oven", 160, 200), Factor("Time", 10, 20), Factor("Supplier", levels=["a", "b", "c"])]
     d = lw.full_factorial(factors, center_points=2, seed=3)
-    centre = d.table[d.table["point_type"] == "center"]
+    centre = d.table[d.table["role"] == "centre"]
     assert len(d) == 4 * 3 + 2 * 3
     assert Counter(centre["Supplier"]) == {"a": 2, "b": 2, "c": 2}
     assert set(centre["Oven"]) == {180.0} and set(centre["Time"]) == {15.0}
@@ -141,3 +142,13 @@ def test_mixed_level_blocks_confound_only_an_interaction_of_the_two_level_factor
             assert len(set(Counter(part[name]).values())) == 1 and part[name].nunique() == (3 if name == "S" else 2)
         # A x B is: the block holds A = B or A != B only (AB interaction confounded; common practice).
         assert (part["A"] == part["B"]).nunique() == 1
+
+
+def test_general_factorial_roles_are_documented():
+    from levelwise.design import ROLES
+
+    d = lw.full_factorial([Factor("T", 0, 1, n_levels=3), Factor("S", levels=["a", "b"]), Factor("P", 0, 1)],
+                          center_points=1)
+    assert set(d.table["role"]) == {"corner", "grid", "centre"} and set(d.table["role"]) <= set(ROLES)
+    corner = d.coded[d.table["role"] == "corner"].to_numpy()
+    assert np.all(np.abs(corner) == 1.0)

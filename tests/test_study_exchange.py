@@ -326,14 +326,14 @@ def test_matplotlib_and_jsonschema_are_imported_only_when_used():
 
 
 def test_a_filled_design_run_sheet_imports_into_the_study(tmp_path):
-    from levelwise.runsheet import run_sheet as design_run_sheet
+    from levelwise.design import run_sheet as design_run_sheet
 
     design = full_factorial(FACTORS, center_points=2, randomize=False)
     study = Study(FACTORS)
     study.add_stage("screen", design)
     study.add_response("Impact", units="J")
     sheet = design_run_sheet(design, responses=["Impact"])
-    assert "Oven (achieved)" in sheet.columns  # the run-sheet convention of levelwise.runsheet
+    assert "Oven (achieved)" in sheet.columns  # the run-sheet convention of levelwise.design.run_sheet
     sheet.loc[1, "Oven (achieved)"] = 212.5  # invented
     sheet["Impact"] = [7.0, 9.5, 8.25, 10.0, 9.0, 9.1]  # invented
     path = tmp_path / "filled.csv"

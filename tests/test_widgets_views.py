@@ -17,7 +17,7 @@ import pytest
 import traitlets
 from widget_support import browser_event, browser_update, install_recording_comm, message_bytes
 
-from levelwise import LevelwiseError, central_composite, demo, fit, optimize
+from levelwise import LevelwiseError, central_composite, demo, fit, fold_over, optimize
 from levelwise.surface import slice_grid
 from levelwise.widgets import (
     DesignBuilder,
@@ -206,7 +206,7 @@ def test_an_exclusion_from_the_inspector_refits_every_view(shared, views):
 
 def test_an_exclusion_the_kernel_refuses_changes_nothing():
     data = demo.demo_data()
-    centre_runs = data.loc[data["point_type"] == "center", "run"].tolist()
+    centre_runs = data.loc[data["role"] == "centre", "run"].tolist()
     data = data[~data["run"].isin(centre_runs[1:])]  # one centre run left: it alone separates Oven^2
     shared = SharedModel(demo.FACTORS, data, "Impact", "Oven + Dwell + I(Oven**2)")
     before = shared.fit
@@ -373,6 +373,27 @@ def test_design_builder_previews_kernel_designs_and_creates_a_study(shared, view
     assert shared.data["Gloss"].isna().all() and len(shared.data) == len(reference)
     assert shared.fit is None and shared.fits == {}
     assert [s.description for s in views["sliders"].sliders.values()] == [f.label for f in demo.FACTORS]
+    for view in views.values():
+        assert "Internal error" not in view.status.value
+
+
+def test_design_builder_fold_over_and_augmentation_add_runs_after_the_study(shared, views):
+    builder = views["builder"]
+    builder.options["seed"].value = 5
+    builder.family.value = "fold_over"
+    base = shared.design  # the demo's 2^4 full factorial with 3 centre points, runs 1..19
+    reference = base.combine(fold_over(base, seed=5))  # levelwise called directly
+    pd.testing.assert_frame_equal(builder.design.table, reference.table)
+    pd.testing.assert_frame_equal(builder.design.table.iloc[:len(base)], base.table)  # current runs first, as run
+    new = builder.design.table.iloc[len(base):]
+    assert new.run.tolist() == list(range(20, 36)) and set(new.block) == {2}
+    builder.family.value = "optimal"
+    builder.options["augment"].value = True
+    builder.options["runs"].value = 4
+    builder.options["starts"].value = 2
+    builder.search()
+    assert len(builder.design) == 4 and sorted(builder.design.table.run) == [20, 21, 22, 23]
+    assert builder.design.metadata["fixed_runs"] == len(shared.data)
     for view in views.values():
         assert "Internal error" not in view.status.value
 

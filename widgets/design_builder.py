@@ -60,7 +60,7 @@ FAMILY_OPTIONS = {
     "ccd": ("alpha", "ccd_kind", "center_points"),
     "box_behnken": ("center_points",),
     "optimal": ("model", "runs", "criterion", "constraints", "starts", "augment"),
-    "fold_over": ("fold_factor", "as_block"),
+    "fold_over": ("fold_factor", "fold_center_points"),
 }
 
 
@@ -103,7 +103,7 @@ class DesignBuilder(View):
     options : dict of str -> widget
         ``center_points``, ``default_center_points``, ``replicates``, ``blocks``, ``runs``, ``generators``,
         ``resolution``, ``alpha``, ``ccd_kind``, ``model``, ``criterion``, ``constraints``, ``starts``,
-        ``augment``, ``fold_factor``, ``as_block``, ``seed``, ``randomize`` (each ``lw-design-option``).
+        ``augment``, ``fold_factor``, ``fold_center_points``, ``seed``, ``randomize`` (each ``lw-design-option``).
     eval_model : ipywidgets.Text
         Model to evaluate the design for (``lw-eval-model``).
     search_button : ipywidgets.Button
@@ -158,7 +158,8 @@ class DesignBuilder(View):
             "starts": ipw.BoundedIntText(value=10, min=1, max=200, description="Random starts", **wide),
             "augment": ipw.Checkbox(value=False, description="keep the current study's runs and add to them"),
             "fold_factor": ipw.Dropdown(options=[("every factor", "")], value="", description="Fold on", **wide),
-            "as_block": ipw.Checkbox(value=True, description="run the fold as a separate block"),
+            "fold_center_points": ipw.BoundedIntText(value=0, min=0, max=50, description="Centre points in the fold",
+                                                     **wide),
             "seed": ipw.IntText(value=1, description="Seed (run order)", **wide),
             "randomize": ipw.Checkbox(value=True, description="randomise the run order"),
         }
@@ -310,8 +311,11 @@ class DesignBuilder(View):
         if family == "fold_over":
             if self.shared.design is None:
                 raise LevelwiseError("The current study has no design to fold over: create one first.")
-            return fold_over(self.shared.design, o["fold_factor"] or None, as_block=o["as_block"],
-                             randomize=randomize, seed=seed)
+            # The new runs form the next block, after the current runs; the preview shows both together, with the
+            # structure of the combined design.
+            base = self.shared.design
+            return base.combine(fold_over(base, o["fold_factor"] or None, center_points=o["fold_center_points"],
+                                          randomize=randomize, seed=seed))
         factors = self.factors()
         centre = None if (family in ("ccd", "box_behnken") and o["default_center_points"]) else o["center_points"]
         if family == "full":
@@ -345,8 +349,9 @@ class DesignBuilder(View):
             return box_behnken(factors, center_points=centre, randomize=randomize, seed=seed)
         constraints = [line.strip() for line in o["constraints"].splitlines() if line.strip()] or None
         fixed = None
-        if o["augment"]:
-            fixed = self.shared.data[[f.name for f in factors]]
+        if o["augment"]:  # the new runs only, numbered after the current ones
+            data = self.shared.data
+            fixed = data[(["run"] if "run" in data.columns else []) + [f.name for f in factors]]
         return optimal_design(
             factors, o["model"], o["runs"], criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
             starts=o["starts"], seed=seed, progress=progress, randomize=randomize,

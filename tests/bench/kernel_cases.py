@@ -409,24 +409,30 @@ def case_fit(cfg: Config) -> list[dict]:
 
 
 # ----- case 5: design searches (absolute time) ---------------------------------------------------
-def _clear_caches(module) -> int:
-    """Clear functools caches in *module*, so every repeat searches from scratch; how many there were."""
+def _clear_caches(modules) -> int:
+    """Clear functools caches in *modules*, so every repeat searches from scratch; how many there were."""
     cleared = 0
-    for value in vars(module).values():
-        clear = getattr(value, "cache_clear", None)
-        if callable(clear):
-            clear()
-            cleared += 1
+    for module in modules:
+        for value in vars(module).values():
+            clear = getattr(value, "cache_clear", None)
+            if callable(clear):
+                clear()
+                cleared += 1
     return cleared
 
 
 def case_designs(cfg: Config) -> list[dict]:
     import importlib
+    import pkgutil
 
     import levelwise
 
-    design_module = importlib.import_module(levelwise.fractional_factorial.__module__) \
-        if hasattr(levelwise, "fractional_factorial") else None
+    design_module = None
+    if hasattr(levelwise, "fractional_factorial"):
+        package = importlib.import_module("levelwise.design")
+        # Every private module of levelwise.design (the search lives beside the fraction builder).
+        design_module = [package] + [importlib.import_module(f"levelwise.design.{info.name}")
+                                     for info in pkgutil.iter_modules(package.__path__)]
     rows = []
     for k, runs in ((15, 16), (11, 64)):
         name = f"5. minimum-aberration search, k = {k} at {runs} runs"

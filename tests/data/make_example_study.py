@@ -25,7 +25,7 @@ def build() -> Study:
     rng = np.random.default_rng(demo.SEED + 7)  # invented gloss values
     for run in study.run_ids:
         study.record(run, "Gloss", float(np.round(84 + rng.normal(0, 1.5), 1)))
-    centre = pd.DataFrame([{f.name: f.center for f in demo.FACTORS}] * 3).assign(point_type="center", block=2)
+    centre = pd.DataFrame([{f.name: f.center for f in demo.FACTORS}] * 3).assign(role="centre", block=2)
     extra = study.add_stage("centre check", centre, description="three more centre points, next day")
     for run, value in zip(extra, (9.1, 8.7, 9.3)):  # invented
         study.record(run, demo.RESPONSE, value)

@@ -26,16 +26,16 @@ import itertools
 
 import numpy as np
 
-from ._errors import LevelwiseError
-from .design import Design, _check_count
-from .factors import as_factors
+from .._errors import LevelwiseError
+from ._design import Design, _check_count
+from ._factors import as_factors
 
 #: Run count above which a full factorial is refused (a typo such as replicates=10**6 must not hang the kernel).
 MAX_RUNS = 1_000_000
 
-CORNER_ROLE = "factorial"  # the two-level corners; becomes "corner" with the issue 11 names
+CORNER_ROLE = "corner"  # every continuous factor at low or high, every categorical factor two-level
 GRID_ROLE = "grid"  # a general factorial run that is not a two-level corner
-CENTRE_ROLE = "center"  # becomes "centre" with the issue 11 names
+CENTRE_ROLE = "centre"
 
 
 def level_counts(factors) -> list[int]:
@@ -224,7 +224,7 @@ def general_factorial(factors, center_points=0, replicates=1, blocks=1, randomiz
     std = np.concatenate(std_parts)
     order = np.argsort(block, kind="stable")
     return Design(factors, coded[order], roles[order], block[order], randomize=randomize, seed=seed,
-                  std_order=std[order], kind="general full factorial", metadata=meta)
+                  standard_order=std[order], kind="general full factorial", metadata=meta)
 
 
 __all__ = ["general_factorial", "needs_general"]

@@ -10,10 +10,9 @@ import pandas as pd
 import scipy.linalg
 from scipy import stats
 
-from ._errors import LevelwiseError, describe
-from .design import Design
-from .formula import monomials, parse_model, term_name
-from .optimal import moment_matrix, sample_region
+from .._errors import LevelwiseError, describe
+from ._design import Design
+from ._region import moment_matrix, sample_region
 
 
 @dataclass(frozen=True, eq=False)
@@ -113,7 +112,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
     Examples
     --------
     >>> from levelwise import full_factorial
-    >>> ev = evaluate(full_factorial(3, randomize=False), "linear")
+    >>> ev = evaluate(full_factorial(3, randomize=False), "A + B + C")
     >>> ev.rank, ev.df_error, round(float(ev.vif["A"]), 9)
     (4, 4, 1.0)
     """
@@ -127,6 +126,8 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
 
     if has_many_levels(design.factors):  # categorical factors with more than 2 levels (issue 14)
         return evaluate_levels(design, model, alias_terms, delta, alpha)
+    from ..formula import monomials, parse_model, term_name
+
     names = design.factor_names
     spec = parse_model(model, names)
     coded = design.coded.to_numpy(dtype=float)

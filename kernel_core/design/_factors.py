@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 
 _LETTERS = "ABCDEFGHJKLMNOPQRSTUVWXYZ"  # I is skipped: it reads as 1 and as the identity
 

@@ -12,7 +12,7 @@ import re
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 
 _QUOTED = re.compile(r"`([^`]*)`")
 _RELATION = re.compile(r"<=|>=|<|>")

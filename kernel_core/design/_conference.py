@@ -23,7 +23,7 @@ from functools import cache
 
 import numpy as np
 
-from ._errors import LevelwiseError
+from .._errors import LevelwiseError
 
 #: Orders built here: Paley for q + 1 with q a prime power, doubling for 16, and the trivial order 2.
 SHIPPED_ORDERS = (2, 4, 6, 8, 10, 12, 14, 16, 18, 20, 24, 26, 28, 30, 32)

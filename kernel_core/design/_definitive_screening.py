@@ -27,10 +27,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from .._errors import LevelwiseError, describe
 from ._conference import SHIPPED_ORDERS, conference_matrix
-from ._errors import LevelwiseError, describe
-from .design import Design, _check_count
-from .factors import as_factors
+from ._design import Design, _check_count
+from ._factors import as_factors
 
 FOLD_ROLE = "fold_pair"
 CENTRE_ROLE = "centre"

@@ -11,9 +11,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
-from .design import Design, _check_count
-from .factors import as_factors
+from .._errors import LevelwiseError, describe
+from ._design import Design, _check_count
+from ._factors import as_factors
 
 #: Generator rows (first row of the cyclic part), "+" high and "-" low.
 GENERATORS = {
@@ -81,8 +81,8 @@ def plackett_burman(factors, runs=None, center_points=0, randomize=True, seed=No
     if center_points and any(f.is_categorical for f in factors):
         raise LevelwiseError("The 'center_points' parameter must be 0 when a factor is categorical.")
     coded = np.vstack([matrix[:, :k], np.zeros((center_points, k))])
-    ptype = ["factorial"] * runs + ["center"] * center_points
-    return Design(factors, coded, ptype, randomize=randomize, seed=seed, kind="Plackett-Burman",
+    role = ["corner"] * runs + ["centre"] * center_points
+    return Design(factors, coded, role, randomize=randomize, seed=seed, kind="Plackett-Burman",
                   metadata={"generator_row": GENERATORS[runs]})
 
 

@@ -35,10 +35,10 @@ import pandas as pd
 import scipy.linalg
 from scipy import stats
 
-from ._errors import LevelwiseError, describe
-from .design import Design, _check_count, _check_seed
-from .factors import as_factors
-from .formula import parse_model, term_name
+from .._errors import LevelwiseError, describe
+from ..formula import parse_model, term_name
+from ._design import Design, _check_count, _check_seed
+from ._factors import as_factors
 
 
 def _contrast(levels: int) -> np.ndarray:
@@ -94,7 +94,7 @@ def model_columns(spec, factors) -> ModelColumns:
 
     A preset model leaves out the powers of categorical factors; a formula that asks for one is refused.
     """
-    from .formula import PRESETS
+    from ..formula import PRESETS
 
     levels = tuple(len(f.levels) if f.is_categorical else 0 for f in factors)
     names_f = [f.name for f in factors]
@@ -156,7 +156,8 @@ def coordinate_exchange(factors, model, runs, criterion="D", constraints=None, f
     Parameters and result as :func:`levelwise.optimal_design`; ``metadata["d_efficiency"]`` is
     100 det(X'X)^(1/p) / n over the model columns (contrast columns included).
     """
-    from .optimal import _fixed_coded, _interval, check_region, parse_constraints, sample_region
+    from ._optimal import _fixed_coded, _interval
+    from ._region import check_region, parse_constraints, sample_region
 
     factors = as_factors(factors)
     runs = _check_count(runs, "runs", 1)
@@ -170,7 +171,7 @@ def coordinate_exchange(factors, model, runs, criterion="D", constraints=None, f
     spec = parse_model(model, names)
     cols = model_columns(spec, factors)
     p, k = len(cols.names), len(factors)
-    fixed = _fixed_coded(fixed_runs, factors)
+    fixed, last_run, last_block = _fixed_coded(fixed_runs, factors)
     n = runs + len(fixed)
     if n < p:
         raise LevelwiseError(
@@ -271,10 +272,11 @@ def coordinate_exchange(factors, model, runs, criterion="D", constraints=None, f
         "average_prediction_variance": apv,
         "log_det": logdet,
         "starts_run": start + 1,
+        "fixed_runs": n_fixed,
     }
-    roles = ["fixed"] * n_fixed + ["optimal"] * runs
-    block = [1] * n_fixed + [2 if n_fixed else 1] * runs
-    design = Design(factors, points, roles, block, randomize=randomize, seed=seed, kind=f"{criterion}-optimal",
+    # Only the new runs, as the next stage (as levelwise.optimal_design does).
+    design = Design(factors, points[n_fixed:], ["optimal"] * runs, [last_block + 1 if n_fixed else 1] * runs,
+                    randomize=randomize, seed=seed, first_run=last_run + 1, kind=f"{criterion}-optimal",
                     metadata=meta)
     design._region = (G, h)
     return design
@@ -287,7 +289,7 @@ def evaluate_levels(design, model, alias_terms=None, delta: float = 2.0, alpha: 
     with the prediction variance over every level of each categorical factor (5 levels per continuous factor,
     up to 15,625 points; else 4096 seeded random points) and the exact moment matrix for its mean.
     """
-    from .evaluation import DesignEvaluation, _second_order
+    from ._evaluation import DesignEvaluation, _second_order
 
     if not (isinstance(alpha, float | int) and 0 < alpha < 1):
         raise LevelwiseError(f"The 'alpha' parameter must be in (0, 1). Got {describe(alpha)} instead.")
@@ -322,7 +324,7 @@ def evaluate_levels(design, model, alias_terms=None, delta: float = 2.0, alpha: 
         left = list(parse_model(alias_terms, names).exponents)
     left = [e for e in left if e.any() and tuple(e) not in in_model]
     if left:
-        from .formula import ModelSpec
+        from ..formula import ModelSpec
 
         left_cols = model_columns(ModelSpec("alias", tuple(names), np.array(left, dtype=int),
                                             tuple(term_name(e, names) for e in left)), factors)

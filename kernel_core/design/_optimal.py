@@ -20,119 +20,30 @@ import math
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
-from .constraints import parse_constraint
-from .design import Design, _check_count, _check_seed
-from .factors import as_factors
-from .formula import parse_model
+from .._errors import LevelwiseError, describe
+from ._design import Design, _check_count, _check_seed
+from ._factors import as_factors
+from ._region import check_region, moment_matrix, parse_constraints, sample_region
 
 #: Passes over the runs per start, at most (keeps every search bounded).
 MAX_PASSES = 40
 
 
-# -- constraints -----------------------------------------------------------------------------------------------
-def parse_constraints(constraints, factors):
-    """Linear constraints in natural units -> (G, h) with G x <= h in coded units.
-
-    Parameters
-    ----------
-    constraints : str or list of str
-        Each ``"<linear expression> <= <linear expression>"`` (or ``>=``), factor names as in formulas
-        (backticks for names that are not identifiers).
-    factors : tuple of Factor
-
-    Returns
-    -------
-    G : (c, k) array, h : (c,) array
-    """
-    names = [f.name for f in factors]
-    k = len(factors)
-    if constraints is None:
-        return np.zeros((0, k)), np.zeros(0)
-    if isinstance(constraints, str):
-        constraints = [constraints]
-    rows, rhs = [], []
-    center = np.array([0.0 if f.is_categorical else f.center for f in factors])
-    half = np.array([1.0 if f.is_categorical else f.half_range for f in factors])
-    for text in constraints:
-        a, b = parse_constraint(text, names)  # a . x <= b, natural units
-        named = [f.name for f, coef in zip(factors, a) if coef and f.is_categorical]
-        if named:
-            raise LevelwiseError(f"The constraint {text!r} names categorical factor(s) {named}; constraints must "
-                                 "use continuous factors only.")
-        # natural x = center + half * coded
-        rows.append(a * half)
-        rhs.append(b - a @ center)
-    return np.array(rows), np.array(rhs)
-
-
-def check_region(G, h, constraints=None):
-    """Raise a LevelwiseError when {x in [-1, 1]^k : G x <= h} is empty (or has no interior)."""
-    if not len(G):
-        return
-    from scipy.optimize import linprog
-
-    k = G.shape[1]
-    # Maximise the slack t in G x + t*|g| <= h: t > 0 means an interior point exists.
-    norms = np.linalg.norm(G, axis=1)
-    c = np.zeros(k + 1)
-    c[-1] = -1.0
-    res = linprog(c, A_ub=np.column_stack([G, norms]), b_ub=h, bounds=[(-1, 1)] * k + [(None, 1)], method="highs")
-    if res.status != 0 or -res.fun <= 1e-9:
-        raise LevelwiseError(
-            f"The 'constraints' leave an empty region (no setting inside the factor ranges satisfies them all). "
-            f"Got {constraints!r}."
-        )
-
-
-def sample_region(G, h, k, count, rng):
-    """*count* points uniform over {x in [-1, 1]^k : G x <= h} (rejection, then LP vertices as a fallback)."""
-    out = []
-    have = 0
-    for _ in range(60):
-        batch = rng.uniform(-1, 1, size=(max(256, 4 * count), k))
-        if len(G):
-            batch = batch[np.all(batch @ G.T <= h + 1e-12, axis=1)]
-        out.append(batch)
-        have += len(batch)
-        if have >= count:
-            return np.vstack(out)[:count]
-    # A very small region: convex combinations of vertices found by LPs in random directions.
-    from scipy.optimize import linprog
-
-    vertices = []
-    for _ in range(4 * k + 4):
-        res = linprog(rng.normal(size=k), A_ub=G, b_ub=h, bounds=[(-1, 1)] * k, method="highs")
-        if res.status == 0:
-            vertices.append(res.x)
-    vertices = np.array(vertices)
-    weights = rng.dirichlet(np.ones(len(vertices)), size=count)
-    return weights @ vertices
-
-
-def moment_matrix(exponents, G=None, h=None, rng=None, discrete=None):
-    """W = average of f(x) f(x)' over the region: exact over the cube, Monte Carlo (20,000 points) when
-    constrained. Columns flagged in *discrete* (two-level categorical factors) take -1 and +1 only."""
-    p, k = exponents.shape
-    discrete = np.zeros(k, dtype=bool) if discrete is None else np.asarray(discrete, dtype=bool)
-    if G is None or not len(G):
-        total = exponents[:, None, :] + exponents[None, :, :]
-        # E[x^a] for x uniform on [-1, 1]: 0 for odd a, 1/(a+1) for even a; for x = +-1 with equal weight:
-        # 0 for odd a, 1 for even a.
-        moments = np.where(total % 2 == 0, np.where(discrete, 1.0, 1.0 / (total + 1.0)), 0.0)
-        return moments.prod(axis=2)
-    from .formula import monomials
-
-    sample = sample_region(G, h, k, 20000, rng or np.random.default_rng(0))
-    sample[:, discrete] = np.where(sample[:, discrete] < 0, -1.0, 1.0)
-    f = monomials(sample, exponents)
-    return f.T @ f / len(f)
-
-
 # -- coordinate exchange ----------------------------------------------------------------------------------------
+def _last_of(table, column, default):
+    """Largest whole number in *column* of the fixed runs (*default* when the column is absent or not whole)."""
+    if column not in table.columns or not len(table):
+        return default
+    values = pd.to_numeric(table[column], errors="coerce")
+    if values.isna().any() or (values % 1 != 0).any():
+        return default
+    return int(values.max())
+
+
 def _fixed_coded(fixed_runs, factors):
+    """Coded settings of the fixed runs, with their last run id and last block (run ids continue after them)."""
     if fixed_runs is None:
-        return np.zeros((0, len(factors)))
+        return np.zeros((0, len(factors))), 0, 0
     if isinstance(fixed_runs, Design):
         fixed_runs = fixed_runs.table
     if not isinstance(fixed_runs, pd.DataFrame):
@@ -156,7 +67,7 @@ def _fixed_coded(fixed_runs, factors):
                 f"{describe(fixed_runs[f.name].iloc[row])} instead."
             )
         cols.append(f.to_coded(values.to_numpy(dtype=float)))
-    return np.column_stack(cols)
+    return np.column_stack(cols), _last_of(fixed_runs, "run", len(fixed_runs)), _last_of(fixed_runs, "block", 1)
 
 
 def _interval(G, h, point, j):
@@ -182,15 +93,18 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         Continuous factors and categorical factors (never in a squared term). With a categorical factor of more
         than 2 levels the search is ``levelwise._categorical_design.coordinate_exchange`` (over its levels).
     model : str
-        Wilkinson formula or preset ``"linear"``, ``"interactions"``, ``"quadratic"``.
+        Wilkinson formula or a model preset (see :func:`levelwise.parse_model`).
     runs : int
-        Number of new runs to choose (in addition to *fixed_runs*).
+        Number of new runs to choose (besides *fixed_runs*).
     criterion : {"D", "I"}, default "D"
         D: maximise det(X'X). I: minimise the average relative prediction variance over the region.
     constraints : str or list of str, optional
         Linear inequalities in natural units, e.g. ``["A + B <= 1.5", "A >= 0.2"]``.
     fixed_runs : Design or DataFrame, optional
-        Runs already made (natural units, one column per factor); they are kept and the new runs augment them.
+        Runs already made (natural units, one column per factor): the new runs are chosen to augment them, and
+        only the new runs are returned, as the next stage. Their run ids continue after the fixed runs' (the
+        ``run`` column when there is one, else their count) and they form the block after the fixed runs' last.
+        ``fixed.combine(new)`` gives both together when *fixed_runs* is a Design.
     starts : int, default 10
         Random starts; the best design is kept.
     seed : int, optional
@@ -199,13 +113,15 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         Called as ``progress(fraction_done, message)`` after each start; if it returns ``False`` the search
         stops and the best design so far is returned.
     randomize : bool, default True
-        Randomise the run order (within blocks: fixed runs are block 1, new runs block 2).
+        Randomise the order of the new runs.
 
     Returns
     -------
     Design
-        ``metadata`` holds ``d_efficiency`` (100 det(X'X)^(1/p) / n, percent), ``average_prediction_variance``
-        (mean of x'(X'X)^-1 x over the region, in units of sigma^2), ``log_det``, ``criterion`` and ``starts_run``.
+        The new runs (role ``"optimal"``). ``metadata`` holds ``d_efficiency`` (100 det(X'X)^(1/p) / n, percent),
+        ``average_prediction_variance`` (mean of x'(X'X)^-1 x over the region, in units of sigma^2), ``log_det``,
+        ``criterion``, ``starts_run`` and ``fixed_runs``; with fixed runs the first three describe the fixed and
+        new runs together (n of them), the design the search optimised.
 
     Raises
     ------
@@ -214,7 +130,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
 
     Examples
     --------
-    >>> d = optimal_design(2, "linear", runs=4, seed=1, randomize=False)
+    >>> d = optimal_design(2, "A + B", runs=4, seed=1, randomize=False)
     >>> round(d.metadata["d_efficiency"], 6)
     100.0
     """
@@ -232,6 +148,8 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
     if progress is not None and not callable(progress):
         raise LevelwiseError(f"The 'progress' parameter must be a callable or None. Got {describe(progress)}.")
+    from ..formula import parse_model
+
     names = [f.name for f in factors]
     spec = parse_model(model, names)
     E = spec.exponents
@@ -242,7 +160,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
             f"The model {model!r} raises categorical factor(s) {squared} to a power; a two-level categorical "
             "factor has no curvature. Use a model without those terms."
         )
-    fixed = _fixed_coded(fixed_runs, factors)
+    fixed, last_run, last_block = _fixed_coded(fixed_runs, factors)
     n = runs + len(fixed)
     if n < p:
         raise LevelwiseError(
@@ -348,8 +266,6 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
             "Use more runs, a simpler model or a larger region."
         )
     d_eff = 100.0 * math.exp(logdet / p) / n
-    ptype = ["fixed"] * n_fixed + ["optimal"] * runs
-    block = [1] * n_fixed + [2 if n_fixed else 1] * runs
     meta = {
         "criterion": criterion,
         "model": spec.formula,
@@ -359,11 +275,13 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         "average_prediction_variance": apv,
         "log_det": logdet,
         "starts_run": start + 1,
+        "fixed_runs": n_fixed,
     }
-    design = Design(factors, points, ptype, block, randomize=randomize, seed=seed, kind=f"{criterion}-optimal",
+    design = Design(factors, points[n_fixed:], ["optimal"] * runs, [last_block + 1 if n_fixed else 1] * runs,
+                    randomize=randomize, seed=seed, first_run=last_run + 1, kind=f"{criterion}-optimal",
                     metadata=meta)
     design._region = (G, h)
     return design
 
 
-__all__ = ["optimal_design", "parse_constraints"]
+__all__ = ["optimal_design"]

@@ -155,6 +155,19 @@ class TwoLevelStructure:
         return sorted(out, key=lambda t: (len(t.split(" = ")[0]), t))
 
 
+def block_contrasts(blocks):
+    """Block labels as -1/+1 contrast columns (n x b) when there are 2^b >= 2 blocks, else None.
+
+    Label i (in sorted order) gets the bits of i: column j is -1 where bit j of i is set.
+    """
+    blocks = np.asarray(blocks)
+    labels = np.unique(blocks)
+    if len(labels) < 2 or len(labels) & (len(labels) - 1):
+        return None
+    index = np.searchsorted(labels, blocks)
+    return np.column_stack([np.where(index >> j & 1, -1.0, 1.0) for j in range(len(labels).bit_length() - 1)])
+
+
 def structure_from_runs(coded: np.ndarray, names, block_columns=None, generators=None):
     """The regular structure of two-level runs (entries -1/+1), or None when they are not a regular fraction.
 

@@ -8,9 +8,10 @@ import numbers
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
-from .design import Design, _check_count, basic_runs
-from .factors import as_factors
+from .._errors import LevelwiseError, describe
+from ._design import Design, _check_count
+from ._factorial import basic_runs
+from ._factors import as_factors
 
 
 def _continuous(factors, what):
@@ -90,7 +91,7 @@ def central_composite(factors, alpha="rotatable", kind="circumscribed", center_p
         cube = basic_runs(k)
         cube_label = f"2^{k}"
     else:
-        from .fractional import fractional_factorial
+        from ._fractional import fractional_factorial
 
         if fraction_p is None:
             frac = fractional_factorial(k, resolution=5, randomize=False)
@@ -101,7 +102,7 @@ def central_composite(factors, alpha="rotatable", kind="circumscribed", center_p
                     f"A 2^({k}-{fraction_p}) cube has resolution {frac.resolution}; a central composite design "
                     "needs resolution V or more for the two-factor interactions. Use a smaller 'fraction'."
                 )
-        order = np.argsort(frac.table.std_order.to_numpy())
+        order = np.argsort(frac.table.standard_order.to_numpy())
         cube = frac.coded.to_numpy()[order]
         cube_label = f"2^({k}-{k - int(round(math.log2(len(cube))))})"
         cube_meta = {"cube_generators": frac.generators, "cube_resolution": frac.resolution}
@@ -133,9 +134,9 @@ def central_composite(factors, alpha="rotatable", kind="circumscribed", center_p
     coded = np.vstack([cube, axial, np.zeros((center_points, k))])
     if kind == "inscribed":
         coded = coded / a
-    ptype = ["factorial"] * F + ["axial"] * (2 * k) + ["center"] * center_points
+    role = ["corner"] * F + ["axial"] * (2 * k) + ["centre"] * center_points
     meta = {"alpha": a, "kind_of_ccd": kind, "cube": cube_label, "cube_points": F, **cube_meta}
-    return Design(factors, coded, ptype, randomize=randomize, seed=seed, kind="central composite", metadata=meta)
+    return Design(factors, coded, role, randomize=randomize, seed=seed, kind="central composite", metadata=meta)
 
 
 #: Factor groups of the Box-Behnken designs: each group runs a 2^g factorial with the other factors at 0.
@@ -197,8 +198,8 @@ def box_behnken(factors, center_points=None, randomize=True, seed=None) -> Desig
         rows.append(block)
     coded = np.vstack(rows + [np.zeros((center_points, k))])
     n_edge = len(coded) - center_points
-    ptype = ["edge"] * n_edge + ["center"] * center_points
-    return Design(factors, coded, ptype, randomize=randomize, seed=seed, kind="Box-Behnken",
+    role = ["edge_midpoint"] * n_edge + ["centre"] * center_points
+    return Design(factors, coded, role, randomize=randomize, seed=seed, kind="Box-Behnken",
                   metadata={"groups": [[factors[j].name for j in g] for g in BB_GROUPS[k]]})
 
 

@@ -1,9 +1,6 @@
-"""Run sheets: the planned runs in run order, written to CSV or XLSX and read back after the experiment.
+"""Reading a filled run sheet back: validated settings, achieved settings and responses.
 
-A run sheet has the columns ``run, std_order, block, point_type``, one planned column per factor (natural
-units), one ``"<factor> (achieved)"`` column per factor for the setting actually reached (blank = as planned),
-and one blank column per response. The XLSX file has a second sheet, ``design``, with the design's metadata, so
-a filled sheet can be read back without the Design object.
+Kept in a module of its own (the writer is :mod:`._runsheet`) so the reader can join the study's table importer.
 """
 
 from __future__ import annotations
@@ -16,86 +13,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, LevelwiseWarning, describe
-from .design import META_COLUMNS, Design
-from .factors import Factor
-
-ACHIEVED = " (achieved)"
-SHEET_RUNS = "runs"
-SHEET_META = "design"
-FORMAT = "levelwise run sheet 1"
-
-
-def _responses(responses, design_columns):
-    if isinstance(responses, str):
-        responses = [responses]
-    try:
-        responses = list(responses)
-    except TypeError:
-        raise LevelwiseError(f"The 'responses' parameter must be a list of names. Got {describe(responses)}.") from None
-    for r in responses:
-        if not isinstance(r, str) or not r.strip():
-            raise LevelwiseError(f"Each response name must be a non-empty string. Got {describe(r)} instead.")
-        if r in design_columns:
-            raise LevelwiseError(f"The response name {r!r} clashes with a run-sheet column; choose another name.")
-    if len(set(responses)) != len(responses):
-        raise LevelwiseError(f"The response names must be unique. Got {responses!r}.")
-    return responses
-
-
-def run_sheet(design: Design, responses=("y",)) -> pd.DataFrame:
-    """The run sheet of *design*: natural units in run order, blank achieved-setting and response columns.
-
-    Examples
-    --------
-    >>> from levelwise import full_factorial
-    >>> list(run_sheet(full_factorial(2, randomize=False), responses=["yield"]).columns)
-    ['run', 'std_order', 'block', 'point_type', 'A', 'B', 'A (achieved)', 'B (achieved)', 'yield']
-    """
-    if not isinstance(design, Design):
-        raise LevelwiseError(f"The 'design' parameter must be a Design. Got {describe(design)} instead.")
-    names = design.factor_names
-    achieved = [n + ACHIEVED for n in names]
-    responses = _responses(responses, [*META_COLUMNS, *names, *achieved])
-    sheet = design.table.copy()
-    for n, a in zip(names, achieved):
-        sheet[a] = pd.Series([None] * len(sheet), dtype=object) if design.factors[names.index(n)].is_categorical \
-            else np.nan
-    for r in responses:
-        sheet[r] = np.nan
-    return sheet
-
-
-def _metadata_rows(design: Design, responses) -> list[tuple[str, str]]:
-    rows = [("format", FORMAT), ("responses", json.dumps(list(responses)))]
-    for f in design.factors:
-        rows.append(("factor", json.dumps({"name": f.name, "low": f.low, "high": f.high, "units": f.units,
-                                           "levels": list(f.levels)}, ensure_ascii=False, default=str)))
-    for key, value in design.metadata.items():
-        rows.append((key, json.dumps(value, default=str, ensure_ascii=False)))
-    return rows
-
-
-def write_run_sheet(design: Design, path, responses=("y",)) -> str:
-    """Write the run sheet to *path* (``.csv`` or ``.xlsx``); XLSX gets a second ``design`` sheet of metadata.
-
-    Returns
-    -------
-    str
-        The path written.
-    """
-    path = os.fspath(path)
-    sheet = run_sheet(design, responses)
-    if path.lower().endswith(".csv"):
-        sheet.to_csv(path, index=False)
-    elif path.lower().endswith(".xlsx"):
-        meta = pd.DataFrame(_metadata_rows(design, _responses(responses, [])), columns=["field", "value"])
-        with pd.ExcelWriter(path, engine="openpyxl") as writer:
-            sheet.to_excel(writer, sheet_name=SHEET_RUNS, index=False)
-            meta.to_excel(writer, sheet_name=SHEET_META, index=False)
-    else:
-        raise LevelwiseError(f"The 'path' must end in .csv or .xlsx. Got {path!r} instead.")
-    return path
+from .._errors import LevelwiseError, LevelwiseWarning, describe
+from ._design import COLUMN_RENAMES, META_COLUMNS, ROLE_RENAMES, Design
+from ._factors import Factor
+from ._runsheet import ACHIEVED, SHEET_META, SHEET_RUNS, _responses
 
 
 @dataclass(frozen=True, eq=False)
@@ -109,7 +30,7 @@ class FilledRunSheet:
     factors : tuple of Factor
     responses : tuple of str
     data : pandas.DataFrame
-        ``run, std_order, block, point_type``, one column per factor holding the achieved setting where one was
+        ``run, standard_order, block, role``, one column per factor holding the achieved setting where one was
         entered and the planned one otherwise, then the responses: ready for fitting on the actual settings.
     missing_responses : dict
         Response name -> list of run ids with no value.
@@ -155,6 +76,8 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
     Parameters
     ----------
     source : str, path or pandas.DataFrame
+        A sheet from an older levelwise (columns ``std_order`` and ``point_type``, role names such as
+        ``"factorial"``) is read with today's names (:data:`levelwise.design.ROLE_RENAMES`).
     design : Design, optional
         The planned design; if omitted, the XLSX ``design`` sheet supplies the factors.
     responses : list of str, optional
@@ -206,6 +129,10 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
     achieved = [n + ACHIEVED for n in names]
     responses = _responses(responses, [*META_COLUMNS, *names, *achieved])
     table.columns = [str(c) for c in table.columns]
+    # A sheet written by an older levelwise: its column names and role values as they are called today.
+    table = table.rename(columns={old: new for old, new in COLUMN_RENAMES.items() if new not in table.columns})
+    if "role" in table.columns:
+        table["role"] = [ROLE_RENAMES.get(v, v) if isinstance(v, str) else v for v in table["role"]]
     expected = [*META_COLUMNS, *names, *achieved, *responses]
     unknown = [c for c in table.columns if c not in expected]
     missing = [c for c in expected if c not in table.columns]
@@ -235,10 +162,10 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
         if strange:
             raise LevelwiseError(f"The run sheet has run id(s) {strange} that the design does not have.")
     out = pd.DataFrame({"run": run_ids})
-    for col in ("std_order", "block"):
+    for col in ("standard_order", "block"):
         values = _numeric(table, col, run_ids)
         out[col] = values.astype(int) if values.notna().all() and (values % 1 == 0).all() else values
-    out["point_type"] = table["point_type"]
+    out["role"] = table["role"]
     data = out.copy()
     for f, a in zip(factors, achieved):
         if f.is_categorical:
@@ -280,4 +207,4 @@ def read_run_sheet(source, design: Design | None = None, responses=None) -> Fill
                           missing_responses=missing_resp)
 
 
-__all__ = ["FilledRunSheet", "read_run_sheet", "run_sheet", "write_run_sheet"]
+__all__ = ["FilledRunSheet", "read_run_sheet"]
