@@ -116,3 +116,21 @@ def test_categorical_power_refused_and_presets_skip_it():
         lw.optimal_design(FACTORS, "Supplier + I(Supplier**2) + Temp", runs=10, seed=1)
     d = lw.optimal_design(FACTORS, "quadratic", runs=16, seed=1, starts=3)
     assert "Supplier^2" not in d.metadata["columns"] and "Temp^2" in d.metadata["columns"]
+
+
+def test_augmenting_runs_with_a_three_level_categorical_factor_returns_the_new_stage():
+    factors = [Factor("Supplier", levels=["north", "east", "south"]), Factor("Temp", 150, 200)]
+    first = lw.full_factorial(factors, seed=1)  # 6 runs
+    more = lw.optimal_design(factors, "Supplier + Temp + Supplier:Temp", runs=6, fixed_runs=first, seed=2,
+                             starts=3)
+    assert len(more) == 6 and more.table["run"].min() == 7 and set(more.table["role"]) == {"optimal"}
+    assert more.metadata["fixed_runs"] == 6
+    both = pd.concat([first.table, more.table])
+    X = _patsy_matrix_two(both)
+    assert np.linalg.slogdet(X.T @ X)[1] == pytest.approx(more.metadata["log_det"], rel=1e-10)
+
+
+def _patsy_matrix_two(table):
+    frame = pd.DataFrame({"Supplier": pd.Categorical(table["Supplier"], categories=["north", "east", "south"]),
+                          "Temp": (table["Temp"].to_numpy(float) - 175) / 25})
+    return np.asarray(patsy.dmatrix("C(Supplier, Sum(omit=0)) * Temp", frame))
