@@ -4,7 +4,8 @@ Commands::
 
     levelwise serve [STUDY] [--port N] [--ip ADDR] [--token T]   the workbench on a study (default: the demo)
     levelwise publish STUDY --out DIR                           write a read-only dashboard folder
-    levelwise view DIR [--port N] [--ip ADDR] [--token T] [--idle-timeout S]   serve a published folder (port 8866)
+    levelwise view DIR [--port N] [--ip ADDR] [--token T] [--idle-timeout S] [--pool-size N]
+                   [--max-kernels N] [--max-kernels-per-client N]    serve a published folder (port 8866)
     levelwise export-html STUDY -o FILE.html                     write the offline single-file export
 
 STUDY is a study JSON file or the word ``demo`` (the invented demo study).
@@ -20,7 +21,7 @@ import sys
 from pathlib import Path
 
 from . import NOTEBOOKS
-from .hardening import CULL_IDLE_TIMEOUT
+from .hardening import CULL_IDLE_TIMEOUT, PER_CLIENT
 
 DEFAULT_PORT = 8866
 EXIT_OK, EXIT_FAILURE, EXIT_USAGE = 0, 1, 2
@@ -42,10 +43,13 @@ def _run_server(notebook, args, *, study_env: str | None, what: str, preheat: bo
     command = voila_command(
         notebook, args.port, args.ip, token=args.token, preheat=preheat, pool_size=getattr(args, "pool_size", 1),
         config_dir=config_dir, cull_idle_timeout=idle, cull_interval=max(1, min(CULL_INTERVAL, idle // 2)),
+        max_kernels=getattr(args, "max_kernels", 0), max_kernels_per_client=getattr(args, "per_client", PER_CLIENT),
+        base_url=getattr(args, "base_url", "/"),
     )
     env = server_env({STUDY_ENV: study_env} if study_env else None)
     query = f"?token={args.token}" if args.token else ""
-    print(f"levelwise: serving {what} at http://{args.ip}:{args.port}/{query} (Ctrl-C to stop)", flush=True)
+    prefix = "/" + getattr(args, "base_url", "/").strip("/") + "/" if getattr(args, "base_url", "/").strip("/") else "/"
+    print(f"levelwise: serving {what} at http://{args.ip}:{args.port}{prefix}{query} (Ctrl-C to stop)", flush=True)
     # Become the voila server (exec): Ctrl-C and SIGTERM reach it directly, and no orphan is left behind.
     os.chdir(Path(notebook).parent)
     os.execve(command[0], command, env)
@@ -129,10 +133,25 @@ def _seconds(text: str) -> int:
     return value
 
 
+def _count(least: int):
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            value = least - 1
+        if value < least:
+            raise argparse.ArgumentTypeError(f"must be a whole number, at least {least}; got {text!r}")
+        return value
+
+    return parse
+
+
 def _server_options(parser) -> None:
     parser.add_argument("--port", type=_port, default=DEFAULT_PORT, help=f"Port (default {DEFAULT_PORT}).")
     parser.add_argument("--ip", default="127.0.0.1",
                         help="Address to bind (default 127.0.0.1: this machine only; 0.0.0.0 for every interface).")
+    parser.add_argument("--base-url", default="/", dest="base_url",
+                        help="Path prefix the server answers under, behind a proxy (e.g. /services/NAME/; default /).")
     parser.add_argument("--token", default=None,
                         help="Require this token (?token=... in the URL). Default: no token, which is safe on "
                              "127.0.0.1 only.")
@@ -170,6 +189,11 @@ def build_parser() -> argparse.ArgumentParser:
                         help="Preheated kernels kept ready for new viewers (default 1; 0 turns preheating off).")
     p_view.add_argument("--idle-timeout", type=_seconds, default=CULL_IDLE_TIMEOUT, dest="idle_timeout",
                         help=f"Shut a viewer's kernel down after this many idle seconds (default {CULL_IDLE_TIMEOUT}).")
+    p_view.add_argument("--max-kernels", type=_count(0), default=0, dest="max_kernels",
+                        help="Viewers' kernels alive at once; past it a new viewer gets a 'busy, try again' page "
+                             "(default 0: sized to this machine's memory, about 250 MB per kernel).")
+    p_view.add_argument("--max-kernels-per-client", type=_count(1), default=PER_CLIENT, dest="per_client",
+                        help=f"Viewers' kernels one client address may hold at once (default {PER_CLIENT}).")
     p_view.set_defaults(handler=view)
 
     p_exp = sub.add_parser("export-html", help="Write the offline single-file HTML export.",

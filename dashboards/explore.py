@@ -13,8 +13,10 @@ import html
 import ipywidgets as ipw
 
 from levelwise import LevelwiseError
+from levelwise.widgets.style import NO_MATH
 
 from ._compose import find_view
+from .kernel_guard import guard_kernel
 from .present import unavailable
 from .study_source import StudySource, open_study, shared_model
 from .summary import caution_html
@@ -33,6 +35,7 @@ def demo_shared_model(read_only: bool = False):
 
 def build(source=None) -> ipw.VBox:
     """The workbench on *source* (a path, ``"demo"``, a StudySource or None: see :func:`open_study`)."""
+    guard_kernel()
     try:
         source = source if isinstance(source, StudySource) else open_study(source)
         shared = shared_model(source, read_only=False)
@@ -50,6 +53,6 @@ def build(source=None) -> ipw.VBox:
         view = view_class(shared)
         views.append(view)
         boxes.append(view.widget)
-    page = ipw.VBox([title, banner, *boxes]).add_class("lw-explore")
+    page = ipw.VBox([title, banner, *boxes]).add_class("lw-explore").add_class(NO_MATH)  # no text is typeset
     page.shared, page.views, page.source = shared, views, source
     return page

@@ -118,12 +118,31 @@ def payload(source: StudySource) -> dict:
 
 ASSETS = Path(__file__).parent / "assets"
 
+#: Characters that could end, comment out or reopen the script element the data sits in (``</script``,
+#: ``<!--``, ``<script``, ``-->``), written as JSON escapes; JSON.parse reads them back unchanged.
+_SCRIPT_ESCAPES = {"<": "\\u003c", ">": "\\u003e", "&": "\\u0026", "\u2028": "\\u2028", "\u2029": "\\u2029"}
+
+
+def script_json(content) -> str:
+    r"""*content* as JSON that is safe inside a ``<script>`` element, whatever its strings hold.
+
+    Examples
+    --------
+    >>> script_json({"title": "<!--<script></script>-->"})
+    '{"title":"\\u003c!--\\u003cscript\\u003e\\u003c/script\\u003e--\\u003e"}'
+    >>> json.loads(script_json({"title": "<!--<script></script>-->"}))["title"]
+    '<!--<script></script>-->'
+    """
+    text = json.dumps(content, allow_nan=False, separators=(",", ":"))
+    for char, escaped in _SCRIPT_ESCAPES.items():
+        text = text.replace(char, escaped)
+    return text
+
 
 def render(source: StudySource) -> str:
     """The whole page as one string: the data, the script and the styles inline."""
     content = payload(source)
-    data = json.dumps(content, allow_nan=False, separators=(",", ":"))
-    data = data.replace("</", "<\\/")  # never close the script element early, whatever a name holds
+    data = script_json(content)
     parts = {
         "__SCRIPT__": (ASSETS / "export_page.js").read_text(encoding="utf-8"),
         "__DATA__": data,

@@ -22,18 +22,37 @@ by a kernel, and it imports no widget library.
 
 from __future__ import annotations
 
+import asyncio
 import json
 import os
+import time
 from pathlib import Path
 
+from jupyter_server.services.kernels.connection.base import serialize_msg_to_ws_v1
 from jupyter_server.services.kernels.connection.channels import ZMQChannelsWebsocketConnection
 from tornado import web
+from traitlets import Float, Integer
+
+from ._frames import MAX_DEPTH, MAX_OFFSETS, FrameRefused, check_depth, v1_parts
 
 #: The only kernel websocket subprotocol a published dashboard accepts.
 V1_PROTOCOL = "v1.kernel.websocket.jupyter.org"
 
 #: Dotted path of the connection class, as voila's configuration wants it.
 CONNECTION_CLASS = "levelwise.dashboards.hardening.V1OnlyWebsocketConnection"
+
+#: Largest websocket message a browser may send (tornado closes the connection above it; the page's own
+#: messages are a few KB).
+MAX_MESSAGE_BYTES = 1024 * 1024
+#: The comm target the browser's widget manager opens to fetch the widgets' state; the only one it may open.
+CONTROL_TARGET = "jupyter.widget.control"
+#: What a refused frame counts against a connection's message rate (an accepted message counts 1).
+REFUSED_COST = 0.1
+#: Refused frames by kind, for this server process (the log has the first of each kind per connection).
+REFUSALS: dict[str, int] = {}
+
+#: Viewers' kernels one client address may hold at once (a few tabs).
+PER_CLIENT = 3
 
 #: Seconds a kernel may sit idle (no message, no connection) before it is shut down.
 CULL_IDLE_TIMEOUT = 600
@@ -64,19 +83,160 @@ def offered_subprotocols(header: str | None) -> list[str]:
 
 
 class V1OnlyWebsocketConnection(ZMQChannelsWebsocketConnection):
-    """Kernel websocket connection that refuses (HTTP 400) clients not offering the v1 protocol.
+    """The kernel websocket connection of a served dashboard: v1 protocol only, every frame checked first.
 
-    Enable it with ``--Voila.kernel_websocket_connection_class=dashboards.hardening.V1OnlyWebsocketConnection``.
-    ``prepare()`` runs before the websocket upgrade, so raising an ``HTTPError`` there
-    answers the upgrade request with that status and no connection is made.
+    Enable it with ``--Voila.kernel_websocket_connection_class=`` and :data:`CONNECTION_CLASS`.
+
+    - ``prepare()`` runs before the websocket upgrade: a client that does not offer the v1 protocol gets
+      HTTP 400 and no connection is made.
+    - Every frame is checked before jupyter_server parses it (:mod:`levelwise.dashboards._frames`): its size,
+      its offset count and offsets against its length, and the nesting of its JSON parts. A refused frame is
+      dropped; the first refusal of each kind on a connection is logged, the rest are counted and the total
+      is logged when the connection closes.
+    - Each connection may send at most ``message_rate`` messages per second (bursts of ``message_burst``);
+      beyond that the server stops reading *that* websocket for a moment, so a flooding client slows only
+      itself (tornado awaits ``on_message`` before it reads the next frame).
+    - A ``comm_open`` from the browser is refused unless its target is the widget manager's control channel:
+      a published page creates every widget in the kernel and needs none from the browser. The refusal is
+      answered with a plain ``comm_close``: no traceback, no path.
+    - Nothing of the kernel's stderr and no error message reaches the browser: those go to the server log.
     """
+
+    message_rate = Float(100.0, config=True, help="Messages per second a connection may send (sustained).")
+    message_burst = Integer(300, config=True, help="Messages a connection may send at once before the rate applies.")
+    max_message_bytes = Integer(MAX_MESSAGE_BYTES, config=True, help="Largest frame a browser may send, in bytes.")
+    max_offsets = Integer(MAX_OFFSETS, config=True, help="Largest offset count of a v1 frame.")
+    max_depth = Integer(MAX_DEPTH, config=True, help="Deepest JSON nesting of a message part.")
+    control_opens = Integer(4, config=True, help="comm_open messages a connection may send to the control target.")
 
     async def prepare(self):
         offered = offered_subprotocols(self.websocket_handler.request.headers.get("Sec-WebSocket-Protocol"))
         if V1_PROTOCOL not in offered:
             self.log.warning("Refused a kernel websocket that did not offer %s (offered: %s)", V1_PROTOCOL, offered)
             raise web.HTTPError(400, f"This server only speaks the {V1_PROTOCOL} kernel websocket protocol.")
+        self._refused: dict[str, int] = {}
+        self._tokens, self._stamp = float(self.message_burst), time.monotonic()
+        self._control_opened, self._cost = 0, 1.0
+        # Tornado awaits what on_message returns before it reads the next frame: our on_message can pause.
+        self.websocket_handler.on_message = self.receive
         return await super().prepare()
+
+    # -- incoming ---------------------------------------------------------------------------------------
+    def refuse(self, kind: str, detail: str) -> None:
+        """Count a refused frame; log the first of each kind on this connection (one line, no traceback)."""
+        self._cost = REFUSED_COST  # a refused frame never reaches the kernel: it costs the server little
+        seen = self._refused.get(kind, 0)
+        self._refused[kind] = seen + 1
+        REFUSALS[kind] = REFUSALS.get(kind, 0) + 1
+        if not seen:
+            self.log.warning("levelwise: refused a kernel websocket frame from %s (%s: %s); further ones are counted",
+                             self.websocket_handler.request.remote_ip, kind, detail)
+
+    def receive(self, message):
+        """on_message of the websocket: the rate limit, then :meth:`handle_incoming_message`."""
+        now = time.monotonic()
+        self._tokens = min(float(self.message_burst), self._tokens + (now - self._stamp) * self.message_rate)
+        self._stamp = now
+        self._cost = 1.0
+        try:
+            self.handle_incoming_message(message)
+        except Exception as exc:  # noqa: BLE001 - a malformed message fails quietly, with one log line
+            self.refuse("malformed", f"{type(exc).__name__}: {exc}")
+        self._tokens -= self._cost
+        if self._tokens < 0:
+            return asyncio.sleep(-self._tokens / self.message_rate)
+        return None
+
+    def handle_incoming_message(self, incoming_msg) -> None:
+        if not self.channels:
+            return
+        if isinstance(incoming_msg, (bytes, str)) and len(incoming_msg) > self.max_message_bytes:
+            self.refuse("too large", f"{len(incoming_msg)} bytes (at most {self.max_message_bytes})")
+            return
+        try:
+            channel, parts = v1_parts(incoming_msg, self.max_offsets)
+            if len(parts) < 4:
+                raise FrameRefused(f"{len(parts)} message parts (a message has at least 4)")
+            check_depth(parts, self.max_depth)
+            header = json.loads(parts[0])
+            if not isinstance(header, dict) or not isinstance(header.get("msg_type"), str):
+                raise FrameRefused("the header is not a message header")
+            content = json.loads(parts[3])
+            if not isinstance(content, dict):
+                raise FrameRefused("the content is not an object")
+            if header["msg_type"].startswith("comm_") and header["msg_type"] != "comm_info_request" and not (
+                isinstance(content.get("comm_id"), str) and isinstance(content.get("data", {}), dict)
+            ):
+                raise FrameRefused("a comm message without a comm id or with data that is not an object")
+        except FrameRefused as exc:
+            self.refuse("frame", str(exc))
+            return
+        except ValueError as exc:
+            self.refuse("frame", f"unreadable header ({type(exc).__name__})")
+            return
+        if header["msg_type"] == "comm_open" and not self._comm_open_allowed(header, content):
+            return
+        super().handle_incoming_message(bytes(incoming_msg))
+
+    def _comm_open_allowed(self, header: dict, content: dict) -> bool:
+        target, comm_id = content.get("target_name"), content.get("comm_id")
+        if target == CONTROL_TARGET and self._control_opened < self.control_opens:
+            self._control_opened += 1
+            return True
+        self.refuse("comm_open", f"target {str(target)[:60]!r}: this page creates no widget from the browser")
+        if isinstance(comm_id, str) and len(comm_id) <= 64:
+            self._answer_close(comm_id, header)
+        return False
+
+    def _answer_close(self, comm_id: str, parent: dict) -> None:
+        """Tell the client its comm is closed, as a kernel does for a target it does not know."""
+        reply = self.session.msg("comm_close", content={"comm_id": comm_id, "data": {}}, parent=parent)
+        try:
+            self.write_message(serialize_msg_to_ws_v1(reply, "iopub", self.session.pack), binary=True)
+        except Exception:  # noqa: BLE001 - the client is gone; nothing to answer
+            pass
+
+    # -- outgoing ---------------------------------------------------------------------------------------
+    def handle_outgoing_message(self, stream, outgoing_msg) -> None:
+        channel = stream if isinstance(stream, str) else getattr(stream, "channel", None)
+        if channel == "iopub" and self._withheld(outgoing_msg):
+            return
+        super().handle_outgoing_message(stream, outgoing_msg)
+
+    def _withheld(self, msg_list) -> bool:
+        """True for the kernel's stderr and error messages: logged here, never sent to the browser."""
+        try:
+            _, parts = self.session.feed_identities(msg_list)
+            header = json.loads(bytes(parts[1]))
+            kind = header.get("msg_type")
+            if kind not in ("stream", "error"):
+                return False
+            content = json.loads(bytes(parts[4]))
+        except Exception:  # noqa: BLE001 - not ours to judge; jupyter_server handles it as before
+            return False
+        if kind == "stream" and content.get("name") != "stderr":
+            return False
+        text = content.get("text") if kind == "stream" else f"{content.get('ename')}: {content.get('evalue')}"
+        self.log.warning("levelwise: kernel %s %s (not sent to the browser): %s", self.kernel_id, kind,
+                         str(text).strip()[:2000])
+        return True
+
+    def disconnect(self):
+        refused = getattr(self, "_refused", {})
+        if sum(refused.values()) > 1:
+            self.log.warning("levelwise: refused %s frame(s) on a kernel websocket from %s", dict(refused),
+                             self.websocket_handler.request.remote_ip)
+            self._refused = {}
+        return super().disconnect()
+
+
+#: The page may load and connect only to the server it came from: the voila template's icon-font link to a
+#: CDN (and anything else pointing elsewhere) is blocked by the browser before any request leaves.
+CONTENT_SECURITY_POLICY = (
+    "default-src 'self'; script-src 'self' 'unsafe-inline' 'unsafe-eval'; style-src 'self' 'unsafe-inline'; "
+    "img-src 'self' data: blob:; font-src 'self' data:; connect-src 'self'; frame-ancestors 'self'; "
+    "object-src 'none'; base-uri 'self'; form-action 'self'"
+)
 
 
 def voila_config(
@@ -86,6 +246,8 @@ def voila_config(
     pool_size: int = 1,
     cull_idle_timeout: int = CULL_IDLE_TIMEOUT,
     cull_interval: int = CULL_INTERVAL,
+    max_kernels: int = 0,
+    max_kernels_per_client: int = PER_CLIENT,
 ) -> dict:
     """The hardened voila configuration, as the nested dict a ``voila.json`` file holds.
 
@@ -99,12 +261,23 @@ def voila_config(
         Number of preheated kernels waiting for viewers.
     cull_idle_timeout, cull_interval : int
         Seconds of idleness before a kernel is shut down, and seconds between checks.
+    max_kernels, max_kernels_per_client : int
+        Viewers' kernels alive at once (0: sized to the machine's memory) and per client address
+        (read by :class:`levelwise.dashboards.server_app.LevelwiseVoila`; plain voila ignores them).
     """
     return {
         "Voila": {
             "ip": ip,
             "open_browser": False,
             "kernel_websocket_connection_class": CONNECTION_CLASS,
+            "tornado_settings": {
+                "websocket_max_message_size": MAX_MESSAGE_BYTES,
+                "headers": {"Content-Security-Policy": CONTENT_SECURITY_POLICY},
+            },
+        },
+        "LevelwiseVoila": {
+            "max_kernels": int(max_kernels),
+            "max_kernels_per_client": int(max_kernels_per_client),
         },
         "VoilaConfiguration": {
             "strip_sources": True,
@@ -127,9 +300,13 @@ def config_arguments(config: dict) -> list[str]:
     args = []
     for cls, values in config.items():
         for name, value in values.items():
-            text = json.dumps(value) if isinstance(value, list) else str(value)
+            text = json.dumps(value) if isinstance(value, (list, dict)) else str(value)
             args.append(f"--{cls}.{name}={text}")
     return args
+
+
+#: The module that runs the standalone voila application with bounded kernels (voila's own ``Voila`` app).
+SERVER_MODULE = "levelwise.dashboards.server_app"
 
 
 def voila_command(
@@ -142,23 +319,30 @@ def voila_command(
     pool_size: int = 1,
     cull_idle_timeout: int = CULL_IDLE_TIMEOUT,
     cull_interval: int = CULL_INTERVAL,
+    max_kernels: int = 0,
+    max_kernels_per_client: int = PER_CLIENT,
+    base_url: str = "/",
     config_dir=None,
 ) -> list[str]:
-    """The standalone ``voila`` command line for one notebook, with every hardened setting.
+    """The standalone voila command line for one notebook, with every hardened setting.
 
-    The settings are given on the command line even when ``config_dir`` holds a
-    ``voila.json`` with the same values, so a stale or edited file cannot loosen them
-    (voila applies command-line settings over file settings).
+    It runs :mod:`levelwise.dashboards.server_app` (voila's standalone application with a bound on
+    viewers' kernels). The settings are given on the command line even when ``config_dir`` holds a
+    ``voila.json`` with the same values, so a stale or edited file cannot loosen them (voila applies
+    command-line settings over file settings).
     """
     import sys
 
     config = voila_config(
-        ip=ip, preheat=preheat, pool_size=pool_size, cull_idle_timeout=cull_idle_timeout, cull_interval=cull_interval
+        ip=ip, preheat=preheat, pool_size=pool_size, cull_idle_timeout=cull_idle_timeout, cull_interval=cull_interval,
+        max_kernels=max_kernels, max_kernels_per_client=max_kernels_per_client,
     )
-    command = [sys.executable, "-m", "voila", str(notebook), "--no-browser", f"--port={int(port)}"]
+    command = [sys.executable, "-m", SERVER_MODULE, str(notebook), "--no-browser", f"--port={int(port)}"]
     if config_dir is not None:
         command.append(f"--Voila.config_file_paths={json.dumps([str(config_dir)])}")
     command += config_arguments(config)
+    if base_url not in ("", "/"):
+        command.append(f"--Voila.base_url=/{base_url.strip('/')}/")
     command.append(f"--Voila.token={token}" if token else "--Voila.token=")
     return command
 

@@ -11,13 +11,15 @@ from __future__ import annotations
 
 import html
 import json
+import re
 
 import ipywidgets as ipw
 
 from levelwise import LevelwiseError
+from levelwise.widgets.style import NO_MATH
 
 from ._compose import find_view
-from .kernel_guard import silence_tracebacks
+from .kernel_guard import guard_kernel, log_line
 from .study_source import StudySource, open_study, shared_model
 from .summary import caution_html, fingerprint, fit_numbers, summary_html
 
@@ -117,19 +119,42 @@ def _read_only_part(name: str, view, source: StudySource):
     return view.widget
 
 
+_QUOTED_PATH = re.compile(r"""(['"])(?:[A-Za-z]:)?[/\\][^'"]*?([^/\\'"]*)\1""")
+_BARE_PATH = re.compile(r"""(?<![\w.:])(?:[A-Za-z]:)?[/\\](?:[^\s'"/\\]+[/\\])*([^\s'"/\\]*)""")
+
+
+def without_paths(text: str) -> str:
+    """*text* with every absolute path cut to its last part (a viewer never sees where the server keeps files).
+
+    Examples
+    --------
+    >>> without_paths("The study file '/srv/plant 3/study.json' does not exist.")
+    "The study file 'study.json' does not exist."
+    >>> without_paths("[Errno 13] Permission denied: /srv/data/study.json")
+    '[Errno 13] Permission denied: study.json'
+    """
+    text = _QUOTED_PATH.sub(lambda m: m.group(1) + m.group(2) + m.group(1), text)
+    return _BARE_PATH.sub(lambda m: m.group(1) or "(folder)", text)
+
+
 def unavailable(exc) -> ipw.VBox:
-    """The page shown when the study cannot be read: the reason, and the caution."""
+    """The page shown when the study cannot be read: the reason without server paths, and the caution.
+
+    The full reason goes to the server's log.
+    """
+    log_line(f"the dashboard cannot show its study: {exc}")
     message = ShownHTML(
-        f'<h2>This dashboard cannot show its study</h2><div class="lw-error">{html.escape(str(exc))}</div>'
+        f'<h2>This dashboard cannot show its study</h2><div class="lw-error">{html.escape(without_paths(str(exc)))}'
+        "</div>"
     ).add_class("lw-unavailable")
-    page = ipw.VBox([message, ShownHTML(caution_html())]).add_class("lw-present")
+    page = ipw.VBox([message, ShownHTML(caution_html())]).add_class("lw-present").add_class(NO_MATH)
     page.shared, page.views, page.source = None, [], None
     return page
 
 
 def build(source=None) -> ipw.VBox:
     """The read-only stakeholder page for *source* (a path, ``"demo"``, or None: see :func:`open_study`)."""
-    silence_tracebacks()
+    guard_kernel()
     try:
         source = source if isinstance(source, StudySource) else open_study(source)
         shared = shared_model(source, read_only=True)
@@ -152,6 +177,6 @@ def build(source=None) -> ipw.VBox:
         view = view_class(shared)
         views.append(view)
         children.append(_read_only_part(name, view, source))
-    page = ipw.VBox(children).add_class("lw-present")
+    page = ipw.VBox(children).add_class("lw-present").add_class(NO_MATH)  # no text on the page is typeset
     page.shared, page.views, page.source = shared, views, source
     return page

@@ -43,14 +43,19 @@ levelwise view .              # http://127.0.0.1:8866/ on this machine only
 levelwise view . --port 9000 --ip 0.0.0.0 --token SECRET   # others on your network, with a token
 ```
 
-`levelwise view` starts the standalone `voila` server on `present.ipynb` with: sources stripped,
+`levelwise view` starts voila's standalone server on `present.ipynb` with: sources stripped,
 tracebacks hidden, no file of this folder served, kernels preheated, idle kernels shut down after
-{cull} s, one BLAS thread per kernel, and kernel websockets refused (HTTP 400) unless they speak the
-`v1.kernel.websocket.jupyter.org` protocol. Run it without levelwise's command from inside this
-folder with `OPENBLAS_NUM_THREADS=1 voila present.ipynb` (voila reads `voila.json` here).
+{cull} s, one BLAS thread per kernel, and a kernel websocket that refuses (HTTP 400) clients not
+speaking the `v1.kernel.websocket.jupyter.org` protocol, checks every frame before it is parsed,
+limits each connection's message rate and keeps the kernel's errors in the server log. It also
+bounds the viewers' kernels (`--max-kernels`, default sized to the machine's memory;
+`--max-kernels-per-client`, default 3): past a limit a viewer gets a "busy, try again" page.
+Plain `OPENBLAS_NUM_THREADS=1 voila present.ipynb` run inside this folder reads `voila.json` here
+and applies every setting but the kernel limits.
 
 Each viewer gets their own kernel (about 200 MB of memory for the demo campaign). A page left idle
-for {cull} s loses its kernel: reload it.
+for {cull} s loses its kernel: reload it. For large audiences, share the offline export instead
+(`levelwise export-html`): one file, no kernel.
 
 ## Read this before you act on a number
 

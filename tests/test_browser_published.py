@@ -17,7 +17,7 @@ from conftest import ARTIFACTS, SCREENSHOTS
 from kernel_ws import KernelClient
 
 from levelwise.dashboards.study_source import open_study
-from levelwise.widgets.style import fmt
+from levelwise.widgets.style import fmt, plain_text
 
 pytestmark = pytest.mark.browser
 
@@ -139,8 +139,8 @@ def with_class(states, css) -> list:
 def kernel_readback(client, comms, settings_by_label) -> tuple[dict, str]:
     """Move the kernel's sliders (as a browser would) and read back the readout and the fingerprint it computes."""
     states = widget_states(client, comms)
-    sliders = {st["description"]: cid for cid, st in states.items() if st.get("_model_name") == "FloatSliderModel"
-               and "lw-slider" in (st.get("_dom_classes") or [])}
+    sliders = {plain_text(st["description"]): cid for cid, st in states.items()
+               if st.get("_model_name") == "FloatSliderModel" and "lw-slider" in (st.get("_dom_classes") or [])}
     assert set(sliders) == set(settings_by_label), sliders
     for label, value in settings_by_label.items():
         client.send("shell", "comm_msg", {"comm_id": sliders[label], "data": {

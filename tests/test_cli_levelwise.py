@@ -88,7 +88,8 @@ def test_serve_refuses_a_missing_study(tmp_path, capsys):
 def test_voila_command_has_every_hardened_setting():
     command = cli.voila_command("nb.ipynb", 9100)
     joined = " ".join(command)
-    assert command[1:4] == ["-m", "voila", "nb.ipynb"]  # the standalone voila, one notebook, never the extension
+    # voila's standalone application (with bounded kernels), one notebook, never the jupyter_server extension
+    assert command[1:4] == ["-m", "levelwise.dashboards.server_app", "nb.ipynb"]
     assert "--no-browser" in command and "--port=9100" in command
     assert "--Voila.ip=127.0.0.1" in command  # loopback unless --ip
     assert "--VoilaConfiguration.strip_sources=True" in command
@@ -100,6 +101,8 @@ def test_voila_command_has_every_hardened_setting():
     assert "--MappingKernelManager.cull_interval=60" in command
     assert f"--Voila.kernel_websocket_connection_class={CONNECTION_CLASS}" in command
     assert "--Voila.token=" in command  # no token by default
+    assert "--LevelwiseVoila.max_kernels=0" in command and "--LevelwiseVoila.max_kernels_per_client=3" in command
+    assert '"websocket_max_message_size": 1048576' in joined and "default-src 'self'" in joined
     assert "--debug" not in joined and "jupyter" not in command[0]
     with_token = cli.voila_command("nb.ipynb", 9100, ip="0.0.0.0", token="s3cret")
     assert "--Voila.ip=0.0.0.0" in with_token and "--Voila.token=s3cret" in with_token
@@ -109,9 +112,14 @@ def test_voila_accepts_the_hardened_settings():
     """voila itself parses every setting (a misspelt option would be ignored or refused)."""
     from voila.app import Voila
 
-    app = Voila()
-    app.parse_command_line(cli.voila_command("x.ipynb", 9100)[3:])
+    from levelwise.dashboards.server_app import LevelwiseVoila
+
+    app = LevelwiseVoila()
+    app.parse_command_line(cli.voila_command("x.ipynb", 9100, max_kernels=7)[3:])
     config = app.config
+    assert isinstance(app, Voila)
+    assert config.LevelwiseVoila.max_kernels == 7 and config.LevelwiseVoila.max_kernels_per_client == 3
+    assert config.Voila.tornado_settings["websocket_max_message_size"] == 1024 * 1024
     assert config.VoilaConfiguration.strip_sources is True
     assert config.VoilaConfiguration.show_tracebacks is False
     assert config.VoilaConfiguration.file_allowlist == []

@@ -372,7 +372,9 @@ def test_design_builder_previews_kernel_designs_and_creates_a_study(shared, view
     assert shared.responses == ("Gloss", "Hardness") and shared.units["Gloss"] == "GU"
     assert shared.data["Gloss"].isna().all() and len(shared.data) == len(reference)
     assert shared.fit is None and shared.fits == {}
-    assert [s.description for s in views["sliders"].sliders.values()] == [f.label for f in demo.FACTORS]
+    from levelwise.widgets.style import plain_text
+
+    assert [plain_text(s.description) for s in views["sliders"].sliders.values()] == [f.label for f in demo.FACTORS]
     for view in views.values():
         assert "Internal error" not in view.status.value
 
@@ -603,3 +605,54 @@ def test_optimiser_searches_over_the_levels_of_a_categorical_factor():
     assert shared.settings["Supplier"] == "east"
     assert view.status.value == ""
     view.close()
+
+
+def test_slider_labels_are_inert_text():
+    """A factor label with TeX and markup is shown as escaped text, marked so that MathJax leaves it alone."""
+    import ipywidgets as ipw
+
+    from levelwise import Factor
+    from levelwise.widgets import SharedModel
+    from levelwise.widgets.factor_sliders import FactorSliders
+    from levelwise.widgets.style import NO_MATH, plain_text
+
+    name = "Oven $\\style{color:red}{BIG}$ <!--<script>"
+    factors = [Factor(name, 0.0, 1.0), Factor("B", 0.0, 1.0)]
+    data = pd.DataFrame({name: [0, 1, 0, 1, 0.5], "B": [0, 0, 1, 1, 0.5], "y": [1.0, 2.0, 3.0, 4.5, 2.6]})
+    shared = SharedModel(factors, data, "y", model=f"`{name}` + B")
+    slider = FactorSliders(shared).sliders[name]
+    assert isinstance(slider, ipw.FloatSlider) and slider.description_allow_html
+    assert slider.description.startswith(f'<span class="{NO_MATH}">')
+    assert "<script>" not in slider.description and "&lt;!--&lt;script&gt;" in slider.description
+    assert plain_text(slider.description) == factors[0].label
+
+
+def test_a_burst_of_slider_values_is_applied_once_latest_wins():
+    """Issue 17: a client flooding slider updates makes the kernel apply one change per burst, not one per message."""
+    from levelwise import Factor
+    from levelwise.widgets import SharedModel
+    from levelwise.widgets.factor_sliders import FactorSliders
+
+    factors = [Factor("A", 0.0, 1.0), Factor("B", 0.0, 1.0)]
+    data = pd.DataFrame({"A": [0, 1, 0, 1, 0.5], "B": [0, 0, 1, 1, 0.5], "y": [1.0, 2.0, 3.0, 4.5, 2.6]})
+    shared = SharedModel(factors, data, "y", model="A + B")
+    view = FactorSliders(shared)
+    calls = []
+    original = shared.set_settings
+
+    def counting(**settings):
+        calls.append(settings)
+        return original(**settings)
+
+    shared.set_settings = counting
+
+    async def burst():
+        for k in range(200):
+            view.sliders["A"].value = 0.2 + (k % 50) / 100
+        view.sliders["B"].value = 0.9
+        await asyncio.sleep(0.1)
+
+    asyncio.run(burst())
+    assert len(calls) == 1  # 201 values, one change
+    assert calls[0] == {"A": pytest.approx(0.2 + 199 % 50 / 100), "B": pytest.approx(0.9)}
+    assert shared.settings["A"] == pytest.approx(0.69) and shared.settings["B"] == pytest.approx(0.9)

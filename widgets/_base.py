@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import asyncio
 import html
+import sys
 import traceback
 
 import ipywidgets as ipw
@@ -93,8 +94,11 @@ class View:
             except LevelwiseError as exc:
                 self.show_error(str(exc))
             except Exception as exc:  # noqa: BLE001 - a view must never crash the dashboard
-                self.show_error(f"Internal error in {type(self).__name__}: {type(exc).__name__}: {exc}")
-                traceback.print_exc()
+                # The viewer sees a short line; the traceback goes to the kernel process's own stderr (the
+                # server's log), never to sys.stderr, which a kernel forwards to the browser.
+                self.show_error(f"Internal error in {type(self).__name__} ({type(exc).__name__}); "
+                                "the details are in the server's log.")
+                traceback.print_exc(file=sys.__stderr__)
             return None
 
         return run

@@ -18,9 +18,9 @@ import numpy as np
 
 from levelwise import LevelwiseError
 
-from ._base import View, f32, set_if_changed
+from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical
-from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, OKABE_ITO, PI_COLOR, WORDS, fmt
+from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, OKABE_ITO, PI_COLOR, WORDS, fmt, inert_html
 
 #: Colours of the per-level curves (Okabe & Ito 2008, without the mean curve's blue and the band's orange).
 SERIES = [OKABE_ITO[k] for k in ("vermillion", "bluish_green", "reddish_purple", "sky_blue", "black", "yellow")]
@@ -81,6 +81,10 @@ class FactorSliders(View):
     def __init__(self, shared: SharedModel, *, points: int = 50):
         super().__init__(shared)
         self.points = int(points)
+        # Slider values arriving in a burst (a drag, or a client flooding the kernel) are applied once,
+        # the latest value of each slider winning; with no event loop (plain Python) they apply at once.
+        self._pending: dict = {}
+        self._slider_coalescer = Coalescer(self.safely(self._apply_pending), delay=0.01)
         self.readout = ipw.HTML().add_class("lw-readout")
         self.notice = ipw.HTML().add_class("lw-notice")
         self.slider_box = ipw.VBox().add_class("lw-slider-box")
@@ -113,7 +117,8 @@ class FactorSliders(View):
         for f in self.shared.factors:
             if is_categorical(f):
                 choice = ipw.Dropdown(options=list(f.levels), value=self.shared.settings[f.name],
-                                      description=f.label, style={"description_width": "initial"})
+                                      description=inert_html(f.label), description_allow_html=True,
+                                      style={"description_width": "initial"})
                 choice.add_class("lw-level-choice")
                 choice.observe(self.safely(self._on_slider), names="value")
                 self.sliders[f.name] = choice
@@ -123,7 +128,8 @@ class FactorSliders(View):
                 min=f.low,
                 max=f.high,
                 step=(f.high - f.low) / 100.0,
-                description=f.label,
+                description=inert_html(f.label),  # plain text: never typeset as math, never markup
+                description_allow_html=True,
                 continuous_update=True,
                 readout_format=".4g",
                 style={"description_width": "initial"},
@@ -179,11 +185,19 @@ class FactorSliders(View):
         if getattr(self, "_restoring", False):
             return
         name = next(n for n, s in self.sliders.items() if s is change["owner"])
+        self._pending[name] = (change["owner"], change["new"])
+        self._slider_coalescer.request()
+
+    def _apply_pending(self):
+        pending, self._pending = self._pending, {}
+        if not pending:
+            return
         try:
-            self.shared.set_settings(**{name: change["new"]})
+            self.shared.set_settings(**{name: value for name, (_, value) in pending.items()})
         except LevelwiseError as exc:
             self.shared.error = str(exc)
-            change["owner"].value = self.shared.settings[name]  # the model is unchanged: show it
+            for name, (owner, _) in pending.items():
+                owner.value = self.shared.settings[name]  # the model is unchanged: show it
 
     def _on_response_choice(self, change):
         if change["new"] in self.shared.responses and change["new"] != self.shared.response:

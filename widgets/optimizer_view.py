@@ -18,7 +18,7 @@ from levelwise import LevelwiseError, optimize
 
 from ._base import View
 from .shared_model import SharedModel
-from .style import fmt
+from .style import fmt, inert_html
 
 GOAL_CHOICES = [("no goal", "none"), ("maximise", "maximize"), ("minimise", "minimize"), ("hit a target", "target")]
 
@@ -93,7 +93,8 @@ class OptimizerView(View):
             units = self.shared.units.get(response, "")
             unit = f" ({units})" if units else ""
             row = {
-                "kind": ipw.Dropdown(options=GOAL_CHOICES, value="none", description=f"{response}{unit}",
+                "kind": ipw.Dropdown(options=GOAL_CHOICES, value="none", description=inert_html(f"{response}{unit}"),
+                                     description_allow_html=True,
                                      style={"description_width": "initial"}).add_class("lw-goal-kind"),
                 "low": ipw.FloatText(value=lo, description="low", layout=ipw.Layout(width="150px")),
                 "target": ipw.FloatText(value=(lo + hi) / 2, description="target", layout=ipw.Layout(width="160px")),

@@ -19,7 +19,7 @@ from levelwise._errors import describe
 
 from ._base import View
 from .shared_model import SharedModel, is_categorical
-from .style import fmt
+from .style import fmt, inert_html
 
 
 class PredictionsView(View):
@@ -83,10 +83,11 @@ class PredictionsView(View):
         self.editors = {}
         for f in self.shared.factors:
             if is_categorical(f):
-                box = ipw.Dropdown(options=list(f.levels), description=f.label, style={"description_width": "initial"})
+                box = ipw.Dropdown(options=list(f.levels), description=inert_html(f.label),
+                                   description_allow_html=True, style={"description_width": "initial"})
             else:
-                box = ipw.FloatText(description=f.label, style={"description_width": "initial"},
-                                    layout=ipw.Layout(width="200px"))
+                box = ipw.FloatText(description=inert_html(f.label), description_allow_html=True,
+                                    style={"description_width": "initial"}, layout=ipw.Layout(width="200px"))
             self.editors[f.name] = box.add_class("lw-prediction-edit")
         self.editor_box.children = list(self.editors.values())
         if change is not None:

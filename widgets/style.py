@@ -63,3 +63,39 @@ def figure_layout(width: int = 320, height: int = 260):
     import ipywidgets as ipw
 
     return ipw.Layout(width=f"{width}px", height=f"{height}px")
+
+
+#: CSS class that tells the page's math typesetter (MathJax) to leave an element's text alone.
+NO_MATH = "mathjax_ignore"
+
+
+def inert_html(text: str) -> str:
+    """User text as inert HTML for a widget label: escaped, and marked so that ``$...$`` is never typeset.
+
+    ipywidgets typesets every description label with MathJax, so a factor named ``$\\style{color:red}{BIG}$``
+    would restyle the page. Use with ``description_allow_html=True``.
+
+    Examples
+    --------
+    >>> inert_html("Oven $x$ <b>")
+    '<span class="mathjax_ignore">Oven $x$ &lt;b&gt;</span>'
+    """
+    import html
+
+    return f'<span class="{NO_MATH}">{html.escape(str(text), quote=True)}</span>'
+
+
+def plain_text(label: str) -> str:
+    """The text a label made by :func:`inert_html` shows (any other string is returned unchanged).
+
+    Examples
+    --------
+    >>> plain_text(inert_html("Oven $x$ <b>"))
+    'Oven $x$ <b>'
+    """
+    import html
+
+    prefix, suffix = f'<span class="{NO_MATH}">', "</span>"
+    if label.startswith(prefix) and label.endswith(suffix):
+        return html.unescape(label[len(prefix):-len(suffix)])
+    return label
