@@ -1,17 +1,18 @@
 """The offline single-file export: one HTML page that still computes, with no network and no Python.
 
-The page embeds, per response, exactly what the kernel's cached predictor holds
-(:class:`levelwise.prediction.Predictor`): the exponent matrix, the coded coefficients,
-the coding centre and half-range, ``R^-1`` from the pivoted QR, ``s`` and the t quantile of
-the residual degrees of freedom. A small hand-written script evaluates, at the slider
-settings, the same formulas as the kernel::
+The page embeds, per response, exactly the payload of the fit's prediction engine
+(:meth:`levelwise.PredictionEngine.payload`): the factors, the exponent matrix, the coded
+coefficients, a factor F of their covariance, the coding centre and half-range, the factor
+ranges, the half-width scale c (t quantile times s) and the leverage limit. A small
+hand-written script evaluates, at the slider settings, the same formulas as the engine::
 
     coded = (x - centre) / scale
     row_j = prod_i coded_i ** E[j, i]
     mean  = row . beta
-    h     = || row R^-1 ||^2
-    CI    = mean -/+ t * s * sqrt(h)         (confidence interval for the mean)
-    PI    = mean -/+ t * s * sqrt(1 + h)     (prediction interval for a single new run)
+    h     = || row F ||^2
+    CI    = mean -/+ c * sqrt(h)             (confidence interval for the mean)
+    PI    = mean -/+ c * sqrt(h + extra)     (prediction interval for a single new run)
+    extrapolated: a factor the model uses outside [low, high], or h > limit
 
 and draws the per-factor traces with their bands and the surface slice in plain SVG and
 canvas. Nothing is fetched: no CDN, no fonts, no scripts from elsewhere. The numbers at
@@ -45,24 +46,6 @@ def _finite_or_none(value):
     return value if np.isfinite(value) else None
 
 
-def _variables(fit, predictor, factor_names, factors) -> list:
-    """The fit's coded variables on the page: a continuous factor's (x - center) / scale, or one contrast column
-    of a categorical factor as a value per level of the page's factor (None for a level the fit never saw)."""
-    out = []
-    for j, name in enumerate(fit.factor_names):
-        i = factor_names.index(name)
-        contrasts = getattr(fit, "contrasts", ()) or ()
-        if name in (getattr(fit, "categories", None) or {}):
-            seen = list(fit.categories[name])
-            contrast = contrasts[j]
-            for c in range(contrast.shape[1]):
-                table = [float(contrast[seen.index(lv), c]) if lv in seen else None for lv in factors[i].levels]
-                out.append({"factor": i, "table": table})
-        else:
-            out.append({"factor": i, "center": float(predictor.center[j]), "scale": float(predictor.scale[j])})
-    return out
-
-
 def _run_column(values, factor) -> np.ndarray:
     """A run-table column as numbers: natural settings, or the level index of a categorical factor."""
     levels = list(getattr(factor, "levels", ()) or ())
@@ -76,25 +59,18 @@ def payload(source: StudySource) -> dict:
     """Everything the page needs, as plain JSON-able numbers (the model per response, the runs, the text)."""
     shared = shared_model(source, read_only=True)
     fits = _fits_of(shared)
-    factor_names = [f.name for f in source.factors]
     responses = []
     for name in source.responses:
         fit = fits.get(name)
         if fit is None:
             continue
-        predictor = fit.predictor
         responses.append({
             "name": name,
             "units": source.units.get(name, ""),
             "terms": list(fit.terms),
-            "exponents": np.asarray(predictor.exponents, dtype=int).tolist(),
-            "vars": _variables(fit, predictor, factor_names, source.factors),
-            "beta": [float(b) for b in predictor.beta],
-            "rinv": [[float(v) for v in row] for row in predictor.rinv],
-            "s": _finite_or_none(predictor.s),
+            "s": _finite_or_none(fit.s),
             "df": int(fit.df_resid),
-            "level": float(fit.level),
-            "t": _finite_or_none(fit.t_quantile(fit.level)),
+            **fit.engine.payload(),  # the one prediction engine: the page evaluates exactly this
         })
     runs = np.column_stack([_run_column(source.data[f.name], f) for f in source.factors])
     runs = runs[np.isfinite(runs).all(axis=1)]

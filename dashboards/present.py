@@ -89,9 +89,9 @@ def study_goals(source: StudySource, shared) -> dict:
         low, high = float(values.min()), float(values.max())
         target = float(spec["target"]) if kind == "target" and spec.get("target") is not None else None
         goals[name] = {
-            "maximize": {"low": low, "target": high},
-            "minimize": {"target": low, "high": high},
-            "target": {"low": low, "target": target, "high": high},
+            "maximize": {"lower_limit": low, "target": high},
+            "minimize": {"target": low, "upper_limit": high},
+            "target": {"lower_limit": low, "target": target, "upper_limit": high},
         }[kind] | {"kind": kind}
     return goals
 

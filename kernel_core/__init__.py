@@ -6,7 +6,6 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
 from ._version import __version__
-from .boxcox import BoxCoxResult, box_cox
 from .design import (
     Design,
     DesignEvaluation,
@@ -23,23 +22,34 @@ from .design import (
     write_run_sheet,
 )
 from .design._runsheet_reader import FilledRunSheet, read_run_sheet
-from .effects import LenthResult, effects, half_normal, lenth
-from .fit import Fit, fit
-from .formula import ModelSpec, parse_model
-from .optimize import (
+from .model import (
+    BoxCoxResult,
+    Fit,
     Goal,
+    LenthResult,
+    ModelSpec,
     Optimum,
+    PredictionEngine,
+    Reduction,
     SteepestPath,
+    box_cox,
+    effects,
+    fit,
     fit_responses,
+    half_normal,
+    lenth,
     maximize,
     minimize,
     optimize,
     overall_desirability,
+    parse_model,
+    predict,
+    reduce,
+    refit,
+    slice_grid,
     steepest_path,
     target,
 )
-from .reduce import Reduction, reduce, refit
-from .surface import slice_grid, slice_polynomials
 
 __all__ = [
     "__version__",
@@ -49,9 +59,11 @@ __all__ = [
     "LevelwiseError",
     "LevelwiseWarning",
     "ModelSpec",
+    "PredictionEngine",
     "fit",
     "full_factorial",
     "parse_model",
+    "predict",
     # analysis on a fit
     "BoxCoxResult",
     "Goal",
@@ -71,7 +83,6 @@ __all__ = [
     "reduce",
     "refit",
     "slice_grid",
-    "slice_polynomials",
     "steepest_path",
     "target",
 ]
@@ -98,7 +109,6 @@ from .study import Study  # noqa: E402
 __all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
 
 # Beyond two levels (issue 14).
-from ._term_tests import term_tests  # noqa: E402
 from .design import (  # noqa: E402
     SecondOrderAliasing,
     conference_matrix,
@@ -106,6 +116,7 @@ from .design import (  # noqa: E402
     general_factorial,
     second_order_aliasing,
 )
+from .model import term_tests  # noqa: E402
 
 __all__ += [
     "SecondOrderAliasing",

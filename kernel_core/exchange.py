@@ -608,7 +608,7 @@ def anova_table(fit) -> pd.DataFrame:
 
 def prediction_table(fit, settings, level: float | None = None) -> pd.DataFrame:
     """Settings (natural units) beside the predicted mean, confidence and prediction intervals."""
-    natural = fit.settings_array(settings)
+    natural = fit.engine.table(settings)
     frame = pd.DataFrame(natural, columns=list(fit.factor_names))
     return pd.concat([frame, fit.predict(frame, level=level)], axis=1)
 

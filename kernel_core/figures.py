@@ -47,7 +47,7 @@ def trace_figure(fit, settings, factors=None, points: int = 50, level: float | N
     """
     arrays = trace_arrays(fit, settings, factors, points, level)
     level = fit.level if level is None else level
-    base = fit.settings_array(settings)[0]
+    base = fit.engine.table(settings)[0]
     fig = _new_figure(3.0 * len(arrays) + 0.5, 3.2)
     axes = fig.subplots(1, len(arrays), sharey=True, squeeze=False)[0]
     for ax, (name, tr) in zip(axes, arrays.items()):

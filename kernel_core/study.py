@@ -40,7 +40,7 @@ import pandas as pd
 
 from ._errors import LevelwiseError, OutsideEditError, StudyFileError, describe
 from .design import Factor, as_factors
-from .formula import parse_model
+from .model import parse_model
 
 #: The format this version of levelwise writes.
 FORMAT_VERSION = 1
@@ -829,7 +829,7 @@ class Study:
     # ----- fitting ---------------------------------------------------------------------------
     def fit(self, response: str, model: str | None = None, *, level: float = 0.95):
         """Fit *response* with its model (or *model*) on :meth:`data`, coded by the study factors."""
-        from .fit import fit
+        from .model import fit
 
         response = self._response(response)
         if model is None:

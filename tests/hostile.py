@@ -32,6 +32,6 @@ def hostile_study():
     try:
         study.set_model(response, "two_factor_interactions")
     except ValueError:  # before the agreed preset names land
-        study.set_model(response, "interactions")
+        study.set_model(response, "two_factor_interactions")
     study.exclude(study.run_ids[-1], reason="Reason " + PAYLOAD)
     return study

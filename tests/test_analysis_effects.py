@@ -50,7 +50,7 @@ def test_eddy_current_effects_as_published(eddy):
 
 def test_effects_leave_out_squared_terms(data_dir):
     data = pd.read_csv(data_dir / "IMPROVE-5_5_3_2_2.csv")
-    result = effects(fit(data, "Y1", "quadratic", factors=[Factor(c, -1, 1) for c in ("X1", "X2", "X3")]))
+    result = effects(fit(data, "Y1", "full_second_order", factors=[Factor(c, -1, 1) for c in ("X1", "X2", "X3")]))
     # common practice: effects are defined for two-level terms only (not for x^2 terms nor the intercept)
     assert list(result.index) == ["X1", "X2", "X3", "X1:X2", "X1:X3", "X2:X3"]
 

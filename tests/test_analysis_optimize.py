@@ -11,6 +11,7 @@ import pytest
 
 from levelwise import (
     Factor,
+    Goal,
     LevelwiseError,
     fit,
     fit_responses,
@@ -21,11 +22,13 @@ from levelwise import (
     steepest_path,
     target,
 )
+from levelwise.model._optimize import as_goal
 
 ALPHA = 1.633  # e-Handbook 5.5.3.2.2 axial distance, printed 1.63 (see module docstring)
 NAMES = ["X1", "X2", "X3"]
 CODED = [Factor(n, -1, 1) for n in NAMES]
-MODELS = {"Y1": "quadratic", "Y2": "quadratic", "Y3": "linear", "Y4": "quadratic"}  # e-Handbook 5.5.3.2.2
+MODELS = {"Y1": "full_second_order", "Y2": "full_second_order", "Y3": "main_effects",  # e-Handbook 5.5.3.2.2
+          "Y4": "full_second_order"}
 
 # e-Handbook 5.5.3.2.2, the four fitted models (coded units), as printed
 PUBLISHED = {
@@ -44,10 +47,10 @@ PUBLISHED_R2 = {"Y1": (0.8369, 0.6903), "Y2": (0.7137, 0.4562), "Y3": (0.682, 0.
 # e-Handbook 5.5.3.2.2 desirability specification. T for Y1 and Y2 is not printed on the handbook page: 170 and
 # 1300 are the values used by Derringer & Suich (1980) as quoted in secondary material.
 GOALS = {
-    "Y1": maximize(low=120, target=170, s=1),
-    "Y2": maximize(low=1000, target=1300, s=1),
-    "Y3": target(low=400, target=500, high=600, s=1, t=1),
-    "Y4": target(low=60, target=67.5, high=75, s=1, t=1),
+    "Y1": maximize(lower_limit=120, target=170, s=1),
+    "Y2": maximize(lower_limit=1000, target=1300, s=1),
+    "Y3": target(lower_limit=400, target=500, upper_limit=600, s=1, t=1),
+    "Y4": target(lower_limit=60, target=67.5, upper_limit=75, s=1, t=1),
 }
 
 
@@ -136,14 +139,14 @@ def test_linear_constraint_is_respected(fits):
 
 def test_goals_as_dicts_give_the_same_optimum(fits):
     as_dicts = {
-        "Y1": {"goal": "maximise", "low": 120, "target": 170},  # British spelling accepted
-        "Y2": {"goal": "maximize", "low": 1000, "target": 1300},
-        "Y3": {"goal": "target", "low": 400, "target": 500, "high": 600},
-        "Y4": {"goal": "target", "low": 60, "target": 67.5, "high": 75},
+        "Y1": {"goal": "maximise", "lower_limit": 120, "target": 170},  # British spelling accepted
+        "Y2": {"goal": "maximize", "lower_limit": 1000, "target": 1300},
+        "Y3": {"goal": "target", "lower_limit": 400, "target": 500, "upper_limit": 600},
+        "Y4": {"goal": "target", "lower_limit": 60, "target": 67.5, "upper_limit": 75},
     }
     assert optimize(fits, as_dicts, seed=4, starts=4).settings == optimize(fits, GOALS, seed=4, starts=4).settings
     with pytest.raises(LevelwiseError, match="unknown key"):
-        optimize(fits, {"Y1": {"goal": "maximize", "low": 1, "taget": 2}})
+        optimize(fits, {"Y1": {"goal": "maximize", "lower_limit": 1, "taget": 2}})
 
 
 def test_a_factor_fixed_by_the_region_stays_fixed(fits):
@@ -160,19 +163,24 @@ def test_same_seed_same_answer(fits):
     assert a.settings == b.settings
 
 
-def test_desirability_functions_with_weights_and_importance():
+def test_desirability_functions_with_exponents_and_weights():
     # Derringer & Suich (1980) forms as printed in e-Handbook 5.5.3.2.2
-    up = maximize(low=10, target=20, s=2)
+    up = maximize(lower_limit=10, target=20, s=2)
     assert up([5, 15, 20, 25]).tolist() == pytest.approx([0, 0.25, 1, 1])  # ((15-10)/10)^2 = 0.25
-    down = minimize(target=1, high=3, t=0.5)
+    down = minimize(target=1, upper_limit=3, t=0.5)
     assert down([0, 2, 3, 4]).tolist() == pytest.approx([1, 0.5**0.5, 0, 0])  # ((3-2)/2)^0.5
-    aim = target(low=0, target=4, high=6, s=1, t=3)
+    aim = target(lower_limit=0, target=4, upper_limit=6, s=1, t=3)
     assert aim([-1, 2, 4, 5, 7]).tolist() == pytest.approx([0, 0.5, 1, 0.5**3, 0])  # (2/4)^1, ((6-5)/2)^3
-    # weighted geometric mean with importance r: (d1^r1 d2^r2)^(1/(r1+r2))
+    # weighted geometric mean with weights w in D: (d1^w1 d2^w2)^(1/(w1+w2))
     assert overall_desirability([0.25, 0.81], [1, 3]) == pytest.approx((0.25 * 0.81**3) ** 0.25)
     assert overall_desirability([0.0, 1.0], [1, 1]) == 0.0
-    with pytest.raises(LevelwiseError, match="low < target"):
-        maximize(low=20, target=10)
+    with pytest.raises(LevelwiseError, match="lower_limit < target"):
+        maximize(lower_limit=20, target=10)
+    goal = Goal("target", lower_limit=0, target=4, upper_limit=6, s=1, t=3, weight=2)
+    assert (goal.lower_limit, goal.target, goal.upper_limit, goal.s, goal.t, goal.weight) == (0, 4, 6, 1, 3, 2)
+    assert as_goal({"goal": "target", "lower_limit": 0, "target": 4, "upper_limit": 6, "t": 3}) == target(0, 4, 6, t=3)
+    with pytest.raises(LevelwiseError, match=r"'weight' \(was 'importance'\), 'lower_limit' \(was 'low'\)"):
+        as_goal({"goal": "maximize", "low": 1, "target": 2, "importance": 2}, "Y1")
 
 
 def test_goal_for_an_unfitted_response_is_refused(fits):
@@ -183,7 +191,7 @@ def test_goal_for_an_unfitted_response_is_refused(fits):
 def test_fit_responses_names_the_failing_response(data_dir):
     data = pd.read_csv(data_dir / "IMPROVE-5_5_3_2_2.csv")
     with pytest.raises(LevelwiseError, match="Response 'Y2'"):
-        fit_responses(data, {"Y1": "linear", "Y2": "X1 + Nope"}, factors=CODED)
+        fit_responses(data, {"Y1": "main_effects", "Y2": "X1 + Nope"}, factors=CODED)
 
 
 def test_steepest_path_follows_the_coded_coefficients():

@@ -84,7 +84,7 @@ def test_quadratic_terms_are_kept_hierarchical():
     x = np.tile([-1.0, 0.0, 1.0], 6)
     z = np.repeat([-1.0, 0.0, 1.0], 6)
     data = pd.DataFrame({"A": x, "B": z, "y": 2 + 0.0 * x + 3 * x**2 + 0.5 * z + rng.normal(0, 0.3, 18)})
-    final, _ = reduce(fit(data, "y", "quadratic"))
+    final, _ = reduce(fit(data, "y", "full_second_order"))
     assert "A^2" in final.terms and "A" in final.terms  # hierarchy: A stays while A^2 stays (common practice)
 
 

@@ -1,4 +1,5 @@
-"""Surface slices by exact separable polynomial evaluation, against point predictions and statsmodels.
+"""Surface slices by exact separable polynomial evaluation, against point predictions and statsmodels,
+and the one settings check shared by every prediction call.
 
 References: levelwise's own point predictor (``Fit.predict``, itself checked against statsmodels elsewhere) and
 statsmodels ``OLS.get_prediction`` (reference library) on a model written in natural units.
@@ -9,7 +10,7 @@ import pandas as pd
 import pytest
 import statsmodels.formula.api as smf
 
-from levelwise import Factor, LevelwiseError, fit, slice_grid, slice_polynomials
+from levelwise import Factor, LevelwiseError, fit, slice_grid
 
 NAMES = ["x1", "x2", "x3", "x4", "x5"]
 
@@ -40,7 +41,7 @@ def brute_force(result, grid, x, y, settings, level=None):
 @pytest.mark.parametrize(("x", "y"), [("x1", "x2"), ("x3", "x5"), ("x4", "x1")])
 def test_slice_equals_point_predictions(quadratic_data, x, y):
     data, factors = quadratic_data
-    result = fit(data, "y", "quadratic", factors=factors)
+    result = fit(data, "y", "full_second_order", factors=factors)
     settings = {"x1": 25.0, "x2": 0.2, "x3": 250.0, "x4": -1.0, "x5": 2.7}
     grid = slice_grid(result, x, y, settings, shape=(23, 17))
     assert grid["mean"].shape == (17, 23)
@@ -66,14 +67,13 @@ def test_slice_of_a_cubic_model_with_a_three_factor_term(quadratic_data):
     assert np.abs(grid["mean"] - points["mean"].to_numpy().reshape(shape)).max() < 1e-10  # point predictions
     ci_half = (points["ci_high"] - points["mean"]).to_numpy().reshape(shape)
     assert np.abs(grid["ci_half"] - ci_half).max() < 1e-10  # point predictions at level 0.9
-    poly = slice_polynomials(result, "x1", "x2", settings)
-    assert poly["mean_coef"].shape == (4, 3)  # degree 3 in x1, 2 in x2
-    assert poly["var_coef"].shape == (7, 5)  # twice the degree
+    pi_half = (points["pi_high"] - points["mean"]).to_numpy().reshape(shape)
+    assert np.abs(grid["pi_half"] - pi_half).max() < 1e-10
 
 
 def test_slice_against_statsmodels_get_prediction(quadratic_data):
     data, factors = quadratic_data
-    result = fit(data, "y", "quadratic", factors=factors)
+    result = fit(data, "y", "full_second_order", factors=factors)
     terms = NAMES + [f"{a}:{b}" for i, a in enumerate(NAMES) for b in NAMES[i + 1:]] + [f"I({n}**2)" for n in NAMES]
     reference = smf.ols("y ~ " + " + ".join(terms), data=data).fit()
     settings = {"x3": 230.0, "x4": 2.5, "x5": 1.5}
@@ -97,31 +97,53 @@ def test_slice_of_a_saturated_fit_has_a_mean_but_no_intervals(data_dir):
     assert np.isnan(grid["ci_half"]).all()  # no residual df: intervals not available (common practice)
 
 
-class WithoutPolynomialPath:
-    """A fit seen through a proxy that hides the cached R^-1, forcing the point-prediction path."""
-
-    def __init__(self, inner):
-        self._inner = inner
-
-    def __getattr__(self, name):
-        if name == "rinv":
-            raise AttributeError(name)
-        return getattr(self._inner, name)
-
-
-def test_slice_fallback_for_non_polynomial_models(quadratic_data):
+def test_every_prediction_call_refuses_missing_settings_alike(quadratic_data):
+    """One settings check: {} is refused by slice, refresh, predict, trace and traces, naming the factors."""
     data, factors = quadratic_data
-    result = fit(data, "y", "quadratic", factors=factors)
-    settings = {"x3": 240.0, "x5": 2.0}
-    exact = slice_grid(result, "x1", "x4", settings, shape=(6, 5))
-    fallback = slice_grid(WithoutPolynomialPath(result), "x1", "x4", settings, shape=(6, 5))
-    for key in ("mean", "ci_half", "pi_half"):
-        assert np.abs(exact[key] - fallback[key]).max() < 1e-10  # the two evaluations agree
+    result = fit(data, "y", "full_second_order", factors=factors)
+    calls = {
+        "slice": lambda s: slice_grid(result, "x1", "x4", s, shape=(6, 5)),
+        "refresh": lambda s: result.refresh(s),
+        "predict": lambda s: result.predict(s),
+        "trace": lambda s: result.trace("x1", s),
+        "traces": lambda s: result.traces(s),
+    }
+    for call in calls.values():
+        with pytest.raises(LevelwiseError, match=r"missing factor\(s\) \[('x1', )?'x2', 'x3'"):
+            call({})  # every call: the same refusal
+    # The swept factors may be left out; every other factor the model uses must be given.
+    held = {"x2": 0.3, "x3": 240.0, "x5": 2.0}
+    grid = slice_grid(result, "x1", "x4", held, shape=(6, 5))
+    points, shape = brute_force(result, grid, "x1", "x4", held)
+    assert np.abs(grid["mean"] - points["mean"].to_numpy().reshape(shape)).max() < 1e-10  # point predictions
+    with pytest.raises(LevelwiseError, match=r"missing factor\(s\) \['x5'\]"):
+        slice_grid(result, "x1", "x4", {"x2": 0.3, "x3": 240.0}, shape=(6, 5))
+    # points must be an integer from 2 to 100000 everywhere.
+    for call in (lambda: result.trace("x1", dict(held, x1=20.0, x4=0.0), points=2.7),
+                 lambda: result.traces(dict(held, x1=20.0, x4=0.0), points=2.7),
+                 lambda: result.refresh(dict(held, x1=20.0, x4=0.0), points=2.7)):
+        with pytest.raises(LevelwiseError, match="'points' parameter must be an integer"):
+            call()
+
+
+def test_predict_needs_only_the_factors_the_model_uses(quadratic_data):
+    data, factors = quadratic_data
+    result = fit(data, "y", "x1 + x2 + x1:x2", factors=factors)  # x3..x5 are factors of the fit, unused
+    small = result.predict({"x1": 20.0, "x2": 0.3}).iloc[0]
+    full = result.predict({"x1": 20.0, "x2": 0.3, "x3": 201.0, "x4": 4.0, "x5": 1.1}).iloc[0]
+    reference = smf.ols("y ~ x1 * x2", data=data).fit()  # statsmodels formula OLS on the same runs
+    expected = reference.get_prediction(pd.DataFrame({"x1": [20.0], "x2": [0.3]})).summary_frame(alpha=0.05)
+    assert small["mean"] == pytest.approx(expected["mean"].iloc[0], rel=1e-9)
+    assert small["pi_high"] == pytest.approx(expected["obs_ci_upper"].iloc[0], rel=1e-9)
+    assert small["mean"] == full["mean"] and small["pi_high"] == full["pi_high"]
+    assert result.refresh({"x1": 20.0, "x2": 0.3}, points=5)["point"]["mean"] == pytest.approx(small["mean"], rel=1e-12)
+    with pytest.raises(LevelwiseError, match=r"names \['x9'\]"):
+        result.predict({"x1": 20.0, "x2": 0.3, "x9": 1.0})
 
 
 def test_slice_bad_input(quadratic_data):
     data, factors = quadratic_data
-    result = fit(data, "y", "quadratic", factors=factors)
+    result = fit(data, "y", "full_second_order", factors=factors)
     with pytest.raises(LevelwiseError, match="'x' parameter must be one of"):
         slice_grid(result, "nope", "x2", {})
     with pytest.raises(LevelwiseError, match="two different factors"):
@@ -131,4 +153,4 @@ def test_slice_bad_input(quadratic_data):
     with pytest.raises(LevelwiseError, match="'level'"):
         slice_grid(result, "x1", "x2", {}, level=1.0)
     with pytest.raises(LevelwiseError, match="factor 'x3' must be a finite number"):
-        slice_grid(result, "x1", "x2", {"x3": float("nan")})
+        slice_grid(result, "x1", "x2", {"x3": float("nan"), "x4": 0.0, "x5": 2.0})

@@ -68,7 +68,7 @@ def test_level_outside_unit_interval():
 
 def test_non_finite_setting_at_prediction():
     result = fit(small_data(), "y", "A + B")
-    with pytest.raises(LevelwiseError, match="setting column 'B' must hold finite numbers"):
+    with pytest.raises(LevelwiseError, match="setting for factor 'B' must be a finite number"):
         result.predict({"A": 0.5, "B": np.inf})
     with pytest.raises(LevelwiseError, match=r"missing factor\(s\) \['B'\]"):
         result.predict({"A": 0.5})

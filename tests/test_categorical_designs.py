@@ -114,7 +114,7 @@ def test_general_factorial_evaluated_is_orthogonal_between_terms():
 def test_categorical_power_refused_and_presets_skip_it():
     with pytest.raises(LevelwiseError, match="raises categorical factor 'Supplier' to a power"):
         lw.optimal_design(FACTORS, "Supplier + I(Supplier**2) + Temp", runs=10, seed=1)
-    d = lw.optimal_design(FACTORS, "quadratic", runs=16, seed=1, starts=3)
+    d = lw.optimal_design(FACTORS, "full_second_order", runs=16, seed=1, starts=3)
     assert "Supplier^2" not in d.metadata["columns"] and "Temp^2" in d.metadata["columns"]
 
 

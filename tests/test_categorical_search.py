@@ -109,22 +109,16 @@ def test_steepest_path_refuses_interactions_with_a_categorical_factor():
 
 
 @pytest.mark.parametrize("level", LEVELS)
-def test_slice_polynomials_with_a_categorical_factor_held_match_statsmodels(level):
-    from levelwise.surface import evaluate_polynomials
-
+def test_slice_with_a_categorical_factor_held_matches_statsmodels(level):
     data = _data(4)
     fit = lw.fit(data, "y1", MODEL1, factors=FACTORS)
-    poly = lw.slice_polynomials(fit, "A", "B", {"Supplier": level})
-    xs, ys = np.linspace(8, 22, 6), np.linspace(0, 4, 5)  # a little beyond the range too
-    got = evaluate_polynomials(poly, xs, ys)
-    gx, gy = np.meshgrid(xs, ys)
+    got = lw.slice_grid(fit, "A", "B", {"A": 15.0, "B": 2.0, "Supplier": level}, shape=(6, 5))
+    gx, gy = np.meshgrid(got["x"], got["y"])
     frame = pd.DataFrame({"A": gx.ravel(), "B": gy.ravel(), "Supplier": level})
     ref = _sm(MODEL1, data, "y1").get_prediction(frame.assign(
         Supplier=pd.Categorical(frame["Supplier"], LEVELS))).summary_frame(alpha=0.05)  # statsmodels reference
-    np.testing.assert_allclose(got["mean"].ravel(), ref["mean"], rtol=1e-9)
-    np.testing.assert_allclose(got["ci_half"].ravel(), ref["mean_ci_upper"] - ref["mean"], rtol=1e-7)
-    np.testing.assert_allclose(got["pi_half"].ravel(), ref["obs_ci_upper"] - ref["mean"], rtol=1e-7)
+    np.testing.assert_allclose(np.ravel(got["mean"]), ref["mean"], rtol=1e-9)
+    np.testing.assert_allclose(np.ravel(got["ci_half"]), ref["mean_ci_upper"] - ref["mean"], rtol=1e-7)
+    np.testing.assert_allclose(np.ravel(got["pi_half"]), ref["obs_ci_upper"] - ref["mean"], rtol=1e-7)
     with pytest.raises(LevelwiseError, match="continuous factor"):
-        lw.slice_polynomials(fit, "A", "Supplier")
-    with pytest.raises(LevelwiseError, match="one of its levels"):
-        lw.slice_polynomials(fit, "A", "B", {"Supplier": "west"})
+        lw.slice_grid(fit, "A", "Supplier", {"A": 15.0, "B": 2.0, "Supplier": level})

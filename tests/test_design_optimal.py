@@ -15,10 +15,16 @@ from levelwise import (
     parse_model,
     plackett_burman,
 )
+from levelwise.model import monomials
+
+
+def model_matrix(spec, coded):
+    """Model matrix of *spec* at coded settings (the formula's exponent rows evaluated)."""
+    return monomials(np.asarray(coded, dtype=float), spec.exponents)
 
 
 def _det(design, model):
-    X = parse_model(model, design.factor_names).matrix(design.coded.to_numpy())
+    X = model_matrix(parse_model(model, design.factor_names), design.coded.to_numpy())
     return np.linalg.det(X.T @ X)
 
 
@@ -30,33 +36,34 @@ def test_hadamard_bound_interactions_3_factors_8_runs():
 
 
 def test_hadamard_bound_main_effects_7_factors_8_runs():
-    d = optimal_design(7, "linear", runs=8, seed=3)
-    assert _det(d, "linear") == pytest.approx(8.0**8, rel=1e-9)  # Hadamard's inequality, equality case
+    d = optimal_design(7, "main_effects", runs=8, seed=3)
+    assert _det(d, "main_effects") == pytest.approx(8.0**8, rel=1e-9)  # Hadamard's inequality, equality case
 
 
 def test_quadratic_design_reports_and_is_reproducible():
-    a = optimal_design(3, "quadratic", runs=14, seed=5, randomize=False)
-    b = optimal_design(3, "quadratic", runs=14, seed=5, randomize=False)
+    a = optimal_design(3, "full_second_order", runs=14, seed=5, randomize=False)
+    b = optimal_design(3, "full_second_order", runs=14, seed=5, randomize=False)
     pd.testing.assert_frame_equal(a.table, b.table)
     meta = a.metadata
-    X = parse_model("quadratic", a.factor_names).matrix(a.coded.to_numpy())
+    X = model_matrix(parse_model("full_second_order", a.factor_names), a.coded.to_numpy())
     p = X.shape[1]
     # D-efficiency = 100 det(X'X)^(1/p) / n (common practice definition), recomputed here.
     assert meta["d_efficiency"] == pytest.approx(100 * np.linalg.det(X.T @ X) ** (1 / p) / 14, rel=1e-9)
-    assert meta["average_prediction_variance"] == pytest.approx(evaluate(a, "quadratic").prediction_variance["mean"])
+    assert meta["average_prediction_variance"] == pytest.approx(
+        evaluate(a, "full_second_order").prediction_variance["mean"])
     assert np.all(np.abs(a.coded.to_numpy()) <= 1 + 1e-12)
 
 
 def test_i_criterion_lowers_average_variance():
-    d = optimal_design(2, "quadratic", runs=9, seed=2, starts=5)
-    i = optimal_design(2, "quadratic", runs=9, seed=2, starts=5, criterion="I")
+    d = optimal_design(2, "full_second_order", runs=9, seed=2, starts=5)
+    i = optimal_design(2, "full_second_order", runs=9, seed=2, starts=5, criterion="I")
     assert i.metadata["average_prediction_variance"] <= d.metadata["average_prediction_variance"] + 1e-12
     assert d.metadata["log_det"] >= i.metadata["log_det"] - 1e-12
 
 
 def test_constraints_respected_and_reached():
     fs = [Factor("A", 0, 1), Factor("B", 0, 1)]
-    d = optimal_design(fs, "quadratic", runs=10, constraints=["A + B <= 1.5"], seed=4)
+    d = optimal_design(fs, "full_second_order", runs=10, constraints=["A + B <= 1.5"], seed=4)
     total = d.table.A + d.table.B
     assert (total <= 1.5 + 1e-9).all()
     assert np.isclose(total, 1.5).any()  # runs sit on the constraint boundary
@@ -65,19 +72,19 @@ def test_constraints_respected_and_reached():
 def test_empty_region_and_too_few_runs():
     fs = [Factor("A", 0, 1), Factor("B", 0, 1)]
     with pytest.raises(LevelwiseError, match="empty region"):
-        optimal_design(fs, "linear", runs=6, constraints=["A + B >= 2.5"])
+        optimal_design(fs, "main_effects", runs=6, constraints=["A + B >= 2.5"])
     with pytest.raises(LevelwiseError, match="has 6 terms but the design would have only 5 runs"):
-        optimal_design(fs, "quadratic", runs=5)
+        optimal_design(fs, "full_second_order", runs=5)
     with pytest.raises(LevelwiseError, match="multiplies factors together; it must be linear"):
-        optimal_design(fs, "linear", runs=6, constraints=["A * B <= 0.5"])
+        optimal_design(fs, "main_effects", runs=6, constraints=["A * B <= 0.5"])
     with pytest.raises(LevelwiseError, match="'criterion' parameter must be 'D' or 'I'"):
-        optimal_design(fs, "linear", runs=6, criterion="A")
+        optimal_design(fs, "main_effects", runs=6, criterion="A")
 
 
 def test_fixed_runs_augment_and_progress():
     base = full_factorial(2, randomize=False)
     calls = []
-    d = optimal_design(2, "quadratic", runs=5, fixed_runs=base, seed=1, starts=4,
+    d = optimal_design(2, "full_second_order", runs=5, fixed_runs=base, seed=1, starts=4,
                        progress=lambda f, msg: calls.append(f))
     assert calls == [0.25, 0.5, 0.75, 1.0]
     # Only the new runs come back, as the next stage: block 2, run ids 5..9 after the four fixed runs.
@@ -88,20 +95,20 @@ def test_fixed_runs_augment_and_progress():
     assert both.table.run.tolist() == list(range(1, 10))
     pd.testing.assert_frame_equal(both.table.iloc[:4], base.table)  # the fixed runs first, untouched
     # The search optimised the nine runs together: its log det is that of the combined model matrix.
-    assert d.metadata["log_det"] == pytest.approx(np.log(_det(both, "quadratic")), rel=1e-9)
+    assert d.metadata["log_det"] == pytest.approx(np.log(_det(both, "full_second_order")), rel=1e-9)
     # A table of earlier runs: run ids continue after its 'run' column, the block after its 'block' column.
     table = base.table.assign(run=[11, 12, 13, 14], block=3)
-    later = optimal_design(2, "quadratic", runs=5, fixed_runs=table, seed=1, starts=2)
+    later = optimal_design(2, "full_second_order", runs=5, fixed_runs=table, seed=1, starts=2)
     assert sorted(later.table.run) == [15, 16, 17, 18, 19] and set(later.table.block) == {4}
     stopped = []
-    optimal_design(2, "linear", runs=4, starts=10, progress=lambda f, m: stopped.append(f) or False)
+    optimal_design(2, "main_effects", runs=4, starts=10, progress=lambda f, m: stopped.append(f) or False)
     assert len(stopped) == 1  # returning False stops the search
 
 
 def test_evaluate_alias_matrix_half_fraction():
     # 2^(3-1) with C = AB: A is aliased with BC, B with AC, C with AB, coefficient 1 (common practice).
     d = fractional_factorial(3, generators=["C=AB"], randomize=False)
-    ev = evaluate(d, "linear")
+    ev = evaluate(d, "main_effects")
     assert ev.alias_matrix.loc["A", "B:C"] == pytest.approx(1.0)
     assert ev.alias_matrix.loc["C", "A:B"] == pytest.approx(1.0)
     assert ev.alias_matrix.loc["A", "A:B"] == 0.0
@@ -109,7 +116,7 @@ def test_evaluate_alias_matrix_half_fraction():
 
 
 def test_evaluate_full_factorial_variance_and_power():
-    ev = evaluate(full_factorial(3, randomize=False), "linear")
+    ev = evaluate(full_factorial(3, randomize=False), "main_effects")
     # X'X = 8 I, so x'(X'X)^-1 x = (1 + |x|^2)/8: 1/8 at the centre, 4/8 at a corner; mean over the cube
     # (1 + 3 * 1/3)/8 = 0.25 (E[x^2] = 1/3 for x uniform on [-1, 1]).
     assert ev.prediction_variance == pytest.approx({"min": 0.125, "mean": 0.25, "max": 0.5})
@@ -124,7 +131,7 @@ def test_evaluate_full_factorial_variance_and_power():
 def test_evaluate_plackett_burman_partial_aliasing():
     # 12-run Plackett-Burman: each main effect is partially aliased with two-factor interactions not involving
     # it, with coefficients +-1/3 (from memory: common knowledge of the 12-run design).
-    ev = evaluate(plackett_burman(5, randomize=False), "linear")
+    ev = evaluate(plackett_burman(5, randomize=False), "main_effects")
     values = np.abs(ev.alias_matrix.loc[["A", "B", "C", "D", "E"]].to_numpy())
     assert set(np.round(np.unique(values), 12)) <= {0.0, round(1 / 3, 12)}
     assert ev.alias_matrix.loc["A", "A:B"] == 0.0
@@ -136,7 +143,7 @@ def test_evaluate_inestimable_and_vif():
     assert ev.rank == 6 and len(ev.inestimable) == 1 and set(ev.inestimable) <= {"A:B", "C:D"}
     assert np.isinf(ev.vif).all()
     with pytest.raises(LevelwiseError, match="has 11 terms but the design has only 8 runs"):
-        evaluate(d, "interactions")
+        evaluate(d, "two_factor_interactions")
 
 
 def test_two_level_categorical_factor_in_optimal_design():
@@ -149,16 +156,16 @@ def test_two_level_categorical_factor_in_optimal_design():
     assert ev.rank == 8
     assert ev.prediction_variance["mean"] == pytest.approx(d.metadata["average_prediction_variance"], rel=1e-9)
     with pytest.raises(LevelwiseError, match=r"raises categorical factor\(s\) \['Metal'\] to a power"):
-        optimal_design(fs, "quadratic", runs=12)
+        optimal_design(fs, "full_second_order", runs=12)
     with pytest.raises(LevelwiseError, match=r"names categorical factor\(s\) \['Metal'\]"):
         optimal_design(fs, model, runs=12, constraints="Metal + T <= 3")
     # A three-level categorical factor is searched over its levels (issue 14; tests/test_categorical_designs.py).
-    three = optimal_design([Factor("T", 0, 1), Factor("S", levels=["a", "b", "c"])], "linear", runs=6, seed=1)
+    three = optimal_design([Factor("T", 0, 1), Factor("S", levels=["a", "b", "c"])], "main_effects", runs=6, seed=1)
     assert set(three.table["S"]) == {"a", "b", "c"}
 
 
 def test_non_regular_design_has_no_alias_chains():
-    d = optimal_design(2, "linear", runs=4, seed=1)
+    d = optimal_design(2, "main_effects", runs=4, seed=1)
     assert d.generators is None and d.resolution is None
     with pytest.raises(LevelwiseError, match="regular two-level designs only.*evaluate"):
         d.aliases()

@@ -70,7 +70,8 @@ def test_reduced_model_fitted_values_and_prediction(eddy):
     result = fit(eddy, "Y", "X1 + X2", factors=CODED)
     # e-Handbook 5.6.1 fitted values, printed to 5 decimals
     published = [1.54125, 4.64375, 0.67375, 3.77625, 1.54125, 4.64375, 0.67375, 3.77625]
-    assert result.fitted == pytest.approx(published, abs=5e-6)
+    assert result.fitted.to_numpy() == pytest.approx(published, abs=5e-6)
+    assert list(result.fitted.index) == list(range(1, 9))  # named by run id (the data has no run column)
     prediction = result.predict({"X1": -1, "X2": -1, "X3": 0})
     assert prediction["mean"].iloc[0] == pytest.approx(1.54125, abs=5e-6)  # e-Handbook 5.6.1
 

@@ -50,9 +50,9 @@ def test_export_of_a_categorical_study_is_written_with_its_levels(categorical_ex
     data = _payload(html_path)
     assert data["factors"][2] == {"name": "Supplier", "units": "", "levels": LEVELS}
     model = data["responses"][0]
-    tables = [v["table"] for v in model["vars"] if "table" in v]
+    contrasts = [(v["levels"], v["values"]) for v in model["vars"] if "levels" in v]
     # Sum-to-zero contrast columns over the levels (the fit's coding): -1 at the first level.
-    assert tables == [[-1.0, 1.0, 0.0], [-1.0, 0.0, 1.0]]
+    assert contrasts == [(LEVELS, [-1.0, 1.0, 0.0]), (LEVELS, [-1.0, 0.0, 1.0])]
     assert len(model["exponents"][0]) == len(model["vars"]) == 4
 
 

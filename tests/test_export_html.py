@@ -44,6 +44,21 @@ def test_export_refuses_a_missing_study(tmp_path, capsys):
     assert not (tmp_path / "x.html").exists()
 
 
+def embedded_data(text):
+    return json.loads(re.search(r'<script id="lw-data" type="application/json">(.*?)</script>', text, re.S).group(1))
+
+
+def test_export_embeds_exactly_the_engine_payload(export_file):
+    """The page's numbers per response are the prediction engine's payload of the kernel's own fit."""
+    data = embedded_data(export_file.read_text(encoding="utf-8"))
+    reference = kernel_reference(open_study("demo"))
+    assert [m["name"] for m in data["responses"]] == list(reference)
+    for model in data["responses"]:
+        expected = json.loads(json.dumps(reference[model["name"]].engine.payload()))  # the same JSON round trip
+        for key, value in expected.items():
+            assert model[key] == value, key
+
+
 def test_export_payload_escapes_script_end(tmp_path):
     source = open_study("demo")
     import dataclasses
@@ -89,12 +104,22 @@ def test_export_computes_offline_like_the_kernel(export_file, browser):
     for name, model_fit in reference.items():
         assert after["responses"][name]["mean"] != before["responses"][name]["mean"]
         expected = model_fit.predict(after["settings"]).iloc[0]  # the kernel's numbers at the page's settings
-        for key in ("mean", "ci_low", "ci_high", "pi_low", "pi_high"):
+        for key in ("mean", "ci_low", "ci_high", "pi_low", "pi_high", "leverage"):
             assert after["responses"][name][key] == pytest.approx(expected[key], rel=1e-9, abs=1e-9)
+        assert after["responses"][name]["extrapolated"] is bool(expected["extrapolated"])
     # The text a reader sees is the same number, rounded.
     row = page.locator(".lw-pred-row").first
     shown = float(row.locator(".lw-mean").inner_text().split()[0])
     assert shown == pytest.approx(after["responses"][source.responses[0]]["mean"], rel=1e-3)
+    # Off the tested region the page applies the engine's extrapolation rule too.
+    first.focus()
+    for _ in range(120):
+        first.press("ArrowRight")
+    edge = json.loads(numbers.get_attribute("data-numbers"))
+    for name, model_fit in reference.items():
+        expected = model_fit.predict(edge["settings"]).iloc[0]
+        assert edge["responses"][name]["mean"] == pytest.approx(expected["mean"], rel=1e-9, abs=1e-9)
+        assert edge["responses"][name]["extrapolated"] is bool(expected["extrapolated"])
     # Clicking the surface slice moves the two slice factors' settings.
     page.locator("#lw-canvas").click(position={"x": 40, "y": 40})
     clicked = json.loads(numbers.get_attribute("data-numbers"))["settings"]
@@ -129,4 +154,5 @@ def test_export_of_a_saturated_fit_says_not_available(tmp_path):
     assert "NaN" not in block and "Infinity" not in block  # not JSON: the page's JSON.parse would fail
     data = json.loads(block)
     assert data["responses"][0]["s"] is None and data["responses"][0]["df"] == 0
+    assert data["responses"][0]["c"] is None  # no interval scale without residual degrees of freedom
     assert "nothing left to judge its error by" in text

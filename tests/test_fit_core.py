@@ -32,13 +32,13 @@ def test_full_quadratic_on_half_fraction_names_inestimable_squares():
     # Common practice: on a two-level design with centre points all squared columns are equal (1 at corners,
     # 0 at centres), so only one pure quadratic is estimable; B^2..E^2 are each the same column as A^2.
     with pytest.raises(LevelwiseError) as info:
-        fit(data, "y", "quadratic", factors=CODED5)
+        fit(data, "y", "full_second_order", factors=CODED5)
     message = str(info.value)
     for term in ["B^2", "C^2", "D^2", "E^2"]:
         assert f"'{term}' = +1*A^2" in message
     assert "4 term(s) are aliased" in message
     with pytest.warns(LevelwiseWarning, match="They were dropped from the fit"):
-        result = fit(data, "y", "quadratic", factors=CODED5, on_rank_deficiency="warn")
+        result = fit(data, "y", "full_second_order", factors=CODED5, on_rank_deficiency="warn")
     assert list(result.aliased) == ["B^2", "C^2", "D^2", "E^2"]
     assert set(result.aliased.values()) == {"+1*A^2"}
     # Resolution V (E = ABCD): every main effect and 2-factor interaction stays estimable (common practice).
@@ -50,7 +50,7 @@ def test_full_quadratic_on_half_fraction_names_inestimable_squares():
 def test_no_minimum_norm_split_in_warn_mode():
     data = half_fraction_with_centres(seed=4)
     with pytest.warns(LevelwiseWarning):
-        result = fit(data, "y", "quadratic", factors=CODED5, on_rank_deficiency="warn")
+        result = fit(data, "y", "full_second_order", factors=CODED5, on_rank_deficiency="warn")
     # The kept A^2 carries the whole curvature: equal to a fit with A^2 as the only square (statsmodels OLS).
     cols = [np.ones(len(data))] + [data[c] for c in "ABCDE"]
     cols += [data[a] * data[b] for a, b in itertools.combinations("ABCDE", 2)] + [data.A**2]
@@ -60,7 +60,7 @@ def test_no_minimum_norm_split_in_warn_mode():
 
 def test_bad_on_rank_deficiency_value():
     with pytest.raises(LevelwiseError, match="'on_rank_deficiency' parameter must be 'raise' or 'warn'. Got 'drop'"):
-        fit(half_fraction_with_centres(), "y", "linear", on_rank_deficiency="drop")
+        fit(half_fraction_with_centres(), "y", "main_effects", on_rank_deficiency="drop")
 
 
 # ----- achieved settings -----------------------------------------------------------------------------------------
@@ -96,8 +96,9 @@ def test_achieved_settings_change_the_fit_exactly_as_a_refit():
     planned_only = fit(data.drop(columns=["A (achieved)", "B (achieved)"]), "y", "A + B + C + A:B", factors=FACTORS3)
     assert not np.allclose(planned_only.beta, result.beta)
     dev = result.setting_deviations
-    assert dev.loc[2, "A"] == pytest.approx(1.7) and dev.loc[5, "B"] == pytest.approx(-0.08)  # the perturbations
-    assert (dev.drop(index=[2, 5]).to_numpy() == 0).all()
+    # Rows 2 and 5 of the data (no run column) are run ids 3 and 6.
+    assert dev.loc[3, "A"] == pytest.approx(1.7) and dev.loc[6, "B"] == pytest.approx(-0.08)  # the perturbations
+    assert (dev.drop(index=[3, 6]).to_numpy() == 0).all()
     assert planned_only.setting_deviations is None
 
 
@@ -120,7 +121,7 @@ def test_missing_response_keeps_all_mains_and_two_factor_interactions():
     data["y"] = 5 + data.A + 0.5 * data.B * data.C + rng.normal(0, 0.3, 16)
     data.loc[6, "y"] = np.nan
     result = fit(data, "y", "(A+B+C+D)**2", factors=factors)
-    assert result.missing_runs == (6,)
+    assert result.missing_runs == (int(data.loc[6, "run"]),)  # named by the design's run id
     assert result.n == 15 and len(result.terms) == 11  # 1 + 4 mains + 6 2FIs (common practice)
     assert np.isfinite(result.coefficients["std_error"]).all()
     # Independently: numpy corrcoef on the 10 model columns of the 15 runs left.
@@ -131,7 +132,7 @@ def test_missing_response_keeps_all_mains_and_two_factor_interactions():
     np.fill_diagonal(corr, 0)
     assert result.max_abs_correlation == pytest.approx(np.abs(corr).max(), rel=1e-12)  # numpy corrcoef
     assert result.max_abs_correlation > 0.05  # orthogonality really is lost
-    assert result.orthogonality["missing_runs"] == (6,)
+    assert result.orthogonality["missing_runs"] == (7,)  # run id 7 (row 6)
     full = fit(data.fillna({"y": 0.0}), "y", "(A+B+C+D)**2", factors=factors)
     assert full.max_abs_correlation == pytest.approx(0.0, abs=1e-12)  # 2^4 full factorial is orthogonal
 
@@ -283,7 +284,7 @@ def test_more_bad_input():
     result = fit(data, "y", "A + B", factors=FACTORS3)
     with pytest.raises(LevelwiseError, match=r"'level' parameter must be a number in the open interval .* Got 0"):
         result.predict({"A": 20, "B": 1.5, "C": 150}, level=0)
-    with pytest.raises(LevelwiseError, match="setting column 'A' must hold finite numbers"):
+    with pytest.raises(LevelwiseError, match="setting for factor 'A' must be a finite number"):
         result.predict({"A": -np.inf, "B": 1.5, "C": 150})
     with pytest.raises(LevelwiseError, match=r"'run' parameter of include must be an excluded run \[\]. Got 3"):
         result.include(3)
@@ -320,7 +321,7 @@ def test_fit_is_immutable_and_exclusion_leaves_the_original_alone():
     assert reduced.orthogonality["excluded_runs"] == (2,)
 
 
-@pytest.mark.parametrize("model", ["quadratic", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
+@pytest.mark.parametrize("model", ["full_second_order", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
 def test_compiled_predictor_rows_equal_the_product_of_powers(model):
     rng = np.random.default_rng(12)
     data = pd.DataFrame(rng.uniform(-1, 1, (40, 3)), columns=list("ABC"))
@@ -331,7 +332,7 @@ def test_compiled_predictor_rows_equal_the_product_of_powers(model):
         coded = (natural - result.coding.center) / result.coding.scale
         # Direct definition (common practice): each term is the product of coded factors to their powers.
         expected = np.prod(coded[:, None, :] ** result.spec.exponents[None, :, :], axis=2)
-        assert result.predictor.rows(natural) == pytest.approx(expected, rel=1e-13, abs=1e-15)
+        assert result.engine.rows(natural) == pytest.approx(expected, rel=1e-13, abs=1e-15)
 
 
 def test_balanced_categorical_design_counts_as_orthogonal():
@@ -343,8 +344,8 @@ def test_balanced_categorical_design_counts_as_orthogonal():
 
 
 def test_refit_on_fewer_terms_keeps_the_achieved_settings():
-    # levelwise.reduce.refit reads Fit.settings: the settings actually used (achieved where recorded).
-    from levelwise.reduce import refit
+    # levelwise.refit reads Fit.settings: the settings actually used (achieved where recorded).
+    from levelwise import refit
 
     data = planned_design()
     data["A (achieved)"] = data["A"] + np.linspace(-0.4, 0.4, len(data))
@@ -355,7 +356,7 @@ def test_refit_on_fewer_terms_keeps_the_achieved_settings():
     assert smaller.beta == pytest.approx(ref.params, rel=1e-10)
 
 
-@pytest.mark.parametrize("model", ["quadratic", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
+@pytest.mark.parametrize("model", ["full_second_order", "A*B*C + I(A**3) + I(B**2*C)", "A + B - 1"])
 def test_trace_equals_point_predictions_for_several_models(model):
     rng = np.random.default_rng(13)
     data = pd.DataFrame(rng.uniform(-1, 1, (40, 3)), columns=list("ABC"))
@@ -402,8 +403,9 @@ def test_fit_reads_the_achieved_columns_of_a_run_sheet():
     actual.loc[7, "C"] -= 4.0
     ref = ols_on(actual, sheet["y"], ["A", "B", "C"])  # statsmodels OLS on the achieved settings
     assert result.beta == pytest.approx(ref.params, rel=1e-10)
-    assert result.setting_deviations.loc[3, "A"] == pytest.approx(2.5)  # the perturbation above
-    assert result.setting_deviations.loc[7, "C"] == pytest.approx(-4.0)  # the perturbation above
+    run_a, run_c = sheet.loc[3, "run"], sheet.loc[7, "run"]  # deviations are indexed by run id
+    assert result.setting_deviations.loc[run_a, "A"] == pytest.approx(2.5)  # the perturbation above
+    assert result.setting_deviations.loc[run_c, "C"] == pytest.approx(-4.0)  # the perturbation above
     assert np.count_nonzero(result.setting_deviations.to_numpy()) == 2
     summary = result.setting_deviation_summary
     assert summary.loc["A", "runs_moved"] == 1 and summary.loc["B", "runs_moved"] == 0

@@ -146,9 +146,9 @@ def test_no_curvature_row_for_jittered_settings():
 
 def test_exclusion_equals_refit_without_the_run(case):
     data, ours, _ = case
-    run = ours.runs[3]
+    run = ours.runs[3]  # the run id of the fourth row
     reduced = ours.exclude(run, "operator noted a blocked nozzle")
-    ref = reference(data.drop(index=run))  # statsmodels refit without the run
+    ref = reference(data.drop(index=data.index[3]))  # statsmodels refit without the run
     assert reduced.beta == pytest.approx(ref.params, **TOL)
     assert reduced.coefficients["std_error"].to_numpy() == pytest.approx(ref.bse, **TOL)
     assert reduced.s == pytest.approx(np.sqrt(ref.scale), **TOL)
@@ -168,11 +168,11 @@ def test_exclusion_of_a_leverage_one_run_is_refused():
     data = pd.DataFrame({"A": [10.0, 10, 20, 20, 30], "B": [0.0, 1, 0, 1, 0.5], "y": [1.0, 2, 3, 4.2, 6]})
     ours = fit(data, "y", "A + B + I(A**2)")
     assert ours.leverage[4] == pytest.approx(1.0, abs=1e-12)  # h = 1 for the lone run (common practice)
-    with pytest.raises(LevelwiseError, match="Run 4 cannot be excluded: its leverage is 1"):
-        ours.exclude(4, "suspect")
+    with pytest.raises(LevelwiseError, match="Run 5 cannot be excluded: its leverage is 1"):
+        ours.exclude(5, "suspect")  # run id 5: the fifth row (the data has no run column)
     with pytest.raises(LevelwiseError, match="'reason' parameter of exclude must be a non-empty text"):
-        ours.exclude(0, "  ")
-    with pytest.raises(LevelwiseError, match="'run' parameter of exclude must be a run in this fit"):
+        ours.exclude(1, "  ")
+    with pytest.raises(LevelwiseError, match="'run' parameter of exclude must be a run id of this fit"):
         ours.exclude(99, "no such run")
 
 
@@ -200,12 +200,12 @@ def test_exclusions_equal_a_fresh_fit_property(seed, drops):
     data = pd.DataFrame(rng.uniform(-1, 1, (20, 3)), columns=["A", "B", "C"])
     data["y"] = rng.normal(size=20)
     current = fit(data, "y", "(A+B+C)**2")
-    for run in drops:
-        current = current.exclude(run, "property check")
+    for row in drops:
+        current = current.exclude(row + 1, "property check")  # run ids are 1..n (no run column)
     ref = sm.OLS(data["y"].drop(index=drops).to_numpy(), current.X).fit()  # statsmodels refit on the kept runs
     fresh = fit(data.drop(index=drops), "y", "(A+B+C)**2", factors=[
         Factor(n, data[n].min(), data[n].max()) for n in "ABC"])  # same coding as the first fit
     assert current.beta == pytest.approx(ref.params, rel=1e-8, abs=1e-10)
     assert current.beta == pytest.approx(fresh.beta, rel=1e-8, abs=1e-10)
     assert current.coefficients["std_error"].to_numpy() == pytest.approx(ref.bse, rel=1e-8)
-    assert list(current.runs) == [r for r in range(20) if r not in drops]
+    assert list(current.runs) == [r + 1 for r in range(20) if r not in drops]

@@ -1,9 +1,9 @@
 """The interactive path ``Fit.refresh``: the same numbers as the DataFrame API and as statsmodels.
 
 ``Fit.refresh`` evaluates traces and slices as exact polynomials on cached grids; these tests check it
-against three independent computations: ``Fit.predict`` / ``Fit.trace`` (a model row per point),
-``surface.slice_polynomials`` + ``evaluate_polynomials`` (the separable slice, built per call), and
-statsmodels ``get_prediction`` on model rows built here by hand. Exclusions (a rank-one downdate)
+against two independent computations: ``Fit.predict`` at every grid point (the engine's model rows,
+one per point, not the polynomials) and statsmodels ``get_prediction`` on model rows built here by hand.
+Exclusions (a rank-one downdate)
 are checked against a fit from scratch on the remaining runs and against statsmodels.
 """
 
@@ -15,7 +15,6 @@ import pytest
 import statsmodels.api as sm
 
 from levelwise import Factor, LevelwiseError, fit
-from levelwise.surface import evaluate_polynomials, slice_polynomials
 
 FACTORS = [Factor("A", 10, 30), Factor("B", 0.5, 2.5), Factor("C", 100, 300), Factor("D", -5, 5),
            Factor("E", 1, 2)]
@@ -35,6 +34,17 @@ def quadratic_rows(coded):
     return np.column_stack(cols)
 
 
+def point_grid(ours, x, y, settings, xs, ys):
+    """Fit.predict at every point of the (ys, xs) grid: model rows, not the slice polynomials."""
+    gx, gy = np.meshgrid(xs, ys)
+    frame = pd.DataFrame({name: np.full(gx.size, value) for name, value in settings.items()})
+    frame[x], frame[y] = gx.ravel(), gy.ravel()
+    table = ours.predict(frame)
+    mean = table["mean"].to_numpy()
+    return {"mean": mean.reshape(gx.shape), "ci_half": (table["ci_high"].to_numpy() - mean).reshape(gx.shape),
+            "pi_half": (table["pi_high"].to_numpy() - mean).reshape(gx.shape)}
+
+
 @pytest.fixture(scope="module")
 def study():
     """40 invented runs spread at random over the region (not orthogonal), full quadratic in 5 factors."""
@@ -42,7 +52,7 @@ def study():
     data = pd.DataFrame({f.name: rng.uniform(f.low, f.high, 40) for f in FACTORS})
     coded = coded_of(data, FACTORS)
     data["y"] = quadratic_rows(coded) @ np.linspace(2.0, -1.0, 21) + rng.normal(0, 0.3, 40)
-    ours = fit(data, "y", "quadratic", factors=FACTORS)
+    ours = fit(data, "y", "full_second_order", factors=FACTORS)
     reference = sm.OLS(data["y"].to_numpy(), quadratic_rows(coded)).fit()  # statsmodels OLS
     return data, ours, reference
 
@@ -74,12 +84,15 @@ def test_traces_equal_trace_and_statsmodels(study):
     batch = ours.traces(SETTINGS, points=23)
     assert list(got) == [f.name for f in FACTORS]
     for f in FACTORS:
-        single = ours.trace(f.name, SETTINGS, points=23)  # a model row per point (the Predictor)
+        single = ours.trace(f.name, SETTINGS, points=23)
+        frame = pd.DataFrame({name: np.full(23, value) for name, value in SETTINGS.items()})
+        frame[f.name] = np.linspace(f.low, f.high, 23)
+        rows = ours.predict(frame)  # a model row per point (not the trace polynomials)
         for key in ("x", "mean", "ci_half", "pi_half"):
             assert np.max(np.abs(got[f.name][key] - single[key])) < 1e-12
             assert np.max(np.abs(got[f.name][key] - batch[f.name][key])) < 1e-12
-        frame = pd.DataFrame({name: np.full(23, value) for name, value in SETTINGS.items()})
-        frame[f.name] = np.linspace(f.low, f.high, 23)
+        assert np.max(np.abs(got[f.name]["mean"] - rows["mean"].to_numpy())) < 1e-12
+        assert np.max(np.abs(got[f.name]["pi_half"] - (rows["pi_high"] - rows["mean"]).to_numpy())) < 1e-12
         mean, ci, pi = statsmodels_bands(reference, frame)  # statsmodels get_prediction
         assert np.max(np.abs(got[f.name]["mean"] - mean)) < 1e-9
         assert np.max(np.abs(got[f.name]["ci_half"] - ci)) < 1e-9
@@ -87,7 +100,7 @@ def test_traces_equal_trace_and_statsmodels(study):
 
 
 @pytest.mark.parametrize("axes", [("A", "B"), ("E", "C")])
-def test_slice_equals_separable_slice_and_statsmodels(study, axes):
+def test_slice_equals_point_predictions_and_statsmodels(study, axes):
     data, ours, reference = study
     x, y = axes
     got = ours.refresh(SETTINGS, points=None, slice_axes=axes, shape=(13, 9))["slice"]
@@ -95,10 +108,11 @@ def test_slice_equals_separable_slice_and_statsmodels(study, axes):
     same = ours.slice(x, y, SETTINGS, shape=(13, 9))
     alone = ours.refresh(SETTINGS, points=None, slice_axes=axes, shape=(13, 9), point=False)
     assert alone["point"] is None and np.array_equal(alone["slice"]["pi_half"], got["pi_half"])
-    separable = evaluate_polynomials(slice_polynomials(ours, x, y, SETTINGS), got["x"], got["y"])
     for key in ("mean", "ci_half", "pi_half"):
         assert np.max(np.abs(got[key] - same[key])) < 1e-12
-        assert np.max(np.abs(got[key] - separable[key])) < 1e-12
+    pointwise = point_grid(ours, x, y, SETTINGS, got["x"], got["y"])  # a model row per grid point
+    for key in ("mean", "ci_half", "pi_half"):
+        assert np.max(np.abs(got[key] - pointwise[key])) < 1e-12
     fx, fy = (next(f for f in FACTORS if f.name == n) for n in axes)
     assert np.array_equal(got["x"], np.linspace(fx.low, fx.high, 13))
     assert np.array_equal(got["y"], np.linspace(fy.low, fy.high, 9))
@@ -131,9 +145,9 @@ def test_cubic_and_three_factor_terms(study):
         assert np.max(np.abs(got["traces"][f.name]["pi_half"]
                              - (table["obs_ci_upper"] - table["mean"]).to_numpy())) < 1e-9
     same = ours.slice("B", "A", settings, shape=(6, 7))
-    separable = evaluate_polynomials(slice_polynomials(ours, "B", "A", settings), same["x"], same["y"])
+    pointwise = point_grid(ours, "B", "A", settings, same["x"], same["y"])  # a model row per grid point
     for key in ("mean", "ci_half", "pi_half"):
-        assert np.max(np.abs(got["slice"][key] - separable[key])) < 1e-12
+        assert np.max(np.abs(got["slice"][key] - pointwise[key])) < 1e-12
 
 
 def test_level_and_extrapolation(study):
@@ -196,20 +210,21 @@ def test_categorical_fit_takes_the_general_path():
 
 def test_exclusion_equals_fit_without_the_run(study):
     data, ours, _ = study
-    reduced = ours.exclude(data.index[5], "invented reason").exclude(data.index[17], "second")
+    # Rows 5 and 17 of the data (no run column) are run ids 6 and 18.
+    reduced = ours.exclude(6, "invented reason").exclude(18, "second")
     rest = data.drop(index=[data.index[5], data.index[17]])
-    fresh = fit(rest, "y", "quadratic", factors=FACTORS)
+    fresh = fit(rest, "y", "full_second_order", factors=FACTORS)
     reference = sm.OLS(rest["y"].to_numpy(), quadratic_rows(coded_of(rest, FACTORS))).fit()  # statsmodels OLS
     assert reduced.s == pytest.approx(np.sqrt(reference.scale), rel=1e-10)
     assert reduced.s == pytest.approx(fresh.s, rel=1e-12)
     assert np.max(np.abs(reduced.beta - fresh.beta)) < 1e-10
     assert reduced.coefficients["std_error"].to_numpy() == pytest.approx(fresh.coefficients["std_error"], rel=1e-10)
-    assert reduced.sse == pytest.approx(float(reduced.residuals @ reduced.residuals), rel=1e-12)
+    assert reduced.sse == pytest.approx(float(reduced.residuals.to_numpy() @ reduced.residuals.to_numpy()), rel=1e-12)
     point = reduced.refresh(SETTINGS, points=None)["point"]
     mean, ci, pi = statsmodels_bands(reference, pd.DataFrame([SETTINGS]))  # statsmodels get_prediction
     assert point["mean"] == pytest.approx(mean[0], abs=1e-9)
     assert point["pi_high"] - point["mean"] == pytest.approx(pi[0], abs=1e-9)
-    back = reduced.include(data.index[5]).include(data.index[17])
+    back = reduced.include(6).include(18)
     assert back.s == pytest.approx(ours.s, rel=1e-10)
     assert np.max(np.abs(back.beta - ours.beta)) < 1e-10
     with pytest.raises(ValueError):

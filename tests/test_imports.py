@@ -9,7 +9,7 @@ FORBIDDEN = ["ipywidgets", "bqplot", "traitlets", "IPython", "ipykernel", "voila
 def test_kernel_core_imports_no_jupyter_modules():
     code = (
         "import sys, levelwise, levelwise.demo\n"
-        "import levelwise.fit, levelwise.design, levelwise.formula\n"
+        "import levelwise.model, levelwise.model._fit, levelwise.model._engine, levelwise.design\n"
         f"bad = [m for m in {FORBIDDEN!r} if m in sys.modules]\n"
         "print(','.join(bad))\n"
     )

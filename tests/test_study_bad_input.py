@@ -136,7 +136,7 @@ def test_zero_runs(tmp_path):
     study = Study(FACTORS)
     assert study.add_stage("empty", pd.DataFrame({"Oven": [], "Dwell": []})) == []
     study.add_response("Impact")
-    study.set_model("Impact", "linear")
+    study.set_model("Impact", "main_effects")
     loaded = Study.load(study.save(tmp_path / "empty.json"))
     assert len(loaded) == 0 and list(loaded.data().columns)[-1] == "Impact"
     with pytest.raises(LevelwiseError, match="'Impact' has no values: every run is missing"):

@@ -248,7 +248,8 @@ def test_fuzz_study_file_load(text, accept):
 FACTOR_NAMES = ["A", "B", "C", "I", "Q", "x y", "Température", "f0", "Intercept"]
 formula_tokens = st.sampled_from(
     FACTOR_NAMES + ["+", "-", "*", ":", "**", "(", ")", "I(", "C(", "`", "~", "1", "0", "2", "-1", " ", "^",
-                    "linear", "quadratic", "interactions", "/", ",", "y", "np.log(", "==", "'", "\\", "3.5", "@"]
+                    "main_effects", "full_second_order",
+                    "two_factor_interactions", "/", ",", "y", "np.log(", "==", "'", "\\", "3.5", "@"]
 )
 formulas = st.one_of(
     st.lists(formula_tokens, max_size=12).map("".join),
@@ -311,7 +312,8 @@ def fit_inputs(draw):
 
 
 @given(fit_inputs(), st.sampled_from(["y", "A", "z", 3]),
-       st.one_of(st.sampled_from(["A", "A + B", "A*B", "linear", "quadratic", "I(A**2) + B", "C + Q", "-1 + A"]),
+       st.one_of(st.sampled_from(["A", "A + B", "A*B", "main_effects", "full_second_order", "I(A**2) + B", "C + Q",
+                                  "-1 + A"]),
                  formulas),
        st.sampled_from([None, [Factor("A", -1, 1), Factor("B", -1, 1)], [Factor("A", 0, 1)], "A", 2]),
        st.sampled_from(["auto", "none", "bad"]), st.one_of(st.floats(-1, 2), st.sampled_from([0.95, "0.9"])))

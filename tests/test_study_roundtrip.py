@@ -109,7 +109,7 @@ def test_every_change_is_audited():
     study.record_achieved(1, "Oven", 171.0)
     study.exclude(1, "bad")
     study.include(1)
-    study.set_model("y", "linear")
+    study.set_model("y", "main_effects")
     study.set_notes("n")
     study.set_title("t")
     study.set_goal("y", "minimize")

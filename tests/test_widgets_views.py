@@ -17,8 +17,7 @@ import pytest
 import traitlets
 from widget_support import browser_event, browser_update, install_recording_comm, message_bytes
 
-from levelwise import LevelwiseError, central_composite, demo, fit, fold_over, optimize
-from levelwise.surface import slice_grid
+from levelwise import LevelwiseError, central_composite, demo, fit, fold_over, optimize, slice_grid
 from levelwise.widgets import (
     DesignBuilder,
     EffectsView,
@@ -48,7 +47,7 @@ def make_shared(read_only=False, data=None):
     data = demo.demo_data() if data is None else data
     responses = [r for r in ("Impact", "Gloss") if r in data]
     return SharedModel(
-        demo.FACTORS, data, responses=responses, models={"Impact": demo.MODEL, "Gloss": "linear"},
+        demo.FACTORS, data, responses=responses, models={"Impact": demo.MODEL, "Gloss": "main_effects"},
         units={"Impact": "J", "Gloss": "GU"}, design=demo.demo_design(), read_only=read_only,
     )
 
@@ -124,7 +123,7 @@ def test_moving_a_setting_updates_every_view_to_the_kernel_numbers(shared, views
 def test_readout_covers_every_response_and_the_display_choice_switches_traces():
     shared = make_shared(data=demo_data_two_responses())
     view = FactorSliders(shared)
-    gloss = fit(demo_data_two_responses(), "Gloss", "linear", factors=demo.FACTORS)  # kernel reference
+    gloss = fit(demo_data_two_responses(), "Gloss", "main_effects", factors=demo.FACTORS)  # kernel reference
     expected = gloss.predict(shared.settings).iloc[0]
     assert "<b>Gloss</b>" in view.readout.value and fmt(expected["mean"]) in view.readout.value
     browser_update(view.response_choice, index=1)  # the display choice, as a browser sends it
@@ -237,7 +236,7 @@ def test_term_toggles_keep_the_model_hierarchical(shared, views):
 
 def test_half_normal_and_lenth_come_from_the_kernel(shared, views):
     effects = views["effects"]
-    screening = fit(demo.demo_data(), "Impact", "interactions", factors=demo.FACTORS)  # kernel reference
+    screening = fit(demo.demo_data(), "Impact", "two_factor_interactions", factors=demo.FACTORS)  # kernel reference
     lenth = screening.lenth()
     coords = screening.half_normal()
     shown = np.sort(np.r_[np.asarray(effects.hn_points.x), np.asarray(effects.hn_active.x)])
@@ -402,8 +401,8 @@ def test_design_builder_fold_over_and_augmentation_add_runs_after_the_study(shar
 
 def test_optimiser_shows_the_kernel_optimum_and_moves_the_sliders(shared, views):
     optimiser = views["optimizer"]
-    optimiser.set_goal("Impact", "maximize", low=8.0, target=12.0)
-    assert shared.goals == {"Impact": {"goal": "maximize", "low": 8.0, "target": 12.0, "s": 1.0, "importance": 1.0}}
+    optimiser.set_goal("Impact", "maximize", lower_limit=8.0, target=12.0)
+    assert shared.goals == {"Impact": {"goal": "maximize", "lower_limit": 8.0, "target": 12.0, "s": 1.0, "weight": 1.0}}
     best = optimiser.run()
     reference = optimize({"Impact": kernel_fit()}, shared.goals, starts=5, seed=3)  # kernel reference
     assert best.overall == pytest.approx(reference.overall, rel=1e-9)
@@ -484,11 +483,11 @@ def test_views_work_with_a_categorical_factor():
     design = full_factorial(factors, replicates=2, seed=1)
     data = design.table.copy()
     data["Impact"] = np.random.default_rng(1).normal(10, 1, len(data))  # invented data, seeded
-    shared = SharedModel(factors, data, "Impact", "linear", design=design)
+    shared = SharedModel(factors, data, "Impact", "main_effects", design=design)
     views = [FactorSliders(shared), SurfaceSlice(shared), ResidualInspector(shared), EffectsView(shared),
              PredictionsView(shared), DesignBuilder(shared)]
     views[0].sliders["Metal"].value = "brass"
-    reference = fit(data, "Impact", "linear", factors=factors)  # levelwise called directly
+    reference = fit(data, "Impact", "main_effects", factors=factors)  # levelwise called directly
     expected = reference.predict({"Oven": 190.0, "Metal": "brass", "Film": 70.0}).iloc[0]
     assert f'<span class="lw-mean">{fmt(expected["mean"])}</span>' in views[0].readout.value
     assert list(views[1].x_factor.options) == ["Oven", "Film"]
@@ -529,8 +528,7 @@ def test_hovering_a_residual_point_shows_that_run(shared, views):
     inspector = views["residuals"]
     browser_event(inspector.used, {"event": "hover", "data": {"index": 0}})
     run = inspector.run.value
-    label = shared.label_of(run)
-    diag = kernel_fit().diagnostics.loc[label]  # levelwise called directly
+    diag = kernel_fit().diagnostics.loc[run]  # levelwise called directly; indexed by run id
     assert f"Run {run}" in inspector.detail.value
     assert fmt(diag["cooks_distance"]) in inspector.detail.value and fmt(diag["leverage"]) in inspector.detail.value
 
@@ -595,10 +593,10 @@ def test_optimiser_searches_over_the_levels_of_a_categorical_factor():
     data["Impact"] = 10 + (data["Oven"] - 190) / 20 + shift + np.random.default_rng(3).normal(0, 0.2, len(data))
     shared = SharedModel(factors, data, "Impact", "Oven + Supplier", design=design)
     view = OptimizerView(shared, seed=1, starts=3)
-    view.set_goal("Impact", "maximize", low=5, target=15)
+    view.set_goal("Impact", "maximize", lower_limit=5, target=15)
     best = view.run()
     reference = optimize({"Impact": fit(data, "Impact", "Oven + Supplier", factors=factors)},
-                         {"Impact": {"goal": "maximize", "low": 5, "target": 15}}, starts=3, seed=1)
+                         {"Impact": {"goal": "maximize", "lower_limit": 5, "target": 15}}, starts=3, seed=1)
     assert best.winner == reference.winner == {"Supplier": "east"}  # the largest invented shift
     assert "lw-level-results" in view.result.value and "Supplier = east" in view.result.value
     view.use()

@@ -150,7 +150,7 @@ class DesignBuilder(View):
                                   description="Axial distance", **wide),
             "ccd_kind": ipw.Dropdown(options=["circumscribed", "inscribed", "face"], value="circumscribed",
                                      description="Axial points", **wide),
-            "model": ipw.Text(value="quadratic", description="Model to support", **wide),
+            "model": ipw.Text(value="full_second_order", description="Model to support", **wide),
             "criterion": ipw.Dropdown(options=[("D (precise coefficients)", "D"), ("I (precise predictions)", "I")],
                                       value="D", description="Criterion", **wide),
             "constraints": ipw.Textarea(value="", placeholder="one per line, e.g. Oven + 10*Dwell <= 330",
@@ -165,7 +165,7 @@ class DesignBuilder(View):
         }
         for control in self.options.values():
             control.add_class("lw-design-option")
-        self.eval_model = ipw.Text(value="linear", description="Evaluate for model",
+        self.eval_model = ipw.Text(value="main_effects", description="Evaluate for model",
                                    **wide).add_class("lw-eval-model")
         self.search_button = ipw.Button(description="Search for the optimal design").add_class("lw-search")
         self.progress = ipw.FloatProgress(value=0.0, min=0.0, max=1.0, description="Search").add_class(
@@ -287,11 +287,11 @@ class DesignBuilder(View):
         self.option_box.children = children
         self.search_button.layout.display = "" if family == "optimal" else "none"
         self.progress.layout.display = "" if family == "optimal" else "none"
-        if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "linear":
-            self.eval_model.value = "quadratic"
+        if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "main_effects":
+            self.eval_model.value = "full_second_order"
         elif family in ("full", "fractional", "plackett_burman", "definitive_screening") \
-                and self.eval_model.value == "quadratic":
-            self.eval_model.value = "linear"
+                and self.eval_model.value == "full_second_order":
+            self.eval_model.value = "main_effects"
         self._on_option()
 
     def _on_option(self, change=None):

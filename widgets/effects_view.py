@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 
 from levelwise import LevelwiseError, parse_model
-from levelwise.reduce import formula_of
+from levelwise.model._reduce import formula_of
 
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel
@@ -52,7 +52,7 @@ class EffectsView(View):
     Parameters
     ----------
     shared : SharedModel
-    scope : str, default "interactions"
+    scope : str, default "two_factor_interactions"
         Preset or formula whose terms are offered as toggles (with the current model's terms).
     alpha : float, default 0.05
         Error rate of Lenth's margins.
@@ -78,7 +78,7 @@ class EffectsView(View):
         The whole view (``lw-effects-view``).
     """
 
-    def __init__(self, shared: SharedModel, *, scope: str = "interactions", alpha: float = 0.05):
+    def __init__(self, shared: SharedModel, *, scope: str = "two_factor_interactions", alpha: float = 0.05):
         super().__init__(shared)
         self.scope, self.alpha = scope, float(alpha)
         self.hx, self.hy = bq.LinearScale(min=0.0), bq.LinearScale(min=0.0)

@@ -1,7 +1,8 @@
 """The optimiser view: a goal per response, a desirability search, and "Use these settings".
 
-Goals are the Derringer–Suich desirability goals of ``levelwise.optimize``
-(maximise, minimise, target; limits; weight; importance). Run calls
+Goals are the Derringer–Suich desirability goals of :func:`levelwise.optimize`
+(maximise, minimise, hit a target; lower limit, target, upper limit; the exponents s and t of the
+rising and falling sides; the weight of the response in the overall desirability D). Run calls
 :func:`levelwise.optimize` on the shared fits; the result shows the best settings,
 each response's prediction with its intervals, the individual desirabilities and
 the overall desirability. Goals and runs are explorations: allowed read-only.
@@ -23,14 +24,19 @@ from .style import fmt, inert_html
 GOAL_CHOICES = [("no goal", "none"), ("maximise", "maximize"), ("minimise", "minimize"), ("hit a target", "target")]
 
 
-def goal_dict(kind, low, target, high, weight, importance) -> dict:
-    """The goal as ``levelwise.optimize`` reads it (weight is the exponent s and/or t)."""
+#: Editor fields of a goal (Goal's own names) and their labels in plain words.
+GOAL_FIELDS = (("lower_limit", "lower limit"), ("target", "target"), ("upper_limit", "upper limit"),
+               ("s", "exponent s"), ("t", "exponent t"), ("weight", "weight in D"))
+
+
+def goal_dict(kind, lower_limit, target, upper_limit, s=1.0, t=1.0, weight=1.0) -> dict:
+    """The goal as :func:`levelwise.optimize` reads it: only the fields its kind uses."""
     if kind == "maximize":
-        return {"goal": kind, "low": low, "target": target, "s": weight, "importance": importance}
+        return {"goal": kind, "lower_limit": lower_limit, "target": target, "s": s, "weight": weight}
     if kind == "minimize":
-        return {"goal": kind, "target": target, "high": high, "t": weight, "importance": importance}
-    return {"goal": kind, "low": low, "target": target, "high": high, "s": weight, "t": weight,
-            "importance": importance}
+        return {"goal": kind, "target": target, "upper_limit": upper_limit, "t": t, "weight": weight}
+    return {"goal": kind, "lower_limit": lower_limit, "target": target, "upper_limit": upper_limit, "s": s, "t": t,
+            "weight": weight}
 
 
 class OptimizerView(View):
@@ -47,9 +53,9 @@ class OptimizerView(View):
     Attributes
     ----------
     goal_rows : dict of str -> dict of widgets
-        Per response: ``kind`` (Dropdown, ``lw-goal-kind``), ``low``, ``target``, ``high``
-        (FloatText, ``lw-goal-limit``), ``weight`` and ``importance`` (FloatText, ``lw-goal-weight``,
-        ``lw-goal-importance``).
+        Per response: ``kind`` (Dropdown, ``lw-goal-kind``), ``lower_limit``, ``target``, ``upper_limit``
+        (FloatText, ``lw-goal-limit``), ``s`` and ``t`` (FloatText, ``lw-goal-exponent``) and ``weight``
+        (FloatText, ``lw-goal-weight``: the response's weight in D).
     run_button : ipywidgets.Button
         ``lw-optimize``.
     result : ipywidgets.HTML
@@ -92,20 +98,18 @@ class OptimizerView(View):
             lo, hi = (float(values.min()), float(values.max())) if values.size else (0.0, 1.0)
             units = self.shared.units.get(response, "")
             unit = f" ({units})" if units else ""
-            row = {
-                "kind": ipw.Dropdown(options=GOAL_CHOICES, value="none", description=inert_html(f"{response}{unit}"),
-                                     description_allow_html=True,
-                                     style={"description_width": "initial"}).add_class("lw-goal-kind"),
-                "low": ipw.FloatText(value=lo, description="low", layout=ipw.Layout(width="150px")),
-                "target": ipw.FloatText(value=(lo + hi) / 2, description="target", layout=ipw.Layout(width="160px")),
-                "high": ipw.FloatText(value=hi, description="high", layout=ipw.Layout(width="150px")),
-                "weight": ipw.FloatText(value=1.0, description="weight", layout=ipw.Layout(width="150px")),
-                "importance": ipw.FloatText(value=1.0, description="importance", layout=ipw.Layout(width="180px")),
-            }
-            for key in ("low", "target", "high"):
+            kind = ipw.Dropdown(options=GOAL_CHOICES, value="none", description=inert_html(f"{response}{unit}"),
+                                description_allow_html=True, style={"description_width": "initial"})
+            row = {"kind": kind.add_class("lw-goal-kind")}
+            start = {"lower_limit": lo, "target": (lo + hi) / 2, "upper_limit": hi}
+            for key, label in GOAL_FIELDS:
+                row[key] = ipw.FloatText(value=start.get(key, 1.0), description=label,
+                                         style={"description_width": "initial"}, layout=ipw.Layout(width="170px"))
+            for key in ("lower_limit", "target", "upper_limit"):
                 row[key].add_class("lw-goal-limit")
+            row["s"].add_class("lw-goal-exponent")
+            row["t"].add_class("lw-goal-exponent")
             row["weight"].add_class("lw-goal-weight")
-            row["importance"].add_class("lw-goal-importance")
             for control in row.values():
                 control.observe(self.safely(self._on_edit), names="value")
             self.goal_rows[response] = row
@@ -119,19 +123,19 @@ class OptimizerView(View):
         for response, row in self.goal_rows.items():
             kind = row["kind"].value
             if kind != "none":
-                out[response] = goal_dict(kind, row["low"].value, row["target"].value, row["high"].value,
-                                          row["weight"].value, row["importance"].value)
+                out[response] = goal_dict(kind, **{key: row[key].value for key, _ in GOAL_FIELDS})
         return out
 
-    def set_goal(self, response: str, kind: str, *, low=None, target=None, high=None, weight=1.0, importance=1.0):
-        """Set one response's goal from code, e.g. ``view.set_goal("Impact", "maximize", low=8, target=12)``."""
+    def set_goal(self, response: str, kind: str, *, lower_limit=None, target=None, upper_limit=None, s=1.0, t=1.0,
+                 weight=1.0):
+        """Set one response's goal from code, e.g. ``view.set_goal("Impact", "maximize", lower_limit=8, target=12)``."""
         if response not in self.goal_rows:
             raise LevelwiseError(f"The response must be one of {list(self.goal_rows)}. Got {response!r}.")
         row = self.goal_rows[response]
         self._quiet = True
         try:
-            for key, value in (("low", low), ("target", target), ("high", high), ("weight", weight),
-                               ("importance", importance)):
+            for key, value in (("lower_limit", lower_limit), ("target", target), ("upper_limit", upper_limit),
+                               ("s", s), ("t", t), ("weight", weight)):
                 if value is not None:
                     row[key].value = float(value)
             row["kind"].value = kind
@@ -153,12 +157,9 @@ class OptimizerView(View):
                 if goal is None:
                     row["kind"].value = "none"
                     continue
-                for key in ("low", "target", "high", "importance"):
+                for key, _ in GOAL_FIELDS:
                     if key in goal:
                         row[key].value = float(goal[key])
-                weight = goal.get("s", goal.get("t"))
-                if weight is not None:
-                    row["weight"].value = float(weight)
                 row["kind"].value = goal.get("goal", goal.get("kind", "none"))
         finally:
             self._quiet = False

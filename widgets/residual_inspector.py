@@ -173,10 +173,7 @@ class ResidualInspector(View):
         """Diagnostics of the fitted runs, and observed-minus-predicted residuals of excluded runs."""
         shared, current = self.shared, self.shared.fit
         diag = current.diagnostics
-        labels = list(diag.index)
-        ids = shared.run_ids()
-        label_to_run = dict(zip(shared.data.index, ids))
-        used_runs = np.array([label_to_run[label] for label in labels])
+        used_runs = diag.index.to_numpy()  # the diagnostics are indexed by run id
         mask = shared.excluded_mask()
         excluded_rows = shared.data.loc[mask]
         excluded_rows = excluded_rows[np.isfinite(excluded_rows[shared.response].to_numpy(dtype=float))]
@@ -306,7 +303,6 @@ class ResidualInspector(View):
         lines = [f"<b>Run {html.escape(str(run))}</b>: {settings}"]
         observed = float(row[shared.response]) if np.isfinite(float(row[shared.response])) else float("nan")
         lines.append(f"Observed {html.escape(shared.response)}: {fmt(observed)}{unit}")
-        label = shared.label_of(run)
         if run in shared.exclusions:
             pred = current.predict({f.name: row[f.name] for f in shared.factors}).iloc[0]
             lines.append(
@@ -314,8 +310,8 @@ class ResidualInspector(View):
             )
             lines.append(f"Predicted without it: {fmt(pred['mean'])}{unit}; "
                          f"observed minus predicted: {fmt(observed - pred['mean'])}{unit}")
-        elif label in current.diagnostics.index:
-            d = current.diagnostics.loc[label]
+        elif run in current.diagnostics.index:  # indexed by run id
+            d = current.diagnostics.loc[run]
             lines += [
                 f"Fitted value: {fmt(d['fitted'])}{unit}; residual: {fmt(d['residual'])}{unit}",
                 f"Studentized residual: {fmt(d['studentized'])} (leaving the run out: "

@@ -12,7 +12,7 @@ Every change is a method with a code equivalent, usable from a notebook cell::
 
     shared.exclude(7, "operator noted a wrong powder batch")
     shared.include(7)
-    shared.set_model("Impact", "quadratic")
+    shared.set_model("Impact", "full_second_order")
     shared.settings = {"Oven": 195.0, "Dwell": 12.0, "Film": 70.0, "Catalyst": 1.0}
     shared.response = "Gloss"          # what the views display
 
@@ -82,7 +82,7 @@ class SharedModel(traitlets.HasTraits):
     responses : sequence of str, optional
         Every response column of the study (default: ``[response]``).
     models : dict of str -> str, optional
-        Model per response (default ``"linear"`` for a response without one).
+        Model per response (default ``"main_effects"`` for a response without one).
     units : dict of str -> str, optional
         Units per response.
     response_units : str, optional
@@ -166,7 +166,7 @@ class SharedModel(traitlets.HasTraits):
         models = dict(models or {})
         if model is not None:
             models.setdefault(response, model)
-        models = {name: models.get(name, "linear") for name in responses}
+        models = {name: models.get(name, "main_effects") for name in responses}
         units = {name: str((units or {}).get(name, "")) for name in responses}
         if response_units:
             units[response] = response_units
@@ -296,10 +296,10 @@ class SharedModel(traitlets.HasTraits):
 
     # ----- run ids and reasons ------------------------------------------------------------------
     def run_ids(self) -> np.ndarray:
-        """Run id of every row of ``data``: the ``run`` column when present, else the row labels."""
+        """Run id of every row of ``data``: the ``run`` column when present, else 1..n (as ``Fit.runs``)."""
         if "run" in self.data.columns:
             return self.data["run"].to_numpy()
-        return self.data.index.to_numpy()
+        return np.arange(1, len(self.data) + 1)
 
     def _run_id(self, run):
         ids = list(self.run_ids())
@@ -328,7 +328,7 @@ class SharedModel(traitlets.HasTraits):
     def set_model(self, response_or_model: str, model: str | None = None) -> None:
         """Change a response's model and refit it (refused when read-only).
 
-        ``shared.set_model("Impact", "quadratic")``; with one argument the displayed
+        ``shared.set_model("Impact", "full_second_order")``; with one argument the displayed
         response's model changes: ``shared.set_model("Oven + Dwell")``.
         """
         response, model = (self.response, response_or_model) if model is None else (response_or_model, model)
@@ -365,12 +365,11 @@ class SharedModel(traitlets.HasTraits):
         run, reason = self._run_id(run), self._reason(reason)
         if run in self.exclusions:
             raise LevelwiseError(f"Run {run!r} is already excluded ({self.exclusions[run]}).")
-        label = self.label_of(run)
         fits = dict(self.fits)
         try:
             for name, current in self.fits.items():
-                if label in current.runs:
-                    fits[name] = current.exclude(label, reason)
+                if run in current.runs:  # Fit.runs holds run ids
+                    fits[name] = current.exclude(run, reason)
         except LevelwiseError as exc:
             self.error = f"Run {run} was not excluded: {exc}"
             raise LevelwiseError(self.error) from None
@@ -429,7 +428,7 @@ class SharedModel(traitlets.HasTraits):
         data = design.table.copy()
         for name in names:
             data[name] = np.nan
-        models = {name: (models or {}).get(name, "linear") for name in names}
+        models = {name: (models or {}).get(name, "main_effects") for name in names}
         with self._writing(), self.hold_trait_notifications():
             self.fits = {}
             self.fit = None
@@ -463,7 +462,7 @@ class SharedModel(traitlets.HasTraits):
         return np.isin(self.run_ids().astype(object), np.array(list(self.exclusions), dtype=object))
 
     def label_of(self, run):
-        """The row label of ``data`` for run id *run* (what levelwise's ``Fit.runs`` holds)."""
+        """The row label of ``data`` for run id *run* (``Fit.runs`` holds run ids themselves)."""
         matches = self.data.index[self.run_ids() == run]
         if len(matches) != 1:
             raise LevelwiseError(f"The run id {run!r} must name exactly one row of the data; it names {len(matches)}.")
@@ -473,9 +472,8 @@ class SharedModel(traitlets.HasTraits):
         """Fit one response on all runs, then leave the excluded runs out by the kernel's fast update."""
         result = fit(self.data, name, self.models[name], factors=self.factors, level=self.level)
         for run, reason in exclusions.items():
-            label = self.label_of(run)
-            if label in result.runs:  # a run with no value for this response is not in its fit
-                result = result.exclude(label, reason)
+            if run in result.runs:  # a run with no value for this response is not in its fit
+                result = result.exclude(run, reason)
         return result
 
     def fit_model(self, model: str, response: str | None = None):
@@ -487,9 +485,8 @@ class SharedModel(traitlets.HasTraits):
         name = self._check_response_name(self.response if response is None else response)
         result = fit(self.data, name, model, factors=self.factors, level=self.level)
         for run, reason in self.exclusions.items():
-            label = self.label_of(run)
-            if label in result.runs:
-                result = result.exclude(label, reason)
+            if run in result.runs:
+                result = result.exclude(run, reason)
         return result
 
     def _refit(self, responses=None) -> None:

@@ -22,7 +22,7 @@ import ipywidgets as ipw
 import numpy as np
 
 from levelwise import LevelwiseError
-from levelwise.optimize import as_goal, overall_desirability
+from levelwise.model._optimize import as_goal, overall_desirability
 
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel
@@ -233,7 +233,7 @@ class SurfaceSlice(View):
             goal = as_goal(spec, response)
             mean = self._kernel_slice(self.shared.fits[response], x, y)["mean"]
             d.append(goal(mean))
-            weights.append(goal.importance)
+            weights.append(goal.weight)
         return grid, overall_desirability(np.stack(d, axis=-1), weights)
 
     def _redraw(self):

@@ -4,15 +4,25 @@ const F = DATA.factors, K = F.length;
 // A categorical factor has "levels"; its setting is the index of the chosen level.
 const isCat = f => Array.isArray(f.levels);
 const CONT = F.map((f, i) => i).filter(i => !isCat(F[i]));
+const CAT = new Set(F.filter(isCat).map(f => f.name));  // no range check: a level is never outside
 const settings = F.map(f => isCat(f) ? 0 : f.center);
 let shown = 0;
 
-// The fit's coded variables: (x - centre) / scale, or a contrast column's value at the chosen level.
-function modelRow(m, x) {
+// Exactly the prediction engine's payload (levelwise PredictionEngine.payload): m.factors names the model's
+// factors; a factor the model does not use stays at its centre (its exponents are all 0). The coded variables
+// m.vars: (x - centre) / scale for a continuous factor, a contrast column's value at the chosen level for a
+// categorical one (its setting here is the level's label).
+function modelRow(m, at) {
+  const index = {};
+  m.factors.forEach((name, i) => { index[name] = i; });
   const coded = m.vars.map(v => {
-    if (!v.table) { return (x[v.factor] - v.center) / v.scale; }
-    const c = v.table[x[v.factor]];
-    return (c === null || c === undefined) ? NaN : c;
+    const x = at[v.factor];
+    if (v.levels) {
+      const c = v.levels.indexOf(String(x));
+      return c < 0 ? NaN : v.values[c];
+    }
+    const i = index[v.factor];
+    return ((x === undefined ? m.center[i] : x) - m.center[i]) / m.scale[i];
   });
   return m.exponents.map(e => {
     let v = 1.0;
@@ -22,18 +32,26 @@ function modelRow(m, x) {
 }
 
 function predict(m, x) {
-  const row = modelRow(m, x);
+  const at = {};
+  F.forEach((f, i) => { at[f.name] = isCat(f) ? String(f.levels[x[i]]) : x[i]; });
+  const row = modelRow(m, at);
   let mean = 0.0;
   for (let j = 0; j < row.length; j++) { mean += row[j] * m.beta[j]; }
   let h = 0.0;
-  for (let c = 0; c < row.length; c++) {
+  const r = m.cov_factor.length ? m.cov_factor[0].length : 0;
+  for (let c = 0; c < r; c++) {
     let v = 0.0;
-    for (let j = 0; j < row.length; j++) { v += row[j] * m.rinv[j][c]; }
+    for (let j = 0; j < row.length; j++) { v += row[j] * m.cov_factor[j][c]; }
     h += v * v;
   }
-  const ts = (m.t === null || m.s === null) ? NaN : m.t * m.s;
-  const ciHalf = ts * Math.sqrt(h), piHalf = ts * Math.sqrt(1.0 + h);
-  return {mean: mean, ci_low: mean - ciHalf, ci_high: mean + ciHalf, pi_low: mean - piHalf, pi_high: mean + piHalf};
+  const c = (m.c === null || m.extra === null) ? NaN : m.c;
+  const ciHalf = c * Math.sqrt(h), piHalf = c * Math.sqrt(h + m.extra);
+  let outside = m.limit !== null && h > m.limit;
+  m.factors.forEach((name, i) => {
+    if (m.used[i] && !CAT.has(name) && (at[name] < m.low[i] || at[name] > m.high[i])) { outside = true; }
+  });
+  return {mean: mean, ci_low: mean - ciHalf, ci_high: mean + ciHalf, pi_low: mean - piHalf, pi_high: mean + piHalf,
+          leverage: h, extrapolated: outside};
 }
 
 function fmt(v) {
@@ -226,9 +244,12 @@ function update() {
     el("td", {class: "lw-pi", text: fmt(p.pi_low) + " to " + fmt(p.pi_high) + u}, tr);
   });
   document.getElementById("lw-numbers").setAttribute("data-numbers", JSON.stringify(numbers));
+  // The engine's extrapolation rule, per response: a used factor outside its range, or leverage above the runs'.
   const outside = F.filter((f, i) => !isCat(f) && (settings[i] < f.low || settings[i] > f.high)).map(f => f.name);
-  document.getElementById("lw-extrapolation").textContent = outside.length ?
-    "Outside the tested region (" + outside.join(", ") + "): the prediction is an extrapolation." : "";
+  const flagged = DATA.responses.filter(m => numbers.responses[m.name].extrapolated).map(m => m.name);
+  document.getElementById("lw-extrapolation").textContent = flagged.length ?
+    "Outside the tested region" + (outside.length ? " (" + outside.join(", ") + ")" : " (far from the runs)") +
+    ": the prediction for " + flagged.join(", ") + " is an extrapolation." : "";
   const m = DATA.responses[shown];
   traceSvgs.forEach((svg, i) => drawTrace(svg, m, i));
   drawSurface(m);

@@ -36,7 +36,7 @@ import scipy.linalg
 from scipy import stats
 
 from .._errors import LevelwiseError, describe
-from ..formula import parse_model, term_name
+from ..model import parse_model, term_name
 from ._design import Design, _check_count, _check_seed
 from ._factors import as_factors
 
@@ -94,7 +94,7 @@ def model_columns(spec, factors) -> ModelColumns:
 
     A preset model leaves out the powers of categorical factors; a formula that asks for one is refused.
     """
-    from ..formula import PRESETS
+    from ..model import PRESETS
 
     levels = tuple(len(f.levels) if f.is_categorical else 0 for f in factors)
     names_f = [f.name for f in factors]
@@ -324,7 +324,7 @@ def evaluate_levels(design, model, alias_terms=None, delta: float = 2.0, alpha: 
         left = list(parse_model(alias_terms, names).exponents)
     left = [e for e in left if e.any() and tuple(e) not in in_model]
     if left:
-        from ..formula import ModelSpec
+        from ..model import ModelSpec
 
         left_cols = model_columns(ModelSpec("alias", tuple(names), np.array(left, dtype=int),
                                             tuple(term_name(e, names) for e in left)), factors)

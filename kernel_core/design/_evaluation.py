@@ -126,12 +126,12 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
 
     if has_many_levels(design.factors):  # categorical factors with more than 2 levels (issue 14)
         return evaluate_levels(design, model, alias_terms, delta, alpha)
-    from ..formula import monomials, parse_model, term_name
+    from ..model import monomials, parse_model, term_name
 
     names = design.factor_names
     spec = parse_model(model, names)
     coded = design.coded.to_numpy(dtype=float)
-    X = spec.matrix(coded)
+    X = monomials(np.asarray(coded, dtype=float), spec.exponents)
     n, p = X.shape
     if p > n:
         raise LevelwiseError(f"The model {model!r} has {p} terms but the design has only {n} runs.")
@@ -199,7 +199,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
                     pts = np.vstack([pts, np.array(list(itertools.product((-1.0, 1.0), repeat=k)))])
             W = moment_matrix(spec.exponents, discrete=discrete)
         pts[:, discrete] = np.where(pts[:, discrete] < 0, -1.0, 1.0)
-        F = spec.matrix(pts)
+        F = monomials(np.asarray(pts, dtype=float), spec.exponents)
         v = np.einsum("ij,jk,ik->i", F, XtXi, F)
         pv = {"min": float(v.min()), "mean": float(np.trace(XtXi @ W)), "max": float(v.max())}
         if df_error > 0:

@@ -148,7 +148,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
     if progress is not None and not callable(progress):
         raise LevelwiseError(f"The 'progress' parameter must be a callable or None. Got {describe(progress)}.")
-    from ..formula import parse_model
+    from ..model import parse_model
 
     names = [f.name for f in factors]
     spec = parse_model(model, names)

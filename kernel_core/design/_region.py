@@ -103,7 +103,7 @@ def moment_matrix(exponents, G=None, h=None, rng=None, discrete=None):
         # 0 for odd a, 1 for even a.
         moments = np.where(total % 2 == 0, np.where(discrete, 1.0, 1.0 / (total + 1.0)), 0.0)
         return moments.prod(axis=2)
-    from ..formula import monomials
+    from ..model import monomials
 
     sample = sample_region(G, h, k, 20000, rng or np.random.default_rng(0))
     sample[:, discrete] = np.where(sample[:, discrete] < 0, -1.0, 1.0)

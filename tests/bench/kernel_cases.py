@@ -102,10 +102,10 @@ def _slice_function(fitted):
     try:
         from levelwise import surface
     except ImportError:
-        return None, "Fit.slice / levelwise.surface.slice_grid"
+        return None, "Fit.slice / levelwise.slice_grid"
     grid = getattr(surface, "slice_grid", None)
     if grid is None:
-        return None, "levelwise.surface.slice_grid"
+        return None, "levelwise.slice_grid"
     return lambda settings: grid(fitted, NAMES[0], NAMES[1], settings, shape=(100, 100)), "surface.slice_grid"
 
 
@@ -145,7 +145,7 @@ def case_refresh(cfg: Config) -> list[dict]:
     coded, design_note = ccd_32()
     rng = np.random.default_rng(SEED)
     y = invented_response(coded, rng)
-    fitted = fit(frame_of(coded, y), "y", "quadratic", factors=factors())
+    fitted = fit(frame_of(coded, y), "y", "full_second_order", factors=factors())
     settings = {"A": 0.3, "B": -0.2, "C": 0.5, "D": 0.1, "E": -0.4}
     point = np.array([[settings[n] for n in NAMES]])
     line = np.linspace(-1.0, 1.0, 50)
@@ -305,7 +305,7 @@ def case_diagnostics(cfg: Config) -> list[dict]:
         case_id = f"diagnostics_{n}"
         goal, goal_value = (">= 1000x", 1000.0) if n == 10_000 else ("(report)", None)
         frame, coded, y = random_study(n, SEED + n)
-        fitted = fit(frame, "y", "quadratic", factors=factors())
+        fitted = fit(frame, "y", "full_second_order", factors=factors())
         getter = _diagnostics_getter(fitted)
         if getter is None:
             rows.append(unavailable(case_id, name, kind="speedup", goal=goal, goal_value=goal_value,
@@ -346,12 +346,12 @@ def case_exclusion(cfg: Config) -> list[dict]:
     coded, design_note = ccd_32()
     y = invented_response(coded, np.random.default_rng(SEED))
     frame = frame_of(coded, y)
-    fitted = fit(frame, "y", "quadratic", factors=factors())
+    fitted = fit(frame, "y", "full_second_order", factors=factors())
     if not callable(getattr(fitted, "exclude", None)):
         return [unavailable("exclude_one", name, kind="speedup", goal=">= 10x", goal_value=10.0,
                             status=missing("Fit.exclude"))]
     drop = 3  # a cube run
-    label = frame.index[drop]
+    label = fitted.runs[drop]  # its run id (the frame has no run column: 1..n)
     x_ref = quadratic_rows(coded)
     keep = np.ones(len(y), dtype=bool)
     keep[drop] = False
@@ -376,6 +376,47 @@ def case_exclusion(cfg: Config) -> list[dict]:
                      max_abs_diff=float(diff))]
 
 
+# ----- case 3b: predict on a table ---------------------------------------------------------------
+def case_predict(cfg: Config) -> list[dict]:
+    """Fit.predict on a DataFrame (mean, CI, PI, leverage, extrapolation) against statsmodels' formula
+    get_prediction(...).summary_frame on the same rows, for one row and for 10,000 rows."""
+    import statsmodels.formula.api as smf
+
+    from levelwise import fit
+
+    coded, design_note = ccd_32()
+    y = invented_response(coded, np.random.default_rng(SEED + 3))
+    frame = frame_of(coded, y)
+    fitted = fit(frame, "y", "full_second_order", factors=factors())
+    terms = list(NAMES) + [f"{a}:{b}" for a, b in itertools.combinations(NAMES, 2)] + [f"I({n}**2)" for n in NAMES]
+    model = smf.ols("y ~ " + " + ".join(terms), data=frame).fit()  # coded units: factors run from -1 to 1
+    rows = []
+    for case_id, m, goal in (("predict_1_row", 1, 20.0), ("predict_10000_rows", 10_000, 50.0)):
+        rng = np.random.default_rng(SEED + m)
+        table = pd.DataFrame(rng.uniform(-1.0, 1.0, (m, K)), columns=list(NAMES))
+
+        def ours(table=table):
+            return fitted.predict(table)
+
+        def reference(table=table):
+            return model.get_prediction(table).summary_frame(alpha=1 - LEVEL)
+
+        mine, theirs = ours(), reference()
+        diff = max(float(np.max(np.abs(mine["mean"].to_numpy() - theirs["mean"].to_numpy()))),
+                   float(np.max(np.abs(mine["ci_high"].to_numpy() - theirs["mean_ci_upper"].to_numpy()))),
+                   float(np.max(np.abs(mine["pi_low"].to_numpy() - theirs["obs_ci_lower"].to_numpy()))))
+        a, b, cut = interleaved(ours, reference, repeats=cfg.repeats, min_sample=cfg.min_sample, budget=cfg.budget)
+        rows.append(make_row(
+            case_id, f"3b. predict on a DataFrame of {m:,} row{'s' if m > 1 else ''} (p = 21), vs statsmodels formula",
+            kind="speedup", goal=f">= {goal:g}x", goal_value=goal, ours=a.median, reference=b.median,
+            ours_repeats=len(a.times), reference_repeats=len(b.times),
+            note="ours: Fit.predict(DataFrame) (settings check, coding, model rows, mean, CI, PI, leverage, "
+                 "extrapolation flag); reference: statsmodels formula OLS get_prediction(DataFrame).summary_frame; "
+                 f"{design_note}" + (" (time budget cut repeats)" if cut else ""),
+            max_abs_diff=diff))
+    return rows
+
+
 # ----- case 4: fitting a large data set ----------------------------------------------------------
 def case_fit(cfg: Config) -> list[dict]:
     from scipy import linalg
@@ -388,7 +429,7 @@ def case_fit(cfg: Config) -> list[dict]:
     fs = factors()
 
     def ours():
-        return fit(frame, "y", "quadratic", factors=fs).beta
+        return fit(frame, "y", "full_second_order", factors=fs).beta
 
     def reference():
         q, r, piv = linalg.qr(x_ref, mode="economic", pivoting=True)
@@ -467,7 +508,7 @@ def case_designs(cfg: Config) -> list[dict]:
     counter = itertools.count()
 
     def optimal():
-        return builder(6, "quadratic", 40, criterion="D", starts=10, seed=next(counter))
+        return builder(6, "full_second_order", 40, criterion="D", starts=10, seed=next(counter))
 
     a, _, cut = interleaved(optimal, None, repeats=cfg.repeats, min_sample=0.0, budget=cfg.budget, slow=0.0)
     rows.append(make_row("d_optimal", name, kind="absolute", goal="<= 3 s", goal_value=3.0, ours=a.median,
@@ -480,6 +521,7 @@ CASES = {
     "refresh": case_refresh,
     "diagnostics": case_diagnostics,
     "exclusion": case_exclusion,
+    "predict": case_predict,
     "fit": case_fit,
     "designs": case_designs,
 }

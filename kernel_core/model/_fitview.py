@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from ._errors import LevelwiseError
+from .._errors import LevelwiseError
 
 
 def categorical_names(fit) -> tuple:

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 from ._fitview import require_continuous
 
 
@@ -43,7 +43,7 @@ def _natural_settings(fit) -> pd.DataFrame:
     names = list(fit.factor_names)
     stored = getattr(fit, "settings", None)
     if isinstance(stored, np.ndarray) and stored.shape == (len(fit.runs), len(names)):
-        return pd.DataFrame(stored, columns=names, index=fit.runs)
+        return pd.DataFrame(stored, columns=names, index=fit.runs).assign(run=np.asarray(fit.runs))
     columns = {}
     for j, name in enumerate(names):
         unit = np.zeros(len(names), dtype=int)
@@ -57,7 +57,7 @@ def _natural_settings(fit) -> pd.DataFrame:
         if match.size:
             coded = np.asarray(fit.X, dtype=float)[:, match[0]]
             columns[name] = coded * fit.coding.scale[j] + fit.coding.center[j]
-    return pd.DataFrame(columns, index=fit.runs)
+    return pd.DataFrame(columns, index=fit.runs).assign(run=np.asarray(fit.runs))
 
 
 def refit(fit, exponents, data: pd.DataFrame | None = None):
@@ -72,16 +72,20 @@ def refit(fit, exponents, data: pd.DataFrame | None = None):
     data : pandas.DataFrame, optional
         The original data. Without it, the settings are read back from the fit's linear columns.
     """
-    from .design import Factor
-    from .fit import fit as fit_model
+    from ..design import Factor
+    from ._fit import fit as fit_model
 
     require_continuous(fit, "Refitting on a subset of terms")
     names = list(fit.factor_names)
     if data is None:
         frame = _natural_settings(fit)
     else:
-        frame = data.loc[fit.runs, [n for n in names if n in data.columns]].copy()
+        from ._inputs import _run_ids
+
+        position = pd.Series(np.arange(len(data)), index=_run_ids(data))
+        frame = data.iloc[position.loc[fit.runs].to_numpy()][[n for n in names if n in data.columns]].copy()
     frame[fit.response] = np.asarray(fit.y, dtype=float)
+    frame["run"] = np.asarray(fit.runs)  # the refit names its runs by the same run ids
     low, high = np.asarray(fit.coding.low, float), np.asarray(fit.coding.high, float)
     center, scale = np.asarray(fit.coding.center, float), np.asarray(fit.coding.scale, float)
     # coding="none" stores centre 0 and scale 1; "auto" stores the factor's centre and half-range.
@@ -135,7 +139,7 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
     dropped and the model is refitted. With ``hierarchy=True`` a term is removable only
     when no remaining term contains it (A stays while A:B or A^2 stays). The intercept is
     never removed. With categorical factors each term is tested as one term by its partial F
-    and leaves with all its columns (``levelwise._term_tests.reduce_terms``).
+    and leaves with all its columns (``levelwise.model._term_tests.reduce_terms``).
 
     Parameters
     ----------

@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 from ._fitview import categorical_names
 
 

@@ -1,123 +1,17 @@
-"""The cached predictor used on the interactive path.
+"""Traces and surface slices of a polynomial model as exact polynomials on cached grids.
 
-Everything that does not depend on the setting is computed once at fit time:
-the exponent matrix, the coefficients, ``M = R^-1`` (any square root of
-``(X'X)^-1``, so that ``x (X'X)^-1 x' = ||x M||^2``), s, and the t quantiles per
-confidence level. A slider event is then a few small array products.
+The engine (:mod:`levelwise.model._engine`) uses this for models in continuous factors only:
+with every factor but one (a trace) or two (a slice) held, each model column is a constant times
+powers of the free coded variable(s), so the mean is a polynomial and ``h = ||x F||^2`` a quadratic
+form in its monomials.
 """
 
 from __future__ import annotations
 
-import math
-from collections.abc import Callable
-from dataclasses import dataclass
-
 import numpy as np
 
-from .formula import monomials
 
-
-def encode(natural: np.ndarray, center: np.ndarray, scale: np.ndarray, contrasts: tuple = ()) -> np.ndarray:
-    """Map natural settings (m, k) to the model's coded variables.
-
-    Continuous factors become ``(x - center) / scale``. A categorical factor's column holds
-    the index of its level, which becomes a row of its contrast matrix (``contrasts[j]``, an
-    (L, L-1) array); ``contrasts`` is empty when every factor is continuous (the fast path).
-    """
-    natural = np.atleast_2d(np.asarray(natural, dtype=float))
-    if not contrasts:
-        return (natural - center) / scale
-    parts = []
-    for j, contrast in enumerate(contrasts):
-        if contrast is None:
-            parts.append(((natural[:, j] - center[j]) / scale[j])[:, None])
-        else:
-            parts.append(contrast[natural[:, j].astype(int)])
-    return np.hstack(parts) if parts else np.empty((len(natural), 0))
-
-
-@dataclass(frozen=True, eq=False)
-class Predictor:
-    """Compiled model: settings in natural units -> mean, CI and PI half-widths.
-
-    Attributes
-    ----------
-    exponents : (p, k') int ndarray
-        One row per model column over the coded variables.
-    beta : (p,) ndarray
-    rinv : (p, p) ndarray
-        A square root of ``(X'X)^-1``.
-    center, scale : (k,) ndarray
-        Coding of each factor (categorical factors: 0 and 1).
-    s : float
-        Residual standard deviation.
-    t_of_level : callable
-        Cached two-sided t quantile for a confidence level.
-    contrasts : tuple
-        Per factor, None or the contrast matrix of a categorical factor; empty when all continuous.
-    max_leverage : float
-        Largest leverage among the runs of the fit (for the extrapolation flag).
-    """
-
-    exponents: np.ndarray
-    beta: np.ndarray
-    rinv: np.ndarray
-    center: np.ndarray
-    scale: np.ndarray
-    s: float
-    t_of_level: Callable[[float], float]
-    contrasts: tuple = ()
-    max_leverage: float = np.inf
-
-    def __post_init__(self):
-        # Compile the exponent matrix once. v = [1, x, x^2, ..., x^top] (each power for every coded
-        # variable) and every term is the product of at most F entries of v, picked by index.
-        exponents = np.asarray(self.exponents)
-        p, k = exponents.shape
-        top = int(exponents.max(initial=0))
-        width = max(1, int((exponents > 0).sum(axis=1).max(initial=0)))
-        picks = np.zeros((width, p), dtype=np.intp)
-        for j, row in enumerate(exponents):
-            for slot, i in enumerate(np.flatnonzero(row)):
-                picks[slot, j] = 1 + (row[i] - 1) * k + i
-        inv_scale = 1.0 / np.asarray(self.scale, dtype=float)
-        object.__setattr__(self, "_plan", (k, top, picks, inv_scale))
-
-    def rows(self, natural: np.ndarray) -> np.ndarray:
-        """Model rows for an (m, k) array of natural settings."""
-        k, top, picks, inv_scale = self._plan
-        if self.contrasts:
-            coded = encode(natural, self.center, self.scale, self.contrasts)
-        else:
-            natural = np.asarray(natural, dtype=float)
-            coded = (natural.reshape(1, -1) if natural.ndim == 1 else natural) - self.center
-            coded *= inv_scale
-        m = coded.shape[0]
-        if m * picks.size > 2_000_000 or coded.shape[1] == 0:
-            return monomials(coded, self.exponents)
-        parts = [np.ones((m, 1)), coded]
-        for _ in range(2, top + 1):
-            parts.append(parts[-1] * coded)
-        v = np.concatenate(parts, axis=1)
-        x = v[:, picks[0]]
-        for slot in range(1, len(picks)):
-            x *= v[:, picks[slot]]
-        return x
-
-    def mean_and_leverage(self, natural: np.ndarray):
-        """Predicted mean and leverage ``x (X'X)^-1 x'`` at each row of *natural*."""
-        x = self.rows(natural)
-        xr = x @ self.rinv
-        return x @ self.beta, np.einsum("ij,ij->i", xr, xr)
-
-    def intervals(self, natural: np.ndarray, level: float):
-        """Mean, CI half-width and PI half-width at each row of *natural*."""
-        mean, h = self.mean_and_leverage(natural)
-        qs = self.t_of_level(level) * self.s
-        return mean, qs * np.sqrt(h), qs * np.sqrt(1.0 + h)
-
-
-class InteractivePlan:
+class PolynomialPlan:
     """Per-fit constants of the interactive path for a polynomial model in continuous factors.
 
     With every factor but one (a trace) or two (a surface slice) held fixed, each model column
@@ -127,10 +21,13 @@ class InteractivePlan:
     than building and multiplying a model row per grid point. One slider event then costs a few
     small array products, with no DataFrame, no formula and no validation through pandas.
 
-    Build it with ``Fit.interactive_plan`` (cached per fit); use it through ``Fit.refresh``.
+    Built and owned by :class:`~levelwise.model._engine.PredictionEngine` (one per fit). The
+    interval half-widths are ``c sqrt(h)`` (CI) and ``c sqrt(h + r)`` (PI), with ``h = ||x F||^2``
+    for the covariance factor F, ``c`` the quantile times the square root of the dispersion and
+    ``r`` the variance of a new run relative to the dispersion (1 for least squares).
     """
 
-    def __init__(self, exponents, beta, rinv, center, scale, low, high):
+    def __init__(self, exponents, beta, cov_factor, center, scale, low, high):
         E = np.asarray(exponents, dtype=np.intp)
         p, k = E.shape
         self.k, self.p = k, p
@@ -138,7 +35,7 @@ class InteractivePlan:
         self.E = E
         self.D = int(E.max(initial=0))
         self.beta = np.asarray(beta, dtype=float)
-        self.rinv = np.asarray(rinv, dtype=float)
+        self.rinv = np.asarray(cov_factor, dtype=float)
         self.center = np.asarray(center, dtype=float)
         self.scale = np.asarray(scale, dtype=float)
         self.low = np.asarray(low, dtype=float)
@@ -152,8 +49,8 @@ class InteractivePlan:
         self.onehot = onehot
         # Row j: every factor but j (the held ones for factor j's trace).
         self._held = np.array([[i for i in range(k) if i != j] for j in range(k)], dtype=np.intp).reshape(k, k - 1)
-        # spread[j, c, a*(p+1) + q] = onehot[j, c, a] * [R^-1 | beta][c, q]: one product with the held
-        # factors' column constants gives, per factor and power, the row of R^-1 and the mean coefficient.
+        # spread[j, c, a*(p+1) + q] = onehot[j, c, a] * [F | beta][c, q]: one product with the held
+        # factors' column constants gives, per factor and power, the row of F and the mean coefficient.
         spread = onehot[:, :, :, None] * self.rinv_beta[None, :, None, :]
         self._spread = np.ascontiguousarray(spread.reshape(k, p, (self.D + 1) * (p + 1)))
         self._inv_scale = 1.0 / self.scale
@@ -199,8 +96,8 @@ class InteractivePlan:
             v = (ys - self.center[iy]) / self.scale[iy]
             others = np.ones(self.k, dtype=bool)
             others[[ix, iy]] = False
-            # spread[c, i*(p+1) + q] = to_monomial[c, i] * [R^-1 | beta][c, q]: one product with the
-            # fixed factors' column constants gives each monomial's row of R^-1 and its mean coefficient.
+            # spread[c, i*(p+1) + q] = to_monomial[c, i] * [F | beta][c, q]: one product with the
+            # fixed factors' column constants gives each monomial's row of F and its mean coefficient.
             spread = (to_monomial[:, :, None] * self.rinv_beta[:, None, :]).reshape(self.p, m * (self.p + 1))
             self._slices[key] = {
                 "xs": xs, "ys": ys, "dx": dx, "dy": dy, "m": m, "others": others, "spread": spread,
@@ -221,18 +118,13 @@ class InteractivePlan:
             table.append(table[-1] * coded)
         return np.concatenate(table[: self.D + 1]).take(self._flat).reshape(self.p, self.k)
 
-    def point(self, natural: np.ndarray, powers: np.ndarray, ts: float, max_leverage: float) -> dict:
-        """Mean, CI, PI, leverage and extrapolation flag at one natural setting."""
-        both = powers.prod(axis=1) @ self.rinv_beta  # the row times R^-1, then the mean
+    def mean_and_leverage(self, powers: np.ndarray):
+        """Mean and ``h = ||x F||^2`` at one setting given its :meth:`powers`."""
+        both = powers.prod(axis=1) @ self.rinv_beta  # the row times F, then the mean
         xr = both[:-1]
-        mean, h = float(both[-1]), float(xr @ xr)
-        ci, pi = ts * math.sqrt(h), ts * math.sqrt(1.0 + h)
-        outside = h > max_leverage * (1.0 + 1e-9) + 1e-12 or any(
-            value < low or value > high for value, low, high in zip(natural.tolist(), self._lows, self._highs))
-        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
-                "pi_high": mean + pi, "leverage": h, "extrapolated": outside}
+        return float(both[-1]), float(xr @ xr)
 
-    def traces(self, powers: np.ndarray, ts: float, points: int):
+    def traces(self, powers: np.ndarray, ts: float, points: int, extra: float = 1.0):
         """Mean, CI and PI half-widths along every factor, (k, points) each, and the x grids."""
         xs, outer, vander = self.trace_grids(points)
         k, p, width = self.k, self.p, self.D + 1
@@ -245,11 +137,11 @@ class InteractivePlan:
         mean = np.matmul(vander, z[:, :, p:]).reshape(k, -1)
         np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
         ci = np.sqrt(h)
-        h += ts * ts
+        h += ts * ts * extra
         pi = np.sqrt(h, out=h)
         return xs, mean, ci, pi
 
-    def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape) -> dict:
+    def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""
         plan = self.slice_plan(ix, iy, shape)
         const = powers[:, plan["others"]].prod(axis=1)
@@ -263,6 +155,6 @@ class InteractivePlan:
         h = plan["vv2"] @ (var_coef.T @ plan["vu2"])
         np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
         ci = np.sqrt(h)
-        h += ts * ts
+        h += ts * ts * extra
         pi = np.sqrt(h, out=h)
         return {"x": plan["xs"], "y": plan["ys"], "mean": mean, "ci_half": ci, "pi_half": pi}

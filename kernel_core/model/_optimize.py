@@ -2,8 +2,8 @@
 
 Desirability functions are those of Derringer & Suich (1980), *J. Quality Technology* 12(4)
 214-219, as printed in the NIST/SEMATECH e-Handbook, section 5.5.3.2.2. The overall
-desirability is the weighted geometric mean D = (prod d_i^r_i)^(1 / sum r_i), r_i the
-importance of response i (all 1: the plain geometric mean).
+desirability is the weighted geometric mean D = (prod d_i^w_i)^(1 / sum w_i), w_i the relative
+weight of response i in D (all 1: the plain geometric mean).
 """
 
 from __future__ import annotations
@@ -13,8 +13,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
-from .design import parse_constraint
+from .._errors import LevelwiseError, describe
+from ..design import parse_constraint
 
 GOAL_KINDS = ("maximize", "minimize", "target")
 
@@ -27,7 +27,7 @@ def fit_responses(data, models: dict, factors=None, **options) -> dict:
     ----------
     data : pandas.DataFrame
     models : dict
-        Response column -> model (formula or preset), e.g. ``{"Y1": "quadratic", "Y3": "linear"}``.
+        Response column -> model (formula or preset), e.g. ``{"Y1": "full_second_order", "Y3": "main_effects"}``.
     factors : list of Factor, optional
         Shared coding ranges.
     **options
@@ -43,7 +43,7 @@ def fit_responses(data, models: dict, factors=None, **options) -> dict:
     LevelwiseError
         The message of any failed fit, prefixed with the response it belongs to.
     """
-    from .fit import fit as fit_model
+    from ._fit import fit as fit_model
 
     if not isinstance(models, dict) or not models:
         raise LevelwiseError(
@@ -64,21 +64,24 @@ def fit_responses(data, models: dict, factors=None, **options) -> dict:
 class Goal:
     """A desirability goal for one response (Derringer & Suich 1980).
 
-    - ``maximize``: d = 0 below ``low``, ((y - low)/(target - low))^s up to ``target``, 1 above.
-    - ``minimize``: d = 1 below ``target``, ((high - y)/(high - target))^t up to ``high``, 0 above.
-    - ``target``: ((y - low)/(target - low))^s on [low, target], ((high - y)/(high - target))^t on
-      [target, high], 0 outside.
+    With L the lower limit, T the target and U the upper limit:
 
+    - ``maximize``: d = 0 below L, ((y - L)/(T - L))^s up to T, 1 above.
+    - ``minimize``: d = 1 below T, ((U - y)/(U - T))^t up to U, 0 above.
+    - ``target``: ((y - L)/(T - L))^s on [L, T], ((U - y)/(U - T))^t on [T, U], 0 outside.
+
+    ``s`` and ``t`` are the exponents of the rising and falling sides; ``weight`` is the relative
+    weight of this response in the overall desirability D (a weighted geometric mean).
     Build goals with :func:`maximize`, :func:`minimize` and :func:`target`.
     """
 
     kind: str
-    low: float = float("nan")
+    lower_limit: float = float("nan")
     target: float = float("nan")
-    high: float = float("nan")
+    upper_limit: float = float("nan")
     s: float = 1.0
     t: float = 1.0
-    importance: float = 1.0
+    weight: float = 1.0
 
     def __post_init__(self):
         spelled = {"maximise": "maximize", "minimise": "minimize"}
@@ -86,13 +89,13 @@ class Goal:
             object.__setattr__(self, "kind", spelled[self.kind.lower()])
         if self.kind not in GOAL_KINDS:
             raise LevelwiseError(f"A goal's 'kind' must be one of {GOAL_KINDS}. Got {describe(self.kind)} instead.")
-        for name in ("low", "target", "high", "s", "t", "importance"):
+        for name in ("lower_limit", "target", "upper_limit", "s", "t", "weight"):
             value = getattr(self, name)
             if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)):
                 raise LevelwiseError(f"A goal's {name!r} must be a number. Got {describe(value)} instead.")
             object.__setattr__(self, name, float(value))
-        needed = {"maximize": ("low", "target"), "minimize": ("target", "high"),
-                  "target": ("low", "target", "high")}[self.kind]
+        needed = {"maximize": ("lower_limit", "target"), "minimize": ("target", "upper_limit"),
+                  "target": ("lower_limit", "target", "upper_limit")}[self.kind]
         for name in needed:
             if not np.isfinite(getattr(self, name)):
                 raise LevelwiseError(f"A {self.kind!r} goal needs a finite {name!r}. Got {getattr(self, name)!r}.")
@@ -103,10 +106,10 @@ class Goal:
                 f"A {self.kind!r} goal needs {order}. Got " + ", ".join(f"{n}={v:g}" for n, v in zip(needed, values))
                 + " instead."
             )
-        for name in ("s", "t", "importance"):
+        for name in ("s", "t", "weight"):
             if not getattr(self, name) > 0 or not np.isfinite(getattr(self, name)):
                 raise LevelwiseError(
-                    f"A goal's {name!r} weight must be a finite number > 0. Got {getattr(self, name)!r} instead."
+                    f"A goal's {name!r} must be a finite number > 0. Got {getattr(self, name)!r} instead."
                 )
 
     def __call__(self, y):
@@ -114,41 +117,47 @@ class Goal:
         y = np.asarray(y, dtype=float)
         with np.errstate(invalid="ignore", divide="ignore"):
             if self.kind == "maximize":
-                rising = np.clip((y - self.low) / (self.target - self.low), 0.0, 1.0) ** self.s
+                rising = np.clip((y - self.lower_limit) / (self.target - self.lower_limit), 0.0, 1.0) ** self.s
                 return np.where(y >= self.target, 1.0, rising)
             if self.kind == "minimize":
-                falling = np.clip((self.high - y) / (self.high - self.target), 0.0, 1.0) ** self.t
+                falling = np.clip((self.upper_limit - y) / (self.upper_limit - self.target), 0.0, 1.0) ** self.t
                 return np.where(y <= self.target, 1.0, falling)
-            rising = np.clip((y - self.low) / (self.target - self.low), 0.0, 1.0) ** self.s
-            falling = np.clip((self.high - y) / (self.high - self.target), 0.0, 1.0) ** self.t
+            rising = np.clip((y - self.lower_limit) / (self.target - self.lower_limit), 0.0, 1.0) ** self.s
+            falling = np.clip((self.upper_limit - y) / (self.upper_limit - self.target), 0.0, 1.0) ** self.t
             return np.where(y <= self.target, rising, falling)
 
 
-def maximize(low: float, target: float, s: float = 1.0, importance: float = 1.0) -> Goal:
-    """Goal: larger is better; unacceptable below *low*, fully satisfying from *target* on."""
-    return Goal("maximize", low=low, target=target, s=s, importance=importance)
+def maximize(lower_limit: float, target: float, s: float = 1.0, weight: float = 1.0) -> Goal:
+    """Goal: larger is better; unacceptable below *lower_limit*, fully satisfying from *target* on."""
+    return Goal("maximize", lower_limit=lower_limit, target=target, s=s, weight=weight)
 
 
-def minimize(target: float, high: float, t: float = 1.0, importance: float = 1.0) -> Goal:
-    """Goal: smaller is better; fully satisfying up to *target*, unacceptable above *high*."""
-    return Goal("minimize", target=target, high=high, t=t, importance=importance)
+def minimize(target: float, upper_limit: float, t: float = 1.0, weight: float = 1.0) -> Goal:
+    """Goal: smaller is better; fully satisfying up to *target*, unacceptable above *upper_limit*."""
+    return Goal("minimize", target=target, upper_limit=upper_limit, t=t, weight=weight)
 
 
-def target(low: float, target: float, high: float, s: float = 1.0, t: float = 1.0,
-           importance: float = 1.0) -> Goal:
-    """Goal: hit *target*; unacceptable below *low* or above *high*."""
-    return Goal("target", low=low, target=target, high=high, s=s, t=t, importance=importance)
+def target(lower_limit: float, target: float, upper_limit: float, s: float = 1.0, t: float = 1.0,
+           weight: float = 1.0) -> Goal:
+    """Goal: hit *target*; unacceptable below *lower_limit* or above *upper_limit*."""
+    return Goal("target", lower_limit=lower_limit, target=target, upper_limit=upper_limit, s=s, t=t, weight=weight)
 
 
 def as_goal(value, response: str = "?") -> Goal:
-    """A :class:`Goal`, or a dict such as ``{"goal": "maximize", "low": 120, "target": 170}``."""
+    """A :class:`Goal`, or a dict such as ``{"goal": "maximize", "lower_limit": 120, "target": 170}``."""
     if isinstance(value, Goal):
         return value
     if isinstance(value, dict):
         spec = dict(value)
         kind = spec.pop("goal", spec.pop("kind", None))
-        allowed = {"low", "target", "high", "s", "t", "importance"}
+        allowed = {"lower_limit", "target", "upper_limit", "s", "t", "weight"}
         unknown = sorted(set(spec) - allowed)
+        renamed = {"low": "lower_limit", "high": "upper_limit", "importance": "weight"}
+        if any(key in renamed for key in unknown):
+            raise LevelwiseError(
+                f"The goal for {response!r} uses old key(s) {[k for k in unknown if k in renamed]}; the keys are now "
+                + ", ".join(f"{renamed[k]!r} (was {k!r})" for k in unknown if k in renamed) + "."
+            )
         if unknown:
             raise LevelwiseError(
                 f"The goal for {response!r} has unknown key(s) {unknown}; allowed: goal, {', '.join(sorted(allowed))}."
@@ -162,10 +171,10 @@ def as_goal(value, response: str = "?") -> Goal:
     )
 
 
-def overall_desirability(d, importance) -> np.ndarray:
-    """Weighted geometric mean (prod d_i^r_i)^(1/sum r_i) along the last axis; 0 when any d_i is 0."""
+def overall_desirability(d, weight) -> np.ndarray:
+    """Weighted geometric mean (prod d_i^w_i)^(1/sum w_i) along the last axis; 0 when any d_i is 0."""
     d = np.asarray(d, dtype=float)
-    r = np.asarray(importance, dtype=float)
+    r = np.asarray(weight, dtype=float)
     with np.errstate(divide="ignore"):
         logs = np.log(d)
     return np.exp((logs * r).sum(axis=-1) / r.sum())
@@ -211,23 +220,10 @@ def _factor_union(fits: dict) -> tuple[list[str], dict]:
 
 
 def _mean_function(fit, names: list[str]):
-    """Fast mean prediction from an (m, k_all) array of natural settings (no DataFrames, no Python loops)."""
+    """Mean prediction from an (m, k_all) array of natural settings, through the fit's prediction engine."""
     columns = [names.index(n) for n in fit.factor_names]
-    exponents = getattr(fit.spec, "exponents", None)
-    if exponents is not None and np.shape(exponents) == (len(fit.beta), len(fit.factor_names)):
-        exponents = np.asarray(exponents, dtype=float)
-        center = np.asarray(fit.coding.center, dtype=float)
-        scale = np.asarray(fit.coding.scale, dtype=float)
-        beta = np.asarray(fit.beta, dtype=float)
-
-        def mean(natural):
-            coded = (natural[:, columns] - center) / scale
-            return np.prod(coded[:, None, :] ** exponents[None, :, :], axis=2) @ beta
-
-        return mean
-    return lambda natural: fit.predict(pd.DataFrame(natural[:, columns], columns=list(fit.factor_names)))[
-        "mean"
-    ].to_numpy()
+    engine = fit.engine
+    return lambda natural: engine.mean_and_leverage(natural[:, columns])[0]
 
 
 def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None) -> Optimum:
@@ -242,8 +238,8 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     fits : dict
         Response -> Fit (e.g. from :func:`fit_responses`).
     goals : dict
-        Response -> :class:`Goal` (or a dict like ``{"goal": "target", "low": 400, "target": 500,
-        "high": 600}``). Responses without a goal are predicted but do not count.
+        Response -> :class:`Goal` (or a dict like ``{"goal": "target", "lower_limit": 400, "target": 500,
+        "upper_limit": 600}``). Responses without a goal are predicted but do not count.
     region : dict, optional
         Factor -> (low, high) in natural units. By default each factor's range in the fits.
     constraints : list of str, optional
@@ -320,11 +316,11 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
             )
     responses = list(goal_objects)
     means = {r: _mean_function(fits[r], names) for r in responses}
-    importance = np.array([goal_objects[r].importance for r in responses])
+    weight = np.array([goal_objects[r].weight for r in responses])
 
     def overall(natural: np.ndarray) -> np.ndarray:
         d = np.column_stack([goal_objects[r](means[r](natural)) for r in responses])
-        return overall_desirability(d, importance)
+        return overall_desirability(d, weight)
 
     # Work in [0, 1]^k so that step sizes are comparable across factors (a factor fixed by the region
     # has span 0 and stays put).

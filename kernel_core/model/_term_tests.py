@@ -2,7 +2,7 @@
 
 * **Term tests.** A term of a categorical factor with L levels has L - 1 contrast columns (more for its
   interactions); it is tested as one term by the partial F of the ANOVA: after every term that does not
-  contain it (the hierarchy rule of :mod:`levelwise.anova`, often called "type II").
+  contain it (the hierarchy rule of :mod:`levelwise.model._anova`, often called "type II").
 * **Backward elimination by term** (:func:`reduce_terms`): the removable term with the largest partial-F
   p-value leaves as a whole, all its columns at once; for a one-column term the partial F is t^2 and the
   p-value that of the t test, so the order is the one :func:`levelwise.reduce` uses on continuous models.
@@ -17,7 +17,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 
 
 def term_tests(fit) -> pd.DataFrame:
@@ -37,7 +37,10 @@ def _frame(fit, data):
     """Settings (natural units; level labels for categorical factors) and response of the fit's runs."""
     names = list(fit.factor_names)
     if data is not None:
-        frame = data.loc[fit.runs, [n for n in names if n in data.columns]].copy()
+        from ._inputs import _run_ids
+
+        position = pd.Series(np.arange(len(data)), index=_run_ids(data))
+        frame = data.iloc[position.loc[fit.runs].to_numpy()][[n for n in names if n in data.columns]].copy()
     else:
         settings = np.asarray(fit.run_settings)
         frame = pd.DataFrame(index=fit.runs)
@@ -48,14 +51,15 @@ def _frame(fit, data):
             else:
                 frame[name] = settings[:, j]
     frame[fit.response] = np.asarray(fit.y, dtype=float)
+    frame["run"] = np.asarray(fit.runs)  # the refit names its runs by the same run ids
     return frame
 
 
 def refit_terms(fit, group_rows, data=None):
     """Refit *fit* keeping the terms of ``fit.groups`` at positions *group_rows* (and the intercept if any)."""
-    from .design import Factor
-    from .fit import fit as fit_model
-    from .reduce import formula_of
+    from ..design import Factor
+    from ._fit import fit as fit_model
+    from ._reduce import formula_of
 
     names = list(fit.factor_names)
     rows = [np.asarray(fit.group_exponents[g], dtype=int) for g in group_rows]
@@ -86,7 +90,7 @@ def reduce_terms(fit, alpha: float = 0.05, hierarchy: bool = True, data=None):
     Returns a :class:`levelwise.reduce.Reduction`; its ``steps`` have the columns of :func:`levelwise.reduce`
     (``estimate`` and ``t`` are NaN for a term of several columns) plus ``df`` and ``F`` of the term.
     """
-    from .reduce import Reduction
+    from ._reduce import Reduction
 
     if isinstance(alpha, bool) or not isinstance(alpha, (int, float, np.floating)) or not 0 < alpha < 1:
         raise LevelwiseError(

@@ -18,7 +18,7 @@ import numpy as np
 import scipy.linalg
 from scipy import stats
 
-from ._errors import LevelwiseError
+from .._errors import LevelwiseError
 
 #: The usual named powers, with words for the suggestion.
 NAMED_POWERS = (

@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 
 #: Level combinations searched at most (each is a full continuous search).
 MAX_COMBINATIONS = 256
@@ -41,7 +41,7 @@ class _Spec:
 class LevelSlice:
     """A fit with its categorical factors held at given levels, seen as a fit in its continuous factors.
 
-    It offers what the continuous searches read (``factor_names``, ``coding``, ``spec.exponents``, ``beta``,
+    It offers what the continuous searches read (``factor_names``, ``coding``, ``spec.exponents``, ``beta``, ``engine``,
     ``categories``, ``predict``); ``predict`` adds the held levels and asks the full fit.
     """
 
@@ -79,6 +79,25 @@ class LevelSlice:
         self.s = fit.s
         self.level = fit.level
         self.t_quantile = fit.t_quantile
+        self._engine = None
+
+    @property
+    def engine(self):
+        """The prediction engine of the slice: the polynomial in the continuous factors (the one engine class,
+        fed the slice's coefficients and covariance factor; intervals and extrapolation as the full fit's)."""
+        if self._engine is None:
+            from ._engine import PredictionEngine
+
+            fit = self.fit
+            pick = [j for j, n in enumerate(fit.factor_names) if n not in fit.categories]
+            used = np.asarray(fit.group_exponents).any(axis=0)[pick] if len(fit.group_exponents) else None
+            self._engine = PredictionEngine(
+                factor_names=self.factor_names, exponents=self.spec.exponents, beta=self.beta, cov_factor=self.rinv,
+                center=self.coding.center, scale=self.coding.scale, low=self.coding.low, high=self.coding.high,
+                dispersion=fit.s**2, df=fit.df_resid, used=used,
+                max_leverage=float(fit.leverage.max()) if fit.n else np.inf, level=fit.level,
+            )
+        return self._engine
 
     def _full(self, frame: pd.DataFrame) -> pd.DataFrame:
         frame = pd.DataFrame(frame).copy()
@@ -88,25 +107,6 @@ class LevelSlice:
 
     def predict(self, settings, level=None) -> pd.DataFrame:
         return self.fit.predict(self._full(settings), level)
-
-
-def hold_levels(fit, settings):
-    """(LevelSlice of *fit* at the categorical levels in *settings*, the settings of its continuous factors).
-
-    A categorical factor missing from *settings* is held at its first level.
-    """
-    settings = dict(settings or {})
-    held = {}
-    for name, levels in fit.categories.items():
-        value = settings.pop(name, levels[0])
-        match = [lv for lv in levels if lv == value or str(lv) == str(value)]
-        if not match:
-            raise LevelwiseError(
-                f"The setting for categorical factor {name!r} must be one of its levels {list(levels)}. "
-                f"Got {describe(value)} instead."
-            )
-        held[name] = match[0]
-    return LevelSlice(fit, held), settings
 
 
 def _categorical_levels(fits: dict, region) -> dict:
@@ -156,7 +156,7 @@ def optimize_levels(fits: dict, goals: dict, region=None, constraints=None, star
 
     ``region`` may hold a level or a list of levels for a categorical factor (the levels searched).
     """
-    from .optimize import optimize
+    from ._optimize import optimize
 
     if not isinstance(fits, dict) or not fits:
         raise LevelwiseError(
@@ -212,7 +212,7 @@ def steepest_path_levels(fit, step: float = 1.0, steps: int = 10, ascent: bool =
     """:func:`levelwise.steepest_path` for a first-order model with categorical factors: each categorical factor
     is held at the level with the largest (ascent) or smallest (descent) effect, and the continuous factors
     follow their first-order coefficients."""
-    from .optimize import steepest_path
+    from ._optimize import steepest_path
 
     order = np.asarray(fit.group_exponents).sum(axis=1)
     if (order > 1).any():
@@ -242,4 +242,4 @@ def steepest_path_levels(fit, step: float = 1.0, steps: int = 10, ascent: bool =
                      level_effects=pd.DataFrame(rows))
 
 
-__all__ = ["LevelOptimum", "LevelPath", "LevelSlice", "hold_levels", "optimize_levels", "steepest_path_levels"]
+__all__ = ["LevelOptimum", "LevelPath", "LevelSlice", "optimize_levels", "steepest_path_levels"]

@@ -20,9 +20,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._errors import LevelwiseError, describe
+from .._errors import LevelwiseError, describe
 
-PRESETS = ("linear", "interactions", "quadratic")
+#: Model presets: main effects; plus every two-factor interaction; plus every pure quadratic.
+PRESETS = ("main_effects", "two_factor_interactions", "full_second_order")
+#: Names used before format 3 of the study file, refused with a message naming the new ones.
+RETIRED_PRESETS = {"linear": "main_effects", "interactions": "two_factor_interactions",
+                   "quadratic": "full_second_order"}
 
 _TOKEN = re.compile(r"`([^`]*)`|([^\W\d]\w*)|(\S)", re.UNICODE)
 
@@ -55,10 +59,6 @@ class ModelSpec:
     @property
     def p(self) -> int:
         return len(self.terms)
-
-    def matrix(self, coded: np.ndarray) -> np.ndarray:
-        """Model matrix for an (n, k) array of coded factor settings."""
-        return monomials(np.asarray(coded, dtype=float), self.exponents)
 
 
 def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarray:
@@ -110,9 +110,9 @@ def preset_exponents(preset: str, k: int) -> np.ndarray:
     rows = [np.zeros(k, dtype=int)]
     eye = np.eye(k, dtype=int)
     rows += list(eye)
-    if preset in ("interactions", "quadratic"):
+    if preset in ("two_factor_interactions", "full_second_order"):
         rows += [eye[i] + eye[j] for i in range(k) for j in range(i + 1, k)]
-    if preset == "quadratic":
+    if preset == "full_second_order":
         rows += list(2 * eye)
     return np.array(rows, dtype=int)
 
@@ -186,15 +186,17 @@ def parse_model(model: str, factor_names) -> ModelSpec:
     ----------
     model : str
         ``"A + B + A:B"``, ``"(A+B+C)**2"``, ``"A*B"``, ``"I(A**2)"``, ``"- 1"`` or ``"0 +"``
-        to drop the intercept; or a preset ``"linear"``, ``"interactions"``, ``"quadratic"``.
-        A left-hand side (``"y ~ ..."``) is ignored.
+        to drop the intercept; or a preset ``"main_effects"``, ``"two_factor_interactions"``
+        (main effects and every two-factor interaction), ``"full_second_order"`` (those and every
+        pure quadratic). A left-hand side (``"y ~ ..."``) is ignored. Terms keep the names as
+        written (``"B:A"`` stays ``B:A``).
     factor_names : sequence of str
 
     Examples
     --------
     >>> parse_model("(A+B)**2", ["A", "B"]).terms
     ('Intercept', 'A', 'B', 'A:B')
-    >>> parse_model("quadratic", ["x", "y"]).terms
+    >>> parse_model("full_second_order", ["x", "y"]).terms
     ('Intercept', 'x', 'y', 'x:y', 'x^2', 'y^2')
     """
     factor_names = tuple(factor_names)
@@ -205,6 +207,12 @@ def parse_model(model: str, factor_names) -> ModelSpec:
             f"{', '.join(PRESETS)}. Got {describe(model)} instead."
         )
     text = model.strip()
+    written = {}
+    if text in RETIRED_PRESETS:
+        raise LevelwiseError(
+            f"The model preset {text!r} has a new name: use {RETIRED_PRESETS[text]!r}. "
+            f"The presets are {', '.join(repr(p) for p in PRESETS)}."
+        )
     if text in PRESETS:
         exponents = preset_exponents(text, k)
     else:
@@ -221,9 +229,17 @@ def parse_model(model: str, factor_names) -> ModelSpec:
         rows = []
         for term in desc.rhs_termlist:
             row = np.zeros(k, dtype=int)
+            parts = []
             for factor in term.factors:
-                row += _exponents_of_code(factor.code, k, model)
+                part = _exponents_of_code(factor.code, k, model)
+                if (row > 0)[part > 0].any():
+                    parts = None  # a factor twice (A:I(A**2)): name the product in factor order
+                elif parts is not None:
+                    parts.append(term_name(part, factor_names))
+                row += part
             rows.append(row)
+            if parts and row.tobytes() not in written:
+                written[row.tobytes()] = ":".join(parts)  # the name as the user wrote it
         if not rows:
             raise LevelwiseError(f"The model {model!r} has no terms.")
         exponents = np.array(rows, dtype=int)
@@ -232,7 +248,7 @@ def parse_model(model: str, factor_names) -> ModelSpec:
     exponents = exponents[np.sort(first)]
     order = np.argsort([row.any() for row in exponents], kind="stable")
     exponents = exponents[order]
-    terms = tuple(term_name(row, factor_names) for row in exponents)
+    terms = tuple(written.get(row.tobytes()) or term_name(row, factor_names) for row in exponents)
     return ModelSpec(formula=model, factor_names=factor_names, exponents=exponents, terms=terms)
 
 
