@@ -29,7 +29,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .study_source import StudySource, open_study, shared_model
+from levelwise import Study
+
+from .study_source import is_invented, open_study, shared_model, title_of
 from .summary import CAUTION, fingerprint, summary_html
 
 
@@ -55,9 +57,9 @@ def _run_column(values, factor) -> np.ndarray:
     return np.array([index.get(str(v), np.nan) for v in values], dtype=float)
 
 
-def payload(source: StudySource) -> dict:
+def payload(study: Study) -> dict:
     """Everything the page needs, as plain JSON-able numbers (the model per response, the runs, the text)."""
-    shared = shared_model(source, read_only=True)
+    shared = source = shared_model(study, read_only=True)
     fits = _fits_of(shared)
     responses = []
     for name in source.responses:
@@ -76,9 +78,9 @@ def payload(source: StudySource) -> dict:
     runs = runs[np.isfinite(runs).all(axis=1)]
     models = {name: source.models.get(name, "") for name in source.responses}
     return {
-        "title": source.title,
-        "invented": source.invented,
-        "summary": summary_html(source, fits),
+        "title": title_of(study),
+        "invented": is_invented(study),
+        "summary": summary_html(shared, fits),
         "caution": CAUTION,
         "fingerprint": fingerprint(shared.data, models, dict(getattr(shared, "exclusions", {}) or {})),
         "factors": [
@@ -115,16 +117,16 @@ def script_json(content) -> str:
     return text
 
 
-def render(source: StudySource) -> str:
+def render(study: Study) -> str:
     """The whole page as one string: the data, the script and the styles inline."""
-    content = payload(source)
+    content = payload(study)
     data = script_json(content)
     parts = {
         "__SCRIPT__": (ASSETS / "export_page.js").read_text(encoding="utf-8"),
         "__DATA__": data,
         "__SUMMARY__": content["summary"],
         "__CAUTION__": CAUTION,
-        "__TITLE__": html.escape(source.title),
+        "__TITLE__": html.escape(title_of(study)),
     }
     # One pass, so text inside the study (a name, a note) can never be taken for a placeholder.
     template = (ASSETS / "export_page.html").read_text(encoding="utf-8")
@@ -133,9 +135,9 @@ def render(source: StudySource) -> str:
 
 def write_export(study, output) -> Path:
     """Write the offline export of *study* (a study JSON path or ``"demo"``) to *output*."""
-    source = study if isinstance(study, StudySource) else open_study(study)
+    study = study if isinstance(study, Study) else open_study(study)
     path = Path(output)
-    text = render(source)
+    text = render(study)
     tmp = path.with_name(path.name + ".tmp")
     tmp.write_text(text, encoding="utf-8")
     tmp.replace(path)

@@ -15,12 +15,12 @@ import re
 
 import ipywidgets as ipw
 
-from levelwise import LevelwiseError
+from levelwise import LevelwiseError, Study
 from levelwise.widgets.style import NO_MATH
 
 from ._compose import find_view
 from .kernel_guard import guard_kernel, log_line
-from .study_source import StudySource, open_study, shared_model
+from .study_source import goals_of, open_study, shared_model, title_of
 from .summary import caution_html, fingerprint, fit_numbers, summary_html
 
 #: The views of the stakeholder page, in page order (the workbench's mutating views, the design
@@ -56,17 +56,17 @@ class ShownHTML(ipw.HTML):
 class StudyReadout:
     """The study summary in words plus the fingerprint line, kept in step with the shared model."""
 
-    def __init__(self, source: StudySource, shared):
-        self.source, self.shared = source, shared
+    def __init__(self, shared):
+        self.shared = shared
         self.summary = ShownHTML().add_class("lw-summary")
         self.fingerprint = ShownHTML().add_class("lw-fingerprint")
         self.refresh()
-        shared.observe(self.refresh, names=[n for n in ("fit", "fits", "data", "exclusions") if shared.has_trait(n)])
+        shared.observe(self.refresh, names=["fit", "fits", "revision", "exclusions"])
         self.widget = ipw.VBox([self.summary, self.fingerprint])
 
     def refresh(self, change=None):
         fits = current_fits(self.shared)
-        self.summary.value = summary_html(self.source, fits)
+        self.summary.value = summary_html(self.shared, fits)
         data, models, exclusions = _state_of(self.shared)
         numbers = {name: fit_numbers(f) for name, f in fits.items()}
         self.fingerprint.value = (
@@ -75,10 +75,10 @@ class StudyReadout:
         )
 
 
-def study_goals(source: StudySource, shared) -> dict:
+def study_goals(shared) -> dict:
     """The optimiser's goals from the study's recorded goals, limits from the observed range of each response."""
     goals = {}
-    for name, spec in source.goals.items():
+    for name, spec in goals_of(shared.study).items():
         kind = (spec or {}).get("goal", "none")
         if kind not in ("maximize", "minimize", "target") or name not in shared.data:
             continue
@@ -96,14 +96,14 @@ def study_goals(source: StudySource, shared) -> dict:
     return goals
 
 
-def _read_only_part(name: str, view, source: StudySource):
+def _read_only_part(name: str, view):
     """The part of a view a stakeholder sees: no editors, only what shows the study and moves the settings."""
     if name == "PredictionsView":
         # Adding the current settings as a row is a viewer's note, not a change to the study.
         return ipw.VBox([view.add_button, view.table, view.download]).add_class("lw-predictions-view")
     if name == "OptimizerView":
         heading = ShownHTML("<h3>Best settings for the study's goals</h3>")
-        goals = study_goals(source, view.shared)
+        goals = study_goals(view.shared)
         if not goals:
             return ipw.VBox([heading, ShownHTML("<p>The study records no goals to optimise.</p>")])
         for response, goal in goals.items():
@@ -148,25 +148,25 @@ def unavailable(exc) -> ipw.VBox:
         "</div>"
     ).add_class("lw-unavailable")
     page = ipw.VBox([message, ShownHTML(caution_html())]).add_class("lw-present").add_class(NO_MATH)
-    page.shared, page.views, page.source = None, [], None
+    page.shared, page.views, page.study = None, [], None
     return page
 
 
 def build(source=None) -> ipw.VBox:
-    """The read-only stakeholder page for *source* (a path, ``"demo"``, or None: see :func:`open_study`)."""
+    """The read-only stakeholder page for *source* (a Study, a path, ``"demo"``, or None: see :func:`open_study`)."""
     guard_kernel()
     try:
-        source = source if isinstance(source, StudySource) else open_study(source)
-        shared = shared_model(source, read_only=True)
+        study = source if isinstance(source, Study) else open_study(source)
+        shared = shared_model(study, read_only=True)
     except (LevelwiseError, OSError) as exc:  # the page says what is wrong; it never shows a traceback
         return unavailable(exc)
-    title = ShownHTML(f"<h2>{html.escape(source.title)}</h2>").add_class("lw-title")
+    title = ShownHTML(f"<h2>{html.escape(title_of(study))}</h2>").add_class("lw-title")
     banner = ShownHTML(caution_html()).add_class("lw-banner")
-    readout = StudyReadout(source, shared)
+    readout = StudyReadout(shared)
     children = [title, banner, readout.widget]
     views = [readout]
-    if len(source.responses) > 1 and shared.has_trait("responses"):
-        chooser = ipw.ToggleButtons(options=list(source.responses), value=shared.response,
+    if len(shared.responses) > 1:
+        chooser = ipw.ToggleButtons(options=list(shared.responses), value=shared.response,
                                     description="Response shown").add_class("lw-response-choice")
         chooser.observe(lambda change: setattr(shared, "response", change["new"]), names="value")
         children.append(chooser)
@@ -176,7 +176,7 @@ def build(source=None) -> ipw.VBox:
             continue
         view = view_class(shared)
         views.append(view)
-        children.append(_read_only_part(name, view, source))
+        children.append(_read_only_part(name, view))
     page = ipw.VBox(children).add_class("lw-present").add_class(NO_MATH)  # no text on the page is typeset
-    page.shared, page.views, page.source = shared, views, source
+    page.shared, page.views, page.study = shared, views, study
     return page

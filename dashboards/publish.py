@@ -19,7 +19,7 @@ from levelwise import LevelwiseError
 
 from . import NOTEBOOKS
 from .hardening import voila_config
-from .study_source import DEMO, STUDY_FILE
+from .study_source import STUDY_FILE
 
 #: Every file a published folder holds.
 PUBLISHED_FILES = ("present.ipynb", STUDY_FILE, "voila.json", "README.md")
@@ -83,7 +83,7 @@ def publish(study, out) -> Path:
     LevelwiseError
         *out* exists and is not an empty folder, or the study cannot be read.
     """
-    from .study_source import open_study
+    from .study_source import open_study, study_path, title_of
 
     out = Path(out)
     if out.exists() and (not out.is_dir() or any(out.iterdir())):
@@ -92,20 +92,13 @@ def publish(study, out) -> Path:
             f"{', '.join(PUBLISHED_FILES)}). Choose a new folder."
         )
     source = open_study(study)  # read it first: a study that does not load is not published
+    path = study_path(study)
     out.mkdir(parents=True, exist_ok=True)
     shutil.copyfile(NOTEBOOKS / "present.ipynb", out / "present.ipynb")
     target = out / STUDY_FILE
-    if source.study is not None and source.path is not None:
-        shutil.copyfile(source.path, target)
-    elif source.study is not None and hasattr(source.study, "save"):
-        source.study.save(target)
-    elif str(study) == DEMO:
-        raise LevelwiseError(
-            "The demo study cannot be published by this installation: it has no study-file support "
-            "(levelwise.study) to write it."
-        )
+    shutil.copyfile(path, target)  # the file exactly as it was read
     config = voila_config()
     (out / "voila.json").write_text(json.dumps(config, indent=2) + "\n", encoding="utf-8")
     cull = config["MappingKernelManager"]["cull_idle_timeout"]
-    (out / "README.md").write_text(README.format(title=source.title, cull=cull), encoding="utf-8")
+    (out / "README.md").write_text(README.format(title=title_of(source), cull=cull), encoding="utf-8")
     return out

@@ -21,7 +21,6 @@ from .design import (
     run_sheet,
     write_run_sheet,
 )
-from .design._runsheet_reader import FilledRunSheet, read_run_sheet
 from .model import (
     BoxCoxResult,
     Fit,
@@ -104,9 +103,38 @@ __all__ += [
 ]
 
 # The study file and data exchange (issue 7).
-from .study import Study  # noqa: E402
+from .study import (  # noqa: E402
+    FilledRunSheet,
+    ImportReport,
+    Problem,
+    Study,
+    export_anova,
+    export_coefficients,
+    export_predictions,
+    export_run_sheet,
+    export_table,
+    import_table,
+    read_run_sheet,
+    read_table,
+    study_run_sheet,
+)
 
-__all__ += ["ImportDataError", "OutsideEditError", "Study", "StudyFileError"]
+__all__ += [
+    "ImportDataError",
+    "ImportReport",
+    "OutsideEditError",
+    "Problem",
+    "Study",
+    "StudyFileError",
+    "export_anova",
+    "export_coefficients",
+    "export_predictions",
+    "export_run_sheet",
+    "export_table",
+    "import_table",
+    "read_table",
+    "study_run_sheet",
+]
 
 # Beyond two levels (issue 14).
 from .design import (  # noqa: E402

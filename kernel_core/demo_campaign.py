@@ -99,7 +99,7 @@ def truth(response: str, natural: dict) -> float:
 @contextmanager
 def _fixed_clock(start=datetime(2026, 11, 2, 7, 30, tzinfo=UTC)):
     """Audit timestamps from a fixed, advancing clock, so the generated file is the same every time."""
-    from . import study as study_module
+    from .study import _values
 
     ticks = iter(range(10**6))
 
@@ -107,12 +107,12 @@ def _fixed_clock(start=datetime(2026, 11, 2, 7, 30, tzinfo=UTC)):
         moment = start + timedelta(minutes=next(ticks))
         return moment.isoformat(timespec="milliseconds").replace("+00:00", "Z")
 
-    saved = study_module._now
-    study_module._now = now
+    saved = _values.now
+    _values.now = now
     try:
         yield
     finally:
-        study_module._now = saved
+        _values.now = saved
 
 
 def _record(study, rng, run: int, skip=()) -> None:
@@ -173,7 +173,8 @@ def campaign_study():
             if f.name not in ACTIVE:
                 table[f.name] = f.center
         surface_ids = study.add_stage("surface", table, description="face-centred central composite on "
-                                      + ", ".join(ACTIVE), reason="model curvature in the active factors")
+                                      + ", ".join(ACTIVE), reason="model curvature in the active factors",
+                                      renumber=True)  # an independent design: its runs follow the study's
         for run in surface_ids:
             _record(study, rng, run)
         for response in RESPONSES:

@@ -21,7 +21,7 @@ def hostile_study():
     study = Study(factors, title="Title " + PAYLOAD + " (invented)", notes="Notes " + PAYLOAD)
     design = full_factorial(study.factors, randomize=False)
     study.add_stage("Stage " + PAYLOAD, design, description="Stage text " + PAYLOAD)
-    study.add_stage("Repeat " + PAYLOAD, design)
+    study.add_stage("Repeat " + PAYLOAD, design, renumber=True)  # a replicate: its runs follow the first
     response = "Yield " + PAYLOAD
     study.add_response(response, units="g " + PAYLOAD, goal="maximize")
     rng = np.random.default_rng(7)

@@ -41,7 +41,7 @@ def test_published_page_with_a_categorical_factor(served_categorical, browser):
     assert "Traceback" not in page.content()
     assert "tested at the levels north, east, south" in page.locator(".lw-present").first.inner_text()
     source = open_study(str(study_path))
-    reference = source.study.fit("y")  # the kernel's fit of the study file, made here
+    reference = source.fit("y")  # the kernel's fit of the study file, made here
     choice = page.locator(".lw-level-choice select").first
     for level in ("south", "east"):
         choice.select_option(level)

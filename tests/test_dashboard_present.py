@@ -7,7 +7,7 @@ import pytest
 
 from levelwise import LevelwiseError
 from levelwise.dashboards import explore, present
-from levelwise.dashboards.study_source import DEMO, STUDY_ENV, locate, open_study
+from levelwise.dashboards.study_source import DEMO, STUDY_ENV, locate, open_study, shared_model
 from levelwise.dashboards.summary import CAUTION, fingerprint
 from levelwise.widgets import ReadOnlyError
 
@@ -63,7 +63,7 @@ def test_summary_widgets_ignore_browser_updates(page):
 
 
 def test_fingerprint_follows_data_models_and_exclusions():
-    source = open_study("demo")
+    source = shared_model(open_study("demo"), read_only=True)
     base = fingerprint(source.data, source.models, source.exclusions)
     assert base == fingerprint(source.data.copy(), dict(source.models), dict(source.exclusions))
     changed = source.data.copy()

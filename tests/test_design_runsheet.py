@@ -7,6 +7,7 @@ import pytest
 
 from levelwise import (
     Factor,
+    ImportDataError,
     LevelwiseError,
     LevelwiseWarning,
     central_composite,
@@ -57,17 +58,23 @@ def test_csv_round_trip_and_errors(tmp_path):
     filled = read_run_sheet(path, d)
     assert filled.missing_responses == {"y": [3]}
 
-    bad = sheet.astype({"y": object})
+    # One importer, one error model: rows as the spreadsheet shows them (header = row 1), every problem collected.
+    bad = sheet.astype({"y": object, "A": object})
     bad.loc[1, "y"] = "high"
-    with pytest.raises(LevelwiseError, match=r"Row 2 \(run 2\), column 'y' holds 'high'; a number is required"):
+    bad.loc[3, "A"] = "hot"
+    with pytest.raises(ImportDataError) as excinfo:
         read_run_sheet(bad, d)
-    with pytest.raises(LevelwiseError, match=r"Unknown columns: \['Operator'\]"):
-        read_run_sheet(sheet.assign(Operator="kim"), d)
-    with pytest.raises(LevelwiseError, match=r"missing columns: \['B \(achieved\)'\]"):
-        read_run_sheet(sheet.drop(columns="B (achieved)"), d)
+    assert [(p.row, p.column) for p in excinfo.value.problems] == [(3, "y"), (5, "A")]
+    assert "row 3, column 'y': 'high' is not a number" in str(excinfo.value)
+    with pytest.warns(LevelwiseWarning, match=r"did not use the column\(s\) \['Operator'\]"):
+        read_run_sheet(sheet.assign(Operator="kim"), d)  # listed, not dropped silently
+    filled = read_run_sheet(sheet.drop(columns="B (achieved)"), d)  # achieved columns are optional
+    assert filled.missing_responses == {"y": [3]}
+    with pytest.raises(ImportDataError, match=r"column 'y': the response column is missing"):
+        read_run_sheet(sheet.drop(columns="y"), d)
     dup = sheet.copy()
     dup.loc[4, "run"] = 1
-    with pytest.raises(LevelwiseError, match=r"run id 1 appears more than once \(rows \[1, 5\]\)"):
+    with pytest.raises(ImportDataError, match=r"row 6, column 'run': duplicate run: run 1 is also in row 2"):
         read_run_sheet(dup, d)
     with pytest.raises(LevelwiseError, match="needs the 'design'"):
         read_run_sheet(path)
@@ -90,5 +97,27 @@ def test_categorical_level_checked():
     d = full_factorial(FACTORS, seed=2)
     sheet = d.to_run_sheet()
     sheet.loc[0, "Metal (achieved)"] = "copper"
-    with pytest.raises(LevelwiseError, match=r"Row 1 \(run 1\), column 'Metal \(achieved\)' holds 'copper'"):
+    with pytest.raises(ImportDataError, match=r"row 2, column 'Metal \(achieved\)': 'copper' is not one of the "
+                                              r"levels \['steel', 'brass'\]"):
         read_run_sheet(sheet, d)
+
+
+def test_a_run_sheet_written_with_responses_reads_back_with_them(tmp_path):
+    from levelwise import Study, export_run_sheet
+
+    d = full_factorial([Factor("Oven", 160, 200, units="°C"), Factor("Dwell", 8, 16, units="min")], seed=4)
+    study = Study(d.factors)
+    study.add_stage("screen", d)
+    study.add_response("Gloss", units="GU")
+    values = {1: 81.5, 2: 84.0, 4: 86.5}  # invented; run 3 not measured yet
+    for run, value in values.items():
+        study.record(run, "Gloss", value)
+    study.record_achieved(2, "Oven", 161.5)
+    for suffix in (".csv", ".xlsx"):
+        path = export_run_sheet(study, tmp_path / f"sheet{suffix}", achieved=True)
+        filled = read_run_sheet(path, d, responses=["Gloss"])
+        got = dict(zip(filled.data["run"], filled.data["Gloss"]))
+        assert {run: got[run] for run in values} == values and np.isnan(got[3])
+        assert filled.missing_responses == {"Gloss": [3]}
+        assert filled.study.responses["Gloss"].units == "GU"  # from the header "Gloss [GU]"
+        assert filled.study.achieved().loc[2, "Oven"] == 161.5

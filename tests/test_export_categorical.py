@@ -66,7 +66,7 @@ def test_export_page_computes_like_the_kernel_at_every_level(categorical_export,
     page.on("pageerror", lambda exc: errors.append(str(exc)))
     page.goto(html_path.as_uri())
     source = open_study(str(study_path))
-    fit = source.study.fit("y")
+    fit = source.fit("y")
     numbers = page.locator("#lw-numbers")
     slider = page.locator("input.lw-range").first
     slider.focus()

@@ -53,7 +53,7 @@ def test_wheel_holds_only_levelwise(wheel):
         names = archive.namelist()
     assert {t for t in tops if not t.endswith(".dist-info")} == {"levelwise"}
     # package data travels with it: the study schema, the notebooks, the export's script and the demo study
-    for needed in ("levelwise/study_schema.json", "levelwise/dashboards/explore.ipynb",
+    for needed in ("levelwise/study/study_schema.json", "levelwise/dashboards/explore.ipynb",
                    "levelwise/dashboards/present.ipynb", "levelwise/dashboards/assets/export_page.js",
                    "levelwise/dashboards/data/demo_campaign.json", "levelwise/widgets/__init__.py"):
         assert needed in names, f"{needed} missing from the wheel"

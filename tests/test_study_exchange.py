@@ -9,8 +9,8 @@ import openpyxl
 import pandas as pd
 import pytest
 
-from levelwise import Factor, ImportDataError, Study, full_factorial
-from levelwise.exchange import (
+from levelwise import Factor, ImportDataError, LevelwiseWarning, Study, full_factorial
+from levelwise.study import (
     anova_table,
     coefficient_table,
     export_anova,
@@ -21,8 +21,10 @@ from levelwise.exchange import (
     import_table,
     prediction_table,
     read_table,
-    run_sheet,
     split_header,
+)
+from levelwise.study import (
+    study_run_sheet as run_sheet,
 )
 
 FACTORS = [Factor("Oven", 170, 210, "°C"), Factor("Dwell", 8, 16, "min")]
@@ -48,7 +50,7 @@ def test_run_sheet_round_trip_csv_and_xlsx(tmp_path):
         study = planned_study()
         path = export_run_sheet(study, tmp_path / f"sheet{suffix}")
         sheet = read_table(path)
-        assert list(sheet.columns) == ["run", "stage", "block", "point_type", "Oven [°C]", "Dwell [min]",
+        assert list(sheet.columns) == ["run", "stage", "block", "role", "Oven [°C]", "Dwell [min]",
                                        "Impact [J]"]
         # The plant fills in the response column and sends the sheet back.
         filled = run_sheet(study)
@@ -101,7 +103,9 @@ def test_planned_setting_that_differs_is_a_problem_unless_mapped_as_achieved():
                                               r"says 172.5; map the column under 'achieved'"):
         import_table(study, data)
     mapping = {"run": "run", "achieved": {"Oven": "Oven"}, "responses": {"Impact": "Impact"}}
-    import_table(study, data, mapping)
+    with pytest.warns(LevelwiseWarning, match=r"did not use the column\(s\) \['Dwell'\]"):
+        report = import_table(study, data, mapping)
+    assert [(w.row, w.column) for w in report.warnings] == [(1, "Dwell")]  # listed, never dropped silently
     assert study.achieved().loc[2, "Oven"] == 172.5
     assert study.data().loc[2, "Oven"] == 172.5 and study.planned().loc[2, "Oven"] == 210.0
 
@@ -109,11 +113,11 @@ def test_planned_setting_that_differs_is_a_problem_unless_mapped_as_achieved():
 def test_outside_design_range_is_a_warning_and_kept():
     study = planned_study()
     data = csv_bytes("""
-    run,Oven achieved [°C],Impact
+    run,Oven (achieved) [°C],Impact
     3,215,8.0
     """)
     report = import_table(study, data)
-    assert [(w.row, w.column, w.severity) for w in report.warnings] == [(2, "Oven achieved [°C]", "warning")]
+    assert [(w.row, w.column, w.severity) for w in report.warnings] == [(2, "Oven (achieved) [°C]", "warning")]
     assert "215.0 is outside the design range 170.0 to 210.0 of 'Oven' (kept)" in str(report.warnings[0])
     assert study.achieved().loc[3, "Oven"] == 215.0
 
@@ -227,12 +231,24 @@ def test_mapping_problems_are_named():
 
 def test_header_units_and_guessed_mapping():
     assert split_header("Oven [°C]") == ("Oven", "°C")
-    assert split_header("Film (µm)") == ("Film", "µm")
+    assert split_header("Film (µm)") == ("Film (µm)", None)  # one convention: units in [...] only
     assert split_header("Dwell") == ("Dwell", None)
     study = planned_study()
-    mapping = guess_mapping(["Run", "Oven [°C]", "achieved Dwell", "Impact (J)", "comment"], study)
-    assert mapping == {"run": "Run", "factors": {"Oven": "Oven [°C]"}, "achieved": {"Dwell": "achieved Dwell"},
-                       "responses": {"Impact": "Impact (J)"}}
+    mapping = guess_mapping(["Run", "Oven [°C]", "Dwell (achieved)", "Impact [J]", "comment"], study)
+    assert mapping == {"run": "Run", "factors": {"Oven": "Oven [°C]"}, "achieved": {"Dwell": "Dwell (achieved)"},
+                       "responses": {"Impact": "Impact [J]"}}
+
+
+def test_a_column_the_study_does_not_know_is_listed_not_dropped():
+    # A response column imported before add_response: it is reported (a warning naming the column), not lost.
+    study = planned_study()
+    with pytest.warns(LevelwiseWarning, match=r"did not use the column\(s\) \['Gloss \[GU\]', 'comment'\]"):
+        report = import_table(study, b"run,Impact,Gloss [GU],comment\n1,7.0,84,ok\n")
+    assert [(w.row, w.column) for w in report.warnings] == [(1, "Gloss [GU]"), (1, "comment")]
+    assert "Gloss" not in study.responses and study.data().loc[1, "Impact"] == 7.0
+    study.add_response("Gloss", units="GU")
+    report = import_table(study, b"run,Impact,Gloss [GU]\n1,7.0,84\n")  # now it is used, nothing unused
+    assert report.warnings == () and study.data().loc[1, "Gloss"] == 84.0
 
 
 def demo_fit():
@@ -319,7 +335,7 @@ def test_matplotlib_and_jsonschema_are_imported_only_when_used():
     import subprocess
     import sys
 
-    code = ("import sys, levelwise, levelwise.study, levelwise.exchange, levelwise.figures\n"
+    code = ("import sys, levelwise, levelwise.study, levelwise.figures\n"
             "print(sorted(m for m in ('matplotlib', 'jsonschema', 'openpyxl') if m in sys.modules))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
@@ -347,11 +363,11 @@ def test_a_filled_design_run_sheet_imports_into_the_study(tmp_path):
 
 
 def test_parse_header_forms():
-    from levelwise.exchange import parse_header
+    from levelwise.study import parse_header
 
     assert parse_header("Oven (achieved) [°C]") == ("Oven", "°C", True)
     assert parse_header("Oven (Achieved)") == ("Oven", None, True)
-    assert parse_header("achieved Oven [°C]") == ("Oven", "°C", True)
+    assert parse_header("achieved Oven [°C]") == ("achieved Oven", "°C", False)  # not the convention
     assert parse_header("Oven [°C]") == ("Oven", "°C", False)
     assert "Oven (achieved) [°C]" in run_sheet(planned_study(), achieved=True).columns
 

@@ -15,6 +15,7 @@ import json
 import os
 import re
 import signal
+import warnings
 from datetime import datetime
 from pathlib import Path
 
@@ -24,9 +25,8 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from levelwise import Factor, LevelwiseError, Study, fit, full_factorial, parse_model
-from levelwise.exchange import import_table
-from levelwise.study import content_hash
+from levelwise import Factor, LevelwiseError, LevelwiseWarning, Study, fit, full_factorial, parse_model
+from levelwise.study import content_hash, import_table
 
 RANDOM = os.environ.get("LEVELWISE_FUZZ_RANDOM") == "1"
 COUNTS: dict[str, int] = {}
@@ -63,7 +63,9 @@ def call(kind: str, function, *args, **kwargs):
     previous = signal.signal(signal.SIGALRM, _alarm)
     signal.setitimer(signal.ITIMER_REAL, HANG_SECONDS)
     try:
-        return function(*args, **kwargs)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", LevelwiseWarning)  # e.g. columns an import does not use
+            return function(*args, **kwargs)
     except LevelwiseError as exc:
         message = str(exc)
         assert message.strip(), f"{type(exc).__name__} with an empty message"

@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from levelwise import Factor, LevelwiseError, OutsideEditError, Study, full_factorial
+from levelwise import Factor, LevelwiseError, LevelwiseWarning, OutsideEditError, Study, full_factorial
 from levelwise.study import FORMAT_VERSION, content_hash
 
 FACTORS = [Factor("Oven", 170, 210, "°C"), Factor("Dwell", 8, 16, "min"), Factor("Film", 50, 90, "µm")]
@@ -36,7 +36,7 @@ def small_study() -> Study:
     study.exclude(4, "panel dropped", response="Impact")
     study.exclude(7, "wrong powder batch")
     study.set_model("Impact", "Oven + Dwell + Film")
-    study.add_stage("fold-over", full_factorial(FACTORS, seed=4).table.assign(block=2))
+    study.add_stage("fold-over", full_factorial(FACTORS, seed=4).table.assign(block=2), renumber=True)
     return study
 
 
@@ -69,7 +69,7 @@ def test_file_is_diff_friendly(tmp_path):
     lines = text.splitlines()
     run_lines = [line for line in lines if line.lstrip().startswith('{"achieved"')]
     assert len(run_lines) == len(study)  # one run per line
-    assert '"format_version": 1' in text and "°C" in text  # readable, not \u escapes
+    assert '"format_version": 2' in text and "°C" in text  # readable, not \u escapes
     document = json.loads(text)
     assert list(document) == sorted(document)  # keys sorted
 
@@ -167,9 +167,11 @@ def test_exclusions_apply_to_data_and_fits():
     assert len(table) == len(study) and table.loc[4, "Impact"] == 9.0  # nothing dropped or blanked
     assert table.loc[4, "excluded"] == "Impact: panel dropped" and table.loc[7, "excluded"] == "all: wrong powder batch"
     assert table.loc[1, "excluded"] == ""
-    fit = study.fit("Impact")
+    with pytest.warns(LevelwiseWarning, match=r"'Impact' has no value for run\(s\) \[11, 12, "):
+        fit = study.fit("Impact")  # runs 11.. (the second stage) are not measured yet
     assert sorted(fit.runs) == [r for r in range(1, 11) if r not in (4, 7)]
-    assert set(study.fits()) == {"Impact"}
+    with pytest.warns(LevelwiseWarning):
+        assert set(study.fits()) == {"Impact"}
     with pytest.raises(LevelwiseError, match="'Gloss' has no model yet"):
         study.fit("Gloss")
 
@@ -204,24 +206,24 @@ def test_format_0_file_is_migrated(data_dir, tmp_path):
     # Oven: ((9.6 + 10.1) - (6.9 + 8.8)) / 4 = 1.0; Dwell: ((8.8 + 10.1) - (6.9 + 9.6)) / 4 = 0.6.
     assert fit.coefficients.loc["Oven", "estimate"] == pytest.approx(1.0)
     assert fit.coefficients.loc["Dwell", "estimate"] == pytest.approx(0.6)
-    # Saved again, it is a format-1 file that validates and loads with its hash.
+    # Saved again, it is a current-format file that validates and loads with its hash.
     saved = study.save(tmp_path / "migrated.json")
     document = json.loads(saved.read_text(encoding="utf-8"))
-    assert document["format_version"] == FORMAT_VERSION == 1
+    assert document["format_version"] == FORMAT_VERSION == 2
     Study.load(saved)
 
 
 def test_every_shipped_example_validates_against_the_schema(data_dir):
     from importlib import resources
 
-    schema = json.loads(resources.files("levelwise").joinpath("study_schema.json").read_text(encoding="utf-8"))
+    schema = json.loads(resources.files("levelwise.study").joinpath("study_schema.json").read_text(encoding="utf-8"))
     jsonschema.Draft202012Validator.check_schema(schema)
     examples = sorted(data_dir.glob("study_*.json"))
-    assert [p.name for p in examples] == ["study_example.json", "study_v0.json"]
+    assert [p.name for p in examples] == ["study_example.json", "study_v0.json", "study_v1.json"]
     for path in examples:
         document = json.loads(path.read_text(encoding="utf-8"))
-        if document["format_version"] == 0:
-            continue  # format 0 had no schema; migrated below
+        if document["format_version"] < FORMAT_VERSION:
+            continue  # older formats: migrated below and in tests/test_study_migration.py
         jsonschema.validate(document, schema)
         assert document["sha256"] == content_hash(document["data"], document["audit"])
     migrated = Study.load(data_dir / "study_v0.json")
@@ -250,9 +252,59 @@ def test_to_code_rebuilds_the_fits(data_dir, tmp_path):
     namespace: dict = {}
     exec(compile(code, "<to_code>", "exec"), namespace)  # noqa: S102 - the point of the test
     fits = namespace["fits"]
-    expected = Study.load(path).fits()
+    with pytest.warns(LevelwiseWarning, match=r"'Gloss' has no value for run\(s\) \[20, 21, 22\]"):
+        expected = Study.load(path).fits()  # the centre-check stage measured Impact only
     assert set(fits) == set(expected) == {"Impact", "Gloss"}
     for response in fits:
         pd.testing.assert_frame_equal(fits[response].coefficients, expected[response].coefficients)
         assert list(fits[response].runs) == list(expected[response].runs)
     assert 9 not in fits["Gloss"].runs and 5 not in fits["Impact"].runs and 5 in fits["Gloss"].runs
+
+
+def test_add_stage_keeps_the_run_ids_of_an_augmentation_and_refuses_repeated_ones():
+    study = Study(FACTORS)
+    screen = full_factorial(FACTORS, seed=5)  # 8 runs, ids 1..8
+    assert study.add_stage("screen", screen) == list(screen.table["run"])
+    # The new runs of an augmentation (as fold_over returns them): ids continue after the original ones.
+    mirrored = screen.table.copy()
+    for f in FACTORS:
+        mirrored[f.name] = f.low + f.high - mirrored[f.name]
+    mirrored["run"] = mirrored["run"] + 8
+    mirrored["block"] = 2
+    assert study.add_stage("fold-over", mirrored.iloc[::-1]) == list(range(16, 8, -1))
+    assert len(study) == 16  # only the new runs were added
+    # A design that repeats the original runs (the old runs and the new ones together) is refused.
+    both = pd.concat([screen.table, mirrored.assign(run=mirrored["run"] + 8)])
+    with pytest.raises(LevelwiseError, match=r"repeats run id\(s\) \[1, 2, 3, 4, 5, 6, 7, 8\] already in the "
+                                             r"study.*add only the new runs.*renumber=True"):
+        study.add_stage("again", both)
+    assert len(study) == 16 and [s.name for s in study.stages] == ["screen", "fold-over"]  # nothing changed
+    # An independent design numbered from 1 is added after the study's runs when asked to.
+    assert study.add_stage("confirm", screen, renumber=True) == list(range(17, 25))
+    with pytest.raises(LevelwiseError, match=r"names run id\(s\) \[3\] more than once"):
+        study.add_stage("twice", screen.table.assign(run=[1, 2, 3, 3, 30, 31, 32, 33]))
+
+
+def test_exclusions_table_keeps_none_for_every_response():
+    study = small_study()  # run 4 excluded from Impact only, run 7 from every response
+    rows = study.exclusions[["run", "response"]].values.tolist()
+    assert rows == [[4, "Impact"], [7, None]]
+    assert study.exclusions["response"].iloc[1] is None  # not NaN: "every response" stays distinguishable
+
+
+def test_a_fold_over_stage_adds_only_the_new_runs():
+    from levelwise import fold_over, fractional_factorial
+
+    factors = [Factor(name, -1, 1) for name in "ABCDEFG"]
+    study = Study(factors)
+    screen = fractional_factorial(factors, runs=8, seed=1)
+    study.add_stage("screen", screen)
+    new = fold_over(screen, seed=2)
+    ids = study.add_stage("fold-over", new)
+    assert ids == list(new.table["run"]) and sorted(ids) == list(range(9, 17))  # ids continue after 1..8
+    assert len(study) == 16
+    planned = study.planned()
+    assert set(planned.loc[ids, "block"]) == {2}
+    with pytest.raises(LevelwiseError, match=r"repeats run id\(s\) \[1, 2, 3, 4, 5, 6, 7, 8, 9, 10, '...'\]"):
+        study.add_stage("both", screen.combine(new))  # the old runs again: refused, nothing added
+    assert len(study) == 16

@@ -436,6 +436,40 @@ def test_shared_model_over_a_study_writes_changes_through():
         locked.include(4)
 
 
+def test_shared_model_is_a_view_of_one_study():
+    from levelwise import Study
+
+    shared = make_shared(data=demo_data_two_responses())
+    study = shared.study
+    assert isinstance(study, Study) and list(shared.data.index) == study.run_ids  # runs named by run id
+    # The table is the study's, read from it: a value recorded in the study is what the view shows.
+    run = study.run_ids[3]
+    study.record(run, "Impact", 12.5, overwrite=True, reason="re-tested")  # invented
+    assert shared.data.loc[run, "Impact"] == 12.5
+    seen = []
+    shared.observe(lambda change: seen.append(change["name"]), names=["fits", "fit"])
+    assert shared.refresh() is True and seen == ["fits", "fit"]  # one refit, one notification of each
+    assert shared.fit.n == len(study) and shared.refresh() is False
+    # Exclusions: one shape, run id -> reason, and the study holds them (with its audit log).
+    shared.exclude(run, "panel scratched")
+    assert shared.exclusions == {run: "panel scratched"}
+    assert study.exclusions[["run", "response", "reason"]].values.tolist() == [[run, None, "panel scratched"]]
+    assert study.audit[-1].action == "exclude"
+    # An exclusion of one response only leaves that response's fit alone.
+    other = study.run_ids[5]
+    study.exclude(other, "gloss meter not calibrated", response="Gloss")
+    shared.refresh()
+    assert other in shared.fits["Impact"].runs and other not in shared.fits["Gloss"].runs
+    assert (other, "gloss meter not calibrated") in list(shared.fits["Gloss"].exclusions)
+    assert shared.exclusions == {run: "panel scratched"}  # the every-response exclusions
+    # The mirrored traits are written only through the model's methods.
+    with pytest.raises(LevelwiseError, match="mirrors its study"):
+        shared.models = {"Impact": "Oven"}
+    with pytest.raises(LevelwiseError, match="mirrors its study"):
+        shared.exclusions = {}
+    assert study.models["Impact"] == demo.MODEL
+
+
 # ----- what reaches the browser -----------------------------------------------------------------------
 def test_bytes_per_slider_event_are_float32_and_only_what_changed(monkeypatch, capsys):
     log = install_recording_comm(monkeypatch)

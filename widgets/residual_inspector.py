@@ -113,7 +113,7 @@ class ResidualInspector(View):
         self._shown_runs = np.array([])
         self.plot.observe(self.safely(self._redraw), names="value")
         self.run.observe(self.safely(self._show_run), names="value")
-        self.watch(self._on_fit, names=["fit", "exclusions", "data", "response", "error", "factors"])
+        self.watch(self._on_fit, names=["fit", "exclusions", "revision", "response", "error", "factors"])
         self._on_fit()
 
     # ----- options ------------------------------------------------------------------------------

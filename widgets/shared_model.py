@@ -1,12 +1,15 @@
-"""The one shared fitted model that every view observes.
+"""The one shared fitted model that every view observes: a thin traitlets view over a :class:`levelwise.Study`.
 
 :class:`SharedModel` is a plain ``traitlets.HasTraits`` (not a widget, nothing is
-synced to the browser). It holds the study: the factors, the design and the run
-data, the responses with their units and models, the exclusions with their
-reasons and the current factor settings. The outputs are ``fits`` (one immutable
-:class:`levelwise.Fit` per response, the whole dict *replaced* on every refit)
-and ``fit`` (the fit of the displayed ``response``). Each refit notifies the
-observers of ``fits`` and of ``fit`` exactly once.
+synced to the browser). The study it wraps (``shared.study``) is the single source
+of truth: the factors, the runs named by run id, the responses with their units and
+models, and the exclusions with their reasons all live there, and every change made
+here is made to the study (and so lands in its audit log). The traits ``factors``,
+``responses``, ``units``, ``models`` and ``exclusions`` mirror the study's metadata so
+that views can observe them; ``data`` is the study's table, read from it. The
+outputs are ``fits`` (one immutable :class:`levelwise.Fit` per response, the whole
+dict *replaced* on every refit) and ``fit`` (the fit of the displayed ``response``).
+Each refit notifies the observers of ``fits`` and of ``fit`` exactly once.
 
 Every change is a method with a code equivalent, usable from a notebook cell::
 
@@ -20,9 +23,9 @@ A refit that fails keeps that response's last good fit and puts the message in
 ``error`` (and ``errors[response]``); nothing raises into the event loop.
 
 Read-only is enforced here, in Python: a model built with ``read_only=True``
-refuses every change to the factors, design, data, responses, models,
-exclusions and fits, whatever a browser sends (a :class:`ReadOnlyError`). Only
-the factor settings and the display choices (``response``) may change, and the
+refuses every change to the study, the design, the models, the exclusions and
+the fits, whatever a browser sends (a :class:`ReadOnlyError`). Only the factor
+settings and the display choices (``response``, ``goals``) may change, and the
 settings must then stay inside the study's region.
 """
 
@@ -34,11 +37,15 @@ import numpy as np
 import pandas as pd
 import traitlets
 
-from levelwise import Design, Factor, Fit, LevelwiseError, fit
+from levelwise import Design, Factor, Fit, LevelwiseError, Study, fit
 from levelwise._errors import describe
 
+from ._study_table import DEFAULT_MODEL, study_from_table
+
 #: Traits that only a writable model may change (the inputs and the outputs of fitting).
-PROTECTED = ("factors", "design", "data", "responses", "units", "models", "exclusions", "fits", "fit")
+PROTECTED = ("factors", "design", "responses", "units", "models", "exclusions", "fits", "fit", "study", "revision")
+#: Traits that mirror the study: only the model's own methods write them.
+MIRRORS = ("factors", "responses", "units", "models", "exclusions", "revision", "study")
 
 
 class ReadOnlyError(LevelwiseError):
@@ -66,15 +73,16 @@ class _NoneChecked(traitlets.Instance):
 
 
 class SharedModel(traitlets.HasTraits):
-    """The study (factors, design, data, responses, models, exclusions, settings) with its current fits.
+    """A view over a :class:`levelwise.Study` (factors, runs, responses, models, exclusions) with its current fits.
+
+    Build it on a study with :meth:`from_study`; the constructor builds the study from a table.
 
     Parameters
     ----------
     factors : sequence of Factor
     data : pandas.DataFrame
         One row per run in natural units: the factor columns and one column per response.
-        A ``run`` column, when present, gives the run ids used by :meth:`exclude`;
-        otherwise the row labels do.
+        A ``run`` column gives the run ids; without one the runs are numbered 1..n in row order.
     response : str, optional
         The response displayed first (default: the first of *responses*).
     model : str, optional
@@ -105,15 +113,19 @@ class SharedModel(traitlets.HasTraits):
     >>> shared.set_model(demo.RESPONSE, "Oven + Dwell")
     >>> shared.fit.terms
     ('Intercept', 'Oven', 'Dwell')
+    >>> shared.study.models[demo.RESPONSE]
+    'Oven + Dwell'
     """
 
-    factors = traitlets.Tuple(help="The study's factors (levelwise.Factor), in column order.")
+    study = _NoneChecked(Study, allow_none=True, help="The levelwise Study this model is a view of.")
+    factors = traitlets.Tuple(help="The study's factors (levelwise.Factor), in column order (mirrors the study).")
     design = _NoneChecked(Design, allow_none=True, help="The planned design, when known.")
-    data = traitlets.Instance(pd.DataFrame, help="The runs, natural units, one column per factor and response.")
-    responses = traitlets.Tuple(help="Names of the response columns of the study.")
-    units = traitlets.Dict(help="Units of each response: {response: units}.")
-    models = traitlets.Dict(help="Model of each response, Wilkinson notation or preset: {response: model}.")
-    exclusions = traitlets.Dict(help="Runs left out of every fit, with the reason: {run id: reason}.")
+    responses = traitlets.Tuple(help="Names of the responses of the study (mirrors the study).")
+    units = traitlets.Dict(help="Units of each response: {response: units} (mirrors the study).")
+    models = traitlets.Dict(help="Model of each response, Wilkinson notation or preset (mirrors the study).")
+    exclusions = traitlets.Dict(help="Runs left out of every fit, with the reason: {run id: reason} (mirrors "
+                                     "the study).")
+    revision = traitlets.Int(0, help="The study's revision: changes whenever the study changes.")
     response = traitlets.Unicode(help="The response the views display (a display choice).")
     goals = traitlets.Dict(
         help="Optimisation goals per response (an exploration choice, allowed read-only): {response: goal dict}."
@@ -125,9 +137,6 @@ class SharedModel(traitlets.HasTraits):
     error = traitlets.Unicode("", help="Message of the last failed refit or rejected change ('' when none).")
     level = traitlets.Float(0.95, read_only=True, help="Confidence level of every interval shown.")
     read_only = traitlets.Bool(False, read_only=True, help="When true, only settings and display choices change.")
-    study = _NoneChecked(
-        object, allow_none=True, help="The levelwise Study this model writes through to, when it wraps one."
-    )
 
     def __init__(
         self,
@@ -145,85 +154,105 @@ class SharedModel(traitlets.HasTraits):
         settings=None,
         read_only=False,
         level=0.95,
+        study=None,
     ):
-        factors = tuple(factors)
-        for position, item in enumerate(factors):
-            if not isinstance(item, Factor):
-                raise LevelwiseError(f"Item {position} of 'factors' must be a Factor. Got {describe(item)} instead.")
-        if not isinstance(data, pd.DataFrame):
-            raise LevelwiseError(f"The 'data' parameter must be a pandas DataFrame. Got {describe(data)} instead.")
-        responses = tuple(responses) if responses is not None else ((response,) if response is not None else ())
-        if not responses:
-            raise LevelwiseError("The shared model needs at least one response: give 'response' or 'responses'.")
-        response = responses[0] if response is None else response
-        for name in responses:
-            if name not in data.columns:
-                raise LevelwiseError(
-                    f"The response {name!r} is not a column of the data {list(map(str, data.columns))}."
-                )
-        if response not in responses:
-            raise LevelwiseError(f"The 'response' parameter must be one of {list(responses)}. Got {response!r}.")
-        models = dict(models or {})
-        if model is not None:
-            models.setdefault(response, model)
-        models = {name: models.get(name, "main_effects") for name in responses}
-        units = {name: str((units or {}).get(name, "")) for name in responses}
-        if response_units:
-            units[response] = response_units
+        if study is None:
+            factors = tuple(factors)
+            for position, item in enumerate(factors):
+                if not isinstance(item, Factor):
+                    raise LevelwiseError(
+                        f"Item {position} of 'factors' must be a Factor. Got {describe(item)} instead."
+                    )
+            responses = tuple(responses) if responses is not None else ((response,) if response is not None else ())
+            if not responses:
+                raise LevelwiseError("The shared model needs at least one response: give 'response' or 'responses'.")
+            models = dict(models or {})
+            if model is not None:
+                models.setdefault(responses[0] if response is None else response, model)
+            units = {name: str((units or {}).get(name, "")) for name in responses}
+            if response_units:
+                units[responses[0] if response is None else response] = response_units
+            if response is not None and response not in responses:
+                raise LevelwiseError(f"The 'response' parameter must be one of {list(responses)}. Got {response!r}.")
+            study = study_from_table(factors, data, responses, models=models, units=units, exclusions=exclusions)
+        if not isinstance(study, Study):
+            raise LevelwiseError(f"The 'study' must be a levelwise Study. Got {describe(study)} instead.")
+        names = study.response_names
+        if not names:
+            raise LevelwiseError("The study has no responses yet: add one with study.add_response(name, units).")
+        response = names[0] if response is None else response
+        if response not in names:
+            raise LevelwiseError(f"The 'response' parameter must be one of {names}. Got {describe(response)}.")
         self._internal = 0
+        self._table = (None, None)
         with self._writing():
-            super().__init__(
-                factors=factors,
-                design=design,
-                data=data,
-                responses=responses,
-                units=units,
-                models=models,
-                exclusions={},
-                response=response,
-            )
+            super().__init__(design=design, response=response)
             self.set_trait("level", float(level))
-            if exclusions:
-                self.exclusions = {self._run_id(run): self._reason(reason) for run, reason in exclusions.items()}
-            self.settings = {f.name: default_setting(f) for f in factors} | dict(settings or {})
+            self._attach(study)
+            self.settings = {f.name: default_setting(f) for f in study.factors} | dict(settings or {})
             self._refit()
         self.set_trait("read_only", bool(read_only))  # last: the model is built before it is locked
         self.observe(self._on_response, names="response")
 
-    # ----- construction from a levelwise Study (issue 7), when available -----------------------
     @classmethod
-    def from_study(cls, study, *, read_only=False, response=None):
-        """A shared model over a :class:`levelwise.study.Study`; changes are written through to it.
+    def from_study(cls, study, *, read_only=False, response=None, design=None, level=0.95):
+        """A shared model over a :class:`levelwise.Study`: every change made here is made to the study.
 
-        Exclusions, model changes and inclusions made here are recorded in the study (and so in
-        its audit log); save the study to keep them. Exclusions of one response only (a study
-        feature) are applied through the study's data, where that response is blank for the run.
+        Exclusions, inclusions and model changes are recorded in the study (and so in its audit log);
+        save the study to keep them. Runs excluded from one response only are left out of that
+        response's fit.
         """
-        data = study.data(apply_exclusions=False)
-        per_response = study.exclusions
-        for row in per_response.itertuples():
-            if row.response is not None and row.run in data.index:
-                data.loc[row.run, row.response] = np.nan
-        responses = study.responses
-        names = list(responses)
-        if not names:
-            raise LevelwiseError("The study has no responses yet: add one with study.add_response(name, units).")
-        shared = cls(
-            study.factors,
-            data,
-            response=response,
-            responses=names,
-            models=study.models,
-            units={name: spec.units for name, spec in responses.items()},
-            exclusions={
-                int(row.run): row.reason or "excluded in the study file"
-                for row in per_response.itertuples() if row.response is None
-            },
-        )
-        with shared._writing():
-            shared.study = study
-        shared.set_trait("read_only", bool(read_only))
-        return shared
+        return cls(None, None, response, study=study, read_only=read_only, design=design, level=level)
+
+    # ----- the study, read through ----------------------------------------------------------------
+    def _attach(self, study: Study) -> None:
+        """Make *study* the one this model views, and mirror its metadata."""
+        with self._writing(), self.hold_trait_notifications():
+            self.study = study
+            self._sync()
+
+    def _sync(self) -> None:
+        """Refresh the mirrored traits from the study (notifies only the traits whose value changed)."""
+        study = self.study
+        with self._writing(), self.hold_trait_notifications():
+            self.factors = tuple(study.factors)
+            self.responses = tuple(study.response_names)
+            self.units = {name: spec.units for name, spec in study.responses.items()}
+            self.models = {name: study.models.get(name, DEFAULT_MODEL) for name in study.response_names}
+            self.exclusions = self.exclusions_of(study)
+            self.revision = study.revision
+
+    def refresh(self) -> bool:
+        """Catch up with changes made to the study directly (``shared.study.record(...)``): mirror its
+        metadata and refit every response, once. Returns False when the study had not changed.
+        Refused when read-only."""
+        self._check_writable("refreshing from the study")
+        if self.revision == self.study.revision:
+            return False
+        self._sync()
+        self._refit()
+        return True
+
+    @staticmethod
+    def exclusions_of(study) -> dict:
+        """``{run id: reason}`` of the runs a study leaves out of every response."""
+        return {int(row.run): row.reason for row in study.exclusions.itertuples() if row.response is None}
+
+    @property
+    def data(self) -> pd.DataFrame:
+        """The study's runs (index = run id): settings as run, every response, nothing dropped.
+
+        Read from the study (the same object until the study changes); changing it changes nothing.
+        """
+        key, table = self._table
+        if key != (id(self.study), self.study.revision):
+            table = self.study.data(apply_exclusions=False)
+            self._table = ((id(self.study), self.study.revision), table)
+        return table
+
+    @data.setter
+    def data(self, value) -> None:
+        self.set_data(value)
 
     # ----- read-only enforcement ----------------------------------------------------------------
     @contextmanager
@@ -235,7 +264,7 @@ class SharedModel(traitlets.HasTraits):
         finally:
             self._internal -= 1
 
-    @traitlets.validate(*PROTECTED, "study")
+    @traitlets.validate(*PROTECTED)
     def _refuse_outside_changes(self, proposal):
         name = proposal["trait"].name
         if self.read_only:
@@ -243,6 +272,11 @@ class SharedModel(traitlets.HasTraits):
             raise ReadOnlyError(self.error)
         if name in ("fits", "fit") and not self._internal:
             raise LevelwiseError(f"The '{name}' of a SharedModel is computed; change the data or the models instead.")
+        if name in MIRRORS and not self._internal:
+            raise LevelwiseError(
+                f"The '{name}' of a SharedModel mirrors its study; change it with the model's methods "
+                "(set_model, exclude, include, set_data, new_study)."
+            )
         return proposal["value"]
 
     def _check_writable(self, what: str) -> None:
@@ -296,16 +330,15 @@ class SharedModel(traitlets.HasTraits):
 
     # ----- run ids and reasons ------------------------------------------------------------------
     def run_ids(self) -> np.ndarray:
-        """Run id of every row of ``data``: the ``run`` column when present, else 1..n (as ``Fit.runs``)."""
-        if "run" in self.data.columns:
-            return self.data["run"].to_numpy()
-        return np.arange(1, len(self.data) + 1)
+        """Run id of every row of ``data`` (its index), in the study's order."""
+        return self.data.index.to_numpy()
 
     def _run_id(self, run):
-        ids = list(self.run_ids())
-        for candidate in ids:
-            if candidate == run and not isinstance(run, bool):
-                return candidate.item() if hasattr(candidate, "item") else candidate
+        ids = self.study.run_ids
+        if not isinstance(run, bool):
+            for candidate in ids:
+                if candidate == run:
+                    return candidate
         shown = ids if len(ids) <= 12 else ids[:6] + ["..."] + ids[-3:]
         raise LevelwiseError(f"The 'run' must be a run id of the study {shown}. Got {describe(run)} instead.")
 
@@ -324,42 +357,57 @@ class SharedModel(traitlets.HasTraits):
             )
         return response
 
+    def _study_call(self, what: str, method, *args, **kwargs):
+        """Make a change to the study; a refusal is shown in ``error`` and raised, and nothing changes."""
+        try:
+            return method(*args, **kwargs)
+        except LevelwiseError as exc:
+            self.error = f"{what}: {exc}"
+            raise LevelwiseError(self.error) from None
+
     # ----- mutations, each usable from a notebook cell --------------------------------------------
     def set_model(self, response_or_model: str, model: str | None = None) -> None:
-        """Change a response's model and refit it (refused when read-only).
+        """Change a response's model in the study and refit it (refused when read-only).
 
         ``shared.set_model("Impact", "full_second_order")``; with one argument the displayed
-        response's model changes: ``shared.set_model("Oven + Dwell")``.
+        response's model changes: ``shared.set_model("Oven + Dwell")``. A model the study refuses
+        (an unknown factor, say) changes nothing; the message is in ``error``.
         """
         response, model = (self.response, response_or_model) if model is None else (response_or_model, model)
         self._check_writable("changing a model")
         self._check_response_name(response)
         if not isinstance(model, str) or not model.strip():
             raise LevelwiseError(f"The 'model' must be a non-empty formula or preset. Got {describe(model)} instead.")
-        with self._writing():
-            self.models = {**self.models, response: model.strip()}
-        self._write_through("set_model", response, model.strip())
+        try:
+            self.study.set_model(response, model.strip())
+        except LevelwiseError as exc:
+            self.error = f"{response}: {exc}"
+            return
+        self._sync()
         self._refit([response])
 
     def set_data(self, data: pd.DataFrame) -> None:
-        """Replace the run data and refit every response (refused when read-only)."""
+        """Replace the runs by those of *data* (a new study with the same factors, responses and models) and
+        refit every response (refused when read-only). Exclusions of runs still present are kept."""
         self._check_writable("changing the data")
         if not isinstance(data, pd.DataFrame):
             raise LevelwiseError(f"The 'data' parameter must be a pandas DataFrame. Got {describe(data)} instead.")
         missing = [name for name in self.responses if name not in data.columns]
         if missing:
             raise LevelwiseError(f"The new data has no column for response(s) {missing}.")
-        with self._writing():
-            self.data = data
-            known = set(map(str, self.run_ids()))
-            self.exclusions = {run: why for run, why in self.exclusions.items() if str(run) in known}
+        runs = set(data["run"].tolist()) if "run" in data else set(range(1, len(data) + 1))
+        kept = {run: why for run, why in self.exclusions.items() if run in runs}
+        study = study_from_table(self.factors, data, self.responses, models=self.models, units=self.units,
+                                 exclusions=kept)
+        self._attach(study)
         self._refit()
 
     def exclude(self, run, reason: str) -> None:
         """Leave run *run* out of every fit, for the stated *reason* (refused when read-only).
 
-        Each response's fit loses the run by levelwise's rank-one update (``Fit.exclude``). If the
-        kernel refuses (say the run's leverage is 1), nothing changes and the error says why.
+        The exclusion is recorded in the study; each response's fit loses the run by levelwise's
+        rank-one update (``Fit.exclude``). If the kernel refuses (say the run's leverage is 1),
+        nothing changes and the error says why.
         """
         self._check_writable("excluding a run")
         run, reason = self._run_id(run), self._reason(reason)
@@ -368,18 +416,16 @@ class SharedModel(traitlets.HasTraits):
         fits = dict(self.fits)
         try:
             for name, current in self.fits.items():
-                if run in current.runs:  # Fit.runs holds run ids
+                if run in current.runs:
                     fits[name] = current.exclude(run, reason)
         except LevelwiseError as exc:
             self.error = f"Run {run} was not excluded: {exc}"
             raise LevelwiseError(self.error) from None
-        with self._writing():
-            self.exclusions = {**self.exclusions, run: reason}
-        self._write_through("exclude", run, reason)
-        stale = [name for name in self.responses if name not in self.fits]
-        for name in stale:  # responses without a current fit get a full try
+        self._study_call(f"Run {run} was not excluded", self.study.exclude, run, reason)
+        self._sync()
+        for name in [name for name in self.responses if name not in self.fits]:  # no current fit: a full try
             try:
-                fits[name] = self._fit_one(name, self.exclusions)
+                fits[name] = self._fit_one(name)
             except LevelwiseError:
                 pass
         self._publish(fits, dict(self.errors), [])
@@ -390,9 +436,8 @@ class SharedModel(traitlets.HasTraits):
         run = self._run_id(run)
         if run not in self.exclusions:
             raise LevelwiseError(f"Run {run!r} is not excluded; excluded runs: {sorted(self.exclusions, key=str)}.")
-        with self._writing():
-            self.exclusions = {key: why for key, why in self.exclusions.items() if key != run}
-        self._write_through("include", run)
+        self._study_call(f"Run {run} was not included", self.study.include, run)
+        self._sync()
         self._refit()
 
     def set_settings(self, **settings) -> None:
@@ -425,53 +470,45 @@ class SharedModel(traitlets.HasTraits):
             raise LevelwiseError(
                 f"Response names must be non-empty and differ from the run-sheet columns. Got {list(names)}."
             )
-        data = design.table.copy()
+        study = Study(list(design.factors))
+        study.add_stage("design", design)
         for name in names:
-            data[name] = np.nan
-        models = {name: (models or {}).get(name, "main_effects") for name in names}
+            study.add_response(name, units=str(units[name]))
+            study.set_model(name, (models or {}).get(name, DEFAULT_MODEL))
         with self._writing(), self.hold_trait_notifications():
             self.fits = {}
             self.fit = None
-            self.factors = tuple(design.factors)
             self.design = design
-            self.data = data
-            self.responses = names
-            self.units = {name: str(units[name]) for name in names}
-            self.models = models
-            self.exclusions = {}
             self.goals = {}
+            self._attach(study)
             self.response = names[0]
             self.settings = {f.name: default_setting(f) for f in design.factors}
-            self.study = None
         self._refit()
-
-    def _write_through(self, method: str, *args) -> None:
-        """Record a change in the wrapped Study, when there is one and it offers the method."""
-        target = getattr(self.study, method, None) if self.study is not None else None
-        if callable(target):
-            try:
-                target(*args)
-            except LevelwiseError as exc:
-                self.error = f"The study file did not record the change: {exc}"
 
     # ----- refitting ----------------------------------------------------------------------------
     def excluded_mask(self) -> np.ndarray:
-        """True for every row of ``data`` whose run is excluded."""
+        """True for every row of ``data`` whose run is excluded from every response."""
         if not self.exclusions:
             return np.zeros(len(self.data), dtype=bool)
-        return np.isin(self.run_ids().astype(object), np.array(list(self.exclusions), dtype=object))
+        return np.isin(self.run_ids(), np.array(list(self.exclusions)))
 
     def label_of(self, run):
-        """The row label of ``data`` for run id *run* (``Fit.runs`` holds run ids themselves)."""
-        matches = self.data.index[self.run_ids() == run]
-        if len(matches) != 1:
-            raise LevelwiseError(f"The run id {run!r} must name exactly one row of the data; it names {len(matches)}.")
-        return matches[0]
+        """The row label of ``data`` for run id *run*: the run id itself (``data`` is indexed by run id)."""
+        if run not in self.data.index:
+            raise LevelwiseError(f"The run id {run!r} must name a run of the study.")
+        return run
 
-    def _fit_one(self, name: str, exclusions: dict):
-        """Fit one response on all runs, then leave the excluded runs out by the kernel's fast update."""
-        result = fit(self.data, name, self.models[name], factors=self.factors, level=self.level)
-        for run, reason in exclusions.items():
+    def _exclusions_for(self, name: str) -> list:
+        """(run id, reason) of every exclusion that applies to response *name*."""
+        return [(int(row.run), row.reason) for row in self.study.exclusions.itertuples()
+                if row.response is None or row.response == name]
+
+    def _fit_one(self, name: str, model: str | None = None):
+        """Fit one response on every run of the study, then leave the excluded runs out by the kernel's update."""
+        model = self.models[name] if model is None else model
+        table = self.study.fit_table(name, apply_exclusions=False)
+        result = fit(table, name, model, factors=self.factors, level=self.level)
+        for run, reason in self._exclusions_for(name):
             if run in result.runs:  # a run with no value for this response is not in its fit
                 result = result.exclude(run, reason)
         return result
@@ -483,11 +520,7 @@ class SharedModel(traitlets.HasTraits):
         candidate model, e.g. every two-factor interaction for a half-normal plot.
         """
         name = self._check_response_name(self.response if response is None else response)
-        result = fit(self.data, name, model, factors=self.factors, level=self.level)
-        for run, reason in self.exclusions.items():
-            if run in result.runs:
-                result = result.exclude(run, reason)
-        return result
+        return self._fit_one(name, model)
 
     def _refit(self, responses=None) -> None:
         """New fits for *responses* (default all); a failure keeps that response's last good fit."""
@@ -495,7 +528,7 @@ class SharedModel(traitlets.HasTraits):
         fits, errors = dict(self.fits), dict(self.errors)
         for name in targets:
             try:
-                fits[name] = self._fit_one(name, self.exclusions)
+                fits[name] = self._fit_one(name)
             except LevelwiseError as exc:
                 errors[name] = f"{name}: {exc}"
             else:

@@ -11,7 +11,8 @@ The modules behind it are private and laid out by role:
 * ``_screening``: Plackett-Burman designs; ``_response_surface``: central composite and Box-Behnken designs.
 * ``_constraints``, ``_region``, ``_optimal``: linear constraints, the factor region, optimal designs.
 * ``_evaluation``: what a design can estimate.
-* ``_runsheet``: writing run sheets; ``_runsheet_reader``: reading filled ones back.
+* ``_runsheet``: writing run sheets (read back by :func:`levelwise.read_run_sheet`, in :mod:`levelwise.study`,
+  through the one table importer).
 * Beyond two levels (issue 14): ``_general_factorial`` (mixed-level full factorials), ``_conference``
   (conference matrices), ``_definitive_screening`` (definitive screening designs, the alias structure among
   second-order terms), ``_categorical_design`` (optimal designs and evaluation with categorical factors of any

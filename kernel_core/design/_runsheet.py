@@ -1,4 +1,5 @@
-"""Run sheets: the planned runs in run order, written to CSV or XLSX (read back by ``_runsheet_reader``).
+"""Run sheets: the planned runs in run order, written to CSV or XLSX (read back by
+:func:`levelwise.read_run_sheet`, in :mod:`levelwise.study`).
 
 A run sheet has the columns ``run, standard_order, block, role``, one planned column per factor (natural
 units), one ``"<factor> (achieved)"`` column per factor for the setting actually reached (blank = as planned),

@@ -32,7 +32,7 @@ def build() -> Study:
     study.record_achieved(2, "Oven", 172.5, reason="oven overshoot logged by the controller")
     study.exclude(5, "panel dropped before the impact test", response=demo.RESPONSE)
     study.set_model(demo.RESPONSE, demo.MODEL)
-    study.set_model("Gloss", "main_effects")
+    study.set_model("Gloss", "Oven + Dwell + Film + Catalyst")
     return study
 
 

@@ -1,0 +1,211 @@
+"""The study file on disk: its JSON text, its SHA-256, the schema check and the write that never loses a file.
+
+The layout (see ``study_schema.json`` beside this module):
+
+* ``format_version`` -- an integer; older versions are migrated on load (``_migrations``), newer ones refused;
+* ``data`` -- the study itself, keys sorted, one run per line so that a diff shows the runs that changed;
+* ``audit`` -- the append-only log of changes (what, when, and the reason where one applies);
+* ``sha256`` -- the SHA-256 of the canonical form of ``data`` and ``audit`` together.
+"""
+
+from __future__ import annotations
+
+import errno
+import hashlib
+import json
+import os
+import shutil
+import tempfile
+from importlib import resources
+from pathlib import Path
+
+from .._errors import StudyFileError
+
+#: The format this version of levelwise writes.
+FORMAT_VERSION = 2
+
+_MAX_INT = 2**53 - 1  # integers exact in every JSON reader; the schema caps run ids, blocks and orders here
+
+
+# ----- JSON text -------------------------------------------------------------------------------
+def _compact(value) -> str:
+    return json.dumps(value, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(", ", ": "))
+
+
+def _pretty(value, level: int = 0) -> str:
+    """Indented JSON with sorted keys; a list of objects is written one object per line."""
+    pad, end = "  " * (level + 1), "  " * level
+    if isinstance(value, dict):
+        if not value:
+            return "{}"
+        items = [f"{pad}{json.dumps(k, ensure_ascii=False)}: {_pretty(value[k], level + 1)}" for k in sorted(value)]
+        return "{\n" + ",\n".join(items) + "\n" + end + "}"
+    if isinstance(value, list):
+        if not value:
+            return "[]"
+        if all(isinstance(item, dict) for item in value):
+            items = [pad + _compact(item) for item in value]
+        else:
+            items = [pad + _pretty(item, level + 1) for item in value]
+        return "[\n" + ",\n".join(items) + "\n" + end + "]"
+    return json.dumps(value, ensure_ascii=False, allow_nan=False)
+
+
+def content_hash(data: dict, audit: list) -> str:
+    """SHA-256 (hex) of the canonical JSON of the ``data`` and ``audit`` blocks of a study file."""
+    canonical = json.dumps(
+        {"audit": audit, "data": data}, sort_keys=True, ensure_ascii=False, allow_nan=False, separators=(",", ":")
+    )
+    return hashlib.sha256(canonical.encode("utf-8")).hexdigest()
+
+
+def _reject_constant(name):
+    raise ValueError(f"{name} is not allowed in a study file (JSON has no NaN or infinity)")
+
+
+def _schema() -> dict:
+    text = resources.files(__package__).joinpath("study_schema.json").read_text(encoding="utf-8")
+    return json.loads(text)
+
+_VALIDATOR = None
+
+
+def _validator():
+    global _VALIDATOR
+    if _VALIDATOR is None:
+        import jsonschema
+
+        schema = _schema()
+        cls = jsonschema.validators.validator_for(schema)
+        _VALIDATOR = cls(schema)
+    return _VALIDATOR
+
+
+#: Runs beyond this many are checked by a fast test of the same rules as the schema's run item;
+#: any run that fails it is then validated by jsonschema, which words the error.
+_SCHEMA_RUNS = 500
+_RUN_KEYS = frozenset(("run", "stage", "block", "standard_order", "role", "planned", "achieved", "responses"))
+
+
+def _run_ok(run) -> bool:
+    if type(run) is not dict or run.keys() != _RUN_KEYS:
+        return False
+    for key, low in (("run", 1), ("block", -_MAX_INT), ("standard_order", -_MAX_INT)):
+        if type(run[key]) is not int or not low <= run[key] <= _MAX_INT:
+            return False
+    if type(run["stage"]) is not str or type(run["role"]) is not str:
+        return False
+    for block, kinds in (("planned", (int, float, str)), ("achieved", (int, float, str)), ("responses", (int, float))):
+        values = run[block]
+        if type(values) is not dict or any(type(v) not in kinds for v in values.values()):
+            return False
+    return True
+
+
+def _validate(document, source: str) -> None:
+    """Validate a current-format document against the shipped schema; the error names the field."""
+    validator = _validator()
+    runs = document.get("data", {}).get("runs") if isinstance(document.get("data"), dict) else None
+    offset, errors = 0, []
+    if isinstance(runs, list) and len(runs) > _SCHEMA_RUNS:
+        head = {**document, "data": {**document["data"], "runs": runs[:_SCHEMA_RUNS]}}
+        errors = list(validator.iter_errors(head))
+        if not errors:
+            item = validator.evolve(schema=validator.schema["properties"]["data"]["properties"]["runs"]["items"])
+            for i in range(_SCHEMA_RUNS, len(runs)):
+                if not _run_ok(runs[i]):
+                    errors = list(item.iter_errors(runs[i]))
+                    if errors:
+                        offset = i
+                        break
+    else:
+        errors = list(validator.iter_errors(document))
+    if errors:
+        errors.sort(key=lambda e: list(map(str, e.absolute_path)))
+        error = errors[0]
+        parts = ["data", "runs", offset, *error.absolute_path] if offset else list(error.absolute_path)
+        message = error.message if len(error.message) <= 200 else error.message[:197] + "..."
+        raise StudyFileError(
+            f"The study file '{source}' does not follow the study schema: field '{_json_path(parts)}': {message}"
+            + (f" ({len(errors) - 1} more problem(s))." if len(errors) > 1 else "")
+        )
+
+
+def _json_path(parts) -> str:
+    out = ""
+    for part in parts:
+        out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
+    return out or "(top level)"
+
+
+
+# ----- writing -----------------------------------------------------------------------------------
+def write_atomically(path: Path, payload: bytes) -> Path:
+    """Write *payload* to *path* without ever leaving a half-written file; the old file becomes ``<path>.bak``.
+
+    Raises
+    ------
+    StudyFileError
+        The write failed; the message names the path and the operating-system error.
+    """
+    folder = path.parent if str(path.parent) else Path(".")
+    tmp_name = None
+    try:
+        fd, tmp_name = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(payload)
+            handle.flush()
+            os.fsync(handle.fileno())
+        if path.exists():
+            _keep_backup(path)
+        os.replace(tmp_name, path)
+        tmp_name = None
+        _fsync_folder(folder)
+    except OSError as exc:
+        reason = os.strerror(exc.errno) if exc.errno else str(exc)
+        if exc.errno == errno.ENOSPC:
+            reason = "the disk is full"
+        raise StudyFileError(
+            f"The study could not be saved to '{path}': {reason}. The previous file (if any) is unchanged."
+        ) from exc
+    finally:
+        if tmp_name is not None:
+            try:
+                os.unlink(tmp_name)
+            except OSError:
+                pass
+    return path
+
+
+def _keep_backup(path: Path) -> None:
+    """Make ``<path>.bak`` a complete copy of *path*, atomically (never a half-copied backup)."""
+    bak = path.with_name(path.name + ".bak")
+    fd, tmp = tempfile.mkstemp(prefix=f".{bak.name}.", suffix=".tmp", dir=path.parent)
+    os.close(fd)
+    try:
+        os.unlink(tmp)
+        try:
+            os.link(path, tmp)  # a hard link costs nothing; the old inode stays the backup after the rename
+        except OSError:
+            shutil.copy2(path, tmp)
+        os.replace(tmp, bak)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except OSError:
+            pass
+        raise
+
+
+def _fsync_folder(folder: Path) -> None:
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+

@@ -1,0 +1,358 @@
+"""The :class:`Study`: everything recorded about one experiment, with an audit log of every change.
+
+A study holds the factors, one or more design stages (for example a screen, its fold-over, then a
+response-surface stage), the planned and achieved settings of every run (named by run id), the
+responses with their units and goals, the exclusions with their reasons, one model per response and
+free-text notes. Its tables and fits live in ``_tables``, its file in ``_persist``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from .._errors import LevelwiseError, describe
+from ..design import Factor, as_factors
+from . import _values
+from ._persist import StudyFile
+from ._records import StudyRecords
+from ._tables import StudyTables
+from ._values import (
+    GOALS,
+    AuditEntry,
+    Response,
+    Stage,
+    _finite,
+    _is_categorical,
+    _name,
+    _plain,
+    _reason,
+    _run_id,
+    _setting,
+    _text,
+    checked_model,
+)
+
+#: The role values of format 1 (and of designs made before the rename), read as the current ones.
+_OLD_ROLES = {"factorial": "corner", "center": "centre", "edge": "edge_midpoint"}
+
+
+class Study(StudyRecords, StudyTables, StudyFile):
+    """An experiment's complete record, with an audit log of every change.
+
+    Parameters
+    ----------
+    factors : list of Factor
+        The study factors; every stage's runs give a planned setting for each.
+    title : str, optional
+    notes : str, optional
+        Free text.
+
+    Examples
+    --------
+    >>> from levelwise import Factor, full_factorial
+    >>> s = Study([Factor("A", 0, 1), Factor("B", 10, 20, "min")], title="demo")
+    >>> s.add_stage("screen", full_factorial(s.factors, randomize=False))
+    [1, 2, 3, 4]
+    >>> s.add_response("y", units="g", goal="maximize")
+    >>> s.record(2, "y", 4.5)
+    >>> s.data().loc[2, "y"]
+    np.float64(4.5)
+    """
+
+    def __init__(self, factors, *, title: str = "", notes: str = ""):
+        self._factors = as_factors(factors)
+        for f in self._factors:
+            for level in getattr(f, "levels", ()):
+                if isinstance(level, str):
+                    _text(level, f"level of factor {f.name!r}", empty=False)
+                else:
+                    _finite(level, f"level of factor {f.name!r}")
+            _name(f.name, "factor name")
+            _text(f.units, f"units of factor {f.name!r}")
+        self._title = _text(title, "title")
+        self._notes = _text(notes, "notes")
+        self._stages: list[dict] = []
+        self._runs: dict[int, dict] = {}
+        self._responses: dict[str, dict] = {}
+        self._exclusions: list[dict] = []
+        self._models: dict[str, str] = {}
+        self._audit: list[dict] = []
+        self._log("create", f"study created with factors {[f.name for f in self._factors]}")
+
+    # ----- read-only views -------------------------------------------------------------------
+    @property
+    def factors(self) -> tuple[Factor, ...]:
+        return self._factors
+
+    @property
+    def factor_names(self) -> list[str]:
+        return [f.name for f in self._factors]
+
+    @property
+    def title(self) -> str:
+        return self._title
+
+    @property
+    def notes(self) -> str:
+        return self._notes
+
+    @property
+    def responses(self) -> dict[str, Response]:
+        return {name: Response(name, **spec) for name, spec in self._responses.items()}
+
+    @property
+    def stages(self) -> tuple[Stage, ...]:
+        return tuple(Stage(**stage) for stage in self._stages)
+
+    @property
+    def run_ids(self) -> list[int]:
+        return list(self._runs)
+
+    @property
+    def models(self) -> dict[str, str]:
+        return dict(self._models)
+
+    @property
+    def audit(self) -> tuple[AuditEntry, ...]:
+        return tuple(AuditEntry(**entry) for entry in self._audit)
+
+    @property
+    def exclusions(self) -> pd.DataFrame:
+        """One row per exclusion: ``run``, ``response`` (None: every response), ``reason``, ``when``."""
+        items = self._exclusions
+        return pd.DataFrame({
+            "run": np.array([item["run"] for item in items], dtype=np.int64),
+            "response": pd.Series([item["response"] for item in items], dtype=object),  # None: every response
+            "reason": pd.Series([item["reason"] for item in items], dtype=object),
+            "when": pd.Series([item["when"] for item in items], dtype=object),
+        })
+
+    def __len__(self) -> int:
+        return len(self._runs)
+
+    def __repr__(self) -> str:
+        return (
+            f"<Study {self._title!r}: {len(self._runs)} runs in {len(self._stages)} stage(s), "
+            f"factors {self.factor_names}, responses {list(self._responses)}>"
+        )
+
+    # ----- internal helpers ------------------------------------------------------------------
+    def _log(self, action: str, what: str, reason: str | None = None) -> None:
+        self._audit.append({"when": _values.now(), "action": action, "what": what, "reason": reason})
+
+    def _factor(self, name) -> Factor:
+        for f in self._factors:
+            if f.name == name:
+                return f
+        raise LevelwiseError(f"The 'factor' must be one of {self.factor_names}. Got {describe(name)} instead.")
+
+    def _run(self, run) -> dict:
+        run_id = _run_id(run)
+        if run_id not in self._runs:
+            known = f"{min(self._runs)}..{max(self._runs)}" if self._runs else "none yet"
+            raise LevelwiseError(f"The 'run' {run_id} is not in the study (runs: {known}).")
+        return self._runs[run_id]
+
+    def _response(self, name) -> str:
+        if name not in self._responses:
+            raise LevelwiseError(
+                f"The 'response' must be one of {list(self._responses)} (add it with add_response). "
+                f"Got {describe(name)} instead."
+            )
+        return name
+
+    # ----- changes ---------------------------------------------------------------------------
+    def set_notes(self, text: str, *, reason: str | None = None) -> None:
+        """Replace the free-text notes."""
+        reason = _reason(reason)
+        self._notes = _text(text, "notes")
+        self._log("notes", f"notes set ({len(text)} characters)", reason)
+
+    def set_title(self, title: str) -> None:
+        """Replace the title."""
+        self._title = _text(title, "title")
+        self._log("title", f"title set to {title!r}")
+
+    def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None) -> None:
+        """Add a response with its units and goal (``"none"``, ``"maximize"``, ``"minimize"``, ``"target"``)."""
+        name = _name(name, "response name")
+        if name in self._responses or name in self.factor_names:
+            raise LevelwiseError(f"The 'response name' {name!r} is already used by a response or a factor.")
+        spec = self._response_spec(name, units, goal, target)
+        self._responses[name] = spec
+        self._log("add_response", f"response {name!r} added ({spec['units'] or 'no units'}, goal {goal})")
+
+    def set_goal(self, response: str, goal: str, target: float | None = None) -> None:
+        """Change a response's goal."""
+        name = self._response(response)
+        spec = self._response_spec(name, self._responses[name]["units"], goal, target)
+        self._responses[name] = spec
+        self._log("set_goal", f"goal of {name!r} set to {goal}" + (f" {spec['target']}" if goal == "target" else ""))
+
+    @staticmethod
+    def _response_spec(name, units, goal, target) -> dict:
+        units = _text(units, f"units of response {name!r}")
+        if goal not in GOALS:
+            raise LevelwiseError(f"The 'goal' of response {name!r} must be one of {list(GOALS)}. Got {describe(goal)}.")
+        if goal == "target":
+            target = _finite(target, f"target of response {name!r}")
+        elif target is not None:
+            raise LevelwiseError(f"The 'target' of response {name!r} is only allowed with goal='target'.")
+        return {"units": units, "goal": goal, "target": target}
+
+    def add_stage(self, name: str, design, *, description: str = "", reason: str | None = None,
+                  renumber: bool = False) -> list[int]:
+        """Append a design stage and return its run ids, in run order.
+
+        Parameters
+        ----------
+        name : str
+            Unique stage name, e.g. ``"screen"``, ``"fold-over"``, ``"surface"``.
+        design : Design or pandas.DataFrame
+            A :class:`~levelwise.Design` or a table with one column per study factor (natural
+            units) and optionally ``run``, ``block``, ``standard_order`` and ``role``.
+        renumber : bool, default False
+            Number the stage's runs after the study's, whatever run ids the design carries.
+
+        The design's own run ids (its ``run`` column) are kept when none of them is already in the
+        study: a fold-over or another augmentation names its new runs by ids that continue after
+        the original ones. A design whose run ids repeat ones in the study is refused (add only the
+        new runs; pass ``renumber=True`` for an independent design numbered from 1). A table
+        without a ``run`` column gets ids after the study's.
+        """
+        name = _text(name, "stage name", empty=False)
+        reason = _reason(reason)
+        description = _text(description, "description")
+        if any(stage["name"] == name for stage in self._stages):
+            raise LevelwiseError(f"The 'stage name' {name!r} is already used; stage names must be unique.")
+        table = getattr(design, "table", design)
+        if not isinstance(table, pd.DataFrame):
+            raise LevelwiseError(
+                f"The 'design' must be a Design or a DataFrame of factor settings. Got {describe(design)} instead."
+            )
+        missing = [n for n in self.factor_names if n not in table.columns]
+        if missing:
+            raise LevelwiseError(
+                f"The 'design' has no column for factor(s) {missing}; it must give every study factor "
+                f"{self.factor_names}."
+            )
+        n = len(table)
+        settings = {}
+        for f in self._factors:
+            if _is_categorical(f):
+                settings[f.name] = [
+                    _setting(f, value, f"planned setting of factor {f.name!r} in row {row + 1} of the design")
+                    for row, value in enumerate(table[f.name].tolist())
+                ]
+                continue
+            values = pd.to_numeric(table[f.name], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+            bad = ~np.isfinite(values)
+            if bad.any():
+                row = int(np.flatnonzero(bad)[0])
+                raw = table[f.name].iloc[row]
+                raw = raw.item() if isinstance(raw, np.generic) else raw
+                raise LevelwiseError(
+                    f"The planned setting of factor {f.name!r} in row {row + 1} of the design must be a finite "
+                    f"number. Got {describe(raw)} instead."
+                )
+            settings[f.name] = values
+        block = self._int_column(table, "block", 1, n)
+        order_column = "standard_order" if "standard_order" in table else "std_order"
+        standard_order = self._int_column(table, order_column, None, n)
+        role_column = "role" if "role" in table else ("point_type" if "point_type" in table else None)
+        roles = [""] * n if role_column is None else [
+            _OLD_ROLES.get(text, text) for text in (_text(str(v), "role") for v in table[role_column])
+        ]
+        ids = self._stage_ids(table, n, renumber)
+        names = self.factor_names
+        for i, run_id in enumerate(ids):
+            self._runs[run_id] = {
+                "run": run_id,
+                "stage": name,
+                "block": block[i],
+                "standard_order": standard_order[i] if standard_order is not None else i + 1,
+                "role": roles[i],
+                "planned": {f: _plain(settings[f][i]) for f in names},
+                "achieved": {},
+                "responses": {},
+            }
+        self._stages.append({"name": name, "description": description, "created": _values.now()})
+        span = f"runs {min(ids)}..{max(ids)}" if n else "no runs"
+        self._log("add_stage", f"stage {name!r} added with {n} run(s) ({span})", reason)
+        return ids
+
+    def _stage_ids(self, table, n: int, renumber: bool) -> list[int]:
+        """Run ids of a new stage: the design's own when they are new to the study, else refused or renumbered."""
+        start = max(self._runs, default=0) + 1
+        if renumber or "run" not in table or n == 0:
+            return list(range(start, start + n))
+        ids = [_run_id(value.item() if isinstance(value, np.generic) else value, f"run of row {row + 1} of the design")
+               for row, value in enumerate(table["run"].tolist())]
+        if len(set(ids)) != len(ids):
+            twice = sorted({i for i in ids if ids.count(i) > 1})
+            raise LevelwiseError(f"The 'design' names run id(s) {twice[:10]} more than once; run ids must be unique.")
+        repeated = sorted(set(ids) & set(self._runs))
+        if repeated:
+            shown = repeated if len(repeated) <= 10 else [*repeated[:10], "..."]
+            raise LevelwiseError(
+                f"The 'design' repeats run id(s) {shown} already in the study. If these are runs already made, add "
+                "only the new runs (fold_over returns only the new runs, numbered after the original ones). If it "
+                "is an independent design numbered from 1, pass renumber=True to number its runs after the "
+                f"study's (from {start})."
+            )
+        return ids
+
+    @staticmethod
+    def _int_column(table, column, default, n):
+        if column not in table:
+            return [default] * n if default is not None else None
+        values = pd.to_numeric(table[column], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        bad = ~np.isfinite(values) | (values != np.round(values)) | (np.abs(values) > 2**53 - 1)
+        if bad.any():
+            row = int(np.flatnonzero(bad)[0])
+            raise LevelwiseError(
+                f"The '{column}' of row {row + 1} of the design must be an integer. "
+                f"Got {describe(table[column].iloc[row])} instead."
+            )
+        return [int(v) for v in values]
+
+    def exclude(self, run: int, reason: str, response: str | None = None) -> None:
+        """Exclude a run from fitting (every response, or only *response*); a reason is required."""
+        record = self._run(run)
+        reason = _reason(reason, required=True)
+        if response is not None:
+            response = self._response(response)
+        for item in self._exclusions:
+            if item["run"] == record["run"] and item["response"] in (None, response):
+                scope = "every response" if item["response"] is None else repr(item["response"])
+                raise LevelwiseError(f"The 'run' {record['run']} is already excluded from {scope}.")
+        self._exclusions.append({"run": record["run"], "response": response, "reason": reason, "when": _values.now()})
+        scope = "every response" if response is None else repr(response)
+        self._log("exclude", f"run {record['run']} excluded from {scope}", reason)
+
+    def include(self, run: int, response: str | None = None, *, reason: str | None = None) -> None:
+        """Undo the exclusions of a run (all of them, or the one for *response*)."""
+        reason = _reason(reason)
+        record = self._run(run)
+        keep, dropped = [], []
+        for item in self._exclusions:
+            match = item["run"] == record["run"] and (response is None or item["response"] == response)
+            (dropped if match else keep).append(item)
+        if not dropped:
+            raise LevelwiseError(f"The 'run' {record['run']} has no exclusion to undo"
+                                 + (f" for response {response!r}." if response is not None else "."))
+        self._exclusions = keep
+        scopes = ", ".join("every response" if d["response"] is None else repr(d["response"]) for d in dropped)
+        self._log("include", f"run {record['run']} included again in {scopes}", reason)
+
+    def set_model(self, response: str, model: str, *, reason: str | None = None) -> None:
+        """Set the model (a Wilkinson formula or preset over the factor names) for a response."""
+        reason = _reason(reason)
+        response = self._response(response)
+        checked_model(model, self.factor_names)  # raises LevelwiseError naming the bad term
+        _text(model, "model")
+        old = self._models.get(response)
+        self._models[response] = model
+        self._log("set_model", f"model of {response!r} set to {model!r} (was {old!r})", reason)
+

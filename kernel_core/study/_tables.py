@@ -1,0 +1,153 @@
+"""The study's tables (for fitting, for showing, the run sheet) and its fits: a part of :class:`Study`."""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pandas as pd
+
+from .._errors import LevelwiseError, LevelwiseWarning
+from ._values import _is_categorical, checked_model
+
+#: Suffix of a column holding the achieved setting of a factor (the one header convention).
+ACHIEVED = " (achieved)"
+
+
+class StudyTables:
+    """Tables and fits of a :class:`Study` (a part of the class, kept in its own module)."""
+
+    # ----- tables ----------------------------------------------------------------------------
+    def _frame(self, factor_block: str) -> pd.DataFrame:
+        runs = list(self._runs.values())
+        index = pd.Index([r["run"] for r in runs], dtype="int64")
+        columns = {
+            "run": np.array([r["run"] for r in runs], dtype=np.int64),
+            "stage": pd.array([r["stage"] for r in runs], dtype=object),
+            "block": np.array([r["block"] for r in runs], dtype=np.int64),
+            "standard_order": np.array([r["standard_order"] for r in runs], dtype=np.int64),
+            "role": pd.array([r["role"] for r in runs], dtype=object),
+        }
+        for factor in self._factors:
+            f, dtype = factor.name, (object if _is_categorical(factor) else float)
+            missing = None if _is_categorical(factor) else np.nan
+            if factor_block == "actual":
+                columns[f] = np.array([r["achieved"].get(f, r["planned"][f]) for r in runs], dtype=dtype)
+            else:
+                columns[f] = np.array([r[factor_block].get(f, missing) for r in runs], dtype=dtype)
+        for name in self._responses:
+            columns[name] = np.array([r["responses"].get(name, np.nan) for r in runs], dtype=float)
+        return pd.DataFrame(columns, index=index)
+
+    def data(self, *, apply_exclusions: bool = True) -> pd.DataFrame:
+        """The table for fitting: one row per run (index = run id), settings in natural units.
+
+        Factor columns hold the achieved setting where one was recorded and the planned
+        setting otherwise. With *apply_exclusions*, runs excluded from every response are
+        dropped and a run excluded from one response has that response set to NaN.
+        A new DataFrame every call: changing it does not change the study.
+        """
+        frame = self._frame("actual")
+        if apply_exclusions:
+            drop = []
+            for item in self._exclusions:
+                if item["response"] is None:
+                    drop.append(item["run"])
+                else:
+                    frame.loc[item["run"], item["response"]] = np.nan
+            frame = frame.drop(index=drop)
+        return frame
+
+    def table(self) -> pd.DataFrame:
+        """Every run (nothing dropped), settings as run, every response, and an ``excluded`` column.
+
+        ``excluded`` holds the reasons, e.g. ``"all: panel dropped"`` or ``"Impact: bubbles"``
+        (``""`` when the run is used for every response). For showing the study; fit on :meth:`data`.
+        """
+        frame = self._frame("actual")
+        notes = {run: [] for run in self._runs}
+        for item in self._exclusions:
+            scope = "all" if item["response"] is None else item["response"]
+            notes[item["run"]].append(f"{scope}: {item['reason']}")
+        frame["excluded"] = pd.array(["; ".join(notes[run]) for run in frame.index], dtype=object)
+        return frame
+
+    @property
+    def response_names(self) -> list[str]:
+        return list(self._responses)
+
+    @property
+    def revision(self) -> int:
+        """A number that grows with every change (the length of the audit log): cheap change detection."""
+        return len(self._audit)
+
+    def copy(self):
+        """An independent copy (same data and audit log)."""
+        return type(self).from_json(self.to_json(), source="<copy>")
+
+    def planned(self) -> pd.DataFrame:
+        """Planned settings: the run sheet with one column per factor (index = run id)."""
+        return self._frame("planned")[["run", "stage", "block", "standard_order", "role", *self.factor_names]]
+
+    def achieved(self) -> pd.DataFrame:
+        """Achieved settings as recorded (NaN where none was), one column per factor (index = run id)."""
+        return self._frame("achieved")[["run", *self.factor_names]]
+
+    # ----- fitting ---------------------------------------------------------------------------
+    def fit_table(self, response: str | None = None, *, apply_exclusions: bool = True) -> pd.DataFrame:
+        """The table :meth:`fit` hands to :func:`levelwise.fit`: one row per run (index = run id).
+
+        Factor columns hold the *planned* settings; a ``"<factor> (achieved)"`` column is added for each
+        continuous factor with an achieved setting recorded (NaN where the run went as planned), so the
+        fit uses the settings as run and reports :attr:`Fit.setting_deviations`. With *apply_exclusions*,
+        runs excluded from every response are dropped, and with *response* those excluded from that
+        response only as well (the shared model of the widgets fits every run and leaves the excluded
+        ones out by the kernel's update instead, so that the fit keeps their reasons).
+        """
+        frame = self._frame("planned")
+        achieved = self._frame("achieved")
+        for factor in self._factors:
+            if not _is_categorical(factor) and achieved[factor.name].notna().any():
+                frame[factor.name + ACHIEVED] = achieved[factor.name]
+            elif _is_categorical(factor):
+                frame[factor.name] = self._frame("actual")[factor.name]
+        if not apply_exclusions:
+            return frame
+        drop = {item["run"] for item in self._exclusions
+                if item["response"] is None or (response is not None and item["response"] == response)}
+        return frame.drop(index=sorted(drop))
+
+    def fit(self, response: str, model: str | None = None, *, level: float = 0.95):
+        """Fit *response* with its model (or *model*) on :meth:`fit_table`, coded by the study factors.
+
+        The runs are named by run id; achieved settings are used where recorded (see
+        :attr:`Fit.setting_deviations`).
+
+        Warns
+        -----
+        LevelwiseWarning
+            Runs (not excluded) with no value of *response* yet; the warning names their run ids.
+        """
+        from .. import fit as fit_function
+
+        response = self._response(response)
+        if model is None:
+            if response not in self._models:
+                raise LevelwiseError(
+                    f"The response {response!r} has no model yet; call set_model({response!r}, ...) or pass 'model'."
+                )
+            model = self._models[response]
+        table = self.fit_table(response)
+        missing = table.index[table[response].isna()].tolist()
+        if missing and len(missing) < len(table):
+            shown = missing if len(missing) <= 12 else [*missing[:12], "..."]
+            warnings.warn(
+                f"The response {response!r} has no value for run(s) {shown}; the fit leaves them out.",
+                LevelwiseWarning, stacklevel=2,
+            )
+        model = checked_model(model, self.factor_names)
+        return fit_function(table, response, model, factors=list(self._factors), level=level)
+
+    def fits(self, *, level: float = 0.95) -> dict:
+        """A :class:`~levelwise.Fit` for every response that has a model."""
+        return {response: self.fit(response, level=level) for response in self._responses if response in self._models}

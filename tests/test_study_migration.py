@@ -1,0 +1,127 @@
+"""Study files of earlier formats load: format 0 -> 1 -> 2, on every shipped and test study file."""
+
+from __future__ import annotations
+
+import json
+from importlib import resources
+from pathlib import Path
+
+import jsonschema
+import pytest
+
+from levelwise import OutsideEditError, Study
+from levelwise.study import FORMAT_VERSION, content_hash, migrate_v1
+
+ROOT = Path(__file__).resolve().parents[1]
+DATA = ROOT / "tests" / "data"
+SHIPPED = ROOT / "dashboards" / "data" / "demo_campaign.json"
+
+
+def study_files() -> list[Path]:
+    """Every study file in the repository's test data and shipped data (a JSON object with a format_version)."""
+    found = []
+    for path in sorted(DATA.glob("*.json")) + [SHIPPED]:
+        document = json.loads(path.read_text(encoding="utf-8"))
+        if isinstance(document, dict) and "format_version" in document:
+            found.append(path)
+    return found
+
+
+def schema() -> dict:
+    return json.loads(resources.files("levelwise.study").joinpath("study_schema.json").read_text(encoding="utf-8"))
+
+
+def test_the_files_checked_are_the_ones_expected():
+    names = [p.name for p in study_files()]
+    assert names == ["demo_campaign_v1.json", "study_example.json", "study_v0.json", "study_v1.json",
+                     "demo_campaign.json"]
+    versions = {p.name: json.loads(p.read_text(encoding="utf-8"))["format_version"] for p in study_files()}
+    assert versions == {"demo_campaign_v1.json": 1, "study_example.json": 2, "study_v0.json": 0,
+                        "study_v1.json": 1, "demo_campaign.json": 2}  # the shipped files are in the new format
+
+
+@pytest.mark.parametrize("path", study_files(), ids=lambda p: p.name)
+def test_every_study_file_loads_and_saves_in_the_current_format(path, tmp_path):
+    study = Study.load(path)
+    assert len(study) > 0 and study.responses
+    saved = study.save(tmp_path / path.name)
+    document = json.loads(saved.read_text(encoding="utf-8"))
+    assert document["format_version"] == FORMAT_VERSION == 2
+    jsonschema.validate(document, schema())
+    assert document["sha256"] == content_hash(document["data"], document["audit"])
+    for run in document["data"]["runs"]:
+        assert "role" in run and "standard_order" in run and "point_type" not in run and "std_order" not in run
+        assert run["role"] in ("corner", "centre", "axial", "edge_midpoint", "optimal", "")
+    again = Study.load(saved)
+    assert again.to_dict() == study.to_dict()
+
+
+def test_format_1_example_migrates_to_the_runs_of_the_current_example():
+    old = Study.load(DATA / "study_v1.json")
+    new = Study.load(DATA / "study_example.json")  # the same seeded generator, written in format 2
+    assert old.to_dict()["runs"] == new.to_dict()["runs"]
+    roles = [run["role"] for run in old.to_dict()["runs"]]
+    assert roles.count("corner") == 16 and roles.count("centre") == 6  # 2^4 corners; 3 + 3 centre runs
+    assert old.models["Gloss"] == "main_effects"  # was the preset "linear"
+    assert old.models["Impact"] == new.models["Impact"]  # a formula is kept as written
+    assert old.audit[-1].action == "migrate" and old.audit[-1].what == "migrated from format 1 to format 2"
+
+
+def test_shipped_demo_of_format_1_migrates_to_the_regenerated_demo():
+    old = Study.load(DATA / "demo_campaign_v1.json").to_dict()
+    shipped = Study.load(SHIPPED).to_dict()
+    # The same seeded script wrote both. The fold-over stage is now randomised on its own (fold_over returns only
+    # the new runs), so its run order and the noise drawn for each run differ; the screen and the surface
+    # stage (whose noise is drawn after the same number of draws) are the same runs, value for value.
+    for stage in ("screen", "surface"):
+        assert [r for r in old["runs"] if r["stage"] == stage] == [r for r in shipped["runs"] if r["stage"] == stage]
+
+    def folded(document):
+        return sorted(
+            (tuple(sorted(r["planned"].items())), r["role"], r["block"]) for r in document["runs"]
+            if r["stage"] == "fold-over"
+        )
+
+    assert len(folded(shipped)) == 16 and folded(old) == folded(shipped)  # the same 16 mirrored settings
+    assert old["exclusions"] == shipped["exclusions"] and old["models"] == shipped["models"]
+
+
+def test_the_frozen_mapping_of_format_1():
+    # The renames agreed for format 2 (common practice for a migration: a frozen copy, checked literally here).
+    document = {
+        "format_version": 1,
+        "data": {
+            "runs": [{"run": i + 1, "std_order": i + 1, "point_type": old}
+                     for i, old in enumerate(["factorial", "center", "axial", "edge", "optimal", "", "my own"])],
+            "responses": [{"name": "y", "low": 1.0, "high": 5.0, "importance": 3, "target": 2.0}],
+            "models": {"a": "linear", "b": "interactions", "c": "quadratic", "d": "Oven + linear", "e": " quadratic "},
+        },
+        "audit": [],
+        "sha256": "0" * 64,
+    }
+    migrated = migrate_v1(document)
+    assert migrated["format_version"] == 2
+    assert [run["role"] for run in migrated["data"]["runs"]] == [
+        "corner", "centre", "axial", "edge_midpoint", "optimal", "", "my own"]
+    assert [run["standard_order"] for run in migrated["data"]["runs"]] == list(range(1, 8))
+    assert all("std_order" not in run and "point_type" not in run for run in migrated["data"]["runs"])
+    assert migrated["data"]["responses"] == [{"name": "y", "lower_limit": 1.0, "upper_limit": 5.0, "weight": 3,
+                                              "target": 2.0}]
+    assert migrated["data"]["models"] == {"a": "main_effects", "b": "two_factor_interactions",
+                                          "c": "full_second_order", "d": "Oven + linear", "e": "full_second_order"}
+    assert document["data"]["runs"][0]["point_type"] == "factorial"  # the input is not changed
+
+
+def test_a_format_1_file_edited_outside_levelwise_is_still_caught(tmp_path):
+    text = (DATA / "study_v1.json").read_text(encoding="utf-8")
+    first = json.loads(text)["data"]["runs"][0]
+    value = first["responses"]["Impact"]
+    edited = text.replace(f'"Impact": {value}', f'"Impact": {value + 1}', 1)
+    assert edited != text
+    path = tmp_path / "edited.json"
+    path.write_text(edited, encoding="utf-8")
+    with pytest.raises(OutsideEditError, match="edited outside levelwise"):
+        Study.load(path)  # the format-1 hash is checked before the migration rewrites it
+    study = Study.load(path, accept_outside_edits=True)
+    assert study.data(apply_exclusions=False).loc[first["run"], "Impact"] == pytest.approx(value + 1)
+    assert [a.action for a in study.audit[-2:]] == ["migrate", "accept_outside_edits"]
