@@ -243,6 +243,11 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
 
         return split_plot_optimal(factors, model, runs, whole_plots, criterion, variance_ratio, starts, seed,
                                   progress if callable(progress) else None, randomize)
+    from ._categorical_design import coordinate_exchange, has_many_levels
+
+    if has_many_levels(factors):  # categorical factors with more than 2 levels (issue 14)
+        return coordinate_exchange(factors, model, runs, criterion, constraints, fixed_runs, starts, seed,
+                                   progress if callable(progress) else None, randomize)
     for f in factors:
         if f.is_categorical and len(f.levels) != 2:
             raise LevelwiseError(

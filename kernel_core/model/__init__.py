@@ -17,6 +17,8 @@ Private modules by role (import the names from here or from ``levelwise``):
   :func:`fit_mixture` and :class:`MixtureFit`; ``_mixture_engine`` its prediction engine (blend check, Cox
   traces); ``_mixture_optimize`` desirability over a mixture region; ``_mixture_slices`` slider moves and
   ternary slices
+- beyond two levels (issue 14): ``_term_tests`` (whole-term partial F, elimination by term, the curvature
+  indicator), ``_categorical_search`` (optimisation and the steepest path over categorical levels)
 """
 
 from ._boxcox import BoxCoxResult, box_cox
@@ -46,6 +48,7 @@ from ._optimize import (
 from ._reduce import Reduction, reduce, refit
 from ._result import Fit
 from ._slices import slice_grid
+from ._term_tests import term_tests  # issue 14: whole-term partial F tests
 
 __all__ = [
     "ACHIEVED_SUFFIX",
@@ -89,4 +92,5 @@ __all__ = [
     "target",
     "ternary_slice",
     "term_name",
+    "term_tests",
 ]
