@@ -412,8 +412,8 @@ class DesignBuilder(View):
                 seed=seed, progress=progress if progress is not None else False,
             )
         if family == "definitive_screening":
-            return definitive_screening(factors, extra_centre_runs=o["extra_centre_runs"], randomize=randomize,
-                                        seed=seed)
+            return lambda progress: definitive_screening(factors, extra_centre_runs=o["extra_centre_runs"],
+                                                         randomize=randomize, seed=seed)
         if family == "plackett_burman":
             return lambda progress: plackett_burman(factors, runs=o["runs"] or None, center_points=centre,
                                                     randomize=randomize, seed=seed)

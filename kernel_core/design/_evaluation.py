@@ -63,12 +63,6 @@ class DesignEvaluation:
     second_order: object = None
 
 
-def _second_order(design):
-    """The alias structure among the second-order terms (``levelwise.second_order_aliasing``), up to 30 factors."""
-    from ._definitive_screening import second_order_aliasing
-
-    return second_order_aliasing(design) if 2 <= len(design.factors) <= 30 else None
-
     def _repr_html_(self) -> str:
         """Rich notebook output: rank, residual degrees of freedom, prediction variance, VIF and power per term."""
         import html as _html
@@ -86,6 +80,13 @@ def _second_order(design):
                 f"{format_number(pv['min'])}, mean {format_number(pv['mean'])}, max {format_number(pv['max'])}."
                 f"{missing}</p>" + html_table(table, index=True, digits=3))
 
+
+
+def _second_order(design):
+    """The alias structure among the second-order terms (``levelwise.second_order_aliasing``), up to 30 factors."""
+    from ._definitive_screening import second_order_aliasing
+
+    return second_order_aliasing(design) if 2 <= len(design.factors) <= 30 else None
 
 def _default_left_out(spec, coded):
     k = coded.shape[1]
