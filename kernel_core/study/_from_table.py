@@ -224,7 +224,7 @@ def study_from_table(source, *, factors, responses, run: str | None = None, achi
         body[column] = frame[column]
         mapping["achieved"][factor] = column
     if plan_table is not None:  # the file's own settings, where they differ from the plan, were the ones run
-        for f, _column in specs:
+        for f, _col in specs:
             if f.name in achieved_cols:
                 continue
             marked = f"{f.name} (achieved)"
