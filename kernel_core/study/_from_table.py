@@ -21,6 +21,10 @@ MATCH_TOLERANCE = 0.1
 
 
 def _frame(source, sheet, delimiter) -> tuple[pd.DataFrame, str]:
+    if isinstance(source, pd.DataFrame) and "header_row" in source.attrs:  # from read_table: rows kept
+        frame = source.astype(object)
+        frame.attrs.update(source.attrs)
+        return frame, str(source.attrs.get("source_name", "<table>"))
     if isinstance(source, pd.DataFrame):
         frame = source.astype(object)
         frame.columns = [str(c) for c in frame.columns]
