@@ -18,7 +18,7 @@ from levelwise.widgets.style import NO_MATH
 from ._compose import find_view
 from .kernel_guard import guard_kernel
 from .present import unavailable
-from .study_source import is_invented, open_study, shared_model, study_path, title_of
+from .study_source import DEMO_FILE, is_invented, open_study, shared_model, study_path, title_of
 from .summary import caution_html
 
 #: The workbench's sections, in the order of the job: (key, heading, views). Views missing from
@@ -71,8 +71,8 @@ def build(source=None) -> ipw.VBox:
     except (LevelwiseError, OSError) as exc:  # say what is wrong instead of failing the notebook
         return unavailable(exc)
     path = None
-    if not isinstance(source, Study) and not is_invented(study):
-        path = study_path(source)
+    if not isinstance(source, Study) and study_path(source).resolve() != DEMO_FILE.resolve():
+        path = study_path(source)  # Save writes back to the file served (never to the shipped demo)
     title = ipw.HTML(_title_html(study)).add_class("lw-title")
     banner = ipw.HTML(caution_html())
     views, sections = [], []

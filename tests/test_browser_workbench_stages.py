@@ -55,16 +55,14 @@ def page(served, browser):
     context = browser.new_context(viewport={"width": 1280, "height": 1000})
     page = context.new_page()
     page.route("**/*", loopback_only)
-    page.goto(served[0], timeout=60_000)
-    page.locator(".lw-readout .lw-mean").first.wait_for(timeout=60_000)
+    page.goto(served[0], timeout=120_000)
+    page.locator(".lw-readout .lw-mean").first.wait_for(timeout=120_000)
     yield page
     context.close()
 
 
 def test_sections_in_the_order_of_the_job_and_opens_on_the_analysis(page):
-    headings = [t.strip() for t in page.locator(".lw-section .jupyter-widget-Collapse-header, "
-                                                  ".lw-section .widget-collapse-header").all_inner_texts()]
-    headings = [h for h in headings if h]
+    headings = page.locator(".lw-section").evaluate_all("els => els.map(e => e.innerText.trim().split('\\n')[0])")
     assert headings == ["1 · Plan the runs", "2 · Record the results", "3 · Fit the model",
                         "4 · Explore and predict", "5 · Share"], headings
     # A study with results is loaded: planning starts folded, the analysis is open.
@@ -111,8 +109,8 @@ def test_upload_map_enter_save_reload(page, served):
     page.locator(".lw-saved").wait_for(timeout=30_000)
     assert lw.Study.load(study_file).data().at[MISSING_RUN, "Yield"] == 41.5
 
-    page.reload()
-    page.locator(".lw-readout .lw-mean").first.wait_for(timeout=60_000)
+    page.reload(timeout=120_000)
+    page.locator(".lw-readout .lw-mean").first.wait_for(timeout=120_000)
     page.locator(".lw-coefficients table").first.wait_for(timeout=60_000)
     assert "plant" in page.locator(".lw-title").inner_text()
     assert page.locator(f".lw-cell-{MISSING_RUN}-0 input").input_value() == "41.5"

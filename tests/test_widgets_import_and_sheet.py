@@ -74,12 +74,14 @@ def test_run_sheet_edit_goes_through_the_study_and_save_clears_the_unsaved_state
     path = tmp_path / "plant.json"
     sheet = RunSheetEditor(shared)
     sheet.path.value = str(path)
-    assert "Unsaved" in sheet.state.value
+    assert "Not saved" in sheet.state.value
+    sheet.show_achieved.value = True
     assert 5 in shared.fit.missing_runs
     sheet.cells[(5, "Yield")].value = "41.5"
     assert study.data().at[5, "Yield"] == 41.5
     assert study.audit[-1].action == "record" and study.audit[-1].reason == "entered in the workbench"
     assert 5 not in shared.fit.missing_runs  # the views were refitted
+    assert "Unsaved" in sheet.state.value
     sheet.cells[(5, "Temp (achieved)")].value = "151"
     assert study.achieved().at[5, "Temp"] == 151
     sheet.save()
@@ -94,6 +96,7 @@ def test_run_sheet_edit_goes_through_the_study_and_save_clears_the_unsaved_state
 def test_run_sheet_follows_a_new_study():
     shared = SharedModel.from_study(demo_study())
     sheet = RunSheetEditor(shared)
+    sheet.show_achieved.value = True
     raw, _ = csv_bytes()
     shared.use_study(_quiet_study(raw))
     assert {c for _, c in sheet.cells} == {"Yield", "Temp (achieved)", "Time (achieved)", "Load (achieved)",

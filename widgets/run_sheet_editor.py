@@ -54,10 +54,15 @@ class RunSheetEditor(View):
                              layout=ipw.Layout(width="460px")).add_class("lw-save-path")
         self.save_button = ipw.Button(description="Save the study", icon="").add_class("lw-save")
         self.state = ipw.HTML().add_class("lw-save-state")
+        self.show_achieved = ipw.Checkbox(value=False, description="Also show the achieved settings",
+                                          indent=False, layout=ipw.Layout(width="auto")).add_class("lw-show-achieved")
+        self.show_achieved.observe(self.safely(lambda _: self._build()), names="value")
         self.save_button.on_click(self.safely(lambda _: self.save()))
         self._saved_revision = shared.study.revision if path else None
+        self._edited = False
         self.widget = ipw.VBox([
             ipw.HTML("<p>Type a value and press Enter or leave the cell; a blank cell clears the value.</p>"),
+            self.show_achieved,
             ipw.Box([self.grid], layout=ipw.Layout(overflow="auto", max_height="480px", max_width="100%")),
             ipw.HBox([self.path, self.save_button, self.state], layout=ipw.Layout(flex_flow="row wrap")),
             self.status,
@@ -69,12 +74,13 @@ class RunSheetEditor(View):
     @property
     def columns(self) -> list[str]:
         study = self.shared.study
-        return list(study.response_names) + [f"{f.name} (achieved)" for f in study.factors]
+        achieved = [f"{f.name} (achieved)" for f in study.factors] if self.show_achieved.value else []
+        return list(study.response_names) + achieved
 
     def _build(self, change=None):
         study = self.shared.study
-        if change is not None:
-            self._saved_revision = None  # another study: not saved anywhere yet
+        if change is not None and getattr(change, "name", None) == "study":
+            self._saved_revision, self._edited = None, True  # another study: not saved anywhere yet
         planned = study.planned()
         factors = study.factor_names
         head = ["run", *factors, *self.columns]
@@ -108,9 +114,12 @@ class RunSheetEditor(View):
                 cell.value = _text_of(value)
         finally:
             self._quiet = False
-        dirty = self._saved_revision != study.revision
-        self.state.value = ('<span class="lw-unsaved">Unsaved changes</span>' if dirty
-                            else f'<span class="lw-saved">Saved to {html.escape(self.path.value)}</span>')
+        if self._saved_revision is None and not self._edited:
+            self.state.value = '<span class="lw-not-saved">Not saved to a file yet</span>'
+        elif self._saved_revision != study.revision:
+            self.state.value = '<span class="lw-unsaved">Unsaved changes</span>'
+        else:
+            self.state.value = f'<span class="lw-saved">Saved to {html.escape(self.path.value)}</span>'
 
     def _edit(self, run, column, text):
         if getattr(self, "_quiet", False):
@@ -130,6 +139,7 @@ class RunSheetEditor(View):
         else:
             study.record(run, column, value, overwrite=True, reason=REASON)
         self.status.value = ""
+        self._edited = True
         self.shared.refresh()
 
     def save(self) -> Path:

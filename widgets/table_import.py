@@ -43,7 +43,8 @@ class TableImport(View):
 
     def __init__(self, shared):
         super().__init__(shared)
-        self.upload = ipw.FileUpload(accept=".csv,.xlsx", multiple=False, description="Choose a CSV or XLSX")
+        self.upload = ipw.FileUpload(accept=".csv,.xlsx", multiple=False, description="Upload a table (CSV or XLSX)",
+                                    layout=ipw.Layout(width="auto"))
         self.upload.add_class("lw-upload")
         self.mapping = ipw.VBox().add_class("lw-mapping")
         self.import_button = ipw.Button(description="Make the study from this table", disabled=True,
