@@ -75,8 +75,12 @@ class OptimizerView(View):
         self.optimum = None
         self.goal_rows = {}
         self.goal_box = ipw.VBox().add_class("lw-goals")
-        self.run_button = ipw.Button(description="Find the best settings").add_class("lw-optimize")
-        self.use_button = ipw.Button(description="Use these settings", disabled=True).add_class("lw-use-optimum")
+        self.run_button = ipw.Button(
+            description="Find the best settings", layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-optimize")
+        self.use_button = ipw.Button(
+            description="Use these settings", disabled=True, layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-use-optimum")
         self.result = ipw.HTML().add_class("lw-optimum")
         self.run_button.on_click(self.safely(lambda _: self.run()))
         self.use_button.on_click(self.safely(lambda _: self.use()))

@@ -52,7 +52,9 @@ class RunSheetEditor(View):
         self.grid = ipw.GridBox().add_class("lw-run-sheet-grid")
         self.path = ipw.Text(value=str(path or ""), description="Save to", placeholder="folder/study.json",
                              layout=ipw.Layout(width="460px")).add_class("lw-save-path")
-        self.save_button = ipw.Button(description="Save the study", icon="").add_class("lw-save")
+        self.save_button = ipw.Button(
+            description="Save the study", icon="", layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-save")
         self.state = ipw.HTML().add_class("lw-save-state")
         self.show_achieved = ipw.Checkbox(value=False, description="Also show the achieved settings",
                                           indent=False, layout=ipw.Layout(width="auto")).add_class("lw-show-achieved")
