@@ -5,6 +5,7 @@ widget or plotting libraries (``tests/test_imports.py`` proves it).
 """
 
 from ._errors import ImportDataError, LevelwiseError, LevelwiseWarning, OutsideEditError, StudyFileError
+from ._progress import SearchStoppedWarning, TextProgress
 from ._version import __version__
 from .design import (
     Design,
@@ -135,3 +136,18 @@ __all__ += [
     "read_table",
     "study_run_sheet",
 ]
+__all__ += ["SearchStoppedWarning", "TextProgress"]
+
+# Mixtures (issue 12).
+from .design import Component, Mixture  # noqa: E402
+
+__all__ += ["Component", "Mixture"]
+from .design import extreme_vertices, mixture_process, simplex_centroid, simplex_lattice  # noqa: E402
+
+__all__ += ["extreme_vertices", "mixture_process", "simplex_centroid", "simplex_lattice"]
+from .model import MixtureFit, cox_traces, fit_mixture  # noqa: E402
+
+__all__ += ["MixtureFit", "cox_traces", "fit_mixture"]
+from .model import move_component, ternary_slice  # noqa: E402
+
+__all__ += ["move_component", "ternary_slice"]

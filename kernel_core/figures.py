@@ -76,6 +76,49 @@ def residual_figure(fit):
     return fig
 
 
+def add_caption(fig, caption: str):
+    """Write *caption* under the figure (kept inside it by the constrained layout); returns the figure."""
+    if caption:
+        fig.supxlabel(caption, fontsize="small", wrap=True)
+    return fig
+
+
+def design_figure(design, caption: str | None = None):
+    """The runs of a design in natural units, one panel per pair of factors (up to the first four
+    factors), corner, centre, axial and other runs told apart by marker; a caption says what it shows."""
+    import itertools
+
+    factors = list(design.factors)[:4]
+    pairs = list(itertools.combinations(range(len(factors)), 2)) or [(0, 0)]
+    table = design.table
+    fig = _new_figure(3.0 * min(len(pairs), 3) + 0.4, 3.0 * ((len(pairs) + 2) // 3) + 0.6)
+    axes = fig.subplots((len(pairs) + 2) // 3, min(len(pairs), 3), squeeze=False).ravel()
+    markers = {"corner": ("o", _BLUE), "centre": ("s", _VERMILION), "axial": ("^", "#009E73")}
+
+    def label(f):
+        return f"{f.name} [{f.units}]" if f.units else f.name
+
+    for ax, (i, j) in zip(axes, pairs):
+        fx, fy = factors[i], factors[j]
+        for role in sorted(set(table["role"])):
+            rows = table[table["role"] == role]
+            marker, colour = markers.get(role, ("D", _GREY))
+            ax.scatter(rows[fx.name].astype(str) if fx.is_categorical else rows[fx.name],
+                       rows[fy.name].astype(str) if fy.is_categorical else rows[fy.name],
+                       marker=marker, color=colour, s=28, label=role.replace("_", " "))
+        ax.set_xlabel(label(fx))
+        ax.set_ylabel(label(fy))
+    for ax in axes[len(pairs):]:
+        ax.set_visible(False)
+    axes[0].legend(fontsize="x-small", loc="best")
+    if caption is None:
+        caption = f"{str(design.kind).capitalize()}: {len(design)} runs"
+        if design.resolution:
+            caption += f", resolution {design.resolution}"
+        caption += " (each run once per panel; repeated runs overlap)."
+    return add_caption(fig, caption)
+
+
 def figure_bytes(fig, fmt: str = "png") -> bytes:
     """The figure as PNG or SVG bytes (no date in the metadata, so output is reproducible)."""
     if fmt not in FORMATS:
@@ -100,4 +143,5 @@ def save_figure(fig, path) -> Path:
     return path
 
 
-__all__ = ["figure_bytes", "residual_figure", "save_figure", "trace_arrays", "trace_figure"]
+__all__ = ["add_caption", "design_figure", "figure_bytes", "residual_figure", "save_figure", "trace_arrays",
+           "trace_figure"]

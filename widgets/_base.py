@@ -1,11 +1,20 @@
-"""What every view shares: the error line, safe callbacks, coalesced refreshes, float32 arrays."""
+"""What every view shares: the error line, safe callbacks, coalesced refreshes, float32 arrays, long work.
+
+Long work (:class:`LongTask`): inside a kernel or Voilà a search runs on a worker thread, so the page stays
+live and its Stop button is heard; every widget change is made on the kernel's main thread, through the event
+loop (``loop.call_soon_threadsafe``): ipykernel 7 refuses comm messages sent from other threads. Without a
+running loop (plain Python, headless tests) the work runs at once in the caller's thread.
+"""
 
 from __future__ import annotations
 
 import asyncio
 import html
 import sys
+import threading
+import time
 import traceback
+import weakref
 
 import ipywidgets as ipw
 import numpy as np
@@ -68,6 +77,257 @@ class Coalescer:
             self._handle = None
 
 
+class Debouncer:
+    """Run *work* once the requests have stopped for *delay* seconds: every request restarts the wait.
+
+    Used where one change starts expensive work (a design search), so typing or clicking "Add a factor" five
+    times starts one search, not five. Without a running loop the work runs at once.
+    """
+
+    def __init__(self, work, delay: float = 0.6):
+        self.work, self.delay, self._handle = work, delay, None
+
+    def request(self) -> None:
+        try:
+            loop = asyncio.get_running_loop()
+        except RuntimeError:
+            self.work()
+            return
+        if self._handle is not None:
+            self._handle.cancel()
+        self._handle = loop.call_later(self.delay, self._run)
+
+    @property
+    def pending(self) -> bool:
+        return self._handle is not None
+
+    def _run(self) -> None:
+        self._handle = None
+        self.work()
+
+    def flush(self) -> None:
+        """Run pending work now."""
+        if self._handle is not None:
+            self._handle.cancel()
+            self._handle = None
+            self.work()
+
+    def cancel(self) -> None:
+        if self._handle is not None:
+            self._handle.cancel()
+            self._handle = None
+
+
+class _Token:
+    """One run of a :class:`LongTask`: its stop flag, and whether its result is still wanted."""
+
+    def __init__(self):
+        self.stop = threading.Event()
+        self.wanted = True
+        self.last_shown = 0.0
+
+
+class LongTask:
+    """A progress bar, a message and a Stop button for work that can take seconds.
+
+    ``start(work, done)`` calls ``work(progress)``, where ``progress(fraction, message)`` is the callback the
+    levelwise searches take (it returns False once Stop is pressed, and the search then returns the best
+    result so far); then ``done(result, error)`` on the kernel's main thread. Starting again, or
+    :meth:`discard`, stops the previous run and drops its result.
+
+    Attributes
+    ----------
+    progress : ipywidgets.FloatProgress
+        ``lw-search-progress``.
+    message : ipywidgets.HTML
+        What the search is doing (``lw-search-message``).
+    stop_button : ipywidgets.Button
+        ``lw-search-stop``; shown while work runs.
+    widget : ipywidgets.HBox
+    """
+
+    def __init__(self, label: str = "Search"):
+        self.progress = ipw.FloatProgress(value=0.0, min=0.0, max=1.0, description=label).add_class(
+            "lw-search-progress")
+        self.message = ipw.HTML().add_class("lw-search-message")
+        self.stop_button = ipw.Button(description="Stop (keep the best so far)", button_style="warning",
+                                      layout=ipw.Layout(width="auto", display="none")).add_class("lw-search-stop")
+        self.stop_button.on_click(lambda _: self.stop())
+        self.widget = ipw.HBox([self.progress, self.stop_button, self.message]).add_class("lw-long-task")
+        self._token = None
+        self.thread = None
+
+    @property
+    def running(self) -> bool:
+        return self._token is not None
+
+    def start(self, work, done) -> None:
+        self.discard()
+        token = self._token = _Token()
+        self.progress.value = 0.0
+        self.message.value = "Working…"
+        self.stop_button.layout.display = ""
+        try:
+            loop = asyncio.get_running_loop()
+        except RuntimeError:
+            loop = None
+        if loop is None:
+            def report(fraction, message=""):
+                self._show(token, fraction, message)
+                return not token.stop.is_set()
+
+            try:
+                result, error = work(report), None
+            except Exception as exc:  # noqa: BLE001 - handed to done()
+                result, error = None, exc
+            self._finish(token, result, error, done)
+            return
+
+        def report(fraction, message=""):
+            now = time.monotonic()
+            if now - token.last_shown > 0.1 or fraction >= 1.0:  # at most ~10 messages a second
+                token.last_shown = now
+                loop.call_soon_threadsafe(self._show, token, fraction, message)
+            return not token.stop.is_set()
+
+        def run():
+            try:
+                result, error = work(report), None
+            except Exception as exc:  # noqa: BLE001 - handed to done() on the main thread
+                result, error = None, exc
+            try:
+                loop.call_soon_threadsafe(self._finish, token, result, error, done)
+            except RuntimeError:  # the loop closed (kernel shutting down)
+                pass
+
+        self.thread = threading.Thread(target=run, name="levelwise-search", daemon=True)
+        self.thread.start()
+
+    def _show(self, token, fraction, message) -> None:
+        if token is not self._token:
+            return
+        self.progress.value = float(fraction)
+        if message:
+            self.message.value = html.escape(str(message))
+
+    def _finish(self, token, result, error, done) -> None:
+        if token is not self._token or not token.wanted:
+            return
+        self._token = None
+        self.stop_button.layout.display = "none"
+        if error is None:
+            self.progress.value = 1.0
+        self.message.value = ""
+        done(result, error)
+
+    def stop(self) -> None:
+        """Ask the running work to stop; it returns the best result so far, which is still shown."""
+        if self._token is not None:
+            self._token.stop.set()
+            self.message.value = "Stopping: keeping the best found so far…"
+
+    def discard(self) -> None:
+        """Stop the running work and drop its result (the inputs changed)."""
+        if self._token is not None:
+            self._token.stop.set()
+            self._token.wanted = False
+            self._token = None
+            self.stop_button.layout.display = "none"
+            self.message.value = ""
+
+
+#: Per shared model, the views that show its error, in the order they were made, and the view the user last
+#: acted in. The shared model's error (a model typo, a failed fit) is shown once, in that view (else the first).
+_ERROR_VIEWS: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+_ERROR_OWNER: weakref.WeakKeyDictionary = weakref.WeakKeyDictionary()
+
+
+XLSX_MIME = "application/vnd.openxmlformats-officedocument.spreadsheetml.sheet"
+
+
+def download_link(payload: bytes, filename: str, mime: str, text: str) -> str:
+    """An ``<a download>`` link carrying *payload* (works in Voilà and JupyterLab, no server route)."""
+    import base64
+
+    data = base64.b64encode(payload).decode("ascii")
+    return f'<a download="{html.escape(filename)}" href="data:{mime};base64,{data}">{html.escape(text)}</a>'
+
+
+def table_bytes(frame, kind: str, units: dict | None = None) -> bytes:
+    """*frame* as CSV (UTF-8) or XLSX bytes, units in the headers as ``name [units]``."""
+    import io
+
+    from levelwise import LevelwiseError
+
+    out = frame.rename(columns={c: f"{c} [{u}]" for c, u in (units or {}).items() if u and c in frame.columns})
+    if kind == "csv":
+        return out.to_csv(index=out.index.name is not None).encode("utf-8")
+    if kind == "xlsx":
+        buffer = io.BytesIO()
+        out.to_excel(buffer, index=out.index.name is not None, engine="openpyxl")
+        return buffer.getvalue()
+    raise LevelwiseError(f"The table export kind must be 'csv' or 'xlsx'. Got {kind!r} instead.")
+
+
+class TableExport:
+    """CSV and XLSX download links for a table a view shows (``lw-table-export``). Attach ``widget`` to the
+    view and call :meth:`update` whenever the table changes; :meth:`payload` gives the bytes in Python."""
+
+    def __init__(self, name: str, label: str = "table"):
+        self.name, self.label = name, label
+        self.frame, self.units = None, None
+        self.widget = ipw.HTML().add_class("lw-table-export")
+
+    def update(self, frame, units: dict | None = None) -> None:
+        self.frame, self.units = frame, units
+        links = [download_link(table_bytes(frame, "csv", units), f"{self.name}.csv", "text/csv",
+                               f"{self.label} (CSV)"),
+                 download_link(table_bytes(frame, "xlsx", units), f"{self.name}.xlsx", XLSX_MIME,
+                               f"{self.label} (XLSX)")]
+        self.widget.value = "Download: " + " · ".join(links)
+
+    def payload(self, kind: str) -> bytes:
+        from levelwise import LevelwiseError
+
+        if self.frame is None:
+            raise LevelwiseError(f"There is no {self.label} to export yet.")
+        return table_bytes(self.frame, kind, self.units)
+
+
+class FigureExport:
+    """"Save figure": PNG and SVG drawn on the server by matplotlib (``levelwise.figures``), with units and a
+    caption, offered as download links (``lw-save-figure``, links in ``lw-figure-links``).
+
+    *make_figure* returns a matplotlib figure of what the view shows (labels with units, a caption).
+    """
+
+    def __init__(self, view, make_figure, name: str):
+        self.make_figure, self.name = make_figure, name
+        self.button = ipw.Button(description="Save figure (PNG, SVG)", layout=ipw.Layout(width="auto")).add_class(
+            "lw-save-figure")
+        self.links = ipw.HTML().add_class("lw-figure-links")
+        self.button.on_click(view.safely(lambda _: self.render()))
+        self.widget = ipw.HBox([self.button, self.links])
+
+    def render(self) -> dict:
+        """Draw the figure now; returns ``{"png": bytes, "svg": bytes}`` and shows the links."""
+        from levelwise.figures import figure_bytes
+
+        fig = self.make_figure()
+        out = {"png": figure_bytes(fig, "png"), "svg": figure_bytes(fig, "svg")}
+        self.links.value = " · ".join([
+            download_link(out["png"], f"{self.name}.png", "image/png", f"{self.name}.png"),
+            download_link(out["svg"], f"{self.name}.svg", "image/svg+xml", f"{self.name}.svg"),
+        ])
+        return out
+
+    def save(self, path):
+        """Write the figure to a .png or .svg file (by suffix)."""
+        from levelwise.figures import save_figure
+
+        return save_figure(self.make_figure(), path)
+
+
 class View:
     """Base of every view: a shared model, a status line, safe callbacks and ``close()``.
 
@@ -78,12 +338,23 @@ class View:
         self.shared = shared
         self.status = ipw.HTML().add_class("lw-status")
         self._watched = []
+        try:
+            _ERROR_VIEWS.setdefault(shared, []).append(weakref.ref(self))
+        except TypeError:
+            pass
 
     def watch(self, handler, names) -> None:
         """Observe *names* of the shared model with *handler*, made safe for the event loop."""
         safe = self.safely(handler)
         self.shared.observe(safe, names=names)
         self._watched.append((safe, names))
+
+    def claim_shared_errors(self) -> None:
+        """Show the shared model's errors in this view from now on (call it where the user edits the model)."""
+        try:
+            _ERROR_OWNER[self.shared] = weakref.ref(self)
+        except TypeError:
+            pass
 
     def safely(self, handler):
         """Wrap a callback so that no exception reaches the event loop; errors go to the status line."""
@@ -107,9 +378,27 @@ class View:
         self.status.value = error_html(message)
 
     def show_shared_error(self, change=None) -> None:
-        self.status.value = error_html(self.shared.error)
+        """Show the shared model's error here if this view is the one to show it (see :meth:`safely`)."""
+        self.status.value = error_html(self.shared.error) if self._shows_shared_error() else ""
+
+    def _shows_shared_error(self) -> bool:
+        try:
+            views = _ERROR_VIEWS.get(self.shared, [])
+        except TypeError:
+            return True
+        live = [ref() for ref in views if ref() is not None and not getattr(ref(), "_closed", False)]
+        owner = _ERROR_OWNER.get(self.shared)
+        owner = owner() if owner is not None else None
+        if owner is None or owner not in live or not hasattr(owner, "status"):
+            owner = live[0] if live else self
+        return owner is self
+
+    def _repr_mimebundle_(self, **kwargs):
+        """A view shows itself as the last line of a notebook cell (its widget)."""
+        return self.widget._repr_mimebundle_(**kwargs)
 
     def close(self) -> None:
+        self._closed = True
         for handler, names in self._watched:
             self.shared.unobserve(handler, names=names)
         self._watched = []

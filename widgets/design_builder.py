@@ -4,8 +4,10 @@ Every design and every number in the preview comes from levelwise: the design
 functions (full and fractional factorials, Plackett–Burman, central composite,
 Box–Behnken, optimal designs by coordinate exchange, fold-over), ``Design``'s
 resolution, word-length pattern and alias structure, and ``evaluate`` (VIF,
-relative prediction variance, power). Optimal searches report progress through
-the kernel's ``progress`` callback to a progress bar.
+relative prediction variance, power). Searches (optimal designs, fractions without
+generators) run off the main thread with a progress bar and a Stop button that keeps
+the best design so far (``LongTask``); changes of the inputs are gathered until they
+settle (``Debouncer``) before anything is rebuilt.
 """
 
 from __future__ import annotations
@@ -30,11 +32,13 @@ from levelwise import (
     fractional_factorial,
     full_factorial,
     optimal_design,
+    parse_model,
     plackett_burman,
     write_run_sheet,
 )
 
-from ._base import View
+from ._base import Debouncer, FigureExport, LongTask, TableExport, View
+from ._number import NumberField
 from .effects_view import table_html
 from .shared_model import SharedModel
 from .style import fmt
@@ -59,6 +63,27 @@ FAMILY_OPTIONS = {
     "optimal": ("model", "runs", "criterion", "constraints", "starts", "augment"),
     "fold_over": ("fold_factor", "fold_center_points"),
 }
+
+
+#: What "Runs 0" means, per family (shown under the options, so the hint is always true).
+RUNS_ZERO = {
+    "fractional": "Runs 0: the smallest fraction of the chosen resolution, or the half fraction when the "
+                  "resolution is automatic.",
+    "plackett_burman": "Runs 0: the smallest Plackett–Burman size for the factors (a multiple of 4 above their "
+                       "number).",
+    "optimal": "Runs 0: as many runs as the model has terms (the smallest that can estimate it, with no "
+               "residual degrees of freedom).",
+}
+
+
+def generator_example(names) -> str:
+    """A valid generator for *names*: the last factor as the product of the first (up to four) others."""
+    names = [str(n) for n in names]
+    if len(names) < 3:
+        return ""
+    basic = names[: min(len(names) - 1, 4)]
+    joiner = "" if all(len(n) == 1 for n in names) else ":"
+    return f"{names[-1]}={joiner.join(basic)}"
 
 
 def parse_responses(text: str) -> dict:
@@ -89,8 +114,8 @@ class DesignBuilder(View):
     Attributes
     ----------
     factor_rows : list of dict of widgets
-        Per factor: ``name``, ``units`` (Text), ``low``, ``high`` (FloatText), ``type`` (Dropdown
-        continuous/categorical), ``levels`` (Text, comma-separated, categorical only).
+        Per factor: ``name``, ``units`` (Text), ``low``, ``high`` (NumberField: decimal point or comma),
+        ``type`` (Dropdown continuous/categorical), ``levels`` (Text, comma-separated, categorical only).
         Rows are ``lw-factor-row``; ``add_factor_button`` (``lw-add-factor``), ``remove_factor_button``
         (``lw-remove-factor``).
     family : ipywidgets.Dropdown
@@ -103,7 +128,12 @@ class DesignBuilder(View):
     eval_model : ipywidgets.Text
         Model to evaluate the design for (``lw-eval-model``).
     search_button : ipywidgets.Button
-        Runs the optimal search (``lw-search``); ``progress`` (FloatProgress, ``lw-search-progress``).
+        Runs the search now (``lw-search``; optimal designs and fractions without generators).
+    task : LongTask
+        The running search: ``progress`` (FloatProgress, ``lw-search-progress``), ``stop_button``
+        (``lw-search-stop``: stops the search and keeps the best design so far).
+    rebuild : Debouncer
+        Input changes wait until they have settled (``settle_seconds``) before the design is rebuilt.
     run_sheet, structure, evaluation : ipywidgets.HTML
         The preview: ``lw-run-sheet``, ``lw-design-structure``, ``lw-design-evaluation``.
     responses : ipywidgets.Text
@@ -118,9 +148,13 @@ class DesignBuilder(View):
         The whole view (``lw-design-builder``).
     """
 
+    #: Seconds of quiet after the last input change before the design is rebuilt.
+    settle_seconds = 0.6
+
     def __init__(self, shared: SharedModel):
         super().__init__(shared)
         self.design = None
+        self.rebuild = Debouncer(self._rebuild, delay=self.settle_seconds)
         self.factor_box = ipw.VBox().add_class("lw-factor-table")
         self.factor_rows = []
         for f in shared.factors:
@@ -134,41 +168,40 @@ class DesignBuilder(View):
         self.family = ipw.Dropdown(options=FAMILIES, value="full", description="Design").add_class("lw-design-family")
         wide = {"style": {"description_width": "initial"}}
         self.options = {
-            "center_points": ipw.BoundedIntText(value=3, min=0, max=50, description="Centre points", **wide),
+            "center_points": NumberField(3, integer=True, minimum=0, maximum=50, description="Centre points", **wide),
             "default_center_points": ipw.Checkbox(value=True, description="usual number of centre points"),
-            "replicates": ipw.BoundedIntText(value=1, min=1, max=10, description="Replicates", **wide),
+            "replicates": NumberField(1, integer=True, minimum=1, maximum=10, description="Replicates", **wide),
             "blocks": ipw.Dropdown(options=[1, 2, 4, 8], value=1, description="Blocks", **wide),
-            "runs": ipw.IntText(value=0, description="Runs (0: smallest/automatic)", **wide),
-            "generators": ipw.Text(value="", description="Generators (e.g. E=ABCD)", **wide),
+            "runs": NumberField(0, integer=True, minimum=0, maximum=100_000, description="Runs (0: automatic)", **wide),
+            "generators": ipw.Text(value="", description="Generators", continuous_update=False, **wide),
             "resolution": ipw.Dropdown(options=[("automatic", 0), ("III", 3), ("IV", 4), ("V", 5)], value=0,
                                        description="Resolution at least", **wide),
             "alpha": ipw.Combobox(value="rotatable", options=["rotatable", "orthogonal", "face"],
                                   description="Axial distance", **wide),
             "ccd_kind": ipw.Dropdown(options=["circumscribed", "inscribed", "face"], value="circumscribed",
                                      description="Axial points", **wide),
-            "model": ipw.Text(value="full_second_order", description="Model to support", **wide),
+            "model": ipw.Text(value="full_second_order", description="Model to support", continuous_update=False,
+                              **wide),
             "criterion": ipw.Dropdown(options=[("D (precise coefficients)", "D"), ("I (precise predictions)", "I")],
                                       value="D", description="Criterion", **wide),
             "constraints": ipw.Textarea(value="", placeholder="one per line, e.g. Oven + 10*Dwell <= 330",
-                                        description="Constraints", **wide),
-            "starts": ipw.BoundedIntText(value=10, min=1, max=200, description="Random starts", **wide),
+                                        description="Constraints", continuous_update=False, **wide),
+            "starts": NumberField(10, integer=True, minimum=1, maximum=200, description="Random starts", **wide),
             "augment": ipw.Checkbox(value=False, description="keep the current study's runs and add to them"),
             "fold_factor": ipw.Dropdown(options=[("every factor", "")], value="", description="Fold on", **wide),
-            "fold_center_points": ipw.BoundedIntText(value=0, min=0, max=50, description="Centre points in the fold",
-                                                     **wide),
-            "seed": ipw.IntText(value=1, description="Seed (run order)", **wide),
+            "fold_center_points": NumberField(0, integer=True, minimum=0, maximum=50,
+                                              description="Centre points in the fold", **wide),
+            "seed": NumberField(1, integer=True, minimum=0, description="Seed (run order)", **wide),
             "randomize": ipw.Checkbox(value=True, description="randomise the run order"),
         }
         for control in self.options.values():
             control.add_class("lw-design-option")
-        self.eval_model = ipw.Text(value="main_effects", description="Evaluate for model",
+        self.eval_model = ipw.Text(value="main_effects", description="Evaluate for model", continuous_update=False,
                                    **wide).add_class("lw-eval-model")
-        self.search_button = ipw.Button(
-            description="Search for the optimal design", layout=ipw.Layout(width="auto"),  # as wide as its label
-        ).add_class("lw-search")
-        self.progress = ipw.FloatProgress(value=0.0, min=0.0, max=1.0, description="Search").add_class(
-            "lw-search-progress"
-        )
+        self.search_button = ipw.Button(description="Search now", layout=ipw.Layout(width="auto")).add_class(
+            "lw-search")
+        self.task = LongTask("Search")
+        self.progress = self.task.progress
         self.search_button.on_click(self.safely(lambda _: self.search()))
         self.run_sheet = ipw.HTML().add_class("lw-run-sheet")
         self.structure = ipw.HTML().add_class("lw-design-structure")
@@ -181,7 +214,10 @@ class DesignBuilder(View):
             self.create_button.disabled = True
             self.create_button.layout.display = "none"
         self.downloads = ipw.HTML().add_class("lw-run-sheet-export")
+        self.evaluation_export = TableExport("design-evaluation", "evaluation table")
+        self.figure_export = FigureExport(self, self.figure, "design")
         self.option_box = ipw.VBox().add_class("lw-design-options")
+        self.hint = ipw.HTML().add_class("lw-option-hint")
         self.widget = ipw.VBox(
             [
                 ipw.HTML("<b>Factors</b>: name, units, low and high settings, type"),
@@ -189,13 +225,16 @@ class DesignBuilder(View):
                 ipw.HBox([self.add_factor_button, self.remove_factor_button]),
                 self.family,
                 self.option_box,
+                self.hint,
                 ipw.HBox([self.options["seed"], self.options["randomize"]]),
-                ipw.HBox([self.search_button, self.progress]),
+                ipw.HBox([self.search_button, self.task.widget]),
                 self.eval_model,
                 self.structure,
                 self.evaluation,
+                self.evaluation_export.widget,
                 self.run_sheet,
                 self.downloads,
+                self.figure_export.widget,
                 ipw.HBox([self.responses, self.create_button]),
                 self.status,
             ]
@@ -216,18 +255,18 @@ class DesignBuilder(View):
         name = factor.name if factor else "ABCDEFGHJKLMNOPQRSTUVWXYZ"[index % 25]
         categorical = bool(factor is not None and getattr(factor, "is_categorical", False))
         row = {
-            "name": ipw.Text(value=name, description="Name", layout=ipw.Layout(width="190px")),
-            "units": ipw.Text(value=factor.units if factor else "", description="Units",
+            "name": ipw.Text(value=name, description="Name", continuous_update=False, layout=ipw.Layout(width="190px")),
+            "units": ipw.Text(value=factor.units if factor else "", description="Units", continuous_update=False,
                               layout=ipw.Layout(width="150px")),
-            "low": ipw.FloatText(value=factor.low if factor and not categorical else -1.0, description="Low",
+            "low": NumberField(factor.low if factor and not categorical else -1.0, description="Low",
                                  layout=ipw.Layout(width="150px")),
-            "high": ipw.FloatText(value=factor.high if factor and not categorical else 1.0, description="High",
+            "high": NumberField(factor.high if factor and not categorical else 1.0, description="High",
                                   layout=ipw.Layout(width="150px")),
             "type": ipw.Dropdown(options=["continuous", "categorical"],
                                  value="categorical" if categorical else "continuous",
                                  description="Type", layout=ipw.Layout(width="200px")),
             "levels": ipw.Text(value=", ".join(map(str, factor.levels)) if categorical else "",
-                               description="Levels", placeholder="e.g. steel, brass",
+                               description="Levels", placeholder="e.g. steel, brass", continuous_update=False,
                                layout=ipw.Layout(width="220px")),
         }
         for control in row.values():
@@ -280,8 +319,11 @@ class DesignBuilder(View):
         if "center_points" in used and family in ("ccd", "box_behnken"):
             children.append(self.options["default_center_points"])
         self.option_box.children = children
-        self.search_button.layout.display = "" if family == "optimal" else "none"
-        self.progress.layout.display = "" if family == "optimal" else "none"
+        searching = family in ("optimal", "fractional")
+        self.search_button.description = ("Search for the optimal design" if family == "optimal"
+                                          else "Search for the best fraction now")
+        self.search_button.layout.display = "" if searching else "none"
+        self.task.widget.layout.display = "" if searching else "none"
         if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "main_effects":
             self.eval_model.value = "full_second_order"
         elif family in ("full", "fractional", "plackett_burman") and self.eval_model.value == "full_second_order":
@@ -291,14 +333,49 @@ class DesignBuilder(View):
     def _on_option(self, change=None):
         if getattr(self, "_building", False):
             return
+        self.task.discard()  # a search for the old inputs is no longer wanted
+        self._hint()
+        self.rebuild.request()
+
+    def _hint(self) -> None:
+        """Hints that match the family and the factor names in the table."""
+        family = self.family.value
+        lines = []
+        if family in RUNS_ZERO:
+            lines.append(RUNS_ZERO[family])
+        if family == "fractional":
+            names = [row["name"].value.strip() for row in self.factor_rows]
+            example = generator_example(names)
+            placeholder = f"e.g. {example}" if example else "needs 3 factors or more"
+            self.options["generators"].placeholder = placeholder
+            lines.append("Generators: empty to search for the best fraction, or added factor = product of others, "
+                         f"separated by commas ({html.escape(placeholder)}; names with more than one letter are "
+                         "joined with ':').")
+        self.hint.value = "<br>".join(lines)
+
+    def _searches(self) -> bool:
+        """True when building the current choice runs a search (optimal designs, fractions without generators)."""
+        family = self.family.value
+        return family == "optimal" or (family == "fractional" and not self.options["generators"].value.strip())
+
+    def _rebuild(self) -> None:
+        """Inputs have settled: rebuild the preview (fractions searched in the background; optimal on request)."""
         if self.family.value == "optimal":
             self.structure.value = "Press “Search for the optimal design” to run the search."
             return
-        self.preview()
+        if self._searches():
+            self.safely(self.search)()
+        else:
+            self.preview()
 
     # ----- building -----------------------------------------------------------------------------
     def build(self, progress=None) -> Design:
-        """The design the options describe, built by levelwise."""
+        """The design the options describe, built by levelwise (here and now)."""
+        return self.recipe()(progress)
+
+    def recipe(self):
+        """``make(progress) -> Design`` for the current inputs: the inputs are read here, on the main thread,
+        so *make* can run on a worker thread."""
         o = {name: control.value for name, control in self.options.items()}
         seed, randomize = o["seed"], o["randomize"]
         family = self.family.value
@@ -308,44 +385,47 @@ class DesignBuilder(View):
             # The new runs form the next block, after the current runs; the preview shows both together, with the
             # structure of the combined design.
             base = self.shared.design
-            return base.combine(fold_over(base, o["fold_factor"] or None, center_points=o["fold_center_points"],
-                                          randomize=randomize, seed=seed))
+            return lambda progress: base.combine(fold_over(
+                base, o["fold_factor"] or None, center_points=o["fold_center_points"], randomize=randomize,
+                seed=seed))
         factors = self.factors()
         centre = None if (family in ("ccd", "box_behnken") and o["default_center_points"]) else o["center_points"]
         if family == "full":
-            return full_factorial(factors, center_points=centre, replicates=o["replicates"], blocks=o["blocks"],
-                                  randomize=randomize, seed=seed)
+            return lambda progress: full_factorial(factors, center_points=centre, replicates=o["replicates"],
+                                                   blocks=o["blocks"], randomize=randomize, seed=seed)
         if family == "fractional":
             generators = [g.strip() for g in o["generators"].split(",") if g.strip()] or None
             runs = o["runs"] or None
             if runs is None and generators is None and not o["resolution"]:
                 runs = 2 ** max(len(factors) - 1, 2)  # nothing chosen yet: the half fraction
-            return fractional_factorial(
+            return lambda progress: fractional_factorial(
                 factors, runs=runs, generators=generators, resolution=o["resolution"] or None,
                 center_points=centre, replicates=o["replicates"], blocks=o["blocks"], randomize=randomize,
-                seed=seed,
+                seed=seed, progress=progress if progress is not None else False,
             )
         if family == "plackett_burman":
-            return plackett_burman(factors, runs=o["runs"] or None, center_points=centre, randomize=randomize,
-                                   seed=seed)
+            return lambda progress: plackett_burman(factors, runs=o["runs"] or None, center_points=centre,
+                                                    randomize=randomize, seed=seed)
         if family == "ccd":
             alpha = o["alpha"].strip()
             try:
                 alpha = float(alpha)
             except ValueError:
                 pass
-            return central_composite(factors, alpha=alpha, kind=o["ccd_kind"], center_points=centre,
-                                     randomize=randomize, seed=seed)
+            return lambda progress: central_composite(factors, alpha=alpha, kind=o["ccd_kind"],
+                                                      center_points=centre, randomize=randomize, seed=seed)
         if family == "box_behnken":
-            return box_behnken(factors, center_points=centre, randomize=randomize, seed=seed)
+            return lambda progress: box_behnken(factors, center_points=centre, randomize=randomize, seed=seed)
         constraints = [line.strip() for line in o["constraints"].splitlines() if line.strip()] or None
+        runs = o["runs"] or len(parse_model(o["model"], [f.name for f in factors]).terms)
         fixed = None
         if o["augment"]:  # the new runs only, numbered after the current ones
             data = self.shared.data
             fixed = data[(["run"] if "run" in data.columns else []) + [f.name for f in factors]]
-        return optimal_design(
-            factors, o["model"], o["runs"], criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
-            starts=o["starts"], seed=seed, progress=progress, randomize=randomize,
+        return lambda progress: optimal_design(
+            factors, o["model"], runs, criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
+            starts=o["starts"], seed=seed, progress=progress if progress is not None else False,
+            randomize=randomize,
         )
 
     def preview(self) -> Design | None:
@@ -359,22 +439,36 @@ class DesignBuilder(View):
         return design
 
     def search(self) -> Design | None:
-        """Run the optimal-design search, reporting progress to the progress bar."""
-        self.progress.value = 0.0
+        """Run the search now, on a worker thread inside a kernel, with progress and a Stop button.
 
-        def report(fraction, message=""):
-            self.progress.value = float(fraction)
-            self.progress.description = "Search"
-            return True
-
+        Returns the design when the search ran at once (no event loop: plain Python, tests), else None; the
+        design is shown when the search ends (``task.stop()`` ends it early with the best design so far).
+        """
+        self.rebuild.cancel()
         try:
-            design = self.build(progress=report)
+            make = self.recipe()
         except LevelwiseError as exc:
             self.show_error(str(exc))
             return None
-        self.progress.value = 1.0
+        self.show_error("")
+        self.task.start(make, self._searched)
+        return None if self.task.running else self.design
+
+    def _searched(self, design, error) -> None:
+        if error is not None:
+            if isinstance(error, LevelwiseError):
+                self.show_error(str(error))
+            else:
+                self.show_error(f"Internal error in the search: {type(error).__name__}: {error}")
+            return
         self._show(design)
-        return design
+        if design.metadata.get("search_complete") is False:
+            why = {"cancelled": "stopped on request", "interrupted": "interrupted"}.get(
+                design.metadata.get("stopped"), "stopped at its time and size limit")
+            self.status.value = (
+                f'<div class="lw-search-incomplete">The search was {why}: this is the best design found so far, '
+                "not necessarily the best there is.</div>"
+            )
 
     def _show(self, design: Design) -> None:
         self.design = design
@@ -416,11 +510,26 @@ class DesignBuilder(View):
                                     f"{html.escape(str(exc))}"
         else:
             self.evaluation.value = self._evaluation_html(ev)
+            self.evaluation_export.update(self._evaluation_frame(ev))
         self._exports(design)
+
+    @staticmethod
+    def _evaluation_frame(ev) -> pd.DataFrame:
+        frame = pd.DataFrame({"VIF": ev.vif, f"power (effect {fmt(ev.delta)}σ, α = {fmt(ev.alpha)})": ev.power})
+        frame.index.name = "term"
+        return frame
+
+    def figure(self):
+        """The previewed design's runs as a matplotlib figure (natural units, with a caption)."""
+        from levelwise.figures import design_figure
+
+        if self.design is None:
+            raise LevelwiseError("Build a design first.")
+        return design_figure(self.design)
 
     def _evaluation_html(self, ev) -> str:
         pv = ev.prediction_variance
-        per_term = pd.DataFrame({"VIF": ev.vif, f"power (effect {fmt(ev.delta)}σ, α = {fmt(ev.alpha)})": ev.power})
+        per_term = self._evaluation_frame(ev)
         note = ""
         if ev.inestimable:
             note = ('<div class="lw-inestimable">Cannot be estimated with this design: '

@@ -210,6 +210,7 @@ class EffectsView(View):
     def _on_model_text(self, change):
         if getattr(self, "_syncing", False) or change["new"] == self.shared.model:
             return
+        self.claim_shared_errors()  # a typo here is reported here, once
         try:
             self.shared.set_model(self.shared.response, change["new"])
         except LevelwiseError as exc:

@@ -18,6 +18,7 @@ import numpy as np
 from levelwise import LevelwiseError, optimize
 
 from ._base import View
+from ._number import NumberField
 from .shared_model import SharedModel
 from .style import fmt, inert_html
 
@@ -54,8 +55,8 @@ class OptimizerView(View):
     ----------
     goal_rows : dict of str -> dict of widgets
         Per response: ``kind`` (Dropdown, ``lw-goal-kind``), ``lower_limit``, ``target``, ``upper_limit``
-        (FloatText, ``lw-goal-limit``), ``s`` and ``t`` (FloatText, ``lw-goal-exponent``) and ``weight``
-        (FloatText, ``lw-goal-weight``: the response's weight in D).
+        (NumberField, ``lw-goal-limit``), ``s`` and ``t`` (NumberField, ``lw-goal-exponent``) and ``weight``
+        (NumberField, ``lw-goal-weight``: the response's weight in D).
     run_button : ipywidgets.Button
         ``lw-optimize``.
     result : ipywidgets.HTML
@@ -108,8 +109,8 @@ class OptimizerView(View):
             row = {"kind": kind.add_class("lw-goal-kind")}
             start = {"lower_limit": lo, "target": (lo + hi) / 2, "upper_limit": hi}
             for key, label in GOAL_FIELDS:
-                row[key] = ipw.FloatText(value=start.get(key, 1.0), description=label,
-                                         style={"description_width": "initial"}, layout=ipw.Layout(width="170px"))
+                row[key] = NumberField(start.get(key, 1.0), description=label,
+                                       style={"description_width": "initial"}, layout=ipw.Layout(width="170px"))
             for key in ("lower_limit", "target", "upper_limit"):
                 row[key].add_class("lw-goal-limit")
             row["s"].add_class("lw-goal-exponent")

@@ -18,6 +18,7 @@ from levelwise import LevelwiseError
 from levelwise._errors import describe
 
 from ._base import View
+from ._number import NumberField
 from .shared_model import SharedModel, is_categorical
 from .style import fmt, inert_html
 
@@ -39,7 +40,7 @@ class PredictionsView(View):
         "Add current settings" (``lw-add-prediction``).
     row_choice : ipywidgets.Dropdown
         The row being edited (``lw-prediction-row``).
-    editors : dict of str -> ipywidgets.FloatText
+    editors : dict of str -> NumberField (or Dropdown for a categorical factor)
         One per factor (``lw-prediction-edit``); ``save_button`` (``lw-save-prediction``) writes them
         to the chosen row, ``remove_button`` (``lw-remove-prediction``) drops it.
     download : ipywidgets.HTML
@@ -88,8 +89,8 @@ class PredictionsView(View):
                 box = ipw.Dropdown(options=list(f.levels), description=inert_html(f.label),
                                    description_allow_html=True, style={"description_width": "initial"})
             else:
-                box = ipw.FloatText(description=inert_html(f.label), description_allow_html=True,
-                                    style={"description_width": "initial"}, layout=ipw.Layout(width="200px"))
+                box = NumberField(0.0, description=inert_html(f.label), description_allow_html=True,
+                                  style={"description_width": "initial"}, layout=ipw.Layout(width="200px"))
             self.editors[f.name] = box.add_class("lw-prediction-edit")
         self.editor_box.children = list(self.editors.values())
         if change is not None:

@@ -13,6 +13,9 @@ The modules behind it are private and laid out by role:
 * ``_evaluation``: what a design can estimate.
 * ``_runsheet``: writing run sheets (read back by :func:`levelwise.read_run_sheet`, in :mod:`levelwise.study`,
   through the one table importer).
+* ``_mixture_region``: mixture :class:`Component` and the :class:`Mixture` region (bounds, vertices,
+  pseudo-components); ``_mixture``: simplex-lattice, simplex-centroid and extreme-vertices designs and
+  mixture-process crossings; ``_mixture_optimal``: optimal designs over a mixture region (issue 12).
 """
 
 from ._aberration import minimum_aberration
@@ -23,6 +26,8 @@ from ._factorial import full_factorial
 from ._factors import Factor, as_factors, default_names
 from ._foldover import fold_over
 from ._fractional import fractional_factorial, parse_generators
+from ._mixture import extreme_vertices, mixture_process, simplex_centroid, simplex_lattice
+from ._mixture_region import Component, Mixture
 from ._optimal import optimal_design
 from ._region import parse_constraints
 from ._response_surface import BB_GROUPS, box_behnken, central_composite, orthogonal_alpha, rotatable_alpha
@@ -32,21 +37,25 @@ from ._screening import plackett_burman, plackett_burman_matrix
 __all__ = [
     "BB_GROUPS",
     "COLUMN_RENAMES",
+    "Component",
     "META_COLUMNS",
     "ROLES",
     "ROLE_RENAMES",
     "Design",
     "DesignEvaluation",
     "Factor",
+    "Mixture",
     "as_factors",
     "box_behnken",
     "central_composite",
     "default_names",
     "evaluate",
+    "extreme_vertices",
     "fold_over",
     "fractional_factorial",
     "full_factorial",
     "minimum_aberration",
+    "mixture_process",
     "optimal_design",
     "orthogonal_alpha",
     "parse_constraint",
@@ -56,5 +65,7 @@ __all__ = [
     "plackett_burman_matrix",
     "rotatable_alpha",
     "run_sheet",
+    "simplex_centroid",
+    "simplex_lattice",
     "write_run_sheet",
 ]

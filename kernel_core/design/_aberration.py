@@ -18,7 +18,8 @@ Search (exact, bounded):
 * The last column is chosen for all candidates at once with vectorised popcounts.
 
 A node budget bounds the search; if it runs out the best design found is returned and the design's metadata
-says the search was not completed.
+says the search was not completed. The same holds when the ``progress`` callback asks to stop or Ctrl-C arrives
+(``KeyboardInterrupt``): the best design so far is returned, flagged incomplete.
 """
 
 from __future__ import annotations
@@ -27,6 +28,7 @@ import time
 
 import numpy as np
 
+from .._progress import Reporter
 from ._twolevel import popcount
 
 #: Search budget (nodes and seconds); keeps every search bounded.
@@ -38,13 +40,31 @@ def _wlp_key(counts, k):
     return tuple(int(c) for c in counts[1 : k + 1])
 
 
-def _greedy(k, m, p, cand, min_resolution):
-    """A quick incumbent: add, one at a time, the column giving the smallest pattern so far."""
-    chosen, group = [], np.zeros(0, dtype=np.int64)
+def _greedy(k, m, p, cand, min_resolution, tick=None, reporter=None):
+    """A quick incumbent: add, one at a time, the column giving the smallest pattern so far.
+
+    Stopped part way (*tick* returns False, or Ctrl-C with a *reporter* to tell), it returns the columns chosen
+    so far completed by :func:`_complete`, with key None.
+    """
+    chosen = []
+    try:
+        return _greedy_steps(k, m, p, cand, min_resolution, tick, chosen)
+    except KeyboardInterrupt:
+        partial = _complete(chosen, cand, p, min_resolution)
+        if reporter is None or partial is None:
+            raise
+        reporter.interrupted()
+        return partial, None
+
+
+def _greedy_steps(k, m, p, cand, min_resolution, tick, chosen):
+    group = np.zeros(0, dtype=np.int64)
     counts = np.zeros(k + 1, dtype=np.int64)
     for j in range(p):
         best = None
         for c in cand:
+            if tick is not None and not tick(f"first design: factor {m + j + 1} of {k}"):
+                return _complete(chosen, cand, p, min_resolution), None
             if c in chosen:
                 continue
             cw = int(c) | (1 << (m + j))
@@ -63,8 +83,21 @@ def _greedy(k, m, p, cand, min_resolution):
     return chosen, _wlp_key(counts, k)
 
 
+def _complete(chosen, cand, p, min_resolution):
+    """The greedy design stopped part way, completed with the first unused columns (None unless that is safe).
+
+    Distinct columns of weight >= 2 always give resolution III or more, so only then is the completion valid.
+    """
+    if min_resolution > 3:
+        return None
+    rest = [int(c) for c in cand if c not in chosen]
+    if len(chosen) + len(rest) < p:
+        return None
+    return [*chosen, *rest[: p - len(chosen)]]
+
+
 def minimum_aberration(k: int, m: int, min_resolution: int = 3, budget: int = NODE_BUDGET,
-                       time_limit: float = TIME_LIMIT):
+                       time_limit: float = TIME_LIMIT, progress=None):
     """Generator masks of a maximum-resolution, minimum-aberration 2^(k-p) design with 2^m runs.
 
     Parameters
@@ -77,6 +110,10 @@ def minimum_aberration(k: int, m: int, min_resolution: int = 3, budget: int = NO
         Node budget of the search.
     time_limit : float
         Seconds before the search stops with the best design so far.
+    progress : callable or Reporter, optional
+        ``progress(fraction_done, message)`` (silent when None); returning False stops the search (best design
+        so far kept).
+        The fraction is the larger of the node budget and the time limit used, a bound on the time left.
 
     Returns
     -------
@@ -85,7 +122,7 @@ def minimum_aberration(k: int, m: int, min_resolution: int = 3, budget: int = NO
     pattern : tuple
         (A1, ..., Ak) of the design found.
     complete : bool
-        False when the budget ran out before the search finished.
+        False when the budget ran out, the callback asked to stop or Ctrl-C arrived before the search finished.
     """
     p = k - m
     if p <= 0:
@@ -98,15 +135,50 @@ def minimum_aberration(k: int, m: int, min_resolution: int = 3, budget: int = NO
     best = {"key": None, "masks": None}
     nodes = [0]
     complete = [True]
-    deadline = time.perf_counter() + time_limit
+    started = time.perf_counter()
+    deadline = started + time_limit
+    reporter = progress if isinstance(progress, Reporter) else Reporter(False if progress is None else progress)
+
+    def tick(message=None):
+        """Report progress; False when the callback asked to stop."""
+        if reporter.stopped:
+            return False
+        used = max(nodes[0] / budget, (time.perf_counter() - started) / time_limit)
+        if not reporter.report(min(used, 0.99), message or f"{nodes[0]} partial designs examined"):
+            complete[0] = False
+            return False
+        return True
+
     # Incumbents: greedy over all columns, and over odd-weight columns (all words then have even length,
     # so the design has resolution >= IV whenever there are enough such columns).
     odd = [c for c in cand if popcount(c) % 2 == 1 and popcount(c) >= 3]
+    try:
+        _search(k, m, p, cand, odd, cand_arr, cand_w, min_w, min_resolution, best, nodes, complete, budget,
+                deadline, tick, reporter)
+    except KeyboardInterrupt:
+        if best["masks"] is None:
+            raise
+        complete[0] = False
+        reporter.interrupted()
+    if best["masks"] is None:
+        return None, None, complete[0]
+    return best["masks"], best["key"], complete[0]
+
+
+def _search(k, m, p, cand, odd, cand_arr, cand_w, min_w, min_resolution, best, nodes, complete, budget, deadline,
+            tick, reporter):
+    """The greedy incumbents, then the branch and bound (updates *best*, *nodes* and *complete* in place)."""
     for pool in (cand, odd):
         if len(pool) >= p:
-            masks, key = _greedy(k, m, p, pool, min_resolution)
-            if masks is not None and (best["key"] is None or key < best["key"]):
+            masks, key = _greedy(k, m, p, pool, min_resolution, tick, reporter)
+            if masks is not None and key is None:  # stopped part way: a completed partial design
+                complete[0] = False
+                if best["masks"] is None:
+                    best["masks"] = masks
+            elif masks is not None and (best["key"] is None or key < best["key"]):
                 best["key"], best["masks"] = key, masks
+        if not complete[0]:
+            return
 
     def words_of(c, j):
         return int(c) | (1 << (m + j))
@@ -114,7 +186,7 @@ def minimum_aberration(k: int, m: int, min_resolution: int = 3, budget: int = NO
     def recurse(chosen, group, counts, start, allowed):
         # group: int64 array of words so far (without identity); counts: histogram over lengths 0..k.
         nodes[0] += 1
-        if nodes[0] > budget or (nodes[0] % 64 == 0 and time.perf_counter() > deadline):
+        if nodes[0] > budget or (nodes[0] % 64 == 0 and (time.perf_counter() > deadline or not tick())):
             complete[0] = False
             return
         j = len(chosen)
@@ -194,6 +266,3 @@ def minimum_aberration(k: int, m: int, min_resolution: int = 3, budget: int = NO
                 break
         if not complete[0]:
             break
-    if best["masks"] is None:
-        return None, None, complete[0]
-    return best["masks"], best["key"], complete[0]

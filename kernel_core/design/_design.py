@@ -21,6 +21,13 @@ ROLES = {
     "edge_midpoint": "the middle of an edge (or face) of the cube: some factors at low/high, the rest at their "
                      "centres (Box-Behnken)",
     "optimal": "a run chosen by the optimal-design search",
+    # mixtures (issue 12)
+    "vertex": "a vertex of the mixture region (a pure component on the simplex)",
+    "edge_centroid": "the centroid of an edge of the mixture region (a binary blend on the simplex)",
+    "face_centroid": "the centroid of a face of the mixture region",
+    "overall_centroid": "the centroid of the mixture region (the average of its vertices)",
+    "lattice": "a point of a simplex lattice that is no vertex or centroid",
+    "interior_check": "an axial blend halfway from the overall centroid to a vertex",
 }
 
 #: History of the role names: the value an older levelwise wrote (column ``point_type``) -> the role today.
@@ -317,3 +324,28 @@ class Design:
     def __repr__(self) -> str:
         extra = f", resolution {self.resolution}" if self.resolution else ""
         return f"<Design ({self.kind}): {len(self)} runs, factors {self.factor_names}{extra}>"
+
+    def _repr_html_(self) -> str:
+        """Rich notebook output: what the design is, then its runs in run order (natural units in headers)."""
+        import html as _html
+
+        from .._html import html_table
+
+        ranges = []
+        for f in self.factors:
+            if getattr(f, "is_categorical", False):
+                ranges.append(f"{f.name}: {', '.join(map(str, f.levels))}")
+            else:
+                unit = f" {f.units}" if f.units else ""
+                ranges.append(f"{f.name} {f.low:g} to {f.high:g}{unit}")
+        facts = [f"{len(self)} runs"]
+        if self.resolution:
+            facts.append(f"resolution {self.resolution}")
+        if self.generators:
+            facts.append("generators " + ", ".join(self.generators))
+        if self.metadata.get("search_complete") is False:
+            facts.append("search stopped early: the best design found so far")
+        units = {f.name: f.units for f in self.factors if f.units}
+        summary = (f"<p><b>Design ({_html.escape(str(self.kind))})</b>: {_html.escape('; '.join(facts))}.<br>"
+                   f"Factors: {_html.escape('; '.join(ranges))}.</p>")
+        return summary + html_table(self.table, units=units, caption="Runs in run order")

@@ -58,6 +58,23 @@ class DesignEvaluation:
     delta: float
     alpha: float
 
+    def _repr_html_(self) -> str:
+        """Rich notebook output: rank, residual degrees of freedom, prediction variance, VIF and power per term."""
+        import html as _html
+
+        from .._html import format_number, html_table
+
+        pv = self.prediction_variance
+        table = pd.DataFrame({"VIF": self.vif, f"power (effect {format_number(self.delta)} sigma, alpha "
+                                               f"{format_number(self.alpha)})": self.power})
+        table.index.name = "term"
+        missing = (f"<br>Cannot be estimated: {_html.escape(', '.join(self.inestimable))}."
+                   if self.inestimable else "")
+        return (f"<p><b>Design evaluation</b>: {self.runs} runs, rank {self.rank}, {self.df_error} residual "
+                f"degrees of freedom. Relative prediction variance (units of sigma squared): min "
+                f"{format_number(pv['min'])}, mean {format_number(pv['mean'])}, max {format_number(pv['max'])}."
+                f"{missing}</p>" + html_table(table, index=True, digits=3))
+
 
 def _default_left_out(spec, coded):
     k = coded.shape[1]
@@ -107,6 +124,10 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
     """
     if not isinstance(design, Design):
         raise LevelwiseError(f"The 'design' parameter must be a Design. Got {describe(design)} instead.")
+    if getattr(design, "mixture", None) is not None:  # mixture designs (issue 12): proportions, mixture region
+        from ._mixture import evaluate_mixture
+
+        return evaluate_mixture(design, model, alias_terms, delta, alpha)
     if not (isinstance(alpha, float | int) and 0 < alpha < 1):
         raise LevelwiseError(f"The 'alpha' parameter must be in (0, 1). Got {describe(alpha)} instead.")
     if not (isinstance(delta, float | int) and delta > 0):

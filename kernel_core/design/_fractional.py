@@ -6,6 +6,7 @@ import math
 import re
 
 from .._errors import LevelwiseError, describe
+from .._progress import Reporter
 from ._aberration import minimum_aberration
 from ._design import Design, _check_count
 from ._factorial import build_two_level
@@ -99,6 +100,29 @@ def parse_generators(generators, names, parameter="generators"):
     return parsed
 
 
+class _Scaled(Reporter):
+    """A reporter for one run count of the search, passing progress (scaled) and stops to the outer one."""
+
+    def __init__(self, outer, report):
+        self.outer, self._report = outer, report
+        self.text, self.callback = None, report
+
+    @property
+    def stopped(self):
+        return self.outer.stopped
+
+    @stopped.setter
+    def stopped(self, value):
+        if value:
+            self.outer.stopped = value
+
+    def report(self, fraction, message=""):
+        return self._report(fraction, message) is not False and not self.outer.stopped
+
+    def interrupted(self):
+        self.outer.interrupted()
+
+
 def _check_runs(runs, k):
     runs = _check_count(runs, "runs", 2)
     if runs & (runs - 1):
@@ -121,6 +145,7 @@ def fractional_factorial(
     blocks=1,
     randomize=True,
     seed=None,
+    progress=None,
 ) -> Design:
     """Regular two-level fractional factorial 2^(k-p).
 
@@ -138,12 +163,20 @@ def fractional_factorial(
         the smallest run count that reaches it.
     center_points, replicates, blocks, randomize, seed
         As in :func:`levelwise.full_factorial`.
+    progress : None, bool or callable, optional
+        Progress of the search (no search with *generators*): None (default) writes a text line to standard
+        error once the search has run for a second; False is silent; True writes it at once; a callable
+        ``progress(fraction_done, message)`` is called as the search goes, and returning False stops it with
+        the best fraction found so far. Ctrl-C also stops it with the best fraction so far (with a
+        :class:`levelwise.SearchStoppedWarning`).
 
     Returns
     -------
     Design
         With ``generators``, ``defining_relation``, ``resolution``, ``word_length_pattern`` and ``aliases()``.
-        ``metadata["search_complete"]`` is False if the bounded search stopped early.
+        ``metadata["search_complete"]`` is False if the bounded search stopped early; then
+        ``metadata["stopped"]`` says why (``"budget"``, ``"cancelled"`` by the callback, ``"interrupted"`` by
+        Ctrl-C).
 
     Raises
     ------
@@ -213,17 +246,27 @@ def fractional_factorial(
         m_values = [m for m in range(max(2, math.ceil(math.log2(k + 1))), 8) if m <= k]
         if not m_values:
             m_values = [k]
-    for m in m_values:
-        masks, _pattern, complete = minimum_aberration(k, m, resolution or 3)
-        if masks is not None:
+    reporter = Reporter(progress, label=f"Searching fractions of {k} factors")
+    masks = None
+    for i, m in enumerate(m_values):
+        def report(fraction, message, i=i, m=m):
+            return reporter.report((i + fraction) / len(m_values), f"{1 << m} runs: {message}")
+
+        masks, _pattern, complete = minimum_aberration(k, m, resolution or 3, progress=_Scaled(reporter, report))
+        if masks is not None or reporter.stopped:
             break
-    else:
+    reporter.finish(f"The search for a fraction of {k} factors")
+    if masks is None and reporter.stopped:
+        raise LevelwiseError(f"The search for a fraction of {k} factors was stopped before it found one.")
+    if masks is None:
         wanted = f"{runs} runs" if runs is not None else "up to 128 runs"
         raise LevelwiseError(
             f"No regular fraction of {k} factors in {wanted} reaches resolution {resolution}. Use more runs "
             "or a lower 'resolution'."
         )
     meta["search_complete"] = bool(complete)
+    if not complete:
+        meta["stopped"] = reporter.stopped or "budget"
     return build_two_level(factors, m, masks, [1] * len(masks), center_points=center_points, replicates=replicates,
                            blocks=blocks, randomize=randomize, seed=seed, kind="fractional factorial",
                            metadata=meta)

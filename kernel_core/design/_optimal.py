@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, describe
+from .._progress import Reporter
 from ._design import Design, _check_count, _check_seed
 from ._factors import as_factors
 from ._region import check_region, moment_matrix, parse_constraints, sample_region
@@ -83,103 +84,11 @@ def _interval(G, h, point, j):
     return lo, hi
 
 
-def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_runs=None, starts=10, seed=None,
-                   progress=None, randomize=True) -> Design:
-    """D- or I-optimal design by coordinate exchange.
-
-    Parameters
-    ----------
-    factors : list of Factor or int
-        Continuous factors, or categorical factors with 2 levels (coded -1/+1, never in a squared term).
-    model : str
-        Wilkinson formula or a model preset (see :func:`levelwise.parse_model`).
-    runs : int
-        Number of new runs to choose (besides *fixed_runs*).
-    criterion : {"D", "I"}, default "D"
-        D: maximise det(X'X). I: minimise the average relative prediction variance over the region.
-    constraints : str or list of str, optional
-        Linear inequalities in natural units, e.g. ``["A + B <= 1.5", "A >= 0.2"]``.
-    fixed_runs : Design or DataFrame, optional
-        Runs already made (natural units, one column per factor): the new runs are chosen to augment them, and
-        only the new runs are returned, as the next stage. Their run ids continue after the fixed runs' (the
-        ``run`` column when there is one, else their count) and they form the block after the fixed runs' last.
-        ``fixed.combine(new)`` gives both together when *fixed_runs* is a Design.
-    starts : int, default 10
-        Random starts; the best design is kept.
-    seed : int, optional
-        Seed of the random starts and of the run order.
-    progress : callable, optional
-        Called as ``progress(fraction_done, message)`` after each start; if it returns ``False`` the search
-        stops and the best design so far is returned.
-    randomize : bool, default True
-        Randomise the order of the new runs.
-
-    Returns
-    -------
-    Design
-        The new runs (role ``"optimal"``). ``metadata`` holds ``d_efficiency`` (100 det(X'X)^(1/p) / n, percent),
-        ``average_prediction_variance`` (mean of x'(X'X)^-1 x over the region, in units of sigma^2), ``log_det``,
-        ``criterion``, ``starts_run`` and ``fixed_runs``; with fixed runs the first three describe the fixed and
-        new runs together (n of them), the design the search optimised.
-
-    Raises
-    ------
-    LevelwiseError
-        More model terms than runs, an empty constrained region, categorical factors, bad parameters.
-
-    Examples
-    --------
-    >>> d = optimal_design(2, "A + B", runs=4, seed=1, randomize=False)
-    >>> round(d.metadata["d_efficiency"], 6)
-    100.0
-    """
-    factors = as_factors(factors)
-    for f in factors:
-        if f.is_categorical and len(f.levels) != 2:
-            raise LevelwiseError(
-                f"optimal_design takes continuous factors and categorical factors with 2 levels; factor {f.name!r} "
-                f"has {len(f.levels)} levels."
-            )
-    discrete = np.array([f.is_categorical for f in factors])
-    runs = _check_count(runs, "runs", 1)
-    starts = _check_count(starts, "starts", 1)
-    seed = _check_seed(seed)
-    if criterion not in ("D", "I"):
-        raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
-    if progress is not None and not callable(progress):
-        raise LevelwiseError(f"The 'progress' parameter must be a callable or None. Got {describe(progress)}.")
-    from ..model import parse_model
-
-    names = [f.name for f in factors]
-    spec = parse_model(model, names)
-    E = spec.exponents
+def _exchange(state, starts, G, h, E, runs, rng, grids, discrete, fixed, model_rows, W, criterion, reporter):
+    """The random starts, each improved by coordinate exchange; the best so far is kept in *state*."""
     p, k = E.shape
-    squared = [names[j] for j in range(k) if discrete[j] and E[:, j].max() > 1]
-    if squared:
-        raise LevelwiseError(
-            f"The model {model!r} raises categorical factor(s) {squared} to a power; a two-level categorical "
-            "factor has no curvature. Use a model without those terms."
-        )
-    fixed, last_run, last_block = _fixed_coded(fixed_runs, factors)
-    n = runs + len(fixed)
-    if n < p:
-        raise LevelwiseError(
-            f"The model {model!r} has {p} terms but the design would have only {n} runs "
-            f"({runs} new + {len(fixed)} fixed); 'runs' must be at least {p - len(fixed)}."
-        )
-    G, h = parse_constraints(constraints, factors)
-    check_region(G, h, constraints)
-    rng = np.random.default_rng(seed)
-    W = moment_matrix(E, G, h, np.random.default_rng(0), discrete)  # same sample as evaluate()
-    grids = [np.array([-1.0, 1.0]) if E[:, j].max() <= 1 else np.array([-1.0, 0.0, 1.0]) for j in range(k)]
-    if len(G):
-        grids = [g if discrete[j] else np.union1d(g, np.linspace(-1, 1, 5)) for j, g in enumerate(grids)]
-
-    def model_rows(points):
-        return np.prod(points[:, None, :] ** E[None, :, :], axis=2)
-
-    best = None
     n_fixed = len(fixed)
+    n = runs + n_fixed
     for start in range(starts):
         new = sample_region(G, h, k, runs, rng)
         # Start on the candidate levels where that stays feasible, so untouched coordinates are clean levels.
@@ -253,12 +162,127 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         else:
             apv = math.inf
         score = -logdet if criterion == "D" else apv
-        if best is None or score < best[0]:
-            best = (score, points.copy(), logdet, apv)
-        if progress is not None:
-            answer = progress((start + 1) / starts, f"start {start + 1} of {starts}")
-            if answer is False:
-                break
+        if state["best"] is None or score < state["best"][0]:
+            state["best"] = (score, points.copy(), logdet, apv)
+        state["starts_run"] = start + 1
+        if not reporter.report((start + 1) / starts, f"start {start + 1} of {starts}"):
+            break
+
+
+def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_runs=None, starts=10, seed=None,
+                   progress=None, randomize=True) -> Design:
+    """D- or I-optimal design by coordinate exchange.
+
+    Parameters
+    ----------
+    factors : list of Factor or int
+        Continuous factors, or categorical factors with 2 levels (coded -1/+1, never in a squared term).
+    model : str
+        Wilkinson formula or a model preset (see :func:`levelwise.parse_model`).
+    runs : int
+        Number of new runs to choose (besides *fixed_runs*).
+    criterion : {"D", "I"}, default "D"
+        D: maximise det(X'X). I: minimise the average relative prediction variance over the region.
+    constraints : str or list of str, optional
+        Linear inequalities in natural units, e.g. ``["A + B <= 1.5", "A >= 0.2"]``.
+    fixed_runs : Design or DataFrame, optional
+        Runs already made (natural units, one column per factor): the new runs are chosen to augment them, and
+        only the new runs are returned, as the next stage. Their run ids continue after the fixed runs' (the
+        ``run`` column when there is one, else their count) and they form the block after the fixed runs' last.
+        ``fixed.combine(new)`` gives both together when *fixed_runs* is a Design.
+    starts : int, default 10
+        Random starts; the best design is kept.
+    seed : int, optional
+        Seed of the random starts and of the run order.
+    progress : None, bool or callable, optional
+        None (default): a text line on standard error once the search has run for a second; False: silent;
+        True: the text line at once; a callable is called as ``progress(fraction_done, message)`` after each
+        start, and if it returns ``False`` the search stops and the best design so far is returned. Ctrl-C
+        also returns the best design so far (with a :class:`levelwise.SearchStoppedWarning`).
+    randomize : bool, default True
+        Randomise the order of the new runs.
+
+    Returns
+    -------
+    Design
+        The new runs (role ``"optimal"``). ``metadata`` holds ``d_efficiency`` (100 det(X'X)^(1/p) / n, percent),
+        ``average_prediction_variance`` (mean of x'(X'X)^-1 x over the region, in units of sigma^2), ``log_det``,
+        ``criterion``, ``starts_run`` and ``fixed_runs``; with fixed runs the first three describe the fixed and
+        new runs together (n of them), the design the search optimised.
+
+    Raises
+    ------
+    LevelwiseError
+        More model terms than runs, an empty constrained region, categorical factors, bad parameters.
+
+    Examples
+    --------
+    >>> d = optimal_design(2, "A + B", runs=4, seed=1, randomize=False)
+    >>> round(d.metadata["d_efficiency"], 6)
+    100.0
+    """
+    from ._mixture_region import Component, Mixture
+
+    if isinstance(factors, Mixture) or (isinstance(factors, (list, tuple))
+                                        and any(isinstance(f, (Component, Mixture)) for f in factors)):
+        from ._mixture_optimal import mixture_optimal_design  # mixtures (issue 12): Cox-direction exchange
+
+        return mixture_optimal_design(factors, model, runs, criterion, constraints, fixed_runs, starts, seed,
+                                      progress if callable(progress) else None, randomize)
+    factors = as_factors(factors)
+    for f in factors:
+        if f.is_categorical and len(f.levels) != 2:
+            raise LevelwiseError(
+                f"optimal_design takes continuous factors and categorical factors with 2 levels; factor {f.name!r} "
+                f"has {len(f.levels)} levels."
+            )
+    discrete = np.array([f.is_categorical for f in factors])
+    runs = _check_count(runs, "runs", 1)
+    starts = _check_count(starts, "starts", 1)
+    seed = _check_seed(seed)
+    if criterion not in ("D", "I"):
+        raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
+    reporter = Reporter(progress, label=f"{criterion}-optimal search")
+    from ..model import parse_model
+
+    names = [f.name for f in factors]
+    spec = parse_model(model, names)
+    E = spec.exponents
+    p, k = E.shape
+    squared = [names[j] for j in range(k) if discrete[j] and E[:, j].max() > 1]
+    if squared:
+        raise LevelwiseError(
+            f"The model {model!r} raises categorical factor(s) {squared} to a power; a two-level categorical "
+            "factor has no curvature. Use a model without those terms."
+        )
+    fixed, last_run, last_block = _fixed_coded(fixed_runs, factors)
+    n = runs + len(fixed)
+    if n < p:
+        raise LevelwiseError(
+            f"The model {model!r} has {p} terms but the design would have only {n} runs "
+            f"({runs} new + {len(fixed)} fixed); 'runs' must be at least {p - len(fixed)}."
+        )
+    G, h = parse_constraints(constraints, factors)
+    check_region(G, h, constraints)
+    rng = np.random.default_rng(seed)
+    W = moment_matrix(E, G, h, np.random.default_rng(0), discrete)  # same sample as evaluate()
+    grids = [np.array([-1.0, 1.0]) if E[:, j].max() <= 1 else np.array([-1.0, 0.0, 1.0]) for j in range(k)]
+    if len(G):
+        grids = [g if discrete[j] else np.union1d(g, np.linspace(-1, 1, 5)) for j, g in enumerate(grids)]
+
+    def model_rows(points):
+        return np.prod(points[:, None, :] ** E[None, :, :], axis=2)
+
+    n_fixed = len(fixed)
+    state = {"best": None, "starts_run": 0}
+    try:
+        _exchange(state, starts, G, h, E, runs, rng, grids, discrete, fixed, model_rows, W, criterion, reporter)
+    except KeyboardInterrupt:
+        if state["best"] is None:
+            raise
+        reporter.interrupted()
+    reporter.finish(f"The {criterion}-optimal search")
+    best, start = state["best"], state["starts_run"] - 1
     _, points, logdet, apv = best
     if not math.isfinite(logdet):
         raise LevelwiseError(
@@ -276,7 +300,10 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         "log_det": logdet,
         "starts_run": start + 1,
         "fixed_runs": n_fixed,
+        "search_complete": start + 1 == starts,
     }
+    if reporter.stopped:
+        meta["stopped"] = reporter.stopped
     design = Design(factors, points[n_fixed:], ["optimal"] * runs, [last_block + 1 if n_fixed else 1] * runs,
                     randomize=randomize, seed=seed, first_run=last_run + 1, kind=f"{criterion}-optimal",
                     metadata=meta)

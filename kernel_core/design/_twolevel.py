@@ -200,7 +200,9 @@ def structure_from_runs(coded: np.ndarray, names, block_columns=None, generators
     block_effects = block_effects[block_effects != 0]
     if generators is None:
         gens = []
-        for w in reduce_basis(pure):
+        # The reduced basis of the whole group, pivots on the highest bit: its members below the block bits are
+        # the reduced basis of the pure words (never the 2^p group elements one by one).
+        for w in (v for v in reduce_basis(word_basis) if v.bit_length() <= k):
             pivot = w.bit_length() - 1
             rest = w ^ (1 << pivot)
             sign = -1 if bin(w & int(unique[0])).count("1") % 2 else 1

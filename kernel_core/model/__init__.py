@@ -11,6 +11,10 @@ Private modules by role (import the names from here or from ``levelwise``):
   trace/slice polynomials;
   ``_slices`` :func:`slice_grid`
 - ``_anova``, ``_diagnostics``, ``_effects``, ``_boxcox``, ``_reduce``, ``_optimize`` analyses of a fit
+- mixtures (issue 12): ``_mixture_terms`` Scheffé presets and mixture-process crossings; ``_mixture``
+  :func:`fit_mixture` and :class:`MixtureFit`; ``_mixture_engine`` its prediction engine (blend check, Cox
+  traces); ``_mixture_optimize`` desirability over a mixture region; ``_mixture_slices`` slider moves and
+  ternary slices
 """
 
 from ._boxcox import BoxCoxResult, box_cox
@@ -20,6 +24,9 @@ from ._engine import PredictionEngine, predict
 from ._fit import fit
 from ._formula import PRESETS, ModelSpec, monomials, parse_model, term_name
 from ._inputs import ACHIEVED_SUFFIX
+from ._mixture import MixtureFit, fit_mixture
+from ._mixture_engine import MixtureEngine, cox_traces
+from ._mixture_slices import move_component, ternary_slice
 from ._optimize import (
     Goal,
     Optimum,
@@ -44,20 +51,25 @@ __all__ = [
     "Fit",
     "Goal",
     "LenthResult",
+    "MixtureEngine",
+    "MixtureFit",
     "ModelSpec",
     "Optimum",
     "PredictionEngine",
     "Reduction",
     "SteepestPath",
     "box_cox",
+    "cox_traces",
     "effects",
     "fit",
+    "fit_mixture",
     "fit_responses",
     "half_normal",
     "lenth",
     "maximize",
     "minimize",
     "monomials",
+    "move_component",
     "optimize",
     "overall_desirability",
     "parse_model",
@@ -67,5 +79,6 @@ __all__ = [
     "slice_grid",
     "steepest_path",
     "target",
+    "ternary_slice",
     "term_name",
 ]

@@ -215,6 +215,10 @@ def parse_model(model: str, factor_names) -> ModelSpec:
         )
     if text in PRESETS:
         exponents = preset_exponents(text, k)
+    elif text.startswith("scheffe_"):  # mixture presets (issue 12): no intercept, every factor a component
+        from ._mixture_terms import scheffe_exponents
+
+        exponents = scheffe_exponents(text, k)
     else:
         from patsy import ModelDesc, PatsyError  # imported here: only formulas need it
 

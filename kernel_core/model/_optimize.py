@@ -257,6 +257,10 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     """
     from scipy import optimize as sopt  # imported here: it is slow to import and only needed here
 
+    if isinstance(fits, dict) and fits and any(hasattr(f, "mixture_info") for f in fits.values()):
+        from ._mixture_optimize import optimize_mixture  # mixtures (issue 12): blends summing to the total
+
+        return optimize_mixture(fits, goals, region, constraints, starts, seed)
     if not isinstance(fits, dict) or not fits:
         raise LevelwiseError(
             f"The 'fits' parameter must be a non-empty dict of response -> Fit. Got {describe(fits)} instead."

@@ -172,8 +172,9 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
         exponents = np.asarray(current.spec.exponents)
         coef = current.coefficients
         candidates = []
+        protected = set(getattr(current, "protected_terms", ()))  # mixture fits keep every linear blending term
         for i, row in enumerate(exponents):
-            if not row.any():
+            if not row.any() or current.spec.terms[i] in protected:
                 continue
             if hierarchy and any(_contains(other, row) for k, other in enumerate(exponents) if k != i):
                 continue
@@ -199,7 +200,8 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
                 "remaining": tuple(t for k, t in enumerate(current.spec.terms) if k != i),
             }
         )
-        current = refit(current, keep, data=base)
+        refit_terms = getattr(current, "refit_terms", None)  # mixture fits refit themselves
+        current = refit_terms(keep) if refit_terms is not None else refit(current, keep, data=base)
     steps = pd.DataFrame(
         rows, columns=["step", "term", "estimate", "t", "p_value", "df_resid", "s", "remaining"]
     )

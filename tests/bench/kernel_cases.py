@@ -517,6 +517,8 @@ def case_designs(cfg: Config) -> list[dict]:
     return rows
 
 
+from .mixture_cases import case_mixture_refresh  # noqa: E402 - case 7 lives in its own module
+
 CASES = {
     "refresh": case_refresh,
     "diagnostics": case_diagnostics,
@@ -524,4 +526,5 @@ CASES = {
     "predict": case_predict,
     "fit": case_fit,
     "designs": case_designs,
+    "mixture": case_mixture_refresh,
 }

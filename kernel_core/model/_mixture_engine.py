@@ -1,0 +1,329 @@
+"""The prediction engine of a mixture fit: the one engine of :mod:`levelwise.model._engine`, over the model
+variables (proportions or L-pseudo-components, coded process factors), with
+
+* the **settings check** of a blend: component amounts summing to the total inside the bounds and constraints
+  (a :class:`~levelwise.LevelwiseError` names the components), process settings in natural units;
+* **traces along Cox directions** (Cox 1971, *Biometrika* 58, 155-159): component i moves from the reference
+  blend while the others keep their relative proportions, ``x_j = r_j (T - t) / (T - r_i)``, over every
+  amount that keeps the blend in the region; process factors are traced over their range;
+* a fast path for slider events (a blend of plain numbers: checked in plain Python, the point and every trace
+  in one evaluation).
+
+The mean, the CI/PI half-widths and the extrapolation rule are the base engine's.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pandas as pd
+
+from .._errors import LevelwiseError, describe
+from ._engine import PredictionEngine
+from ._settings import check_points
+
+
+class MixtureEngine(PredictionEngine):
+    """:class:`PredictionEngine` of a :class:`~levelwise.MixtureFit` (build it with :meth:`of`)."""
+
+    @classmethod
+    def of(cls, engine: PredictionEngine, info) -> MixtureEngine:
+        """The mixture engine sharing everything with the ordinary *engine* of the same fit."""
+        new = object.__new__(cls)
+        new.__dict__.update(engine.__dict__)
+        new.info = info
+        new._plan = None  # traces follow Cox directions, not single factors
+        new._fast = new._constants()
+        return new
+
+    def _constants(self):
+        info = self.info
+        m = info.mixture
+        return (info.names, m.q, m.total, 1e-9 * m.total, m.declared_lows.tolist(), m.declared_highs.tolist(),
+                len(m.G) > 0, [(f.center, f.half_range) for f in info.process],
+                m.lows if info.pseudo else 0.0, m.pseudo_range if info.pseudo else m.total)
+
+    def _fast_blend(self, settings):
+        """(amounts, model variables) of a valid blend given as a dict of plain numbers; None otherwise (the
+        general path then checks it and names what is wrong). Plain Python: this runs on every slider event."""
+        names, q, total, tol, lows, highs, constrained, process, offset, divisor = self._fast
+        if type(settings) is not dict or len(settings) != len(names):
+            return None
+        try:
+            row = [settings[n] for n in names]
+        except KeyError:
+            return None
+        for value in row:
+            if type(value) is not float and type(value) is not int:
+                return None
+            if value != value or value in (math.inf, -math.inf):
+                return None
+        xs = row[:q]
+        if abs(math.fsum(xs) - total) > tol:
+            return None
+        for value, lo, hi in zip(xs, lows, highs):
+            if value < lo - tol or value > hi + tol:
+                return None
+        x = np.array(xs, dtype=float)
+        if constrained:
+            m = self.info.mixture
+            if (m.G @ x > m.h + tol).any():
+                return None
+        variables = np.empty(len(row))
+        variables[:q] = (x - offset) / divisor
+        for j, (centre, half) in enumerate(process):
+            variables[q + j] = (row[q + j] - centre) / half
+        return x, variables
+
+
+    # -- the settings check: blends ------------------------------------------------------------------------
+    def _variables(self, settings, where="settings") -> np.ndarray:
+        """(m, k) model variables of blends given as a dict or DataFrame (checked, naming the components)."""
+        info = self.info
+        if isinstance(settings, dict):
+            unknown = [str(key) for key in settings if key not in self._index]
+            if unknown:
+                raise LevelwiseError(f"The 'settings' name {unknown}, which the mixture model does not have; its "
+                                     f"components and process factors are {list(self.factor_names)}.")
+            frame = pd.DataFrame({key: np.atleast_1d(np.asarray(value, dtype=object))
+                                  for key, value in settings.items()}) if settings else pd.DataFrame()
+        elif isinstance(settings, pd.DataFrame):
+            frame = settings
+        else:
+            raise LevelwiseError("The 'settings' parameter must be a dict or DataFrame of component amounts (and "
+                                 f"process settings). Got {describe(settings)} instead.")
+        amounts = info.mixture.amounts_from(frame, where)
+        process = None
+        if info.process:
+            missing = [f.name for f in info.process if f.name not in frame.columns]
+            if missing:
+                raise LevelwiseError(f"The 'settings' are missing process factor(s) {missing}.")
+            process = np.column_stack([pd.to_numeric(frame[f.name], errors="coerce").to_numpy(dtype=float)
+                                       for f in info.process])
+            if not np.isfinite(process).all():
+                j = int(np.argwhere(~np.isfinite(process))[0][1])
+                raise LevelwiseError(f"The setting for process factor {info.process[j].name!r} must be a finite "
+                                     "number.")
+        return info.variables(amounts, process)
+
+    def vector(self, settings, free=()) -> np.ndarray:
+        """One blend ``{component: amount, process factor: setting}`` -> its (k,) model variables."""
+        fast = self._fast_blend(settings)
+        if fast is not None:
+            return fast[1]
+        if not isinstance(settings, dict):
+            raise LevelwiseError("The 'settings' parameter must be a dict of component -> amount. "
+                                 f"Got {describe(settings)} instead.")
+        variables = self._variables(settings)
+        if len(variables) != 1:
+            raise LevelwiseError("The 'settings' must be a single blend here.")
+        return variables[0]
+
+    def columns(self, settings) -> np.ndarray:
+        """Blends (a dict, a dict of lists or a DataFrame) -> (k, m) model variables."""
+        fast = self._fast_blend(settings)
+        if fast is not None:
+            return fast[1][:, None]
+        return np.ascontiguousarray(self._variables(settings).T)
+
+    def amounts(self, settings) -> np.ndarray:
+        """The checked (q,) component amounts of one blend."""
+        fast = self._fast_blend(settings)
+        return fast[0] if fast is not None else self.info.mixture.amounts_from(settings)[0]
+
+    # -- traces and slider events --------------------------------------------------------------------------
+    def cox_traces(self, settings, points=50, level=None, only=None) -> dict:
+        """Every component's Cox-direction trace and every process factor's trace (see :func:`cox_traces`)."""
+        level = self._level(level)
+        points = check_points(points)
+        if only is not None and only not in self._index:
+            raise LevelwiseError(f"The 'factor' parameter must be one of {list(self.factor_names)}. "
+                                 f"Got {describe(only)} instead.")
+        out = self._refresh(self.amounts(settings), self.vector(settings), level, points, point=False)["traces"]
+        return out if only is None else {only: out[only]}
+
+    def trace(self, factor, settings, points=50, level=None) -> dict:
+        return self.cox_traces(settings, points, level, only=factor)[factor]
+
+    def traces(self, settings, points=50, level=None) -> dict:
+        return self.cox_traces(settings, points, level)
+
+    def slice(self, *args, **kwargs):
+        raise LevelwiseError("A surface slice of a mixture fit is not available; use levelwise.ternary_slice.")
+
+    def payload(self, level=None) -> dict:
+        raise LevelwiseError("The offline page does not evaluate mixture fits yet.")
+
+    def refresh(self, settings, level=None, points=50, slice_axes=None, shape=(100, 100), point=True) -> dict:
+        """The point and every trace of one slider event (no surface slice for mixtures)."""
+        if slice_axes is not None:
+            raise LevelwiseError("A surface slice of a mixture fit is not available; use slice_axes=None "
+                                 "(levelwise.ternary_slice draws three components).")
+        level = self._level(level)
+        if points is not None:
+            points = check_points(points)
+        fast = self._fast_blend(settings)
+        x, variables = fast if fast is not None else (self.amounts(settings), self.vector(settings))
+        return self._refresh(x, variables, level, points, point)
+
+    def _refresh(self, x, variables, level, points, point):
+        info = self.info
+        m = info.mixture
+        q = m.q
+        count = 1 + (q * points if points is not None else 0)
+        rows = np.empty((count, len(variables)))
+        rows[0] = variables
+        if points is not None:
+            ts, grid = _cox_grid(m, x, points)
+            offset, divisor = self._fast[-2:]
+            np.divide(grid.reshape(-1, q) - offset, divisor, out=rows[1:, :q])
+            if info.process:
+                rows[1:, q:] = variables[q:]
+        mean, h = self.mean_and_leverage(rows)
+        c = self._scale(level)
+        ci, pi = c * np.sqrt(h), c * np.sqrt(h + self.extra)
+        out = {"point": None, "slice": None, "traces": None}
+        if point:
+            mu, half_ci, half_pi, lev = float(mean[0]), float(ci[0]), float(pi[0]), float(h[0])
+            outside = lev > self._limit or any(value < low or value > high for value, low, high
+                                               in zip(variables.tolist(), self._lows_list, self._highs_list))
+            out["point"] = {"mean": mu, "ci_low": mu - half_ci, "ci_high": mu + half_ci, "pi_low": mu - half_pi,
+                            "pi_high": mu + half_pi, "leverage": lev, "extrapolated": bool(outside)}
+        if points is not None:
+            traces = {}
+            change = (ts - x[:, None]) / m.total
+            mean_t, ci_t, pi_t = (a[1:].reshape(q, points) for a in (mean, ci, pi))
+            for i, name in enumerate(self.factor_names[:q]):
+                traces[name] = {"x": change[i], "amount": ts[i], "blends": grid[i], "mean": mean_t[i],
+                                "ci_half": ci_t[i], "pi_half": pi_t[i]}
+            for j, f in enumerate(info.process):
+                grid_p = np.repeat(variables[None, :], points, axis=0)
+                grid_p[:, q + j] = np.linspace(-1.0, 1.0, points)
+                mu, c_half, p_half, _ = self.bands(grid_p, level)
+                traces[f.name] = {"x": f.to_natural(grid_p[:, q + j]), "mean": mu, "ci_half": c_half,
+                                  "pi_half": p_half}
+            out["traces"] = traces
+        return out
+
+
+def _cox_constants(mixture):
+    """Per-mixture constants of :func:`_cox_lines`, cached on the Mixture."""
+    cached = mixture.__dict__.get("_cox_constants")
+    if cached is None:
+        q = mixture.q
+        eye = np.eye(q)
+        G = np.vstack([-eye, eye, mixture.G])
+        h = np.concatenate([-mixture.declared_lows, mixture.declared_highs, mixture.h])
+        cached = mixture.__dict__["_cox_constants"] = (eye, 1.0 - eye, np.ascontiguousarray(G.T), h,
+                                                       (1.0 - eye) / (q - 1))
+    return cached
+
+
+def _cox_lines(mixture, r):
+    """The Cox direction of every component from the blend r, at once.
+
+    Line i: x(t) = A[i] + t B[i] with x_i = t and x_j = r_j (T - t) / (T - r_i) (the others keep their relative
+    proportions; from a pure blend they share equally). Returns (A, B, lo, hi): the feasible t of line i is
+    [lo[i], hi[i]] (bounds and constraints)."""
+    T = mixture.total
+    eye, off, GT, h, equal = _cox_constants(mixture)
+    if not len(mixture.G) and mixture.q <= 8:
+        return _cox_lines_bounds(mixture, r, eye)
+    rest = T - r
+    pure = rest <= 1e-12 * T
+    share = r[None, :] / np.where(pure, 1.0, rest)[:, None] * off
+    if pure.any():
+        share[pure] = equal[pure]
+    A = share * T
+    B = eye - share
+    slope = B @ GT
+    room = h - A @ GT
+    ratio = np.divide(room, slope, out=np.zeros_like(room), where=np.abs(slope) > 1e-12)
+    lo = np.where(slope < -1e-12, ratio, -np.inf).max(axis=1)
+    hi = np.where(slope > 1e-12, ratio, np.inf).min(axis=1)
+    return A, B, lo, hi
+
+
+def _cox_lines_bounds(mixture, r, eye):
+    """:func:`_cox_lines` for a region of bounds only, in plain Python (a few components: faster than arrays).
+
+    Along line i the others are x_j = s_j (T - t), s_j = r_j / (T - r_i); L_j <= x_j <= U_j gives
+    T - U_j / s_j <= t <= T - L_j / s_j for s_j > 0, and L_i <= t <= U_i."""
+    T, q = mixture.total, mixture.q
+    lows, highs = mixture.__dict__.get("_bounds_lists") or mixture.__dict__.setdefault(
+        "_bounds_lists", (mixture.declared_lows.tolist(), mixture.declared_highs.tolist()))
+    rv = r.tolist()
+    shares, lo, hi = [], [], []
+    for i in range(q):
+        rest = T - rv[i]
+        if rest > 1e-12 * T:
+            share = [rv[j] / rest if j != i else 0.0 for j in range(q)]
+        else:
+            share = [1.0 / (q - 1) if j != i else 0.0 for j in range(q)]
+        a, b = lows[i], highs[i]
+        for j in range(q):
+            sj = share[j]
+            if sj > 0.0:
+                top = T - lows[j] / sj
+                bottom = T - highs[j] / sj
+                if top < b:
+                    b = top
+                if bottom > a:
+                    a = bottom
+        shares.append(share)
+        lo.append(a)
+        hi.append(b)
+    share = np.array(shares)
+    return share * T, eye - share, np.array(lo), np.array(hi)
+
+
+def _cox_interval(mixture, r, i):
+    """The Cox line of component i from the blend r: (a, b, lo, hi); see :func:`_cox_lines`."""
+    A, B, lo, hi = _cox_lines(mixture, np.asarray(r, dtype=float))
+    return A[i], B[i], lo[i], hi[i]
+
+
+def _cox_grid(mixture, r, points):
+    """(t (q, points), blends (q, points, q)) along every component's Cox line over its feasible range."""
+    A, B, lo, hi = _cox_lines(mixture, r)
+    unit = _unit_grid(points)
+    t = lo[:, None] + (hi - lo)[:, None] * unit
+    # A[i, i] = 0 and B[i, i] = 1, so component i's own column is exactly t.
+    blends = t[:, :, None] * B[:, None, :]
+    blends += A[:, None, :]
+    return t, blends
+
+
+_UNIT_GRIDS: dict = {}
+
+
+def _unit_grid(points):
+    grid = _UNIT_GRIDS.get(points)
+    if grid is None:
+        grid = _UNIT_GRIDS[points] = np.linspace(0.0, 1.0, points)[None, :]
+        grid.flags.writeable = False
+    return grid
+
+
+def cox_traces(fit, reference, points: int = 50, level=None) -> dict:
+    """Effect traces along the Cox directions (Cox 1971, *Biometrika* 58, 155-159).
+
+    From the reference blend, component i moves to amount t while every other component keeps its proportion
+    relative to the others: ``x_j = r_j (T - t) / (T - r_i)``; t runs over every amount that keeps the blend inside
+    the bounds and constraints. Process factors are traced over their range with the blend held.
+
+    Returns
+    -------
+    dict
+        Per component: ``x`` (change of the component's proportion from the reference blend, (t - r_i) / T; a
+        common axis for all components), ``amount`` (t), ``blends`` (points, q) amounts, ``mean``, ``ci_half``,
+        ``pi_half``. Per process factor: ``x`` (natural settings), ``mean``, ``ci_half``, ``pi_half``.
+    """
+    engine = getattr(fit, "engine", None)
+    if not isinstance(engine, MixtureEngine):
+        raise LevelwiseError(f"cox_traces needs a mixture fit (fit_mixture). Got {describe(fit)}.")
+    return engine.cox_traces(reference, points, level)
+
+
+__all__ = ["MixtureEngine", "cox_traces"]
