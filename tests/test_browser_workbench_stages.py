@@ -74,7 +74,7 @@ def test_sections_in_the_order_of_the_job_and_opens_on_the_analysis(page):
 def test_stored_goals_show_in_the_optimiser(page):
     kinds = page.locator(".lw-goal-kind select").evaluate_all("els => els.map(e => e.value)")
     labels = page.locator(".lw-goal-kind select").evaluate_all(
-        "els => els.map(e => e.options[e.selectedIndex].text)")
+        "els => els.map(e => e.options[e.selectedIndex].text.replace(/\u00a0/g, ' '))")
     assert labels == ["maximise", "hit a target", "minimise"], (kinds, labels)  # the demo file's goals
     assert "smallest" in page.locator(".lw-goal-defaults").first.inner_text()
 
@@ -90,8 +90,9 @@ def test_nothing_overflows_at_1280(page):
 
 def test_upload_map_enter_save_reload(page, served):
     url, study_file = served
-    page.locator(".lw-section-record .lw-upload input[type=file]").set_input_files(
-        files=[{"name": "plant.csv", "mimeType": "text/csv", "buffer": plant_csv()}])
+    with page.expect_file_chooser(timeout=30_000) as chooser:
+        page.locator(".lw-section-record .lw-upload").first.click()
+    chooser.value.set_files(files=[{"name": "plant.csv", "mimeType": "text/csv", "buffer": plant_csv()}])
     page.locator(".lw-map-row").nth(5).wait_for(timeout=30_000)
     roles = page.locator(".lw-map-role select").evaluate_all("els => els.map(e => e.value)")
     assert roles == ["run", "factor", "factor", "factor", "factor", "response"], roles

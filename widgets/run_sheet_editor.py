@@ -15,6 +15,7 @@ import ipywidgets as ipw
 from levelwise import LevelwiseError
 
 from ._base import View
+from ._number import parse_number
 from .style import fmt
 
 REASON = "entered in the workbench"
@@ -131,11 +132,10 @@ class RunSheetEditor(View):
         value = None
         if text:
             try:
-                value = float(text)
-            except ValueError:
+                value = parse_number(text, field=f"Run {run}, {column}")  # a decimal comma is read as one
+            except LevelwiseError as exc:
                 self._refresh()
-                raise LevelwiseError(f"Run {run}, {column}: a number is needed (a point as decimal mark); "
-                                     f"got {text!r}. The value was not changed.") from None
+                raise LevelwiseError(f"{exc} The value was not changed.") from None
         if column.endswith(" (achieved)"):
             study.record_achieved(run, column[: -len(" (achieved)")], value, overwrite=True, reason=REASON)
         else:
