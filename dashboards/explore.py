@@ -62,7 +62,7 @@ def build(source=None) -> ipw.VBox:
     """The workbench on *source* (a Study, a path, ``"demo"`` or None: see :func:`open_study`).
 
     Sections in the order of the job, each under its heading (``lw-section-<key>``); the planning
-    section starts folded when the study already has results, so the page opens on the analysis.
+    and recording sections start folded when the study already has results, so the page opens on the analysis.
     """
     guard_kernel()
     try:
@@ -89,7 +89,8 @@ def build(source=None) -> ipw.VBox:
         if key == "share":
             boxes.append(ipw.HTML(SHARE_HTML))
         body = ipw.VBox(boxes, layout=ipw.Layout(max_width="100%"))
-        folded = key == "plan" and analysed or key != "plan" and not analysed and key not in ("record",)
+        # A study with results opens on its analysis; one without, on planning and recording.
+        folded = key in ("plan", "record") if analysed else key in ("model", "explore")
         section = ipw.Accordion(children=[body], titles=(heading,), selected_index=None if folded else 0)
         sections.append(section.add_class("lw-section").add_class(f"lw-section-{key}"))
 
@@ -97,7 +98,7 @@ def build(source=None) -> ipw.VBox:
         title.value = _title_html(shared.study)
         results = _has_results(shared.study)
         for section, (key, _, _) in zip(sections, SECTIONS):
-            if key != "plan" or not results:
+            if key not in ("plan", "record") or not results:
                 section.selected_index = 0
     shared.observe(follow, names="study")
     page = ipw.VBox([title, banner, *sections], layout=ipw.Layout(max_width="100%"))

@@ -65,8 +65,9 @@ def test_sections_in_the_order_of_the_job_and_opens_on_the_analysis(page):
     headings = page.locator(".lw-section").evaluate_all("els => els.map(e => e.innerText.trim().split('\\n')[0])")
     assert headings == ["1 · Plan the runs", "2 · Record the results", "3 · Fit the model",
                         "4 · Explore and predict", "5 · Share"], headings
-    # A study with results is loaded: planning starts folded, the analysis is open.
+    # A study with results is loaded: planning and recording start folded, the analysis is open.
     assert not page.locator(".lw-section-plan .lw-design-builder").first.is_visible()
+    assert not page.locator(".lw-section-record .lw-run-sheet-editor").first.is_visible()
     assert page.locator(".lw-section-model .lw-effects-view").first.is_visible()
     assert page.locator(".lw-response-choice").first.inner_text().startswith("Response shown in every view")
 
@@ -83,6 +84,9 @@ def test_nothing_overflows_at_1280(page):
     page.set_viewport_size({"width": 1280, "height": 1000})
     page.wait_for_timeout(500)
     wide = page.evaluate("document.documentElement.scrollWidth")
+    inner = page.locator(".lw-explore, .lw-section").evaluate_all(
+        "els => els.filter(e => e.scrollWidth > e.clientWidth + 1).map(e => e.className)")
+    assert inner == [], inner
     SCREENSHOTS.mkdir(parents=True, exist_ok=True)
     page.screenshot(path=str(SCREENSHOTS / "workbench_1280.png"), full_page=True)
     assert wide <= 1280, wide
@@ -90,9 +94,10 @@ def test_nothing_overflows_at_1280(page):
 
 def test_upload_map_enter_save_reload(page, served):
     url, study_file = served
-    with page.expect_file_chooser(timeout=30_000) as chooser:
-        page.locator(".lw-section-record .lw-upload").first.click()
-    chooser.value.set_files(files=[{"name": "plant.csv", "mimeType": "text/csv", "buffer": plant_csv()}])
+    page.locator(".lw-section-record").get_by_text("2 · Record the results").click()
+    page.locator(".lw-section-record .lw-run-sheet-editor").first.wait_for(timeout=30_000)  # the section opened
+    page.locator("input[type=file]").first.set_input_files(  # the upload's own file input (the page has one)
+        files=[{"name": "plant.csv", "mimeType": "text/csv", "buffer": plant_csv()}])
     page.locator(".lw-map-row").nth(5).wait_for(timeout=30_000)
     roles = page.locator(".lw-map-role select").evaluate_all("els => els.map(e => e.value)")
     assert roles == ["run", "factor", "factor", "factor", "factor", "response"], roles
