@@ -96,11 +96,12 @@ def test_upload_map_enter_save_reload(page, served):
     url, study_file = served
     page.locator(".lw-section-record").get_by_text("2 · Record the results").click()
     page.locator(".lw-section-record .lw-run-sheet-editor").first.wait_for(timeout=30_000)  # the section opened
-    page.locator("input[type=file]").first.set_input_files(  # the upload's own file input (the page has one)
-        files=[{"name": "plant.csv", "mimeType": "text/csv", "buffer": plant_csv()}])
+    with page.expect_file_chooser(timeout=30_000) as chooser:  # the upload button opens the file dialog
+        page.locator(".lw-section-record .lw-upload").first.click()
+    chooser.value.set_files(files=[{"name": "plant.csv", "mimeType": "text/csv", "buffer": plant_csv()}])
     page.locator(".lw-map-row").nth(5).wait_for(timeout=30_000)
     roles = page.locator(".lw-map-role select").evaluate_all("els => els.map(e => e.value)")
-    assert roles == ["run", "factor", "factor", "factor", "factor", "response"], roles
+    assert roles == ["run id", "factor", "factor", "factor", "factor", "response"], roles  # the labels shown
     page.locator(".lw-import").click()
     page.locator(".lw-import-done").wait_for(timeout=60_000)
     page.wait_for_function("() => document.querySelector('.lw-title').innerText.includes('plant')",
