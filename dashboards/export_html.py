@@ -48,11 +48,19 @@ def _finite_or_none(value):
     return value if np.isfinite(value) else None
 
 
+def _run_column(values, factor) -> np.ndarray:
+    """A run-table column as numbers: natural settings, or the level index of a categorical factor."""
+    levels = list(getattr(factor, "levels", ()) or ())
+    if not levels:
+        return np.asarray(values, dtype=float)
+    index = {str(level): k for k, level in enumerate(levels)}
+    return np.array([index.get(str(v), np.nan) for v in values], dtype=float)
+
+
 def payload(study: Study) -> dict:
     """Everything the page needs, as plain JSON-able numbers (the model per response, the runs, the text)."""
     shared = source = shared_model(study, read_only=True)
     fits = _fits_of(shared)
-    factor_names = [f.name for f in source.factors]
     responses = []
     for name in source.responses:
         fit = fits.get(name)
@@ -66,7 +74,7 @@ def payload(study: Study) -> dict:
             "df": int(fit.df_resid),
             **fit.engine.payload(),  # the one prediction engine: the page evaluates exactly this
         })
-    runs = source.data[factor_names].to_numpy(dtype=float)
+    runs = np.column_stack([_run_column(source.data[f.name], f) for f in source.factors])
     runs = runs[np.isfinite(runs).all(axis=1)]
     models = {name: source.models.get(name, "") for name in source.responses}
     return {
@@ -76,6 +84,7 @@ def payload(study: Study) -> dict:
         "caution": CAUTION,
         "fingerprint": fingerprint(shared.data, models, dict(getattr(shared, "exclusions", {}) or {})),
         "factors": [
+            {"name": f.name, "units": f.units, "levels": list(f.levels)} if getattr(f, "levels", ()) else
             {"name": f.name, "units": f.units, "low": float(f.low), "high": float(f.high),
              "center": float(f.center)}
             for f in source.factors

@@ -151,3 +151,28 @@ __all__ += ["MixtureFit", "cox_traces", "fit_mixture"]
 from .model import move_component, ternary_slice  # noqa: E402
 
 __all__ += ["move_component", "ternary_slice"]
+
+# Split-plot and GLM fits (issues 13, 15)
+from .design import split_plot_order  # noqa: E402
+from .model import DENOMINATOR_RULE, GlmFit, MixedFit, least_squares  # noqa: E402
+
+__all__ += ["DENOMINATOR_RULE", "GlmFit", "MixedFit", "least_squares", "split_plot_order"]
+
+# Beyond two levels (issue 14).
+from .design import (  # noqa: E402
+    SecondOrderAliasing,
+    conference_matrix,
+    definitive_screening,
+    general_factorial,
+    second_order_aliasing,
+)
+from .model import term_tests  # noqa: E402
+
+__all__ += [
+    "SecondOrderAliasing",
+    "conference_matrix",
+    "definitive_screening",
+    "general_factorial",
+    "second_order_aliasing",
+    "term_tests",
+]

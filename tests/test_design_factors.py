@@ -16,17 +16,18 @@ def test_categorical_factor():
     f = Factor("Metal", levels=["steel", "brass"])
     assert f.is_categorical and f.levels == ("steel", "brass")
     assert f.to_natural(-1) == "steel" and f.to_coded("brass") == 1.0
-    three = Factor("Supplier", levels=["a", "b", "c"])
-    with pytest.raises(LevelwiseError, match="categorical"):
-        three.to_coded("a")
+    three = Factor("Supplier", levels=["a", "b", "c"])  # level positions on [-1, +1] (issue 14)
+    assert three.to_coded("a") == -1.0 and three.to_coded("b") == 0.0 and three.to_natural(1) == "c"
 
 
 def test_categorical_in_two_level_design():
     d = full_factorial([Factor("Oven", 160, 200), Factor("Metal", levels=["steel", "brass"])], randomize=False)
     assert sorted(d.table["Metal"].tolist()) == ["brass", "brass", "steel", "steel"]
     assert set(d.coded["Metal"]) == {-1.0, 1.0}
-    with pytest.raises(LevelwiseError, match="center_points.*categorical"):
-        full_factorial([Factor("Oven", 160, 200), Factor("Metal", levels=["steel", "brass"])], center_points=2)
+    # Centre runs with a categorical factor: that many at each of its levels (issue 14).
+    d = full_factorial([Factor("Oven", 160, 200), Factor("Metal", levels=["steel", "brass"])], center_points=2)
+    centre = d.table[d.table["role"] == "centre"]
+    assert sorted(centre["Metal"]) == ["brass", "brass", "steel", "steel"] and set(centre["Oven"]) == {180.0}
 
 
 def test_factor_validation():

@@ -159,8 +159,9 @@ def test_two_level_categorical_factor_in_optimal_design():
         optimal_design(fs, "full_second_order", runs=12)
     with pytest.raises(LevelwiseError, match=r"names categorical factor\(s\) \['Metal'\]"):
         optimal_design(fs, model, runs=12, constraints="Metal + T <= 3")
-    with pytest.raises(LevelwiseError, match="has 3 levels"):
-        optimal_design([Factor("T", 0, 1), Factor("S", levels=["a", "b", "c"])], "main_effects", runs=6)
+    # A three-level categorical factor is searched over its levels (issue 14; tests/test_categorical_designs.py).
+    three = optimal_design([Factor("T", 0, 1), Factor("S", levels=["a", "b", "c"])], "main_effects", runs=6, seed=1)
+    assert set(three.table["S"]) == {"a", "b", "c"}
 
 
 def test_non_regular_design_has_no_alias_chains():

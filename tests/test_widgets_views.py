@@ -569,6 +569,78 @@ def test_hovering_a_residual_point_shows_that_run(shared, views):
     assert fmt(diag["cooks_distance"]) in inspector.detail.value and fmt(diag["leverage"]) in inspector.detail.value
 
 
+def test_traces_draw_one_curve_per_level_of_a_three_level_factor():
+    from levelwise import Factor, full_factorial
+
+    factors = [Factor("Oven", 170, 210, units="°C"), Factor("Supplier", levels=["north", "east", "south"]),
+               Factor("Film", 50, 90)]
+    design = full_factorial(factors, replicates=2, seed=2)
+    data = design.table.copy()
+    shift = data["Supplier"].map({"north": 0.0, "east": 2.0, "south": -1.0})
+    data["Impact"] = 10 + (data["Oven"] - 190) / 20 * (1 + shift) + np.random.default_rng(2).normal(0, 0.3, len(data))
+    model = "Oven + Film + Supplier + Oven:Supplier"
+    shared = SharedModel(factors, data, "Impact", model, design=design)
+    view = FactorSliders(shared, points=11)
+    assert view.level_curves.layout.display == "" and not view.level_marks["Oven"].visible
+    view.level_curves.value = "Supplier"
+    mark = view.level_marks["Oven"]
+    assert mark.visible and list(mark.labels) == ["north", "east", "south"]
+    reference = fit(data, "Impact", model, factors=factors)  # levelwise called directly
+    for row, level in enumerate(["north", "east", "south"]):
+        expected = reference.trace("Oven", {**shared.settings, "Supplier": level}, points=11)
+        np.testing.assert_allclose(mark.y[row], expected["mean"], rtol=1e-6)  # float32 on the wire
+    np.testing.assert_allclose(mark.x, np.linspace(170, 210, 11), rtol=1e-6)
+    view.level_curves.value = None
+    assert not mark.visible
+    assert view.status.value == ""
+    view.close()
+
+
+def test_design_builder_offers_general_factorial_and_definitive_screening(shared, views):
+    from levelwise import definitive_screening
+
+    builder = views["builder"]
+    builder.options["seed"].value = 5
+    builder.family.value = "definitive_screening"
+    reference = definitive_screening(list(demo.FACTORS), seed=5)  # levelwise called directly
+    pd.testing.assert_frame_equal(builder.design.table, reference.table)
+    assert "clear of every two-factor interaction" in builder.structure.value
+    builder.options["extra_centre_runs"].value = 2
+    assert len(builder.design) == len(reference) + 2
+    builder.family.value = "full"
+    builder.factor_rows[0]["n_levels"].value = 3
+    builder.factor_rows[1]["type"].value = "categorical"
+    builder.factor_rows[1]["levels"].value = "north, east, south"
+    builder.options["center_points"].value = 0
+    factors = builder.factors()
+    assert factors[0].n_levels == 3 and factors[1].levels == ("north", "east", "south")
+    assert len(builder.design) == 3 * 3 * 2 * 2
+    assert set(builder.design.table[factors[1].name]) == {"north", "east", "south"}
+    assert builder.status.value == ""
+
+
+def test_optimiser_searches_over_the_levels_of_a_categorical_factor():
+    from levelwise import Factor, full_factorial, optimize
+
+    factors = [Factor("Oven", 170, 210, units="°C"), Factor("Supplier", levels=["north", "east", "south"])]
+    design = full_factorial(factors, replicates=2, seed=3)
+    data = design.table.copy()
+    shift = data["Supplier"].map({"north": 0.0, "east": 2.0, "south": -1.0})
+    data["Impact"] = 10 + (data["Oven"] - 190) / 20 + shift + np.random.default_rng(3).normal(0, 0.2, len(data))
+    shared = SharedModel(factors, data, "Impact", "Oven + Supplier", design=design)
+    view = OptimizerView(shared, seed=1, starts=3)
+    view.set_goal("Impact", "maximize", lower_limit=5, target=15)
+    best = view.run()
+    reference = optimize({"Impact": fit(data, "Impact", "Oven + Supplier", factors=factors)},
+                         {"Impact": {"goal": "maximize", "lower_limit": 5, "target": 15}}, starts=3, seed=1)
+    assert best.winner == reference.winner == {"Supplier": "east"}  # the largest invented shift
+    assert "lw-level-results" in view.result.value and "Supplier = east" in view.result.value
+    view.use()
+    assert shared.settings["Supplier"] == "east"
+    assert view.status.value == ""
+    view.close()
+
+
 def test_slider_labels_are_inert_text():
     """A factor label with TeX and markup is shown as escaped text, marked so that MathJax leaves it alone."""
     import ipywidgets as ipw

@@ -27,6 +27,7 @@ from levelwise import (
     LevelwiseError,
     box_behnken,
     central_composite,
+    definitive_screening,
     evaluate,
     fold_over,
     fractional_factorial,
@@ -44,9 +45,10 @@ from .shared_model import SharedModel
 from .style import fmt
 
 FAMILIES = [
-    ("Two-level full factorial", "full"),
+    ("Full factorial (any number of levels)", "full"),
     ("Two-level fractional factorial", "fractional"),
     ("Plackett–Burman screening", "plackett_burman"),
+    ("Definitive screening (three levels)", "definitive_screening"),
     ("Central composite (response surface)", "ccd"),
     ("Box–Behnken (response surface)", "box_behnken"),
     ("Optimal design (computer search)", "optimal"),
@@ -58,6 +60,7 @@ FAMILY_OPTIONS = {
     "full": ("center_points", "replicates", "blocks"),
     "fractional": ("runs", "generators", "resolution", "center_points", "replicates", "blocks"),
     "plackett_burman": ("runs", "center_points"),
+    "definitive_screening": ("extra_centre_runs",),
     "ccd": ("alpha", "ccd_kind", "center_points"),
     "box_behnken": ("center_points",),
     "optimal": ("model", "runs", "criterion", "constraints", "starts", "augment"),
@@ -119,8 +122,9 @@ class DesignBuilder(View):
         Rows are ``lw-factor-row``; ``add_factor_button`` (``lw-add-factor``), ``remove_factor_button``
         (``lw-remove-factor``).
     family : ipywidgets.Dropdown
-        ``lw-design-family``; values ``full``, ``fractional``, ``plackett_burman``, ``ccd``, ``box_behnken``,
-        ``optimal``, ``fold_over``.
+        ``lw-design-family``; values ``full`` (any number of levels: a continuous factor's ``n_levels`` row
+        control, a categorical factor's levels), ``fractional``, ``plackett_burman``, ``definitive_screening``,
+        ``ccd``, ``box_behnken``, ``optimal``, ``fold_over``.
     options : dict of str -> widget
         ``center_points``, ``default_center_points``, ``replicates``, ``blocks``, ``runs``, ``generators``,
         ``resolution``, ``alpha``, ``ccd_kind``, ``model``, ``criterion``, ``constraints``, ``starts``,
@@ -171,6 +175,8 @@ class DesignBuilder(View):
             "center_points": NumberField(3, integer=True, minimum=0, maximum=50, description="Centre points", **wide),
             "default_center_points": ipw.Checkbox(value=True, description="usual number of centre points"),
             "replicates": NumberField(1, integer=True, minimum=1, maximum=10, description="Replicates", **wide),
+            "extra_centre_runs": NumberField(0, integer=True, minimum=0, maximum=20, description="Extra centre runs",
+                                             **wide),
             "blocks": ipw.Dropdown(options=[1, 2, 4, 8], value=1, description="Blocks", **wide),
             "runs": NumberField(0, integer=True, minimum=0, maximum=100_000, description="Runs (0: automatic)", **wide),
             "generators": ipw.Text(value="", description="Generators", continuous_update=False, **wide),
@@ -262,6 +268,8 @@ class DesignBuilder(View):
                                  layout=ipw.Layout(width="150px")),
             "high": NumberField(factor.high if factor and not categorical else 1.0, description="High",
                                   layout=ipw.Layout(width="150px")),
+            "n_levels": ipw.BoundedIntText(value=(factor.n_levels or 2) if factor and not categorical else 2, min=2,
+                                           max=9, description="Settings", layout=ipw.Layout(width="150px")),
             "type": ipw.Dropdown(options=["continuous", "categorical"],
                                  value="categorical" if categorical else "continuous",
                                  description="Type", layout=ipw.Layout(width="200px")),
@@ -298,8 +306,9 @@ class DesignBuilder(View):
                     levels = [v.strip() for v in row["levels"].value.split(",") if v.strip()]
                     out.append(Factor(row["name"].value.strip(), units=row["units"].value.strip(), levels=levels))
                 else:
+                    count = row["n_levels"].value
                     out.append(Factor(row["name"].value.strip(), row["low"].value, row["high"].value,
-                                      units=row["units"].value.strip()))
+                                      units=row["units"].value.strip(), n_levels=count if count != 2 else None))
             except LevelwiseError as exc:
                 raise LevelwiseError(f"Factor row {i + 1}: {exc}") from None
         return out
@@ -326,7 +335,8 @@ class DesignBuilder(View):
         self.task.widget.layout.display = "" if searching else "none"
         if family in ("ccd", "box_behnken", "optimal") and self.eval_model.value == "main_effects":
             self.eval_model.value = "full_second_order"
-        elif family in ("full", "fractional", "plackett_burman") and self.eval_model.value == "full_second_order":
+        elif family in ("full", "fractional", "plackett_burman", "definitive_screening") \
+                and self.eval_model.value == "full_second_order":
             self.eval_model.value = "main_effects"
         self._on_option()
 
@@ -403,6 +413,9 @@ class DesignBuilder(View):
                 center_points=centre, replicates=o["replicates"], blocks=o["blocks"], randomize=randomize,
                 seed=seed, progress=progress if progress is not None else False,
             )
+        if family == "definitive_screening":
+            return lambda progress: definitive_screening(factors, extra_centre_runs=o["extra_centre_runs"],
+                                                         randomize=randomize, seed=seed)
         if family == "plackett_burman":
             return lambda progress: plackett_burman(factors, runs=o["runs"] or None, center_points=centre,
                                                     randomize=randomize, seed=seed)
@@ -502,6 +515,8 @@ class DesignBuilder(View):
             else:
                 aliases = ('<div class="lw-aliases">No main effect or two-factor interaction is aliased '
                            "with another.</div>")
+        if design.kind == "definitive screening":
+            aliases += self._second_order_html(design)
         self.structure.value = "; ".join(facts) + "." + aliases
         try:
             ev = evaluate(design, self.eval_model.value)
@@ -526,6 +541,20 @@ class DesignBuilder(View):
         if self.design is None:
             raise LevelwiseError("Build a design first.")
         return design_figure(self.design)
+
+    @staticmethod
+    def _second_order_html(design) -> str:
+        """The alias structure among second-order terms (levelwise.second_order_aliasing), in words."""
+        from levelwise import second_order_aliasing
+
+        so = second_order_aliasing(design)
+        clear = ("every main effect is clear of every two-factor interaction and quadratic effect"
+                 if so.max_abs_main_vs_second_order == 0 else
+                 f"main effects correlate with second-order terms up to |r| = {fmt(so.max_abs_main_vs_second_order)}")
+        pairs = ("no two of them are fully confounded" if not so.confounded_pairs else
+                 "fully confounded pairs: " + html.escape(", ".join(f"{a} = {b}" for a, b in so.confounded_pairs)))
+        return (f'<div class="lw-aliases"><b>Second-order terms</b>: {clear}; among the second-order terms the '
+                f"largest correlation is |r| = {fmt(so.max_abs_among_second_order)}, {pairs}.</div>")
 
     def _evaluation_html(self, ev) -> str:
         pv = ev.prediction_variance

@@ -20,7 +20,10 @@ from levelwise import LevelwiseError
 
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical
-from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, PI_COLOR, WORDS, fmt, inert_html
+from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, OKABE_ITO, PI_COLOR, WORDS, fmt, inert_html
+
+#: Colours of the per-level curves (Okabe & Ito 2008, without the mean curve's blue and the band's orange).
+SERIES = [OKABE_ITO[k] for k in ("vermillion", "bluish_green", "reddish_purple", "sky_blue", "black", "yellow")]
 
 
 def band(mean, half):
@@ -66,6 +69,11 @@ class FactorSliders(View):
         The extrapolation notice (``lw-notice``; contains ``lw-extrapolation`` when outside the region).
     traces : dict of str -> bqplot.Figure
         Per factor, the displayed response against that factor (``lw-trace``).
+    level_curves : ipywidgets.Dropdown
+        ``lw-trace-levels``: a categorical factor whose every level gets its own mean curve in each trace
+        (``None``: only the level chosen on its control); shown when the study has categorical factors.
+    level_marks : dict of str -> bqplot.Lines
+        Per continuous factor, the per-level mean curves (one row of ``y`` per level, ``labels`` the levels).
     widget : ipywidgets.VBox
         The whole view (``lw-factor-sliders``).
     """
@@ -86,11 +94,15 @@ class FactorSliders(View):
             style={"description_width": "initial"},
         ).add_class("lw-response-choice")
         self.response_choice.observe(self.safely(self._on_response_choice), names="value")
+        self.level_curves = ipw.Dropdown(description="A curve per level of", options=[("(chosen level only)", None)],
+                                         value=None, style={"description_width": "initial"})
+        self.level_curves.add_class("lw-trace-levels")
+        self.level_curves.observe(self.safely(self._refresh), names="value")
         self.y_scale = bq.LinearScale()
         self.widget = ipw.VBox(
             [
                 ipw.HBox([self.slider_box, ipw.VBox([self.readout, self.notice, self.status])]),
-                self.response_choice,
+                ipw.HBox([self.response_choice, self.level_curves]),
                 self.trace_box,
             ]
         ).add_class("lw-factor-sliders")
@@ -102,7 +114,7 @@ class FactorSliders(View):
     def _build(self, change=None):
         for old in getattr(self, "sliders", {}).values():
             old.close()
-        self.sliders, self.traces, self._marks, self._y_axes = {}, {}, {}, []
+        self.sliders, self.traces, self._marks, self._y_axes, self.level_marks = {}, {}, {}, [], {}
         for f in self.shared.factors:
             if is_categorical(f):
                 choice = ipw.Dropdown(options=list(f.levels), value=self.shared.settings[f.name],
@@ -131,6 +143,9 @@ class FactorSliders(View):
             self.traces[f.name] = self._trace_figure(f)
         self.slider_box.children = list(self.sliders.values())
         self.trace_box.children = list(self.traces.values())
+        categorical = [f.name for f in self.shared.factors if is_categorical(f)]
+        self.level_curves.options = [("(chosen level only)", None)] + [(n, n) for n in categorical]
+        self.level_curves.layout.display = "" if categorical else "none"
         self._refresh()
 
     def _trace_figure(self, factor):
@@ -146,11 +161,13 @@ class FactorSliders(View):
         )
         mean = bq.Lines(scales=scales, colors=[MEAN_COLOR], stroke_width=2.5)
         marker = bq.Scatter(scales=scales, **CURRENT_MARKER)
+        per_level = bq.Lines(scales=scales, colors=SERIES, stroke_width=1.5, display_legend=True, visible=False)
         self._marks[factor.name] = (pi_band, ci_band, mean, marker)
+        self.level_marks[factor.name] = per_level
         y_axis = bq.Axis(scale=self.y_scale, side="left", label=self._y_label(), num_ticks=5)
         self._y_axes.append(y_axis)
         fig = bq.Figure(
-            marks=[pi_band, ci_band, mean, marker],
+            marks=[pi_band, ci_band, mean, per_level, marker],
             axes=[bq.Axis(scale=x_scale, label=factor.label, num_ticks=5), y_axis],
             title=factor.name,
             layout=ipw.Layout(width="300px", height="240px"),
@@ -255,8 +272,31 @@ class FactorSliders(View):
             widest = tr["pi_half"] if np.isfinite(tr["pi_half"]).all() else 0.0
             lows.append(np.min(tr["mean"] - widest))
             highs.append(np.max(tr["mean"] + widest))
+        self._draw_level_curves(current, curves, lows, highs)
         if lows:
             low, high = float(min(lows)), float(max(highs))
             pad = 0.05 * (high - low or 1.0)
             with self.y_scale.hold_sync():
                 self.y_scale.min, self.y_scale.max = low - pad, high + pad
+
+    def _draw_level_curves(self, current, curves, lows, highs):
+        """One mean curve per level of the chosen categorical factor, from one ``Fit.refresh`` per level."""
+        name = self.level_curves.value
+        factor = next((f for f in self.shared.factors if f.name == name), None)
+        if factor is None or current is None or name not in (getattr(current, "categories", None) or {}):
+            for mark in self.level_marks.values():
+                mark.visible = False
+            return
+        levels = list(current.categories[name])
+        per_level = [current.refresh({**self.shared.settings, name: level}, points=self.points, point=False)["traces"]
+                     for level in levels]
+        for fname, mark in self.level_marks.items():
+            x = f32(curves[fname]["x"])
+            y = np.vstack([traces[fname]["mean"] for traces in per_level])
+            with mark.hold_sync():
+                set_if_changed(mark, x=x, y=y.astype(np.float32))
+                mark.labels = [str(level) for level in levels]
+                mark.colors = [SERIES[i % len(SERIES)] for i in range(len(levels))]
+                mark.visible = True
+            lows.append(float(np.min(y)))
+            highs.append(float(np.max(y)))

@@ -205,9 +205,20 @@ class OptimizerView(View):
         best = self.optimum
         factors = {f.name: f for f in self.shared.factors}
         settings = "".join(
-            f"<li>{html.escape(factors[name].label if name in factors else name)}: {fmt(value)}</li>"
+            f"<li>{html.escape(factors[name].label if name in factors else name)}: "
+            f"{html.escape(str(value)) if isinstance(value, str) else fmt(value)}</li>"
             for name, value in best.settings.items()
         )
+        by_level = getattr(best, "by_level", None)  # categorical factors: the search at each level combination
+        if by_level is not None and len(by_level):
+            names = list(getattr(best, "winner", {}))
+            items = "".join(
+                f"<li>{html.escape(', '.join(f'{n} = {row[n]}' for n in names))}: overall desirability "
+                f"{fmt(float(row['overall_D']), 3)}</li>"
+                for _, row in by_level.iterrows()
+            )
+            settings += f'<div class="lw-level-results">Best at each level (best first)<ul>{items}</ul></div>'
+
         rows = []
         for response, pred in best.predictions.iterrows():
             units = self.shared.units.get(response, "")

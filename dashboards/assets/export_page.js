@@ -1,27 +1,39 @@
 "use strict";
 const DATA = JSON.parse(document.getElementById("lw-data").textContent);
 const F = DATA.factors, K = F.length;
-const settings = F.map(f => f.center);
+// A categorical factor has "levels"; its setting is the index of the chosen level.
+const isCat = f => Array.isArray(f.levels);
+const CONT = F.map((f, i) => i).filter(i => !isCat(F[i]));
+const CAT = new Set(F.filter(isCat).map(f => f.name));  // no range check: a level is never outside
+const settings = F.map(f => isCat(f) ? 0 : f.center);
 let shown = 0;
 
 // Exactly the prediction engine's payload (levelwise PredictionEngine.payload): m.factors names the model's
-// factors; a factor the model does not use stays at its centre (its exponents are all 0).
+// factors; a factor the model does not use stays at its centre (its exponents are all 0). The coded variables
+// m.vars: (x - centre) / scale for a continuous factor, a contrast column's value at the chosen level for a
+// categorical one (its setting here is the level's label).
 function modelRow(m, at) {
-  const k = m.factors.length, coded = new Array(k);
-  for (let i = 0; i < k; i++) {
-    const v = at[m.factors[i]];
-    coded[i] = ((v === undefined ? m.center[i] : v) - m.center[i]) / m.scale[i];
-  }
+  const index = {};
+  m.factors.forEach((name, i) => { index[name] = i; });
+  const coded = m.vars.map(v => {
+    const x = at[v.factor];
+    if (v.levels) {
+      const c = v.levels.indexOf(String(x));
+      return c < 0 ? NaN : v.values[c];
+    }
+    const i = index[v.factor];
+    return ((x === undefined ? m.center[i] : x) - m.center[i]) / m.scale[i];
+  });
   return m.exponents.map(e => {
     let v = 1.0;
-    for (let i = 0; i < k; i++) { for (let p = 0; p < e[i]; p++) { v *= coded[i]; } }
+    for (let i = 0; i < e.length; i++) { for (let p = 0; p < e[i]; p++) { v *= coded[i]; } }
     return v;
   });
 }
 
 function predict(m, x) {
   const at = {};
-  F.forEach((f, i) => { at[f.name] = x[i]; });
+  F.forEach((f, i) => { at[f.name] = isCat(f) ? String(f.levels[x[i]]) : x[i]; });
   const row = modelRow(m, at);
   let mean = 0.0;
   for (let j = 0; j < row.length; j++) { mean += row[j] * m.beta[j]; }
@@ -36,7 +48,7 @@ function predict(m, x) {
   const ciHalf = c * Math.sqrt(h), piHalf = c * Math.sqrt(h + m.extra);
   let outside = m.limit !== null && h > m.limit;
   m.factors.forEach((name, i) => {
-    if (m.used[i] && (at[name] < m.low[i] || at[name] > m.high[i])) { outside = true; }
+    if (m.used[i] && !CAT.has(name) && (at[name] < m.low[i] || at[name] > m.high[i])) { outside = true; }
   });
   return {mean: mean, ci_low: mean - ciHalf, ci_high: mean + ciHalf, pi_low: mean - piHalf, pi_high: mean + piHalf,
           leverage: h, extrapolated: outside};
@@ -62,6 +74,14 @@ const controls = document.getElementById("lw-controls");
 F.forEach((f, i) => {
   const label = el("label", {}, controls);
   el("span", {text: f.name + (f.units ? " (" + f.units + ") " : " ")}, label);
+  if (isCat(f)) {
+    const input = el("select", {class: "lw-level", "data-factor": f.name}, label);
+    f.levels.forEach((level, k) => el("option", {value: k, text: String(level)}, input));
+    const value = el("span", {class: "lw-value"}, label);
+    input.addEventListener("change", () => { settings[i] = parseInt(input.value, 10); update(); });
+    sliders.push({input: input, value: value});
+    return;
+  }
   const input = el("input", {type: "range", min: f.low, max: f.high, step: (f.high - f.low) / 100,
                              value: f.center, class: "lw-range", "data-factor": f.name}, label);
   const value = el("span", {class: "lw-value"}, label);
@@ -73,14 +93,43 @@ const responseSelect = document.getElementById("lw-response");
 DATA.responses.forEach((m, r) => el("option", {value: r, text: m.name}, responseSelect));
 responseSelect.addEventListener("change", () => { shown = parseInt(responseSelect.value, 10); update(); });
 const sx = document.getElementById("lw-sx"), sy = document.getElementById("lw-sy");
-F.forEach((f, i) => { el("option", {value: i, text: f.name}, sx); el("option", {value: i, text: f.name}, sy); });
-sx.value = 0; sy.value = Math.min(1, K - 1);
+CONT.forEach(i => { el("option", {value: i, text: F[i].name}, sx); el("option", {value: i, text: F[i].name}, sy); });
+if (CONT.length) { sx.value = CONT[0]; sy.value = CONT[Math.min(1, CONT.length - 1)]; }
 sx.addEventListener("change", update); sy.addEventListener("change", update);
 document.getElementById("lw-fingerprint").textContent = DATA.fingerprint;
+
+// A categorical factor's trace: the mean at each level with its confidence interval.
+function drawLevels(svg, m, i) {
+  const W = 280, H = 200, L = 48, R = 8, T = 22, B = 34, f = F[i];
+  const rows = f.levels.map((level, k) => { const at = settings.slice(); at[i] = k; return predict(m, at); });
+  const finite = rows.filter(p => isFinite(p.mean));
+  const lo = Math.min(...finite.map(p => isFinite(p.ci_low) ? p.ci_low : p.mean));
+  const hi = Math.max(...finite.map(p => isFinite(p.ci_high) ? p.ci_high : p.mean));
+  const pad = 0.05 * ((hi - lo) || 1);
+  const X = k => L + (W - L - R) * (k + 0.5) / f.levels.length;
+  const Y = y => T + (H - T - B) * (1 - (y - (lo - pad)) / ((hi + pad) - (lo - pad)));
+  rows.forEach((p, k) => {
+    if (!isFinite(p.mean)) { return; }
+    if (isFinite(p.ci_low)) {
+      el("line", {x1: X(k), x2: X(k), y1: Y(p.ci_low), y2: Y(p.ci_high), stroke: "#0072B2", "stroke-width": 3,
+                  class: "lw-level-ci"}, svg);
+    }
+    el("rect", {x: X(k) - 4, y: Y(p.mean) - 4, width: 8, height: 8, fill: k === settings[i] ? "#000" : "#0072B2",
+                class: "lw-level-mean"}, svg);
+    el("text", {x: X(k), y: H - B + 14, "font-size": 11, "text-anchor": "middle", text: String(f.levels[k])}, svg);
+  });
+  el("line", {x1: L, y1: H - B, x2: W - R, y2: H - B, stroke: "#333"}, svg);
+  el("line", {x1: L, y1: T, x2: L, y2: H - B, stroke: "#333"}, svg);
+  el("text", {x: (L + W) / 2, y: H - 4, "font-size": 12, "text-anchor": "middle", text: f.name}, svg);
+  el("text", {x: L - 4, y: T + 4, "font-size": 11, "text-anchor": "end", text: fmt(hi + pad)}, svg);
+  el("text", {x: L - 4, y: H - B, "font-size": 11, "text-anchor": "end", text: fmt(lo - pad)}, svg);
+  el("text", {x: L, y: 14, "font-size": 12, "font-weight": "bold", text: m.name + (m.units ? " (" + m.units + ")" : "")}, svg);
+}
 
 function drawTrace(svg, m, i) {
   const W = 280, H = 200, L = 48, R = 8, T = 22, B = 34;
   while (svg.firstChild) { svg.removeChild(svg.firstChild); }
+  if (isCat(F[i])) { drawLevels(svg, m, i); return; }
   const f = F[i], n = 41, xs = [], rows = [];
   for (let k = 0; k < n; k++) {
     const x = f.low + (f.high - f.low) * k / (n - 1);
@@ -120,6 +169,7 @@ function colour(t) {
 }
 
 function drawSurface(m) {
+  if (!CONT.length) { return; }
   const canvas = document.getElementById("lw-canvas"), ctx = canvas.getContext("2d");
   const i = parseInt(sx.value, 10), j = parseInt(sy.value, 10), N = 60;
   const W = canvas.width, H = canvas.height, fi = F[i], fj = F[j];
@@ -161,6 +211,7 @@ function drawSurface(m) {
 
 document.getElementById("lw-canvas").addEventListener("click", ev => {
   const canvas = ev.currentTarget, box = canvas.getBoundingClientRect();
+  if (!CONT.length) { return; }
   const i = parseInt(sx.value, 10), j = parseInt(sy.value, 10);
   const u = (ev.clientX - box.left) / box.width, v = 1 - (ev.clientY - box.top) / box.height;
   settings[i] = F[i].low + (F[i].high - F[i].low) * u;
@@ -174,10 +225,10 @@ const traceSvgs = F.map(() => el("svg", {width: 280, height: 200, class: "lw-tra
 function update() {
   sliders.forEach((s, i) => {
     if (parseFloat(s.input.value) !== settings[i]) { s.input.value = settings[i]; }
-    s.value.textContent = fmt(settings[i]);
+    s.value.textContent = isCat(F[i]) ? "" : fmt(settings[i]);
   });
   const numbers = {settings: {}, responses: {}};
-  F.forEach((f, i) => { numbers.settings[f.name] = settings[i]; });
+  F.forEach((f, i) => { numbers.settings[f.name] = isCat(f) ? f.levels[settings[i]] : settings[i]; });
   const table = document.getElementById("lw-pred");
   table.innerHTML = "";
   const head = el("tr", {}, table);
@@ -194,7 +245,7 @@ function update() {
   });
   document.getElementById("lw-numbers").setAttribute("data-numbers", JSON.stringify(numbers));
   // The engine's extrapolation rule, per response: a used factor outside its range, or leverage above the runs'.
-  const outside = F.filter((f, i) => settings[i] < f.low || settings[i] > f.high).map(f => f.name);
+  const outside = F.filter((f, i) => !isCat(f) && (settings[i] < f.low || settings[i] > f.high)).map(f => f.name);
   const flagged = DATA.responses.filter(m => numbers.responses[m.name].extrapolated).map(m => m.name);
   document.getElementById("lw-extrapolation").textContent = flagged.length ?
     "Outside the tested region" + (outside.length ? " (" + outside.join(", ") + ")" : " (far from the runs)") +

@@ -16,16 +16,25 @@ The modules behind it are private and laid out by role:
 * ``_mixture_region``: mixture :class:`Component` and the :class:`Mixture` region (bounds, vertices,
   pseudo-components); ``_mixture``: simplex-lattice, simplex-centroid and extreme-vertices designs and
   mixture-process crossings; ``_mixture_optimal``: optimal designs over a mixture region (issue 12).
+* ``_splitplot``: whole plots of hard-to-change factors and the restricted randomisation;
+  ``_splitplot_optimal``: D- and I-optimal split-plot designs (``optimal_design(whole_plots=...)``).
+* Beyond two levels (issue 14): ``_general_factorial`` (mixed-level full factorials), ``_conference``
+  (conference matrices), ``_definitive_screening`` (definitive screening designs, the alias structure among
+  second-order terms), ``_categorical_design`` (optimal designs and evaluation with categorical factors of any
+  number of levels).
 """
 
 from ._aberration import minimum_aberration
+from ._conference import conference_matrix
 from ._constraints import parse_constraint
+from ._definitive_screening import SecondOrderAliasing, definitive_screening, second_order_aliasing
 from ._design import COLUMN_RENAMES, META_COLUMNS, ROLE_RENAMES, ROLES, Design
 from ._evaluation import DesignEvaluation, evaluate
 from ._factorial import full_factorial
 from ._factors import Factor, as_factors, default_names
 from ._foldover import fold_over
 from ._fractional import fractional_factorial, parse_generators
+from ._general_factorial import general_factorial
 from ._mixture import extreme_vertices, mixture_process, simplex_centroid, simplex_lattice
 from ._mixture_region import Component, Mixture
 from ._optimal import optimal_design
@@ -33,6 +42,7 @@ from ._region import parse_constraints
 from ._response_surface import BB_GROUPS, box_behnken, central_composite, orthogonal_alpha, rotatable_alpha
 from ._runsheet import run_sheet, write_run_sheet
 from ._screening import plackett_burman, plackett_burman_matrix
+from ._splitplot import WHOLE_PLOT_COLUMN, split_plot_order
 
 __all__ = [
     "BB_GROUPS",
@@ -68,4 +78,13 @@ __all__ = [
     "simplex_centroid",
     "simplex_lattice",
     "write_run_sheet",
+    # split-plot designs (issue 13)
+    "WHOLE_PLOT_COLUMN",
+    "split_plot_order",
+    # Beyond two levels (issue 14).
+    "SecondOrderAliasing",
+    "conference_matrix",
+    "definitive_screening",
+    "general_factorial",
+    "second_order_aliasing",
 ]

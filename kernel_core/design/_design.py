@@ -28,6 +28,10 @@ ROLES = {
     "overall_centroid": "the centroid of the mixture region (the average of its vertices)",
     "lattice": "a point of a simplex lattice that is no vertex or centroid",
     "interior_check": "an axial blend halfway from the overall centroid to a vertex",
+    "grid": "a run of a general full factorial that is not a two-level corner (some factor at a middle level or "
+            "a categorical factor with more than 2 levels)",
+    "fold_pair": "a run of a definitive screening design, made together with its mirror image (every coded "
+                 "setting negated)",
 }
 
 #: History of the role names: the value an older levelwise wrote (column ``point_type``) -> the role today.

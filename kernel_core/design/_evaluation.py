@@ -39,6 +39,9 @@ class DesignEvaluation:
         the cube (moment matrix; Monte Carlo inside linear constraints), min and max are over a grid (5 levels per
         continuous factor, both levels of a categorical one, up to 15,625 points; else 4096 seeded random points plus
         the corners).
+    second_order : SecondOrderAliasing or None
+        The alias structure among the second-order terms (two-factor interactions and pure quadratics) and
+        their correlations with the main effects (:func:`levelwise.second_order_aliasing`; up to 30 factors).
     power : pandas.Series
         Per non-intercept term: probability of detecting (two-sided t test, level *alpha*) a coefficient whose
         effect over the column's range in the design equals delta*sigma; NaN without error degrees of freedom.
@@ -57,6 +60,8 @@ class DesignEvaluation:
     power: pd.Series
     delta: float
     alpha: float
+    second_order: object = None
+
 
     def _repr_html_(self) -> str:
         """Rich notebook output: rank, residual degrees of freedom, prediction variance, VIF and power per term."""
@@ -75,6 +80,13 @@ class DesignEvaluation:
                 f"{format_number(pv['min'])}, mean {format_number(pv['mean'])}, max {format_number(pv['max'])}."
                 f"{missing}</p>" + html_table(table, index=True, digits=3))
 
+
+
+def _second_order(design):
+    """The alias structure among the second-order terms (``levelwise.second_order_aliasing``), up to 30 factors."""
+    from ._definitive_screening import second_order_aliasing
+
+    return second_order_aliasing(design) if 2 <= len(design.factors) <= 30 else None
 
 def _default_left_out(spec, coded):
     k = coded.shape[1]
@@ -132,6 +144,10 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
         raise LevelwiseError(f"The 'alpha' parameter must be in (0, 1). Got {describe(alpha)} instead.")
     if not (isinstance(delta, float | int) and delta > 0):
         raise LevelwiseError(f"The 'delta' parameter must be a positive number. Got {describe(delta)} instead.")
+    from ._categorical_design import evaluate_levels, has_many_levels
+
+    if has_many_levels(design.factors):  # categorical factors with more than 2 levels (issue 14)
+        return evaluate_levels(design, model, alias_terms, delta, alpha)
     from ..model import monomials, parse_model, term_name
 
     names = design.factor_names
@@ -221,6 +237,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
         terms=tuple(terms), runs=n, rank=rank, df_error=df_error, estimable=est,
         inestimable=tuple(t for t, e in zip(terms, estimable) if not e), alias_matrix=alias_df, vif=vif_s,
         correlation=corr, prediction_variance=pv, power=power, delta=float(delta), alpha=float(alpha),
+        second_order=_second_order(design),
     )
 
 

@@ -176,13 +176,14 @@ def build_two_level(factors, m, gen_masks, gen_signs, *, center_points, replicat
 
 
 def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=True, seed=None) -> Design:
-    """Two-level full factorial design.
+    """Full factorial design: two-level, or general (mixed-level) through ``levelwise._general_factorial``.
 
     Parameters
     ----------
     factors : list of Factor or int
-        The factors; an integer k gives factors A, B, C, ... coded -1 to +1. Categorical factors must have
-        exactly 2 levels.
+        The factors; an integer k gives factors A, B, C, ... coded -1 to +1. A categorical factor with more
+        than 2 levels, or a continuous factor with ``n_levels`` other than 2, makes a general full factorial
+        (every combination of levels; see :func:`levelwise._general_factorial.general_factorial`).
     center_points : int, default 0
         Runs at the centre of the region, added once (not per replicate), spread evenly over the blocks.
     replicates : int, default 1
@@ -194,6 +195,10 @@ def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=T
         Put the runs in random order within each block (seeded by *seed*).
     seed : int, optional
         Seed for a reproducible run order.
+
+    Factors declared ``hard_to_change=True`` make a split-plot design: whole plots (a ``whole_plot`` column)
+    are the settings of those factors times the replicates, and the randomisation is restricted (see
+    ``levelwise.design._splitplot.split_plot_order``).
 
     Returns
     -------
@@ -216,6 +221,10 @@ def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=T
     factors = as_factors(factors)
     center_points = _check_count(center_points, "center_points", 0)
     replicates = _check_count(replicates, "replicates", 1)
+    from ._general_factorial import general_factorial, needs_general
+
+    if needs_general(factors, center_points):  # mixed levels, or centre runs with categorical factors
+        return general_factorial(factors, center_points, replicates, blocks, randomize, seed)
     k = len(factors)
     if k > 15:
         raise LevelwiseError(f"A full factorial is limited to 15 factors here. Got {k} factors instead.")
@@ -224,6 +233,9 @@ def full_factorial(factors, center_points=0, replicates=1, blocks=1, randomize=T
             f"The design would have {2**k * replicates + center_points} runs; the limit is 1,000,000. "
             f"Check 'replicates' ({replicates}) and 'center_points' ({center_points})."
         )
-    return build_two_level(factors, k, [], [], center_points=center_points, replicates=replicates, blocks=blocks,
-                           randomize=randomize, seed=seed, kind="full factorial", generators=())
+    design = build_two_level(factors, k, [], [], center_points=center_points, replicates=replicates, blocks=blocks,
+                             randomize=randomize, seed=seed, kind="full factorial", generators=())
+    from ._splitplot import maybe_split_plot  # hard-to-change factors: whole plots (issue 13)
+
+    return maybe_split_plot(design, replicates, randomize, seed)
 

@@ -27,6 +27,16 @@ class Factor:
     levels : sequence, optional
         For a categorical factor (give it instead of ``low``/``high``): at least 2 distinct levels, e.g.
         ``["steel", "brass"]``. In two-level designs the first level is coded -1 and the second +1.
+    hard_to_change : bool, default False
+        True for a factor that is slow or costly to reset (a furnace set-point, a mould). Two-level designs
+        then hold it constant over whole plots and restrict the randomisation (split-plot designs).
+        For a categorical factor (give it instead of ``low``/``high``): at least 2 distinct levels in any
+        order, e.g. ``["steel", "brass", "bronze"]``. A design table codes level i of L as its position
+        -1 + 2i/(L-1) on [-1, +1] (first level -1, last +1; a label, not a quantity: models give a
+        categorical factor L-1 contrast columns).
+    n_levels : int, optional
+        For a continuous factor: the number of equally spaced settings from ``low`` to ``high`` that general
+        designs use (coded -1 .. +1); ``None`` leaves the settings to each design.
 
     Examples
     --------
@@ -38,6 +48,8 @@ class Factor:
     >>> metal = Factor("Metal", levels=["steel", "brass"])
     >>> metal.is_categorical, metal.levels, metal.to_natural(1)
     (True, ('steel', 'brass'), 'brass')
+    >>> Factor("Temp", 150, 200, n_levels=3).natural_levels
+    (150.0, 175.0, 200.0)
     """
 
     name: str
@@ -45,8 +57,16 @@ class Factor:
     high: float | None = None
     units: str = ""
     levels: tuple = ()
+    hard_to_change: bool = False
+    n_levels: int | None = None
 
     def __post_init__(self):
+        if not isinstance(self.hard_to_change, (bool, np.bool_)):
+            raise LevelwiseError(
+                f"The 'hard_to_change' flag of a Factor must be True or False. Got {describe(self.hard_to_change)} "
+                "instead."
+            )
+        object.__setattr__(self, "hard_to_change", bool(self.hard_to_change))
         if not isinstance(self.name, str) or not self.name.strip():
             raise LevelwiseError(
                 f"The 'name' of a Factor must be a non-empty string. Got {describe(self.name)} instead."
@@ -65,6 +85,18 @@ class Factor:
             )
         levels = tuple(levels)
         object.__setattr__(self, "levels", levels)
+        if self.n_levels is not None:
+            if levels:
+                raise LevelwiseError(
+                    f"Factor {self.name!r}: 'n_levels' is for continuous factors; a categorical factor has its "
+                    f"'levels'. Got n_levels={self.n_levels!r}, levels={describe(levels)}."
+                )
+            if isinstance(self.n_levels, bool) or not isinstance(self.n_levels, (int, np.integer)) or self.n_levels < 2:
+                raise LevelwiseError(
+                    f"The 'n_levels' of factor {self.name!r} must be an integer >= 2 or None. "
+                    f"Got {describe(self.n_levels)} instead."
+                )
+            object.__setattr__(self, "n_levels", int(self.n_levels))
         if levels:
             if self.low is not None or self.high is not None:
                 raise LevelwiseError(
@@ -114,6 +146,25 @@ class Factor:
         """True for a factor defined by ``levels``."""
         return bool(self.levels)
 
+    @property
+    def level_count(self):
+        """Number of settings a general design gives the factor: ``len(levels)``, ``n_levels``, else None."""
+        return len(self.levels) if self.levels else self.n_levels
+
+    @property
+    def coded_levels(self):
+        """The coded settings -1 .. +1, equally spaced (categorical: level positions); None when not set."""
+        count = self.level_count
+        return None if count is None else tuple((2 * i - (count - 1)) / (count - 1) for i in range(count))
+
+    @property
+    def natural_levels(self):
+        """The levels (categorical) or the ``n_levels`` equally spaced natural settings; None when not set."""
+        if self.levels:
+            return self.levels
+        coded = self.coded_levels
+        return None if coded is None else tuple(float(v) for v in self.to_natural(np.array(coded)))
+
     def _require_continuous(self, what: str):
         if self.levels:
             raise LevelwiseError(
@@ -141,13 +192,10 @@ class Factor:
     def to_coded(self, natural):
         """Convert natural units to coded units (-1 at ``low``, +1 at ``high``).
 
-        For a two-level categorical factor the first level is -1 and the second +1; a categorical
-        factor with more levels has no single coded column and raises :class:`LevelwiseError`.
+        For a categorical factor level i of L maps to its position -1 + 2i/(L-1) (two levels: -1 and +1).
         """
         if self.levels:
-            if len(self.levels) != 2:
-                self._require_continuous("a single coded column")
-            lookup = {self.levels[0]: -1.0, self.levels[1]: 1.0}
+            lookup = dict(zip(self.levels, self.coded_levels))
             values = np.atleast_1d(np.asarray(natural, dtype=object))
             try:
                 out = np.array([lookup[v] for v in values], dtype=float)
@@ -163,15 +211,15 @@ class Factor:
     def to_natural(self, coded):
         """Convert coded units back to natural units (level labels for a categorical factor)."""
         if self.levels:
-            if len(self.levels) != 2:
-                self._require_continuous("a single coded column")
             values = np.atleast_1d(np.asarray(coded, dtype=float))
-            if not np.all(np.isin(values, (-1.0, 1.0))):
+            position = (values + 1.0) * (len(self.levels) - 1) / 2.0
+            index = np.rint(position)
+            if not np.all(np.abs(position - index) < 1e-9) or np.any(index < 0) or np.any(index >= len(self.levels)):
                 raise LevelwiseError(
-                    f"Categorical factor {self.name!r} can only be set to coded -1 or +1 "
-                    f"(levels {list(self.levels)!r}). Got {describe(values.tolist())}."
+                    f"Categorical factor {self.name!r} can only be set to the coded level positions "
+                    f"{list(self.coded_levels)} (levels {list(self.levels)!r}). Got {describe(values.tolist())}."
                 )
-            out = np.array([self.levels[0] if v < 0 else self.levels[1] for v in values], dtype=object)
+            out = np.array([self.levels[int(i)] for i in index], dtype=object)
             return out[0] if np.ndim(coded) == 0 else out
         result = np.asarray(coded, dtype=float) * self.half_range + self.center
         return float(result) if np.ndim(result) == 0 else result

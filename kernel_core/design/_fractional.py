@@ -11,6 +11,7 @@ from ._aberration import minimum_aberration
 from ._design import Design, _check_count
 from ._factorial import build_two_level
 from ._factors import as_factors
+from ._splitplot import maybe_split_plot
 from ._twolevel import block_contrasts, structure_from_runs
 
 _SPLIT = re.compile(r"\s*[:*·]\s*")
@@ -229,7 +230,7 @@ def fractional_factorial(
                 f"The generators give resolution {result.resolution}, below the requested 'resolution' "
                 f"{resolution}. Got generators {list(generators)!r}."
             )
-        return result
+        return maybe_split_plot(result, replicates, randomize, seed)
     if runs is None and resolution is None:
         raise LevelwiseError("fractional_factorial needs 'runs', 'generators' or 'resolution'. Got none of them.")
     if runs is not None:
@@ -267,6 +268,7 @@ def fractional_factorial(
     meta["search_complete"] = bool(complete)
     if not complete:
         meta["stopped"] = reporter.stopped or "budget"
-    return build_two_level(factors, m, masks, [1] * len(masks), center_points=center_points, replicates=replicates,
-                           blocks=blocks, randomize=randomize, seed=seed, kind="fractional factorial",
-                           metadata=meta)
+    design = build_two_level(factors, m, masks, [1] * len(masks), center_points=center_points,
+                             replicates=replicates, blocks=blocks, randomize=randomize, seed=seed,
+                             kind="fractional factorial", metadata=meta)
+    return maybe_split_plot(design, replicates, randomize, seed)  # hard-to-change factors (issue 13)

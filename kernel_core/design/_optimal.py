@@ -170,7 +170,7 @@ def _exchange(state, starts, G, h, E, runs, rng, grids, discrete, fixed, model_r
 
 
 def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_runs=None, starts=10, seed=None,
-                   progress=None, randomize=True) -> Design:
+                   progress=None, randomize=True, whole_plots=None, variance_ratio=1.0) -> Design:
     """D- or I-optimal design by coordinate exchange.
 
     Parameters
@@ -201,6 +201,11 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         also returns the best design so far (with a :class:`levelwise.SearchStoppedWarning`).
     randomize : bool, default True
         Randomise the order of the new runs.
+    whole_plots : int, optional
+        A split-plot design in this many whole plots (factors with ``hard_to_change=True`` constant within
+        each), by coordinate exchange over whole plots and sub-plots (``levelwise.design._splitplot_optimal``).
+    variance_ratio : float, default 1
+        Whole-plot variance / residual variance assumed by the split-plot criterion.
 
     Returns
     -------
@@ -230,6 +235,19 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         return mixture_optimal_design(factors, model, runs, criterion, constraints, fixed_runs, starts, seed,
                                       progress if callable(progress) else None, randomize)
     factors = as_factors(factors)
+    if whole_plots is not None:  # split-plot designs (issue 13)
+        if constraints is not None or fixed_runs is not None:
+            raise LevelwiseError("A split-plot optimal design ('whole_plots') takes no 'constraints' or "
+                                 "'fixed_runs' yet.")
+        from ._splitplot_optimal import split_plot_optimal
+
+        return split_plot_optimal(factors, model, runs, whole_plots, criterion, variance_ratio, starts, seed,
+                                  progress if callable(progress) else None, randomize)
+    from ._categorical_design import coordinate_exchange, has_many_levels
+
+    if has_many_levels(factors):  # categorical factors with more than 2 levels (issue 14)
+        return coordinate_exchange(factors, model, runs, criterion, constraints, fixed_runs, starts, seed,
+                                   progress if callable(progress) else None, randomize)
     for f in factors:
         if f.is_categorical and len(f.levels) != 2:
             raise LevelwiseError(

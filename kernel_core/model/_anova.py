@@ -9,9 +9,11 @@ square.
 The residual is split when the runs allow it:
 
 - **pure error**: variation within groups of runs made at identical settings;
-- **curvature** (two-level designs with centre points, no squared terms in the
-  model): the extra sum of squares of a centre-point indicator added to the model,
-  which for a balanced design equals ``n_F n_C (ybar_F - ybar_C)^2 / (n_F + n_C)``;
+- **curvature** (centre runs in the continuous factors, the other runs at their corners, no
+  squared terms of those factors in the model; categorical and discrete factors may take any
+  level at the centre runs, see ``levelwise.model._term_tests.centre_indicator``): the extra sum of
+  squares of a centre-run indicator added to the model, which for a balanced two-level design
+  equals ``n_F n_C (ybar_F - ybar_C)^2 / (n_F + n_C)``;
 - **lack of fit**: the rest of the residual.
 
 Curvature and lack of fit are tested against pure error when it exists.

@@ -411,28 +411,34 @@ class PredictionEngine(SettingsCheck):
 
     # ----- the offline page ---------------------------------------------------------------------
     def payload(self, level=None) -> dict:
-        """What the offline page evaluates, as JSON-able numbers (continuous factors only).
+        """What the offline page evaluates, as JSON-able numbers.
 
         The page computes, for a setting given by factor name, exactly what :meth:`point` does::
 
             coded_i = (x_i - center_i) / scale_i      (a factor the model does not use: x_i = center_i)
-            row_j   = prod_i coded_i ** exponents[j][i]
+                      for a categorical factor's variable: values[levels.index(x)] (its contrast column)
+            row_j   = prod_i coded_i ** exponents[j][i]   (i over the coded variables ``vars``)
             mean    = row . beta;   h = || row F ||^2   (F = cov_factor)
             CI      = mean -/+ c sqrt(h);   PI = mean -/+ c sqrt(h + extra)   (c = quantile * sigma)
             extrapolated = a used factor outside [low, high] (1e-9 of the half-range allowed) or h > limit
 
         Numbers that are not finite (no residual degrees of freedom) travel as None (JSON null).
         """
-        if self.categories:
-            raise LevelwiseError(
-                f"The offline page evaluates models in continuous factors only; this model has categorical "
-                f"factor(s) {list(self.categories)}."
-            )
+        variables = []  # the coded variables: one per continuous factor, L - 1 per categorical one (issue 14)
+        for j, name in enumerate(self.factor_names):
+            contrast = self.contrasts[j] if self.contrasts else None
+            if contrast is None:
+                variables.append({"factor": name})
+                continue
+            levels = [str(v) for v in self.categories[name]]
+            variables += [{"factor": name, "levels": levels, "values": contrast[:, c].tolist()}
+                          for c in range(contrast.shape[1])]
         level = self._level(level)
         finite = lambda v: float(v) if math.isfinite(v) else None  # noqa: E731
         return {
             "factors": list(self.factor_names),
             "used": [bool(u) for u in self.used],
+            "vars": variables,
             "exponents": self.exponents.tolist(),
             "beta": self.beta.tolist(),
             "cov_factor": self.cov_factor.tolist(),

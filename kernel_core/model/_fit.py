@@ -67,6 +67,56 @@ def fit(
     level: float = 0.95,
     on_rank_deficiency: str = "raise",
     achieved="auto",
+    whole_plot=None,
+    random_block=None,
+    family=None,
+    trials=None,
+    exposure=None,
+    link=None,
+):
+    """Fit *model* to *response* in *data* (least squares; REML for split plots; GLM for counts).
+
+    Without ``whole_plot`` or ``family`` this is :func:`least_squares`, whose parameters it takes.
+    ``whole_plot="column"`` (and optionally ``random_block="column"``) fits the split-plot linear mixed
+    model by REML (:class:`~levelwise.model.MixedFit`). ``family="binomial"`` (with ``trials=`` and
+    ``link="logit"`` or ``"probit"``) or ``family="poisson"`` (optional ``exposure=``) fits a generalised linear
+    model (:class:`~levelwise.model.GlmFit`). A least-squares fit of data with a ``whole_plot`` column warns with
+    the change in each standard error.
+    """
+    options = dict(factors=factors, coding=coding, level=level, on_rank_deficiency=on_rank_deficiency,
+                   achieved=achieved)
+    if whole_plot is not None or random_block is not None:
+        if family is not None:
+            raise LevelwiseError("The 'whole_plot' and 'family' parameters cannot be combined (no mixed GLM yet).")
+        from ._mixed import fit_mixed
+
+        return fit_mixed(data, response, model, whole_plot=whole_plot, random_block=random_block,
+                         least_squares=least_squares, **options)
+    if family is not None or trials is not None or exposure is not None or link is not None:
+        from ._glm import fit_glm
+
+        return fit_glm(data, response, model, family=family, trials=trials, exposure=exposure, link=link,
+                       least_squares=least_squares, **options)
+    result = least_squares(data, response, model, **options)
+    if isinstance(data, pd.DataFrame) and "whole_plot" in data.columns:
+        from ._mixed import warn_if_whole_plots_ignored
+
+        warn_if_whole_plots_ignored(
+            result, data, lambda whole_plot: fit(data, response, model, whole_plot=whole_plot, **options)
+        )
+    return result
+
+
+def least_squares(
+    data,
+    response: str,
+    model: str,
+    *,
+    factors=None,
+    coding: str = "auto",
+    level: float = 0.95,
+    on_rank_deficiency: str = "raise",
+    achieved="auto",
 ) -> Fit:
     """Fit *model* to *response* in *data* by least squares (Householder QR with column pivoting).
 
@@ -105,7 +155,7 @@ def fit(
     --------
     >>> import pandas as pd
     >>> d = pd.DataFrame({"A": [-1, 1, -1, 1], "B": [-1, -1, 1, 1], "y": [1.0, 3.0, 2.0, 4.5]})
-    >>> float(round(fit(d, "y", "A + B").coefficients.loc["A", "estimate"], 4))
+    >>> float(round(least_squares(d, "y", "A + B").coefficients.loc["A", "estimate"], 4))
     1.125
     """
     level = _check_level(level)
@@ -129,7 +179,7 @@ def fit(
     elif isinstance(model, str) and model.strip() in PRESETS:
         names = [
             c for c in data.columns
-            if c != response and c not in META_COLUMNS and not str(c).endswith(ACHIEVED_SUFFIX)
+            if c != response and c not in META_COLUMNS and c != "whole_plot" and not str(c).endswith(ACHIEVED_SUFFIX)
         ]
     elif isinstance(model, str):
         names = [n for n in names_in_model(model) if n in data.columns and n != response]

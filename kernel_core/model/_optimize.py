@@ -15,7 +15,6 @@ import pandas as pd
 
 from .._errors import LevelwiseError, describe
 from ..design import parse_constraint
-from ._fitview import require_continuous
 
 GOAL_KINDS = ("maximize", "minimize", "target")
 
@@ -223,6 +222,8 @@ def _factor_union(fits: dict) -> tuple[list[str], dict]:
 def _mean_function(fit, names: list[str]):
     """Mean prediction from an (m, k_all) array of natural settings, through the fit's prediction engine."""
     columns = [names.index(n) for n in fit.factor_names]
+    if callable(getattr(fit, "mean_at", None)):  # GLM fits: the mean on the response scale (issue 15)
+        return lambda natural: fit.mean_at(natural[:, columns])
     engine = fit.engine
     return lambda natural: engine.mean_and_leverage(natural[:, columns])[0]
 
@@ -274,8 +275,10 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
         raise LevelwiseError(f"The 'goals' name response(s) {unknown} that have no fit. Fitted: {list(fits)}.")
     if isinstance(starts, bool) or not isinstance(starts, (int, np.integer)) or starts < 1:
         raise LevelwiseError(f"The 'starts' parameter must be an integer >= 1. Got {describe(starts)} instead.")
-    for response, fit in fits.items():
-        require_continuous(fit, f"Desirability optimisation (response {response!r})")
+    if any(getattr(fit, "categories", None) for fit in fits.values()):  # over categorical levels (issue 14)
+        from ._categorical_search import optimize_levels
+
+        return optimize_levels(fits, goals, region, constraints, starts, seed)
     goal_objects = {r: as_goal(g, r) for r, g in goals.items()}
     names, ranges = _factor_union(fits)
     if region is not None:
@@ -424,7 +427,10 @@ def steepest_path(fit, step: float = 1.0, steps: int = 10, ascent: bool = True, 
     LevelwiseError
         A model with terms other than main effects, or with all coefficients zero.
     """
-    require_continuous(fit, "The path of steepest ascent")
+    if getattr(fit, "categories", None):  # categorical factors held at their best level (issue 14)
+        from ._categorical_search import steepest_path_levels
+
+        return steepest_path_levels(fit, step, steps, ascent, key)
     exponents = np.asarray(fit.spec.exponents)
     order = exponents.sum(axis=1)
     if (order > 1).any():

@@ -138,7 +138,8 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
     At each step the removable term with the largest p-value (t test on the current fit) is
     dropped and the model is refitted. With ``hierarchy=True`` a term is removable only
     when no remaining term contains it (A stays while A:B or A^2 stays). The intercept is
-    never removed.
+    never removed. With categorical factors each term is tested as one term by its partial F
+    and leaves with all its columns (``levelwise.model._term_tests.reduce_terms``).
 
     Parameters
     ----------
@@ -159,6 +160,13 @@ def reduce(fit, alpha: float = 0.05, hierarchy: bool = True, data: pd.DataFrame 
             f"The 'alpha' parameter of reduce must be a number in the open interval (0, 1). Got {describe(alpha)} "
             "instead."
         )
+    if getattr(fit, "kind", None) in ("glm", "mixed"):  # likelihood-ratio (issue 15) / stratum F tests (issue 13)
+        final, steps = fit.reduce(alpha, hierarchy)
+        return Reduction(fit=final, steps=steps, initial=fit, alpha=float(alpha), hierarchy=bool(hierarchy))
+    if getattr(fit, "contrasts", ()):  # categorical factors: whole terms by partial F (issue 14)
+        from ._term_tests import reduce_terms
+
+        return reduce_terms(fit, alpha, hierarchy, data)
     require_continuous(fit, "Backward elimination (reduce)")
     if fit.df_resid <= 0:
         raise LevelwiseError(

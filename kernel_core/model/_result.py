@@ -351,20 +351,11 @@ class Fit:
 
     @cached_property
     def _centre_indicator(self):
-        """Centre-point indicator when the curvature test applies: continuous two-level design
-        (coded -1/+1 corners and all-zero centre points) and no squared terms in the model."""
-        if self.contrasts or not self.spec.has_intercept or (self.spec.exponents > 1).any():
-            return None
-        used = self.group_exponents.any(axis=0) if len(self.group_exponents) else np.zeros(0, bool)
-        if not used.any():
-            return None
-        coded = self.coding.to_coded(self.run_settings)[:, used]
-        at_zero = np.abs(coded) < 1e-9
-        at_one = np.abs(np.abs(coded) - 1.0) < 1e-9
-        centre = at_zero.all(axis=1)
-        if not np.all(centre | at_one.all(axis=1)):
-            return None
-        return centre if centre.any() and not centre.all() else None
+        """Centre-run indicator when the curvature test applies (``levelwise.model._term_tests.centre_indicator``):
+        centre runs in the continuous factors, also when replicated at each level of discrete factors."""
+        from ._term_tests import centre_indicator
+
+        return centre_indicator(self)
 
     @cached_property
     def diagnostics(self) -> pd.DataFrame:

@@ -528,3 +528,8 @@ CASES = {
     "designs": case_designs,
     "mixture": case_mixture_refresh,
 }
+
+from .fits_cases import case_family_sliders, case_splitplot  # noqa: E402  (issues 13, 15)
+
+CASES["splitplot"] = case_splitplot
+CASES["family_sliders"] = case_family_sliders

@@ -20,20 +20,21 @@ from pathlib import Path
 
 from .rows import make_row
 
-KERNEL_CASES = ("refresh", "diagnostics", "exclusion", "predict", "fit", "designs", "mixture")
+KERNEL_CASES = ("refresh", "diagnostics", "exclusion", "predict", "fit", "designs", "splitplot", "family_sliders",
+                "mixture")
 ALL_CASES = (*KERNEL_CASES, "browser")
 #: Every row id a run writes, in table order (the smoke test checks them all).
 ROW_IDS = (
     "refresh_full_vs_statsmodels", "refresh_full_vs_floor", "refresh_no_slice_vs_statsmodels",
     "refresh_no_slice_vs_floor", "diagnostics_1000", "diagnostics_10000", "exclude_one", "predict_1_row",
     "predict_10000_rows", "fit_large",
-    "min_aberration_15_16", "min_aberration_11_64", "d_optimal", "slider_p50", "slider_p95", "first_view",
-    "kernel_memory", "mixture_refresh_vs_statsmodels",
+    "min_aberration_15_16", "min_aberration_11_64", "d_optimal", "reml_split_plot", "slider_split_plot",
+    "slider_binomial", "slider_p50", "slider_p95", "first_view", "kernel_memory", "mixture_refresh_vs_statsmodels",
 )
 ROWS_OF = {
     "refresh": ROW_IDS[:4], "diagnostics": ROW_IDS[4:6], "exclusion": ROW_IDS[6:7], "predict": ROW_IDS[7:9],
-    "fit": ROW_IDS[9:10], "designs": ROW_IDS[10:13], "browser": ROW_IDS[13:17],
-    "mixture": ("mixture_refresh_vs_statsmodels",),
+    "fit": ROW_IDS[9:10], "designs": ROW_IDS[10:13], "splitplot": ROW_IDS[13:14], "family_sliders": ROW_IDS[14:16],
+    "browser": ROW_IDS[16:20], "mixture": ("mixture_refresh_vs_statsmodels",),
 }
 PACKAGES = ("numpy", "scipy", "pandas", "statsmodels", "patsy", "threadpoolctl", "ipywidgets", "bqplot", "voila",
             "ipykernel", "playwright")
