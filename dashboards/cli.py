@@ -7,6 +7,8 @@ Commands::
     levelwise view DIR [--port N] [--ip ADDR] [--token T] [--idle-timeout S] [--pool-size N]
                    [--max-kernels N] [--max-kernels-per-client N]    serve a published folder (port 8866)
     levelwise export-html STUDY -o FILE.html                     write the offline single-file export
+    levelwise import TABLE -o STUDY.json [--factor COL ...] [--response COL ...] [--run COL]
+                   [--achieved FACTOR=COL ...] [--plan DESIGN.csv] [--title T]   a CSV/XLSX becomes a study file
 
 STUDY is a study JSON file or the word ``demo`` (the invented demo study).
 
@@ -113,6 +115,53 @@ def export_html(args) -> int:
     return EXIT_OK
 
 
+def import_study(args) -> int:
+    """Turn a finished CSV/XLSX table into a study file, through the one import validator."""
+    import warnings
+
+    from levelwise import LevelwiseError, Study, read_table
+    from levelwise.study import guess_columns
+
+    out = Path(args.output)
+    if out.exists() and not args.force:
+        print(f"levelwise import: {str(out)!r} exists; pass --force to replace it.", file=sys.stderr)
+        return EXIT_FAILURE
+    try:
+        achieved = {}
+        for item in args.achieved or ():
+            factor, sep, column = item.partition("=")
+            if not sep or not factor or not column:
+                print(f"levelwise import: --achieved takes FACTOR=COLUMN; got {item!r}.", file=sys.stderr)
+                return EXIT_USAGE
+            achieved[factor] = column
+        factors, responses = args.factor, args.response
+        if not factors or not responses:
+            guess = guess_columns(read_table(args.table, sheet=args.sheet, delimiter=args.delimiter))
+            factors = factors or guess["factors"]
+            responses = responses or guess["responses"]
+            achieved = achieved or guess["achieved"]
+            print(f"levelwise import: guessed factors {factors}, responses {responses}"
+                  + (f", achieved {achieved}" if achieved else "") + " (name them with --factor/--response)")
+        plan = None
+        if args.plan:
+            plan = read_table(args.plan)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # the report below lists every warning
+            study = Study.from_table(args.table, factors=factors, responses=responses, run=args.run,
+                                     achieved=achieved, plan=plan, title=args.title, sheet=args.sheet,
+                                     delimiter=args.delimiter, decimal=args.decimal)
+        study.save(out)
+    except (LevelwiseError, OSError) as exc:
+        print(f"levelwise import: {exc}", file=sys.stderr)
+        return EXIT_FAILURE
+    report = study.import_report
+    for warning in report.warnings:
+        print(f"  {warning}")
+    print(f"levelwise: wrote {out} ({len(study.run_ids)} runs, {report.values_recorded} values, factors "
+          f"{study.factor_names}, responses {list(study.responses)}); open it with: levelwise serve {out}")
+    return EXIT_OK
+
+
 def _port(text: str) -> int:
     try:
         value = int(text)
@@ -202,6 +251,29 @@ def build_parser() -> argparse.ArgumentParser:
     p_exp.add_argument("study", metavar="STUDY", help="A study JSON file, or 'demo'.")
     p_exp.add_argument("-o", "--output", required=True, metavar="FILE.html", help="The HTML file to write.")
     p_exp.set_defaults(handler=export_html)
+
+    p_imp = sub.add_parser("import", help="Turn a CSV/XLSX table of finished runs into a study file.",
+                           description="Read TABLE (one row per run) and write a study file. Without --factor/"
+                                       "--response the columns are guessed (few distinct settings: a factor; "
+                                       "other numbers: a response) and the guess is printed. Every problem is "
+                                       "reported by row and column and nothing is written; every column not "
+                                       "used is listed.", epilog=EPILOG)
+    p_imp.add_argument("table", metavar="TABLE", help="A .csv or .xlsx file, header in the first row.")
+    p_imp.add_argument("-o", "--output", required=True, metavar="STUDY.json", help="The study file to write.")
+    p_imp.add_argument("--factor", action="append", metavar="COL", help="A factor column (repeat for each).")
+    p_imp.add_argument("--response", action="append", metavar="COL", help="A response column (repeat for each).")
+    p_imp.add_argument("--run", metavar="COL", default=None, help="The run-id column (default: one headed 'run').")
+    p_imp.add_argument("--achieved", action="append", metavar="FACTOR=COL",
+                       help="A column holding the setting actually reached for FACTOR.")
+    p_imp.add_argument("--plan", metavar="DESIGN", default=None,
+                       help="The planned design (CSV/XLSX with the factor columns, optionally 'run'): rows are "
+                            "matched to it by run id or by settings, in any order.")
+    p_imp.add_argument("--title", default="", help="The study title.")
+    p_imp.add_argument("--sheet", default=None, help="The worksheet of an XLSX file (default: the first).")
+    p_imp.add_argument("--delimiter", default=",", help="The CSV field separator (default ',').")
+    p_imp.add_argument("--decimal", default=".", help="The decimal mark of numbers written as text (default '.').")
+    p_imp.add_argument("--force", action="store_true", help="Replace STUDY.json if it exists.")
+    p_imp.set_defaults(handler=import_study)
     return parser
 
 

@@ -15,6 +15,8 @@ def workbench(served_workbench, browser):
     page = context.new_page()
     page.route("**/*", loopback_only)
     page.goto(served_workbench, timeout=60_000)
+    # The demo study has results, so the workbench opens on its analysis: unfold "Plan the runs" first.
+    page.locator(".lw-section-plan").get_by_text("1 · Plan the runs").click(timeout=60_000)
     page.locator(".lw-design-builder .lw-design-family select").first.wait_for(timeout=60_000)
     yield page
     context.close()

@@ -59,3 +59,17 @@ def test_the_readme_study_block_gives_the_study_it_describes(tmp_path, monkeypat
     recorded = study.data(apply_exclusions=False)["Impact"]
     assert dict(recorded) == dict(zip(data["run"], data["Impact"]))  # the invented results, by run id
     assert list(study.exclusions["run"]) == [5]
+
+
+def test_the_readme_jupyterlab_block_builds_the_views_on_the_saved_study(tmp_path, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    namespace: dict = {"__name__": "__readme__"}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        for number, block in enumerate(python_blocks(), start=1):
+            exec(compile(block, f"README.md python block {number}", "exec"), namespace)  # noqa: S102
+    shared = namespace["shared"]
+    assert shared.settings["Oven"] == 200
+    assert shared.study.title == "Cure study" and 5 in shared.exclusions  # the study saved above, as saved
+    assert namespace["sliders"].widget is not None and namespace["inspector"].shared is shared
+    assert namespace["own"].factor_names == ["Oven", "Dwell"] and len(namespace["own"].run_ids) == 7

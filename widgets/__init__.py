@@ -18,8 +18,10 @@ from .factor_sliders import FactorSliders
 from .optimizer_view import OptimizerView
 from .predictions_view import PredictionsView
 from .residual_inspector import ResidualInspector
+from .run_sheet_editor import RunSheetEditor
 from .shared_model import ReadOnlyError, SharedModel
 from .surface_slice import SurfaceSlice
+from .table_import import TableImport
 
 __all__ = [
     "DesignBuilder",
@@ -29,6 +31,8 @@ __all__ = [
     "PredictionsView",
     "ReadOnlyError",
     "ResidualInspector",
+    "RunSheetEditor",
     "SharedModel",
     "SurfaceSlice",
+    "TableImport",
 ]

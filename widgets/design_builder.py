@@ -164,7 +164,9 @@ class DesignBuilder(View):
         for f in shared.factors:
             self._add_factor_row(f)
         self.add_factor_button = ipw.Button(description="Add a factor").add_class("lw-add-factor")
-        self.remove_factor_button = ipw.Button(description="Remove the last factor").add_class("lw-remove-factor")
+        self.remove_factor_button = ipw.Button(
+            description="Remove the last factor", layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-remove-factor")
         self.add_factor_button.on_click(self.safely(lambda _: self.add_factor()))
         self.remove_factor_button.on_click(self.safely(lambda _: self.remove_factor()))
         self.family = ipw.Dropdown(options=FAMILIES, value="full", description="Design").add_class("lw-design-family")

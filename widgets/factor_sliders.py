@@ -90,7 +90,8 @@ class FactorSliders(View):
         self.slider_box = ipw.VBox().add_class("lw-slider-box")
         self.trace_box = ipw.HBox(layout=ipw.Layout(flex_flow="row wrap")).add_class("lw-trace-box")
         self.response_choice = ipw.Dropdown(
-            description="Traces of", options=list(shared.responses), value=shared.response
+            description="Response shown in every view", options=list(shared.responses), value=shared.response,
+            style={"description_width": "initial"},
         ).add_class("lw-response-choice")
         self.response_choice.observe(self.safely(self._on_response_choice), names="value")
         self.level_curves = ipw.Dropdown(description="A curve per level of", options=[("(chosen level only)", None)],

@@ -76,13 +76,18 @@ class OptimizerView(View):
         self.optimum = None
         self.goal_rows = {}
         self.goal_box = ipw.VBox().add_class("lw-goals")
-        self.run_button = ipw.Button(description="Find the best settings").add_class("lw-optimize")
-        self.use_button = ipw.Button(description="Use these settings", disabled=True).add_class("lw-use-optimum")
+        self.run_button = ipw.Button(
+            description="Find the best settings", layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-optimize")
+        self.use_button = ipw.Button(
+            description="Use these settings", disabled=True, layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-use-optimum")
         self.result = ipw.HTML().add_class("lw-optimum")
         self.run_button.on_click(self.safely(lambda _: self.run()))
         self.use_button.on_click(self.safely(lambda _: self.use()))
+        self.defaults_note = ipw.HTML(f"<i>{html.escape(SharedModel.GOAL_DEFAULTS)}</i>").add_class("lw-goal-defaults")
         self.widget = ipw.VBox(
-            [self.goal_box, self.run_button, self.result, self.use_button, self.status]
+            [self.defaults_note, self.goal_box, self.run_button, self.result, self.use_button, self.status]
         ).add_class("lw-optimizer-view")
         self._build()
         self.watch(self._build, names=["responses"])
@@ -147,6 +152,17 @@ class OptimizerView(View):
     def _on_edit(self, change=None):
         if getattr(self, "_quiet", False):
             return
+        for response, row in self.goal_rows.items():  # a new kind starts from the data's limits
+            if change is not None and change.get("owner") is row["kind"] and change["new"] != "none":
+                goal = self.shared.goal_for(response, change["new"])
+                if goal is not None:
+                    self._quiet = True
+                    try:
+                        for key, _ in GOAL_FIELDS:
+                            if key in goal:
+                                row[key].value = float(goal[key])
+                    finally:
+                        self._quiet = False
         self.shared.set_goals(self.goals())
 
     def _on_goals(self, change=None):

@@ -54,7 +54,9 @@ class PredictionsView(View):
         super().__init__(shared)
         self.rows = []
         self.table = ipw.HTML().add_class("lw-predictions-table")
-        self.add_button = ipw.Button(description="Add current settings").add_class("lw-add-prediction")
+        self.add_button = ipw.Button(
+            description="Add current settings", layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-add-prediction")
         self.row_choice = ipw.Dropdown(description="Row", options=[]).add_class("lw-prediction-row")
         self.editors = {}
         self.editor_box = ipw.HBox(layout=ipw.Layout(flex_flow="row wrap"))

@@ -90,8 +90,12 @@ class ResidualInspector(View):
         self.reason = ipw.Text(placeholder="Why is this run left out?", description="Reason").add_class(
             "lw-exclude-reason"
         )
-        self.exclude_button = ipw.Button(description="Leave this run out", icon="").add_class("lw-exclude")
-        self.include_button = ipw.Button(description="Put this run back").add_class("lw-include")
+        self.exclude_button = ipw.Button(
+            description="Leave this run out", icon="", layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-exclude")
+        self.include_button = ipw.Button(
+            description="Put this run back", layout=ipw.Layout(width="auto"),  # as wide as its label
+        ).add_class("lw-include")
         self.exclude_button.on_click(self.safely(self._on_exclude))
         self.include_button.on_click(self.safely(self._on_include))
         self.excluded_list = ipw.HTML().add_class("lw-excluded-list")

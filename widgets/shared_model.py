@@ -191,6 +191,7 @@ class SharedModel(traitlets.HasTraits):
             self._attach(study)
             self.settings = {f.name: default_setting(f) for f in study.factors} | dict(settings or {})
             self._refit()
+            self.goals = self.study_goals()
         self.set_trait("read_only", bool(read_only))  # last: the model is built before it is locked
         self.observe(self._on_response, names="response")
 
@@ -451,6 +452,83 @@ class SharedModel(traitlets.HasTraits):
         for name in goals:
             self._check_response_name(name)
         self.goals = dict(goals)
+        if not self.read_only:
+            self._write_goals(goals)
+
+    #: How the starting limits of a goal are chosen (shown on screen beside the goals).
+    GOAL_DEFAULTS = ("Starting limits come from the recorded values: to maximise, from the smallest (desirability 0) "
+                     "to the largest (desirability 1) value seen; to minimise, from the largest (0) down to the "
+                     "smallest (1); to hit a target, the observed range on either side of the target.")
+
+    def goal_for(self, response: str, kind: str, target=None) -> dict | None:
+        """A goal of *kind* for *response* with limits from its recorded values (see ``GOAL_DEFAULTS``).
+
+        None when the response has fewer than two different recorded values (no range to start from).
+        """
+        values = pd.to_numeric(self.data[response], errors="coerce").to_numpy(dtype=float) \
+            if response in self.data else np.array([])
+        values = values[np.isfinite(values)]
+        if values.size < 2 or values.min() == values.max():
+            return None
+        lo, hi = float(values.min()), float(values.max())
+        if kind == "maximize":
+            return {"goal": kind, "lower_limit": lo, "target": hi, "s": 1.0, "weight": 1.0}
+        if kind == "minimize":
+            return {"goal": kind, "target": lo, "upper_limit": hi, "t": 1.0, "weight": 1.0}
+        if kind == "target":
+            aim = float(target) if target is not None else (lo + hi) / 2
+            span = hi - lo
+            lower = lo if lo < aim else aim - span
+            upper = hi if hi > aim else aim + span
+            return {"goal": kind, "lower_limit": lower, "target": aim, "upper_limit": upper, "s": 1.0, "t": 1.0,
+                    "weight": 1.0}
+        return None
+
+    def study_goals(self) -> dict:
+        """The goals the study stores (kind, and the target of a target goal), with limits from the data."""
+        out = {}
+        for name, spec in self.study.responses.items():
+            if spec.goal != "none":
+                goal = self.goal_for(name, spec.goal, spec.target)
+                if goal is not None:
+                    out[name] = goal
+        return out
+
+    def _write_goals(self, goals: dict) -> None:
+        """Write the goal kinds (and a target goal's target) back to the study, each change with its audit entry."""
+        study = self.study
+        changed = False
+        for name, spec in study.responses.items():
+            goal = goals.get(name)
+            kind = "none" if goal is None else goal.get("goal", goal.get("kind", "none"))
+            target = float(goal["target"]) if kind == "target" else None
+            if kind != spec.goal or (kind == "target" and target != spec.target):
+                study.set_goal(name, kind, target)
+                changed = True
+        if changed:
+            self._sync()
+
+    def use_study(self, study: Study) -> None:
+        """Switch to another study (a loaded file or an imported table): every view follows at once.
+
+        Refused when read-only.
+        """
+        self._check_writable("switching the study")
+        if not isinstance(study, Study):
+            raise LevelwiseError(f"The 'study' must be a levelwise Study. Got {describe(study)} instead.")
+        if not study.response_names:
+            raise LevelwiseError("The study has no responses yet: add one with study.add_response(name, units).")
+        with self._writing(), self.hold_trait_notifications():
+            self.fits = {}
+            self.fit = None
+            self.design = None
+            self.goals = {}
+            self.error = ""
+            self._attach(study)
+            self.response = study.response_names[0]
+            self.settings = {f.name: default_setting(f) for f in study.factors}
+        self._refit()
+        self.goals = self.study_goals()
 
     def new_study(self, design: Design, responses, *, models=None) -> None:
         """Replace the whole study by a fresh one on *design* with blank responses.
@@ -484,6 +562,7 @@ class SharedModel(traitlets.HasTraits):
             self.response = names[0]
             self.settings = {f.name: default_setting(f) for f in design.factors}
         self._refit()
+        self.goals = self.study_goals()
 
     # ----- refitting ----------------------------------------------------------------------------
     def excluded_mask(self) -> np.ndarray:

@@ -22,6 +22,7 @@ from ._export import (
     study_run_sheet,
 )
 from ._format import FORMAT_VERSION, content_hash
+from ._from_table import guess_columns, study_from_table
 from ._import import guess_mapping, import_table
 from ._migrations import MIGRATIONS, migrate_v0, migrate_v1
 from ._run_sheet_reader import FilledRunSheet, read_run_sheet
@@ -53,6 +54,8 @@ __all__ = [
     "export_table",
     "guess_mapping",
     "import_table",
+    "guess_columns",
+    "study_from_table",
     "migrate_v0",
     "migrate_v1",
     "parse_header",

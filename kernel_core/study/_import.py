@@ -139,7 +139,12 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
     if not isinstance(decimal, str) or len(decimal) != 1:
         raise ImportDataError(f"The 'decimal' must be one character. Got {describe(decimal)} instead.")
     name = _source_bytes(source)[0] if not isinstance(source, pd.DataFrame) else "<DataFrame>"
-    if isinstance(source, pd.DataFrame):
+    if isinstance(source, pd.DataFrame) and source.attrs.get("spreadsheet_rows"):
+        # Already read from a file (Study.from_table): its index holds the spreadsheet row numbers.
+        name = source.attrs.get("source_name", name)
+        frame = source.astype(object)
+        frame.attrs.update(source.attrs)
+    elif isinstance(source, pd.DataFrame):
         frame = source.astype(object)
         frame.columns = [str(c) for c in frame.columns]
         frame.index = pd.RangeIndex(2, 2 + len(frame))

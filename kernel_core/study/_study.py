@@ -81,6 +81,41 @@ class Study(StudyRecords, StudyTables, StudyFile):
         self._file_revisions: dict[str, str] = {}  # file -> SHA-256 of its bytes at this study's load or last save
         self._log("create", f"study created with factors {[f.name for f in self._factors]}")
 
+    @classmethod
+    def from_table(cls, source, *, factors, responses, run: str | None = None, achieved: dict | None = None,
+                   plan=None, title: str = "", stage: str = "imported", sheet: str | None = None,
+                   delimiter: str = ",", decimal: str = ".") -> Study:
+        """A new study from one finished table (data frame, CSV or XLSX), in one call.
+
+        Parameters
+        ----------
+        source : pandas.DataFrame, path or bytes
+        factors : list of str or Factor
+            Factor columns (``"Name [units]"`` headers; the units are taken from the header). A bare
+            name gets the observed range as low..high (or the observed levels, for text); give a
+            :class:`Factor` to set low/high/levels/units yourself.
+        responses : list of str
+            Response columns (units from the header).
+        run : str, optional
+            The run-id column (default: a column headed ``run``; else runs are numbered 1..n).
+        achieved : dict, optional
+            factor -> column holding the setting actually reached.
+        plan : Design or DataFrame, optional
+            The planned design. Rows are matched to it by run id (with ``run``) or else by their
+            settings (nearest planned run within 0.1 coded units), so a plant run order that differs
+            from the plan is accepted; settings that differ from the plan are recorded as achieved.
+
+        Every problem is raised together in one :class:`ImportDataError` naming its spreadsheet row
+        and column; columns not used are listed (``study.import_report.warnings``) and warned about.
+        """
+        from ._from_table import study_from_table
+
+        study, report = study_from_table(source, factors=factors, responses=responses, run=run, achieved=achieved,
+                                         plan=plan, title=title, stage=stage, sheet=sheet, delimiter=delimiter,
+                                         decimal=decimal)
+        study.import_report = report
+        return study
+
     # ----- read-only views -------------------------------------------------------------------
     @property
     def factors(self) -> tuple[Factor, ...]:
