@@ -109,3 +109,18 @@ def test_run_sheet_follows_a_new_study():
 def _quiet_study(raw):
     with pytest.warns(lw.LevelwiseWarning, match="Operator"):
         return Study.from_table(lw.read_table(raw), factors=["Temp", "Time", "Load", "Speed"], responses=["Yield"])
+
+
+def test_a_read_only_model_refuses_run_sheet_edits_and_saves_and_the_study_is_unchanged(tmp_path):
+    raw, _ = csv_bytes(blank_run=5)
+    study = _quiet_study(raw)
+    shared = SharedModel.from_study(study, read_only=True)
+    sheet = RunSheetEditor(shared)
+    entries = len(study.audit)
+    sheet.cells[(5, "Yield")].value = "41.5"  # as a crafted browser message would set it
+    assert "read-only" in sheet.status.value.lower()
+    assert np.isnan(study.data().at[5, "Yield"]) and len(study.audit) == entries
+    sheet.path.value = str(tmp_path / "x.json")
+    with pytest.raises(lw.LevelwiseError, match="read-only"):
+        sheet.save()
+    assert not (tmp_path / "x.json").exists()

@@ -127,6 +127,7 @@ class RunSheetEditor(View):
     def _edit(self, run, column, text):
         if getattr(self, "_quiet", False):
             return
+        self.shared._check_writable("entering results")  # before the study changes, not after
         study = self.shared.study
         text = text.strip()
         value = None
@@ -146,6 +147,7 @@ class RunSheetEditor(View):
 
     def save(self) -> Path:
         """Write the study atomically to the path in the 'Save to' field."""
+        self.shared._check_writable("saving the study")
         text = self.path.value.strip()
         if not text:
             raise LevelwiseError("Type where to save the study ('Save to', a .json file) first.")
