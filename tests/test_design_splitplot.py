@@ -185,3 +185,65 @@ def test_optimal_split_plot_bad_input():
         lw.optimal_design(fs, "A + B", runs=8, whole_plots=4, variance_ratio=-1.0)
     with pytest.raises(LevelwiseError, match="hard_to_change"):
         lw.optimal_design([lw.Factor("A", -1, 1), lw.Factor("B", -1, 1)], "A + B", runs=8, whole_plots=4)
+
+
+# -- seams: the run sheet read back and combined stages keep the whole plots ---------------------------------
+def _filled_sheet(design, tmp_path, ext):
+    """Write the design's run sheet, fill a response (invented numbers: 10 + run id / 10) and return its path."""
+    import pandas as pd
+
+    from levelwise._cells import write_xlsx
+
+    path = lw.write_run_sheet(design, tmp_path / f"sheet.{ext}", responses=["y"])
+    if ext == "csv":
+        sheet = pd.read_csv(path)
+        sheet["y"] = 10 + sheet["run"] / 10
+        sheet.to_csv(path, index=False)
+    else:
+        sheet = pd.read_excel(path, sheet_name="runs")
+        sheet["y"] = 10 + sheet["run"] / 10
+        write_xlsx({"runs": sheet, "design": pd.read_excel(path, sheet_name="design")}, path)
+    return path
+
+
+@pytest.mark.parametrize("ext", ["csv", "xlsx"])
+def test_a_split_plot_run_sheet_read_back_keeps_its_whole_plots(tmp_path, ext):
+    import warnings
+
+    factors = [lw.Factor("Oven", 160, 200, hard_to_change=True), lw.Factor("Film", 40, 80),
+               lw.Factor("Dwell", 5, 15)]
+    d = lw.full_factorial(factors, replicates=3, seed=4)
+    path = _filled_sheet(d, tmp_path, ext)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # no "column not used" warning for whole_plot
+        filled = lw.read_run_sheet(path, design=d if ext == "csv" else None)  # XLSX: factors from its sheet
+    by_run = dict(zip(d.table["run"], d.table["whole_plot"]))
+    for frame in (filled.table, filled.data):
+        assert list(frame.columns[:5]) == ["run", "standard_order", "block", "whole_plot", "role"]
+        assert [by_run[r] for r in frame["run"]] == frame["whole_plot"].tolist()
+    study = filled.study
+    assert study.has_whole_plots and study.hard_to_change == ["Oven"]
+    assert study.whole_plots().to_dict() == {int(k): int(v) for k, v in by_run.items()}
+    assert isinstance(study.fit("y", "Oven + Film + Dwell"), lw.model.MixedFit)
+
+
+def test_design_combine_keeps_whole_plots():
+    factors = [lw.Factor("Oven", 160, 200, hard_to_change=True), lw.Factor("Film", 40, 80),
+               lw.Factor("Dwell", 5, 15)]
+    first = lw.full_factorial(factors, replicates=2, seed=1)  # 4 whole plots, runs 1..16
+    second = lw.fold_over(first, seed=2)  # 16 new runs, randomised without whole plots (each run reset)
+    both = first.combine(second)
+    plots = both.table["whole_plot"].to_numpy()
+    assert list(both.table.columns[:4]) == ["run", "standard_order", "block", "whole_plot"]
+    np.testing.assert_array_equal(plots[:16], first.table["whole_plot"].to_numpy())  # kept as they were
+    np.testing.assert_array_equal(plots[16:], np.arange(5, 21))  # one whole plot per run, after the first's
+    assert both.metadata["whole_plots"] == 20 and both.metadata["hard_to_change"] == ["Oven"]
+    # Two split-plot stages: the second's numbers continue after the first's (they would repeat 1..4).
+    later = lw.Design(factors, second.coded.to_numpy(), second.table["role"], second.table["block"],
+                      randomize=False, first_run=17)
+    later.table.insert(3, "whole_plot", np.repeat([1, 2, 3, 4], 4))
+    again = first.combine(later)
+    np.testing.assert_array_equal(again.table["whole_plot"].to_numpy()[16:], np.repeat([5, 6, 7, 8], 4))
+    # Neither stage with whole plots: no column, as before.
+    plain = lw.full_factorial(3, seed=1)
+    assert "whole_plot" not in plain.combine(lw.fold_over(plain, seed=2)).table.columns

@@ -1,4 +1,4 @@
-"""Study files of earlier formats load: format 0 -> 1 -> 2, on every shipped and test study file."""
+"""Study files of earlier formats load: format 0 -> 1 -> 2 -> 3, on every shipped and test study file."""
 
 from __future__ import annotations
 
@@ -9,18 +9,19 @@ from pathlib import Path
 import jsonschema
 import pytest
 
-from levelwise import OutsideEditError, Study
-from levelwise.study import FORMAT_VERSION, content_hash, migrate_v1
+from levelwise import LevelwiseWarning, OutsideEditError, Study
+from levelwise.study import FORMAT_VERSION, content_hash, migrate_v1, migrate_v2
 
 ROOT = Path(__file__).resolve().parents[1]
 DATA = ROOT / "tests" / "data"
 SHIPPED = ROOT / "dashboards" / "data" / "demo_campaign.json"
+SHIPPED_SPLIT_PLOT = ROOT / "dashboards" / "data" / "demo_split_plot.json"
 
 
 def study_files() -> list[Path]:
     """Every study file in the repository's test data and shipped data (a JSON object with a format_version)."""
     found = []
-    for path in sorted(DATA.glob("*.json")) + [SHIPPED]:
+    for path in sorted(DATA.glob("*.json")) + [SHIPPED, SHIPPED_SPLIT_PLOT]:
         document = json.loads(path.read_text(encoding="utf-8"))
         if isinstance(document, dict) and "format_version" in document:
             found.append(path)
@@ -34,10 +35,11 @@ def schema() -> dict:
 def test_the_files_checked_are_the_ones_expected():
     names = [p.name for p in study_files()]
     assert names == ["demo_campaign_v1.json", "study_example.json", "study_v0.json", "study_v1.json",
-                     "demo_campaign.json"]
+                     "demo_campaign.json", "demo_split_plot.json"]
     versions = {p.name: json.loads(p.read_text(encoding="utf-8"))["format_version"] for p in study_files()}
     assert versions == {"demo_campaign_v1.json": 1, "study_example.json": 2, "study_v0.json": 0,
-                        "study_v1.json": 1, "demo_campaign.json": 2}  # the shipped files are in the new format
+                        "study_v1.json": 1, "demo_campaign.json": 3,
+                        "demo_split_plot.json": 3}  # the shipped files are in the new format
 
 
 @pytest.mark.parametrize("path", study_files(), ids=lambda p: p.name)
@@ -46,7 +48,7 @@ def test_every_study_file_loads_and_saves_in_the_current_format(path, tmp_path):
     assert len(study) > 0 and study.responses
     saved = study.save(tmp_path / path.name)
     document = json.loads(saved.read_text(encoding="utf-8"))
-    assert document["format_version"] == FORMAT_VERSION == 2
+    assert document["format_version"] == FORMAT_VERSION == 3
     jsonschema.validate(document, schema())
     assert document["sha256"] == content_hash(document["data"], document["audit"])
     for run in document["data"]["runs"]:
@@ -64,7 +66,8 @@ def test_format_1_example_migrates_to_the_runs_of_the_current_example():
     assert roles.count("corner") == 16 and roles.count("centre") == 6  # 2^4 corners; 3 + 3 centre runs
     assert old.models["Gloss"] == "main_effects"  # was the preset "linear"
     assert old.models["Impact"] == new.models["Impact"]  # a formula is kept as written
-    assert old.audit[-1].action == "migrate" and old.audit[-1].what == "migrated from format 1 to format 2"
+    assert [(a.action, a.what) for a in old.audit[-2:]] == [("migrate", "migrated from format 1 to format 2"),
+                                                            ("migrate", "migrated from format 2 to format 3")]
 
 
 def test_shipped_demo_of_format_1_migrates_to_the_regenerated_demo():
@@ -125,3 +128,35 @@ def test_a_format_1_file_edited_outside_levelwise_is_still_caught(tmp_path):
     study = Study.load(path, accept_outside_edits=True)
     assert study.data(apply_exclusions=False).loc[first["run"], "Impact"] == pytest.approx(value + 1)
     assert [a.action for a in study.audit[-2:]] == ["migrate", "accept_outside_edits"]
+
+
+def test_format_2_files_migrate_to_format_3_with_their_data_unchanged():
+    # Format 3 only adds optional keys (hard_to_change on a factor, whole_plot on a run): absent = format 2.
+    for path in study_files():
+        raw = json.loads(path.read_text(encoding="utf-8"))
+        if raw["format_version"] != 2:
+            continue
+        study = Study.load(path)
+        assert study.to_dict() == raw["data"]  # the data block as written, nothing added
+        assert not study.has_whole_plots and study.hard_to_change == []
+        assert [(a.action, a.what) for a in study.audit[-1:]] == [("migrate", "migrated from format 2 to format 3")]
+        assert len(study.audit) == len(raw["audit"]) + 1
+        with pytest.warns(LevelwiseWarning, match="no value for run"):  # this example has unmeasured runs
+            assert type(study.fit(next(iter(study.models)))).__name__ == "Fit"  # least squares, as before
+    document = {"format_version": 2, "data": {"runs": [{"run": 1}]}, "audit": [], "sha256": "0" * 64}
+    migrated = migrate_v2(document)
+    assert migrated["format_version"] == 3 and migrated["data"] == {"runs": [{"run": 1}]}
+    assert migrated["sha256"] == content_hash(migrated["data"], migrated["audit"]) != "0" * 64
+    assert document["format_version"] == 2 and document["audit"] == []  # the input is not changed
+
+
+def test_the_shipped_split_plot_file_keeps_its_whole_plots():
+    study = Study.load(SHIPPED_SPLIT_PLOT)
+    document = json.loads(SHIPPED_SPLIT_PLOT.read_text(encoding="utf-8"))
+    assert [f.get("hard_to_change", False) for f in document["data"]["factors"]] == [True, False, False]
+    assert all(isinstance(run["whole_plot"], int) for run in document["data"]["runs"])
+    assert study.hard_to_change == ["Oven"] and study.whole_plots().nunique() == 8
+    # A format-3 key the schema does not know is still refused (the schema stays closed).
+    document["data"]["runs"][0]["whole_plot"] = 0
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.validate(document, schema())

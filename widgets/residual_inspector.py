@@ -62,7 +62,8 @@ class ResidualInspector(View):
 
     def __init__(self, shared: SharedModel):
         super().__init__(shared)
-        self.plot = ipw.Dropdown(description="Plot", options=self._plot_options(), value="normal")
+        options = self._plot_options()
+        self.plot = ipw.Dropdown(description="Plot", options=options, value=options[0][1])
         self.plot.add_class("lw-residual-plot-choice")
         self.sx, self.sy = bq.LinearScale(), bq.LinearScale()
         scales = {"x": self.sx, "y": self.sy}
@@ -121,7 +122,18 @@ class ResidualInspector(View):
         self._on_fit()
 
     # ----- options ------------------------------------------------------------------------------
+    def _split_plot(self) -> bool:
+        """True when the displayed fit is a split-plot (REML) fit: residuals then come by whole plot."""
+        return hasattr(self.shared.fit, "whole_plot_effects")
+
     def _plot_options(self):
+        if self._split_plot():  # no studentized residuals or leverage for a mixed model: the whole plots instead
+            return [
+                ("Residual by whole plot, with each whole plot's predicted effect", "whole_plot"),
+                ("Residual against fitted value", "fitted"),
+                ("Residual against run order", "order"),
+                *[(f"Residual against {f.label}", f"factor:{f.name}") for f in self.shared.factors],
+            ]
         return [
             ("Normal probability of studentized residuals", "normal"),
             ("Residual against fitted value", "fitted"),
@@ -206,7 +218,25 @@ class ResidualInspector(View):
         order_of = dict(zip(self.shared.run_ids().tolist(), range(1, len(self.shared.data) + 1)))
         guides_x = guides_y = np.array([], dtype=np.float32)
         ex_x = ex_y = np.array([])
-        if choice == "normal":
+        if choice == "whole_plot":
+            # Marginal residuals (observed - X beta) grouped by whole plot, whole plots in run order at 1, 2, ...;
+            # each whole plot's predicted random effect (MixedFit.whole_plot_effects) as a short dashed bar.
+            effects = current.whole_plot_effects
+            position = {label: k for k, label in enumerate(effects.index, start=1)}
+            x = np.array([position[label] for label in diag["whole_plot"]], dtype=float)
+            y = diag["residual"].to_numpy()
+            if len(ex_runs):
+                plot_of = self.shared.study.fit_table(apply_exclusions=False)["whole_plot"]
+                ex_x = np.array([position.get(plot_of.loc[r], np.nan) for r in ex_runs], dtype=float)
+                ex_y = ex_resid
+            bars = [[k - 0.35, k + 0.35, np.nan] for k in position.values()]
+            levels = [[v, v, np.nan] for v in effects.to_numpy()]
+            guides_x, guides_y = f32(np.concatenate(bars)[:-1]), f32(np.concatenate(levels)[:-1])
+            xlabel = (f"Whole plot ({len(position)} whole plots in run order; dashed: predicted whole-plot effect; "
+                      f"whole-plot variance {fmt(current.variance_components['whole_plot'])}, residual variance "
+                      f"{fmt(current.variance_components['residual'])})")
+            ylabel = resid_label
+        elif choice == "normal":
             x, y = diag["studentized"].to_numpy(), diag["normal_quantile"].to_numpy()
             finite = np.isfinite(x) & np.isfinite(y)
             lim = float(np.nanmax(np.abs(np.r_[x[finite], y[finite], 1.0])))
@@ -314,6 +344,15 @@ class ResidualInspector(View):
             )
             lines.append(f"Predicted without it: {fmt(pred['mean'])}{unit}; "
                          f"observed minus predicted: {fmt(observed - pred['mean'])}{unit}")
+        elif run in current.diagnostics.index and self._split_plot():
+            d = current.diagnostics.loc[run]
+            lines += [
+                f"Whole plot: {html.escape(str(d['whole_plot']))}; predicted whole-plot effect: "
+                f"{fmt(d['whole_plot_effect'])}{unit}",
+                f"Fitted value: {fmt(d['fitted'])}{unit}; residual: {fmt(d['residual'])}{unit}",
+                f"Residual within its whole plot (less the whole-plot effect): {fmt(d['conditional_residual'])}"
+                f"{unit} ({fmt(d['standardized_conditional'])} residual standard deviations)",
+            ]
         elif run in current.diagnostics.index:  # indexed by run id
             d = current.diagnostics.loc[run]
             lines += [

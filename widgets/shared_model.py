@@ -31,14 +31,16 @@ settings must then stay inside the study's region.
 
 from __future__ import annotations
 
+import abc
 from contextlib import contextmanager
 
 import numpy as np
 import pandas as pd
 import traitlets
 
-from levelwise import Design, Factor, Fit, LevelwiseError, Study, fit
+from levelwise import Design, Factor, Fit, LevelwiseError, Study
 from levelwise._errors import describe
+from levelwise.model._families import FitFamily
 
 from ._study_table import DEFAULT_MODEL, study_from_table
 
@@ -60,6 +62,15 @@ def is_categorical(factor: Factor) -> bool:
 def default_setting(factor: Factor):
     """Where a factor starts: its centre, or the first level of a categorical factor."""
     return factor.levels[0] if is_categorical(factor) else factor.center
+
+
+class AnyFit(abc.ABC):  # noqa: B024 - a type to register fits with, no methods of its own
+    """What the ``fit``/``fits`` traits hold: a least-squares :class:`levelwise.Fit`, or a fit of another family
+    (the split-plot ``MixedFit``) that predicts through the same ``Fit.engine``."""
+
+
+AnyFit.register(Fit)
+AnyFit.register(FitFamily)
 
 
 class _NoneChecked(traitlets.Instance):
@@ -132,7 +143,7 @@ class SharedModel(traitlets.HasTraits):
     )
     settings = traitlets.Dict(help="Current factor settings, natural units: {factor name: value}.")
     fits = traitlets.Dict(help="Current fit of each response; the dict is replaced on every refit, never mutated.")
-    fit = _NoneChecked(Fit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
+    fit = _NoneChecked(AnyFit, allow_none=True, help="Fit of the displayed response (None until it can be fitted).")
     errors = traitlets.Dict(help="Message of the last failed refit of each response.")
     error = traitlets.Unicode("", help="Message of the last failed refit or rejected change ('' when none).")
     level = traitlets.Float(0.95, read_only=True, help="Confidence level of every interval shown.")
@@ -585,8 +596,8 @@ class SharedModel(traitlets.HasTraits):
     def _fit_one(self, name: str, model: str | None = None):
         """Fit one response on every run of the study, then leave the excluded runs out by the kernel's update."""
         model = self.models[name] if model is None else model
-        table = self.study.fit_table(name, apply_exclusions=False)
-        result = fit(table, name, model, factors=self.factors, level=self.level)
+        # The study's fit: a split-plot study (runs with whole plots) gets the REML fit (MixedFit).
+        result = self.study.fit(name, model, level=self.level, apply_exclusions=False)
         for run, reason in self._exclusions_for(name):
             if run in result.runs:  # a run with no value for this response is not in its fit
                 result = result.exclude(run, reason)

@@ -76,6 +76,31 @@ def _check_seed(seed):
     return seed
 
 
+#: The design-table column that numbers the whole plots of a split-plot design (see ``_splitplot``).
+WHOLE_PLOT = "whole_plot"
+
+
+def _combined_whole_plots(first, second):
+    """Whole-plot numbers of *first* then *second* (None when neither stage has whole plots).
+
+    *first* keeps its numbers; *second*'s continue after the largest of them when any would repeat one. A
+    stage without whole plots gets one whole plot per run, numbered after the other stage's.
+    """
+    if WHOLE_PLOT not in first.table.columns and WHOLE_PLOT not in second.table.columns:
+        return None
+    parts, top = [], 0
+    for design in (first, second):
+        if WHOLE_PLOT in design.table.columns:
+            plots = design.table[WHOLE_PLOT].to_numpy(dtype=np.int64)
+            if parts and np.isin(plots, parts[0]).any():
+                plots = plots - plots.min() + top + 1
+        else:
+            plots = np.arange(top + 1, top + 1 + len(design), dtype=np.int64)
+        parts.append(plots)
+        top = max(top, int(plots.max(initial=0)))
+    return np.concatenate(parts)
+
+
 def structure_of_runs(coded, role, block, names):
     """Regular two-level structure of runs that are all corner or centre runs (None otherwise).
 
@@ -256,7 +281,10 @@ class Design:
     def combine(self, new: Design) -> Design:
         """The design of both stages: these runs first, in their order, then the runs of *new* in theirs.
 
-        Run ids, standard order, blocks and roles are kept as they are. The two-level structure (defining
+        Run ids, standard order, blocks and roles are kept as they are. Whole plots (the ``whole_plot`` column of
+        a split-plot stage) are kept too: this design's numbers as they are, the new stage's continued after them
+        (shifted when they would repeat one), and a stage without whole plots gets one whole plot per run (each
+        of its runs was reset on its own). The two-level structure (defining
         relation, resolution, aliases, confounding with blocks) is recomputed from all the corner runs when
         every run is a corner or centre run; otherwise the combined design has none (use
         :func:`levelwise.evaluate`).
@@ -308,6 +336,12 @@ class Design:
         out._structure = structure_of_runs(coded, parts["role"], parts["block"], self.factor_names)
         out._metadata = {"parts": [{"kind": d.kind, "runs": [int(d.table["run"].min()), int(d.table["run"].max())]}
                                    for d in (self, new)]}
+        plots = _combined_whole_plots(self, new)
+        if plots is not None:
+            out.table.insert(list(out.table.columns).index("block") + 1, WHOLE_PLOT, plots)
+            hard = sorted({*self.metadata.get("hard_to_change", ()), *new.metadata.get("hard_to_change", ())},
+                          key=self.factor_names.index)
+            out._metadata.update({"hard_to_change": hard, "whole_plots": int(len(np.unique(plots)))})
         region = getattr(new, "_region", None) or getattr(self, "_region", None)
         if region is not None:
             out._region = region

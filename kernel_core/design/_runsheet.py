@@ -1,7 +1,8 @@
 """Run sheets: the planned runs in run order, written to CSV or XLSX (read back by
 :func:`levelwise.read_run_sheet`, in :mod:`levelwise.study`).
 
-A run sheet has the columns ``run, standard_order, block, role``, one planned column per factor (natural
+A run sheet has the columns ``run, standard_order, block, role`` (and ``whole_plot`` after ``block`` for a
+split-plot design), one planned column per factor (natural
 units), one ``"<factor> (achieved)"`` column per factor for the setting actually reached (blank = as planned),
 and one blank column per response. The XLSX file has a second sheet, ``design``, with the design's metadata, so
 a filled sheet can be read back without the Design object.
@@ -68,8 +69,10 @@ def run_sheet(design: Design, responses=("y",)) -> pd.DataFrame:
 def _metadata_rows(design: Design, responses) -> list[tuple[str, str]]:
     rows = [("format", FORMAT), ("responses", json.dumps(list(responses)))]
     for f in design.factors:
-        rows.append(("factor", json.dumps({"name": f.name, "low": f.low, "high": f.high, "units": f.units,
-                                           "levels": list(f.levels)}, ensure_ascii=False, default=str)))
+        spec = {"name": f.name, "low": f.low, "high": f.high, "units": f.units, "levels": list(f.levels)}
+        if f.hard_to_change:
+            spec["hard_to_change"] = True
+        rows.append(("factor", json.dumps(spec, ensure_ascii=False, default=str)))
     for key, value in design.metadata.items():
         rows.append((key, json.dumps(value, default=str, ensure_ascii=False)))
     return rows

@@ -280,6 +280,33 @@ class MixedFit(FitFamily):
             current = current._with_exclusions(current.exclusions, model=formula_of(rows, self.factor_names))
         return current, pd.DataFrame(steps, columns=["step", "term", "stratum", "F", "p_value"])
 
+    # -- effects, and the least-squares tools that do not apply ------------------------------------------
+    @property
+    def effects(self) -> pd.Series:
+        """Effects of the two-level terms: 2 x the coded GLS coefficient (see ``levelwise.model.effects``)."""
+        from ._effects import effects
+
+        return effects(self)
+
+    def _not_for_split_plots(self, what: str, why: str):
+        raise LevelwiseError(f"{what} is not available for a split-plot (REML) fit: {why} Use the stratum tests "
+                             "of 'anova' and the 'coefficients' with their own standard errors instead.")
+
+    def half_normal(self):
+        """Refused: the effects of whole-plot and sub-plot terms have different standard errors."""
+        self._not_for_split_plots("The half-normal plot", "whole-plot and sub-plot effects have different "
+                                  "standard errors, so they do not share one half-normal line.")
+
+    def lenth(self, alpha: float = 0.05):
+        """Refused: Lenth's method assumes effects with one common standard error."""
+        self._not_for_split_plots("Lenth's method", "it assumes every effect has the same standard error, and "
+                                  "whole-plot effects have a larger one than sub-plot effects.")
+
+    def box_cox(self, *args, **kwargs):
+        """Refused: the profile likelihood of levelwise's Box-Cox is that of least squares."""
+        self._not_for_split_plots("The Box-Cox power search", "its profile likelihood is that of a least-squares "
+                                  "fit with independent runs.")
+
     # -- the cost of ignoring the whole plots -------------------------------------------------------
     @cached_property
     def ignoring_whole_plots(self) -> pd.DataFrame:

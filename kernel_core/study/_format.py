@@ -23,7 +23,7 @@ from pathlib import Path
 from .._errors import StudyConflictError, StudyFileError
 
 #: The format this version of levelwise writes.
-FORMAT_VERSION = 2
+FORMAT_VERSION = 3
 
 _MAX_INT = 2**53 - 1  # integers exact in every JSON reader; the schema caps run ids, blocks and orders here
 
@@ -86,10 +86,13 @@ def _validator():
 #: any run that fails it is then validated by jsonschema, which words the error.
 _SCHEMA_RUNS = 500
 _RUN_KEYS = frozenset(("run", "stage", "block", "standard_order", "role", "planned", "achieved", "responses"))
+_OPTIONAL_RUN_KEYS = frozenset(("whole_plot",))  # format 3: written only for runs of a split-plot stage
 
 
 def _run_ok(run) -> bool:
-    if type(run) is not dict or run.keys() != _RUN_KEYS:
+    if type(run) is not dict or run.keys() - _OPTIONAL_RUN_KEYS != _RUN_KEYS:
+        return False
+    if "whole_plot" in run and (type(run["whole_plot"]) is not int or not 1 <= run["whole_plot"] <= _MAX_INT):
         return False
     for key, low in (("run", 1), ("block", -_MAX_INT), ("standard_order", -_MAX_INT)):
         if type(run[key]) is not int or not low <= run[key] <= _MAX_INT:

@@ -28,7 +28,7 @@ from ._table_reader import (
 
 #: Column names (before any units) that describe a run rather than measure it: never "unused".
 _BOOK_NAMES = {"block": "block", "standard_order": "standard_order", "std_order": "standard_order",
-               "role": "role", "point_type": "role"}
+               "role": "role", "point_type": "role", "whole_plot": "whole_plot"}
 BOOKKEEPING = frozenset({"run", "stage", "excluded", *_BOOK_NAMES})
 
 
@@ -308,11 +308,11 @@ def import_table(study, source, mapping=None, *, sheet: str | None = None, stage
                                                              "replace it)"))
                         continue
                 changes.append((kind, run_id, key, value))
-    book = {key: column for column in columns for key in ("block", "standard_order", "role")
+    book = {key: column for column in columns for key in ("block", "standard_order", "role", "whole_plot")
             if _BOOK_NAMES.get(split_header(column)[0].lower()) == key}
 
     def bookkeeping(row) -> dict:
-        """The block, standard order and role of a new run, from the file's columns of those names."""
+        """The block, standard order, role and whole plot of a new run, from the file's columns of those names."""
         out = {}
         for key, column in book.items():
             cell = frame.at[row, column]

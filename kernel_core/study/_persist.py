@@ -225,10 +225,13 @@ class StudyFile:
         factors = []
         for i, item in enumerate(data["factors"]):
             try:
+                hard = item.get("hard_to_change", False)
                 if "levels" in item:
-                    factors.append(Factor(item["name"], units=item["units"], levels=tuple(item["levels"])))
+                    factors.append(Factor(item["name"], units=item["units"], levels=tuple(item["levels"]),
+                                          hard_to_change=hard))
                 else:
-                    factors.append(Factor(item["name"], item["low"], item["high"], item["units"]))
+                    factors.append(Factor(item["name"], item["low"], item["high"], item["units"],
+                                          hard_to_change=hard))
                 _name(item["name"], "factor name")
                 _text(item["units"], "units", kind="units")
             except LevelwiseError as exc:
@@ -303,6 +306,8 @@ class StudyFile:
                 "standard_order": int(run["standard_order"]), "role": run["role"],
                 **settings,
             }
+            if "whole_plot" in run:
+                study._runs[run_id]["whole_plot"] = int(run["whole_plot"])
         for i, item in enumerate(data["exclusions"]):
             item = {**item, "run": int(item["run"])}
             try:

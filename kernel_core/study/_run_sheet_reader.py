@@ -31,7 +31,8 @@ class FilledRunSheet:
     Attributes
     ----------
     table : pandas.DataFrame
-        ``run``, ``standard_order``, ``block``, ``role``, the planned settings, the achieved settings
+        ``run``, ``standard_order``, ``block``, ``whole_plot`` (a split-plot sheet only), ``role``, the planned
+        settings, the achieved settings
         (``"<factor> (achieved)"``, NaN or None where none was entered) and the responses, in sheet order.
     factors : tuple of Factor
     responses : tuple of str
@@ -63,10 +64,13 @@ def _meta(raw: bytes, name: str):
         try:
             if field == "factor":
                 spec = json.loads(value)
+                hard = bool(spec.get("hard_to_change", False))
                 if spec.get("levels"):
-                    factors.append(Factor(spec["name"], levels=spec["levels"], units=spec.get("units", "")))
+                    factors.append(Factor(spec["name"], levels=spec["levels"], units=spec.get("units", ""),
+                                          hard_to_change=hard))
                 else:
-                    factors.append(Factor(spec["name"], spec["low"], spec["high"], units=spec.get("units", "")))
+                    factors.append(Factor(spec["name"], spec["low"], spec["high"], units=spec.get("units", ""),
+                                          hard_to_change=hard))
             elif field == "responses":
                 responses = json.loads(value)
         except (ValueError, TypeError, KeyError) as exc:
@@ -161,7 +165,7 @@ def read_run_sheet(source, design=None, responses=None) -> FilledRunSheet:
         warnings.warn(item.message, item.category, stacklevel=2)
     planned, achieved, values = study.planned(), study.achieved(), study.data(apply_exclusions=False)
     _warn_outside(study, planned, achieved)
-    book = planned[["run", "standard_order", "block", "role"]]
+    book = planned[["run", "standard_order", "block", *(["whole_plot"] if "whole_plot" in planned else []), "role"]]
     table = pd.concat([book, planned[names], achieved[names].add_suffix(ACHIEVED), values[responses]], axis=1)
     data = pd.concat([book, values[names], values[responses]], axis=1)
     missing_responses = {r: [int(i) for i in values.index[values[r].isna()]] for r in responses}

@@ -247,7 +247,9 @@ class Study(StudyRecords, StudyTables, StudyFile):
             Unique stage name, e.g. ``"screen"``, ``"fold-over"``, ``"surface"``.
         design : Design or pandas.DataFrame
             A :class:`~levelwise.Design` or a table with one column per study factor (natural
-            units) and optionally ``run``, ``block``, ``standard_order`` and ``role``.
+            units) and optionally ``run``, ``block``, ``standard_order``, ``role`` and ``whole_plot``
+            (a split-plot stage: each run's whole plot; numbers that repeat the study's whole plots are
+            continued after them, so whole plots are unique within the study).
         renumber : bool, default False
             Number the stage's runs after the study's, whatever run ids the design carries.
 
@@ -300,6 +302,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
         roles = [""] * n if role_column is None else [
             _OLD_ROLES.get(text, text) for text in (_text(str(v), "role") for v in table[role_column])
         ]
+        plots, plot_note = self._stage_whole_plots(table, n, settings)
         ids = self._stage_ids(table, n, renumber)
         names = self.factor_names
         for i, run_id in enumerate(ids):
@@ -313,10 +316,51 @@ class Study(StudyRecords, StudyTables, StudyFile):
                 "achieved": {},
                 "responses": {},
             }
+            if plots is not None:
+                self._runs[run_id]["whole_plot"] = plots[i]
         self._stages.append({"name": name, "description": description, "created": _values.now()})
         span = f"runs {min(ids)}..{max(ids)}" if n else "no runs"
-        self._log("add_stage", f"stage {name!r} added with {n} run(s) ({span})", reason)
+        self._log("add_stage", f"stage {name!r} added with {n} run(s) ({span}){plot_note}", reason)
         return ids
+
+    def _stage_whole_plots(self, table, n: int, settings) -> tuple[list[int] | None, str]:
+        """Whole plots of a new stage (its ``whole_plot`` column), continued after the study's when they repeat.
+
+        Every run needs a whole plot (an integer >= 1), and a hard-to-change factor must be planned at one
+        setting within each whole plot. Returns the whole plots (None without the column) and a note for the log.
+        """
+        if "whole_plot" not in table or n == 0:
+            return None, ""
+        values = pd.to_numeric(table["whole_plot"], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        bad = ~np.isfinite(values) | (values != np.round(values)) | (values < 1) | (values > 2**53 - 1)
+        if bad.any():
+            row = int(np.flatnonzero(bad)[0])
+            raw = table["whole_plot"].iloc[row]
+            raw = raw.item() if isinstance(raw, np.generic) else raw
+            raise LevelwiseError(
+                f"The 'whole_plot' of row {row + 1} of the design must be a whole-plot number (an integer >= 1; "
+                f"every run of a split-plot stage needs one). Got {describe(raw)} instead."
+            )
+        plots = values.astype(np.int64)
+        for f in self._factors:
+            if not getattr(f, "hard_to_change", False):
+                continue
+            column = pd.Series(list(settings[f.name]))
+            changes = column.groupby(plots).nunique()
+            if (changes > 1).any():
+                plot = int(changes.index[(changes > 1).to_numpy()][0])
+                raise LevelwiseError(
+                    f"The hard-to-change factor {f.name!r} is planned at more than one setting in whole plot "
+                    f"{plot} of the design; it must stay at one setting within each whole plot."
+                )
+        used = {run["whole_plot"] for run in self._runs.values() if "whole_plot" in run}
+        note = f", whole plots {int(plots.min())}..{int(plots.max())}"
+        if used & set(plots.tolist()):
+            shift = max(used) + 1 - int(plots.min())
+            plots = plots + shift
+            note = (f", whole plots {int(plots.min())}..{int(plots.max())} (the design's numbers continued after "
+                    "the study's)")
+        return [int(p) for p in plots], note
 
     def _stage_ids(self, table, n: int, renumber: bool) -> list[int]:
         """Run ids of a new stage: the design's own when they are new to the study, else refused or renumbered."""

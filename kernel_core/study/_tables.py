@@ -25,6 +25,7 @@ class StudyTables:
             "run": np.array([r["run"] for r in runs], dtype=np.int64),
             "stage": pd.array([r["stage"] for r in runs], dtype=object),
             "block": np.array([r["block"] for r in runs], dtype=np.int64),
+            **self._whole_plot_column(runs),
             "standard_order": np.array([r["standard_order"] for r in runs], dtype=np.int64),
             "role": pd.array([r["role"] for r in runs], dtype=object),
         }
@@ -38,6 +39,29 @@ class StudyTables:
         for name in self._responses:
             columns[name] = np.array([r["responses"].get(name, np.nan) for r in runs], dtype=float)
         return pd.DataFrame(columns, index=index)
+
+    @staticmethod
+    def _whole_plot_column(runs) -> dict:
+        """``{"whole_plot": ...}`` when some run has a whole plot (Int64; missing where a run has none), else {}."""
+        if not any("whole_plot" in r for r in runs):
+            return {}
+        return {"whole_plot": pd.array([r.get("whole_plot") for r in runs], dtype="Int64")}
+
+    @property
+    def has_whole_plots(self) -> bool:
+        """True when some run of the study belongs to a whole plot (a split-plot stage)."""
+        return any("whole_plot" in r for r in self._runs.values())
+
+    @property
+    def hard_to_change(self) -> list[str]:
+        """Names of the factors declared hard to change (reset only between whole plots)."""
+        return [f.name for f in self._factors if getattr(f, "hard_to_change", False)]
+
+    def whole_plots(self) -> pd.Series:
+        """Each run's whole plot (index = run id; missing where a run was reset on its own), a new Series."""
+        runs = list(self._runs.values())
+        return pd.Series(pd.array([r.get("whole_plot") for r in runs], dtype="Int64"),
+                         index=pd.Index([r["run"] for r in runs], dtype="int64"), name="whole_plot")
 
     def data(self, *, apply_exclusions: bool = True) -> pd.DataFrame:
         """The table for fitting: one row per run (index = run id), settings in natural units.
@@ -87,7 +111,9 @@ class StudyTables:
 
     def planned(self) -> pd.DataFrame:
         """Planned settings: the run sheet with one column per factor (index = run id)."""
-        return self._frame("planned")[["run", "stage", "block", "standard_order", "role", *self.factor_names]]
+        frame = self._frame("planned")
+        book = ["run", "stage", "block", *(["whole_plot"] if "whole_plot" in frame else []), "standard_order", "role"]
+        return frame[[*book, *self.factor_names]]
 
     def achieved(self) -> pd.DataFrame:
         """Achieved settings as recorded (NaN where none was), one column per factor (index = run id)."""
@@ -103,8 +129,15 @@ class StudyTables:
         runs excluded from every response are dropped, and with *response* those excluded from that
         response only as well (the shared model of the widgets fits every run and leaves the excluded
         ones out by the kernel's update instead, so that the fit keeps their reasons).
+
+        A study with whole plots (a split-plot stage) adds a ``whole_plot`` column: each run's whole plot,
+        and ``"run <id>"`` for a run of a stage without whole plots (it was reset on its own).
         """
         frame = self._frame("planned")
+        if "whole_plot" in frame:  # a run reset on its own is a whole plot of its own
+            plots = frame["whole_plot"]
+            frame["whole_plot"] = pd.array([f"run {run}" if pd.isna(p) else int(p)
+                                            for run, p in zip(frame.index, plots)], dtype=object)
         achieved = self._frame("achieved")
         for factor in self._factors:
             if not _is_categorical(factor) and achieved[factor.name].notna().any():
@@ -117,16 +150,29 @@ class StudyTables:
                 if item["response"] is None or (response is not None and item["response"] == response)}
         return frame.drop(index=sorted(drop))
 
-    def fit(self, response: str, model: str | None = None, *, level: float = 0.95):
+    def fit(self, response: str, model: str | None = None, *, level: float = 0.95, whole_plot="auto",
+            apply_exclusions: bool = True):
         """Fit *response* with its model (or *model*) on :meth:`fit_table`, coded by the study factors.
 
         The runs are named by run id; achieved settings are used where recorded (see
         :attr:`Fit.setting_deviations`).
 
+        Parameters
+        ----------
+        whole_plot : "auto" or None
+            ``"auto"``: a study with whole plots (a split-plot stage) is fitted by REML with a random
+            whole-plot intercept (:class:`~levelwise.model.MixedFit`); if that model cannot be estimated
+            (too few whole plots), the least-squares fit is returned with the warning below. ``None``:
+            least squares, ignoring the whole plots (with the warning below).
+        apply_exclusions : bool, default True
+            False fits every run (the caller leaves runs out with ``Fit.exclude``, as the widgets do).
+
         Warns
         -----
         LevelwiseWarning
             Runs (not excluded) with no value of *response* yet; the warning names their run ids.
+            A study with whole plots analysed without them: the warning gives each standard error with
+            and without the whole plots.
         """
         from .. import fit as fit_function
 
@@ -137,16 +183,30 @@ class StudyTables:
                     f"The response {response!r} has no model yet; call set_model({response!r}, ...) or pass 'model'."
                 )
             model = self._models[response]
-        table = self.fit_table(response)
+        if whole_plot not in ("auto", None):
+            raise LevelwiseError(f"The 'whole_plot' parameter of Study.fit must be 'auto' (fit the study's whole "
+                                 f"plots) or None (ignore them). Got {whole_plot!r} instead.")
+        table = self.fit_table(response, apply_exclusions=apply_exclusions)
         missing = table.index[table[response].isna()].tolist()
-        if missing and len(missing) < len(table):
+        if missing and len(missing) < len(table) and apply_exclusions:
             shown = missing if len(missing) <= 12 else [*missing[:12], "..."]
             warnings.warn(
                 f"The response {response!r} has no value for run(s) {shown}; the fit leaves them out.",
                 LevelwiseWarning, stacklevel=2,
             )
         model = checked_model(model, self.factor_names)
-        return fit_function(table, response, model, factors=list(self._factors), level=level)
+        options = dict(factors=list(self._factors), level=level)
+        if whole_plot == "auto" and "whole_plot" in table:
+            try:
+                return fit_function(table, response, model, whole_plot="whole_plot", **options)
+            except LevelwiseError:
+                pass  # least squares below; its warning says why the split-plot fit could not be made
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            result = fit_function(table, response, model, **options)
+        for item in caught:
+            warnings.warn(item.message, item.category, stacklevel=2)
+        return result
 
     def fits(self, *, level: float = 0.95) -> dict:
         """A :class:`~levelwise.Fit` for every response that has a model."""

@@ -119,8 +119,12 @@ def _plain(value):
 
 def _factor_entry(f: Factor) -> dict:
     if _is_categorical(f):
-        return {"name": f.name, "levels": list(f.levels), "units": f.units}
-    return {"name": f.name, "low": f.low, "high": f.high, "units": f.units}
+        entry = {"name": f.name, "levels": list(f.levels), "units": f.units}
+    else:
+        entry = {"name": f.name, "low": f.low, "high": f.high, "units": f.units}
+    if getattr(f, "hard_to_change", False):  # format 3, written only when true
+        entry["hard_to_change"] = True
+    return entry
 
 
 def _is_categorical(factor) -> bool:
