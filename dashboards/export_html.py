@@ -32,7 +32,7 @@ import numpy as np
 from levelwise import Study
 
 from .study_source import is_invented, open_study, shared_model, title_of
-from .summary import CAUTION, fingerprint, summary_html
+from .summary import CAUTION, error_numbers, fingerprint, summary_html
 
 
 def _fits_of(shared) -> dict:
@@ -70,8 +70,8 @@ def payload(study: Study) -> dict:
             "name": name,
             "units": source.units.get(name, ""),
             "terms": list(fit.terms),
-            "s": _finite_or_none(fit.s),
-            "df": int(fit.df_resid),
+            "s": _finite_or_none(error_numbers(fit)[0]),
+            "df": error_numbers(fit)[1],
             **fit.engine.payload(),  # the one prediction engine: the page evaluates exactly this
         })
     runs = np.column_stack([_run_column(source.data[f.name], f) for f in source.factors])

@@ -47,9 +47,38 @@ def fingerprint(data, models: dict, exclusions: dict) -> str:
     return digest.hexdigest()[:16]
 
 
+def is_split_plot(fit) -> bool:
+    """True for a split-plot (REML) fit, whose error has a whole-plot and a residual part."""
+    return hasattr(fit, "variance_components") and hasattr(fit, "df_whole_plot")
+
+
+def error_numbers(fit) -> tuple[float, int]:
+    """(s, df) of a fit for the pages: least squares: s and its df; split-plot: the SD of one new run (both
+    variance components) and the whole-plot stratum df its intervals use."""
+    if is_split_plot(fit):
+        return float(np.sqrt(fit.variance_components.sum())), int(fit.df_whole_plot)
+    return float(fit.s), int(fit.df_resid)
+
+
+def split_plot_words(fit, units: str = "") -> str:
+    """A split-plot fit's error in plain words: the whole-plot and run-to-run scatter, the tests' strata."""
+    unit = f" {units}" if units else ""
+    comp = fit.variance_components
+    zero = " (estimated at zero)" if "whole_plot" in fit.zero_components else ""
+    return (
+        f"Split-plot analysis (REML), because some factors were reset only between whole plots: whole plots "
+        f"scatter with a standard deviation of {_num(float(np.sqrt(comp['whole_plot'])), 3)}{unit}{zero} and runs "
+        f"within a whole plot with {_num(float(np.sqrt(comp['residual'])), 3)}{unit}; a new run carries both. "
+        f"Terms of the hard-to-change factors are judged on {fit.df_whole_plot} whole-plot degrees of freedom, "
+        f"the others on {fit.df_residual}."
+    )
+
+
 def quality_words(fit, units: str = "") -> str:
     """Fit quality in plain words: share of variation explained, typical scatter of a new run."""
     unit = f" {units}" if units else ""
+    if is_split_plot(fit):
+        return split_plot_words(fit, units)
     if fit.df_resid <= 0:
         return (
             f"The model has as many terms as runs ({fit.n}), so there is nothing left to judge its error by: "
@@ -99,7 +128,8 @@ def summary_html(shared, fits: dict) -> str:
         (f"<li><b>{html.escape(f.name)}</b>: tested at the levels "
          f"{html.escape(', '.join(str(level) for level in f.levels))}</li>") if getattr(f, "levels", ()) else
         f"<li><b>{html.escape(f.name)}</b>: tested from {_num(f.low)} to {_num(f.high)}"
-        f"{' ' + html.escape(f.units) if f.units else ''}</li>"
+        f"{' ' + html.escape(f.units) if f.units else ''}"
+        f"{' (hard to change: held over whole plots)' if getattr(f, 'hard_to_change', False) else ''}</li>"
         for f in source.factors
     )
     n_runs = len(source.data)
@@ -143,6 +173,6 @@ def fit_numbers(fit) -> dict:
     return {
         "terms": list(fit.terms),
         "beta": [float(b) for b in np.asarray(fit.beta)],
-        "s": float(fit.s),
+        "s": error_numbers(fit)[0],
         "n": int(fit.n),
     }

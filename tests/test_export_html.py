@@ -163,3 +163,40 @@ def test_export_of_a_saturated_fit_says_not_available(tmp_path):
     assert data["responses"][0]["s"] is None and data["responses"][0]["df"] == 0
     assert data["responses"][0]["c"] is None  # no interval scale without residual degrees of freedom
     assert "nothing left to judge its error by" in text
+
+
+def test_export_of_a_split_plot_study_computes_like_the_mixed_fit(tmp_path, browser):
+    """The invented split-plot demo: the page evaluates the REML fit's engine (both variance components in the
+    prediction interval) and agrees with MixedFit.predict to 1e-9."""
+    from levelwise import demo
+    from levelwise.model import MixedFit
+
+    source = demo.split_plot_study()
+    path = write_export(source, tmp_path / "split.html")
+    text = path.read_text(encoding="utf-8")
+    reference = source.fit("Impact")
+    assert isinstance(reference, MixedFit)
+    data = embedded_data(text)
+    model = data["responses"][0]
+    expected = json.loads(json.dumps(reference.engine.payload()))
+    for key, value in expected.items():
+        assert model[key] == value, key
+    # The new-run variance the page adds is the sum of the REML components (not s^2 of least squares).
+    assert model["extra"] == pytest.approx(float(reference.variance_components.sum()), rel=1e-12)
+    assert model["df"] == reference.df_whole_plot
+    assert "Split-plot analysis (REML)" in text and "hard to change: held over whole plots" in text
+    page = browser.new_page()
+    errors = []
+    page.on("pageerror", lambda exc: errors.append(str(exc)))
+    page.goto(path.as_uri())
+    numbers = page.locator("#lw-numbers")
+    first = page.locator("input.lw-range").first
+    first.focus()
+    for _ in range(5):
+        first.press("ArrowRight")
+    after = json.loads(numbers.get_attribute("data-numbers"))
+    expected = reference.predict(after["settings"]).iloc[0]
+    for key in ("mean", "ci_low", "ci_high", "pi_low", "pi_high", "leverage"):
+        assert after["responses"]["Impact"][key] == pytest.approx(expected[key], rel=1e-9, abs=1e-9)
+    assert not errors
+    page.close()
