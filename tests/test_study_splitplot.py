@@ -143,3 +143,15 @@ def test_import_of_a_table_with_whole_plots_adds_them(tmp_path):
         warnings.simplefilter("error")  # whole_plot is bookkeeping, never "not used"
         lw.import_table(study, table, stage="imported")
     assert study.whole_plots().tolist() == table["whole_plot"].tolist()
+
+
+def test_to_code_rebuilds_the_split_plot_fit(tmp_path):
+    study = split_study()
+    study.exclude(7, "panel dropped (invented)")
+    path = study.save(tmp_path / "split.json")
+    namespace: dict = {}
+    exec(compile(study.to_code(path), "<to_code>", "exec"), namespace)  # noqa: S102 - the point of the test
+    rebuilt = namespace["fits"]["Impact"]
+    assert isinstance(rebuilt, MixedFit) and namespace["factors"][0].hard_to_change
+    np.testing.assert_allclose(rebuilt.beta, study.fit("Impact").beta, rtol=1e-10)
+    assert 7 not in list(rebuilt.runs)

@@ -349,15 +349,20 @@ class StudyFile:
             "factors = [",
         ]
         for f in self._factors:
+            hard = ", hard_to_change=True" if getattr(f, "hard_to_change", False) else ""
             if _is_categorical(f):
-                lines.append(f"    Factor({f.name!r}, units={f.units!r}, levels={list(f.levels)!r}),")
+                lines.append(f"    Factor({f.name!r}, units={f.units!r}, levels={list(f.levels)!r}{hard}),")
             else:
-                lines.append(f"    Factor({f.name!r}, {f.low!r}, {f.high!r}, units={f.units!r}),")
+                lines.append(f"    Factor({f.name!r}, {f.low!r}, {f.high!r}, units={f.units!r}{hard}),")
         lines += [
             "]",
             "# Settings as run: achieved where recorded, planned otherwise. Index = run id.",
             "data = study.data(apply_exclusions=False)",
         ]
+        split = ""
+        if self.has_whole_plots:  # the split-plot analysis (REML); a run reset on its own is its own whole plot
+            lines.append('data["whole_plot"] = study.fit_table(apply_exclusions=False)["whole_plot"]')
+            split = ', whole_plot="whole_plot"'
         for item in self._exclusions:
             comment = f"  # {item['reason']!r}, {item['when']}".replace("\n", " ").replace("\r", " ")
             if item["response"] is None:
@@ -366,6 +371,6 @@ class StudyFile:
                 lines.append(f"data.loc[{item['run']}, {item['response']!r}] = float('nan'){comment}")
         lines.append("fits = {}")
         for response, model in self._models.items():
-            lines.append(f"fits[{response!r}] = fit(data, {response!r}, {model!r}, factors=factors)")
+            lines.append(f"fits[{response!r}] = fit(data, {response!r}, {model!r}, factors=factors{split})")
         return "\n".join(lines) + "\n"
 
