@@ -112,3 +112,27 @@ def test_effects_view_shows_the_stratum_tests_and_says_why_there_is_no_half_norm
     assert "whole-plot" in view.anova_table.value and "sub-plot" in view.anova_table.value
     assert view.status.value == ""
     view.close()
+
+
+def test_the_published_page_and_the_workbench_open_a_split_plot_study():
+    import html
+    import json
+    import re
+    from pathlib import Path
+
+    from levelwise.dashboards import explore, present
+
+    path = str(Path(__file__).resolve().parents[1] / "dashboards" / "data" / "demo_split_plot.json")  # invented
+    page = present.build(path)
+    assert isinstance(page.shared.fit, MixedFit) and page.shared.read_only
+    readout = page.views[0]
+    assert "Split-plot analysis (REML)" in readout.summary.value
+    assert "Oven</b>: tested from 170 to 210 °C (hard to change: held over whole plots)" in readout.summary.value
+    fits = json.loads(html.unescape(re.search(r'data-fits="([^"]*)"', readout.fingerprint.value).group(1)))
+    reference = reference_fit()
+    assert fits["Impact"]["beta"] == pytest.approx(list(reference.beta), rel=1e-12)
+    assert fits["Impact"]["s"] == pytest.approx(float(np.sqrt(reference.variance_components.sum())), rel=1e-12)
+    assert all(getattr(getattr(v, "status", None), "value", "") == "" for v in page.views)
+    bench = explore.build(path)
+    assert isinstance(bench.shared.fit, MixedFit)
+    assert all(getattr(getattr(v, "status", None), "value", "") == "" for v in bench.views)
