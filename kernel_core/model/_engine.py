@@ -137,6 +137,17 @@ class PredictionEngine(SettingsCheck):
             for slot, i in enumerate(np.flatnonzero(row)):
                 picks[slot, j] = 1 + (row[i] - 1) * k + i
         self._picks, self._top, self._inv_scale = picks, top, 1.0 / self.scale
+        # A model of total degree <= 2 in continuous factors (main effects, two-factor interactions,
+        # full second order): every column is w_a w_b with w = [1, coded], i.e. one entry of the
+        # outer product w w'. Many settings then need no gathers: one broadcast product builds all
+        # (k+1)^2 entries and one matrix product with [F | beta] mapped onto them gives x F and x b.
+        self._outer = None
+        if not self.contrasts and p and E.sum(axis=1).max(initial=0) <= 2:
+            to_outer = np.zeros((p, (k + 1) ** 2))
+            for j, row in enumerate(E):
+                pair = [1 + i for i in np.flatnonzero(row) for _ in range(row[i])] + [0, 0]
+                to_outer[j, pair[0] * (k + 1) + pair[1]] = 1.0
+            self._outer = np.ascontiguousarray((to_outer.T @ self._fb).T)  # (p+1, (k+1)^2)
 
     def rows(self, natural: np.ndarray) -> np.ndarray:
         """Model rows (m, p) for an (m, k) array of natural settings (level indices for categorical)."""
@@ -174,6 +185,14 @@ class PredictionEngine(SettingsCheck):
                 part = slice(start, start + _BLOCK)
                 mean[part], h[part] = self._mean_and_leverage_columns(natural_t[:, part])
             return mean, h
+        if self._outer is not None:
+            w = np.empty((self.k + 1, m))
+            w[0] = 1.0
+            np.subtract(natural_t, self.center[:, None], out=w[1:])
+            w[1:] *= self._inv_scale[:, None]
+            both = self._outer @ (w[:, None, :] * w[None, :, :]).reshape(-1, m)
+            xf = both[:-1]
+            return both[-1], np.einsum("ij,ij->j", xf, xf)
         coded = natural_t - self.center[:, None]
         coded *= self._inv_scale[:, None]
         m, picks = coded.shape[1], self._picks
