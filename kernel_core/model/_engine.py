@@ -278,7 +278,7 @@ class PredictionEngine(SettingsCheck):
         natural_t = self.columns(settings)
         mean, h = self._mean_and_leverage_columns(natural_t)
         c = self._scale(level)
-        # One (6, m) block written in place becomes the frame's float columns without a copy.
+        # One (6, m) block written in place; its rows become the frame's columns.
         block = np.empty((6, len(mean)))
         ci, pi = block[1], block[3]
         np.sqrt(h, out=ci)
@@ -291,9 +291,9 @@ class PredictionEngine(SettingsCheck):
         np.subtract(mean, ci, out=ci)
         np.add(mean, pi, out=block[4])
         np.subtract(mean, pi, out=pi)
-        frame = pd.DataFrame(block.T, columns=_PREDICTION_COLUMNS, copy=False)
-        frame["extrapolated"] = self._extrapolated_columns(natural_t, h)
-        return frame
+        columns = dict(zip(_PREDICTION_COLUMNS, block))
+        columns["extrapolated"] = self._extrapolated_columns(natural_t, h)
+        return pd.DataFrame(columns, copy=False)
 
     def point(self, settings, level=None, natural=None, powers=None) -> dict:
         """One setting -> ``mean``, ``ci_low/high``, ``pi_low/high``, ``leverage``, ``extrapolated``."""
