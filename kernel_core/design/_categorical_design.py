@@ -38,6 +38,7 @@ from scipy import stats
 from .._errors import LevelwiseError, describe
 from ..model import parse_model, term_name
 from ._design import Design, _check_count, _check_seed
+from ._exchange import design_score, exchange_runs
 from ._factors import as_factors
 
 
@@ -195,63 +196,23 @@ def coordinate_exchange(factors, model, runs, criterion="D", constraints=None, f
         for j in np.flatnonzero(categorical):
             new[:, j] = rng.choice(grids[j], size=runs)
         points = np.vstack([fixed, new])
-        F = cols.values(points)
-        M = F.T @ F
-        ridge = 1e-6 * max(1.0, np.trace(M) / p) if np.linalg.matrix_rank(M) < p else 0.0
-        A = np.linalg.inv(M + ridge * np.eye(p))
-        phi = float(np.trace(A @ W))
-        for _ in range(40):
-            changed = False
-            for i in range(n_fixed, n):
-                for j in range(k):
-                    g = grids[j]
-                    if categorical[j] or not len(G):
-                        values = g
-                    else:
-                        lo, hi = _interval(G, h, points[i], j)
-                        values = np.unique(np.concatenate([g[(g >= lo - 1e-12) & (g <= hi + 1e-12)], [lo, hi]]))
-                    values = values[np.abs(values - points[i, j]) > 1e-12]
-                    if not len(values):
-                        continue
-                    trial = np.repeat(points[i][None, :], len(values), axis=0)
-                    trial[:, j] = values
-                    Y = cols.values(trial)
-                    x = F[i]
-                    Ax = A @ x
-                    xAx = x @ Ax
-                    AY = Y @ A
-                    yAy = np.einsum("ij,ij->i", AY, Y)
-                    yAx = AY @ x
-                    if criterion == "D":
-                        gain = (1 + yAy) * (1 - xAx) + yAx**2
-                        c = int(np.argmax(gain))
-                        accept = gain[c] > 1 + 1e-10
-                    else:
-                        d_y = 1 + yAy
-                        phi1 = phi - np.einsum("ij,ij->i", AY @ W, AY) / d_y
-                        A1x = Ax[None, :] - AY * (yAx / d_y)[:, None]
-                        denom = 1 - (xAx - yAx**2 / d_y)
-                        with np.errstate(divide="ignore", invalid="ignore"):
-                            phi2 = np.where(denom > 1e-12, phi1 + np.einsum("ij,ij->i", A1x @ W, A1x) / denom,
-                                            np.inf)
-                        c = int(np.argmin(phi2))
-                        accept = phi2[c] < phi * (1 - 1e-10)
-                    if accept:
-                        points[i, j] = values[c]
-                        y = Y[c]
-                        M += np.outer(y, y) - np.outer(x, x)
-                        F[i] = y
-                        if ridge and np.linalg.matrix_rank(M) == p:
-                            ridge = 0.0
-                        A = np.linalg.inv(M + ridge * np.eye(p))
-                        phi = float(np.trace(A @ W))
-                        changed = True
-            if not changed:
-                break
-        sign, logdet = np.linalg.slogdet(F.T @ F)
-        logdet = logdet if sign > 0 else -math.inf
-        apv = float(np.trace(np.linalg.inv(F.T @ F) @ W)) if sign > 0 else math.inf
-        score = -logdet if criterion == "D" else apv
+
+        def candidates(i, j, point):
+            g = grids[j]
+            if categorical[j] or not len(G):
+                values = g
+            else:
+                lo, hi = _interval(G, h, point, j)
+                values = np.unique(np.concatenate([g[(g >= lo - 1e-12) & (g <= hi + 1e-12)], [lo, hi]]))
+            values = values[np.abs(values - point[j]) > 1e-12]
+            if not len(values):
+                return None
+            trial = np.repeat(point[None, :], len(values), axis=0)
+            trial[:, j] = values
+            return trial, cols.values(trial)
+
+        points, F = exchange_runs(points, cols.values(points), n_fixed, candidates, W, criterion)
+        score, logdet, apv = design_score(F, W, criterion)
         if best is None or score < best[0]:
             best = (score, points.copy(), logdet, apv)
         if progress is not None and progress((start + 1) / starts, f"start {start + 1} of {starts}") is False:

@@ -19,12 +19,12 @@ import numpy as np
 
 from .._errors import LevelwiseError, describe
 from ._design import _check_count, _check_seed
+from ._exchange import design_score, exchange_runs
 from ._factors import Factor
 from ._mixture import mixture_design
 from ._mixture_region import Component, Mixture, as_mixture
 from ._optimal import _last_of
 
-MAX_PASSES = 40
 GRID = 11
 
 
@@ -70,27 +70,6 @@ def _fixed_variables(fixed_runs, mixture, process):
             raise LevelwiseError(f"The 'fixed_runs' column {f.name!r} must hold numbers.")
         cols.append(f.to_coded(values)[:, None])
     return np.hstack(cols), _last_of(table, "run", len(table)), _last_of(table, "block", 1)
-
-
-def _gain(A, W, phi, x, Y, criterion):
-    """Best candidate row of *Y* to replace model row *x*: (index, accept)."""
-    Ax = A @ x
-    xAx = x @ Ax
-    AY = Y @ A
-    yAy = np.einsum("ij,ij->i", AY, Y)
-    yAx = AY @ x
-    if criterion == "D":
-        gain = (1 + yAy) * (1 - xAx) + yAx**2
-        c = int(np.argmax(gain))
-        return c, gain[c] > 1 + 1e-10
-    d_y = 1 + yAy
-    phi1 = phi - np.einsum("ij,ij->i", AY @ W, AY) / d_y
-    A1x = Ax[None, :] - AY * (yAx / d_y)[:, None]
-    denom = 1 - (xAx - yAx**2 / d_y)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        phi2 = np.where(denom > 1e-12, phi1 + np.einsum("ij,ij->i", A1x @ W, A1x) / denom, np.inf)
-    c = int(np.argmin(phi2))
-    return c, phi2[c] < phi * (1 - 1e-10)
 
 
 def _line_interval(G, h, a, b):
@@ -220,37 +199,13 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     start = 0
     for start in range(starts):
         points = np.vstack([fixed, sample(runs, rng)])
-        F = monomials(points, E)
-        M = F.T @ F
-        ridge = 0.0 if np.linalg.matrix_rank(M) == p else 1e-6 * max(1.0, np.trace(M) / p)
-        A = np.linalg.inv(M + ridge * np.eye(p))
-        phi = float(np.trace(A @ W)) if W is not None else 0.0
-        for _ in range(MAX_PASSES):
-            changed = False
-            for i in range(n_fixed, n_fixed + runs):
-                for j in range(q + k):
-                    cand = _candidates(G, h, points[i], j, q, k)
-                    if not len(cand):
-                        continue
-                    Y = monomials(cand, E)
-                    c, accept = _gain(A, W, phi, F[i], Y, criterion)
-                    if accept:
-                        y = Y[c]
-                        M += np.outer(y, y) - np.outer(F[i], F[i])
-                        F[i] = y
-                        points[i] = cand[c]
-                        if ridge and np.linalg.matrix_rank(M) == p:
-                            ridge = 0.0
-                        A = np.linalg.inv(M + ridge * np.eye(p))
-                        phi = float(np.trace(A @ W)) if W is not None else 0.0
-                        changed = True
-            if not changed:
-                break
-        F = monomials(points, E)
-        sign, logdet = np.linalg.slogdet(F.T @ F)
-        logdet = logdet if sign > 0 else -math.inf
-        apv = float(np.trace(np.linalg.inv(F.T @ F) @ W)) if sign > 0 and W is not None else math.inf
-        score = -logdet if criterion == "D" else apv
+
+        def candidates(i, j, point):
+            cand = _candidates(G, h, point, j, q, k)
+            return (cand, monomials(cand, E)) if len(cand) else None
+
+        points, F = exchange_runs(points, monomials(points, E), n_fixed, candidates, W, criterion)
+        score, logdet, _ = design_score(monomials(points, E), W, criterion)
         if best is None or score < best[0]:
             best = (score, points.copy(), logdet)
         if progress is not None and progress((start + 1) / starts, f"start {start + 1} of {starts}") is False:

@@ -23,11 +23,11 @@ import pandas as pd
 from .._errors import LevelwiseError, describe
 from .._progress import Reporter
 from ._design import Design, _check_count, _check_seed
+from ._exchange import design_score, exchange_runs
 from ._factors import as_factors
 from ._region import check_region, moment_matrix, parse_constraints, sample_region
 
 #: Passes over the runs per start, at most (keeps every search bounded).
-MAX_PASSES = 40
 
 
 # -- coordinate exchange ----------------------------------------------------------------------------------------
@@ -88,7 +88,6 @@ def _exchange(state, starts, G, h, E, runs, rng, grids, discrete, fixed, model_r
     """The random starts, each improved by coordinate exchange; the best so far is kept in *state*."""
     p, k = E.shape
     n_fixed = len(fixed)
-    n = runs + n_fixed
     for start in range(starts):
         new = sample_region(G, h, k, runs, rng)
         # Start on the candidate levels where that stays feasible, so untouched coordinates are clean levels.
@@ -98,70 +97,25 @@ def _exchange(state, starts, G, h, E, runs, rng, grids, discrete, fixed, model_r
         new[feasible] = snapped[feasible]
         new[:, discrete] = np.where(new[:, discrete] < 0, -1.0, 1.0)
         points = np.vstack([fixed, new])
-        F = model_rows(points)
-        M = F.T @ F
-        ridge = 0.0
-        if np.linalg.matrix_rank(M) < p:
-            ridge = 1e-6 * max(1.0, np.trace(M) / p)
-        A = np.linalg.inv(M + ridge * np.eye(p))
-        phi = float(np.trace(A @ W))
-        for _ in range(MAX_PASSES):
-            changed = False
-            for i in range(n_fixed, n):
-                for j in range(k):
-                    lo, hi = _interval(G, h, points[i], j)
-                    g = grids[j]
-                    if discrete[j]:
-                        values = g
-                    else:
-                        values = np.unique(np.concatenate([g[(g >= lo - 1e-12) & (g <= hi + 1e-12)], [lo, hi]]))
-                    values = values[values != points[i, j]]
-                    if not len(values):
-                        continue
-                    pw = points[i][None, :] ** E  # (p, k)
-                    pw[:, j] = 1.0
-                    r = pw.prod(axis=1)
-                    Y = r[None, :] * values[:, None] ** E[:, j][None, :]
-                    x = F[i]
-                    Ax = A @ x
-                    xAx = x @ Ax
-                    AY = Y @ A
-                    yAy = np.einsum("ij,ij->i", AY, Y)
-                    yAx = AY @ x
-                    if criterion == "D":
-                        gain = (1 + yAy) * (1 - xAx) + yAx**2
-                        c = int(np.argmax(gain))
-                        accept = gain[c] > 1 + 1e-10
-                    else:
-                        d_y = 1 + yAy
-                        phi1 = phi - np.einsum("ij,ij->i", AY @ W, AY) / d_y
-                        A1x = Ax[None, :] - AY * (yAx / d_y)[:, None]
-                        denom = 1 - (xAx - yAx**2 / d_y)
-                        with np.errstate(divide="ignore", invalid="ignore"):
-                            phi2 = np.where(denom > 1e-12, phi1 + np.einsum("ij,ij->i", A1x @ W, A1x) / denom,
-                                            np.inf)
-                        c = int(np.argmin(phi2))
-                        accept = phi2[c] < phi * (1 - 1e-10)
-                    if accept:
-                        points[i, j] = values[c]
-                        y = Y[c]
-                        M += np.outer(y, y) - np.outer(x, x)
-                        F[i] = y
-                        if ridge and np.linalg.matrix_rank(M) == p:
-                            ridge = 0.0
-                        A = np.linalg.inv(M + ridge * np.eye(p))
-                        phi = float(np.trace(A @ W))
-                        changed = True
-            if not changed:
-                break
-        sign, logdet = np.linalg.slogdet(F.T @ F)
-        logdet = logdet if sign > 0 else -math.inf
-        if sign > 0:
-            A_exact = np.linalg.inv(F.T @ F)
-            apv = float(np.trace(A_exact @ W))
-        else:
-            apv = math.inf
-        score = -logdet if criterion == "D" else apv
+
+        def candidates(i, j, point):
+            if discrete[j]:
+                values = grids[j]
+            else:
+                lo, hi = _interval(G, h, point, j)
+                g = grids[j]
+                values = np.unique(np.concatenate([g[(g >= lo - 1e-12) & (g <= hi + 1e-12)], [lo, hi]]))
+            values = values[values != point[j]]
+            if not len(values):
+                return None
+            pw = point[None, :] ** E  # (p, k): each column's factor from every coordinate but j
+            pw[:, j] = 1.0
+            trial = np.repeat(point[None, :], len(values), axis=0)
+            trial[:, j] = values
+            return trial, pw.prod(axis=1)[None, :] * values[:, None] ** E[:, j][None, :]
+
+        points, F = exchange_runs(points, model_rows(points), n_fixed, candidates, W, criterion)
+        score, logdet, apv = design_score(F, W, criterion)
         if state["best"] is None or score < state["best"][0]:
             state["best"] = (score, points.copy(), logdet, apv)
         state["starts_run"] = start + 1

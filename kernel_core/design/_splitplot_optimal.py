@@ -19,9 +19,8 @@ import math
 import numpy as np
 
 from .._errors import LevelwiseError, describe
+from ._exchange import MAX_PASSES
 from ._splitplot import hard_to_change_factors, split_plot_order
-
-MAX_PASSES = 40
 
 
 def _contribution(rows, c):

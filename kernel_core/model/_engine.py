@@ -137,6 +137,21 @@ class PredictionEngine(SettingsCheck):
             for slot, i in enumerate(np.flatnonzero(row)):
                 picks[slot, j] = 1 + (row[i] - 1) * k + i
         self._picks, self._top, self._inv_scale = picks, top, 1.0 / self.scale
+        # A model of total degree <= 2 in continuous factors (main effects, two-factor interactions,
+        # full second order): every column is w_a w_b (a <= b) with w = [1, coded]. Many settings then
+        # need no gathers: k + 1 slab products write every such product (the upper triangle of w w',
+        # row by row) and one matrix product with [F | beta] placed on them gives x F and x b.
+        self._triangle = None
+        if not self.contrasts and p and E.sum(axis=1).max(initial=0) <= 2:
+            degree = int(E.sum(axis=1).max(initial=0))
+            n = k + 1 if degree <= 1 else (k + 1) * (k + 2) // 2
+            start = np.concatenate([[0], np.cumsum(np.arange(k + 1, 0, -1))])  # where row a of the triangle begins
+            placed = np.zeros((p + 1, n))
+            for j, row in enumerate(E):
+                factors = [1 + i for i in np.flatnonzero(row) for _ in range(row[i])]  # with multiplicity
+                a, b = ([0, 0] + factors)[-2:]  # the column is w_a w_b, a <= b
+                placed[:, b if degree <= 1 else start[a] + b - a] += self._fb[j]
+            self._triangle = (degree, np.ascontiguousarray(placed))
 
     def rows(self, natural: np.ndarray) -> np.ndarray:
         """Model rows (m, p) for an (m, k) array of natural settings (level indices for categorical)."""
@@ -168,12 +183,31 @@ class PredictionEngine(SettingsCheck):
         if self.contrasts:
             return self.mean_and_leverage(natural_t.T)
         m = natural_t.shape[1]
-        if m > _BLOCK:  # blocks of rows small enough to stay in cache (one Python step per block)
+        block = _BLOCK if self._triangle is None else 2 * _BLOCK
+        if m > block:  # blocks of rows small enough to stay in cache (one Python step per block)
             mean, h = np.empty(m), np.empty(m)
-            for start in range(0, m, _BLOCK):
-                part = slice(start, start + _BLOCK)
+            for start in range(0, m, block):
+                part = slice(start, start + block)
                 mean[part], h[part] = self._mean_and_leverage_columns(natural_t[:, part])
             return mean, h
+        if self._triangle is not None:
+            degree, placed = self._triangle
+            k = self.k
+            w = np.empty((k + 1, m))
+            w[0] = 1.0
+            np.subtract(natural_t, self.center[:, None], out=w[1:])
+            w[1:] *= self._inv_scale[:, None]
+            if degree <= 1:
+                x = w
+            else:
+                x = np.empty((placed.shape[1], m))
+                at = 0
+                for a in range(k + 1):
+                    np.multiply(w[a], w[a:], out=x[at:at + k + 1 - a])
+                    at += k + 1 - a
+            both = placed @ x
+            xf = both[:-1]
+            return both[-1], np.einsum("ij,ij->j", xf, xf)
         coded = natural_t - self.center[:, None]
         coded *= self._inv_scale[:, None]
         m, picks = coded.shape[1], self._picks
@@ -244,7 +278,7 @@ class PredictionEngine(SettingsCheck):
         natural_t = self.columns(settings)
         mean, h = self._mean_and_leverage_columns(natural_t)
         c = self._scale(level)
-        # One (6, m) block written in place becomes the frame's float columns without a copy.
+        # One (6, m) block written in place; its rows become the frame's columns.
         block = np.empty((6, len(mean)))
         ci, pi = block[1], block[3]
         np.sqrt(h, out=ci)
@@ -257,9 +291,9 @@ class PredictionEngine(SettingsCheck):
         np.subtract(mean, ci, out=ci)
         np.add(mean, pi, out=block[4])
         np.subtract(mean, pi, out=pi)
-        frame = pd.DataFrame(block.T, columns=_PREDICTION_COLUMNS, copy=False)
-        frame["extrapolated"] = self._extrapolated_columns(natural_t, h)
-        return frame
+        columns = dict(zip(_PREDICTION_COLUMNS, block))
+        columns["extrapolated"] = self._extrapolated_columns(natural_t, h)
+        return pd.DataFrame(columns, copy=False)
 
     def point(self, settings, level=None, natural=None, powers=None) -> dict:
         """One setting -> ``mean``, ``ci_low/high``, ``pi_low/high``, ``leverage``, ``extrapolated``."""
