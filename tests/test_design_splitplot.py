@@ -231,7 +231,8 @@ def test_design_combine_keeps_whole_plots():
     factors = [lw.Factor("Oven", 160, 200, hard_to_change=True), lw.Factor("Film", 40, 80),
                lw.Factor("Dwell", 5, 15)]
     first = lw.full_factorial(factors, replicates=2, seed=1)  # 4 whole plots, runs 1..16
-    second = lw.fold_over(first, seed=2)  # 16 new runs, randomised without whole plots (each run reset)
+    second = lw.Design(factors, first.coded.to_numpy() * -1, first.table["role"], first.table["block"] + 1,
+                       seed=2, first_run=17)  # 16 mirrored runs randomised freely: no whole plots (each run reset)
     both = first.combine(second)
     plots = both.table["whole_plot"].to_numpy()
     assert list(both.table.columns[:4]) == ["run", "standard_order", "block", "whole_plot"]
@@ -247,3 +248,25 @@ def test_design_combine_keeps_whole_plots():
     # Neither stage with whole plots: no column, as before.
     plain = lw.full_factorial(3, seed=1)
     assert "whole_plot" not in plain.combine(lw.fold_over(plain, seed=2)).table.columns
+
+
+@pytest.mark.parametrize("factor", [None, "Oven", "Dwell"])
+def test_fold_over_of_a_split_plot_design_mirrors_each_whole_plot(factor):
+    factors = [lw.Factor("Oven", 160, 200, hard_to_change=True), lw.Factor("Film", 40, 80),
+               lw.Factor("Dwell", 5, 15)]
+    first = lw.full_factorial(factors, replicates=2, seed=1)
+    new = lw.fold_over(first, factor=factor, center_points=2, seed=3)
+    assert new.table["run"].tolist() == list(range(17, 35)) and set(new.table["block"]) == {2}
+    _check_restricted(new, ["Oven"])  # whole plots contiguous, numbered in run order, Oven constant in each
+    flip = {None: [-1, -1, -1], "Oven": [-1, 1, 1], "Dwell": [1, 1, -1]}[factor]
+    corners = new.table["role"] == "corner"
+    # Each original whole plot's runs, mirrored, are one new whole plot (4 runs); the centre runs one more.
+    mirrored = {}
+    for plot, rows in first.coded.groupby(first.table["whole_plot"]):
+        mirrored[plot] = sorted(map(tuple, (rows.to_numpy() * flip).tolist()))
+    got = sorted(sorted(map(tuple, rows.to_numpy().tolist()))
+                 for _, rows in new.coded[corners.to_numpy()].groupby(new.table.loc[corners, "whole_plot"]))
+    assert got == sorted(mirrored.values())
+    assert new.table.loc[~corners, "whole_plot"].nunique() == 1 and new.metadata["whole_plots"] == 5
+    both = first.combine(new)
+    assert both.table["whole_plot"].tolist()[16:] == (new.table["whole_plot"] + 4).tolist()

@@ -172,3 +172,27 @@ def test_the_shipped_split_plot_demo_is_what_the_seeded_script_writes_and_is_lab
     coefficients = study.fit("Impact").coefficients
     for term, value in demo.SPLIT_PLOT_TRUTH.items():
         assert coefficients.loc[term, "ci_low"] <= value <= coefficients.loc[term, "ci_high"], term
+
+
+def test_the_study_run_sheet_and_study_from_table_keep_the_whole_plots(tmp_path):
+    from levelwise.study import export_run_sheet, import_table, study_run_sheet
+
+    study = split_study()
+    sheet = study_run_sheet(study)
+    assert list(sheet.columns[:5]) == ["run", "stage", "block", "whole_plot", "role"]
+    path = export_run_sheet(study, tmp_path / "sheet.csv")
+    copy = Study(list(demo.SPLIT_PLOT_FACTORS))
+    copy.add_response("Impact", units="J")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        import_table(copy, path, stage="copy")
+    assert copy.whole_plots().equals(study.whole_plots())
+    table = demo.split_plot_data()
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        rebuilt = Study.from_table(table, factors=list(demo.SPLIT_PLOT_FACTORS), responses=["Impact"])
+    assert rebuilt.whole_plots().tolist() == table["whole_plot"].tolist()
+    assert isinstance(rebuilt.fit("Impact", MODEL), MixedFit)
+    from levelwise.study._from_table import guess_columns
+
+    assert "whole_plot" in guess_columns(table)["unused"]  # bookkeeping, never guessed as a factor or response

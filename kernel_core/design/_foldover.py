@@ -26,7 +26,9 @@ def fold_over(design: Design, factor=None, *, center_points=0, randomize=True, s
         Centre runs to add to the new runs (continuous factors only), spread over the new blocks; they
         show whether the response shifted between the stages.
     randomize : bool, default True
-        Put the new runs in random order within their blocks.
+        Put the new runs in random order within their blocks. A split-plot design (hard-to-change factors and
+        a ``whole_plot`` column) folds into whole plots: the mirror of each whole plot is a new whole plot, in
+        the restricted random order (whole plots, then the runs within each).
     seed : int, optional
         Seed of that randomisation.
 
@@ -84,7 +86,20 @@ def fold_over(design: Design, factor=None, *, center_points=0, randomize=True, s
     standard_order = int(standard.max()) + np.arange(1, len(folded) + 1)
     what = "full fold-over" if factor is None else f"fold-over on {factor}"
     structure = structure_of_runs(folded, role, block, names)
-    return Design(design.factors, folded, role, block, randomize=randomize, seed=seed,
-                  standard_order=standard_order, first_run=int(table["run"].max()) + 1,
-                  kind=f"{what} of {design.kind}", structure=structure,
-                  metadata={"fold": what, "folded_runs": int(corner.sum())})
+    first_run = int(table["run"].max()) + 1
+    split = "whole_plot" in table.columns and any(f.hard_to_change for f in design.factors)
+    new = Design(design.factors, folded, role, block, randomize=randomize and not split, seed=seed,
+                 standard_order=standard_order, first_run=first_run,
+                 kind=f"{what} of {design.kind}", structure=structure,
+                 metadata={"fold": what, "folded_runs": int(corner.sum())})
+    if not split:
+        return new
+    # A split-plot design folds into whole plots too: the mirror of each whole plot is a whole plot (the
+    # hard-to-change factors stay constant in it, flipped or not), the new centre runs of a block one more;
+    # the randomisation is restricted as for the original (whole plots, then runs within each).
+    from ._splitplot import split_plot_order
+
+    plots = [f"wp {p}" for p in table["whole_plot"].to_numpy()[order]] + ["centre"] * center_points
+    out = split_plot_order(new, randomize=randomize, seed=seed, plots=plots)
+    out.table["run"] = np.arange(first_run, first_run + len(out))
+    return out

@@ -16,12 +16,13 @@ def _header(name: str, units: str) -> str:
 
 
 def study_run_sheet(study, *, achieved: bool = False) -> pd.DataFrame:
-    """The study's run sheet: run, stage, block, role, planned settings and the responses (blank
-    where not recorded), headers ``Name [units]``; with *achieved*, one ``"<factor> (achieved) [units]"``
-    column per factor. :func:`import_table` reads it back, responses included, with the guessed mapping.
+    """The study's run sheet: run, stage, block, whole plot (a split-plot study), role, planned settings and the
+    responses (blank where not recorded), headers ``Name [units]``; with *achieved*, one
+    ``"<factor> (achieved) [units]"`` column per factor. :func:`import_table` reads it back, responses included,
+    with the guessed mapping.
     """
     planned = study.planned()
-    sheet = planned[["run", "stage", "block", "role"]].copy()
+    sheet = planned[["run", "stage", "block", *(["whole_plot"] if "whole_plot" in planned else []), "role"]].copy()
     for f in study.factors:
         sheet[_header(f.name, f.units)] = planned[f.name]
     if achieved:

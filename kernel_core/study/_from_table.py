@@ -210,6 +210,9 @@ def study_from_table(source, *, factors, responses, run: str | None = None, achi
         for f in factor_objs:
             if not f.levels:
                 table[f.name] = table[f.name].astype(float)
+        plots = next((c for c in frame.columns if split_header(str(c))[0].lower() == "whole_plot"), None)
+        if plots is not None:  # a split-plot table: each run's whole plot is kept (Study.add_stage checks it)
+            table["whole_plot"] = frame.loc[table.index, plots]
         if run_ids is not None:
             table.insert(0, "run", [run_ids[row] for row in table.index])
             table = table.sort_values("run")
@@ -263,7 +266,7 @@ def guess_columns(frame: pd.DataFrame, *, max_levels: int = 5) -> dict:
             out["run"] = column
         elif achieved:
             out["achieved"][name] = column
-        elif name.lower() in {"block", "standard_order", "std_order", "role", "stage", "excluded"}:
+        elif name.lower() in {"block", "standard_order", "std_order", "role", "stage", "excluded", "whole_plot"}:
             out["unused"].append(column)
         elif 2 <= distinct <= max_levels and (numeric or distinct < len(cells)):
             out["factors"].append(column)
