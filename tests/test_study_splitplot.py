@@ -196,3 +196,18 @@ def test_the_study_run_sheet_and_study_from_table_keep_the_whole_plots(tmp_path)
     from levelwise.study._from_table import guess_columns
 
     assert "whole_plot" in guess_columns(table)["unused"]  # bookkeeping, never guessed as a factor or response
+
+
+@pytest.mark.parametrize("position", [3, 520])  # the schema checks the first 500 runs, a fast check the rest
+def test_a_bad_whole_plot_in_a_file_is_refused_naming_the_field(position):
+    from levelwise import StudyFileError
+    from levelwise.study import content_hash
+
+    study = Study(list(demo.SPLIT_PLOT_FACTORS))
+    study.add_stage("big", lw.full_factorial(list(demo.SPLIT_PLOT_FACTORS), replicates=70, seed=1))  # 560 runs
+    document = json.loads(study.to_json())
+    assert Study.from_document(json.loads(study.to_json())).whole_plots().nunique() == 140  # 2 x 70
+    document["data"]["runs"][position]["whole_plot"] = "x"
+    document["sha256"] = content_hash(document["data"], document["audit"])
+    with pytest.raises(StudyFileError, match=rf"field 'data.runs\[{position}\].whole_plot': 'x' is not of type"):
+        Study.from_document(document)

@@ -40,7 +40,7 @@ import traitlets
 
 from levelwise import Design, Factor, Fit, LevelwiseError, Study
 from levelwise._errors import describe
-from levelwise.model._families import FitFamily
+from levelwise.model import GlmFit, MixedFit
 
 from ._study_table import DEFAULT_MODEL, study_from_table
 
@@ -65,12 +65,13 @@ def default_setting(factor: Factor):
 
 
 class AnyFit(abc.ABC):  # noqa: B024 - a type to register fits with, no methods of its own
-    """What the ``fit``/``fits`` traits hold: a least-squares :class:`levelwise.Fit`, or a fit of another family
-    (the split-plot ``MixedFit``) that predicts through the same ``Fit.engine``."""
+    """What the ``fit`` trait holds: a least-squares :class:`levelwise.Fit`, or a fit of another family (the
+    split-plot ``MixedFit``, the ``GlmFit``) that predicts through the same ``Fit.engine``."""
 
 
 AnyFit.register(Fit)
-AnyFit.register(FitFamily)
+AnyFit.register(MixedFit)
+AnyFit.register(GlmFit)
 
 
 class _NoneChecked(traitlets.Instance):
