@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, LevelwiseWarning
+from .._rich import with_units
 from ._values import _is_categorical, checked_model
 
 #: Suffix of a column holding the achieved setting of a factor (the one header convention).
@@ -196,9 +197,10 @@ class StudyTables:
             )
         model = checked_model(model, self.factor_names)
         options = dict(factors=list(self._factors), level=level)
+        units = {f.name: f.units for f in self._factors} | {response: self._responses[response]["units"]}
         if whole_plot == "auto" and "whole_plot" in table:
             try:
-                return fit_function(table, response, model, whole_plot="whole_plot", **options)
+                return with_units(fit_function(table, response, model, whole_plot="whole_plot", **options), units)
             except LevelwiseError:
                 pass  # least squares below; its warning says why the split-plot fit could not be made
         with warnings.catch_warnings(record=True) as caught:
@@ -206,7 +208,7 @@ class StudyTables:
             result = fit_function(table, response, model, **options)
         for item in caught:
             warnings.warn(item.message, item.category, stacklevel=2)
-        return result
+        return with_units(result, units)
 
     def fits(self, *, level: float = 0.95) -> dict:
         """A :class:`~levelwise.Fit` for every response that has a model."""
