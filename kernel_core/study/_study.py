@@ -16,9 +16,9 @@ from ..design import Factor, as_factors
 from . import _values
 from ._persist import StudyFile
 from ._records import StudyRecords
+from ._responses import StudyResponses
 from ._tables import StudyTables
 from ._values import (
-    GOALS,
     AuditEntry,
     Response,
     Stage,
@@ -37,7 +37,7 @@ from ._values import (
 _OLD_ROLES = {"factorial": "corner", "center": "centre", "edge": "edge_midpoint"}
 
 
-class Study(StudyRecords, StudyTables, StudyFile):
+class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
     """An experiment's complete record, with an audit log of every change.
 
     Parameters
@@ -84,7 +84,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
     @classmethod
     def from_table(cls, source, *, factors, responses, run: str | None = None, achieved: dict | None = None,
                    plan=None, title: str = "", stage: str = "imported", sheet: str | None = None,
-                   delimiter: str = ",", decimal: str = ".") -> Study:
+                   delimiter: str = ",", decimal: str = ".", counts: dict | None = None) -> Study:
         """A new study from one finished table (data frame, CSV or XLSX), in one call.
 
         Parameters
@@ -104,6 +104,10 @@ class Study(StudyRecords, StudyTables, StudyFile):
             The planned design. Rows are matched to it by run id (with ``run``) or else by their
             settings (nearest planned run within 0.1 coded units), so a plant run order that differs
             from the plan is accepted; settings that differ from the plan are recorded as achieved.
+        counts : dict, optional
+            Count responses: ``{response: {"family": "binomial", "trials": column, "link": "logit"}}`` or
+            ``{response: {"family": "poisson", "exposure": column}}`` (see :meth:`add_response`); a trials or
+            exposure column not among *responses* is added to them. Bad counts are problems of their row.
 
         Every problem is raised together in one :class:`ImportDataError` naming its spreadsheet row
         and column; columns not used are listed (``study.import_report.warnings``) and warned about.
@@ -112,7 +116,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
 
         study, report = study_from_table(source, factors=factors, responses=responses, run=run, achieved=achieved,
                                          plan=plan, title=title, stage=stage, sheet=sheet, delimiter=delimiter,
-                                         decimal=decimal)
+                                         decimal=decimal, counts=counts)
         study.import_report = report
         return study
 
@@ -209,33 +213,6 @@ class Study(StudyRecords, StudyTables, StudyFile):
         """Replace the title."""
         self._title = _text(title, "title", kind="title")
         self._log("title", f"title set to {title!r}")
-
-    def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None) -> None:
-        """Add a response with its units and goal (``"none"``, ``"maximize"``, ``"minimize"``, ``"target"``)."""
-        name = _name(name, "response name")
-        if name in self._responses or name in self.factor_names:
-            raise LevelwiseError(f"The 'response name' {name!r} is already used by a response or a factor.")
-        spec = self._response_spec(name, units, goal, target)
-        self._responses[name] = spec
-        self._log("add_response", f"response {name!r} added ({spec['units'] or 'no units'}, goal {goal})")
-
-    def set_goal(self, response: str, goal: str, target: float | None = None) -> None:
-        """Change a response's goal."""
-        name = self._response(response)
-        spec = self._response_spec(name, self._responses[name]["units"], goal, target)
-        self._responses[name] = spec
-        self._log("set_goal", f"goal of {name!r} set to {goal}" + (f" {spec['target']}" if goal == "target" else ""))
-
-    @staticmethod
-    def _response_spec(name, units, goal, target) -> dict:
-        units = _text(units, f"units of response {name!r}", kind="units")
-        if goal not in GOALS:
-            raise LevelwiseError(f"The 'goal' of response {name!r} must be one of {list(GOALS)}. Got {describe(goal)}.")
-        if goal == "target":
-            target = _finite(target, f"target of response {name!r}")
-        elif target is not None:
-            raise LevelwiseError(f"The 'target' of response {name!r} is only allowed with goal='target'.")
-        return {"units": units, "goal": goal, "target": target}
 
     def add_stage(self, name: str, design, *, description: str = "", reason: str | None = None,
                   renumber: bool = False) -> list[int]:

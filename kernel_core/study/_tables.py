@@ -155,7 +155,9 @@ class StudyTables:
         """Fit *response* with its model (or *model*) on :meth:`fit_table`, coded by the study factors.
 
         The runs are named by run id; achieved settings are used where recorded (see
-        :attr:`Fit.setting_deviations`).
+        :attr:`Fit.setting_deviations`). A count response (``family`` given to :meth:`add_response`) is fitted
+        as a generalised linear model (:class:`~levelwise.model.GlmFit`) with its link and its trials or
+        exposure response.
 
         Parameters
         ----------
@@ -196,6 +198,11 @@ class StudyTables:
             )
         model = checked_model(model, self.factor_names)
         options = dict(factors=list(self._factors), level=level)
+        spec = self._responses[response]
+        if spec.get("family"):  # a count response: the generalised linear model (the whole plots are not used)
+            table = table.drop(columns=["whole_plot"], errors="ignore")
+            return fit_function(table, response, model, family=spec["family"], link=spec["link"],
+                                trials=spec.get("trials"), exposure=spec.get("exposure"), **options)
         if whole_plot == "auto" and "whole_plot" in table:
             try:
                 return fit_function(table, response, model, whole_plot="whole_plot", **options)

@@ -19,12 +19,21 @@ GOALS = ("none", "maximize", "minimize", "target")
 
 @dataclass(frozen=True)
 class Response:
-    """A measured response: its name, units and goal (``target`` only for ``goal="target"``)."""
+    """A response: its name, units and goal (``target`` only for ``goal="target"``).
+
+    A count response also has its ``family`` (``"binomial"``: passes out of the trials held by the response
+    named ``trials``; ``"poisson"``: a count, per unit of the response named ``exposure`` when given) and its
+    ``link``; a measured response has ``family=None``.
+    """
 
     name: str
     units: str = ""
     goal: str = "none"
     target: float | None = None
+    family: str | None = None
+    link: str | None = None
+    trials: str | None = None
+    exposure: str | None = None
 
 
 @dataclass(frozen=True)
