@@ -38,7 +38,7 @@ def test_add_stage_keeps_each_runs_whole_plot_and_the_file_keeps_them(tmp_path):
     assert loaded.to_dict() == study.to_dict()
     assert loaded.factors == study.factors  # hard_to_change survives the file
     document = json.loads((tmp_path / "split.json").read_text(encoding="utf-8"))
-    assert document["format_version"] == 4  # format 3 keys, kept in format 4
+    assert document["format_version"] == 4
     assert document["data"]["factors"][0]["hard_to_change"] is True
     assert "hard_to_change" not in document["data"]["factors"][1]  # written only when true
 
@@ -98,7 +98,8 @@ def test_study_fit_without_whole_plots_warns_with_each_standard_error():
 
 def test_too_few_whole_plots_fall_back_to_least_squares_with_the_reason():
     factors = list(demo.SPLIT_PLOT_FACTORS)
-    design = lw.full_factorial(factors, seed=3)  # 2 whole plots: nothing left for the whole-plot stratum
+    with pytest.warns(LevelwiseWarning, match="only 2 whole plots"):
+        design = lw.full_factorial(factors, seed=3)  # 2 whole plots: nothing left for the whole-plot stratum
     study = Study(factors)
     study.add_stage("one", design)
     study.add_response("y")

@@ -25,6 +25,7 @@ from ._format import (
     remove_leftovers,
     write_atomically,
 )
+from ._goals import GOAL_FIELDS
 from ._migrations import MIGRATIONS
 from ._values import _factor_entry, _finite, _is_categorical, _name, _plain, _setting, _text
 
@@ -269,7 +270,9 @@ class StudyFile:
                 _name(name, "response name")
                 if name in names or name in study._responses:
                     raise LevelwiseError(f"the response name {name!r} is used twice (or is also a factor name)")
-                study._responses[name] = cls._response_spec(name, spec["units"], spec["goal"], spec["target"])
+                study._responses[name] = cls._response_spec(
+                    name, spec["units"], spec["goal"], spec["target"],
+                    **{key: spec[key] for key in GOAL_FIELDS if key in spec})
             except LevelwiseError as exc:
                 fail(f"data.responses[{i}]", str(exc))
         for i, stage in enumerate(data["stages"]):

@@ -14,12 +14,12 @@ import pandas as pd
 from .._errors import LevelwiseError, describe
 from ..design import Factor, as_factors
 from . import _values
+from ._goals import goal_words, response_spec
 from ._mixture_study import StudyMixture
 from ._persist import StudyFile
 from ._records import StudyRecords
 from ._tables import StudyTables
 from ._values import (
-    GOALS,
     AuditEntry,
     Response,
     Stage,
@@ -231,32 +231,38 @@ class Study(StudyMixture, StudyRecords, StudyTables, StudyFile):
         self._title = _text(title, "title", kind="title")
         self._log("title", f"title set to {title!r}")
 
-    def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None) -> None:
-        """Add a response with its units and goal (``"none"``, ``"maximize"``, ``"minimize"``, ``"target"``)."""
+    def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None,
+                     **goal_fields) -> None:
+        """Add a response with its units and goal (``"none"``, ``"maximize"``, ``"minimize"``, ``"target"``).
+
+        *goal_fields* are the optional desirability fields of :meth:`set_goal`.
+        """
         name = _name(name, "response name")
         if name in self._responses or name in self.setting_names:
             raise LevelwiseError(f"The 'response name' {name!r} is already used by a response or a factor.")
-        spec = self._response_spec(name, units, goal, target)
+        spec = self._response_spec(name, units, goal, target, **goal_fields)
         self._responses[name] = spec
         self._log("add_response", f"response {name!r} added ({spec['units'] or 'no units'}, goal {goal})")
 
-    def set_goal(self, response: str, goal: str, target: float | None = None) -> None:
-        """Change a response's goal."""
+    def set_goal(self, response: str, goal: str, target: float | None = None, *, lower_limit=None,
+                 upper_limit=None, s=None, t=None, weight=None) -> None:
+        """Change a response's goal, with the desirability fields to keep in the file (each optional).
+
+        ``lower_limit``, ``target``, ``upper_limit``, the exponents ``s`` and ``t`` and the relative ``weight``
+        are those of :class:`levelwise.Goal`; a field its kind does not use is refused (a maximise goal has no
+        upper limit or ``t``). Fields left out are not stored (the workbench starts them from the data).
+        """
         name = self._response(response)
-        spec = self._response_spec(name, self._responses[name]["units"], goal, target)
+        spec = self._response_spec(name, self._responses[name]["units"], goal, target, lower_limit=lower_limit,
+                                   upper_limit=upper_limit, s=s, t=t, weight=weight)
+        if spec == self._responses[name]:
+            return
         self._responses[name] = spec
-        self._log("set_goal", f"goal of {name!r} set to {goal}" + (f" {spec['target']}" if goal == "target" else ""))
+        self._log("set_goal", goal_words(name, spec))
 
     @staticmethod
-    def _response_spec(name, units, goal, target) -> dict:
-        units = _text(units, f"units of response {name!r}", kind="units")
-        if goal not in GOALS:
-            raise LevelwiseError(f"The 'goal' of response {name!r} must be one of {list(GOALS)}. Got {describe(goal)}.")
-        if goal == "target":
-            target = _finite(target, f"target of response {name!r}")
-        elif target is not None:
-            raise LevelwiseError(f"The 'target' of response {name!r} is only allowed with goal='target'.")
-        return {"units": units, "goal": goal, "target": target}
+    def _response_spec(name, units, goal, target, **goal_fields) -> dict:
+        return response_spec(name, units, goal, target, **goal_fields)
 
     def add_stage(self, name: str, design, *, description: str = "", reason: str | None = None,
                   renumber: bool = False) -> list[int]:
