@@ -60,7 +60,7 @@ def test_future_format_version(tmp_path):
     path = tmp_path / "future.json"
     path.write_text(json.dumps(document), encoding="utf-8")
     with pytest.raises(StudyFileError, match="'format_version' of '.*' is 7, written by a newer levelwise; this "
-                                             "version reads formats up to 3"):
+                                             "version reads formats up to 4"):
         Study.load(path)
     document["format_version"] = "1"
     path.write_text(json.dumps(document), encoding="utf-8")

@@ -1,4 +1,4 @@
-"""Study files of earlier formats load: format 0 -> 1 -> 2 -> 3, on every shipped and test study file."""
+"""Study files of earlier formats load: format 0 -> 1 -> 2 -> 3 -> 4, on every shipped and test study file."""
 
 from __future__ import annotations
 
@@ -38,8 +38,8 @@ def test_the_files_checked_are_the_ones_expected():
                      "demo_campaign.json", "demo_split_plot.json"]
     versions = {p.name: json.loads(p.read_text(encoding="utf-8"))["format_version"] for p in study_files()}
     assert versions == {"demo_campaign_v1.json": 1, "study_example.json": 2, "study_v0.json": 0,
-                        "study_v1.json": 1, "demo_campaign.json": 3,
-                        "demo_split_plot.json": 3}  # the shipped files are in the new format
+                        "study_v1.json": 1, "demo_campaign.json": 4,
+                        "demo_split_plot.json": 4}  # the shipped files are in the new format
 
 
 @pytest.mark.parametrize("path", study_files(), ids=lambda p: p.name)
@@ -48,7 +48,7 @@ def test_every_study_file_loads_and_saves_in_the_current_format(path, tmp_path):
     assert len(study) > 0 and study.responses
     saved = study.save(tmp_path / path.name)
     document = json.loads(saved.read_text(encoding="utf-8"))
-    assert document["format_version"] == FORMAT_VERSION == 3
+    assert document["format_version"] == FORMAT_VERSION == 4
     jsonschema.validate(document, schema())
     assert document["sha256"] == content_hash(document["data"], document["audit"])
     for run in document["data"]["runs"]:
@@ -66,8 +66,9 @@ def test_format_1_example_migrates_to_the_runs_of_the_current_example():
     assert roles.count("corner") == 16 and roles.count("centre") == 6  # 2^4 corners; 3 + 3 centre runs
     assert old.models["Gloss"] == "main_effects"  # was the preset "linear"
     assert old.models["Impact"] == new.models["Impact"]  # a formula is kept as written
-    assert [(a.action, a.what) for a in old.audit[-2:]] == [("migrate", "migrated from format 1 to format 2"),
-                                                            ("migrate", "migrated from format 2 to format 3")]
+    assert [(a.action, a.what) for a in old.audit[-3:]] == [("migrate", "migrated from format 1 to format 2"),
+                                                            ("migrate", "migrated from format 2 to format 3"),
+                                                            ("migrate", "migrated from format 3 to format 4")]
 
 
 def test_shipped_demo_of_format_1_migrates_to_the_regenerated_demo():
@@ -139,8 +140,9 @@ def test_format_2_files_migrate_to_format_3_with_their_data_unchanged():
         study = Study.load(path)
         assert study.to_dict() == raw["data"]  # the data block as written, nothing added
         assert not study.has_whole_plots and study.hard_to_change == []
-        assert [(a.action, a.what) for a in study.audit[-1:]] == [("migrate", "migrated from format 2 to format 3")]
-        assert len(study.audit) == len(raw["audit"]) + 1
+        assert [(a.action, a.what) for a in study.audit[-2:]] == [("migrate", "migrated from format 2 to format 3"),
+                                                                  ("migrate", "migrated from format 3 to format 4")]
+        assert len(study.audit) == len(raw["audit"]) + 2
         with pytest.warns(LevelwiseWarning, match="no value for run"):  # this example has unmeasured runs
             assert type(study.fit(next(iter(study.models)))).__name__ == "Fit"  # least squares, as before
     document = {"format_version": 2, "data": {"runs": [{"run": 1}]}, "audit": [], "sha256": "0" * 64}

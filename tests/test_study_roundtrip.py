@@ -69,7 +69,7 @@ def test_file_is_diff_friendly(tmp_path):
     lines = text.splitlines()
     run_lines = [line for line in lines if line.lstrip().startswith('{"achieved"')]
     assert len(run_lines) == len(study)  # one run per line
-    assert '"format_version": 3' in text and "°C" in text  # readable, not \u escapes
+    assert '"format_version": 4' in text and "°C" in text  # readable, not \u escapes
     document = json.loads(text)
     assert list(document) == sorted(document)  # keys sorted
 
@@ -209,7 +209,7 @@ def test_format_0_file_is_migrated(data_dir, tmp_path):
     # Saved again, it is a current-format file that validates and loads with its hash.
     saved = study.save(tmp_path / "migrated.json")
     document = json.loads(saved.read_text(encoding="utf-8"))
-    assert document["format_version"] == FORMAT_VERSION == 3
+    assert document["format_version"] == FORMAT_VERSION == 4
     Study.load(saved)
 
 

@@ -38,7 +38,7 @@ def test_add_stage_keeps_each_runs_whole_plot_and_the_file_keeps_them(tmp_path):
     assert loaded.to_dict() == study.to_dict()
     assert loaded.factors == study.factors  # hard_to_change survives the file
     document = json.loads((tmp_path / "split.json").read_text(encoding="utf-8"))
-    assert document["format_version"] == 3
+    assert document["format_version"] == 4
     assert document["data"]["factors"][0]["hard_to_change"] is True
     assert "hard_to_change" not in document["data"]["factors"][1]  # written only when true
 

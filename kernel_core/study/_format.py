@@ -23,7 +23,7 @@ from pathlib import Path
 from .._errors import StudyConflictError, StudyFileError
 
 #: The format this version of levelwise writes.
-FORMAT_VERSION = 3
+FORMAT_VERSION = 4
 
 _MAX_INT = 2**53 - 1  # integers exact in every JSON reader; the schema caps run ids, blocks and orders here
 

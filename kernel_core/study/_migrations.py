@@ -1,4 +1,4 @@
-"""Migrations of older study files, applied in turn on load: format 0 -> 1 -> 2 -> 3.
+"""Migrations of older study files, applied in turn on load: format 0 -> 1 -> 2 -> 3 -> 4.
 
 Each migration is frozen: it carries its own copy of every name it translates, so a later
 renaming in levelwise never changes what an old file turns into.
@@ -171,8 +171,32 @@ def migrate_v2(document: dict) -> dict:
     return document
 
 
+def migrate_v3(document: dict) -> dict:
+    """Turn a format-3 study into a format-4 document.
+
+    Format 4 adds optional keys only (absent = the format-3 meaning), so the data is kept as it is: a response
+    without ``lower_limit``, ``upper_limit``, ``s``, ``t`` or ``weight`` has its goal's limits started from the
+    recorded values, as before (issue 16). The audit log gets one ``migrate`` entry and the SHA-256 is
+    recomputed (the loader checked the format-3 hash first). A document that breaks the layout is left for the
+    format-4 schema check to report.
+    Format 4 also adds ``data.mixture`` (the components, total, bounds, constraints and pseudo-component choice
+    of a mixture study, issue 12; absent = no components).
+    """
+    document = copy.deepcopy(document)
+    data, audit = document.get("data"), document.get("audit")
+    document["format_version"] = 4
+    if isinstance(data, dict) and isinstance(audit, list):
+        audit.append({"when": now(), "action": "migrate", "what": "migrated from format 3 to format 4",
+                      "reason": None})
+        try:
+            document["sha256"] = content_hash(data, audit)
+        except (UnicodeEncodeError, ValueError, TypeError):
+            pass  # the loader reports the bad text or number itself
+    return document
+
+
 #: Migrations from format N to N + 1, applied in turn.
-MIGRATIONS = {0: migrate_v0, 1: migrate_v1, 2: migrate_v2}
+MIGRATIONS = {0: migrate_v0, 1: migrate_v1, 2: migrate_v2, 3: migrate_v3}
 
 __all__ = ["MIGRATIONS", "V1_GOAL_FIELDS", "V1_PRESETS", "V1_ROLES", "V1_RUN_KEYS", "migrate_v0", "migrate_v1",
-           "migrate_v2"]
+           "migrate_v2", "migrate_v3"]

@@ -19,12 +19,18 @@ GOALS = ("none", "maximize", "minimize", "target")
 
 @dataclass(frozen=True)
 class Response:
-    """A measured response: its name, units and goal (``target`` only for ``goal="target"``)."""
+    """A measured response: its name, units and goal, with the goal's desirability fields that are stored
+    (None: not stored; the workbench starts them from the data)."""
 
     name: str
     units: str = ""
     goal: str = "none"
     target: float | None = None
+    lower_limit: float | None = None
+    upper_limit: float | None = None
+    s: float | None = None
+    t: float | None = None
+    weight: float | None = None
 
 
 @dataclass(frozen=True)
