@@ -4,7 +4,9 @@ import numpy as np
 import pytest
 
 import levelwise as lw
-from levelwise import LevelwiseError
+from levelwise import LevelwiseError, LevelwiseWarning
+
+FEW = "only 2 whole plots"  # the too-few-whole-plots warning (levelwise.design._splitplot_checks)
 
 
 def _factors(hard=("Oven",)):
@@ -72,10 +74,13 @@ def test_restricted_randomisation_on_many_seeds():
 
 
 def test_same_seed_same_order_and_unrandomised_standard_order():
-    a = lw.full_factorial(_factors(("Oven",)), seed=11)
-    b = lw.full_factorial(_factors(("Oven",)), seed=11)
+    with pytest.warns(LevelwiseWarning, match=FEW):
+        a = lw.full_factorial(_factors(("Oven",)), seed=11)
+    with pytest.warns(LevelwiseWarning, match=FEW):
+        b = lw.full_factorial(_factors(("Oven",)), seed=11)
     assert a.table.equals(b.table)
-    plain = lw.full_factorial(_factors(("Oven",)), randomize=False)
+    with pytest.warns(LevelwiseWarning, match=FEW):
+        plain = lw.full_factorial(_factors(("Oven",)), randomize=False)
     _check_restricted(plain, ["Oven"])
     assert plain.table["Oven"].tolist() == [160.0] * 8 + [200.0] * 8
 
@@ -99,7 +104,8 @@ def test_centre_points_form_their_own_whole_plot():
 
 def test_fractional_factorial_split_plot_keeps_alias_structure():
     factors = [lw.Factor(n, -1, 1, hard_to_change=n in ("A", "B")) for n in "ABCDE"]
-    d = lw.fractional_factorial(factors, generators=["E=ABCD"], seed=4)
+    with pytest.warns(LevelwiseWarning, match="only 4 whole plots.*leaves 0 .*main effects alone leave 1"):
+        d = lw.fractional_factorial(factors, generators=["E=ABCD"], seed=4)
     plain = lw.fractional_factorial([lw.Factor(n, -1, 1) for n in "ABCDE"], generators=["E=ABCD"])
     assert len(d) == 16 and d.resolution == 5
     assert d.aliases(2) == plain.aliases(2)
@@ -107,13 +113,14 @@ def test_fractional_factorial_split_plot_keeps_alias_structure():
     _check_restricted(d, ["A", "B"])
     # Effects constant within whole plots (tested on the whole-plot stratum): A, B and AB only here.
     assert d.metadata["whole_plot_effects"] == ["A", "B", "AB"]
-    searched = lw.fractional_factorial(factors, runs=8, seed=1)
+    with pytest.warns(LevelwiseWarning, match="whole plots"):
+        searched = lw.fractional_factorial(factors, runs=8, seed=1)
     assert searched.resolution == 3
     _check_restricted(searched, ["A", "B"])
 
 
 def test_run_sheet_shows_whole_plots():
-    d = lw.full_factorial(_factors(("Oven",)), seed=1)
+    d = lw.full_factorial(_factors(("Oven",)), replicates=2, seed=1)
     sheet = d.to_run_sheet()
     assert "whole_plot" in sheet.columns
     assert sheet["whole_plot"].tolist() == d.table["whole_plot"].tolist()

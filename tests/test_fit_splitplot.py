@@ -210,7 +210,8 @@ def test_warning_when_whole_plots_are_ignored():
 
 
 def test_bad_whole_plot_input():
-    factors, t = _split_plot_data(2, replicates=1)
+    with pytest.warns(lw.LevelwiseWarning, match="only 2 whole plots"):
+        factors, t = _split_plot_data(2, replicates=1)
     with pytest.raises(LevelwiseError, match="'whole_plot' parameter must name a column"):
         lw.fit(t, "y", MODEL, factors=factors, whole_plot="nope")
     with pytest.raises(LevelwiseError, match="whole-plot stratum"):

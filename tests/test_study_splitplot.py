@@ -98,7 +98,8 @@ def test_study_fit_without_whole_plots_warns_with_each_standard_error():
 
 def test_too_few_whole_plots_fall_back_to_least_squares_with_the_reason():
     factors = list(demo.SPLIT_PLOT_FACTORS)
-    design = lw.full_factorial(factors, seed=3)  # 2 whole plots: nothing left for the whole-plot stratum
+    with pytest.warns(LevelwiseWarning, match="only 2 whole plots"):
+        design = lw.full_factorial(factors, seed=3)  # 2 whole plots: nothing left for the whole-plot stratum
     study = Study(factors)
     study.add_stage("one", design)
     study.add_response("y")

@@ -42,6 +42,8 @@ from levelwise import Design, Factor, Fit, LevelwiseError, Study
 from levelwise._errors import describe
 from levelwise.model import GlmFit, MixedFit
 
+from ._shared_fitting import FittingMixin, default_setting, is_categorical
+from ._shared_goals import GoalsMixin
 from ._study_table import DEFAULT_MODEL, study_from_table
 
 #: Traits that only a writable model may change (the inputs and the outputs of fitting).
@@ -52,16 +54,6 @@ MIRRORS = ("factors", "responses", "units", "models", "exclusions", "revision", 
 
 class ReadOnlyError(LevelwiseError):
     """A change was asked of a read-only shared model."""
-
-
-def is_categorical(factor: Factor) -> bool:
-    """True for a factor with named levels (levelwise ``Factor(name, levels=[...])``)."""
-    return bool(getattr(factor, "is_categorical", False))
-
-
-def default_setting(factor: Factor):
-    """Where a factor starts: its centre, or the first level of a categorical factor."""
-    return factor.levels[0] if is_categorical(factor) else factor.center
 
 
 class AnyFit(abc.ABC):  # noqa: B024 - a type to register fits with, no methods of its own
@@ -84,7 +76,7 @@ class _NoneChecked(traitlets.Instance):
         return super()._validate(obj, value)
 
 
-class SharedModel(traitlets.HasTraits):
+class SharedModel(GoalsMixin, FittingMixin, traitlets.HasTraits):
     """A view over a :class:`levelwise.Study` (factors, runs, responses, models, exclusions) with its current fits.
 
     Build it on a study with :meth:`from_study`; the constructor builds the study from a table.
@@ -456,185 +448,6 @@ class SharedModel(traitlets.HasTraits):
     def set_settings(self, **settings) -> None:
         """Move some factor settings, e.g. ``shared.set_settings(Oven=195)``."""
         self.settings = {**self.settings, **settings}
-
-    def set_goals(self, goals: dict) -> None:
-        """Set the optimisation goals, ``{response: {"goal": "maximize", ...}}`` (allowed read-only)."""
-        if not isinstance(goals, dict):
-            raise LevelwiseError(f"The 'goals' must be a dict of response -> goal. Got {describe(goals)}.")
-        for name in goals:
-            self._check_response_name(name)
-        self.goals = dict(goals)
-        if not self.read_only:
-            self._write_goals(goals)
-
-    #: How the starting limits of a goal are chosen (shown on screen beside the goals).
-    GOAL_DEFAULTS = ("Starting limits come from the recorded values: to maximise, from the smallest (desirability 0) "
-                     "to the largest (desirability 1) value seen; to minimise, from the largest (0) down to the "
-                     "smallest (1); to hit a target, the observed range on either side of the target.")
-
-    def goal_for(self, response: str, kind: str, target=None) -> dict | None:
-        """A goal of *kind* for *response* with limits from its recorded values (see ``GOAL_DEFAULTS``).
-
-        None when the response has fewer than two different recorded values (no range to start from).
-        """
-        values = pd.to_numeric(self.data[response], errors="coerce").to_numpy(dtype=float) \
-            if response in self.data else np.array([])
-        values = values[np.isfinite(values)]
-        if values.size < 2 or values.min() == values.max():
-            return None
-        lo, hi = float(values.min()), float(values.max())
-        if kind == "maximize":
-            return {"goal": kind, "lower_limit": lo, "target": hi, "s": 1.0, "weight": 1.0}
-        if kind == "minimize":
-            return {"goal": kind, "target": lo, "upper_limit": hi, "t": 1.0, "weight": 1.0}
-        if kind == "target":
-            aim = float(target) if target is not None else (lo + hi) / 2
-            span = hi - lo
-            lower = lo if lo < aim else aim - span
-            upper = hi if hi > aim else aim + span
-            return {"goal": kind, "lower_limit": lower, "target": aim, "upper_limit": upper, "s": 1.0, "t": 1.0,
-                    "weight": 1.0}
-        return None
-
-    def study_goals(self) -> dict:
-        """The goals the study stores (kind, and the target of a target goal), with limits from the data."""
-        out = {}
-        for name, spec in self.study.responses.items():
-            if spec.goal != "none":
-                goal = self.goal_for(name, spec.goal, spec.target)
-                if goal is not None:
-                    out[name] = goal
-        return out
-
-    def _write_goals(self, goals: dict) -> None:
-        """Write the goal kinds (and a target goal's target) back to the study, each change with its audit entry."""
-        study = self.study
-        changed = False
-        for name, spec in study.responses.items():
-            goal = goals.get(name)
-            kind = "none" if goal is None else goal.get("goal", goal.get("kind", "none"))
-            target = float(goal["target"]) if kind == "target" else None
-            if kind != spec.goal or (kind == "target" and target != spec.target):
-                study.set_goal(name, kind, target)
-                changed = True
-        if changed:
-            self._sync()
-
-    def use_study(self, study: Study) -> None:
-        """Switch to another study (a loaded file or an imported table): every view follows at once.
-
-        Refused when read-only.
-        """
-        self._check_writable("switching the study")
-        if not isinstance(study, Study):
-            raise LevelwiseError(f"The 'study' must be a levelwise Study. Got {describe(study)} instead.")
-        if not study.response_names:
-            raise LevelwiseError("The study has no responses yet: add one with study.add_response(name, units).")
-        with self._writing(), self.hold_trait_notifications():
-            self.fits = {}
-            self.fit = None
-            self.design = None
-            self.goals = {}
-            self.error = ""
-            self._attach(study)
-            self.response = study.response_names[0]
-            self.settings = {f.name: default_setting(f) for f in study.factors}
-        self._refit()
-        self.goals = self.study_goals()
-
-    def new_study(self, design: Design, responses, *, models=None) -> None:
-        """Replace the whole study by a fresh one on *design* with blank responses.
-
-        *responses* maps each response name to its units (or is a list of names).
-        Refused when read-only.
-        """
-        self._check_writable("creating a study")
-        if not isinstance(design, Design):
-            raise LevelwiseError(f"The 'design' parameter must be a levelwise Design. Got {describe(design)}.")
-        units = dict(responses) if isinstance(responses, dict) else {name: "" for name in responses}
-        if not units:
-            raise LevelwiseError("A new study needs at least one response name.")
-        names = tuple(units)
-        clashes = [n for n in names if n in design.table.columns]
-        if clashes or any(not isinstance(n, str) or not n.strip() for n in names):
-            raise LevelwiseError(
-                f"Response names must be non-empty and differ from the run-sheet columns. Got {list(names)}."
-            )
-        study = Study(list(design.factors))
-        study.add_stage("design", design)
-        for name in names:
-            study.add_response(name, units=str(units[name]))
-            study.set_model(name, (models or {}).get(name, DEFAULT_MODEL))
-        with self._writing(), self.hold_trait_notifications():
-            self.fits = {}
-            self.fit = None
-            self.design = design
-            self.goals = {}
-            self._attach(study)
-            self.response = names[0]
-            self.settings = {f.name: default_setting(f) for f in design.factors}
-        self._refit()
-        self.goals = self.study_goals()
-
-    # ----- refitting ----------------------------------------------------------------------------
-    def excluded_mask(self) -> np.ndarray:
-        """True for every row of ``data`` whose run is excluded from every response."""
-        if not self.exclusions:
-            return np.zeros(len(self.data), dtype=bool)
-        return np.isin(self.run_ids(), np.array(list(self.exclusions)))
-
-    def label_of(self, run):
-        """The row label of ``data`` for run id *run*: the run id itself (``data`` is indexed by run id)."""
-        if run not in self.data.index:
-            raise LevelwiseError(f"The run id {run!r} must name a run of the study.")
-        return run
-
-    def _exclusions_for(self, name: str) -> list:
-        """(run id, reason) of every exclusion that applies to response *name*."""
-        return [(int(row.run), row.reason) for row in self.study.exclusions.itertuples()
-                if row.response is None or row.response == name]
-
-    def _fit_one(self, name: str, model: str | None = None):
-        """Fit one response on every run of the study, then leave the excluded runs out by the kernel's update."""
-        model = self.models[name] if model is None else model
-        # The study's fit: a split-plot study (runs with whole plots) gets the REML fit (MixedFit).
-        result = self.study.fit(name, model, level=self.level, apply_exclusions=False)
-        for run, reason in self._exclusions_for(name):
-            if run in result.runs:  # a run with no value for this response is not in its fit
-                result = result.exclude(run, reason)
-        return result
-
-    def fit_model(self, model: str, response: str | None = None):
-        """A fresh kernel fit of *model* for *response* (default: displayed) on the current runs.
-
-        Nothing in the shared model changes (allowed read-only): views use it to look at a
-        candidate model, e.g. every two-factor interaction for a half-normal plot.
-        """
-        name = self._check_response_name(self.response if response is None else response)
-        return self._fit_one(name, model)
-
-    def _refit(self, responses=None) -> None:
-        """New fits for *responses* (default all); a failure keeps that response's last good fit."""
-        targets = list(self.responses) if responses is None else list(responses)
-        fits, errors = dict(self.fits), dict(self.errors)
-        for name in targets:
-            try:
-                fits[name] = self._fit_one(name)
-            except LevelwiseError as exc:
-                errors[name] = f"{name}: {exc}"
-            else:
-                errors.pop(name, None)
-        self._publish(fits, errors, targets)
-
-    def _publish(self, fits, errors, targets) -> None:
-        """Replace ``fits`` (one notification) and ``fit`` when the displayed response's fit changed."""
-        with self._writing(), self.hold_trait_notifications():
-            self.errors = errors
-            self.error = next((errors[name] for name in targets if name in errors), "")
-            self.fits = {name: fits[name] for name in self.responses if name in fits}
-            shown = self.fits.get(self.response)
-            if shown is not self.fit:
-                self.fit = shown
 
     def _on_response(self, change) -> None:
         with self._writing():

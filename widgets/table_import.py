@@ -2,9 +2,9 @@
 
 The tool guesses which columns are factors, responses, the run id and achieved settings
 (:func:`levelwise.study.guess_columns`); the user confirms them and sets each factor's low, high,
-levels and units in the same step. The import goes through :meth:`levelwise.Study.from_table` (the one
-validator): every problem is listed by spreadsheet row and column and nothing changes; every column
-not used is listed.
+levels, units and whether it is hard to change (reset only between whole plots) in the same step.
+The import goes through :meth:`levelwise.Study.from_table` (the one validator): every problem is
+listed by spreadsheet row and column and nothing changes; every column not used is listed.
 """
 
 from __future__ import annotations
@@ -14,7 +14,7 @@ import warnings
 
 import ipywidgets as ipw
 
-from levelwise import Factor, ImportDataError, LevelwiseError, read_table
+from levelwise import Factor, LevelwiseError, read_table
 from levelwise.study import guess_columns, split_header, study_from_table
 
 from ._base import View
@@ -38,7 +38,9 @@ class TableImport(View):
     """Upload (``lw-upload``), the column mapping (``lw-mapping``), "Make the study" (``lw-import``).
 
     ``rows`` maps each column of the table to its editors: ``role`` (Dropdown), and for a factor
-    ``low``, ``high`` (Text), ``levels`` (Text, comma-separated, for a factor set by name) and ``units``.
+    ``low``, ``high`` (Text), ``levels`` (Text, comma-separated, for a factor set by name), ``units`` and
+    ``hard`` (Checkbox ``lw-map-hard``: hard to change, reset only between whole plots; a ``whole_plot`` column
+    of the table says which runs share a reset, else each run is its own whole plot).
     """
 
     def __init__(self, shared):
@@ -92,7 +94,9 @@ class TableImport(View):
                                      style={"description_width": "initial"})
             row["units"] = ipw.Text(value=units or "", description="units", layout=ipw.Layout(width="120px"),
                                     style={"description_width": "initial"})
-            for key in ("role", "low", "high", "levels", "units"):
+            row["hard"] = ipw.Checkbox(value=False, description="hard to change", indent=False,
+                                       layout=ipw.Layout(width="140px"))
+            for key in ("role", "low", "high", "levels", "units", "hard"):
                 row[key].add_class(f"lw-map-{key}")
             rows[column] = row
             boxes.append(ipw.HBox([label, *row.values()], layout=ipw.Layout(flex_flow="row wrap"))
@@ -104,15 +108,16 @@ class TableImport(View):
 
     def _factor(self, column, row) -> Factor:
         name, _ = split_header(str(column))
-        units = row["units"].value.strip()
+        units, hard = row["units"].value.strip(), bool(row["hard"].value)
         if row["levels"].value.strip() and not (row["low"].value.strip() and row["high"].value.strip()):
-            return Factor(name, units=units, levels=[t.strip() for t in row["levels"].value.split(",") if t.strip()])
+            return Factor(name, units=units, levels=[t.strip() for t in row["levels"].value.split(",") if t.strip()],
+                          hard_to_change=hard)
         try:
             low, high = float(row["low"].value), float(row["high"].value)
         except ValueError:
             raise LevelwiseError(f"Column {column!r}: low and high must be numbers; got "
                                  f"{row['low'].value!r} and {row['high'].value!r}.") from None
-        return Factor(name, low, high, units=units)
+        return Factor(name, low, high, units=units, hard_to_change=hard)
 
     def make_study(self):
         """Build the study from the confirmed mapping and switch every view to it."""
@@ -139,7 +144,7 @@ class TableImport(View):
                 study, report = study_from_table(frame, factors=factors, responses=responses,
                                                  run=runs[0] if runs else None, achieved=achieved,
                                                  title=self.name.rsplit(".", 1)[0])
-        except ImportDataError as exc:
+        except LevelwiseError as exc:  # ImportDataError lists its problems; a split-plot refusal is one
             problems = getattr(exc, "problems", ()) or (str(exc),)
             self.report.value = ("<b>Nothing was imported. Problems:</b><ul class='lw-import-problems'>"
                                  + "".join(f"<li>{html.escape(str(p))}</li>" for p in problems) + "</ul>")
@@ -148,6 +153,8 @@ class TableImport(View):
         notes = "".join(f"<li>{html.escape(str(w))}</li>" for w in report.warnings)
         self.report.value = (f"<span class='lw-import-done'>Made a study of {len(study.run_ids)} runs from "
                              f"{html.escape(self.name)}: factors {html.escape(', '.join(study.factor_names))}; "
-                             f"responses {html.escape(', '.join(study.response_names))}.</span>"
+                             f"responses {html.escape(', '.join(study.response_names))}"
+                             + (f"; hard to change: {html.escape(', '.join(study.hard_to_change))}"
+                                if study.hard_to_change else "") + ".</span>"
                              + (f"<ul>{notes}</ul>" if notes else ""))
         return study

@@ -31,6 +31,7 @@ from .._errors import LevelwiseError, describe
 from ._conference import SHIPPED_ORDERS, conference_matrix
 from ._design import Design, _check_count
 from ._factors import as_factors
+from ._splitplot_checks import refuse_hard_to_change
 
 FOLD_ROLE = "fold_pair"
 CENTRE_ROLE = "centre"
@@ -74,6 +75,7 @@ def definitive_screening(factors, extra_centre_runs: int = 0, randomize: bool = 
     (13, [-1.0, 0.0, 1.0])
     """
     factors = as_factors(factors)
+    refuse_hard_to_change(factors, "definitive_screening")
     extra = _check_count(extra_centre_runs, "extra_centre_runs", 0)
     for f in factors:
         if f.is_categorical and len(f.levels) != 2:

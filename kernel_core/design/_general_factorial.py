@@ -29,6 +29,7 @@ import numpy as np
 from .._errors import LevelwiseError
 from ._design import Design, _check_count
 from ._factors import as_factors
+from ._splitplot_checks import refuse_hard_to_change
 
 #: Run count above which a full factorial is refused (a typo such as replicates=10**6 must not hang the kernel).
 MAX_RUNS = 1_000_000
@@ -143,6 +144,7 @@ def general_factorial(factors, center_points=0, replicates=1, blocks=1, randomiz
     (9, ['a', 'b', 'c', 'a'], [150.0, 150.0, 150.0, 175.0])
     """
     factors = as_factors(factors)
+    refuse_hard_to_change(factors, "general_factorial (a full factorial with more than two levels)")
     center_points = _check_count(center_points, "center_points", 0)
     replicates = _check_count(replicates, "replicates", 1)
     blocks = _check_count(blocks, "blocks", 1)

@@ -198,6 +198,9 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
         return split_plot_optimal(factors, model, runs, whole_plots, criterion, variance_ratio, starts, seed,
                                   progress if callable(progress) else None, randomize)
     from ._categorical_design import coordinate_exchange, has_many_levels
+    from ._splitplot_checks import refuse_hard_to_change
+
+    refuse_hard_to_change(factors, "optimal_design without 'whole_plots'")
 
     if has_many_levels(factors):  # categorical factors with more than 2 levels (issue 14)
         return coordinate_exchange(factors, model, runs, criterion, constraints, fixed_runs, starts, seed,

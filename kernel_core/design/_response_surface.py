@@ -12,6 +12,7 @@ from .._errors import LevelwiseError, describe
 from ._design import Design, _check_count
 from ._factorial import basic_runs
 from ._factors import as_factors
+from ._splitplot_checks import refuse_hard_to_change
 
 
 def _continuous(factors, what):
@@ -71,6 +72,7 @@ def central_composite(factors, alpha="rotatable", kind="circumscribed", center_p
     (20, 1.6818)
     """
     factors = as_factors(factors)
+    refuse_hard_to_change(factors, "central_composite")
     _continuous(factors, "central_composite")
     k = len(factors)
     if k < 2:
@@ -184,6 +186,7 @@ def box_behnken(factors, center_points=None, randomize=True, seed=None) -> Desig
     12
     """
     factors = as_factors(factors)
+    refuse_hard_to_change(factors, "box_behnken")
     _continuous(factors, "box_behnken")
     k = len(factors)
     if k not in BB_GROUPS:

@@ -14,6 +14,7 @@ import numpy as np
 from .._errors import LevelwiseError, describe
 from ._design import Design, _check_count
 from ._factors import as_factors
+from ._splitplot_checks import refuse_hard_to_change
 
 #: Generator rows (first row of the cyclic part), "+" high and "-" low.
 GENERATORS = {
@@ -62,6 +63,7 @@ def plackett_burman(factors, runs=None, center_points=0, randomize=True, seed=No
     (12, 'Plackett-Burman')
     """
     factors = as_factors(factors)
+    refuse_hard_to_change(factors, "plackett_burman")
     k = len(factors)
     center_points = _check_count(center_points, "center_points", 0)
     if runs is None:

@@ -141,7 +141,11 @@ def maybe_split_plot(design, replicates: int = 1, randomize: bool = True, seed=N
     """*design* unchanged when no factor is hard to change, else :func:`split_plot_order` of it."""
     if not hard_to_change_factors(design.factors):
         return design
-    return split_plot_order(design, replicates=replicates, randomize=randomize, seed=seed)
+    from ._splitplot_checks import warn_few_whole_plots
+
+    result = split_plot_order(design, replicates=replicates, randomize=randomize, seed=seed)
+    warn_few_whole_plots(result, stacklevel=4)
+    return result
 
 
 def check_whole_plot_column(data, column):

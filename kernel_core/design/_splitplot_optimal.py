@@ -137,4 +137,8 @@ def split_plot_optimal(factors, model, runs, whole_plots, criterion="D", varianc
             "information": "X' V^-1 X with V = I + variance_ratio Z Z' (units of 1 / residual variance)"}
     design = Design(factors, points, ["optimal"] * runs, None, randomize=False, seed=seed,
                     kind=f"{criterion}-optimal split-plot", metadata=meta)
-    return split_plot_order(design, randomize=randomize, seed=seed, plots=plot + 1)
+    result = split_plot_order(design, randomize=randomize, seed=seed, plots=plot + 1)
+    from ._splitplot_checks import warn_few_whole_plots
+
+    warn_few_whole_plots(result, rows_of(result.coded.to_numpy(dtype=float)), spec.formula, stacklevel=4)
+    return result

@@ -3,7 +3,7 @@
 * :class:`Study` -- factors, design stages, runs named by run id (planned and achieved settings,
   responses), exclusions with reasons, models, notes and an audit log; the single source of truth
   that the widgets and dashboards view.
-* The file (``format_version`` 3): :meth:`Study.save`, :meth:`Study.load`; older formats are migrated
+* The file (``format_version`` 4): :meth:`Study.save`, :meth:`Study.load`; older formats are migrated
   on load (:data:`MIGRATIONS`).
 * Table import: :func:`import_table` (CSV, XLSX or DataFrame, merged by run id, every problem named
   by its spreadsheet row) and :func:`read_run_sheet`, which goes through it.

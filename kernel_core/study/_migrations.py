@@ -1,4 +1,4 @@
-"""Migrations of older study files, applied in turn on load: format 0 -> 1 -> 2 -> 3.
+"""Migrations of older study files, applied in turn on load: format 0 -> 1 -> 2 -> 3 -> 4.
 
 Each migration is frozen: it carries its own copy of every name it translates, so a later
 renaming in levelwise never changes what an old file turns into.
@@ -175,9 +175,14 @@ def migrate_v3(document: dict) -> dict:
     """Turn a format-3 study into a format-4 document.
 
     Format 4 adds optional keys only (absent = the format-3 meaning), so the data is kept as it is: a response
-    without ``family`` is a measurement (count responses, issue 15: ``family``, ``link``, ``trials``,
-    ``exposure``). The audit log gets one ``migrate`` entry and the SHA-256 is recomputed (the loader checked the
-    format-3 hash first). A document that breaks the layout is left for the format-4 schema check to report.
+    without ``lower_limit``, ``upper_limit``, ``s``, ``t`` or ``weight`` has its goal's limits started from the
+    recorded values, as before (issue 16). The audit log gets one ``migrate`` entry and the SHA-256 is
+    recomputed (the loader checked the format-3 hash first). A document that breaks the layout is left for the
+    format-4 schema check to report.
+    Format 4 also adds ``data.mixture`` (the components, total, bounds, constraints and pseudo-component choice
+    of a mixture study, issue 12; absent = no components).
+    Format 4 also adds the count keys of a response (``family``, ``link``, ``trials``, ``exposure``; issue 15;
+    absent = a measurement).
     """
     document = copy.deepcopy(document)
     data, audit = document.get("data"), document.get("audit")

@@ -26,8 +26,9 @@ from ._format import (
     remove_leftovers,
     write_atomically,
 )
+from ._goals import GOAL_FIELDS
 from ._migrations import MIGRATIONS
-from ._values import _factor_entry, _finite, _is_categorical, _name, _plain, _setting, _text, checked_model
+from ._values import _factor_entry, _finite, _is_categorical, _name, _plain, _setting, _text
 
 
 def _file_key(path: Path) -> str:
@@ -61,8 +62,10 @@ class StudyFile:
 
     def _data_block(self) -> dict:
         runs = list(self._runs.values())
+        mixture = {"mixture": self._mixture_entry()} if self.is_mixture else {}  # format 4, optional
         return (
             {
+                **mixture,
                 "title": self._title,
                 "factors": [_factor_entry(f) for f in self._factors],
                 "responses": [{"name": name, **spec} for name, spec in self._responses.items()],
@@ -242,10 +245,18 @@ class StudyFile:
                 _text(data[field], field, kind=kind)
             except LevelwiseError as exc:
                 fail(f"data.{field}", str(exc))
+        mixture = {}
+        if "mixture" in data:
+            try:
+                mixture = cls._mixture_arguments(data["mixture"])
+            except LevelwiseError as exc:
+                fail("data.mixture", str(exc))
+        elif not factors:
+            fail("data.factors", "a study without mixture components needs at least one factor")
         try:
-            study = cls(factors, title=data["title"], notes=data["notes"])
+            study = cls(factors, title=data["title"], notes=data["notes"], **mixture)
         except LevelwiseError as exc:
-            fail("data.factors", str(exc))
+            fail("data.mixture" if mixture else "data.factors", str(exc))
         for i, entry in enumerate(audit):
             if entry.get("reason") is not None:
                 try:
@@ -253,14 +264,16 @@ class StudyFile:
                 except LevelwiseError as exc:
                     fail(f"audit[{i}].reason", str(exc))
         study._audit = [dict(entry) for entry in audit]
-        names = set(study.factor_names)
+        names = set(study.setting_names)
         for i, spec in enumerate(data["responses"]):
             name = spec["name"]
             try:
                 _name(name, "response name")
                 if name in names or name in study._responses:
                     raise LevelwiseError(f"the response name {name!r} is used twice (or is also a factor name)")
-                study._responses[name] = cls._response_spec(name, spec["units"], spec["goal"], spec["target"])
+                study._responses[name] = cls._response_spec(
+                    name, spec["units"], spec["goal"], spec["target"],
+                    **{key: spec[key] for key in GOAL_FIELDS if key in spec})
             except LevelwiseError as exc:
                 fail(f"data.responses[{i}]", str(exc))
         for i, spec in enumerate(data["responses"]):  # count keys (format 4), once every response is known
@@ -291,7 +304,7 @@ class StudyFile:
             if run["stage"] not in stage_names:
                 fail(f"{where}.stage", f"the stage {run['stage']!r} is not one of the stages {sorted(stage_names)}")
             if set(run["planned"]) != names:
-                fail(f"{where}.planned", f"must give every factor {study.factor_names} and no other; "
+                fail(f"{where}.planned", f"must give every factor {study.setting_names} and no other; "
                                          f"got {sorted(run['planned'])}")
             for block, allowed in (("achieved", names), ("responses", set(study._responses))):
                 extra = sorted(set(run[block]) - allowed)
@@ -320,6 +333,13 @@ class StudyFile:
                 check_runs(study._responses, [study._runs[run_id]])
             except LevelwiseError as exc:
                 fail(f"{where}.responses", str(exc))
+        if study.is_mixture and study._runs:
+            try:
+                study._mixture.check_blends([[r["planned"][n] for n in study.component_names]
+                                             for r in study._runs.values()], "planned blend",
+                                            rows=[f"of run {run}" for run in study._runs])
+            except LevelwiseError as exc:
+                fail("data.runs", str(exc))
         for i, item in enumerate(data["exclusions"]):
             item = {**item, "run": int(item["run"])}
             try:
@@ -335,7 +355,7 @@ class StudyFile:
             if response not in study._responses:
                 fail(f"data.models.{response}", "is not a response of the study")
             try:
-                checked_model(model, study.factor_names)
+                study._checked_model(model)
             except LevelwiseError as exc:
                 fail(f"data.models.{response}", str(exc))
             study._models[response] = model
@@ -352,6 +372,8 @@ class StudyFile:
             The file the code loads; defaults to ``"study.json"``.
         """
         path = str(path) if path is not None else "study.json"
+        if self.is_mixture:
+            return self._mixture_code(path)
         lines = [
             "# Rebuilds the analysis of this study from its file.",
             "from levelwise import Factor, fit",

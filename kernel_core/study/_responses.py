@@ -1,14 +1,16 @@
 """Adding responses and changing their goals: a part of :class:`Study`, kept in its own module.
 
 A response is a measurement, or a count (binomial passes out of trials, a Poisson count) whose family, link and
-trials or exposure response are recorded with it (see :mod:`._count_responses`).
+trials or exposure response are recorded with it (see :mod:`._count_responses`). Its goal may keep the
+desirability fields (see :mod:`._goals`).
 """
 
 from __future__ import annotations
 
-from .._errors import LevelwiseError, describe
+from .._errors import LevelwiseError
 from ._count_responses import COUNT_KEYS, check_runs, count_spec
-from ._values import GOALS, _finite, _name, _text
+from ._goals import goal_words, response_spec
+from ._values import _name
 
 
 class StudyResponses:
@@ -16,8 +18,10 @@ class StudyResponses:
 
     def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None, *,
                      family: str | None = None, trials: str | None = None, exposure: str | None = None,
-                     link: str | None = None) -> None:
+                     link: str | None = None, **goal_fields) -> None:
         """Add a response with its units and goal (``"none"``, ``"maximize"``, ``"minimize"``, ``"target"``).
+
+        *goal_fields* are the optional desirability fields of :meth:`set_goal`.
 
         A count response gives its ``family``: ``"binomial"`` (passes out of trials; ``trials`` names the
         response holding each run's number of trials; ``link`` ``"logit"`` (default) or ``"probit"``) or
@@ -26,9 +30,9 @@ class StudyResponses:
         is checked: whole numbers >= 0, passes at most the trials, trials >= 1, exposure > 0.
         """
         name = _name(name, "response name")
-        if name in self._responses or name in self.factor_names:
+        if name in self._responses or name in self.setting_names:
             raise LevelwiseError(f"The 'response name' {name!r} is already used by a response or a factor.")
-        spec = self._response_spec(name, units, goal, target)
+        spec = self._response_spec(name, units, goal, target, **goal_fields)
         spec.update(count_spec(self._responses, name, family, trials, exposure, link))
         if spec.get("family"):  # the partner may hold values already: check them against the new role
             check_runs({**self._responses, name: spec}, self._runs.values())
@@ -40,22 +44,25 @@ class StudyResponses:
                                                     f"{partner!r}" if partner else "")
         self._log("add_response", f"response {name!r} added ({spec['units'] or 'no units'}, goal {goal}{kind})")
 
-    def set_goal(self, response: str, goal: str, target: float | None = None) -> None:
-        """Change a response's goal."""
+    def set_goal(self, response: str, goal: str, target: float | None = None, *, lower_limit=None,
+                 upper_limit=None, s=None, t=None, weight=None) -> None:
+        """Change a response's goal, with the desirability fields to keep in the file (each optional).
+
+        ``lower_limit``, ``target``, ``upper_limit``, the exponents ``s`` and ``t`` and the relative ``weight``
+        are those of :class:`levelwise.Goal`; a field its kind does not use is refused (a maximise goal has no
+        upper limit or ``t``). Fields left out are not stored (the workbench starts them from the data). A
+        count response keeps its family; its limits are on the response scale of the fit (a probability or a
+        rate).
+        """
         name = self._response(response)
-        spec = self._response_spec(name, self._responses[name]["units"], goal, target)
-        spec.update({k: v for k, v in self._responses[name].items() if k in COUNT_KEYS})
+        spec = self._response_spec(name, self._responses[name]["units"], goal, target, lower_limit=lower_limit,
+                                   upper_limit=upper_limit, s=s, t=t, weight=weight)
+        spec.update({key: value for key, value in self._responses[name].items() if key in COUNT_KEYS})
+        if spec == self._responses[name]:
+            return
         self._responses[name] = spec
-        self._log("set_goal", f"goal of {name!r} set to {goal}" + (f" {spec['target']}" if goal == "target" else ""))
+        self._log("set_goal", goal_words(name, spec))
 
     @staticmethod
-    def _response_spec(name, units, goal, target) -> dict:
-        units = _text(units, f"units of response {name!r}", kind="units")
-        if goal not in GOALS:
-            raise LevelwiseError(f"The 'goal' of response {name!r} must be one of {list(GOALS)}. Got {describe(goal)}.")
-        if goal == "target":
-            target = _finite(target, f"target of response {name!r}")
-        elif target is not None:
-            raise LevelwiseError(f"The 'target' of response {name!r} is only allowed with goal='target'.")
-        return {"units": units, "goal": goal, "target": target}
-
+    def _response_spec(name, units, goal, target, **goal_fields) -> dict:
+        return response_spec(name, units, goal, target, **goal_fields)

@@ -14,6 +14,7 @@ import pandas as pd
 from .._errors import LevelwiseError, describe
 from ..design import Factor, as_factors
 from . import _values
+from ._mixture_study import StudyMixture
 from ._persist import StudyFile
 from ._records import StudyRecords
 from ._responses import StudyResponses
@@ -30,20 +31,34 @@ from ._values import (
     _run_id,
     _setting,
     _text,
-    checked_model,
 )
+
+
+def _given(factors) -> bool:
+    """False for an empty list of factors (a mixture study without process factors)."""
+    return not (isinstance(factors, (list, tuple)) and len(factors) == 0)
+
 
 #: The role values of format 1 (and of designs made before the rename), read as the current ones.
 _OLD_ROLES = {"factorial": "corner", "center": "centre", "edge": "edge_midpoint"}
 
 
-class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
+class Study(StudyResponses, StudyMixture, StudyRecords, StudyTables, StudyFile):
     """An experiment's complete record, with an audit log of every change.
 
     Parameters
     ----------
     factors : list of Factor
-        The study factors; every stage's runs give a planned setting for each.
+        The study factors (the process factors of a mixture study, which may have none); every stage's runs
+        give a planned setting for each.
+    components : list of Component or Mixture, optional
+        Mixture components: each run's amounts sum to *total* within the bounds (and *constraints*).
+    total : float, optional
+        The mixture total (default 1; 100 for percent).
+    pseudo : bool, default False
+        Fit the mixture models on L-pseudo-components.
+    constraints : str or list of str, optional
+        Linear constraints over the component amounts, e.g. ``"Filler + Pigment <= 40"``.
     title : str, optional
     notes : str, optional
         Free text.
@@ -60,8 +75,10 @@ class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
     np.float64(4.5)
     """
 
-    def __init__(self, factors, *, title: str = "", notes: str = ""):
-        self._factors = as_factors(factors)
+    def __init__(self, factors=(), *, components=None, total: float | None = None, pseudo: bool = False,
+                 constraints=None, title: str = "", notes: str = ""):
+        self._factors = () if components is not None and not _given(factors) else as_factors(factors)
+        self._init_mixture(components, total, pseudo, constraints)
         for f in self._factors:
             for level in getattr(f, "levels", ()):
                 if isinstance(level, str):
@@ -79,7 +96,8 @@ class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
         self._models: dict[str, str] = {}
         self._audit: list[dict] = []
         self._file_revisions: dict[str, str] = {}  # file -> SHA-256 of its bytes at this study's load or last save
-        self._log("create", f"study created with factors {[f.name for f in self._factors]}")
+        blend = f" and mixture components {self.component_names}" if self.is_mixture else ""
+        self._log("create", f"study created with factors {[f.name for f in self._factors]}{blend}")
 
     @classmethod
     def from_table(cls, source, *, factors, responses, run: str | None = None, achieved: dict | None = None,
@@ -185,7 +203,10 @@ class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
         for f in self._factors:
             if f.name == name:
                 return f
-        raise LevelwiseError(f"The 'factor' must be one of {self.factor_names}. Got {describe(name)} instead.")
+        component = self._component_factor(name)
+        if component is not None:  # a component's amount, checked like a continuous setting
+            return component
+        raise LevelwiseError(f"The 'factor' must be one of {self.setting_names}. Got {describe(name)} instead.")
 
     def _run(self, run) -> dict:
         run_id = _run_id(run)
@@ -246,15 +267,16 @@ class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
             raise LevelwiseError(
                 f"The 'design' must be a Design or a DataFrame of factor settings. Got {describe(design)} instead."
             )
-        missing = [n for n in self.factor_names if n not in table.columns]
+        missing = [n for n in self.setting_names if n not in table.columns]
         if missing:
+            what = "factor(s) or component(s)" if self.is_mixture else "factor(s)"
             raise LevelwiseError(
-                f"The 'design' has no column for factor(s) {missing}; it must give every study factor "
-                f"{self.factor_names}."
+                f"The 'design' has no column for {what} {missing}; it must give every study "
+                f"{'setting' if self.is_mixture else 'factor'} {self.setting_names}."
             )
         n = len(table)
         settings = {}
-        for f in self._factors:
+        for f in self._setting_factors():
             if _is_categorical(f):
                 settings[f.name] = [
                     _setting(f, value, f"planned setting of factor {f.name!r} in row {row + 1} of the design")
@@ -272,6 +294,7 @@ class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
                     f"number. Got {describe(raw)} instead."
                 )
             settings[f.name] = values
+        self._check_stage_blends(settings, n)
         block = self._int_column(table, "block", 1, n)
         order_column = "standard_order" if "standard_order" in table else "std_order"
         standard_order = self._int_column(table, order_column, None, n)
@@ -281,7 +304,7 @@ class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
         ]
         plots, plot_note = self._stage_whole_plots(table, n, settings)
         ids = self._stage_ids(table, n, renumber)
-        names = self.factor_names
+        names = self.setting_names
         for i, run_id in enumerate(ids):
             self._runs[run_id] = {
                 "run": run_id,
@@ -407,7 +430,7 @@ class Study(StudyResponses, StudyRecords, StudyTables, StudyFile):
         """Set the model (a Wilkinson formula or preset over the factor names) for a response."""
         reason = _reason(reason)
         response = self._response(response)
-        checked_model(model, self.factor_names)  # raises LevelwiseError naming the bad term
+        self._checked_model(model)  # raises LevelwiseError naming the bad term
         _text(model, "model")
         old = self._models.get(response)
         self._models[response] = model

@@ -19,7 +19,8 @@ GOALS = ("none", "maximize", "minimize", "target")
 
 @dataclass(frozen=True)
 class Response:
-    """A response: its name, units and goal (``target`` only for ``goal="target"``).
+    """A response: its name, units and goal, with the goal's desirability fields that are stored (None: not
+    stored; the workbench starts them from the data).
 
     A count response also has its ``family`` (``"binomial"``: passes out of the trials held by the response
     named ``trials``; ``"poisson"``: a count, per unit of the response named ``exposure`` when given) and its
@@ -30,6 +31,11 @@ class Response:
     units: str = ""
     goal: str = "none"
     target: float | None = None
+    lower_limit: float | None = None
+    upper_limit: float | None = None
+    s: float | None = None
+    t: float | None = None
+    weight: float | None = None
     family: str | None = None
     link: str | None = None
     trials: str | None = None
