@@ -1,4 +1,4 @@
-"""Study files of earlier formats load: format 0 -> 1 -> 2 -> 3, on every shipped and test study file."""
+"""Study files of earlier formats load: format 0 -> 1 -> 2 -> 3 -> 4, on every shipped and test study file."""
 
 from __future__ import annotations
 

@@ -31,7 +31,7 @@ from ..design._mixture_region import Mixture, as_mixture
 from ._fit import fit as _fit
 from ._formula import monomials, term_name
 from ._inputs import _check_level
-from ._mixture_terms import SCHEFFE_PRESETS, formula_text, model_exponents, scheffe_cubic_canonical
+from ._mixture_terms import SCHEFFE_PRESETS, formula_text, model_exponents, scheffe_cubic_canonical, split_crossed
 from ._result import _FIELDS, Fit
 
 
@@ -200,7 +200,8 @@ def _wrap(base: Fit, info: MixtureInfo) -> MixtureFit:
     new.__dict__.update(base.__dict__)
     if isinstance(info.model, tuple) or (isinstance(info.model, str) and info.model.strip() in SCHEFFE_PRESETS):
         # Show the preset (or the crossed pair) as the model's formula.
-        new.__dict__["spec"] = dataclasses.replace(base.spec, formula=str(info.model))
+        shown = " * ".join(info.model) if isinstance(info.model, tuple) else str(info.model)
+        new.__dict__["spec"] = dataclasses.replace(base.spec, formula=shown)
     new.__dict__["mixture_info"] = info
     return new
 
@@ -256,6 +257,7 @@ def fit_mixture(data, response, model, components, *, total=None, process=(), ps
         raise LevelwiseError(f"The 'response' parameter must name a column of the data {list(map(str, data.columns))}."
                              f" Got {describe(response)} instead.")
     level = _check_level(level)
+    model = split_crossed(model)
     info = MixtureInfo(mixture, process, bool(pseudo), model)
     missing = [n for n in info.names if n not in data.columns]
     if missing:

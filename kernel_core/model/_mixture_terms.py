@@ -74,6 +74,16 @@ def process_exponents(model, names) -> np.ndarray:
                          f"factors {list(names)}. Got {describe(model)}.")
 
 
+def split_crossed(model):
+    """A crossed model written as text, ``"scheffe_quadratic * main_effects"``, as the pair ``(preset, process
+    model)``; any other model is returned unchanged. (How a study file records a crossed mixture-process model.)"""
+    if isinstance(model, str) and "*" in model:
+        left, _, right = model.partition("*")
+        if left.strip() in SCHEFFE_PRESETS and right.strip():
+            return (left.strip(), right.strip())
+    return model
+
+
 def model_exponents(model, components, process=()) -> np.ndarray:
     """Exponent rows over ``components + process`` for a mixture *model*; no intercept row.
 
@@ -84,6 +94,7 @@ def model_exponents(model, components, process=()) -> np.ndarray:
     """
     components, process = list(components), list(process)
     q, k = len(components), len(process)
+    model = split_crossed(model)
     if isinstance(model, str) and model.strip() in SCHEFFE_PRESETS:
         mix = scheffe_exponents(model.strip(), q)
         return np.hstack([mix, np.zeros((len(mix), k), dtype=int)])
@@ -128,4 +139,4 @@ def formula_text(exponents, names) -> str:
     return formula_of(exponents, names)
 
 
-__all__ = ["PROCESS_PRESETS", "SCHEFFE_PRESETS", "model_exponents", "scheffe_exponents"]
+__all__ = ["PROCESS_PRESETS", "SCHEFFE_PRESETS", "model_exponents", "scheffe_exponents", "split_crossed"]

@@ -24,7 +24,7 @@ from ._export import (
 from ._format import FORMAT_VERSION, content_hash
 from ._from_table import guess_columns, study_from_table
 from ._import import guess_mapping, import_table
-from ._migrations import MIGRATIONS, migrate_v0, migrate_v1, migrate_v2
+from ._migrations import MIGRATIONS, migrate_v0, migrate_v1, migrate_v2, migrate_v3
 from ._run_sheet_reader import FilledRunSheet, read_run_sheet
 from ._study import Study
 from ._table_reader import ImportReport, Problem, parse_header, read_table, split_header
@@ -59,6 +59,7 @@ __all__ = [
     "migrate_v0",
     "migrate_v1",
     "migrate_v2",
+    "migrate_v3",
     "parse_header",
     "prediction_table",
     "read_run_sheet",

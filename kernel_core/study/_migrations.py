@@ -179,6 +179,10 @@ def migrate_v3(document: dict) -> dict:
     recorded values, as before (issue 16). The audit log gets one ``migrate`` entry and the SHA-256 is
     recomputed (the loader checked the format-3 hash first). A document that breaks the layout is left for the
     format-4 schema check to report.
+    Format 4 also adds ``data.mixture`` (the components, total, bounds, constraints and pseudo-component choice
+    of a mixture study, issue 12; absent = no components).
+    Format 4 also adds the count keys of a response (``family``, ``link``, ``trials``, ``exposure``; issue 15;
+    absent = a measurement).
     """
     document = copy.deepcopy(document)
     data, audit = document.get("data"), document.get("audit")
@@ -197,5 +201,4 @@ def migrate_v3(document: dict) -> dict:
 MIGRATIONS = {0: migrate_v0, 1: migrate_v1, 2: migrate_v2, 3: migrate_v3}
 
 __all__ = ["MIGRATIONS", "V1_GOAL_FIELDS", "V1_PRESETS", "V1_ROLES", "V1_RUN_KEYS", "migrate_v0", "migrate_v1",
-           "migrate_v2",
-           "migrate_v3"]
+           "migrate_v2", "migrate_v3"]

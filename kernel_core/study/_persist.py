@@ -15,6 +15,7 @@ from pathlib import Path
 
 from .._errors import LevelwiseError, OutsideEditError, StudyFileError, describe
 from ..design import Factor
+from ._count_responses import COUNT_KEYS, check_runs, count_spec
 from ._format import (
     FORMAT_VERSION,
     _pretty,
@@ -27,7 +28,7 @@ from ._format import (
 )
 from ._goals import GOAL_FIELDS
 from ._migrations import MIGRATIONS
-from ._values import _factor_entry, _finite, _is_categorical, _name, _plain, _setting, _text, checked_model
+from ._values import _factor_entry, _finite, _is_categorical, _name, _plain, _setting, _text
 
 
 def _file_key(path: Path) -> str:
@@ -61,8 +62,10 @@ class StudyFile:
 
     def _data_block(self) -> dict:
         runs = list(self._runs.values())
+        mixture = {"mixture": self._mixture_entry()} if self.is_mixture else {}  # format 4, optional
         return (
             {
+                **mixture,
                 "title": self._title,
                 "factors": [_factor_entry(f) for f in self._factors],
                 "responses": [{"name": name, **spec} for name, spec in self._responses.items()],
@@ -242,10 +245,18 @@ class StudyFile:
                 _text(data[field], field, kind=kind)
             except LevelwiseError as exc:
                 fail(f"data.{field}", str(exc))
+        mixture = {}
+        if "mixture" in data:
+            try:
+                mixture = cls._mixture_arguments(data["mixture"])
+            except LevelwiseError as exc:
+                fail("data.mixture", str(exc))
+        elif not factors:
+            fail("data.factors", "a study without mixture components needs at least one factor")
         try:
-            study = cls(factors, title=data["title"], notes=data["notes"])
+            study = cls(factors, title=data["title"], notes=data["notes"], **mixture)
         except LevelwiseError as exc:
-            fail("data.factors", str(exc))
+            fail("data.mixture" if mixture else "data.factors", str(exc))
         for i, entry in enumerate(audit):
             if entry.get("reason") is not None:
                 try:
@@ -253,7 +264,7 @@ class StudyFile:
                 except LevelwiseError as exc:
                     fail(f"audit[{i}].reason", str(exc))
         study._audit = [dict(entry) for entry in audit]
-        names = set(study.factor_names)
+        names = set(study.setting_names)
         for i, spec in enumerate(data["responses"]):
             name = spec["name"]
             try:
@@ -263,6 +274,13 @@ class StudyFile:
                 study._responses[name] = cls._response_spec(
                     name, spec["units"], spec["goal"], spec["target"],
                     **{key: spec[key] for key in GOAL_FIELDS if key in spec})
+            except LevelwiseError as exc:
+                fail(f"data.responses[{i}]", str(exc))
+        for i, spec in enumerate(data["responses"]):  # count keys (format 4), once every response is known
+            try:
+                study._responses[spec["name"]].update(count_spec(
+                    {n: (r if n != spec["name"] else {}) for n, r in study._responses.items()}, spec["name"],
+                    *(spec.get(key) for key in ("family", "trials", "exposure", "link"))))
             except LevelwiseError as exc:
                 fail(f"data.responses[{i}]", str(exc))
         for i, stage in enumerate(data["stages"]):
@@ -286,7 +304,7 @@ class StudyFile:
             if run["stage"] not in stage_names:
                 fail(f"{where}.stage", f"the stage {run['stage']!r} is not one of the stages {sorted(stage_names)}")
             if set(run["planned"]) != names:
-                fail(f"{where}.planned", f"must give every factor {study.factor_names} and no other; "
+                fail(f"{where}.planned", f"must give every factor {study.setting_names} and no other; "
                                          f"got {sorted(run['planned'])}")
             for block, allowed in (("achieved", names), ("responses", set(study._responses))):
                 extra = sorted(set(run[block]) - allowed)
@@ -311,6 +329,17 @@ class StudyFile:
             }
             if "whole_plot" in run:
                 study._runs[run_id]["whole_plot"] = int(run["whole_plot"])
+            try:
+                check_runs(study._responses, [study._runs[run_id]])
+            except LevelwiseError as exc:
+                fail(f"{where}.responses", str(exc))
+        if study.is_mixture and study._runs:
+            try:
+                study._mixture.check_blends([[r["planned"][n] for n in study.component_names]
+                                             for r in study._runs.values()], "planned blend",
+                                            rows=[f"of run {run}" for run in study._runs])
+            except LevelwiseError as exc:
+                fail("data.runs", str(exc))
         for i, item in enumerate(data["exclusions"]):
             item = {**item, "run": int(item["run"])}
             try:
@@ -326,7 +355,7 @@ class StudyFile:
             if response not in study._responses:
                 fail(f"data.models.{response}", "is not a response of the study")
             try:
-                checked_model(model, study.factor_names)
+                study._checked_model(model)
             except LevelwiseError as exc:
                 fail(f"data.models.{response}", str(exc))
             study._models[response] = model
@@ -343,6 +372,8 @@ class StudyFile:
             The file the code loads; defaults to ``"study.json"``.
         """
         path = str(path) if path is not None else "study.json"
+        if self.is_mixture:
+            return self._mixture_code(path)
         lines = [
             "# Rebuilds the analysis of this study from its file.",
             "from levelwise import Factor, fit",
@@ -374,6 +405,9 @@ class StudyFile:
                 lines.append(f"data.loc[{item['run']}, {item['response']!r}] = float('nan'){comment}")
         lines.append("fits = {}")
         for response, model in self._models.items():
-            lines.append(f"fits[{response!r}] = fit(data, {response!r}, {model!r}, factors=factors{split})")
+            spec = self._responses[response]
+            count = "".join(f", {key}={spec[key]!r}" for key in COUNT_KEYS if spec.get(key))
+            lines.append(f"fits[{response!r}] = fit(data, {response!r}, {model!r}, factors=factors"
+                         f"{count or split})")
         return "\n".join(lines) + "\n"
 

@@ -14,9 +14,10 @@ import pandas as pd
 from .._errors import LevelwiseError, describe
 from ..design import Factor, as_factors
 from . import _values
-from ._goals import goal_words, response_spec
+from ._mixture_study import StudyMixture
 from ._persist import StudyFile
 from ._records import StudyRecords
+from ._responses import StudyResponses
 from ._tables import StudyTables
 from ._values import (
     AuditEntry,
@@ -30,20 +31,34 @@ from ._values import (
     _run_id,
     _setting,
     _text,
-    checked_model,
 )
+
+
+def _given(factors) -> bool:
+    """False for an empty list of factors (a mixture study without process factors)."""
+    return not (isinstance(factors, (list, tuple)) and len(factors) == 0)
+
 
 #: The role values of format 1 (and of designs made before the rename), read as the current ones.
 _OLD_ROLES = {"factorial": "corner", "center": "centre", "edge": "edge_midpoint"}
 
 
-class Study(StudyRecords, StudyTables, StudyFile):
+class Study(StudyResponses, StudyMixture, StudyRecords, StudyTables, StudyFile):
     """An experiment's complete record, with an audit log of every change.
 
     Parameters
     ----------
     factors : list of Factor
-        The study factors; every stage's runs give a planned setting for each.
+        The study factors (the process factors of a mixture study, which may have none); every stage's runs
+        give a planned setting for each.
+    components : list of Component or Mixture, optional
+        Mixture components: each run's amounts sum to *total* within the bounds (and *constraints*).
+    total : float, optional
+        The mixture total (default 1; 100 for percent).
+    pseudo : bool, default False
+        Fit the mixture models on L-pseudo-components.
+    constraints : str or list of str, optional
+        Linear constraints over the component amounts, e.g. ``"Filler + Pigment <= 40"``.
     title : str, optional
     notes : str, optional
         Free text.
@@ -60,8 +75,10 @@ class Study(StudyRecords, StudyTables, StudyFile):
     np.float64(4.5)
     """
 
-    def __init__(self, factors, *, title: str = "", notes: str = ""):
-        self._factors = as_factors(factors)
+    def __init__(self, factors=(), *, components=None, total: float | None = None, pseudo: bool = False,
+                 constraints=None, title: str = "", notes: str = ""):
+        self._factors = () if components is not None and not _given(factors) else as_factors(factors)
+        self._init_mixture(components, total, pseudo, constraints)
         for f in self._factors:
             for level in getattr(f, "levels", ()):
                 if isinstance(level, str):
@@ -79,12 +96,13 @@ class Study(StudyRecords, StudyTables, StudyFile):
         self._models: dict[str, str] = {}
         self._audit: list[dict] = []
         self._file_revisions: dict[str, str] = {}  # file -> SHA-256 of its bytes at this study's load or last save
-        self._log("create", f"study created with factors {[f.name for f in self._factors]}")
+        blend = f" and mixture components {self.component_names}" if self.is_mixture else ""
+        self._log("create", f"study created with factors {[f.name for f in self._factors]}{blend}")
 
     @classmethod
     def from_table(cls, source, *, factors, responses, run: str | None = None, achieved: dict | None = None,
                    plan=None, title: str = "", stage: str = "imported", sheet: str | None = None,
-                   delimiter: str = ",", decimal: str = ".") -> Study:
+                   delimiter: str = ",", decimal: str = ".", counts: dict | None = None) -> Study:
         """A new study from one finished table (data frame, CSV or XLSX), in one call.
 
         Parameters
@@ -104,6 +122,10 @@ class Study(StudyRecords, StudyTables, StudyFile):
             The planned design. Rows are matched to it by run id (with ``run``) or else by their
             settings (nearest planned run within 0.1 coded units), so a plant run order that differs
             from the plan is accepted; settings that differ from the plan are recorded as achieved.
+        counts : dict, optional
+            Count responses: ``{response: {"family": "binomial", "trials": column, "link": "logit"}}`` or
+            ``{response: {"family": "poisson", "exposure": column}}`` (see :meth:`add_response`); a trials or
+            exposure column not among *responses* is added to them. Bad counts are problems of their row.
 
         Every problem is raised together in one :class:`ImportDataError` naming its spreadsheet row
         and column; columns not used are listed (``study.import_report.warnings``) and warned about.
@@ -112,7 +134,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
 
         study, report = study_from_table(source, factors=factors, responses=responses, run=run, achieved=achieved,
                                          plan=plan, title=title, stage=stage, sheet=sheet, delimiter=delimiter,
-                                         decimal=decimal)
+                                         decimal=decimal, counts=counts)
         study.import_report = report
         return study
 
@@ -186,7 +208,10 @@ class Study(StudyRecords, StudyTables, StudyFile):
         for f in self._factors:
             if f.name == name:
                 return f
-        raise LevelwiseError(f"The 'factor' must be one of {self.factor_names}. Got {describe(name)} instead.")
+        component = self._component_factor(name)
+        if component is not None:  # a component's amount, checked like a continuous setting
+            return component
+        raise LevelwiseError(f"The 'factor' must be one of {self.setting_names}. Got {describe(name)} instead.")
 
     def _run(self, run) -> dict:
         run_id = _run_id(run)
@@ -214,39 +239,6 @@ class Study(StudyRecords, StudyTables, StudyFile):
         """Replace the title."""
         self._title = _text(title, "title", kind="title")
         self._log("title", f"title set to {title!r}")
-
-    def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None,
-                     **goal_fields) -> None:
-        """Add a response with its units and goal (``"none"``, ``"maximize"``, ``"minimize"``, ``"target"``).
-
-        *goal_fields* are the optional desirability fields of :meth:`set_goal`.
-        """
-        name = _name(name, "response name")
-        if name in self._responses or name in self.factor_names:
-            raise LevelwiseError(f"The 'response name' {name!r} is already used by a response or a factor.")
-        spec = self._response_spec(name, units, goal, target, **goal_fields)
-        self._responses[name] = spec
-        self._log("add_response", f"response {name!r} added ({spec['units'] or 'no units'}, goal {goal})")
-
-    def set_goal(self, response: str, goal: str, target: float | None = None, *, lower_limit=None,
-                 upper_limit=None, s=None, t=None, weight=None) -> None:
-        """Change a response's goal, with the desirability fields to keep in the file (each optional).
-
-        ``lower_limit``, ``target``, ``upper_limit``, the exponents ``s`` and ``t`` and the relative ``weight``
-        are those of :class:`levelwise.Goal`; a field its kind does not use is refused (a maximise goal has no
-        upper limit or ``t``). Fields left out are not stored (the workbench starts them from the data).
-        """
-        name = self._response(response)
-        spec = self._response_spec(name, self._responses[name]["units"], goal, target, lower_limit=lower_limit,
-                                   upper_limit=upper_limit, s=s, t=t, weight=weight)
-        if spec == self._responses[name]:
-            return
-        self._responses[name] = spec
-        self._log("set_goal", goal_words(name, spec))
-
-    @staticmethod
-    def _response_spec(name, units, goal, target, **goal_fields) -> dict:
-        return response_spec(name, units, goal, target, **goal_fields)
 
     def add_stage(self, name: str, design, *, description: str = "", reason: str | None = None,
                   renumber: bool = False) -> list[int]:
@@ -280,15 +272,16 @@ class Study(StudyRecords, StudyTables, StudyFile):
             raise LevelwiseError(
                 f"The 'design' must be a Design or a DataFrame of factor settings. Got {describe(design)} instead."
             )
-        missing = [n for n in self.factor_names if n not in table.columns]
+        missing = [n for n in self.setting_names if n not in table.columns]
         if missing:
+            what = "factor(s) or component(s)" if self.is_mixture else "factor(s)"
             raise LevelwiseError(
-                f"The 'design' has no column for factor(s) {missing}; it must give every study factor "
-                f"{self.factor_names}."
+                f"The 'design' has no column for {what} {missing}; it must give every study "
+                f"{'setting' if self.is_mixture else 'factor'} {self.setting_names}."
             )
         n = len(table)
         settings = {}
-        for f in self._factors:
+        for f in self._setting_factors():
             if _is_categorical(f):
                 settings[f.name] = [
                     _setting(f, value, f"planned setting of factor {f.name!r} in row {row + 1} of the design")
@@ -306,6 +299,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
                     f"number. Got {describe(raw)} instead."
                 )
             settings[f.name] = values
+        self._check_stage_blends(settings, n)
         block = self._int_column(table, "block", 1, n)
         order_column = "standard_order" if "standard_order" in table else "std_order"
         standard_order = self._int_column(table, order_column, None, n)
@@ -315,7 +309,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
         ]
         plots, plot_note = self._stage_whole_plots(table, n, settings)
         ids = self._stage_ids(table, n, renumber)
-        names = self.factor_names
+        names = self.setting_names
         for i, run_id in enumerate(ids):
             self._runs[run_id] = {
                 "run": run_id,
@@ -441,7 +435,7 @@ class Study(StudyRecords, StudyTables, StudyFile):
         """Set the model (a Wilkinson formula or preset over the factor names) for a response."""
         reason = _reason(reason)
         response = self._response(response)
-        checked_model(model, self.factor_names)  # raises LevelwiseError naming the bad term
+        self._checked_model(model)  # raises LevelwiseError naming the bad term
         _text(model, "model")
         old = self._models.get(response)
         self._models[response] = model

@@ -9,7 +9,7 @@ import pandas as pd
 
 from .._errors import LevelwiseError, LevelwiseWarning
 from .._rich import with_units
-from ._values import _is_categorical, checked_model
+from ._values import _is_categorical
 
 #: Suffix of a column holding the achieved setting of a factor (the one header convention).
 ACHIEVED = " (achieved)"
@@ -30,7 +30,7 @@ class StudyTables:
             "standard_order": np.array([r["standard_order"] for r in runs], dtype=np.int64),
             "role": pd.array([r["role"] for r in runs], dtype=object),
         }
-        for factor in self._factors:
+        for factor in self._setting_factors():
             f, dtype = factor.name, (object if _is_categorical(factor) else float)
             missing = None if _is_categorical(factor) else np.nan
             if factor_block == "actual":
@@ -114,11 +114,11 @@ class StudyTables:
         """Planned settings: the run sheet with one column per factor (index = run id)."""
         frame = self._frame("planned")
         book = ["run", "stage", "block", *(["whole_plot"] if "whole_plot" in frame else []), "standard_order", "role"]
-        return frame[[*book, *self.factor_names]]
+        return frame[[*book, *self.setting_names]]
 
     def achieved(self) -> pd.DataFrame:
         """Achieved settings as recorded (NaN where none was), one column per factor (index = run id)."""
-        return self._frame("achieved")[["run", *self.factor_names]]
+        return self._frame("achieved")[["run", *self.setting_names]]
 
     # ----- fitting ---------------------------------------------------------------------------
     def fit_table(self, response: str | None = None, *, apply_exclusions: bool = True) -> pd.DataFrame:
@@ -133,7 +133,17 @@ class StudyTables:
 
         A study with whole plots (a split-plot stage) adds a ``whole_plot`` column: each run's whole plot,
         and ``"run <id>"`` for a run of a stage without whole plots (it was reset on its own).
+
+        A mixture study's table holds the settings as run (achieved where recorded, else planned) for the
+        components and process factors: a blend is fitted as made, and it must still sum to the total.
         """
+        if self.is_mixture:
+            frame = self._frame("actual")
+            if not apply_exclusions:
+                return frame
+            drop = {item["run"] for item in self._exclusions
+                    if item["response"] is None or (response is not None and item["response"] == response)}
+            return frame.drop(index=sorted(drop))
         frame = self._frame("planned")
         if "whole_plot" in frame:  # a run reset on its own is a whole plot of its own
             plots = frame["whole_plot"]
@@ -156,7 +166,9 @@ class StudyTables:
         """Fit *response* with its model (or *model*) on :meth:`fit_table`, coded by the study factors.
 
         The runs are named by run id; achieved settings are used where recorded (see
-        :attr:`Fit.setting_deviations`).
+        :attr:`Fit.setting_deviations`). A count response (``family`` given to :meth:`add_response`) is fitted
+        as a generalised linear model (:class:`~levelwise.model.GlmFit`) with its link and its trials or
+        exposure response.
 
         Parameters
         ----------
@@ -195,9 +207,17 @@ class StudyTables:
                 f"The response {response!r} has no value for run(s) {shown}; the fit leaves them out.",
                 LevelwiseWarning, stacklevel=2,
             )
-        model = checked_model(model, self.factor_names)
+        model = self._checked_model(model)
+        if self.is_mixture:
+            return self._fit_mixture(table, response, model, level)
         options = dict(factors=list(self._factors), level=level)
-        units = {f.name: f.units for f in self._factors} | {response: self._responses[response]["units"]}
+        spec = self._responses[response]
+        units = {f.name: f.units for f in self._factors} | {response: spec["units"]}
+        if spec.get("family"):  # a count response: the generalised linear model (the whole plots are not used)
+            table = table.drop(columns=["whole_plot"], errors="ignore")
+            return with_units(fit_function(table, response, model, family=spec["family"], link=spec["link"],
+                                           trials=spec.get("trials"), exposure=spec.get("exposure"), **options),
+                              units)
         if whole_plot == "auto" and "whole_plot" in table:
             try:
                 return with_units(fit_function(table, response, model, whole_plot="whole_plot", **options), units)
