@@ -9,6 +9,7 @@ Commands::
     levelwise export-html STUDY -o FILE.html                     write the offline single-file export
     levelwise import TABLE -o STUDY.json [--factor COL ...] [--response COL ...] [--run COL]
                    [--achieved FACTOR=COL ...] [--plan DESIGN.csv] [--title T]   a CSV/XLSX becomes a study file
+                   [--binomial RESPONSE=TRIALS ...] [--poisson RESPONSE[=EXPOSURE] ...] [--link RESPONSE=LINK]
 
 STUDY is a study JSON file or the word ``demo`` (the invented demo study).
 
@@ -134,14 +135,33 @@ def import_study(args) -> int:
                 print(f"levelwise import: --achieved takes FACTOR=COLUMN; got {item!r}.", file=sys.stderr)
                 return EXIT_USAGE
             achieved[factor] = column
+        counts = {}
+        for option, family in (("binomial", "binomial"), ("poisson", "poisson")):
+            for item in getattr(args, option) or ():
+                name, sep, partner = item.partition("=")
+                if not name or (family == "binomial" and (not sep or not partner)):
+                    print(f"levelwise import: --binomial takes RESPONSE=TRIALS_COLUMN; got {item!r}."
+                          if family == "binomial" else f"levelwise import: --poisson takes RESPONSE or "
+                          f"RESPONSE=EXPOSURE_COLUMN; got {item!r}.", file=sys.stderr)
+                    return EXIT_USAGE
+                counts[name] = {"family": family, **({"trials" if family == "binomial" else "exposure": partner}
+                                                     if partner else {})}
+        for item in args.link or ():
+            name, sep, link = item.partition("=")
+            if not sep or name not in counts:
+                print(f"levelwise import: --link takes RESPONSE=LINK for a response given with --binomial or "
+                      f"--poisson {sorted(counts)}; got {item!r}.", file=sys.stderr)
+                return EXIT_USAGE
+            counts[name]["link"] = link
         factors, responses = args.factor, args.response
         if not factors or not responses:
             guess = guess_columns(read_table(args.table, sheet=args.sheet, delimiter=args.delimiter))
             factors = factors or guess["factors"]
-            responses = responses or guess["responses"]
+            responses = responses or [c for c in guess["responses"] if c not in counts]
             achieved = achieved or guess["achieved"]
             print(f"levelwise import: guessed factors {factors}, responses {responses}"
                   + (f", achieved {achieved}" if achieved else "") + " (name them with --factor/--response)")
+        responses = list(responses) + [name for name in counts if name not in responses]
         plan = None
         if args.plan:
             plan = read_table(args.plan)
@@ -149,7 +169,7 @@ def import_study(args) -> int:
             warnings.simplefilter("ignore")  # the report below lists every warning
             study = Study.from_table(args.table, factors=factors, responses=responses, run=args.run,
                                      achieved=achieved, plan=plan, title=args.title, sheet=args.sheet,
-                                     delimiter=args.delimiter, decimal=args.decimal)
+                                     delimiter=args.delimiter, decimal=args.decimal, counts=counts or None)
         study.save(out)
     except (LevelwiseError, OSError) as exc:
         print(f"levelwise import: {exc}", file=sys.stderr)
@@ -268,6 +288,12 @@ def build_parser() -> argparse.ArgumentParser:
     p_imp.add_argument("--plan", metavar="DESIGN", default=None,
                        help="The planned design (CSV/XLSX with the factor columns, optionally 'run'): rows are "
                             "matched to it by run id or by settings, in any order.")
+    p_imp.add_argument("--binomial", action="append", metavar="RESPONSE=TRIALS",
+                       help="RESPONSE counts passes out of the trials in column TRIALS (a logit fit).")
+    p_imp.add_argument("--poisson", action="append", metavar="RESPONSE[=EXPOSURE]",
+                       help="RESPONSE is a count (a log-rate fit), per unit of column EXPOSURE when given.")
+    p_imp.add_argument("--link", action="append", metavar="RESPONSE=LINK",
+                       help="The link of a count response: logit or probit (binomial), log (Poisson).")
     p_imp.add_argument("--title", default="", help="The study title.")
     p_imp.add_argument("--sheet", default=None, help="The worksheet of an XLSX file (default: the first).")
     p_imp.add_argument("--delimiter", default=",", help="The CSV field separator (default ',').")

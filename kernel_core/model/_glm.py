@@ -15,10 +15,15 @@ from functools import cached_property
 
 import numpy as np
 import pandas as pd
-from scipy import special, stats
+from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._rich import anova_frame, coefficient_table, fit_html
 from ._families import FitFamily
+from ._glm_scale import dmu_deta as _dmu_deta
+from ._glm_scale import inverse_link as _inverse_link
+from ._glm_scale import refresh as _refresh
+from ._glm_scale import transform as _transform
 
 FAMILIES = {"binomial": ("logit", "probit"), "poisson": ("log",)}
 #: Pearson chi-square / df above which overdispersion is reported and the quasi-likelihood scale offered.
@@ -65,23 +70,6 @@ def _counts(data, column, role, keep=None):
                 "whole numbers."
             )
     return values
-
-
-def _inverse_link(link, eta):
-    if link == "logit":
-        return special.expit(eta)
-    if link == "probit":
-        return stats.norm.cdf(eta)
-    return np.exp(eta)
-
-
-def _dmu_deta(link, eta):
-    if link == "logit":
-        p = special.expit(eta)
-        return p * (1.0 - p)
-    if link == "probit":
-        return stats.norm.pdf(eta)
-    return np.exp(eta)
 
 
 class GlmFit(FitFamily):
@@ -193,7 +181,7 @@ class GlmFit(FitFamily):
             table[ratio] = np.exp(table["estimate"])
             table[ratio + "_low"] = np.exp(table["ci_low"])
             table[ratio + "_high"] = np.exp(table["ci_high"])
-        return table
+        return coefficient_table(self, table)
 
     @property
     def overdispersion(self) -> str:
@@ -249,7 +237,7 @@ class GlmFit(FitFamily):
                 f = lr / df / self.scale
                 row.update({"F": f, "p_value": float(stats.f.sf(f, df, self.df_resid))})
             rows[label] = row
-        return pd.DataFrame.from_dict(rows, orient="index").rename_axis("term")
+        return anova_frame(self, pd.DataFrame.from_dict(rows, orient="index").rename_axis("term"))
 
     def reduce(self, alpha: float = 0.05, hierarchy: bool = True):
         """Backward elimination by likelihood-ratio tests; returns (final fit, steps)."""
@@ -334,15 +322,12 @@ class GlmFit(FitFamily):
 
     def _transform(self, eta, half):
         """Link-scale mean +/- half-width, transformed by the inverse link (never leaves the valid range)."""
-        with np.errstate(over="ignore"):
-            return {"mean": _inverse_link(self.link, eta), "ci_low": _inverse_link(self.link, eta - half),
-                    "ci_high": _inverse_link(self.link, eta + half), "link_mean": eta}
+        return _transform(self.link, eta, half)
 
     def mean_at(self, natural) -> np.ndarray:
         """Probability or rate per unit exposure at an (m, k) array of natural settings (no checks)."""
         eta, _ = self.engine.mean_and_leverage(natural)
-        with np.errstate(over="ignore"):
-            return _inverse_link(self.link, eta)
+        return _inverse_link(self.link, eta)
 
     def predict(self, settings, level: float | None = None, exposure=None) -> pd.DataFrame:
         """Probability (binomial) or rate per unit exposure (Poisson) with a CI made on the link scale.
@@ -365,20 +350,13 @@ class GlmFit(FitFamily):
     def refresh(self, settings, level=None, points=50, slice_axes=None, shape=(100, 100), point=True) -> dict:
         """One slider event (see ``Fit.refresh``) on the response scale: bands ``ci_low``/``ci_high`` made on the
         link scale and transformed; no prediction interval (see :attr:`new_observation_note`)."""
-        out = self.engine.refresh(settings, level, points, slice_axes, shape, point)
-        if out["point"] is not None:
-            p = out["point"]
-            bands = self._transform(p["mean"], p["ci_high"] - p["mean"])
-            out["point"] = {**{k: float(v) for k, v in bands.items()}, "extrapolated": p["extrapolated"]}
-        if out["traces"] is not None:
-            out["traces"] = {name: self._curve(curve) for name, curve in out["traces"].items()}
-        if out["slice"] is not None:
-            sl = out["slice"]
-            out["slice"] = {"x": sl["x"], "y": sl["y"], **self._transform(sl["mean"], sl["ci_half"])}
-        return out
+        return _refresh(self, settings, level, points, slice_axes, shape, point)
 
     def traces(self, settings, points=50, level=None) -> dict:
         return {name: self._curve(c) for name, c in self.engine.traces(settings, points, level).items()}
+
+    def _repr_html_(self) -> str:
+        return fit_html(self)
 
     def __repr__(self) -> str:
         return (f"<GlmFit {self.family} ({self.link}) {self.response} ~ {self.base.spec.formula}: {self.n} runs, "

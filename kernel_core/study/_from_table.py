@@ -124,9 +124,60 @@ def _match(settings: pd.DataFrame, plan: pd.DataFrame, factors, run_ids, problem
     return matched
 
 
+def _count_columns(frame, counts, responses) -> dict:
+    """{response: {"family", "trials"/"exposure", "link"}} of the declared count responses, the trials or
+    exposure columns added to *responses* (a list, changed in place) when not listed."""
+    if counts is None:
+        return {}
+    if not isinstance(counts, dict):
+        raise LevelwiseError("The 'counts' must be a dict {response: {'family': 'binomial', 'trials': column} or "
+                             f"{{'family': 'poisson', 'exposure': column}}}}. Got {describe(counts)} instead.")
+    out = {}
+    for name, spec in counts.items():
+        if isinstance(spec, str):
+            spec = {"family": spec}
+        if not isinstance(spec, dict) or set(spec) - {"family", "trials", "exposure", "link"}:
+            raise LevelwiseError(f"The 'counts' entry of {name!r} must be a dict with 'family' and optionally "
+                                 f"'trials', 'exposure', 'link'. Got {describe(spec)} instead.")
+        if name not in responses:
+            raise LevelwiseError(f"The 'counts' entry {name!r} must be one of the responses {list(responses)}.")
+        out[name] = dict(spec)
+        for role in ("trials", "exposure"):
+            other = spec.get(role)
+            if isinstance(other, str) and other not in responses:
+                _column(frame, other, f"{role} column")
+                responses.append(other)
+    return out
+
+
+def _count_problems(frame, counts, columns, decimal, problems) -> None:
+    """Every bad count named by spreadsheet row and column: negative, not whole, passes above trials, zero
+    trials, exposure not positive."""
+    for name, spec in counts.items():
+        column = columns[name]
+        partner = spec.get("trials") or spec.get("exposure")
+        other = columns.get(partner)
+        for row, cell in frame[column].items():
+            value, bad = _number(cell, decimal)
+            limit = _number(frame.at[row, other], decimal)[0] if other is not None else None
+            if other is not None and limit is not None and spec.get("exposure") and not limit > 0:
+                problems.append(Problem(row, other, f"the exposure of {name!r} must be positive; got {limit:g}"))
+            if spec.get("trials") and limit is not None and (limit < 1 or limit != round(limit)):
+                problems.append(Problem(row, other, f"the number of trials of {name!r} must be a whole number >= 1; "
+                                                    f"got {limit:g}"))
+                continue
+            if bad or value is None:
+                continue
+            if value < 0 or value != round(value):
+                problems.append(Problem(row, column, f"a count must be a whole number >= 0; got {value:g}"))
+            elif limit is not None and spec.get("trials") and value > limit:
+                problems.append(Problem(row, column, f"{value:g} passes is more than the {limit:g} trials in "
+                                                     f"column {other!r}"))
+
+
 def study_from_table(source, *, factors, responses, run: str | None = None, achieved: dict | None = None,
                      plan=None, title: str = "", stage: str = "imported", sheet: str | None = None,
-                     delimiter: str = ",", decimal: str = "."):
+                     delimiter: str = ",", decimal: str = ".", counts: dict | None = None):
     """A new :class:`Study` and its :class:`ImportReport` from one table; see :meth:`Study.from_table`."""
     from ._import import import_table
     from ._study import Study
@@ -137,6 +188,8 @@ def study_from_table(source, *, factors, responses, run: str | None = None, achi
     specs = _factor_specs(frame, factors, decimal, problems)
     if isinstance(responses, str) or not hasattr(responses, "__iter__"):
         raise LevelwiseError(f"The 'responses' must be a list of column names. Got {describe(responses)}.")
+    responses = list(responses)
+    counts = _count_columns(frame, counts, responses)
     response_cols = [_column(frame, r, "response") for r in responses]
     achieved = dict(achieved or {})
     achieved_cols = {f: (c if c in frame.columns else _column(frame, c, "achieved-setting column"))
@@ -178,6 +231,7 @@ def study_from_table(source, *, factors, responses, run: str | None = None, achi
         for row, cell in frame[column].items():
             if _number(cell, decimal)[1]:
                 problems.append(Problem(row, column, f"a response must be a number; got {describe(cell)}"))
+    _count_problems(frame, counts, dict(zip(responses, response_cols)), decimal, problems)
 
     plan_table = None
     if plan is not None and not problems:
@@ -222,9 +276,12 @@ def study_from_table(source, *, factors, responses, run: str | None = None, achi
     # Responses and achieved settings: through the one validator, by run id.
     body = pd.DataFrame({"run": [ids[row] for row in frame.index]}, index=frame.index, dtype=object)
     mapping = {"run": "run", "factors": {}, "achieved": {}, "responses": {}}
-    for column in response_cols:
-        key, _ = split_header(column)
-        study.add_response(key, units=split_header(column)[1] or "")
+    keys = {split_header(column)[0]: column for column in response_cols}
+    named = dict(zip(responses, keys))  # the name given -> the response's name in the study
+    for key, column in sorted(keys.items(), key=lambda item: item[0] in {named[n] for n in counts}):
+        spec = next(({**c, **{r: named.get(c[r], c[r]) for r in ("trials", "exposure") if c.get(r)}}
+                     for n, c in counts.items() if named[n] == key), {})
+        study.add_response(key, units=split_header(column)[1] or "", **spec)  # counts after their trials
         body[column] = frame[column]
         mapping["responses"][key] = column
     for factor, column in achieved_cols.items():

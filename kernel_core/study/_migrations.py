@@ -181,6 +181,8 @@ def migrate_v3(document: dict) -> dict:
     format-4 schema check to report.
     Format 4 also adds ``data.mixture`` (the components, total, bounds, constraints and pseudo-component choice
     of a mixture study, issue 12; absent = no components).
+    Format 4 also adds the count keys of a response (``family``, ``link``, ``trials``, ``exposure``; issue 15;
+    absent = a measurement).
     """
     document = copy.deepcopy(document)
     data, audit = document.get("data"), document.get("audit")

@@ -15,6 +15,7 @@ from pathlib import Path
 
 from .._errors import LevelwiseError, OutsideEditError, StudyFileError, describe
 from ..design import Factor
+from ._count_responses import COUNT_KEYS, check_runs, count_spec
 from ._format import (
     FORMAT_VERSION,
     _pretty,
@@ -275,6 +276,13 @@ class StudyFile:
                     **{key: spec[key] for key in GOAL_FIELDS if key in spec})
             except LevelwiseError as exc:
                 fail(f"data.responses[{i}]", str(exc))
+        for i, spec in enumerate(data["responses"]):  # count keys (format 4), once every response is known
+            try:
+                study._responses[spec["name"]].update(count_spec(
+                    {n: (r if n != spec["name"] else {}) for n, r in study._responses.items()}, spec["name"],
+                    *(spec.get(key) for key in ("family", "trials", "exposure", "link"))))
+            except LevelwiseError as exc:
+                fail(f"data.responses[{i}]", str(exc))
         for i, stage in enumerate(data["stages"]):
             try:
                 _text(stage["name"], "stage name", kind="name")
@@ -321,6 +329,10 @@ class StudyFile:
             }
             if "whole_plot" in run:
                 study._runs[run_id]["whole_plot"] = int(run["whole_plot"])
+            try:
+                check_runs(study._responses, [study._runs[run_id]])
+            except LevelwiseError as exc:
+                fail(f"{where}.responses", str(exc))
         if study.is_mixture and study._runs:
             try:
                 study._mixture.check_blends([[r["planned"][n] for n in study.component_names]
@@ -393,6 +405,9 @@ class StudyFile:
                 lines.append(f"data.loc[{item['run']}, {item['response']!r}] = float('nan'){comment}")
         lines.append("fits = {}")
         for response, model in self._models.items():
-            lines.append(f"fits[{response!r}] = fit(data, {response!r}, {model!r}, factors=factors{split})")
+            spec = self._responses[response]
+            count = "".join(f", {key}={spec[key]!r}" for key in COUNT_KEYS if spec.get(key))
+            lines.append(f"fits[{response!r}] = fit(data, {response!r}, {model!r}, factors=factors"
+                         f"{count or split})")
         return "\n".join(lines) + "\n"
 

@@ -7,6 +7,7 @@ and the old value stays in the audit log.
 from __future__ import annotations
 
 from .._errors import LevelwiseError
+from ._count_responses import check_value
 from ._values import _finite, _reason, _setting
 
 
@@ -43,6 +44,8 @@ class StudyRecords:
         else:
             field = f"{label} of run {record['run']}"
             value = _finite(value, field) if factor is None else _setting(factor, value, field)
+            if factor is None:  # a count, trials or exposure: whole numbers, passes within trials (named by run)
+                check_value(self._responses, record, key, value)
         if old is not None and not overwrite and old != value:
             raise LevelwiseError(
                 f"The {label} of run {record['run']} is already recorded as {old!r}; "
@@ -77,6 +80,13 @@ class StudyRecords:
                     f"The {key!r} of run {record['run']} is already recorded as {old!r}; pass overwrite=True."
                 )
             checked.append((record, kind, key, value, old))
+        pending = {}  # run -> its responses after the import, so passes are checked against the new trials
+        for record, kind, key, value, _ in checked:
+            if kind == "responses":
+                pending.setdefault(record["run"], dict(record["responses"]))[key] = value
+        for record, kind, key, value, _ in checked:
+            if kind == "responses":
+                check_value(self._responses, {"run": record["run"], "responses": pending[record["run"]]}, key, value)
         replaced = 0
         for record, kind, key, value, old in checked:
             record[kind][key] = value

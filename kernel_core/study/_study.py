@@ -14,10 +14,10 @@ import pandas as pd
 from .._errors import LevelwiseError, describe
 from ..design import Factor, as_factors
 from . import _values
-from ._goals import goal_words, response_spec
 from ._mixture_study import StudyMixture
 from ._persist import StudyFile
 from ._records import StudyRecords
+from ._responses import StudyResponses
 from ._tables import StudyTables
 from ._values import (
     AuditEntry,
@@ -43,7 +43,7 @@ def _given(factors) -> bool:
 _OLD_ROLES = {"factorial": "corner", "center": "centre", "edge": "edge_midpoint"}
 
 
-class Study(StudyMixture, StudyRecords, StudyTables, StudyFile):
+class Study(StudyResponses, StudyMixture, StudyRecords, StudyTables, StudyFile):
     """An experiment's complete record, with an audit log of every change.
 
     Parameters
@@ -102,7 +102,7 @@ class Study(StudyMixture, StudyRecords, StudyTables, StudyFile):
     @classmethod
     def from_table(cls, source, *, factors, responses, run: str | None = None, achieved: dict | None = None,
                    plan=None, title: str = "", stage: str = "imported", sheet: str | None = None,
-                   delimiter: str = ",", decimal: str = ".") -> Study:
+                   delimiter: str = ",", decimal: str = ".", counts: dict | None = None) -> Study:
         """A new study from one finished table (data frame, CSV or XLSX), in one call.
 
         Parameters
@@ -122,6 +122,10 @@ class Study(StudyMixture, StudyRecords, StudyTables, StudyFile):
             The planned design. Rows are matched to it by run id (with ``run``) or else by their
             settings (nearest planned run within 0.1 coded units), so a plant run order that differs
             from the plan is accepted; settings that differ from the plan are recorded as achieved.
+        counts : dict, optional
+            Count responses: ``{response: {"family": "binomial", "trials": column, "link": "logit"}}`` or
+            ``{response: {"family": "poisson", "exposure": column}}`` (see :meth:`add_response`); a trials or
+            exposure column not among *responses* is added to them. Bad counts are problems of their row.
 
         Every problem is raised together in one :class:`ImportDataError` naming its spreadsheet row
         and column; columns not used are listed (``study.import_report.warnings``) and warned about.
@@ -130,7 +134,7 @@ class Study(StudyMixture, StudyRecords, StudyTables, StudyFile):
 
         study, report = study_from_table(source, factors=factors, responses=responses, run=run, achieved=achieved,
                                          plan=plan, title=title, stage=stage, sheet=sheet, delimiter=delimiter,
-                                         decimal=decimal)
+                                         decimal=decimal, counts=counts)
         study.import_report = report
         return study
 
@@ -185,6 +189,11 @@ class Study(StudyMixture, StudyRecords, StudyTables, StudyFile):
     def __len__(self) -> int:
         return len(self._runs)
 
+    def _repr_html_(self) -> str:
+        from .._rich import study_html
+
+        return study_html(self)
+
     def __repr__(self) -> str:
         return (
             f"<Study {self._title!r}: {len(self._runs)} runs in {len(self._stages)} stage(s), "
@@ -230,39 +239,6 @@ class Study(StudyMixture, StudyRecords, StudyTables, StudyFile):
         """Replace the title."""
         self._title = _text(title, "title", kind="title")
         self._log("title", f"title set to {title!r}")
-
-    def add_response(self, name: str, units: str = "", goal: str = "none", target: float | None = None,
-                     **goal_fields) -> None:
-        """Add a response with its units and goal (``"none"``, ``"maximize"``, ``"minimize"``, ``"target"``).
-
-        *goal_fields* are the optional desirability fields of :meth:`set_goal`.
-        """
-        name = _name(name, "response name")
-        if name in self._responses or name in self.setting_names:
-            raise LevelwiseError(f"The 'response name' {name!r} is already used by a response or a factor.")
-        spec = self._response_spec(name, units, goal, target, **goal_fields)
-        self._responses[name] = spec
-        self._log("add_response", f"response {name!r} added ({spec['units'] or 'no units'}, goal {goal})")
-
-    def set_goal(self, response: str, goal: str, target: float | None = None, *, lower_limit=None,
-                 upper_limit=None, s=None, t=None, weight=None) -> None:
-        """Change a response's goal, with the desirability fields to keep in the file (each optional).
-
-        ``lower_limit``, ``target``, ``upper_limit``, the exponents ``s`` and ``t`` and the relative ``weight``
-        are those of :class:`levelwise.Goal`; a field its kind does not use is refused (a maximise goal has no
-        upper limit or ``t``). Fields left out are not stored (the workbench starts them from the data).
-        """
-        name = self._response(response)
-        spec = self._response_spec(name, self._responses[name]["units"], goal, target, lower_limit=lower_limit,
-                                   upper_limit=upper_limit, s=s, t=t, weight=weight)
-        if spec == self._responses[name]:
-            return
-        self._responses[name] = spec
-        self._log("set_goal", goal_words(name, spec))
-
-    @staticmethod
-    def _response_spec(name, units, goal, target, **goal_fields) -> dict:
-        return response_spec(name, units, goal, target, **goal_fields)
 
     def add_stage(self, name: str, design, *, description: str = "", reason: str | None = None,
                   renumber: bool = False) -> list[int]:

@@ -19,8 +19,13 @@ GOALS = ("none", "maximize", "minimize", "target")
 
 @dataclass(frozen=True)
 class Response:
-    """A measured response: its name, units and goal, with the goal's desirability fields that are stored
-    (None: not stored; the workbench starts them from the data)."""
+    """A response: its name, units and goal, with the goal's desirability fields that are stored (None: not
+    stored; the workbench starts them from the data).
+
+    A count response also has its ``family`` (``"binomial"``: passes out of the trials held by the response
+    named ``trials``; ``"poisson"``: a count, per unit of the response named ``exposure`` when given) and its
+    ``link``; a measured response has ``family=None``.
+    """
 
     name: str
     units: str = ""
@@ -31,6 +36,10 @@ class Response:
     s: float | None = None
     t: float | None = None
     weight: float | None = None
+    family: str | None = None
+    link: str | None = None
+    trials: str | None = None
+    exposure: str | None = None
 
 
 @dataclass(frozen=True)

@@ -1,0 +1,107 @@
+"""The response scale of a GLM fit: inverse links and the slider path.
+
+The prediction engine works on the link scale (log-odds, probit or log rate). Every band shown on the response
+scale is the link-scale mean -/+ the half-width, transformed by the inverse link, so it stays inside (0, 1) for a
+probability and above 0 for a rate. :func:`refresh` is the one-call slider path of ``GlmFit.refresh``: it asks
+the engine's exact trace polynomials for the (factors, points) arrays of every trace at once and transforms
+them in one stacked call.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import special
+
+from .._errors import LevelwiseError, describe
+from ._settings import check_points
+
+_SQRT_2PI = math.sqrt(2.0 * math.pi)
+
+
+def inverse_link(link, eta, out=None):
+    """Probability (logit, probit) or rate (log) from the link-scale value(s) *eta*."""
+    if link == "logit":
+        return special.expit(eta, out=out)
+    if link == "probit":
+        return special.ndtr(eta, out=out)
+    with np.errstate(over="ignore"):  # a rate beyond the float range is inf
+        return np.exp(eta, out=out)
+
+
+def inverse_link_scalar(link, eta: float) -> float:
+    """:func:`inverse_link` of one float (no array machinery: the slider's point)."""
+    if link == "logit":
+        return 1.0 / (1.0 + math.exp(-eta)) if eta >= 0 else math.exp(eta) / (1.0 + math.exp(eta))
+    if link == "probit":
+        return 0.5 * math.erfc(-eta / math.sqrt(2.0))
+    return math.exp(eta) if eta < 709.0 else math.inf
+
+
+def dmu_deta(link, eta):
+    """Derivative of the inverse link at *eta*."""
+    if link == "logit":
+        p = special.expit(eta)
+        return p * (1.0 - p)
+    if link == "probit":
+        return np.exp(-0.5 * np.square(eta)) / _SQRT_2PI
+    return np.exp(eta)
+
+
+def transform(link, eta, half) -> dict:
+    """Link-scale mean -/+ *half*, transformed: ``mean``, ``ci_low``, ``ci_high`` and ``link_mean``."""
+    eta = np.asarray(eta, dtype=float)
+    stacked = np.empty((3,) + eta.shape)
+    stacked[0] = eta
+    np.subtract(eta, half, out=stacked[1])
+    np.add(eta, half, out=stacked[2])
+    inverse_link(link, stacked, out=stacked)
+    return {"mean": stacked[0], "ci_low": stacked[1], "ci_high": stacked[2], "link_mean": eta}
+
+
+def transform_point(link, point: dict) -> dict:
+    """The engine's link-scale point (``mean``, ``ci_high``) on the response scale."""
+    eta = point["mean"]
+    half = point["ci_high"] - eta
+    return {"mean": inverse_link_scalar(link, eta), "ci_low": inverse_link_scalar(link, eta - half),
+            "ci_high": inverse_link_scalar(link, eta + half), "link_mean": eta,
+            "extrapolated": point["extrapolated"]}
+
+
+def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 100), point=True) -> dict:
+    """One slider event of a GLM fit (see ``Fit.refresh``) on the response scale; no prediction interval."""
+    engine, link = fit.engine, fit.link
+    plan = engine.plan
+    if plan is None:  # categorical factors: the engine's model-row path, then the same transform
+        out = engine.refresh(settings, level, points, slice_axes, shape, point)
+        if out["point"] is not None:
+            out["point"] = transform_point(link, out["point"])
+        if out["traces"] is not None:
+            out["traces"] = {name: {"x": c["x"], **transform(link, c["mean"], c["ci_half"])}
+                             for name, c in out["traces"].items()}
+    else:
+        natural = engine.vector(settings)
+        level = engine._level(level)
+        powers = plan.powers(natural)
+        out = {"point": transform_point(link, engine.point(None, level, natural, powers)) if point else None,
+               "traces": None, "slice": None}
+        if points is not None:
+            xs, mean, ci, _ = plan.traces(powers, engine._scale(level), check_points(points), engine.extra)
+            bands = transform(link, mean, ci)  # (k, points) each, one stacked inverse link
+            out["traces"] = {name: {"x": xs[j], "mean": bands["mean"][j], "ci_low": bands["ci_low"][j],
+                                    "ci_high": bands["ci_high"][j], "link_mean": mean[j]}
+                             for j, name in enumerate(engine.factor_names)}
+        if slice_axes is not None:
+            try:
+                x, y = slice_axes
+            except (TypeError, ValueError):
+                raise LevelwiseError(
+                    "The 'slice_axes' parameter must be a pair of factor names (across, up). "
+                    f"Got {describe(slice_axes)} instead."
+                ) from None
+            out["slice"] = engine.slice(x, y, None, shape, level, base=natural, powers=powers)
+    if out.get("slice") is not None:
+        sl = out["slice"]
+        out["slice"] = {"x": sl["x"], "y": sl["y"], **transform(link, sl["mean"], sl["ci_half"])}
+    return out
