@@ -89,6 +89,8 @@ class GlmFit(FitFamily):
 
     kind = "glm"
     new_observation_note = NEW_OBSERVATION
+    #: The data columns of the trials (binomial) and the exposure (Poisson), None when not given.
+    trials_name = exposure_name = None
 
     def __init__(self, base, family, link, counts, trials, exposure, columns, scale_mode=None):
         import statsmodels.api as sm
@@ -203,8 +205,10 @@ class GlmFit(FitFamily):
 
     def quasi(self) -> GlmFit:
         """The same model on the quasi-likelihood scale (dispersion = Pearson chi-square / df)."""
-        return GlmFit(self.base, self.family, self.link, self.counts, self.trials, self.exposure, self.columns,
-                      scale_mode="quasi")
+        out = GlmFit(self.base, self.family, self.link, self.counts, self.trials, self.exposure, self.columns,
+                     scale_mode="quasi")
+        out.trials_name, out.exposure_name = self.trials_name, self.exposure_name
+        return out
 
     # -- likelihood-ratio tests -----------------------------------------------------------------------
     def _deviance_without(self, drop):
@@ -259,6 +263,7 @@ class GlmFit(FitFamily):
                           "p_value": float(candidates.loc[worst, "p_value"]), "deviance": current.deviance})
             current = GlmFit(current.base, current.family, current.link, current.counts, current.trials,
                              current.exposure, current.columns[keep], scale_mode=current.scale_mode)
+        current.trials_name, current.exposure_name = self.trials_name, self.exposure_name
         return current, pd.DataFrame(steps, columns=["step", "term", "lr_chi2", "p_value", "deviance"])
 
     # -- residuals and influence ----------------------------------------------------------------------
@@ -338,6 +343,7 @@ class GlmFit(FitFamily):
         eta = link["mean"].to_numpy()
         out = pd.DataFrame(self._transform(eta, link["ci_high"].to_numpy() - eta))
         out["link_se"] = np.sqrt(link["leverage"].to_numpy())
+        out["pi_low"] = out["pi_high"] = np.nan  # no interval for one new count: see new_observation_note
         if exposure is not None and self.family == "poisson":
             out["expected_count"] = out["mean"] * np.asarray(exposure, dtype=float)
         out["extrapolated"] = link["extrapolated"].to_numpy()
@@ -405,6 +411,7 @@ def fit_glm(data, response, model, *, family, trials=None, exposure=None, link=N
     counts = counts_all[keep]
     fit = GlmFit(base, family, link, counts, None if trials_all is None else trials_all[keep],
                  None if exposure_all is None else exposure_all[keep], np.arange(base.p))
+    fit.trials_name, fit.exposure_name = trials, exposure
     return fit._remember(data, response, lambda changed, formula: fit_glm(
         changed, response, formula, family=family, trials=trials, exposure=exposure, link=link,
         least_squares=least_squares, **options), zip(base.runs, np.flatnonzero(keep)))
