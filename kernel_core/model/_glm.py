@@ -18,6 +18,7 @@ import pandas as pd
 from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._rich import anova_frame, coefficient_table, fit_html
 from ._families import FitFamily
 from ._glm_scale import dmu_deta as _dmu_deta
 from ._glm_scale import inverse_link as _inverse_link
@@ -182,7 +183,7 @@ class GlmFit(FitFamily):
             table[ratio] = np.exp(table["estimate"])
             table[ratio + "_low"] = np.exp(table["ci_low"])
             table[ratio + "_high"] = np.exp(table["ci_high"])
-        return table
+        return coefficient_table(self, table)
 
     @property
     def overdispersion(self) -> str:
@@ -240,7 +241,7 @@ class GlmFit(FitFamily):
                 f = lr / df / self.scale
                 row.update({"F": f, "p_value": float(stats.f.sf(f, df, self.df_resid))})
             rows[label] = row
-        return pd.DataFrame.from_dict(rows, orient="index").rename_axis("term")
+        return anova_frame(self, pd.DataFrame.from_dict(rows, orient="index").rename_axis("term"))
 
     def reduce(self, alpha: float = 0.05, hierarchy: bool = True):
         """Backward elimination by likelihood-ratio tests; returns (final fit, steps)."""
@@ -359,6 +360,9 @@ class GlmFit(FitFamily):
 
     def traces(self, settings, points=50, level=None) -> dict:
         return {name: self._curve(c) for name, c in self.engine.traces(settings, points, level).items()}
+
+    def _repr_html_(self) -> str:
+        return fit_html(self)
 
     def __repr__(self) -> str:
         return (f"<GlmFit {self.family} ({self.link}) {self.response} ~ {self.base.spec.formula}: {self.n} runs, "

@@ -22,6 +22,7 @@ import scipy.linalg
 from scipy import stats
 
 from .._errors import LevelwiseError, LevelwiseWarning, describe
+from .._rich import anova_frame, coefficient_table, fit_html
 from ..design._splitplot import WHOLE_PLOT_COLUMN, check_whole_plot_column
 from ._families import FitFamily
 
@@ -127,11 +128,11 @@ class MixedFit(FitFamily):
         df = np.where(stratum == "whole-plot", self.df_whole_plot, self.df_residual).astype(float)
         t = self.beta / se
         q = stats.t.ppf(0.5 + self.level / 2.0, df)
-        return pd.DataFrame(
+        return coefficient_table(self, pd.DataFrame(
             {"estimate": self.beta, "std_error": se, "stratum": stratum, "df": df, "t": t,
              "p_value": 2.0 * stats.t.sf(np.abs(t), df), "ci_low": self.beta - q * se, "ci_high": self.beta + q * se},
             index=pd.Index(self.terms, name="term"),
-        )
+        ))
 
     @cached_property
     def anova(self) -> pd.DataFrame:
@@ -147,7 +148,7 @@ class MixedFit(FitFamily):
             den = self.df_whole_plot if stratum == "whole-plot" else self.df_residual
             rows[label] = {"stratum": stratum, "df": len(cols), "df_denominator": den, "F": f,
                            "p_value": float(stats.f.sf(f, len(cols), den))}
-        return pd.DataFrame.from_dict(rows, orient="index").rename_axis("term")
+        return anova_frame(self, pd.DataFrame.from_dict(rows, orient="index").rename_axis("term"))
 
     # -- residuals by whole plot --------------------------------------------------------------------
     @cached_property
@@ -315,6 +316,9 @@ class MixedFit(FitFamily):
         mixed = self.coefficients["std_error"].to_numpy()
         return pd.DataFrame({"se_split_plot": mixed, "se_ignoring_whole_plots": ols, "ratio": ols / mixed},
                             index=pd.Index(self.terms, name="term"))
+
+    def _repr_html_(self) -> str:
+        return fit_html(self)
 
     def __repr__(self) -> str:
         comp = ", ".join(f"{k} {v:.4g}" for k, v in self.variance_components.items())

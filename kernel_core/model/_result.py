@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from .._rich import anova_frame, coefficient_table, fit_html
 from ._coding import Coding
 from ._engine import PredictionEngine
 from ._formula import ModelSpec, term_name
@@ -246,7 +247,7 @@ class Fit:
             t = self.beta / se
         p = 2.0 * stats.t.sf(np.abs(t), self.df_resid) if self.df_resid > 0 else np.full(self.p, np.nan)
         q = self.t_quantile(self.level)
-        return pd.DataFrame(
+        return coefficient_table(self, pd.DataFrame(
             {
                 "estimate": self.beta,
                 "std_error": se,
@@ -257,7 +258,7 @@ class Fit:
                 "vif": self.vif,
             },
             index=pd.Index(self.terms, name="term"),
-        )
+        ))
 
     @cached_property
     def coefficients_natural(self) -> pd.DataFrame:
@@ -344,10 +345,10 @@ class Fit:
         curvature, lack of fit and pure error when the runs allow it. See :mod:`levelwise.model._anova`."""
         from ._anova import anova_table
 
-        return anova_table(
+        return anova_frame(self, anova_table(
             self.X, self.y, self.groups, self.group_exponents, self.spec.has_intercept,
             self.run_settings, self._centre_indicator,
-        )
+        ))
 
     @cached_property
     def _centre_indicator(self):
@@ -546,6 +547,9 @@ class Fit:
         from ._boxcox import box_cox
 
         return box_cox(self)
+
+    def _repr_html_(self) -> str:
+        return fit_html(self)
 
     def __repr__(self) -> str:
         return f"<Fit {self.response} ~ {self.spec.formula}: n={self.n}, p={self.p}, s={self.s:.4g}>"

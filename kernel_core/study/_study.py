@@ -189,6 +189,11 @@ class Study(StudyResponses, StudyMixture, StudyRecords, StudyTables, StudyFile):
     def __len__(self) -> int:
         return len(self._runs)
 
+    def _repr_html_(self) -> str:
+        from .._rich import study_html
+
+        return study_html(self)
+
     def __repr__(self) -> str:
         return (
             f"<Study {self._title!r}: {len(self._runs)} runs in {len(self._stages)} stage(s), "

@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, LevelwiseWarning
+from .._rich import with_units
 from ._values import _is_categorical
 
 #: Suffix of a column holding the achieved setting of a factor (the one header convention).
@@ -211,13 +212,15 @@ class StudyTables:
             return self._fit_mixture(table, response, model, level)
         options = dict(factors=list(self._factors), level=level)
         spec = self._responses[response]
+        units = {f.name: f.units for f in self._factors} | {response: spec["units"]}
         if spec.get("family"):  # a count response: the generalised linear model (the whole plots are not used)
             table = table.drop(columns=["whole_plot"], errors="ignore")
-            return fit_function(table, response, model, family=spec["family"], link=spec["link"],
-                                trials=spec.get("trials"), exposure=spec.get("exposure"), **options)
+            return with_units(fit_function(table, response, model, family=spec["family"], link=spec["link"],
+                                           trials=spec.get("trials"), exposure=spec.get("exposure"), **options),
+                              units)
         if whole_plot == "auto" and "whole_plot" in table:
             try:
-                return fit_function(table, response, model, whole_plot="whole_plot", **options)
+                return with_units(fit_function(table, response, model, whole_plot="whole_plot", **options), units)
             except LevelwiseError:
                 pass  # least squares below; its warning says why the split-plot fit could not be made
         with warnings.catch_warnings(record=True) as caught:
@@ -225,7 +228,7 @@ class StudyTables:
             result = fit_function(table, response, model, **options)
         for item in caught:
             warnings.warn(item.message, item.category, stacklevel=2)
-        return result
+        return with_units(result, units)
 
     def fits(self, *, level: float = 0.95) -> dict:
         """A :class:`~levelwise.Fit` for every response that has a model."""
