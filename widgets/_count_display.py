@@ -57,6 +57,19 @@ def bands(fit, curve: dict):
     return mean, mean - ci, mean + ci, mean - pi, mean + pi
 
 
+def slice_quantity(fit, grid: dict, quantity: str) -> np.ndarray:
+    """A slice's ``mean``, ``ci_half`` or ``pi_half`` grid in shown units; for a count the CI half-width is half
+    the width of the transformed interval and there is no PI (NaN: the view says why)."""
+    if family(fit) is None:
+        return grid[quantity]
+    k = scale(fit)
+    if quantity == "mean":
+        return np.asarray(grid["mean"]) * k
+    if quantity == "ci_half":
+        return (np.asarray(grid["ci_high"]) - np.asarray(grid["ci_low"])) * (k / 2.0)
+    return np.full(np.shape(grid["mean"]), np.nan)
+
+
 def shown(fit, values):
     """*values* (a number or an array of kernel numbers) in shown units."""
     return np.asarray(values, dtype=float) * scale(fit) if np.ndim(values) else float(values) * scale(fit)

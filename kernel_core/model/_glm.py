@@ -19,8 +19,8 @@ from scipy import stats
 
 from .._errors import LevelwiseError, describe
 from .._rich import anova_frame, coefficient_table, fit_html
+from . import _glm_residuals as _residuals
 from ._families import FitFamily
-from ._glm_scale import dmu_deta as _dmu_deta
 from ._glm_scale import inverse_link as _inverse_link
 from ._glm_scale import refresh as _refresh
 from ._glm_scale import transform as _transform
@@ -270,24 +270,15 @@ class GlmFit(FitFamily):
     # -- residuals and influence ----------------------------------------------------------------------
     @cached_property
     def diagnostics(self) -> pd.DataFrame:
-        """Per run (by run id): fitted mean, deviance and Pearson residuals, leverage, Cook's distance."""
-        res = self.statsmodels_result
-        eta = self.X @ self.beta + (np.log(self.exposure) if self.exposure is not None else 0.0)
-        mu = _inverse_link(self.link, eta)
-        if self.family == "binomial":
-            var = self.trials * mu * (1 - mu)
-            weight = self.trials * _dmu_deta(self.link, eta) ** 2 / (mu * (1 - mu))
-            fitted = self.trials * mu
-        else:
-            var = weight = fitted = mu
-        pearson = (self.counts - fitted) / np.sqrt(var)
-        # Leverage: diagonal of W^1/2 X (X'WX)^-1 X' W^1/2 with the expected-information weights W at the
-        # estimate (McCullagh & Nelder); for the canonical logit and log links it equals the observed one.
-        q, _ = np.linalg.qr(np.sqrt(weight)[:, None] * self.X)
-        h = np.einsum("ij,ij->i", q, q)
-        cooks = pearson ** 2 * h / (self.scale * self.p * (1 - h) ** 2)
-        return pd.DataFrame({"fitted": fitted, "deviance_residual": np.asarray(res.resid_deviance),
-                             "pearson_residual": pearson, "leverage": h, "cooks_distance": cooks}, index=self.runs)
+        """Per run (by run id): expected count (``fitted``) and probability or rate (``fitted_mean``), deviance
+        and Pearson residuals, both standardized by ``sqrt(scale (1 - h))``, Blom normal-plot positions of the
+        standardized deviance residuals, leverage and Cook's distance (see :mod:`._glm_residuals`)."""
+        return _residuals.diagnostics(self)
+
+    def residuals_of(self, frame) -> pd.DataFrame:
+        """Fitted probability or rate and deviance and Pearson residuals of any rows (e.g. excluded runs) that
+        hold the factor settings, the response and the trials or exposure column."""
+        return _residuals.residuals_of(self, frame)
 
     # -- effects and prediction -----------------------------------------------------------------------
     @property
