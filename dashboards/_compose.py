@@ -15,6 +15,9 @@ VIEW_MODULES = {
     "ResidualInspector": "residual_inspector",
     "PredictionsView": "predictions_view",
     "OptimizerView": "optimizer_view",
+    "MixtureSliders": "mixture_sliders",
+    "CoxTraces": "cox_traces",
+    "TernarySlice": "ternary_slice",
 }
 
 

@@ -156,9 +156,9 @@ __all__ += ["extreme_vertices", "mixture_process", "simplex_centroid", "simplex_
 from .model import MixtureFit, cox_traces, fit_mixture  # noqa: E402
 
 __all__ += ["MixtureFit", "cox_traces", "fit_mixture"]
-from .model import move_component, ternary_slice  # noqa: E402
+from .model import move_component, ternary_grid, ternary_slice  # noqa: E402
 
-__all__ += ["move_component", "ternary_slice"]
+__all__ += ["move_component", "ternary_grid", "ternary_slice"]
 
 # Split-plot and GLM fits (issues 13, 15)
 from .design import split_plot_order  # noqa: E402

@@ -12,9 +12,11 @@ except ImportError as exc:  # pragma: no cover - depends on the environment
         "levelwise.widgets needs ipywidgets, bqplot and traitlets: pip install levelwise"
     ) from exc
 
+from .cox_traces import CoxTraces
 from .design_builder import DesignBuilder
 from .effects_view import EffectsView
 from .factor_sliders import FactorSliders
+from .mixture_sliders import MixtureSliders
 from .optimizer_view import OptimizerView
 from .predictions_view import PredictionsView
 from .residual_inspector import ResidualInspector
@@ -22,11 +24,14 @@ from .run_sheet_editor import RunSheetEditor
 from .shared_model import ReadOnlyError, SharedModel
 from .surface_slice import SurfaceSlice
 from .table_import import TableImport
+from .ternary_slice import TernarySlice
 
 __all__ = [
+    "CoxTraces",
     "DesignBuilder",
     "EffectsView",
     "FactorSliders",
+    "MixtureSliders",
     "OptimizerView",
     "PredictionsView",
     "ReadOnlyError",
@@ -35,4 +40,5 @@ __all__ = [
     "SharedModel",
     "SurfaceSlice",
     "TableImport",
+    "TernarySlice",
 ]

@@ -7,6 +7,7 @@ import pandas as pd
 
 from levelwise import LevelwiseError
 from levelwise._errors import describe
+from levelwise.study._goals import USED, is_complete
 
 
 class GoalsMixin:
@@ -52,25 +53,40 @@ class GoalsMixin:
         return None
 
     def study_goals(self) -> dict:
-        """The goals the study stores (kind, and the target of a target goal), with limits from the data."""
+        """The goals the study stores: the fields it keeps (format 4: limits, target, exponents, weight), the
+        others started from the data (see ``GOAL_DEFAULTS``)."""
         out = {}
         for name, spec in self.study.responses.items():
-            if spec.goal != "none":
-                goal = self.goal_for(name, spec.goal, spec.target)
-                if goal is not None:
-                    out[name] = goal
+            if spec.goal == "none":
+                continue
+            stored = {key: getattr(spec, key) for key in USED[spec.goal] if getattr(spec, key) is not None}
+            goal = self.goal_for(name, spec.goal, spec.target)
+            if goal is None and not is_complete({"goal": spec.goal, **stored}):
+                continue  # no range in the data and no stored limits: nothing to start from
+            goal = {"goal": spec.goal, "s": 1.0, "t": 1.0, "weight": 1.0, **(goal or {}), **stored}
+            out[name] = {key: value for key, value in goal.items() if key == "goal" or key in USED[spec.goal]}
         return out
 
     def _write_goals(self, goals: dict) -> None:
-        """Write the goal kinds (and a target goal's target) back to the study, each change with its audit entry."""
+        """Write each changed goal back to the study, every field its kind uses (limits, target, exponents s
+        and t, weight), each change with its audit entry. A goal as the study already shows it (stored fields,
+        the rest from the data) writes nothing, so editing one response does not store the others' defaults."""
         study = self.study
-        changed = False
-        for name, spec in study.responses.items():
-            goal = goals.get(name)
-            kind = "none" if goal is None else goal.get("goal", goal.get("kind", "none"))
-            target = float(goal["target"]) if kind == "target" else None
-            if kind != spec.goal or (kind == "target" and target != spec.target):
-                study.set_goal(name, kind, target)
-                changed = True
-        if changed:
+        shown = {name: _fields(goal) for name, goal in self.study_goals().items()}
+        before = study.revision
+        for name in study.responses:
+            kind, fields = _fields(goals.get(name))
+            if (kind, fields) == shown.get(name, ("none", {})):
+                continue
+            fields = dict(fields)
+            target = fields.pop("target", None)
+            study.set_goal(name, kind, target, **fields)
+        if study.revision != before:
             self._sync()
+
+
+def _fields(goal) -> tuple:
+    """``(kind, {field: float})`` of a goal dict: only the fields its kind uses."""
+    goal = goal or {}
+    kind = goal.get("goal", goal.get("kind", "none"))
+    return kind, {key: float(goal[key]) for key in USED.get(kind, ()) if goal.get(key) is not None}

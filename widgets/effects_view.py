@@ -245,7 +245,12 @@ class EffectsView(View):
             columns={"estimate": "estimate (coded)", "std_error": "std. error", "p_value": "p",
                      "ci_low": "95% CI low", "ci_high": "95% CI high", "vif": "VIF"}
         )
-        self.coefficient_table.value = "<b>Coefficients</b> (coded units: -1 at low, +1 at high)" + table_html(
+        basis = "(coded units: -1 at low, +1 at high)"
+        info = getattr(current, "mixture_info", None)
+        if info is not None:  # a mixture fit: blending coefficients, no intercept
+            basis = ("(blending coefficients over " + ("L-pseudo-components" if info.pseudo else "the proportions "
+                     "amount / total") + "; process factors coded -1 to +1; no intercept)")
+        self.coefficient_table.value = f"<b>Coefficients</b> {basis}" + table_html(
             coefficients, "lw-table lw-coefficient-table"
         )
 
@@ -314,10 +319,10 @@ class EffectsView(View):
         current = self.effects_fit()
         if current is None:
             return
-        if self.measure.value == "effect":
+        if self.measure.value == "effect" and getattr(current, "mixture_info", None) is None:
             values = current.effects.abs()
             label = "|effect|"
-        else:
+        else:  # |t| (a mixture model's coefficients are not effects)
             t = current.coefficients["t"].drop(index="Intercept", errors="ignore")
             values = t.abs()
             label = "|t|"

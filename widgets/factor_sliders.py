@@ -147,7 +147,11 @@ class FactorSliders(View):
             slider.observe(self.safely(self._keep_bounds), names=["min", "max"])
             self.sliders[f.name] = slider
             self.traces[f.name] = self._trace_figure(f)
-        self.slider_box.children = list(self.sliders.values())
+        note = []
+        if getattr(self.shared, "is_mixture", False):
+            note = [ipw.HTML("<p>The blend of this mixture study is set with the mixture sliders; these sliders "
+                             "move its process factors only.</p>").add_class("lw-mixture-note")]
+        self.slider_box.children = note + list(self.sliders.values())
         self.trace_box.children = list(self.traces.values())
         categorical = [f.name for f in self.shared.factors if is_categorical(f)]
         self.level_curves.options = [("(chosen level only)", None)] + [(n, n) for n in categorical]

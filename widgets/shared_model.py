@@ -44,6 +44,7 @@ from levelwise.model import GlmFit, MixedFit
 
 from ._shared_fitting import FittingMixin, default_setting, is_categorical
 from ._shared_goals import GoalsMixin
+from ._shared_mixture import MixtureMixin, default_blend
 from ._study_table import DEFAULT_MODEL, study_from_table
 
 #: Traits that only a writable model may change (the inputs and the outputs of fitting).
@@ -76,7 +77,7 @@ class _NoneChecked(traitlets.Instance):
         return super()._validate(obj, value)
 
 
-class SharedModel(GoalsMixin, FittingMixin, traitlets.HasTraits):
+class SharedModel(MixtureMixin, GoalsMixin, FittingMixin, traitlets.HasTraits):
     """A view over a :class:`levelwise.Study` (factors, runs, responses, models, exclusions) with its current fits.
 
     Build it on a study with :meth:`from_study`; the constructor builds the study from a table.
@@ -193,7 +194,8 @@ class SharedModel(GoalsMixin, FittingMixin, traitlets.HasTraits):
             super().__init__(design=design, response=response)
             self.set_trait("level", float(level))
             self._attach(study)
-            self.settings = {f.name: default_setting(f) for f in study.factors} | dict(settings or {})
+            self.settings = {f.name: default_setting(f) for f in study.factors} | default_blend(study) \
+                | dict(settings or {})
             self._refit()
             self.goals = self.study_goals()
         self.set_trait("read_only", bool(read_only))  # last: the model is built before it is locked
@@ -302,10 +304,13 @@ class SharedModel(GoalsMixin, FittingMixin, traitlets.HasTraits):
         if not isinstance(value, dict):
             raise LevelwiseError(f"The 'settings' must be a dict of factor name -> number. Got {describe(value)}.")
         by_name = {f.name: f for f in self.factors}
+        value, amounts = self._split_blend(value)  # a mixture study's components: checked as one blend
         unknown = sorted(set(value) - set(by_name), key=str)
         if unknown:
-            raise LevelwiseError(f"The settings name unknown factor(s) {unknown}; known: {sorted(by_name)}.")
+            known = sorted(by_name) + self.component_names
+            raise LevelwiseError(f"The settings name unknown factor(s) {unknown}; known: {known}.")
         clean = dict(self.settings) if self.settings else {}
+        clean.update(self._checked_blend(amounts, clean))
         for name, raw in value.items():
             factor = by_name[name]
             if is_categorical(factor):

@@ -36,6 +36,10 @@ from .style import (
     SURFACE_QUANTITIES,
 )
 
+#: What the surface slice says for a mixture study (whose components cannot vary two at a time).
+MIXTURE_NOTE = ("<p>A surface slice varies two factors independently; the components of a mixture study always sum "
+                "to the total, so they are drawn by the ternary slice instead.</p>")
+
 #: Clickable (invisible) targets per axis: a click sets the nearest of these grid points.
 CLICK_GRID = 41
 
@@ -121,6 +125,10 @@ class SurfaceSlice(View):
         super().__init__(shared)
         self.shape = tuple(int(v) for v in shape)
         self.n_contours = int(contours)
+        if getattr(shared, "is_mixture", False):  # a blend is drawn by the ternary slice: say so, draw nothing
+            self.caption = ipw.HTML(MIXTURE_NOTE).add_class("lw-slice-caption")
+            self.widget = ipw.VBox([self.caption, self.status]).add_class("lw-surface-slice")
+            return
         names = [f.name for f in shared.continuous_factors()]
         if len(names) < 2:
             raise LevelwiseError(f"A surface slice needs at least two continuous factors. Got {names}.")

@@ -58,6 +58,12 @@ class MixtureInfo:
         return np.hstack([mv, coded])
 
 
+#: Why effects, Lenth's method and the half-normal plot are refused for a mixture fit.
+NOT_EFFECTS = ("effects, Lenth's method and the half-normal plot apply to two-level factors; a mixture model's "
+               "blending coefficients are not effects (the components cannot move one at a time). Look at the "
+               "Cox-direction effect traces instead.")
+
+
 class MixtureFit(Fit):
     """A :class:`~levelwise.Fit` of a mixture model; build it with :func:`fit_mixture`.
 
@@ -180,6 +186,20 @@ class MixtureFit(Fit):
         if not self.mixture_info.pseudo:
             raise LevelwiseError("This mixture fit does not use pseudo-components; fit with pseudo=True.")
         return self._canonical(pseudo=True)
+
+    # -- two-level effects do not apply ---------------------------------------------------------------------
+    @property
+    def effects(self):
+        """Refused: a blending coefficient is not a two-level effect (see :func:`levelwise.cox_traces`)."""
+        raise LevelwiseError(NOT_EFFECTS)
+
+    def lenth(self, alpha: float = 0.05):
+        """Refused: Lenth's method needs two-level effects (see :func:`levelwise.cox_traces`)."""
+        raise LevelwiseError(NOT_EFFECTS)
+
+    def half_normal(self):
+        """Refused: a half-normal plot needs two-level effects (see :func:`levelwise.cox_traces`)."""
+        raise LevelwiseError(NOT_EFFECTS)
 
     # -- reduction -------------------------------------------------------------------------------------------
     def refit_terms(self, exponents):
