@@ -70,6 +70,32 @@ def slice_quantity(fit, grid: dict, quantity: str) -> np.ndarray:
     return np.full(np.shape(grid["mean"]), np.nan)
 
 
+def response_family(shared, response: str) -> str | None:
+    """The family the study records for *response* (None: a measurement), whether or not it has a fit."""
+    study = getattr(shared, "study", None)
+    spec = study.responses.get(response) if study is not None else None
+    return getattr(spec, "family", None)
+
+
+def response_scale(shared, response: str) -> float:
+    """:func:`scale` of a response by its recorded family: the goal editors show a pass rate in %."""
+    return 100.0 if response_family(shared, response) == "binomial" else 1.0
+
+
+def observed_means(shared, response: str):
+    """The recorded values of *response* on the scale of its fit's mean: passes / trials for a binomial
+    response, count / exposure for a Poisson one with exposure, else the values (NaN where missing)."""
+    data = shared.data
+    values = data[response].to_numpy(dtype=float)
+    study = getattr(shared, "study", None)
+    spec = study.responses.get(response) if study is not None else None
+    size = getattr(spec, "trials", None) or getattr(spec, "exposure", None)
+    if size and size in data:
+        with np.errstate(divide="ignore", invalid="ignore"):
+            values = values / data[size].to_numpy(dtype=float)
+    return values
+
+
 def shown(fit, values):
     """*values* (a number or an array of kernel numbers) in shown units."""
     return np.asarray(values, dtype=float) * scale(fit) if np.ndim(values) else float(values) * scale(fit)

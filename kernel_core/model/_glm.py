@@ -138,6 +138,11 @@ class GlmFit(FitFamily):
     level = property(lambda self: self.base.level)
 
     @property
+    def spec(self):
+        """The model specification of the least-squares fit that supplies the model matrix (its formula)."""
+        return self.base.spec
+
+    @property
     def terms(self) -> tuple:
         return tuple(self.base.terms[c] for c in self.columns)
 
