@@ -14,7 +14,9 @@ def workbench(served_workbench, browser):
     context = browser.new_context(viewport={"width": 1400, "height": 1000})
     page = context.new_page()
     page.route("**/*", loopback_only)
-    page.goto(served_workbench, timeout=60_000)
+    page.goto(served_workbench, timeout=120_000)
+    # The kernel has drawn the page once the analysis shows (a loaded machine can take a minute or more).
+    page.locator(".lw-readout .lw-mean").first.wait_for(timeout=180_000)
     # The demo study has results, so the workbench opens on its analysis: unfold "Plan the runs" first.
     page.locator(".lw-section-plan").get_by_text("1 · Plan the runs").click(timeout=60_000)
     page.locator(".lw-design-builder .lw-design-family select").first.wait_for(timeout=60_000)

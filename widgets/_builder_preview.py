@@ -12,6 +12,7 @@ import pandas as pd
 
 from levelwise import Design, LevelwiseError, evaluate, write_run_sheet
 
+from ._builder_splitplot import split_plot_facts, warnings_html
 from .effects_view import table_html
 from .style import fmt
 
@@ -39,6 +40,7 @@ class PreviewMixin:
     def _show(self, design: Design) -> None:
         self.design = design
         self.show_error("")
+        self.status.value = warnings_html(getattr(self, "build_warnings", ()))  # e.g. too few whole plots
         table = design.table
         self.run_sheet.value = f"<b>Run sheet</b> ({len(table)} runs, in run order)" + table_html(
             table.set_index("run"), "lw-table lw-run-sheet-table"
@@ -58,6 +60,7 @@ class PreviewMixin:
         extra = {k: v for k, v in getattr(design, "metadata", {}).items()
                  if k in ("alpha", "d_efficiency", "average_prediction_variance")}
         facts += [f"{html.escape(k.replace('_', ' '))} {fmt(float(v))}" for k, v in extra.items()]
+        facts += split_plot_facts(design)
         aliases = ""
         if design.generators:
             pairs = [(effect, partners) for effect, partners in design.aliases(max_order=2).items() if partners]

@@ -34,6 +34,7 @@ from levelwise import (
 
 from ._base import Debouncer, FigureExport, LongTask, TableExport, View
 from ._builder_preview import PreviewMixin, parse_responses
+from ._builder_splitplot import hard_toggle, recording, split_plot_keywords, split_plot_options
 from ._number import NumberField
 from .shared_model import SharedModel
 
@@ -56,7 +57,7 @@ FAMILY_OPTIONS = {
     "definitive_screening": ("extra_centre_runs",),
     "ccd": ("alpha", "ccd_kind", "center_points"),
     "box_behnken": ("center_points",),
-    "optimal": ("model", "runs", "criterion", "constraints", "starts", "augment"),
+    "optimal": ("model", "runs", "criterion", "constraints", "starts", "augment", "whole_plots", "variance_ratio"),
     "fold_over": ("fold_factor", "fold_center_points"),
 }
 
@@ -175,6 +176,7 @@ class DesignBuilder(PreviewMixin, View):
                                               description="Centre points in the fold", **wide),
             "seed": NumberField(1, integer=True, minimum=0, description="Seed (run order)", **wide),
             "randomize": ipw.Checkbox(value=True, description="randomise the run order"),
+            **split_plot_options(wide),  # optimal split-plot designs (issue 13)
         }
         for control in self.options.values():
             control.add_class("lw-design-option")
@@ -252,6 +254,7 @@ class DesignBuilder(PreviewMixin, View):
             "levels": ipw.Text(value=", ".join(map(str, factor.levels)) if categorical else "",
                                description="Levels", placeholder="e.g. steel, brass", continuous_update=False,
                                layout=ipw.Layout(width="220px")),
+            "hard": hard_toggle(factor),  # hard to change: held over whole plots (issue 13)
         }
         for control in row.values():
             control.observe(self.safely(self._on_option), names="value")
@@ -280,11 +283,13 @@ class DesignBuilder(PreviewMixin, View):
             try:
                 if row["type"].value == "categorical":
                     levels = [v.strip() for v in row["levels"].value.split(",") if v.strip()]
-                    out.append(Factor(row["name"].value.strip(), units=row["units"].value.strip(), levels=levels))
+                    out.append(Factor(row["name"].value.strip(), units=row["units"].value.strip(), levels=levels,
+                                      hard_to_change=row["hard"].value))
                 else:
                     count = row["n_levels"].value
                     out.append(Factor(row["name"].value.strip(), row["low"].value, row["high"].value,
-                                      units=row["units"].value.strip(), n_levels=count if count != 2 else None))
+                                      units=row["units"].value.strip(), n_levels=count if count != 2 else None,
+                                      hard_to_change=row["hard"].value))
             except LevelwiseError as exc:
                 raise LevelwiseError(f"Factor row {i + 1}: {exc}") from None
         return out
@@ -361,7 +366,10 @@ class DesignBuilder(PreviewMixin, View):
 
     def recipe(self):
         """``make(progress) -> Design`` for the current inputs: the inputs are read here, on the main thread,
-        so *make* can run on a worker thread."""
+        so *make* can run on a worker thread. Its warnings (e.g. too few whole plots) go to ``build_warnings``."""
+        return recording(self, self._recipe())
+
+    def _recipe(self):
         o = {name: control.value for name, control in self.options.items()}
         seed, randomize = o["seed"], o["randomize"]
         family = self.family.value
@@ -414,7 +422,7 @@ class DesignBuilder(PreviewMixin, View):
         return lambda progress: optimal_design(
             factors, o["model"], runs, criterion=o["criterion"], constraints=constraints, fixed_runs=fixed,
             starts=o["starts"], seed=seed, progress=progress if progress is not None else False,
-            randomize=randomize,
+            randomize=randomize, **split_plot_keywords(o),
         )
 
     def preview(self) -> Design | None:

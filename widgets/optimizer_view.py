@@ -18,7 +18,7 @@ import numpy as np
 from levelwise import LevelwiseError, optimize
 
 from . import _count_display as counts
-from ._base import View
+from ._base import LongTask, View
 from ._number import NumberField
 from .shared_model import SharedModel
 from .style import fmt, inert_html
@@ -68,6 +68,9 @@ class OptimizerView(View):
         overall D in ``span.lw-overall-desirability``).
     use_button : ipywidgets.Button
         "Use these settings" (``lw-use-optimum``).
+    task : LongTask
+        Progress of the starts (``lw-search-progress``) and a Stop button (``lw-search-stop``) that keeps the
+        best settings found so far; inside a kernel the search runs on a worker thread, so the page stays live.
     optimum : levelwise.optimize.Optimum or None
         The last result.
     widget : ipywidgets.VBox
@@ -87,11 +90,14 @@ class OptimizerView(View):
             description="Use these settings", disabled=True, layout=ipw.Layout(width="auto"),  # as wide as its label
         ).add_class("lw-use-optimum")
         self.result = ipw.HTML().add_class("lw-optimum")
+        self.task = LongTask("Starts")
+        self.task.widget.add_class("lw-optimizer-progress")
         self.run_button.on_click(self.safely(lambda _: self.run()))
         self.use_button.on_click(self.safely(lambda _: self.use()))
         self.defaults_note = ipw.HTML(f"<i>{html.escape(SharedModel.GOAL_DEFAULTS)}</i>").add_class("lw-goal-defaults")
         self.widget = ipw.VBox(
-            [self.defaults_note, self.goal_box, self.run_button, self.result, self.use_button, self.status]
+            [self.defaults_note, self.goal_box, self.run_button, self.task.widget, self.result, self.use_button,
+             self.status]
         ).add_class("lw-optimizer-view")
         self._build()
         self.watch(self._build, names=["responses"])
@@ -196,17 +202,35 @@ class OptimizerView(View):
 
     # ----- the search ---------------------------------------------------------------------------
     def run(self):
-        """Search for the settings of highest overall desirability; returns the kernel's Optimum."""
+        """Search for the settings of highest overall desirability, with progress and a Stop button.
+
+        Returns the Optimum when the search ran at once (no event loop: plain Python, tests), else None; the
+        result is shown when the search ends (``task.stop()`` ends it early with the best settings so far).
+        """
         goals = self.goals()
         if not goals:
             raise LevelwiseError("Set a goal for at least one response first.")
         missing = [r for r in goals if r not in self.shared.fits]
         if missing:
             raise LevelwiseError(f"No fit for response(s) {missing}: record values or fix the model first.")
-        self.optimum = optimize(dict(self.shared.fits), goals, starts=self.starts, seed=self.seed)
+        fits, starts, seed = dict(self.shared.fits), self.starts, self.seed
+        self.use_button.disabled = True
+        self.status.value = ""
+        self.task.start(lambda report: optimize(fits, goals, starts=starts, seed=seed, progress=report),
+                        self._found)
+        return None if self.task.running else self.optimum
+
+    def _found(self, optimum, error) -> None:
+        if error is not None:
+            self.show_error(str(error) if isinstance(error, LevelwiseError)
+                            else f"Internal error in the search: {type(error).__name__}.")
+            return
+        self.optimum = optimum
         self.use_button.disabled = False
         self._show()
-        return self.optimum
+        if getattr(optimum, "stopped", None):
+            self.status.value = ('<div class="lw-search-incomplete">The search was stopped: these are the best '
+                                 "settings found so far, not necessarily the best there are.</div>")
 
     def use(self):
         """Move the factor settings (and so every view) to the last optimum."""

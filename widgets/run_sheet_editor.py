@@ -20,6 +20,18 @@ from .style import fmt
 
 REASON = "entered in the workbench"
 
+#: The folder of the study files shipped with levelwise (the invented demos): Save never writes there. Found
+#: beside this package (``levelwise/widgets`` -> ``levelwise/dashboards/data``, also in the source tree)
+#: without importing the dashboards (imports point one way).
+SHIPPED_DATA = Path(__file__).resolve().parent.parent / "dashboards" / "data"
+
+
+def _is_shipped(path: Path) -> bool:
+    try:
+        return path.expanduser().resolve().is_relative_to(SHIPPED_DATA)
+    except (OSError, RuntimeError):
+        return False
+
 
 def _text_of(value) -> str:
     if value is None:
@@ -40,7 +52,8 @@ class RunSheetEditor(View):
     cells : dict
         ``{(run id, column): ipywidgets.Text}``; columns are response names and ``"<factor> (achieved)"``.
     path : ipywidgets.Text
-        Where Save writes (``lw-save-path``).
+        Where Save writes (``lw-save-path``). Empty until the user gives a path when the study came from the
+        shipped demo: Save then asks for one, and never writes into the shipped data folder.
     save_button : ipywidgets.Button
         ``lw-save``.
     state : ipywidgets.HTML
@@ -51,6 +64,8 @@ class RunSheetEditor(View):
         super().__init__(shared)
         self.cells = {}
         self.grid = ipw.GridBox().add_class("lw-run-sheet-grid")
+        if path is not None and _is_shipped(Path(path)):
+            path = None  # the shipped demo is never the place to save: ask for a path
         self.path = ipw.Text(value=str(path or ""), description="Save to", placeholder="folder/study.json",
                              layout=ipw.Layout(width="460px")).add_class("lw-save-path")
         self.save_button = ipw.Button(
@@ -118,7 +133,8 @@ class RunSheetEditor(View):
         finally:
             self._quiet = False
         if self._saved_revision is None and not self._edited:
-            self.state.value = '<span class="lw-not-saved">Not saved to a file yet</span>'
+            self.state.value = ('<span class="lw-not-saved">Not saved to a file yet'
+                                + ("" if self.path.value.strip() else ": type a path in 'Save to'") + "</span>")
         elif self._saved_revision != study.revision:
             self.state.value = '<span class="lw-unsaved">Unsaved changes</span>'
         else:
@@ -150,8 +166,14 @@ class RunSheetEditor(View):
         self.shared._check_writable("saving the study")
         text = self.path.value.strip()
         if not text:
+            self.path.add_class("lw-needs-path")
             raise LevelwiseError("Type where to save the study ('Save to', a .json file) first.")
         path = Path(text).expanduser()
+        if _is_shipped(path):
+            self.path.add_class("lw-needs-path")
+            raise LevelwiseError(f"The study files shipped with levelwise ({SHIPPED_DATA}) are never overwritten: "
+                                 f"type another path in 'Save to' (a .json file of your own). Got {text!r}.")
+        self.path.remove_class("lw-needs-path")
         self.shared.study.save(path)
         self._saved_revision = self.shared.study.revision
         self._refresh()

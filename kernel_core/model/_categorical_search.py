@@ -148,9 +148,12 @@ class LevelOptimum:
     starts: pd.DataFrame
     winner: dict = field(default_factory=dict)
     by_level: pd.DataFrame = None
+    search_complete: bool = True
+    stopped: str | None = None
 
 
-def optimize_levels(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None):
+def optimize_levels(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None,
+                    progress=None):
     """:func:`levelwise.optimize` when some fit has categorical factors: a continuous search at every
     combination of their levels; the combination with the highest overall desirability wins.
 
@@ -176,20 +179,33 @@ def optimize_levels(fits: dict, goals: dict, region=None, constraints=None, star
         )
     if not any(n not in fit.categories for fit in fits.values() for n in fit.factor_names):
         raise LevelwiseError("optimize needs at least one continuous factor in the fits.")
+    from .._progress import Reporter
+
+    reporter = Reporter(progress, "Optimisation starts")
     results = []
-    for combo in combos:
+    for k, combo in enumerate(combos):
         held = dict(zip(names, combo))
         sliced = {r: LevelSlice(fit, {n: held[n] for n in fit.categories}) for r, fit in fits.items()}
+
+        def step(fraction, message="", k=k, held=held):  # this combination's share of the whole search
+            words = ", ".join(f"{n} = {v}" for n, v in held.items())
+            return reporter.report((k + fraction) / len(combos), f"{words}: {message}")
+
         found = optimize(sliced, goals, region=continuous_region or None, constraints=constraints, starts=starts,
-                         seed=seed)
+                         seed=seed, progress=step)
         results.append((found.overall, held, found))
+        if found.stopped is not None:
+            reporter.stopped = reporter.stopped or found.stopped
+            break
+    reporter.finish("The optimisation")
     results.sort(key=lambda item: -item[0])
     best_value, winner, found = results[0]
     rows = [{**held, **opt.settings, "overall_D": value} for value, held, opt in results]
     by_level = pd.DataFrame(rows)
     settings = {**found.settings, **winner}
     return LevelOptimum(settings=settings, predictions=found.predictions, desirability=found.desirability,
-                        overall=float(best_value), starts=found.starts, winner=winner, by_level=by_level)
+                        overall=float(best_value), starts=found.starts, winner=winner, by_level=by_level,
+                        search_complete=reporter.stopped is None, stopped=reporter.stopped)
 
 
 @dataclass(frozen=True, eq=False)

@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, describe
+from .._progress import Reporter
 from ..design import parse_constraint
 
 GOAL_KINDS = ("maximize", "minimize", "target")
@@ -197,6 +198,10 @@ class Optimum:
         The overall desirability D.
     starts : pandas.DataFrame
         The local optimum reached from each start (settings and ``overall_D``), best first.
+    search_complete : bool
+        False when the search was stopped (``progress`` returned False, or Ctrl-C) before every start ran.
+    stopped : str or None
+        ``"cancelled"`` or ``"interrupted"`` when stopped; the result is then the best found so far.
     """
 
     settings: dict
@@ -204,6 +209,8 @@ class Optimum:
     desirability: pd.Series
     overall: float
     starts: pd.DataFrame
+    search_complete: bool = True
+    stopped: str | None = None
 
 
 def _factor_union(fits: dict) -> tuple[list[str], dict]:
@@ -228,7 +235,8 @@ def _mean_function(fit, names: list[str]):
     return lambda natural: engine.mean_and_leverage(natural[:, columns])[0]
 
 
-def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None) -> Optimum:
+def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None,
+             progress=None) -> Optimum:
     """Maximise the overall desirability of several fitted responses.
 
     A bounded multi-start search: many random points in the region are screened, the best
@@ -250,6 +258,11 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
         Number of local searches.
     seed : int, optional
         Seed of the random starting points, for repeatable results.
+    progress : None, bool or callable
+        As for the design searches (:mod:`levelwise._progress`): None, a text line on standard error once the
+        starts have run a second; False, silent; True, the line from the start; or ``progress(fraction,
+        message)``, which stops the search by returning False. Stopped (or Ctrl-C), the result is the best
+        found so far with ``search_complete`` False and ``stopped`` set. (Mixture searches ignore it.)
 
     Raises
     ------
@@ -278,7 +291,7 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     if any(getattr(fit, "categories", None) for fit in fits.values()):  # over categorical levels (issue 14)
         from ._categorical_search import optimize_levels
 
-        return optimize_levels(fits, goals, region, constraints, starts, seed)
+        return optimize_levels(fits, goals, region, constraints, starts, seed, progress=progress)
     goal_objects = {r: as_goal(g, r) for r, g in goals.items()}
     names, ranges = _factor_union(fits)
     if region is not None:
@@ -350,20 +363,44 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     slsqp_constraints = [
         {"type": "ineq", "fun": (lambda u, a=a, b=b: b - to_natural(u)[0] @ a)} for a, b in parsed
     ]
+    reporter = Reporter(progress, "Optimisation starts")
     results = []
-    for start in candidates:
-        found = sopt.minimize(lambda u: -overall(to_natural(u))[0], start, method="SLSQP",
-                              bounds=[(0.0, 1.0)] * len(names), constraints=slsqp_constraints,
-                              options={"maxiter": 200, "ftol": 1e-12})
-        u = np.clip(found.x, 0.0, 1.0)
-        if parsed and (to_natural(u) @ a_ub.T > b_ub + 1e-9).any():
-            u = start  # the local search left the feasible set: keep its feasible start
-        value = float(overall(to_natural(u))[0])
-        start_value = float(overall(to_natural(start))[0])
-        if start_value > value:
-            u, value = start, start_value
-        results.append((value, u))
+    try:
+        for i, start in enumerate(candidates):
+            best = max((v for v, _ in results), default=float(scores[order[0]]))
+            if not reporter.report(i / len(candidates), f"start {i + 1} of {len(candidates)}, best overall "
+                                                        f"desirability so far {best:.3g}"):
+                break
+            results.append(_polish(start, overall, to_natural, names, parsed, a_ub, b_ub, slsqp_constraints))
+    except KeyboardInterrupt:
+        reporter.interrupted()
+    if not results:  # stopped before the first local search: the best screened point
+        results = [(float(scores[order[0]]), screen[order[0]])]
+    if reporter.stopped is None:
+        reporter.report(1.0, "done")
+    reporter.finish("The optimisation")
     results.sort(key=lambda item: -item[0])
+    return _optimum(fits, responses, goal_objects, names, to_natural, results, reporter.stopped)
+
+
+def _polish(start, overall, to_natural, names, parsed, a_ub, b_ub, slsqp_constraints):
+    """One local search (SLSQP) from *start*; returns ``(overall D, point in [0, 1]^k)``."""
+    from scipy import optimize as sopt
+
+    found = sopt.minimize(lambda u: -overall(to_natural(u))[0], start, method="SLSQP",
+                          bounds=[(0.0, 1.0)] * len(names), constraints=slsqp_constraints,
+                          options={"maxiter": 200, "ftol": 1e-12})
+    u = np.clip(found.x, 0.0, 1.0)
+    if parsed and (to_natural(u) @ a_ub.T > b_ub + 1e-9).any():
+        u = start  # the local search left the feasible set: keep its feasible start
+    value = float(overall(to_natural(u))[0])
+    start_value = float(overall(to_natural(start))[0])
+    if start_value > value:
+        u, value = start, start_value
+    return value, u
+
+
+def _optimum(fits, responses, goal_objects, names, to_natural, results, stopped) -> Optimum:
     best_value, best_u = results[0]
     best = to_natural(best_u)[0]
     settings = {n: float(v) for n, v in zip(names, best)}
@@ -377,7 +414,7 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     table = pd.DataFrame([to_natural(u)[0] for _, u in results], columns=names)
     table["overall_D"] = [v for v, _ in results]
     return Optimum(settings=settings, predictions=predictions, desirability=d, overall=float(best_value),
-                   starts=table)
+                   starts=table, search_complete=stopped is None, stopped=stopped)
 
 
 # ----- steepest ascent ------------------------------------------------------------------------

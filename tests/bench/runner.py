@@ -22,7 +22,7 @@ from .rows import make_row
 
 KERNEL_CASES = ("refresh", "diagnostics", "exclusion", "predict", "fit", "designs", "splitplot", "family_sliders",
                 "mixture")
-ALL_CASES = (*KERNEL_CASES, "browser")
+ALL_CASES = (*KERNEL_CASES, "browser", "viewers")
 #: Every row id a run writes, in table order (the smoke test checks them all).
 ROW_IDS = (
     "refresh_full_vs_statsmodels", "refresh_full_vs_floor", "refresh_no_slice_vs_statsmodels",
@@ -30,12 +30,13 @@ ROW_IDS = (
     "predict_10000_rows", "fit_large",
     "min_aberration_15_16", "min_aberration_11_64", "d_optimal", "reml_split_plot", "slider_split_plot",
     "slider_binomial", "slider_p50", "slider_p95", "first_view", "kernel_memory", "slider_bytes",
-    "mixture_refresh_vs_statsmodels",
+    "mixture_refresh_vs_statsmodels", "viewers_slider_p50", "viewers_slider_p95",
 )
 ROWS_OF = {
     "refresh": ROW_IDS[:4], "diagnostics": ROW_IDS[4:6], "exclusion": ROW_IDS[6:7], "predict": ROW_IDS[7:9],
     "fit": ROW_IDS[9:10], "designs": ROW_IDS[10:13], "splitplot": ROW_IDS[13:14], "family_sliders": ROW_IDS[14:16],
     "browser": ROW_IDS[16:21], "mixture": ("mixture_refresh_vs_statsmodels",),
+    "viewers": ("viewers_slider_p50", "viewers_slider_p95"),
 }
 PACKAGES = ("numpy", "scipy", "pandas", "statsmodels", "patsy", "threadpoolctl", "ipywidgets", "bqplot", "voila",
             "ipykernel", "playwright")
@@ -138,7 +139,7 @@ def parse(argv):
     parser.add_argument("--repeats", type=int, default=None, help="Repeats per case (default 21, quick 5).")
     parser.add_argument("--cases", default=",".join(ALL_CASES),
                         help=f"Comma-separated subset of {', '.join(ALL_CASES)}.")
-    parser.add_argument("--no-browser", action="store_true", help="Skip the browser cases 6-8.")
+    parser.add_argument("--no-browser", action="store_true", help="Skip the browser cases 6-8 and 10.")
     parser.add_argument("--budget", type=float, default=None,
                         help="Seconds per case after which no new repeats start (default 300, quick 20).")
     parser.add_argument("--out", default="bench-results.json", help="Where to write the JSON results.")
@@ -149,8 +150,8 @@ def parse(argv):
     unknown = sorted(set(cases) - set(ALL_CASES))
     if unknown:
         parser.error(f"unknown case(s) {unknown}; choose from {list(ALL_CASES)}")
-    if args.no_browser and "browser" in cases:
-        cases.remove("browser")
+    if args.no_browser:
+        cases = [c for c in cases if c not in ("browser", "viewers")]
     if args.repeats is not None and args.repeats < 1:
         parser.error(f"--repeats must be >= 1, got {args.repeats}")
     return args, cases
@@ -203,6 +204,16 @@ def main(argv=None) -> int:
             traceback.print_exc()
             rows += error_rows("browser", exc)
         print(f"  browser: {time.perf_counter() - t0:.1f} s", flush=True)
+    if "viewers" in cases:
+        from . import viewers_case
+
+        t0 = time.perf_counter()
+        try:
+            rows += viewers_case.run(args.quick)
+        except Exception as exc:  # noqa: BLE001 - reported as a row; the run goes on
+            traceback.print_exc()
+            rows += error_rows("viewers", exc)
+        print(f"  viewers: {time.perf_counter() - t0:.1f} s", flush=True)
     skipped = [name for name in ALL_CASES if name not in cases]
     for name in skipped:
         for case_id in ROWS_OF[name]:
