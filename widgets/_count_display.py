@@ -70,6 +70,13 @@ def slice_quantity(fit, grid: dict, quantity: str) -> np.ndarray:
     return np.full(np.shape(grid["mean"]), np.nan)
 
 
+def shown_responses(study) -> tuple:
+    """The study's responses the views show: all but the trials or exposure of a count response (recorded
+    columns that the count's fit uses, not responses with a model of their own)."""
+    partners = {getattr(spec, key) for spec in study.responses.values() for key in ("trials", "exposure")}
+    return tuple(name for name in study.response_names if name not in partners)
+
+
 def response_family(shared, response: str) -> str | None:
     """The family the study records for *response* (None: a measurement), whether or not it has a fit."""
     study = getattr(shared, "study", None)
