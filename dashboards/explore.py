@@ -28,6 +28,8 @@ SECTIONS = (
     ("explore", "4 · Explore and predict", ("FactorSliders", "SurfaceSlice", "PredictionsView", "OptimizerView")),
     ("share", "5 · Share", ()),
 )
+#: A mixture study's views in place of views that vary factors one or two at a time.
+MIXTURE_SWAPS = {"FactorSliders": ("MixtureSliders", "CoxTraces"), "SurfaceSlice": ("TernarySlice",)}
 #: Views of the workbench, in page order.
 WORKBENCH_VIEWS = tuple(name for _, _, names in SECTIONS for name in names)
 
@@ -77,6 +79,8 @@ def build(source=None) -> ipw.VBox:
     analysed = _has_results(study)
     for key, heading, names in SECTIONS:
         boxes = []
+        if getattr(study, "is_mixture", False):
+            names = tuple(n for name in names for n in MIXTURE_SWAPS.get(name, (name,)))
         for name in names:
             view_class = find_view(name)
             if view_class is None:

@@ -89,7 +89,10 @@ def payload(study: Study) -> dict:
             **fit.engine.payload(),  # the one prediction engine: the page evaluates exactly this
             **count_payload(fit),
         })
-    runs = np.column_stack([_run_column(source.data[f.name], f) for f in source.factors])
+    components = list(getattr(source, "component_names", []) or [])
+    columns = [source.data[name].to_numpy(dtype=float) for name in components]
+    columns += [_run_column(source.data[f.name], f) for f in source.factors]
+    runs = np.column_stack(columns) if columns else np.zeros((0, 0))
     runs = runs[np.isfinite(runs).all(axis=1)]
     models = {name: source.models.get(name, "") for name in source.responses}
     return {
@@ -105,8 +108,15 @@ def payload(study: Study) -> dict:
             for f in source.factors
         ],
         "responses": responses,
-        "runs": runs.tolist(),
+        "runs": runs.tolist(),  # a mixture study's runs: the component amounts, then the process settings
+        **({"mixture": mixture_block(study.mixture, shared.settings)} if components else {}),
     }
+
+
+def mixture_block(mixture, settings) -> dict:
+    """The page's mixture section: the components, their bounds, and the starting blend (the region's centroid)."""
+    return {"components": [{"name": c.name, "units": c.units} for c in mixture.components],
+            "total": mixture.total, "start": [float(settings[n]) for n in mixture.names]}
 
 
 ASSETS = Path(__file__).parent / "assets"
@@ -136,15 +146,16 @@ def render(study: Study) -> str:
     """The whole page as one string: the data, the script and the styles inline."""
     content = payload(study)
     data = script_json(content)
+    page = "export_mixture" if "mixture" in content else "export_page"  # a mixture study: blends, ternary slice
     parts = {
-        "__SCRIPT__": (ASSETS / "export_page.js").read_text(encoding="utf-8"),
+        "__SCRIPT__": (ASSETS / f"{page}.js").read_text(encoding="utf-8"),
         "__DATA__": data,
         "__SUMMARY__": content["summary"],
         "__CAUTION__": CAUTION,
         "__TITLE__": html.escape(title_of(study)),
     }
     # One pass, so text inside the study (a name, a note) can never be taken for a placeholder.
-    template = (ASSETS / "export_page.html").read_text(encoding="utf-8")
+    template = (ASSETS / f"{page}.html").read_text(encoding="utf-8")
     return re.sub("|".join(parts), lambda match: parts[match.group(0)], template)
 
 

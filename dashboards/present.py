@@ -26,6 +26,8 @@ from .summary import caution_html, fingerprint, fit_numbers, summary_html
 #: The views of the stakeholder page, in page order (the workbench's mutating views, the design
 #: builder, the residual inspector and the effects view with its term toggles, are deliberately absent).
 READ_ONLY_VIEWS = ("FactorSliders", "SurfaceSlice", "PredictionsView", "OptimizerView")
+#: The same page for a mixture study: the blend's sliders, its Cox-direction traces and the ternary slice.
+MIXTURE_VIEWS = ("MixtureSliders", "CoxTraces", "TernarySlice", "PredictionsView", "OptimizerView")
 
 
 def current_fits(shared) -> dict:
@@ -170,7 +172,7 @@ def build(source=None) -> ipw.VBox:
                                     description="Response shown").add_class("lw-response-choice")
         chooser.observe(lambda change: setattr(shared, "response", change["new"]), names="value")
         children.append(chooser)
-    for name in READ_ONLY_VIEWS:
+    for name in MIXTURE_VIEWS if getattr(shared, "is_mixture", False) else READ_ONLY_VIEWS:
         view_class = find_view(name)
         if view_class is None:
             continue

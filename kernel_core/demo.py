@@ -124,6 +124,14 @@ def split_plot_study():
     return study
 
 
+def reformulation_study():
+    """The INVENTED powder reformulation (a mixture study: resin, hardener, filler, pigment in % of the powder);
+    see :mod:`levelwise._mixture_demo`, shipped as ``dashboards/data/demo_reformulation.json``."""
+    from ._mixture_demo import reformulation_study as build
+
+    return build()
+
+
 if __name__ == "__main__":  # pragma: no cover - a convenience printout
     import sys
 

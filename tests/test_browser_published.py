@@ -15,7 +15,7 @@ from pathlib import Path
 import pytest
 import websocket
 from conftest import ARTIFACTS, SCREENSHOTS
-from kernel_ws import KernelClient
+from kernel_ws import V1, KernelClient
 
 from levelwise import LevelwiseWarning
 from levelwise.dashboards.study_source import open_study
@@ -223,6 +223,19 @@ def test_legacy_protocol_websocket_gets_400(opened, served_published):
     with pytest.raises(websocket.WebSocketBadStatusException) as other:
         websocket.create_connection(ws_url + "2", subprotocols=["v2.other"], timeout=10)
     assert other.value.status_code == 400
+
+
+def test_kernel_websocket_negotiates_permessage_deflate(opened, served_published):
+    """The served page's kernel websocket compresses (RFC 7692), as the bench's slider_bytes row assumes."""
+    page, _ = opened
+    url, _ = served_published
+    ws_url = url.replace("http://", "ws://") + f"api/kernels/{kernel_id_of(page)}/channels?session_id=deflate"
+    offer = ["Sec-WebSocket-Extensions: permessage-deflate; client_max_window_bits"]
+    ws = websocket.create_connection(ws_url, subprotocols=[V1], header=offer, timeout=10)
+    try:
+        assert "permessage-deflate" in ws.getheaders().get("sec-websocket-extensions", "")
+    finally:
+        ws.close()
 
 
 @pytest.mark.parametrize("path", [

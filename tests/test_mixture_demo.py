@@ -3,6 +3,7 @@ region, and the mixture pipeline recovers the stage's own invented truth within 
 
 import numpy as np
 import pandas as pd
+import pytest
 
 import levelwise as lw
 from levelwise import _mixture_demo as demo
@@ -28,3 +29,21 @@ def test_fits_recover_the_invented_truth():
         for term in table.index:
             true = truth.get(term, 0.0)
             assert abs(table.loc[term, "estimate"] - true) < 5 * table.loc[term, "std_error"] + 1e-9, (response, term)
+
+
+def test_the_shipped_reformulation_study_is_what_the_seeded_script_writes(tmp_path):
+    from pathlib import Path
+
+    from levelwise.study import Study
+
+    shipped = Path(__file__).resolve().parents[1] / "dashboards" / "data" / "demo_reformulation.json"
+    demo.write(tmp_path / "again.json")
+    assert (tmp_path / "again.json").read_bytes() == shipped.read_bytes()  # byte for byte
+    study = Study.load(shipped)
+    assert "invented" in study.title.lower() and study.notes.startswith("INVENTED data")
+    assert study.component_names == ["Resin", "Hardener", "Filler", "Pigment"] and study.mixture.total == 100.0
+    assert study.models == {"Impact": "scheffe_quadratic", "Gloss": "scheffe_quadratic"}
+    _, data = demo.reformulation_stage()
+    table = study.data()
+    assert table[["Resin", "Hardener", "Filler", "Pigment", "Impact", "Gloss"]].to_numpy() == \
+        pytest.approx(data[["Resin", "Hardener", "Filler", "Pigment", "Impact", "Gloss"]].to_numpy(), abs=0)

@@ -16,12 +16,13 @@ ROOT = Path(__file__).resolve().parents[1]
 DATA = ROOT / "tests" / "data"
 SHIPPED = ROOT / "dashboards" / "data" / "demo_campaign.json"
 SHIPPED_SPLIT_PLOT = ROOT / "dashboards" / "data" / "demo_split_plot.json"
+SHIPPED_REFORMULATION = ROOT / "dashboards" / "data" / "demo_reformulation.json"
 
 
 def study_files() -> list[Path]:
     """Every study file in the repository's test data and shipped data (a JSON object with a format_version)."""
     found = []
-    for path in sorted(DATA.glob("*.json")) + [SHIPPED, SHIPPED_SPLIT_PLOT]:
+    for path in sorted(DATA.glob("*.json")) + [SHIPPED, SHIPPED_SPLIT_PLOT, SHIPPED_REFORMULATION]:
         document = json.loads(path.read_text(encoding="utf-8"))
         if isinstance(document, dict) and "format_version" in document:
             found.append(path)
@@ -35,11 +36,12 @@ def schema() -> dict:
 def test_the_files_checked_are_the_ones_expected():
     names = [p.name for p in study_files()]
     assert names == ["demo_campaign_v1.json", "study_example.json", "study_v0.json", "study_v1.json",
-                     "demo_campaign.json", "demo_split_plot.json"]
+                     "demo_campaign.json", "demo_split_plot.json", "demo_reformulation.json"]
     versions = {p.name: json.loads(p.read_text(encoding="utf-8"))["format_version"] for p in study_files()}
     assert versions == {"demo_campaign_v1.json": 1, "study_example.json": 2, "study_v0.json": 0,
                         "study_v1.json": 1, "demo_campaign.json": 4,
-                        "demo_split_plot.json": 4}  # the shipped files are in the new format
+                        "demo_split_plot.json": 4,
+                        "demo_reformulation.json": 4}  # the shipped files are in the new format
 
 
 @pytest.mark.parametrize("path", study_files(), ids=lambda p: p.name)
@@ -53,7 +55,8 @@ def test_every_study_file_loads_and_saves_in_the_current_format(path, tmp_path):
     assert document["sha256"] == content_hash(document["data"], document["audit"])
     for run in document["data"]["runs"]:
         assert "role" in run and "standard_order" in run and "point_type" not in run and "std_order" not in run
-        assert run["role"] in ("corner", "centre", "axial", "edge_midpoint", "optimal", "")
+        assert run["role"] in ("corner", "centre", "axial", "edge_midpoint", "optimal", "",
+                               "vertex", "edge_centroid", "overall_centroid")  # a mixture design's roles
     again = Study.load(saved)
     assert again.to_dict() == study.to_dict()
 

@@ -21,6 +21,7 @@ from widget_support import browser_event, browser_update
 
 import levelwise as lw
 from levelwise import _mixture_demo as mdemo
+from levelwise.model import ternary_halfplanes
 from levelwise.study import Study
 from levelwise.widgets import (
     CoxTraces,
@@ -162,6 +163,15 @@ def test_ternary_slice_values_points_marker_and_click():
     step = (np.nanmax(mean) - np.nanmin(mean)) / 508
     assert np.nanmax(np.abs(shown - grid["mean"])) <= step + 1e-9  # within half a colour code
     assert np.isnan(np.asarray(view.heatmap.color)[~inside]).all()  # blank outside the bounds
+    # The white mask covers the outside of each side of the region: the same region, written as half-planes.
+    H = ternary_halfplanes(shared.mixture, view.axes, shared.settings)
+    slack = H[:, 2] - (gx[..., None] * H[:, 0] + gy[..., None] * H[:, 1])
+    clear = np.abs(slack).min(axis=-1) > 1e-6  # points not on a side
+    assert np.array_equal((slack >= 0).all(axis=-1)[clear], inside[clear])
+    mx, my = np.asarray(view.mask.x, dtype=float), np.asarray(view.mask.y, dtype=float)
+    assert len(mx) >= 3
+    for px, py in zip(mx, my):  # every mask polygon lies outside the region (its centre breaks some side)
+        assert ((H[:, 0] * px.mean() + H[:, 1] * py.mean()) > H[:, 2]).any()
     # The surface slice's colour map and wording.
     assert view.sc.colors == CIVIDIS and SURFACE_QUANTITIES["mean"] in view.caption.value
     assert "Click the slice to move the blend there" in view.caption.value

@@ -254,19 +254,11 @@ def download_link(payload: bytes, filename: str, mime: str, text: str) -> str:
 
 
 def table_bytes(frame, kind: str, units: dict | None = None) -> bytes:
-    """*frame* as CSV (UTF-8) or XLSX bytes, units in the headers as ``name [units]``."""
-    import io
+    """*frame* as CSV (UTF-8) or XLSX bytes, units in the headers as ``name [units]``; text that a spreadsheet
+    would read as a formula is written as text (``levelwise._cells``)."""
+    from ._exports import safe_table_bytes
 
-    from levelwise import LevelwiseError
-
-    out = frame.rename(columns={c: f"{c} [{u}]" for c, u in (units or {}).items() if u and c in frame.columns})
-    if kind == "csv":
-        return out.to_csv(index=out.index.name is not None).encode("utf-8")
-    if kind == "xlsx":
-        buffer = io.BytesIO()
-        out.to_excel(buffer, index=out.index.name is not None, engine="openpyxl")
-        return buffer.getvalue()
-    raise LevelwiseError(f"The table export kind must be 'csv' or 'xlsx'. Got {kind!r} instead.")
+    return safe_table_bytes(frame, kind, units)
 
 
 class TableExport:
@@ -333,6 +325,23 @@ class View:
 
     Subclasses build ``self.widget`` and call :meth:`watch` for the shared-model traits they draw.
     """
+
+    def __init_subclass__(cls, **kwargs):
+        """Every view gets its "Save figure" / "Export table" bar once it is built (see ``_exports``)."""
+        super().__init_subclass__(**kwargs)
+        init = cls.__dict__.get("__init__")
+        if init is None:
+            return
+
+        def built(self, *args, **kw):
+            init(self, *args, **kw)
+            if type(self).__init__ is built:  # the outermost constructor has finished
+                from ._exports import attach_exports
+
+                attach_exports(self)
+
+        built.__doc__, built.__wrapped__ = init.__doc__, init
+        cls.__init__ = built
 
     def __init__(self, shared):
         self.shared = shared

@@ -345,3 +345,9 @@ class EffectsView(View):
             self.bar_mark.x = list(values.index)
             self.bar_mark.y = f32(values.to_numpy())
         self.bar_axis_y.label = label
+
+    def export_tables(self) -> dict:
+        """The tables for "Export table (CSV, XLSX)": the ANOVA and the coefficients."""
+        from ._view_tables import effects_tables
+
+        return effects_tables(self)

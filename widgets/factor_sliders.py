@@ -317,3 +317,9 @@ class FactorSliders(View):
                 mark.visible = True
             lows.append(float(np.min(y)))
             highs.append(float(np.max(y)))
+
+    def export_tables(self) -> dict:
+        """The tables for "Export table (CSV, XLSX)": the predictions at the current settings."""
+        from ._view_tables import prediction_tables
+
+        return prediction_tables(self)

@@ -278,3 +278,9 @@ class OptimizerView(View):
             f"<tbody>{''.join(rows)}</tbody></table>"
             f'Overall desirability: <span class="lw-overall-desirability">{fmt(best.overall, 3)}</span>'
         )
+
+    def export_tables(self) -> dict:
+        """The tables for "Export table (CSV, XLSX)": the best settings found."""
+        from ._view_tables import optimum_tables
+
+        return optimum_tables(self)

@@ -244,3 +244,8 @@ class PredictionsView(View):
             f'<a download="levelwise-predictions.csv" href="data:text/csv;base64,{payload}">'
             "Download the table (CSV)</a>"
         )
+
+    def export_tables(self) -> dict:
+        """The table for "Export table (CSV, XLSX)": the candidate settings and their predictions."""
+        names = {f.name: f.units for f in self.shared.factors if getattr(f, "units", "")}
+        return {"predictions": (self.to_frame(), names)} if self.rows else {}

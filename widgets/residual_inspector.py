@@ -414,3 +414,9 @@ class ResidualInspector(View):
             f"({result.level:.0%} interval {fmt(result.ci_low, 3)} to {fmt(result.ci_high, 3)}). "
             f"{html.escape(result.suggestion)}"
         )
+
+    def export_tables(self) -> dict:
+        """The tables for "Export table (CSV, XLSX)": fitted values, residuals and influence per run."""
+        from ._view_tables import residual_tables
+
+        return residual_tables(self)

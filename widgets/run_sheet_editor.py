@@ -178,3 +178,9 @@ class RunSheetEditor(View):
         self._saved_revision = self.shared.study.revision
         self._refresh()
         return path
+
+    def export_tables(self) -> dict:
+        """The tables for "Export table (CSV, XLSX)": the study's runs."""
+        from ._view_tables import run_sheet_tables
+
+        return run_sheet_tables(self)

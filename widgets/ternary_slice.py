@@ -17,7 +17,7 @@ import ipywidgets as ipw
 import numpy as np
 
 from levelwise import LevelwiseError
-from levelwise.model import ternary_blend, ternary_grid, ternary_position
+from levelwise.model import ternary_blend, ternary_grid, ternary_halfplanes, ternary_position
 
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel
@@ -28,6 +28,36 @@ SQRT3_2 = float(np.sqrt(3.0) / 2.0)
 #: Clickable (invisible) targets per side of the triangle.
 CLICK_SIDE = 31
 QUANTITIES = [("Expected mean", "mean"), ("CI half-width", "ci_half"), ("PI half-width", "pi_half")]
+
+
+#: The drawing box (x from, x to, y from, y to): room around the triangle for the corner labels.
+BOX = (-0.16, 1.16, -0.1, SQRT3_2 + 0.08)
+
+
+def _clip(polygon, a, b, c):
+    """The part of a convex *polygon* where a x + b y >= c (one Sutherland-Hodgman step)."""
+    out = []
+    for k, (x1, y1) in enumerate(polygon):
+        x2, y2 = polygon[(k + 1) % len(polygon)]
+        d1, d2 = a * x1 + b * y1 - c, a * x2 + b * y2 - c
+        if d1 >= 0:
+            out.append((x1, y1))
+        if (d1 >= 0) != (d2 >= 0):
+            w = d1 / (d1 - d2)
+            out.append((x1 + w * (x2 - x1), y1 + w * (y2 - y1)))
+    return out
+
+
+def mask_polygons(halfplanes):
+    """White polygons covering the drawing box outside the region (rows a x + b y <= c), padded to one length
+    (bqplot draws one filled line per row)."""
+    box = [(BOX[0], BOX[2]), (BOX[1], BOX[2]), (BOX[1], BOX[3]), (BOX[0], BOX[3])]
+    polygons = [p for a, b, c in halfplanes if len(p := _clip(box, a, b, c)) >= 3]
+    if not polygons:
+        return f32([[0.0, 0.0]]), f32([[0.0, 0.0]])
+    size = max(len(p) for p in polygons)
+    padded = [p + [p[-1]] * (size - len(p)) for p in polygons]
+    return f32([[x for x, _ in p] for p in padded]), f32([[y for _, y in p] for p in padded])
 
 
 def _codes_with_blanks(z):
@@ -72,14 +102,17 @@ class TernarySlice(View):
                                            ("Top corner", "lw-ternary-c"))]
         self.quantity = ipw.ToggleButtons(options=QUANTITIES, value="mean").add_class("lw-slice-quantity")
         self.caption = ipw.HTML().add_class("lw-ternary-caption")
-        self.sx = bq.LinearScale(min=-0.08, max=1.08)
-        self.sy = bq.LinearScale(min=-0.08, max=SQRT3_2 + 0.08)
+        self.sx = bq.LinearScale(min=BOX[0], max=BOX[1])
+        self.sy = bq.LinearScale(min=BOX[2], max=BOX[3])
         scales = {"x": self.sx, "y": self.sy}
         self.sc = bq.ColorScale(colors=CIVIDIS, min=0.0, max=float(CODES))  # the surface slice's colour codes
         self.label_scale = bq.ColorScale(colors=CIVIDIS)
         self.heatmap = bq.HeatMap(x=f32([0, 1]), y=f32([0, 1]), color=np.zeros((2, 2), np.float32),
                                   scales={**scales, "color": self.sc}, null_color="#FFFFFF")
         self.contour_lines = bq.Lines(scales=scales, colors=[CONTOUR_COLOR], stroke_width=1, opacities=[0.85])
+        # Blank outside the region: one white polygon per side of the region (the outside of its half-plane).
+        self.mask = bq.Lines(x=f32([[0, 0]]), y=f32([[0, 0]]), scales=scales, fill="inside", colors=["white"],
+                             fill_colors=["white"], fill_opacities=[1.0], stroke_width=0)
         self.outline = bq.Lines(x=f32([0, 1, 0.5, 0]), y=f32([0, 0, SQRT3_2, 0]), scales=scales,
                                 colors=["#444444"], stroke_width=1.5)
         self.corner_labels = bq.Label(x=f32([0.0, 1.0, 0.5]), y=f32([-0.06, -0.06, SQRT3_2 + 0.03]), scales=scales,
@@ -93,7 +126,7 @@ class TernarySlice(View):
         self.marker = bq.Scatter(scales=scales, **CURRENT_MARKER)
         self.color_axis = bq.ColorAxis(scale=self.label_scale, side="right", label="")
         self.figure = bq.Figure(
-            marks=[self.heatmap, self.contour_lines, self.outline, self.corner_labels, self.points,
+            marks=[self.heatmap, self.mask, self.contour_lines, self.outline, self.corner_labels, self.points,
                    self.excluded_points, self.targets, self.marker],
             axes=[self.color_axis], layout=ipw.Layout(width="560px", height="500px"),
             fig_margin={"top": 20, "bottom": 20, "left": 20, "right": 90}, animation_duration=0,
@@ -200,6 +233,13 @@ class TernarySlice(View):
         self._range = (low, high)
         with self.contour_lines.hold_sync():
             set_if_changed(self.contour_lines, x=cx, y=cy)
+        mx, my = mask_polygons(ternary_halfplanes(shared.mixture, axes, shared.settings))
+        n_masks = len(mx)
+        with self.mask.hold_sync():
+            set_if_changed(self.mask, x=mx, y=my)
+            if len(self.mask.fill_colors) != n_masks:
+                self.mask.colors, self.mask.fill_colors = ["white"] * n_masks, ["white"] * n_masks
+                self.mask.fill_opacities = [1.0] * n_masks
         self.corner_labels.text = [f"{name} {amount:.4g}" for name, amount in zip(axes, grid["corners"])]
         data = shared.data
         px, py = ternary_position(data[list(axes)].to_numpy(dtype=float), grid["lows"])

@@ -33,7 +33,7 @@ from ._mixed import DENOMINATOR_RULE, MixedFit
 from ._mixture import MixtureFit, fit_mixture
 from ._mixture_engine import MixtureEngine, cox_traces
 from ._mixture_slices import move_component, ternary_slice
-from ._mixture_ternary import ternary_blend, ternary_grid, ternary_position
+from ._mixture_ternary import ternary_blend, ternary_grid, ternary_halfplanes, ternary_position
 from ._optimize import (
     Goal,
     Optimum,
@@ -77,6 +77,7 @@ __all__ = [
     "fit_mixture",
     "ternary_blend",
     "ternary_grid",
+    "ternary_halfplanes",
     "ternary_position",
     "fit_responses",
     "half_normal",

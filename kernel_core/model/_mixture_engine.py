@@ -153,7 +153,29 @@ class MixtureEngine(PredictionEngine):
         raise LevelwiseError("A surface slice of a mixture fit is not available; use levelwise.ternary_slice.")
 
     def payload(self, level=None) -> dict:
-        raise LevelwiseError("The offline page does not evaluate mixture fits yet.")
+        """What the offline page evaluates: the base engine's payload over the model variables (``factors`` names
+        the components then the process factors; every variable has centre 0 and scale 1) plus ``mixture``, how a
+        blend becomes those variables and the region it must stay in::
+
+            component variable  = (x_i - offset_i) / divisor   (proportions: offset 0, divisor T;
+                                                                 pseudo-components: offset L_i, divisor T - sum L)
+            process variable    = (x - center) / half_range
+            region              = declared bounds, G x <= h; Cox moves as in :func:`cox_traces`
+        """
+        out = PredictionEngine.payload(self, level)
+        info = self.info
+        m = info.mixture
+        offset, divisor = self._fast[-2:]
+        out["mixture"] = {
+            "components": list(m.names), "units": [c.units for c in m.components], "total": m.total,
+            "declared_low": m.declared_lows.tolist(), "declared_high": m.declared_highs.tolist(),
+            "low": m.lows.tolist(), "high": m.highs.tolist(), "G": m.G.tolist(), "h": m.h.tolist(),
+            "pseudo": bool(info.pseudo), "offset": np.broadcast_to(offset, (m.q,)).astype(float).tolist(),
+            "divisor": float(divisor),
+            "process": [{"name": f.name, "units": f.units, "center": f.center, "half_range": f.half_range,
+                         "low": f.low, "high": f.high} for f in info.process],
+        }
+        return out
 
     def refresh(self, settings, level=None, points=50, slice_axes=None, shape=(100, 100), point=True) -> dict:
         """The point and every trace of one slider event (no surface slice for mixtures)."""

@@ -117,6 +117,34 @@ def ternary_grid(fit, axes, settings, shape=(61, 53), level=None, zoom=True) -> 
             "reference": (float(ref[1] + 0.5 * ref[2]), float(SQRT3_2 * ref[2]))}
 
 
+def ternary_halfplanes(mixture, axes, settings, zoom=True) -> np.ndarray:
+    """The region of the ternary slice in triangle coordinates: rows (a, b, c) meaning a x + b y <= c.
+
+    The three sides of the triangle (each barycentric coordinate >= 0), then every bound and constraint of the
+    mixture with the held components at *settings* (a view masks the outside of each half-plane). With
+    c = y / (sqrt(3)/2), b = x - c/2, a = 1 - b - c, each amount L_k + bary_k (S - sum L) is linear in (x, y).
+    """
+    idx = ternary_axes(mixture, axes)
+    r = mixture.amounts_from(settings)[0]
+    lows, share, span = _corners(mixture, idx, r, bool(zoom))
+    s = SQRT3_2
+    # bary_k = p_k + qx_k x + qy_k y
+    p = np.array([1.0, 0.0, 0.0])
+    qx = np.array([-1.0, 1.0, 0.0])
+    qy = np.array([-0.5 / s, -0.5 / s, 1.0 / s])
+    rows = [(-qx[k], -qy[k], p[k]) for k in range(3)]  # bary_k >= 0
+    A, h = mixture._inequalities()
+    held = np.ones(mixture.q, dtype=bool)
+    held[idx] = False
+    for g, bound in zip(A, h):
+        gk = g[idx]
+        if not gk.any():
+            continue
+        constant = float(g[held] @ r[held]) + float(gk @ (lows + span * p))
+        rows.append((span * float(gk @ qx), span * float(gk @ qy), float(bound) - constant))
+    return np.array(rows, dtype=float)
+
+
 def ternary_position(amounts, lows=(0.0, 0.0, 0.0)) -> tuple:
     """Triangle coordinates (x, y) of blends of three components (rows a, b, c): the amounts above the lower bounds
     *lows* (``ternary_grid``'s ``lows``), scaled to sum to 1 (runs whose held components differ are projected)."""
@@ -152,4 +180,4 @@ def ternary_blend(mixture, axes, settings, x: float, y: float, zoom=True) -> dic
     return out
 
 
-__all__ = ["ternary_blend", "ternary_grid", "ternary_position"]
+__all__ = ["ternary_blend", "ternary_grid", "ternary_halfplanes", "ternary_position"]
