@@ -155,3 +155,21 @@ def test_predictions_table_and_optimiser_use_percentages(shared):
     assert f"{fmt(100 * p)} %" in view.result.value
     table.close()
     view.close()
+
+
+def test_the_published_page_shows_the_pass_rate_and_its_goal():
+    from levelwise.dashboards import present
+
+    page = present.build("demo")  # the shipped invented campaign file
+    shared = page.shared
+    assert isinstance(shared.fits["Adhesion"], GlmFit) and "Panels" not in shared.responses
+    readout = page.views[0]
+    assert "pass/fail counts (binomial)" in readout.summary.value and "logit link" in readout.summary.value
+    sliders = next(v for v in page.views if type(v).__name__ == "FactorSliders")
+    expected = shared.fits["Adhesion"].predict(shared.settings).iloc[0]
+    assert f'<span class="lw-mean">{fmt(100 * expected["mean"])}</span> %' in sliders.readout.value
+    goals = present.study_goals(shared)
+    assert goals["Adhesion"] == {"lower_limit": 0.90, "target": 0.98, "kind": "maximize"}  # stored, not counts
+    optimiser = next(v for v in page.views if type(v).__name__ == "OptimizerView")
+    assert "Adhesion" in optimiser.result.value and "not given for a count" in optimiser.result.value
+    assert all(getattr(getattr(v, "status", None), "value", "") == "" for v in page.views)
