@@ -173,3 +173,14 @@ def test_the_published_page_shows_the_pass_rate_and_its_goal():
     optimiser = next(v for v in page.views if type(v).__name__ == "OptimizerView")
     assert "Adhesion" in optimiser.result.value and "not given for a count" in optimiser.result.value
     assert all(getattr(getattr(v, "status", None), "value", "") == "" for v in page.views)
+
+
+def test_the_workbench_shows_every_view_on_the_pass_rate():
+    from levelwise.dashboards import explore
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", lw.LevelwiseWarning)
+        bench = explore.build("demo")
+    bench.shared.response = "Adhesion"  # every view follows the displayed response
+    assert isinstance(bench.shared.fit, GlmFit)
+    assert [getattr(getattr(v, "status", None), "value", "") for v in bench.views] == [""] * len(bench.views)
