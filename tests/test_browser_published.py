@@ -15,7 +15,7 @@ from pathlib import Path
 import pytest
 import websocket
 from conftest import ARTIFACTS, SCREENSHOTS
-from kernel_ws import KernelClient
+from kernel_ws import V1, KernelClient
 
 from levelwise import LevelwiseWarning
 from levelwise.dashboards.study_source import open_study
@@ -157,7 +157,8 @@ def kernel_readback(client, comms, settings_by_label) -> tuple[dict, str]:
             "method": "update", "state": {"value": value}, "buffer_paths": []}})
     states = widget_states(client, comms)
     readout = states[with_class(states, "lw-readout")[0]]["value"]
-    means = dict(re.findall(r"<b>([^<]+)</b><br>Expected mean: <span class=\"lw-mean\">([^<]+)</span>", readout))
+    means = dict(re.findall(r"<b>([^<]+)</b><br>Expected (?:mean|pass rate \(probability of a pass\)): "
+                            r"<span class=\"lw-mean\">([^<]+)</span>", readout))
     return means, states[with_class(states, "lw-fingerprint")[0]]["value"]
 
 
@@ -169,7 +170,10 @@ def test_crafted_comm_messages_cannot_change_the_model(opened, served_published,
                 for f in source.factors}
     natural = {f.name: settings[f.label if hasattr(f, "label") else f.name] for f in source.factors}
     # The kernel's numbers of the published study file, computed here: the readout must keep showing these.
-    expected = {name: fmt(quiet_fit(source, name).predict(natural)["mean"].iloc[0]) for name in source.response_names}
+    # (The pass/fail adhesion response shows its pass rate in %; its panel count is its trials, not a response.)
+    expected = {name: fmt(quiet_fit(source, name).predict(natural)["mean"].iloc[0]
+                          * (100 if source.responses[name].family == "binomial" else 1))
+                for name in source.response_names if name in source.models}
     client = KernelClient(url, kernel_id_of(page))
     try:
         ask = client.send("shell", "comm_info_request", {"target_name": "jupyter.widget"})
@@ -219,6 +223,19 @@ def test_legacy_protocol_websocket_gets_400(opened, served_published):
     with pytest.raises(websocket.WebSocketBadStatusException) as other:
         websocket.create_connection(ws_url + "2", subprotocols=["v2.other"], timeout=10)
     assert other.value.status_code == 400
+
+
+def test_kernel_websocket_negotiates_permessage_deflate(opened, served_published):
+    """The served page's kernel websocket compresses (RFC 7692), as the bench's slider_bytes row assumes."""
+    page, _ = opened
+    url, _ = served_published
+    ws_url = url.replace("http://", "ws://") + f"api/kernels/{kernel_id_of(page)}/channels?session_id=deflate"
+    offer = ["Sec-WebSocket-Extensions: permessage-deflate; client_max_window_bits"]
+    ws = websocket.create_connection(ws_url, subprotocols=[V1], header=offer, timeout=10)
+    try:
+        assert "permessage-deflate" in ws.getheaders().get("sec-websocket-extensions", "")
+    finally:
+        ws.close()
 
 
 @pytest.mark.parametrize("path", [
