@@ -14,6 +14,10 @@ hand-written script evaluates, at the slider settings, the same formulas as the 
     PI    = mean -/+ c * sqrt(h + extra)     (prediction interval for a single new run)
     extrapolated: a factor the model uses outside [low, high], or h > limit
 
+A count response's fit (``link`` set) is evaluated the same way on the link scale; the page then transforms
+the mean and the CI edges by the inverse link (logistic, normal distribution function, exponential) and shows a
+probability as a percentage, with no prediction interval (the payload's ``note`` says why).
+
 and draws the per-factor traces with their bands and the surface slice in plain SVG and
 canvas. Nothing is fetched: no CDN, no fonts, no scripts from elsewhere. The numbers at
 the current settings are also written, at full precision, to ``data-numbers`` of the
@@ -57,6 +61,16 @@ def _run_column(values, factor) -> np.ndarray:
     return np.array([index.get(str(v), np.nan) for v in values], dtype=float)
 
 
+def count_payload(fit) -> dict:
+    """How the page shows a count response's fit: the engine's numbers are on the link scale; the page
+    transforms the mean and the CI edges by the inverse link (``link``: logit, probit or log) and gives no
+    prediction interval (``note`` says why). A binomial fit's probability is shown as a percentage."""
+    if getattr(fit, "kind", None) != "glm":
+        return {"link": None}
+    return {"link": fit.link, "family": fit.family, "note": fit.new_observation_note,
+            "percent": fit.family == "binomial"}
+
+
 def payload(study: Study) -> dict:
     """Everything the page needs, as plain JSON-able numbers (the model per response, the runs, the text)."""
     shared = source = shared_model(study, read_only=True)
@@ -73,6 +87,7 @@ def payload(study: Study) -> dict:
             "s": _finite_or_none(error_numbers(fit)[0]),
             "df": error_numbers(fit)[1],
             **fit.engine.payload(),  # the one prediction engine: the page evaluates exactly this
+            **count_payload(fit),
         })
     components = list(getattr(source, "component_names", []) or [])
     columns = [source.data[name].to_numpy(dtype=float) for name in components]

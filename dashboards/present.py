@@ -84,6 +84,12 @@ def study_goals(shared) -> dict:
         kind = (spec or {}).get("goal", "none")
         if kind not in ("maximize", "minimize", "target") or name not in shared.data:
             continue
+        if getattr(shared.study.responses[name], "family", None):  # a pass rate or rate: its stored limits, or
+            goal = shared.study_goals().get(name)  # the range of the runs' pass rates (not of the counts)
+            if goal:
+                goals[name] = {k: goal[k] for k in ("lower_limit", "target", "upper_limit") if k in goal} | {
+                    "kind": kind}
+            continue
         values = shared.data[name].to_numpy(dtype=float)
         values = values[values == values]
         if values.size < 2 or values.min() == values.max():

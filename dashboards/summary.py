@@ -52,9 +52,17 @@ def is_split_plot(fit) -> bool:
     return hasattr(fit, "variance_components") and hasattr(fit, "df_whole_plot")
 
 
+def is_count(fit) -> bool:
+    """True for a count response's fit (binomial or Poisson GLM)."""
+    return getattr(fit, "kind", None) == "glm"
+
+
 def error_numbers(fit) -> tuple[float, int]:
     """(s, df) of a fit for the pages: least squares: s and its df; split-plot: the SD of one new run (both
-    variance components) and the whole-plot stratum df its intervals use."""
+    variance components) and the whole-plot stratum df its intervals use; a count: the square root of the
+    Pearson dispersion and the residual df."""
+    if is_count(fit):
+        return float(np.sqrt(fit.dispersion)), int(fit.df_resid)
     if is_split_plot(fit):
         return float(np.sqrt(fit.variance_components.sum())), int(fit.df_whole_plot)
     return float(fit.s), int(fit.df_resid)
@@ -74,9 +82,21 @@ def split_plot_words(fit, units: str = "") -> str:
     )
 
 
+def count_words(fit) -> str:
+    """A count fit in plain words: what the mean is, how its intervals are made, the overdispersion check."""
+    kind = ("pass/fail counts (binomial): the mean is the pass rate, shown as a percentage" if fit.family == "binomial"
+            else "counts (Poisson): the mean is the rate per unit of exposure")
+    return (f"A generalised linear model for {kind}, with a {fit.link} link, fitted on {fit.n} runs (deviance "
+            f"{_num(fit.deviance)} on {fit.df_resid} degrees of freedom). Its confidence intervals are made on the "
+            f"link scale and transformed, so they never leave the valid range. {fit.overdispersion} "
+            f"{fit.new_observation_note}")
+
+
 def quality_words(fit, units: str = "") -> str:
     """Fit quality in plain words: share of variation explained, typical scatter of a new run."""
     unit = f" {units}" if units else ""
+    if is_count(fit):
+        return count_words(fit)
     if is_split_plot(fit):
         return split_plot_words(fit, units)
     if fit.df_resid <= 0:

@@ -21,6 +21,11 @@ Responses: impact resistance (J, maximise), 60° gloss (gloss units, on target a
 yellowness index (minimise). The study's models are quadratic in Oven, Dwell and Film, linear in
 the other three factors.
 
+A pass/fail response (issue 15): every run's 20 panels get a cross-hatch adhesion check; ``Adhesion`` counts
+the panels that pass, out of ``Panels`` tested (a binomial response with a logit link). Its invented truth is
+on the log-odds scale (:data:`ADHESION_TRUTH`), its counts drawn from a second seeded stream so that the other
+responses keep their values; its goal is a pass rate of at least 90 %, fully satisfying from 98 %.
+
 Run ``python -m levelwise.demo_campaign PATH`` to write the study file. The file shipped with
 levelwise (``dashboards/data/demo_campaign.json``) is exactly what this writes; a test checks it.
 """
@@ -77,6 +82,14 @@ TRUE_MODELS = {
 }
 NOISE_SD = {"Impact": 0.35, "Gloss": 0.8, "Yellowness": 0.2}
 
+#: The pass/fail response: panels passing the cross-hatch check out of PANELS per run (binomial, logit link).
+ADHESION, PANELS, PANELS_PER_RUN = "Adhesion", "Panels", 20
+#: The INVENTED true log-odds of a panel passing, in coded units (as TRUE_MODELS).
+ADHESION_TRUTH = {"": 2.0, "Oven": 0.9, "Dwell": 0.5, "Film": -0.45, "Pretreat": 0.35, "Oven:Oven": -0.5}
+#: Its model: the curvature in Oven and the other main effects; its goal: pass rate >= 90 %, 98 % fully desirable.
+ADHESION_MODEL = "Oven + Dwell + Film + I(Oven**2) + Catalyst + Airflow + Pretreat"
+ADHESION_GOAL = {"lower_limit": 0.90, "target": 0.98}
+
 #: The models the study records for each response.
 MODEL = "(Oven + Dwell + Film)**2 + I(Oven**2) + I(Dwell**2) + I(Film**2) + Catalyst + Airflow + Pretreat"
 
@@ -88,10 +101,11 @@ MISSING_IMPACT = 2
 
 
 def truth(response: str, natural: dict) -> float:
-    """The invented true mean of *response* at natural *settings* (every factor named)."""
+    """The invented true mean of *response* at natural *settings* (every factor named); for ``Adhesion`` the
+    log-odds of one panel passing."""
     coded = {f.name: (natural[f.name] - f.center) / ((f.high - f.low) / 2.0) for f in FACTORS}
     total = 0.0
-    for term, value in TRUE_MODELS[response].items():
+    for term, value in (ADHESION_TRUTH if response == ADHESION else TRUE_MODELS[response]).items():
         total += value * (np.prod([coded[name] for name in term.split(":")]) if term else 1.0)
     return float(total)
 
@@ -115,13 +129,18 @@ def _fixed_clock(start=datetime(2026, 11, 2, 7, 30, tzinfo=UTC)):
         _values.now = saved
 
 
-def _record(study, rng, run: int, skip=()) -> None:
-    """Record every response of *run* from the truth at its achieved settings plus noise (*skip*: not measured)."""
+def _record(study, rng, run: int, skip=(), counts=None) -> None:
+    """Record every response of *run* from the truth at its achieved settings plus noise (*skip*: not measured);
+    the adhesion passes out of 20 panels are drawn from *counts* (binomial at the true pass probability)."""
     actual = study.data(apply_exclusions=False).loc[run, [f.name for f in FACTORS]].to_dict()
     for response in RESPONSES:
         value = truth(response, actual) + rng.normal(0.0, NOISE_SD[response])  # drawn even when skipped
         if response not in skip:
             study.record(run, response, round(value, 2))
+    if counts is not None:
+        chance = 1.0 / (1.0 + np.exp(-truth(ADHESION, actual)))
+        study.record(run, PANELS, float(PANELS_PER_RUN))
+        study.record(run, ADHESION, float(counts.binomial(PANELS_PER_RUN, chance)))
 
 
 def campaign_study():
@@ -129,6 +148,7 @@ def campaign_study():
     from .study import Study
 
     rng = np.random.default_rng(SEED)
+    counts = np.random.default_rng(SEED + 4)  # the adhesion draws: a stream of their own
     with _fixed_clock():
         study = Study(
             list(FACTORS),
@@ -140,6 +160,9 @@ def campaign_study():
         )
         for name, (units, goal, target) in RESPONSES.items():
             study.add_response(name, units=units, goal=goal, target=target)
+        study.add_response(PANELS, units="panels")
+        study.add_response(ADHESION, units="panels passed", goal="maximize", family="binomial", trials=PANELS,
+                           **ADHESION_GOAL)
 
         screen = fractional_factorial(list(FACTORS), runs=16, generators=SCREEN_GENERATORS, center_points=4,
                                       seed=SEED)
@@ -156,7 +179,7 @@ def campaign_study():
                                   reason="oven log shows the set-point was missed")
         damaged = int(factorial[MISSING_IMPACT])
         for position, run in enumerate(screen_ids):
-            _record(study, rng, run, skip=("Impact",) if position == damaged else ())
+            _record(study, rng, run, skip=("Impact",) if position == damaged else (), counts=counts)
         study.set_notes(study.notes + f" Run {screen_ids[damaged]}: panel damaged in handling before the impact "
                         "test, so its impact resistance is missing.", reason="record the missing value")
 
@@ -164,7 +187,7 @@ def campaign_study():
         fold_ids = study.add_stage("fold-over", folded, description=f"fold-over on {FOLD_FACTOR}",
                                    reason="separate Oven:Dwell from Film:Airflow")
         for run in fold_ids:
-            _record(study, rng, run)
+            _record(study, rng, run, counts=counts)
 
         ccd = central_composite([f for f in FACTORS if f.name in ACTIVE], kind="face", center_points=4,
                                 seed=SEED + 2)
@@ -176,9 +199,10 @@ def campaign_study():
                                       + ", ".join(ACTIVE), reason="model curvature in the active factors",
                                       renumber=True)  # an independent design: its runs follow the study's
         for run in surface_ids:
-            _record(study, rng, run)
+            _record(study, rng, run, counts=counts)
         for response in RESPONSES:
             study.set_model(response, MODEL, reason="quadratic in the active factors after the fold-over")
+        study.set_model(ADHESION, ADHESION_MODEL, reason="logit model: curvature in the oven, main effects")
     return study
 
 

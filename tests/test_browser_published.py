@@ -157,7 +157,8 @@ def kernel_readback(client, comms, settings_by_label) -> tuple[dict, str]:
             "method": "update", "state": {"value": value}, "buffer_paths": []}})
     states = widget_states(client, comms)
     readout = states[with_class(states, "lw-readout")[0]]["value"]
-    means = dict(re.findall(r"<b>([^<]+)</b><br>Expected mean: <span class=\"lw-mean\">([^<]+)</span>", readout))
+    means = dict(re.findall(r"<b>([^<]+)</b><br>Expected (?:mean|pass rate \(probability of a pass\)): "
+                            r"<span class=\"lw-mean\">([^<]+)</span>", readout))
     return means, states[with_class(states, "lw-fingerprint")[0]]["value"]
 
 
@@ -169,7 +170,10 @@ def test_crafted_comm_messages_cannot_change_the_model(opened, served_published,
                 for f in source.factors}
     natural = {f.name: settings[f.label if hasattr(f, "label") else f.name] for f in source.factors}
     # The kernel's numbers of the published study file, computed here: the readout must keep showing these.
-    expected = {name: fmt(quiet_fit(source, name).predict(natural)["mean"].iloc[0]) for name in source.response_names}
+    # (The pass/fail adhesion response shows its pass rate in %; its panel count is its trials, not a response.)
+    expected = {name: fmt(quiet_fit(source, name).predict(natural)["mean"].iloc[0]
+                          * (100 if source.responses[name].family == "binomial" else 1))
+                for name in source.response_names if name in source.models}
     client = KernelClient(url, kernel_id_of(page))
     try:
         ask = client.send("shell", "comm_info_request", {"target_name": "jupyter.widget"})

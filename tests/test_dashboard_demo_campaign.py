@@ -39,9 +39,16 @@ def test_three_stages_with_the_planned_runs(study):
     surface = study.planned()[data["stage"] == "surface"]
     for name in ("Catalyst", "Airflow", "Pretreat"):  # held at the centre in the response-surface stage
         assert surface[name].nunique() == 1
-    assert set(study.responses) == {"Impact", "Gloss", "Yellowness"}
+    assert set(study.responses) == {"Impact", "Gloss", "Yellowness", "Panels", "Adhesion"}
     goals = {name: spec.goal for name, spec in study.responses.items()}
-    assert goals == {"Impact": "maximize", "Gloss": "target", "Yellowness": "minimize"}
+    assert goals == {"Impact": "maximize", "Gloss": "target", "Yellowness": "minimize", "Panels": "none",
+                     "Adhesion": "maximize"}
+    # The pass/fail response: passes out of 20 panels per run, binomial with a logit link (issue 15).
+    adhesion = study.responses["Adhesion"]
+    assert (adhesion.family, adhesion.link, adhesion.trials) == ("binomial", "logit", "Panels")
+    assert (adhesion.lower_limit, adhesion.target) == (0.90, 0.98)  # pass rate at least 90 %, 98 % fully
+    assert (data["Panels"] == 20).all() and data["Adhesion"].between(0, 20).all()
+    assert (data["Adhesion"] == data["Adhesion"].round()).all()
 
 
 def test_one_missing_response_and_two_missed_oven_set_points(study):

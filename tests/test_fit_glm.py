@@ -5,6 +5,7 @@ import pandas as pd
 import pytest
 import statsmodels.api as sm
 import statsmodels.formula.api as smf
+from scipy import stats
 
 import levelwise as lw
 from levelwise import LevelwiseError
@@ -326,3 +327,31 @@ def test_exclude_and_include_refit_by_run_id():
     assert back.exclusions == ()
     with pytest.raises(LevelwiseError, match="non-empty text"):
         f.exclude(run, " ")
+
+
+@pytest.mark.parametrize("family", ["binomial", "poisson"])
+def test_standardized_residuals_and_residuals_of_any_rows(family):
+    t = _data(11)
+    if family == "binomial":
+        f = lw.fit(t, "passed", MODEL, factors=FACTORS, family="binomial", trials="tested")
+        ref = smf.glm(REF.format(y="passed + failed"), t, family=sm.families.Binomial()).fit()
+    else:
+        f = lw.fit(t, "defects", MODEL, factors=FACTORS, family="poisson", exposure="area")
+        ref = smf.glm(REF.format(y="defects"), t, family=sm.families.Poisson(), exposure=t["area"]).fit()
+    infl = ref.get_influence(observed=False)
+    d = f.diagnostics
+    # statsmodels GLMInfluence.resid_studentized: Pearson residual / sqrt(scale (1 - h)).
+    _close(d["standardized_pearson"], infl.resid_studentized, rtol=1e-7)
+    _close(d["standardized_deviance"], ref.resid_deviance / np.sqrt(1 - infl.hat_matrix_diag), rtol=1e-7)
+    # Blom positions (i - 3/8) / (n + 1/4) of the standardized deviance residuals (common practice).
+    order = np.argsort(d["standardized_deviance"].to_numpy())
+    n = len(d)
+    _close(d["normal_quantile"].to_numpy()[order], stats.norm.ppf((np.arange(1, n + 1) - 0.375) / (n + 0.25)))
+    # residuals_of: the same residuals for rows given as data (e.g. excluded runs), from statsmodels' fit.
+    rows = f.residuals_of(t)
+    _close(rows["deviance_residual"], ref.resid_deviance)
+    _close(rows["pearson_residual"], ref.resid_pearson)
+    # statsmodels' fitted values: the probability (binomial), the expected count (Poisson: divided by the area).
+    _close(rows["fitted_mean"], ref.fittedvalues if family == "binomial" else ref.fittedvalues / t["area"])
+    with pytest.raises(LevelwiseError, match="need the column"):
+        f.residuals_of(t.drop(columns=["tested" if family == "binomial" else "area"]))

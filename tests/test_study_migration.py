@@ -80,8 +80,16 @@ def test_shipped_demo_of_format_1_migrates_to_the_regenerated_demo():
     # The same seeded script wrote both. The fold-over stage is now randomised on its own (fold_over returns only
     # the new runs), so its run order and the noise drawn for each run differ; the screen and the surface
     # stage (whose noise is drawn after the same number of draws) are the same runs, value for value.
+    # The pass/fail responses added later (Panels, Adhesion: issue 15) come from a stream of their own, so the
+    # responses the old file has keep their values.
+    added = ("Panels", "Adhesion")
+
+    def measured(run):
+        return {**run, "responses": {k: v for k, v in run["responses"].items() if k not in added}}
+
     for stage in ("screen", "surface"):
-        assert [r for r in old["runs"] if r["stage"] == stage] == [r for r in shipped["runs"] if r["stage"] == stage]
+        assert [r for r in old["runs"] if r["stage"] == stage] == [measured(r) for r in shipped["runs"]
+                                                                   if r["stage"] == stage]
 
     def folded(document):
         return sorted(
@@ -90,7 +98,8 @@ def test_shipped_demo_of_format_1_migrates_to_the_regenerated_demo():
         )
 
     assert len(folded(shipped)) == 16 and folded(old) == folded(shipped)  # the same 16 mirrored settings
-    assert old["exclusions"] == shipped["exclusions"] and old["models"] == shipped["models"]
+    assert old["exclusions"] == shipped["exclusions"]
+    assert old["models"] == {k: v for k, v in shipped["models"].items() if k not in added}
 
 
 def test_the_frozen_mapping_of_format_1():

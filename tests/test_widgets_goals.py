@@ -26,7 +26,10 @@ def observed(shared, response):
 def test_stored_goals_show_in_the_optimiser_with_limits_from_the_data(shared):
     view = OptimizerView(shared)
     kinds = {r: row["kind"].value for r, row in view.goal_rows.items()}
-    assert kinds == {"Impact": "maximize", "Gloss": "target", "Yellowness": "minimize"}  # the demo file's goals
+    assert kinds == {"Impact": "maximize", "Gloss": "target", "Yellowness": "minimize",
+                     "Adhesion": "maximize"}  # the demo file's goals
+    # The pass/fail response's goal is stored on the probability scale (0.90, 0.98) and edited in %.
+    assert (view.goal_rows["Adhesion"]["lower_limit"].value, view.goal_rows["Adhesion"]["target"].value) == (90, 98)
     lo, hi = observed(shared, "Impact")
     assert view.goal_rows["Impact"]["lower_limit"].value == lo
     assert view.goal_rows["Impact"]["target"].value == hi  # maximise: the largest value seen scores 1

@@ -217,11 +217,12 @@ def attach_exports(view) -> None:
     widget = getattr(view, "widget", None)
     if widget is None or not hasattr(widget, "children"):
         return
+    from ._figure_render import visible_figures
+
+    if not visible_figures(widget) and not callable(getattr(view, "export_tables", None)):
+        return  # nothing to save in this view (an upload form, for instance)
     name = getattr(view, "export_name", None) or type(view).__name__.lower()
     exports = ViewExports(view, name)
-    if exports.figure_button.layout.display == "none" and exports.table_button.layout.display == "none":
-        exports.widget.close()
-        return  # nothing to save in this view (an upload form, for instance)
     view.exports = exports
     widget.children = (*widget.children, exports.widget)
 

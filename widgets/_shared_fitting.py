@@ -7,6 +7,7 @@ import numpy as np
 from levelwise import Design, Factor, LevelwiseError, Study
 from levelwise._errors import describe
 
+from ._count_display import shown_responses
 from ._shared_mixture import default_blend
 from ._study_table import DEFAULT_MODEL
 
@@ -41,7 +42,7 @@ class FittingMixin:
             self.goals = {}
             self.error = ""
             self._attach(study)
-            self.response = study.response_names[0]
+            self.response = shown_responses(study)[0]
             self.settings = {f.name: default_setting(f) for f in study.factors} | default_blend(study)
         self._refit()
         self.goals = self.study_goals()

@@ -9,6 +9,8 @@ from levelwise import LevelwiseError
 from levelwise._errors import describe
 from levelwise.study._goals import USED, is_complete
 
+from . import _count_display as counts
+
 
 class GoalsMixin:
     """Goals of the shared model (mixed into ``SharedModel``; uses its traits ``goals``, ``data`` and ``study``)."""
@@ -26,7 +28,8 @@ class GoalsMixin:
     #: How the starting limits of a goal are chosen (shown on screen beside the goals).
     GOAL_DEFAULTS = ("Starting limits come from the recorded values: to maximise, from the smallest (desirability 0) "
                      "to the largest (desirability 1) value seen; to minimise, from the largest (0) down to the "
-                     "smallest (1); to hit a target, the observed range on either side of the target.")
+                     "smallest (1); to hit a target, the observed range on either side of the target. A pass/fail "
+                     "response uses each run's pass rate (passes / trials), a count per exposure its rate.")
 
     def goal_for(self, response: str, kind: str, target=None) -> dict | None:
         """A goal of *kind* for *response* with limits from its recorded values (see ``GOAL_DEFAULTS``).
@@ -35,6 +38,8 @@ class GoalsMixin:
         """
         values = pd.to_numeric(self.data[response], errors="coerce").to_numpy(dtype=float) \
             if response in self.data else np.array([])
+        if response in self.data and counts.response_family(self, response):  # a pass rate or a rate
+            values = counts.observed_means(self, response)
         values = values[np.isfinite(values)]
         if values.size < 2 or values.min() == values.max():
             return None

@@ -19,6 +19,8 @@ import pandas as pd
 from levelwise import LevelwiseError, parse_model
 from levelwise.model._reduce import formula_of
 
+from . import _count_display as counts
+from . import _count_effects as count_effects
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel
 from .style import ACTIVE_COLOR, INACTIVE_COLOR, ME_LINE, OKABE_ITO, SME_LINE, fmt
@@ -236,6 +238,10 @@ class EffectsView(View):
         self._build_toggles()
         self._draw_half_normal()
         self._draw_bars()
+        if counts.family(current):  # a count: likelihood-ratio tests, link-scale coefficients with ratios
+            self.anova_table.value = count_effects.anova_html(current)
+            self.coefficient_table.value = count_effects.coefficients_html(current)
+            return
         self.anova_table.value = "<b>Analysis of variance</b>" + table_html(
             current.anova.rename(columns={"within": "part of", "df": "df", "sum_sq": "sum of squares",
                                           "mean_sq": "mean square", "F": "F", "p_value": "p"}),
@@ -283,6 +289,12 @@ class EffectsView(View):
         current = self.effects_fit()
         if current is None:
             return
+        if counts.family(current):  # effects at the centre instead of Lenth's method
+            for mark in (self.hn_points, self.hn_active, self.hn_labels, self.me_line, self.sme_line):
+                with mark.hold_sync():
+                    set_if_changed(mark, x=f32([]), y=f32([]))
+            self.lenth_text.value = html.escape(self._basis_note) + count_effects.effects_html(current)
+            return
         try:
             coords = current.half_normal()
             result = current.lenth(self.alpha)
@@ -319,7 +331,9 @@ class EffectsView(View):
         current = self.effects_fit()
         if current is None:
             return
-        if self.measure.value == "effect" and getattr(current, "mixture_info", None) is None:
+        if counts.family(current):
+            values, label = count_effects.bars(current, self.measure.value)
+        elif self.measure.value == "effect" and getattr(current, "mixture_info", None) is None:
             values = current.effects.abs()
             label = "|effect|"
         else:  # |t| (a mixture model's coefficients are not effects)

@@ -18,6 +18,7 @@ import numpy as np
 
 from levelwise import LevelwiseError
 
+from . import _count_display as counts
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical
 from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, OKABE_ITO, PI_COLOR, WORDS, fmt, inert_html
@@ -31,17 +32,22 @@ def band(mean, half):
     return np.vstack([mean - half, mean + half]).astype(np.float32)
 
 
-def readout_html(shared: SharedModel, response: str, pred, level: float) -> str:
-    """The prediction of one response in words and units."""
-    units = shared.units.get(response, "")
+def readout_html(shared: SharedModel, response: str, pred, level: float, fit=None) -> str:
+    """The prediction of one response in words and units (a count fit: a percentage or a rate, its transformed
+    confidence interval, and why no prediction interval is given)."""
+    units = counts.units(fit, shared.units.get(response, ""))
     unit = f" {html.escape(units)}" if units else ""
     pct = f"{level:.0%}"
+    k = counts.scale(fit)
+    pi = (counts.no_interval_html(fit) if counts.family(fit) else
+          f'<span class="lw-pi">{fmt(pred["pi_low"])} to {fmt(pred["pi_high"])}</span>{unit}')
     return "<br>".join(
         [
             f"<b>{html.escape(response)}</b>",
-            f'{WORDS["mean"].capitalize()}: <span class="lw-mean">{fmt(pred["mean"])}</span>{unit}',
-            f'{pct} {WORDS["ci"]}: <span class="lw-ci">{fmt(pred["ci_low"])} to {fmt(pred["ci_high"])}</span>{unit}',
-            f'{pct} {WORDS["pi"]}: <span class="lw-pi">{fmt(pred["pi_low"])} to {fmt(pred["pi_high"])}</span>{unit}',
+            f'{counts.quantity(fit).capitalize()}: <span class="lw-mean">{fmt(pred["mean"] * k)}</span>{unit}',
+            f'{pct} {WORDS["ci"]}: <span class="lw-ci">{fmt(pred["ci_low"] * k)} to {fmt(pred["ci_high"] * k)}'
+            f'</span>{unit}',
+            f'{pct} {WORDS["pi"]}: {pi}',
         ]
     )
 
@@ -182,7 +188,7 @@ class FactorSliders(View):
         return fig
 
     def _y_label(self) -> str:
-        units = self.shared.response_units
+        units = counts.units(self.shared.fit, self.shared.response_units)
         return f"{self.shared.response} ({units})" if units else self.shared.response
 
     # ----- browser -> kernel ----------------------------------------------------------------------
@@ -244,7 +250,8 @@ class FactorSliders(View):
             result = current.refresh(shared.settings, points=self.points if with_traces else None)
             if with_traces:
                 shown = result
-            blocks.append(readout_html(shared, response, result["point"], current.level))
+            blocks.append(readout_html(shared, response, result["point"], current.level, current)
+                          + (counts.note_html(current) if with_traces else ""))
         self.readout.value = "<hr>".join(blocks)
         outside = shared.extrapolating()
         self.notice.value = (
@@ -259,7 +266,7 @@ class FactorSliders(View):
             return
         if shown is None:
             shown = current.refresh(shared.settings, points=self.points)
-        mean_here = shown["point"]["mean"]
+        mean_here = shown["point"]["mean"] * counts.scale(current)
         lows, highs = [], []
         curves = shown["traces"]  # every factor's curve, from the same kernel call
         for f in shared.factors:
@@ -268,14 +275,20 @@ class FactorSliders(View):
             tr = curves[f.name]
             pi_band, ci_band, mean, marker = self._marks[f.name]
             x = f32(tr["x"])
+            # Shown units (a probability as a percentage); a count's CI is transformed, so not symmetric.
+            centre, ci_low, ci_high, pi_low, pi_high = counts.bands(current, tr)
             with pi_band.hold_sync(), ci_band.hold_sync(), mean.hold_sync(), marker.hold_sync():
-                set_if_changed(pi_band, x=x, y=band(tr["mean"], tr["pi_half"]))
-                set_if_changed(ci_band, x=x, y=band(tr["mean"], tr["ci_half"]))
-                set_if_changed(mean, x=x, y=f32(tr["mean"]))
+                pi_band.visible = pi_low is not None  # no prediction interval for a count
+                if pi_low is not None:
+                    set_if_changed(pi_band, x=x, y=np.vstack([pi_low, pi_high]).astype(np.float32))
+                set_if_changed(ci_band, x=x, y=np.vstack([ci_low, ci_high]).astype(np.float32))
+                set_if_changed(mean, x=x, y=f32(centre))
                 set_if_changed(marker, x=f32([shared.settings[f.name]]), y=f32([mean_here]))
-            widest = tr["pi_half"] if np.isfinite(tr["pi_half"]).all() else 0.0
-            lows.append(np.min(tr["mean"] - widest))
-            highs.append(np.max(tr["mean"] + widest))
+            wide = pi_low is not None and np.isfinite(pi_low).all() and np.isfinite(pi_high).all()
+            low_edge, high_edge = (pi_low, pi_high) if wide else (ci_low, ci_high)
+            finite = np.isfinite(low_edge) & np.isfinite(high_edge)
+            lows.append(np.min(np.where(finite, low_edge, centre)))
+            highs.append(np.max(np.where(finite, high_edge, centre)))
         self._draw_level_curves(current, curves, lows, highs)
         if lows:
             low, high = float(min(lows)), float(max(highs))
@@ -296,7 +309,7 @@ class FactorSliders(View):
                      for level in levels]
         for fname, mark in self.level_marks.items():
             x = f32(curves[fname]["x"])
-            y = np.vstack([traces[fname]["mean"] for traces in per_level])
+            y = np.vstack([traces[fname]["mean"] for traces in per_level]) * counts.scale(current)
             with mark.hold_sync():
                 set_if_changed(mark, x=x, y=y.astype(np.float32))
                 mark.labels = [str(level) for level in levels]

@@ -17,10 +17,14 @@ import numpy as np
 
 from levelwise import LevelwiseError, optimize
 
+from . import _count_display as counts
 from ._base import LongTask, View
 from ._number import NumberField
 from .shared_model import SharedModel
 from .style import fmt, inert_html
+
+#: The goal fields in the response's units (a pass rate's are edited in %; s, t and the weight have none).
+LIMITS = ("lower_limit", "target", "upper_limit")
 
 GOAL_CHOICES = [("no goal", "none"), ("maximise", "maximize"), ("minimise", "minimize"), ("hit a target", "target")]
 
@@ -105,10 +109,11 @@ class OptimizerView(View):
         rows = []
         self.goal_rows = {}
         for response in self.shared.responses:
-            values = self.shared.data[response].to_numpy(dtype=float)
+            k = counts.response_scale(self.shared, response)  # a pass rate is edited in %
+            values = counts.observed_means(self.shared, response) * k
             values = values[np.isfinite(values)]
             lo, hi = (float(values.min()), float(values.max())) if values.size else (0.0, 1.0)
-            units = self.shared.units.get(response, "")
+            units = "%" if k != 1.0 else self.shared.units.get(response, "")
             unit = f" ({units})" if units else ""
             kind = ipw.Dropdown(options=GOAL_CHOICES, value="none", description=inert_html(f"{response}{unit}"),
                                 description_allow_html=True, style={"description_width": "initial"})
@@ -134,22 +139,28 @@ class OptimizerView(View):
         out = {}
         for response, row in self.goal_rows.items():
             kind = row["kind"].value
-            if kind != "none":
-                out[response] = goal_dict(kind, **{key: row[key].value for key, _ in GOAL_FIELDS})
+            if kind != "none":  # limits back on the fit's scale (a probability, not %)
+                k = counts.response_scale(self.shared, response)
+                out[response] = goal_dict(kind, **{key: row[key].value / (k if key in LIMITS else 1.0)
+                                                   for key, _ in GOAL_FIELDS})
         return out
 
     def set_goal(self, response: str, kind: str, *, lower_limit=None, target=None, upper_limit=None, s=1.0, t=1.0,
                  weight=1.0):
-        """Set one response's goal from code, e.g. ``view.set_goal("Impact", "maximize", lower_limit=8, target=12)``."""
+        """Set one response's goal from code, e.g. ``view.set_goal("Impact", "maximize", lower_limit=8, target=12)``.
+
+        Limits are on the fit's scale: a pass rate as a probability (``lower_limit=0.9``; the editor shows 90 %).
+        """
         if response not in self.goal_rows:
             raise LevelwiseError(f"The response must be one of {list(self.goal_rows)}. Got {response!r}.")
         row = self.goal_rows[response]
+        k = counts.response_scale(self.shared, response)
         self._quiet = True
         try:
             for key, value in (("lower_limit", lower_limit), ("target", target), ("upper_limit", upper_limit),
                                ("s", s), ("t", t), ("weight", weight)):
                 if value is not None:
-                    row[key].value = float(value)
+                    row[key].value = float(value) * (k if key in LIMITS else 1.0)
             row["kind"].value = kind
         finally:
             self._quiet = False
@@ -162,11 +173,12 @@ class OptimizerView(View):
             if change is not None and change.get("owner") is row["kind"] and change["new"] != "none":
                 goal = self.shared.goal_for(response, change["new"])
                 if goal is not None:
+                    k = counts.response_scale(self.shared, response)
                     self._quiet = True
                     try:
                         for key, _ in GOAL_FIELDS:
                             if key in goal:
-                                row[key].value = float(goal[key])
+                                row[key].value = float(goal[key]) * (k if key in LIMITS else 1.0)
                     finally:
                         self._quiet = False
         self.shared.set_goals(self.goals())
@@ -180,9 +192,10 @@ class OptimizerView(View):
                 if goal is None:
                     row["kind"].value = "none"
                     continue
+                k = counts.response_scale(self.shared, response)
                 for key, _ in GOAL_FIELDS:
                     if key in goal:
-                        row[key].value = float(goal[key])
+                        row[key].value = float(goal[key]) * (k if key in LIMITS else 1.0)
                 row["kind"].value = goal.get("goal", goal.get("kind", "none"))
         finally:
             self._quiet = False
@@ -245,14 +258,17 @@ class OptimizerView(View):
 
         rows = []
         for response, pred in best.predictions.iterrows():
-            units = self.shared.units.get(response, "")
+            fitted = self.shared.fits.get(response)
+            units = counts.units(fitted, self.shared.units.get(response, ""))
             unit = f" {html.escape(units)}" if units else ""
             d = best.desirability.get(response, float("nan"))
+            k = counts.scale(fitted)  # a pass rate in %
+            pi = (counts.no_interval_html(fitted) if counts.family(fitted) else
+                  f"{fmt(pred['pi_low'])} to {fmt(pred['pi_high'])}{unit}")
             rows.append(
-                f"<tr><th>{html.escape(str(response))}</th><td>{fmt(pred['mean'])}{unit}</td>"
-                f"<td>{fmt(pred['ci_low'])} to {fmt(pred['ci_high'])}{unit}</td>"
-                f"<td>{fmt(pred['pi_low'])} to {fmt(pred['pi_high'])}{unit}</td>"
-                f"<td>{fmt(d, 3)}</td></tr>"
+                f"<tr><th>{html.escape(str(response))}</th><td>{fmt(pred['mean'] * k)}{unit}</td>"
+                f"<td>{fmt(pred['ci_low'] * k)} to {fmt(pred['ci_high'] * k)}{unit}</td>"
+                f"<td>{pi}</td><td>{fmt(d, 3)}</td></tr>"
             )
         self.result.value = (
             f"<b>Best settings found</b><ul>{settings}</ul>"

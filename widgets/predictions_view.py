@@ -18,6 +18,7 @@ from levelwise import LevelwiseError
 from levelwise._cells import guarded_frame
 from levelwise._errors import describe
 
+from . import _count_display as counts
 from ._base import View
 from ._number import NumberField
 from .shared_model import SharedModel, is_categorical
@@ -134,8 +135,9 @@ class PredictionsView(View):
             if current is None or frame.empty:
                 continue
             pred = current.predict(frame)
+            k = counts.scale(current)  # a probability in % (the table and its CSV alike)
             for column in ("mean", "ci_low", "ci_high", "pi_low", "pi_high", "extrapolated"):
-                out[f"{response} {column}"] = pred[column].to_numpy()
+                out[f"{response} {column}"] = pred[column].to_numpy() * (k if column != "extrapolated" else 1)
         return out
 
     def to_csv(self) -> str:
@@ -205,9 +207,10 @@ class PredictionsView(View):
         factors = self.shared.factors
         head = "".join(f"<th>{html.escape(f.label)}</th>" for f in factors)
         for response in self.shared.responses:
-            units = self.shared.units.get(response, "")
+            fitted = self.shared.fits.get(response)
+            units = counts.units(fitted, self.shared.units.get(response, ""))
             unit = f" ({html.escape(units)})" if units else ""
-            head += (f"<th>{html.escape(response)}: expected mean{unit}</th>"
+            head += (f"<th>{html.escape(response)}: {counts.quantity(fitted)}{unit}</th>"
                      f"<th>95% confidence interval for the mean</th><th>95% prediction interval for one run</th>")
         head += "<th>Inside the tested region?</th>"
         body = []
@@ -224,7 +227,9 @@ class PredictionsView(View):
                 cells += (
                     f"<td>{fmt(row[f'{response} mean'])}</td>"
                     f"<td>{fmt(row[f'{response} ci_low'])} to {fmt(row[f'{response} ci_high'])}</td>"
-                    f"<td>{fmt(row[f'{response} pi_low'])} to {fmt(row[f'{response} pi_high'])}</td>"
+                    + (f"<td>{counts.no_interval_html(self.shared.fits[response])}</td>"
+                       if counts.family(self.shared.fits.get(response)) else
+                       f"<td>{fmt(row[f'{response} pi_low'])} to {fmt(row[f'{response} pi_high'])}</td>")
                 )
                 outside = outside or bool(row[f"{response} extrapolated"])
             flag = "no: extrapolation" if outside else "yes"

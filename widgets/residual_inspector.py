@@ -16,6 +16,8 @@ import numpy as np
 
 from levelwise import LevelwiseError
 
+from . import _count_display as counts
+from . import _count_residuals as count_residuals
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical
 from .style import EXCLUDED_COLOR, HIGHLIGHT_COLOR, OKABE_ITO, RUN_COLOR, fmt
@@ -127,6 +129,8 @@ class ResidualInspector(View):
         return hasattr(self.shared.fit, "whole_plot_effects")
 
     def _plot_options(self):
+        if counts.family(self.shared.fit):  # a count: deviance and Pearson residuals
+            return count_residuals.plot_options(self.shared.factors)
         if self._split_plot():  # no studentized residuals or leverage for a mixed model: the whole plots instead
             return [
                 ("Residual by whole plot, with each whole plot's predicted effect", "whole_plot"),
@@ -188,12 +192,15 @@ class ResidualInspector(View):
     def _frames(self):
         """Diagnostics of the fitted runs, and observed-minus-predicted residuals of excluded runs."""
         shared, current = self.shared, self.shared.fit
-        diag = current.diagnostics
+        glm = counts.family(current) is not None
+        diag = count_residuals.frame(current) if glm else current.diagnostics
         used_runs = diag.index.to_numpy()  # the diagnostics are indexed by run id
         mask = shared.excluded_mask()
         excluded_rows = shared.data.loc[mask]
         excluded_rows = excluded_rows[np.isfinite(excluded_rows[shared.response].to_numpy(dtype=float))]
-        if len(excluded_rows):
+        if glm:
+            ex_fitted, ex_resid, self._ex_pearson = count_residuals.excluded(current, excluded_rows)
+        elif len(excluded_rows):
             pred = current.predict(excluded_rows[[f.name for f in shared.factors]])
             ex_fitted = pred["mean"].to_numpy()
             ex_resid = excluded_rows[shared.response].to_numpy(dtype=float) - ex_fitted
@@ -215,6 +222,9 @@ class ResidualInspector(View):
         choice = self.plot.value
         units = self.shared.response_units
         resid_label = f"Residual ({units})" if units else "Residual"
+        words = count_residuals.labels(current, counts.units(current, units)) if counts.family(current) else {}
+        if words:
+            resid_label = words["pearson" if choice == "pearson" else "residual"]
         order_of = dict(zip(self.shared.run_ids().tolist(), range(1, len(self.shared.data) + 1)))
         guides_x = guides_y = np.array([], dtype=np.float32)
         ex_x = ex_y = np.array([])
@@ -241,9 +251,9 @@ class ResidualInspector(View):
             finite = np.isfinite(x) & np.isfinite(y)
             lim = float(np.nanmax(np.abs(np.r_[x[finite], y[finite], 1.0])))
             guides_x = guides_y = f32([-lim, lim])
-            xlabel, ylabel = "Studentized residual", "Normal quantile"
+            xlabel, ylabel = words.get("normal", ("Studentized residual", "Normal quantile"))
         elif choice == "leverage":
-            x, y = diag["leverage"].to_numpy(), diag["studentized"].to_numpy()
+            x, y = diag["leverage"].to_numpy(), diag["leverage_y" if words else "studentized"].to_numpy()
             h = np.linspace(max(1e-3, float(np.nanmin(x)) * 0.9), min(0.999, float(np.nanmax(x)) * 1.1 + 0.05), 60)
             xs, ys = [], []
             for level in COOK_LEVELS:
@@ -252,13 +262,14 @@ class ResidualInspector(View):
                 ys += [r, [np.nan], -r, [np.nan]]
             # No NaN after the last segment: bqplot places a line's label at its last point.
             guides_x, guides_y = f32(np.concatenate(xs[:-1])), f32(np.concatenate(ys[:-1]))
-            xlabel, ylabel = "Leverage", "Studentized residual (dashed: Cook's distance 0.5 and 1)"
+            xlabel, ylabel = words.get("leverage", ("Leverage", "Studentized residual (dashed: Cook's distance 0.5 "
+                                                                  "and 1)"))
         else:
-            y = diag["residual"].to_numpy()
-            ex_y = ex_resid
-            if choice == "fitted":
+            y = diag["pearson" if choice == "pearson" else "residual"].to_numpy()
+            ex_y = self._ex_pearson if choice == "pearson" else ex_resid
+            if choice in ("fitted", "pearson"):
                 x, ex_x = diag["fitted"].to_numpy(), ex_fitted
-                xlabel = f"Fitted value ({units})" if units else "Fitted value"
+                xlabel = words.get("fitted") or (f"Fitted value ({units})" if units else "Fitted value")
             elif choice == "order":
                 x = np.array([order_of[r] for r in used_runs], dtype=float)
                 ex_x = np.array([order_of[r] for r in ex_runs], dtype=float)
@@ -342,8 +353,17 @@ class ResidualInspector(View):
             lines.append(
                 f'<span class="lw-excluded-mark">Left out of the fit: {html.escape(shared.exclusions[run])}</span>'
             )
-            lines.append(f"Predicted without it: {fmt(pred['mean'])}{unit}; "
-                         f"observed minus predicted: {fmt(observed - pred['mean'])}{unit}")
+            if counts.family(current):  # a count: the predicted pass rate or rate and the run's deviance residual
+                _, dev, _ = count_residuals.excluded(current, shared.data.loc[[shared.label_of(run)]])
+                shown = counts.units(current, units)
+                lines.append(f"Predicted without it: {fmt(pred['mean'] * counts.scale(current))} {shown}; "
+                             f"deviance residual: {fmt(dev[0])}")
+            else:
+                lines.append(f"Predicted without it: {fmt(pred['mean'])}{unit}; "
+                             f"observed minus predicted: {fmt(observed - pred['mean'])}{unit}")
+        elif run in current.diagnostics.index and counts.family(current):
+            lines += count_residuals.detail_lines(current, current.diagnostics.loc[run],
+                                                  counts.units(current, units))
         elif run in current.diagnostics.index and self._split_plot():
             d = current.diagnostics.loc[run]
             lines += [
@@ -380,6 +400,9 @@ class ResidualInspector(View):
         current = self.shared.fit
         if current is None:
             self.box_cox.value = ""
+            return
+        if counts.family(current):
+            self.box_cox.value = count_residuals.box_cox_html(current)
             return
         try:
             result = current.box_cox()

@@ -42,6 +42,7 @@ from levelwise import Design, Factor, Fit, LevelwiseError, Study
 from levelwise._errors import describe
 from levelwise.model import GlmFit, MixedFit
 
+from ._count_display import shown_responses
 from ._shared_fitting import FittingMixin, default_setting, is_categorical
 from ._shared_goals import GoalsMixin
 from ._shared_mixture import MixtureMixin, default_blend
@@ -182,7 +183,7 @@ class SharedModel(MixtureMixin, GoalsMixin, FittingMixin, traitlets.HasTraits):
             study = study_from_table(factors, data, responses, models=models, units=units, exclusions=exclusions)
         if not isinstance(study, Study):
             raise LevelwiseError(f"The 'study' must be a levelwise Study. Got {describe(study)} instead.")
-        names = study.response_names
+        names = list(shown_responses(study))
         if not names:
             raise LevelwiseError("The study has no responses yet: add one with study.add_response(name, units).")
         response = names[0] if response is None else response
@@ -223,9 +224,9 @@ class SharedModel(MixtureMixin, GoalsMixin, FittingMixin, traitlets.HasTraits):
         study = self.study
         with self._writing(), self.hold_trait_notifications():
             self.factors = tuple(study.factors)
-            self.responses = tuple(study.response_names)
+            self.responses = shown_responses(study)  # a count's trials or exposure column is not shown on its own
             self.units = {name: spec.units for name, spec in study.responses.items()}
-            self.models = {name: study.models.get(name, DEFAULT_MODEL) for name in study.response_names}
+            self.models = {name: study.models.get(name, DEFAULT_MODEL) for name in self.responses}
             self.exclusions = self.exclusions_of(study)
             self.revision = study.revision
 

@@ -24,6 +24,7 @@ import numpy as np
 from levelwise import LevelwiseError
 from levelwise.model._optimize import as_goal, overall_desirability
 
+from . import _count_display as counts
 from ._base import Coalescer, View, f32, set_if_changed
 from .shared_model import SharedModel
 from .style import (
@@ -285,7 +286,7 @@ class SurfaceSlice(View):
     def _quantity_grid(self, current, x, y):
         grid = self._kernel_slice(current, x, y)
         if self.quantity.value != "desirability":
-            return grid, grid[self.quantity.value]
+            return grid, counts.slice_quantity(current, grid, self.quantity.value)  # a probability in %
         goals = {r: g for r, g in self.shared.goals.items() if r in self.shared.fits}
         if not goals:
             raise LevelwiseError("The overall desirability needs goals: set them in the optimiser view first.")
@@ -347,7 +348,7 @@ class SurfaceSlice(View):
             self.sx.min, self.sx.max = fx.low, fx.high
             self.sy.min, self.sy.max = fy.low, fy.high
         self.x_axis.label, self.y_axis.label = fx.label, fy.label
-        units = shared.response_units if self.quantity.value != "desirability" else ""
+        units = counts.units(current, shared.response_units) if self.quantity.value != "desirability" else ""
         self.color_axis.label = f"{shared.response} ({units})" if units else shared.response
         held = ", ".join(
             f"{html.escape(n)} = {v:.4g}" if isinstance(v, float) else f"{html.escape(n)} = {html.escape(str(v))}"
@@ -357,6 +358,8 @@ class SurfaceSlice(View):
             f"<b>{html.escape(shared.response)}</b>: {SURFACE_QUANTITIES[self.quantity.value]}; "
             f"other factors held at {held}. Dots: runs of the design (hollow grey squares: excluded). "
             "Click the slice to move the two axis factors there."
+            + (f" {counts.no_interval_html(current)}" if counts.family(current) and self.quantity.value == "pi_half"
+               else "")
         )
         self._key = key
 

@@ -31,6 +31,22 @@ function modelRow(m, at) {
   });
 }
 
+// Inverse links of a count response's fit (levelwise GlmFit): logistic, normal distribution function, exponential.
+// The normal one by its everywhere-convergent series Phi(x) = 1/2 + phi(x) sum x^(2n+1) / (1 3 5 ... (2n+1)),
+// whose terms are all of one sign (no cancellation inside the sum); 0 or 1 beyond |x| = 9.
+function normalCdf(x) {
+  if (x < -9) { return 0.0; }
+  if (x > 9) { return 1.0; }
+  let term = x, sum = x;
+  for (let n = 1; n < 500 && Math.abs(term) > 1e-17 * Math.abs(sum); n++) { term *= x * x / (2 * n + 1); sum += term; }
+  return 0.5 + Math.exp(-0.5 * x * x) / Math.sqrt(2 * Math.PI) * sum;
+}
+const INVERSE = {logit: v => v >= 0 ? 1 / (1 + Math.exp(-v)) : Math.exp(v) / (1 + Math.exp(v)), probit: normalCdf,
+                 log: Math.exp};
+// Shown numbers: a probability as a percentage.
+const shownValue = (m, v) => m.percent ? 100 * v : v;
+const shownUnits = m => m.percent ? "%" : (m.link === "log" ? (m.units ? m.units + " " : "") + "per unit exposure" : m.units);
+
 function predict(m, x) {
   const at = {};
   F.forEach((f, i) => { at[f.name] = isCat(f) ? String(f.levels[x[i]]) : x[i]; });
@@ -50,8 +66,20 @@ function predict(m, x) {
   m.factors.forEach((name, i) => {
     if (m.used[i] && !CAT.has(name) && (at[name] < m.low[i] || at[name] > m.high[i])) { outside = true; }
   });
+  if (m.link) {  // a count: the CI made on the link scale and transformed; no interval for one new count
+    const inv = INVERSE[m.link];
+    return {mean: inv(mean), ci_low: inv(mean - ciHalf), ci_high: inv(mean + ciHalf), pi_low: NaN, pi_high: NaN,
+            link_mean: mean, leverage: h, extrapolated: outside};
+  }
   return {mean: mean, ci_low: mean - ciHalf, ci_high: mean + ciHalf, pi_low: mean - piHalf, pi_high: mean + piHalf,
           leverage: h, extrapolated: outside};
+}
+
+// A prediction in shown units (a probability as a percentage).
+function display(m, p) {
+  const out = Object.assign({}, p);
+  ["mean", "ci_low", "ci_high", "pi_low", "pi_high"].forEach(k => { out[k] = shownValue(m, p[k]); });
+  return out;
 }
 
 function fmt(v) {
@@ -101,7 +129,7 @@ document.getElementById("lw-fingerprint").textContent = DATA.fingerprint;
 // A categorical factor's trace: the mean at each level with its confidence interval.
 function drawLevels(svg, m, i) {
   const W = 280, H = 200, L = 48, R = 8, T = 22, B = 34, f = F[i];
-  const rows = f.levels.map((level, k) => { const at = settings.slice(); at[i] = k; return predict(m, at); });
+  const rows = f.levels.map((level, k) => { const at = settings.slice(); at[i] = k; return display(m, predict(m, at)); });
   const finite = rows.filter(p => isFinite(p.mean));
   const lo = Math.min(...finite.map(p => isFinite(p.ci_low) ? p.ci_low : p.mean));
   const hi = Math.max(...finite.map(p => isFinite(p.ci_high) ? p.ci_high : p.mean));
@@ -123,7 +151,7 @@ function drawLevels(svg, m, i) {
   el("text", {x: (L + W) / 2, y: H - 4, "font-size": 12, "text-anchor": "middle", text: f.name}, svg);
   el("text", {x: L - 4, y: T + 4, "font-size": 11, "text-anchor": "end", text: fmt(hi + pad)}, svg);
   el("text", {x: L - 4, y: H - B, "font-size": 11, "text-anchor": "end", text: fmt(lo - pad)}, svg);
-  el("text", {x: L, y: 14, "font-size": 12, "font-weight": "bold", text: m.name + (m.units ? " (" + m.units + ")" : "")}, svg);
+  el("text", {x: L, y: 14, "font-size": 12, "font-weight": "bold", text: m.name + (shownUnits(m) ? " (" + shownUnits(m) + ")" : "")}, svg);
 }
 
 function drawTrace(svg, m, i) {
@@ -134,21 +162,24 @@ function drawTrace(svg, m, i) {
   for (let k = 0; k < n; k++) {
     const x = f.low + (f.high - f.low) * k / (n - 1);
     const at = settings.slice(); at[i] = x;
-    xs.push(x); rows.push(predict(m, at));
+    xs.push(x); rows.push(display(m, predict(m, at)));
   }
-  const lo = Math.min(...rows.map(p => p.pi_low)), hi = Math.max(...rows.map(p => p.pi_high));
+  const outer = m.link ? ["ci_low", "ci_high"] : ["pi_low", "pi_high"];  // a count has no PI band
+  const lo = Math.min(...rows.map(p => p[outer[0]])), hi = Math.max(...rows.map(p => p[outer[1]]));
   const pad = 0.05 * ((hi - lo) || 1);
   const X = x => L + (W - L - R) * (x - f.low) / (f.high - f.low);
   const Y = y => T + (H - T - B) * (1 - (y - (lo - pad)) / ((hi + pad) - (lo - pad)));
   const band = (a, b) => xs.map((x, k) => X(x) + "," + Y(rows[k][a])).join(" ") + " " +
       xs.map((x, k) => X(x) + "," + Y(rows[k][b])).reverse().join(" ");
-  el("polygon", {points: band("pi_low", "pi_high"), fill: "#E69F00", "fill-opacity": 0.18, stroke: "#E69F00",
-                 "stroke-dasharray": "4 3", class: "lw-pi-band"}, svg);
+  if (!m.link) {
+    el("polygon", {points: band("pi_low", "pi_high"), fill: "#E69F00", "fill-opacity": 0.18, stroke: "#E69F00",
+                   "stroke-dasharray": "4 3", class: "lw-pi-band"}, svg);
+  }
   el("polygon", {points: band("ci_low", "ci_high"), fill: "#0072B2", "fill-opacity": 0.30, stroke: "#0072B2",
                  class: "lw-ci-band"}, svg);
   el("path", {d: "M" + xs.map((x, k) => X(x) + "," + Y(rows[k].mean)).join(" L"), fill: "none", stroke: "#0072B2",
               "stroke-width": 2.5, class: "lw-mean-line"}, svg);
-  const cur = predict(m, settings), cx = X(settings[i]), cy = Y(cur.mean);
+  const cur = display(m, predict(m, settings)), cx = X(settings[i]), cy = Y(cur.mean);
   el("polygon", {points: [cx, cy - 7, cx + 6, cy, cx, cy + 7, cx - 6, cy].join(" "), fill: "#000", stroke: "#fff"}, svg);
   el("line", {x1: L, y1: H - B, x2: W - R, y2: H - B, stroke: "#333"}, svg);
   el("line", {x1: L, y1: T, x2: L, y2: H - B, stroke: "#333"}, svg);
@@ -158,7 +189,7 @@ function drawTrace(svg, m, i) {
               text: f.name + (f.units ? " (" + f.units + ")" : "")}, svg);
   el("text", {x: L - 4, y: T + 4, "font-size": 11, "text-anchor": "end", text: fmt(hi + pad)}, svg);
   el("text", {x: L - 4, y: H - B, "font-size": 11, "text-anchor": "end", text: fmt(lo - pad)}, svg);
-  el("text", {x: L, y: 14, "font-size": 12, "font-weight": "bold", text: m.name + (m.units ? " (" + m.units + ")" : "")}, svg);
+  el("text", {x: L, y: 14, "font-size": 12, "font-weight": "bold", text: m.name + (shownUnits(m) ? " (" + shownUnits(m) + ")" : "")}, svg);
 }
 
 // cividis-like ramp: dark blue to yellow, our own interpolation between a few stops.
@@ -180,7 +211,7 @@ function drawSurface(m) {
       const at = settings.slice();
       at[i] = fi.low + (fi.high - fi.low) * (a + 0.5) / N;
       if (j !== i) { at[j] = fj.low + (fj.high - fj.low) * (1 - (b + 0.5) / N); }
-      const v = predict(m, at).mean;
+      const v = shownValue(m, predict(m, at).mean);
       grid.push(v); lo = Math.min(lo, v); hi = Math.max(hi, v);
     }
   }
@@ -204,7 +235,8 @@ function drawSurface(m) {
   ctx.beginPath(); ctx.moveTo(px, py - 8); ctx.lineTo(px + 7, py); ctx.lineTo(px, py + 8); ctx.lineTo(px - 7, py);
   ctx.closePath(); ctx.fill(); ctx.stroke();
   document.getElementById("lw-surface-range").textContent =
-    m.name + ": expected mean from " + fmt(lo) + " (dark) to " + fmt(hi) + " (light)" + (m.units ? " " + m.units : "") +
+    m.name + ": expected " + (m.percent ? "pass rate" : "mean") + " from " + fmt(lo) + " (dark) to " + fmt(hi) +
+    " (light)" + (shownUnits(m) ? " " + shownUnits(m) : "") +
     "; across: " + fi.name + " " + fmt(fi.low) + " to " + fmt(fi.high) + ", up: " + fj.name + " " + fmt(fj.low) +
     " to " + fmt(fj.high) + ".";
 }
@@ -235,13 +267,17 @@ function update() {
   ["Response", "Expected mean", "95% confidence interval for the mean",
    "95% prediction interval for a single new run"].forEach(t => el("th", {text: t}, head));
   DATA.responses.forEach((m, r) => {
-    const p = predict(m, settings), u = m.units ? " " + m.units : "";
-    numbers.responses[m.name] = p;
+    const raw = predict(m, settings), p = display(m, raw), u = shownUnits(m) ? " " + shownUnits(m) : "";
+    numbers.responses[m.name] = raw;  // the kernel's numbers (a probability, not %), for the checks
     const tr = el("tr", {class: "lw-pred-row", "data-response": m.name}, table);
-    el("td", {text: m.name}, tr);
+    el("td", {text: m.name + (m.percent ? " (pass rate)" : "")}, tr);
     el("td", {class: "lw-mean", text: fmt(p.mean) + u}, tr);
     el("td", {class: "lw-ci", text: fmt(p.ci_low) + " to " + fmt(p.ci_high) + u}, tr);
-    el("td", {class: "lw-pi", text: fmt(p.pi_low) + " to " + fmt(p.pi_high) + u}, tr);
+    if (m.link) {
+      el("td", {class: "lw-pi lw-no-pi", title: m.note, text: "not given for a count: " + m.note}, tr);
+    } else {
+      el("td", {class: "lw-pi", text: fmt(p.pi_low) + " to " + fmt(p.pi_high) + u}, tr);
+    }
   });
   document.getElementById("lw-numbers").setAttribute("data-numbers", JSON.stringify(numbers));
   // The engine's extrapolation rule, per response: a used factor outside its range, or leverage above the runs'.

@@ -19,8 +19,8 @@ import pandas as pd
 from .._errors import LevelwiseError, describe
 from .._rich import anova_frame, coefficient_table, fit_html
 from .._stats import f_sf, norm_ppf, norm_sf, stats
+from . import _glm_residuals as _residuals
 from ._families import FitFamily
-from ._glm_scale import dmu_deta as _dmu_deta
 from ._glm_scale import inverse_link as _inverse_link
 from ._glm_scale import refresh as _refresh
 from ._glm_scale import transform as _transform
@@ -90,6 +90,8 @@ class GlmFit(FitFamily):
 
     kind = "glm"
     new_observation_note = NEW_OBSERVATION
+    #: The data columns of the trials (binomial) and the exposure (Poisson), None when not given.
+    trials_name = exposure_name = None
 
     def __init__(self, base, family, link, counts, trials, exposure, columns, scale_mode=None):
         import statsmodels.api as sm
@@ -134,6 +136,11 @@ class GlmFit(FitFamily):
     coding = property(lambda self: self.base.coding)
     categories = property(lambda self: self.base.categories)
     level = property(lambda self: self.base.level)
+
+    @property
+    def spec(self):
+        """The model specification of the least-squares fit that supplies the model matrix (its formula)."""
+        return self.base.spec
 
     @property
     def terms(self) -> tuple:
@@ -204,8 +211,10 @@ class GlmFit(FitFamily):
 
     def quasi(self) -> GlmFit:
         """The same model on the quasi-likelihood scale (dispersion = Pearson chi-square / df)."""
-        return GlmFit(self.base, self.family, self.link, self.counts, self.trials, self.exposure, self.columns,
-                      scale_mode="quasi")
+        out = GlmFit(self.base, self.family, self.link, self.counts, self.trials, self.exposure, self.columns,
+                     scale_mode="quasi")
+        out.trials_name, out.exposure_name = self.trials_name, self.exposure_name
+        return out
 
     # -- likelihood-ratio tests -----------------------------------------------------------------------
     def _deviance_without(self, drop):
@@ -260,29 +269,21 @@ class GlmFit(FitFamily):
                           "p_value": float(candidates.loc[worst, "p_value"]), "deviance": current.deviance})
             current = GlmFit(current.base, current.family, current.link, current.counts, current.trials,
                              current.exposure, current.columns[keep], scale_mode=current.scale_mode)
+        current.trials_name, current.exposure_name = self.trials_name, self.exposure_name
         return current, pd.DataFrame(steps, columns=["step", "term", "lr_chi2", "p_value", "deviance"])
 
     # -- residuals and influence ----------------------------------------------------------------------
     @cached_property
     def diagnostics(self) -> pd.DataFrame:
-        """Per run (by run id): fitted mean, deviance and Pearson residuals, leverage, Cook's distance."""
-        res = self.statsmodels_result
-        eta = self.X @ self.beta + (np.log(self.exposure) if self.exposure is not None else 0.0)
-        mu = _inverse_link(self.link, eta)
-        if self.family == "binomial":
-            var = self.trials * mu * (1 - mu)
-            weight = self.trials * _dmu_deta(self.link, eta) ** 2 / (mu * (1 - mu))
-            fitted = self.trials * mu
-        else:
-            var = weight = fitted = mu
-        pearson = (self.counts - fitted) / np.sqrt(var)
-        # Leverage: diagonal of W^1/2 X (X'WX)^-1 X' W^1/2 with the expected-information weights W at the
-        # estimate (McCullagh & Nelder); for the canonical logit and log links it equals the observed one.
-        q, _ = np.linalg.qr(np.sqrt(weight)[:, None] * self.X)
-        h = np.einsum("ij,ij->i", q, q)
-        cooks = pearson ** 2 * h / (self.scale * self.p * (1 - h) ** 2)
-        return pd.DataFrame({"fitted": fitted, "deviance_residual": np.asarray(res.resid_deviance),
-                             "pearson_residual": pearson, "leverage": h, "cooks_distance": cooks}, index=self.runs)
+        """Per run (by run id): expected count (``fitted``) and probability or rate (``fitted_mean``), deviance
+        and Pearson residuals, both standardized by ``sqrt(scale (1 - h))``, Blom normal-plot positions of the
+        standardized deviance residuals, leverage and Cook's distance (see :mod:`._glm_residuals`)."""
+        return _residuals.diagnostics(self)
+
+    def residuals_of(self, frame) -> pd.DataFrame:
+        """Fitted probability or rate and deviance and Pearson residuals of any rows (e.g. excluded runs) that
+        hold the factor settings, the response and the trials or exposure column."""
+        return _residuals.residuals_of(self, frame)
 
     # -- effects and prediction -----------------------------------------------------------------------
     @property
@@ -339,6 +340,7 @@ class GlmFit(FitFamily):
         eta = link["mean"].to_numpy()
         out = pd.DataFrame(self._transform(eta, link["ci_high"].to_numpy() - eta))
         out["link_se"] = np.sqrt(link["leverage"].to_numpy())
+        out["pi_low"] = out["pi_high"] = np.nan  # no interval for one new count: see new_observation_note
         if exposure is not None and self.family == "poisson":
             out["expected_count"] = out["mean"] * np.asarray(exposure, dtype=float)
         out["extrapolated"] = link["extrapolated"].to_numpy()
@@ -409,6 +411,7 @@ def fit_glm(data, response, model, *, family, trials=None, exposure=None, link=N
     counts = counts_all[keep]
     fit = GlmFit(base, family, link, counts, None if trials_all is None else trials_all[keep],
                  None if exposure_all is None else exposure_all[keep], np.arange(base.p))
+    fit.trials_name, fit.exposure_name = trials, exposure
     return fit._remember(data, response, lambda changed, formula: fit_glm(
         changed, response, formula, family=family, trials=trials, exposure=exposure, link=link,
         least_squares=least_squares, **options), zip(base.runs, np.flatnonzero(keep)))

@@ -66,6 +66,7 @@ def transform_point(link, point: dict) -> dict:
     half = point["ci_high"] - eta
     return {"mean": inverse_link_scalar(link, eta), "ci_low": inverse_link_scalar(link, eta - half),
             "ci_high": inverse_link_scalar(link, eta + half), "link_mean": eta,
+            "pi_low": math.nan, "pi_high": math.nan,  # no interval for one new count (GlmFit.new_observation_note)
             "extrapolated": point["extrapolated"]}
 
 
