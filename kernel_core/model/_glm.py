@@ -15,10 +15,10 @@ from functools import cached_property
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._errors import LevelwiseError, describe
 from .._rich import anova_frame, coefficient_table, fit_html
+from .._stats import f_sf, norm_ppf, norm_sf, stats
 from . import _glm_residuals as _residuals
 from ._families import FitFamily
 from ._glm_scale import inverse_link as _inverse_link
@@ -179,8 +179,8 @@ class GlmFit(FitFamily):
         """Link-scale estimates, SEs, z, p, CI; odds ratios (logit) or rate ratios (log) per coded unit."""
         se = np.sqrt(np.einsum("ij,ij->i", self.cov_factor, self.cov_factor))
         z = self.beta / se
-        q = stats.norm.ppf(0.5 + self.level / 2.0)
-        table = pd.DataFrame({"estimate": self.beta, "std_error": se, "z": z, "p_value": 2 * stats.norm.sf(np.abs(z)),
+        q = norm_ppf(0.5 + self.level / 2.0)
+        table = pd.DataFrame({"estimate": self.beta, "std_error": se, "z": z, "p_value": 2 * norm_sf(np.abs(z)),
                               "ci_low": self.beta - q * se, "ci_high": self.beta + q * se},
                              index=pd.Index(self.terms, name="term"))
         ratio = {"logit": "odds_ratio", "log": "rate_ratio"}.get(self.link)
@@ -244,7 +244,7 @@ class GlmFit(FitFamily):
             row = {"df": df, "lr_chi2": lr, "p_value": float(stats.chi2.sf(lr, df))}
             if self.scale_mode == "quasi":
                 f = lr / df / self.scale
-                row.update({"F": f, "p_value": float(stats.f.sf(f, df, self.df_resid))})
+                row.update({"F": f, "p_value": float(f_sf(f, df, self.df_resid))})
             rows[label] = row
         return anova_frame(self, pd.DataFrame.from_dict(rows, orient="index").rename_axis("term"))
 
