@@ -25,6 +25,7 @@ from levelwise.model import ternary_halfplanes
 from levelwise.study import Study
 from levelwise.widgets import (
     CoxTraces,
+    DesignBuilder,
     EffectsView,
     FactorSliders,
     MixtureSliders,
@@ -221,6 +222,8 @@ def test_views_that_do_not_apply_to_a_mixture_say_so_in_words():
     effects = EffectsView(shared)
     assert "not available" in effects.lenth_text.value and "Cox-direction" in effects.lenth_text.value
     assert "blending coefficients over the proportions" in effects.coefficient_table.value
+    builder = DesignBuilder(shared)
+    assert "mixture components" in builder.mixture_note.value and builder.status.value == ""
     sliders = FactorSliders(shared)
     assert "mixture sliders" in sliders.slider_box.children[0].value
     assert 'class="lw-mean"' in sliders.readout.value  # the readout still works

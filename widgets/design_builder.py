@@ -83,6 +83,13 @@ def generator_example(names) -> str:
     return f"{names[-1]}={joiner.join(basic)}"
 
 
+#: What the builder says on a mixture study (its components always sum to the total).
+MIXTURE_NOTE = ("<p>This study's settings include mixture components, which always sum to the total. This builder "
+                "plans designs over independent factors; make a mixture design in code (levelwise "
+                "simplex_lattice, simplex_centroid, extreme_vertices or optimal_design over the components) and "
+                "add it with study.add_stage.</p>")
+
+
 class DesignBuilder(PreviewMixin, View):
     """Plan a design, preview what it can estimate, and start a study from it.
 
@@ -140,6 +147,11 @@ class DesignBuilder(PreviewMixin, View):
         self.factor_rows = []
         for f in shared.factors:
             self._add_factor_row(f)
+        self.mixture_note = ipw.HTML().add_class("lw-mixture-note")
+        if getattr(shared, "is_mixture", False):  # the builder plans factor designs; mixture designs are code
+            self.mixture_note.value = MIXTURE_NOTE
+            while len(self.factor_rows) < 2:
+                self._add_factor_row()
         self.add_factor_button = ipw.Button(description="Add a factor").add_class("lw-add-factor")
         self.remove_factor_button = ipw.Button(
             description="Remove the last factor", layout=ipw.Layout(width="auto"),  # as wide as its label
@@ -204,6 +216,7 @@ class DesignBuilder(PreviewMixin, View):
         self.hint = ipw.HTML().add_class("lw-option-hint")
         self.widget = ipw.VBox(
             [
+                self.mixture_note,
                 ipw.HTML("<b>Factors</b>: name, units, low and high settings, type"),
                 self.factor_box,
                 ipw.HBox([self.add_factor_button, self.remove_factor_button]),

@@ -22,8 +22,12 @@ from levelwise.model._reduce import formula_of
 from . import _count_display as counts
 from . import _count_effects as count_effects
 from ._base import View, f32, set_if_changed
+from ._label_room import rotated_tick_margins, scale_max_for_labels
 from .shared_model import SharedModel
 from .style import ACTIVE_COLOR, INACTIVE_COLOR, ME_LINE, OKABE_ITO, SME_LINE, fmt
+
+#: Width of the half-normal plot (px); its labels are kept inside the plot area of this width less margins.
+HALF_NORMAL_PX = 420
 
 
 def table_html(frame: pd.DataFrame, css: str, digits: int = 4) -> str:
@@ -95,16 +99,16 @@ class EffectsView(View):
             marks=[self.me_line, self.sme_line, self.hn_points, self.hn_active, self.hn_labels],
             axes=[bq.Axis(scale=self.hx, label="|effect|", num_ticks=5),
                   bq.Axis(scale=self.hy, side="left", label="Half-normal quantile", num_ticks=5)],
-            layout=ipw.Layout(width="420px", height="340px"),
+            layout=ipw.Layout(width=f"{HALF_NORMAL_PX}px", height="340px"),
             fig_margin={"top": 20, "bottom": 50, "left": 60, "right": 20},
             animation_duration=0,
             title="Half-normal plot of the effects",
         ).add_class("lw-half-normal")
-        self.lenth_text = ipw.HTML().add_class("lw-lenth")
+        self.lenth_text = ipw.HTML(layout=ipw.Layout(max_width=f"{HALF_NORMAL_PX}px")).add_class("lw-lenth")
         self.basis = ipw.Dropdown(
             description="Effects of",
             options=[("every candidate term (screening)", "scope"), ("the current model", "model")],
-            value="scope",
+            value="scope", layout=ipw.Layout(width="400px"),  # the longest choice is shown whole
         ).add_class("lw-effects-basis")
         self.basis.observe(self.safely(self._redraw_effects), names="value")
         self.measure = ipw.ToggleButtons(options=[("|effect|", "effect"), ("|t|", "t")], value="effect")
@@ -114,7 +118,7 @@ class EffectsView(View):
         self.bar_axis_y = bq.Axis(scale=self.by, side="left", label="|effect|", num_ticks=5)
         self.bars = bq.Figure(
             marks=[self.bar_mark],
-            axes=[bq.Axis(scale=self.bx, label="Term", tick_rotate=-35), self.bar_axis_y],
+            axes=[bq.Axis(scale=self.bx, label="Term", tick_rotate=-35, label_offset="4em"), self.bar_axis_y],
             layout=ipw.Layout(width="460px", height="320px"),
             fig_margin={"top": 20, "bottom": 80, "left": 60, "right": 20},
             animation_duration=0,
@@ -134,7 +138,7 @@ class EffectsView(View):
                 ipw.HBox([
                     ipw.VBox([self.basis, self.half_normal, self.lenth_text]),
                     ipw.VBox([self.measure, self.bars]),
-                ]),
+                ], layout=ipw.Layout(flex_flow="row wrap", max_width="100%")),  # side by side where there is room
                 ipw.HTML("<b>Terms in the model</b> (a pressed button is in; hierarchy is kept)"),
                 self.toggle_box,
                 self.model_text,
@@ -316,7 +320,12 @@ class EffectsView(View):
             set_if_changed(self.me_line, x=f32([result.me, result.me]), y=f32([0.0, top]))
             set_if_changed(self.sme_line, x=f32([result.sme, result.sme]), y=f32([0.0, top]))
         with self.hx.hold_sync(), self.hy.hold_sync():
-            self.hx.min, self.hx.max = 0.0, float(max(x.max(initial=0.0), result.sme)) * 1.15 or 1.0
+            margin = self.half_normal.fig_margin
+            plot_px = HALF_NORMAL_PX - margin["left"] - margin["right"]
+            floor = float(max(x.max(initial=0.0), result.sme)) * 1.15 or 1.0
+            # Room on the right for the labels of the active effects: each label stays inside the plot.
+            self.hx.min, self.hx.max = 0.0, scale_max_for_labels(x[active], coords["term"][active], plot_px,
+                                                                 floor=floor)
             self.hy.min, self.hy.max = 0.0, top
         units = self.shared.response_units
         unit = f" {html.escape(units)}" if units else ""
@@ -341,6 +350,11 @@ class EffectsView(View):
             values = t.abs()
             label = "|t|"
         values = values[np.isfinite(values.to_numpy(dtype=float))].sort_values(ascending=False)
+        margins = rotated_tick_margins(values.index, 35.0)  # rotated term names stay inside the figure
+        margin = {"top": 20, **margins}
+        if margin != self.bars.fig_margin:
+            self.bars.fig_margin = margin
+            self.bars.layout.height = f"{240 + margin['bottom']}px"
         with self.bar_mark.hold_sync():
             self.bar_mark.x = list(values.index)
             self.bar_mark.y = f32(values.to_numpy())

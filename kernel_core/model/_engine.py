@@ -36,9 +36,9 @@ import math
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._stats import norm_ppf, t_ppf
 from ._coding import encode
 from ._formula import monomials
 from ._inputs import _check_level
@@ -237,9 +237,9 @@ class PredictionEngine(SettingsCheck):
         q = self._quantiles.get(level)
         if q is None:
             if self.df is None:
-                q = float(stats.norm.ppf(0.5 + level / 2.0))
+                q = float(norm_ppf(0.5 + level / 2.0))
             else:
-                q = float(stats.t.ppf(0.5 + level / 2.0, self.df)) if self.df > 0 else float("nan")
+                q = float(t_ppf(0.5 + level / 2.0, self.df)) if self.df > 0 else float("nan")
             self._quantiles[level] = q
         return q
 

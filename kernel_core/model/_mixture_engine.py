@@ -21,6 +21,7 @@ import pandas as pd
 
 from .._errors import LevelwiseError, describe
 from ._engine import PredictionEngine
+from ._mixture_traces import CoxPlan, cox_polynomial_traces
 from ._settings import check_points
 
 
@@ -193,29 +194,26 @@ class MixtureEngine(PredictionEngine):
         info = self.info
         m = info.mixture
         q = m.q
-        count = 1 + (q * points if points is not None else 0)
-        rows = np.empty((count, len(variables)))
-        rows[0] = variables
-        if points is not None:
-            ts, grid = _cox_grid(m, x, points)
-            offset, divisor = self._fast[-2:]
-            np.divide(grid.reshape(-1, q) - offset, divisor, out=rows[1:, :q])
-            if info.process:
-                rows[1:, q:] = variables[q:]
-        mean, h = self.mean_and_leverage(rows)
         c = self._scale(level)
-        ci, pi = c * np.sqrt(h), c * np.sqrt(h + self.extra)
+        if points is not None:  # the exact polynomials along every Cox line (see _mixture_traces)
+            plan = self.__dict__.get("_cox_plan")
+            if plan is None:
+                plan = self.__dict__["_cox_plan"] = CoxPlan(self)
+            ts, change, grid, mean_t, h_t, mean0, h0 = cox_polynomial_traces(self, plan, x, variables, points)
+            ci_t, pi_t = c * np.sqrt(h_t), c * np.sqrt(h_t + self.extra)
+        else:
+            mean, h = self.mean_and_leverage(variables[None, :])
+            mean0, h0 = float(mean[0]), float(h[0])
         out = {"point": None, "slice": None, "traces": None}
         if point:
-            mu, half_ci, half_pi, lev = float(mean[0]), float(ci[0]), float(pi[0]), float(h[0])
+            half_ci, half_pi = c * math.sqrt(h0), c * math.sqrt(h0 + self.extra)
+            mu, lev = mean0, h0
             outside = lev > self._limit or any(value < low or value > high for value, low, high
                                                in zip(variables.tolist(), self._lows_list, self._highs_list))
             out["point"] = {"mean": mu, "ci_low": mu - half_ci, "ci_high": mu + half_ci, "pi_low": mu - half_pi,
                             "pi_high": mu + half_pi, "leverage": lev, "extrapolated": bool(outside)}
         if points is not None:
             traces = {}
-            change = (ts - x[:, None]) / m.total
-            mean_t, ci_t, pi_t = (a[1:].reshape(q, points) for a in (mean, ci, pi))
             for i, name in enumerate(self.factor_names[:q]):
                 traces[name] = {"x": change[i], "amount": ts[i], "blends": grid[i], "mean": mean_t[i],
                                 "ci_half": ci_t[i], "pi_half": pi_t[i]}
