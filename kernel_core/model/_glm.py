@@ -94,19 +94,21 @@ class GlmFit(FitFamily):
     trials_name = exposure_name = None
 
     def __init__(self, base, family, link, counts, trials, exposure, columns, scale_mode=None):
-        import statsmodels.api as sm
+        # The two statsmodels modules a GLM needs, not statsmodels.api (about 26 MB less in a viewer's kernel).
+        from statsmodels.genmod import families
+        from statsmodels.genmod.generalized_linear_model import GLM
 
         self.base, self.family, self.link = base, family, link
         self.counts, self.trials, self.exposure = counts, trials, exposure
         self.columns = np.asarray(columns, dtype=int)
         self.X = np.asarray(base.X)[:, self.columns]
-        links = sm.families.links
+        links = families.links
         if family == "binomial":
-            fam = sm.families.Binomial(link=links.Logit() if link == "logit" else links.Probit())
-            model = sm.GLM(np.column_stack([counts, trials - counts]), self.X, family=fam)
+            fam = families.Binomial(link=links.Logit() if link == "logit" else links.Probit())
+            model = GLM(np.column_stack([counts, trials - counts]), self.X, family=fam)
         else:
-            fam = sm.families.Poisson(link=links.Log())
-            model = sm.GLM(counts, self.X, family=fam, exposure=exposure)
+            fam = families.Poisson(link=links.Log())
+            model = GLM(counts, self.X, family=fam, exposure=exposure)
         self.statsmodels_result = res = model.fit()
         self.beta = np.asarray(res.params, dtype=float)
         self.deviance = float(res.deviance)
