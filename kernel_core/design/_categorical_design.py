@@ -33,9 +33,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 import scipy.linalg
-from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._stats import stats, t_ppf
 from ..model import parse_model, term_name
 from ._design import Design, _check_count, _check_seed
 from ._exchange import design_score, exchange_runs
@@ -327,7 +327,7 @@ def evaluate_levels(design, model, alias_terms=None, delta: float = 2.0, alpha: 
         v = np.einsum("ij,jk,ik->i", Fp, XtXi, Fp)
         pv = {"min": float(v.min()), "mean": float(np.trace(XtXi @ cols.moment_matrix())), "max": float(v.max())}
         if df_error > 0:
-            t_crit = stats.t.ppf(1 - alpha / 2, df_error)
+            t_crit = t_ppf(1 - alpha / 2, df_error)
             se = np.sqrt(np.diag(XtXi)[body])
             ranges = Z.max(axis=0) - Z.min(axis=0)
             nc = (delta / ranges) / se

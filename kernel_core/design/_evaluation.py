@@ -8,9 +8,9 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 import scipy.linalg
-from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._stats import stats, t_ppf
 from ._design import Design
 from ._region import moment_matrix, sample_region
 
@@ -225,7 +225,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
         v = np.einsum("ij,jk,ik->i", F, XtXi, F)
         pv = {"min": float(v.min()), "mean": float(np.trace(XtXi @ W)), "max": float(v.max())}
         if df_error > 0:
-            t_crit = stats.t.ppf(1 - alpha / 2, df_error)
+            t_crit = t_ppf(1 - alpha / 2, df_error)
             se = np.sqrt(np.diag(XtXi)[body])
             ranges = Z.max(axis=0) - Z.min(axis=0)
             nc = (delta / ranges) / se

@@ -24,7 +24,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import scipy.linalg
-from scipy import stats
+
+from .._stats import f_sf
 
 
 def sse_of(X: np.ndarray, y: np.ndarray) -> float:
@@ -51,7 +52,7 @@ def _row(source, df, ss, denominator_ms, denominator_df, within=""):
     ms = ss / df if df > 0 else np.nan
     if df > 0 and denominator_df > 0 and denominator_ms > 0:
         f = ms / denominator_ms
-        p = float(stats.f.sf(f, df, denominator_df))
+        p = float(f_sf(f, df, denominator_df))
     else:
         f, p = np.nan, np.nan
     return {"source": source, "within": within, "df": int(df), "sum_sq": ss, "mean_sq": ms, "F": f, "p_value": p}

@@ -16,9 +16,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.linalg
-from scipy import stats
 
 from .._errors import LevelwiseError
+from .._stats import stats
 
 #: The usual named powers, with words for the suggestion.
 NAMED_POWERS = (

@@ -20,7 +20,8 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from scipy import stats
+
+from .._stats import norm_ppf, stats, t_sf
 
 
 def influence_table(X, beta, residuals, rinv, runs, terms, *, alpha: float = 0.05) -> pd.DataFrame:
@@ -72,11 +73,11 @@ def influence_table(X, beta, residuals, rinv, runs, terms, *, alpha: float = 0.0
         c_diag = np.einsum("ij,ij->i", rinv, rinv)
         dfbetas = cx * (e / (safe * np.sqrt(s2_loo)))[:, None] / np.sqrt(c_diag)[None, :]
     if df > 1:
-        outlier_p = np.minimum(1.0, n * 2.0 * stats.t.sf(np.abs(external), df - 1))
+        outlier_p = np.minimum(1.0, n * 2.0 * t_sf(np.abs(external), df - 1))
     else:
         outlier_p = np.full(n, np.nan)
     ranks = stats.rankdata(internal if df > 0 else e, method="ordinal", nan_policy="omit")
-    quantile = stats.norm.ppf((np.asarray(ranks, dtype=float) - 0.375) / (n + 0.25))
+    quantile = norm_ppf((np.asarray(ranks, dtype=float) - 0.375) / (n + 0.25))
     table = pd.DataFrame(
         {
             "fitted": X @ beta,

@@ -10,9 +10,9 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._stats import stats, t_ppf
 from ._fitview import categorical_names
 
 
@@ -150,9 +150,9 @@ def lenth(fit, alpha: float = 0.05) -> LenthResult:
         )
     pse = 1.5 * float(np.median(small))
     d = m / 3.0
-    me = float(stats.t.ppf(1.0 - alpha / 2.0, d)) * pse
+    me = float(t_ppf(1.0 - alpha / 2.0, d)) * pse
     gamma = (1.0 + (1.0 - alpha) ** (1.0 / m)) / 2.0
-    sme = float(stats.t.ppf(gamma, d)) * pse
+    sme = float(t_ppf(gamma, d)) * pse
     table = pd.DataFrame(
         {
             "effect": eff.to_numpy(),

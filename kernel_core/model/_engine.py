@@ -36,9 +36,9 @@ import math
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._stats import norm_ppf, t_ppf
 from ._coding import encode
 from ._formula import monomials
 from ._inputs import _check_level
@@ -237,9 +237,9 @@ class PredictionEngine(SettingsCheck):
         q = self._quantiles.get(level)
         if q is None:
             if self.df is None:
-                q = float(stats.norm.ppf(0.5 + level / 2.0))
+                q = float(norm_ppf(0.5 + level / 2.0))
             else:
-                q = float(stats.t.ppf(0.5 + level / 2.0, self.df)) if self.df > 0 else float("nan")
+                q = float(t_ppf(0.5 + level / 2.0, self.df)) if self.df > 0 else float("nan")
             self._quantiles[level] = q
         return q
 
@@ -308,10 +308,14 @@ class PredictionEngine(SettingsCheck):
             mean, h = float(means[0]), float(hs[0])
         c = self._scale(level)
         ci, pi = c * math.sqrt(h), c * math.sqrt(h + self.extra)
-        outside = h > self._limit or any(value < low or value > high for value, low, high
-                                         in zip(natural.tolist(), self._lows_list, self._highs_list))
+        outside = self.outside_one(natural, h)
         return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
                 "pi_high": mean + pi, "leverage": h, "extrapolated": bool(outside)}
+
+    def outside_one(self, natural, h: float) -> bool:
+        """The extrapolation rule at one setting (natural values, its h)."""
+        return bool(h > self._limit or any(value < low or value > high for value, low, high
+                                           in zip(natural.tolist(), self._lows_list, self._highs_list)))
 
     def _factor(self, factor, parameter="factor") -> int:
         if factor not in self._index:

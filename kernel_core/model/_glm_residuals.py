@@ -16,9 +16,10 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from scipy import special, stats
+from scipy import special
 
 from .._errors import LevelwiseError
+from .._stats import norm_ppf, stats
 from ._glm_scale import dmu_deta, inverse_link
 
 
@@ -62,7 +63,7 @@ def diagnostics(fit) -> pd.DataFrame:
         "pearson_residual": pearson,
         "standardized_deviance": std_deviance,
         "standardized_pearson": pearson / spread,
-        "normal_quantile": stats.norm.ppf((np.asarray(ranks, dtype=float) - 0.375) / (n + 0.25)),  # Blom
+        "normal_quantile": norm_ppf((np.asarray(ranks, dtype=float) - 0.375) / (n + 0.25)),  # Blom
         "leverage": h,
         "cooks_distance": pearson ** 2 * h / (fit.scale * fit.p * (1.0 - h) ** 2),
     }, index=fit.runs)

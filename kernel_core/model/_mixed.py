@@ -19,10 +19,10 @@ from functools import cached_property
 import numpy as np
 import pandas as pd
 import scipy.linalg
-from scipy import stats
 
 from .._errors import LevelwiseError, LevelwiseWarning, describe
 from .._rich import anova_frame, coefficient_table, fit_html
+from .._stats import f_sf, t_ppf, t_sf
 from ..design._splitplot import WHOLE_PLOT_COLUMN, check_whole_plot_column
 from ._families import FitFamily
 
@@ -127,10 +127,10 @@ class MixedFit(FitFamily):
         stratum = self._stratum_of_column()
         df = np.where(stratum == "whole-plot", self.df_whole_plot, self.df_residual).astype(float)
         t = self.beta / se
-        q = stats.t.ppf(0.5 + self.level / 2.0, df)
+        q = t_ppf(0.5 + self.level / 2.0, df)
         return coefficient_table(self, pd.DataFrame(
             {"estimate": self.beta, "std_error": se, "stratum": stratum, "df": df, "t": t,
-             "p_value": 2.0 * stats.t.sf(np.abs(t), df), "ci_low": self.beta - q * se, "ci_high": self.beta + q * se},
+             "p_value": 2.0 * t_sf(np.abs(t), df), "ci_low": self.beta - q * se, "ci_high": self.beta + q * se},
             index=pd.Index(self.terms, name="term"),
         ))
 
@@ -147,7 +147,7 @@ class MixedFit(FitFamily):
             stratum = "whole-plot" if label in wp else "sub-plot"
             den = self.df_whole_plot if stratum == "whole-plot" else self.df_residual
             rows[label] = {"stratum": stratum, "df": len(cols), "df_denominator": den, "F": f,
-                           "p_value": float(stats.f.sf(f, len(cols), den))}
+                           "p_value": float(f_sf(f, len(cols), den))}
         return anova_frame(self, pd.DataFrame.from_dict(rows, orient="index").rename_axis("term"))
 
     # -- residuals by whole plot --------------------------------------------------------------------

@@ -23,9 +23,9 @@ from functools import cached_property
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._errors import LevelwiseError, describe
+from .._stats import t_sf
 from ..design import Factor, as_factors
 from ..design._mixture_region import Mixture, as_mixture
 from ._fit import fit as _fit
@@ -169,7 +169,7 @@ class MixtureFit(Fit):
         se = self.s * np.sqrt(np.einsum("ij,ij->i", tr, tr))
         with np.errstate(divide="ignore", invalid="ignore"):
             t = estimate / se
-        p = 2.0 * stats.t.sf(np.abs(t), self.df_resid) if self.df_resid > 0 else np.full(len(t), np.nan)
+        p = 2.0 * t_sf(np.abs(t), self.df_resid) if self.df_resid > 0 else np.full(len(t), np.nan)
         qt = self.t_quantile(self.level)
         return pd.DataFrame({"estimate": estimate, "std_error": se, "t": t, "p_value": p,
                              "ci_low": estimate - qt * se, "ci_high": estimate + qt * se},

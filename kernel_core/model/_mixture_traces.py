@@ -39,28 +39,35 @@ class CoxPlan:
 
 
 def _rows(engine, natural):
-    """``engine.rows`` for the model variables of a mixture fit, whose coding is the identity (centre 0, scale 1):
-    a model column is a product of whole columns of [1, v, v^2, ...] (fewer array operations per event)."""
-    identity = engine.__dict__.get("_identity_coding")
-    if identity is None:
-        identity = engine.__dict__["_identity_coding"] = bool(
-            not engine.contrasts and len(engine.exponents) and not engine.center.any() and (engine.scale == 1).all())
-    if not identity:
+    """``engine.rows`` for the model variables of a mixture fit, whose coding is the identity (centre 0, scale 1),
+    in four array operations: every power of every variable at once, then one gather and one product."""
+    plan = engine.__dict__.get("_plain_rows")
+    if plan is None:
+        identity = bool(not engine.contrasts and len(engine.exponents) and not engine.center.any()
+                        and (engine.scale == 1).all())
+        if identity:
+            E = np.asarray(engine.exponents)
+            k = E.shape[1]
+            width = max(1, int((E > 0).sum(axis=1).max(initial=0)))
+            picks = np.zeros((E.shape[0], width), dtype=np.intp)  # index e * k + i of v_i^e; 0 is v_0^0 = 1
+            for j, row in enumerate(E):
+                for slot, i in enumerate(np.flatnonzero(row)):
+                    picks[j, slot] = row[i] * k + i
+            plan = (np.arange(int(E.max()) + 1, dtype=float)[:, None], picks)
+        else:
+            plan = False
+        engine.__dict__["_plain_rows"] = plan
+    if plan is False:
         return engine.rows(natural)
-    picks = engine._picks
-    parts = [np.ones((natural.shape[0], 1)), natural]
-    for _ in range(2, engine._top + 1):
-        parts.append(parts[-1] * natural)
-    v = np.concatenate(parts, axis=1)
-    x = v[:, picks[0]]
-    for slot in range(1, len(picks)):
-        x *= v[:, picks[slot]]
-    return x
+    powers, picks = plan
+    table = np.power(natural[:, None, :], powers).reshape(natural.shape[0], -1)
+    return table[:, picks].prod(axis=2)
 
 
-def _ends_bounds(mixture, xs, T):
+def _ends_bounds(mixture, xs, T, offset, divisor, tail):
     """Both ends of every Cox line of a region of bounds only, in plain Python (a few components: far fewer array
-    operations): per line, the blend, t and the change (t - x_i) / T at t = lo and at t = hi, flat.
+    operations): per line and end, the blend, t, the change (t - x_i) / T and the model variables, flat. A last
+    line whose two ends are the current blend itself gives the point.
 
     Along line i the others are x_j = s_j (T - t), s_j = r_j / (T - r_i) (equal shares from a pure blend);
     L_j <= x_j <= U_j gives T - U_j / s_j <= t <= T - L_j / s_j for s_j > 0, and L_i <= t <= U_i."""
@@ -93,15 +100,19 @@ def _ends_bounds(mixture, xs, T):
             ends.extend(blend)
             ends.append(t)
             ends.append((t - xi) / T)
-    return ends
+            ends.extend([(v - o) / divisor for v, o in zip(blend, offset)])
+            ends.extend(tail)
+    here = xs + [0.0, 0.0] + [(v - o) / divisor for v, o in zip(xs, offset)] + tail
+    return ends + here + here
 
 
 def cox_polynomial_traces(engine, plan: CoxPlan, x, variables, points: int):
     """Mean and h along every Cox line from the blend *x* (amounts), and at *x* itself (model *variables*).
 
     Returns (t, change, blends, mean, h, mean0, h0): t (q, points) the moving component's amount, change
-    (t - x_i) / T, blends (q, points, q), mean and h (q, points). The blend, t and the change are affine along a
-    line: they come from the line's two ends, and the same interpolation as the rest gives them on the grid.
+    (t - x_i) / T, blends (q, points, q), mean and h (q, points). The blend, t, the change and the model variables
+    are affine along a line: they come from the line's two ends, and the same interpolation as the rest gives
+    them at the nodes and on the grid.
     """
     from ._mixture_engine import _cox_lines
 
@@ -110,25 +121,29 @@ def cox_polynomial_traces(engine, plan: CoxPlan, x, variables, points: int):
     offset, divisor = engine._fast[-2:]
     n_nodes = plan.degree + 1
     k = len(variables)
+    width = q + 2 + k
     if not len(mixture.G) and q <= 8:
-        ends = np.array(_ends_bounds(mixture, x.tolist(), T)).reshape(q, 2, q + 2)
+        offsets = plan.__dict__.get("_offsets") or plan.__dict__.setdefault(
+            "_offsets", np.broadcast_to(offset, (q,)).astype(float).tolist())
+        flat = _ends_bounds(mixture, x.tolist(), T, offsets, divisor, variables[q:].tolist())
+        ends = np.array(flat).reshape(q + 1, 2, width)
     else:  # constraints: the lines by arrays (levelwise _cox_lines)
         A, B, lo, hi = _cox_lines(mixture, x)
         t_ends = np.column_stack([lo, hi])
-        blends = t_ends[:, :, None] * B[:, None, :]
-        blends += A[:, None, :]
-        ends = np.concatenate([blends, t_ends[:, :, None], ((t_ends - x[:, None]) / T)[:, :, None]], axis=2)
-    at = plan.ends_to_nodes @ ends  # (q, d + 1, q + 2): blend, t, change at each node
-    natural = np.empty((1 + q * n_nodes, k))
-    natural[0] = variables
-    np.divide(at[:, :, :q].reshape(-1, q) - offset, divisor, out=natural[1:, :q])
-    if k > q:
-        natural[1:, q:] = variables[q:]
-    both = _rows(engine, natural) @ engine._fb  # [x F | mean] at the current blend and every node
-    values = plan.lagrange(points) @ np.concatenate([at, both[1:].reshape(q, n_nodes, -1)], axis=2)
+        ends = np.empty((q + 1, 2, width))
+        ends[:q, :, :q] = t_ends[:, :, None] * B[:, None, :] + A[:, None, :]
+        ends[:q, :, q] = t_ends
+        ends[:q, :, q + 1] = (t_ends - x[:, None]) / T
+        ends[:q, :, q + 2:q + 2 + q] = (ends[:q, :, :q] - offset) / divisor
+        ends[:q, :, q + 2 + q:] = variables[q:]
+        ends[q, :, :q], ends[q, :, q:q + 2], ends[q, :, q + 2:] = x, 0.0, variables
+    at = plan.ends_to_nodes @ ends  # (q + 1, d + 1, width) at the nodes; the last line is the point
+    both = _rows(engine, at[:, :, q + 2:].reshape(-1, k)) @ engine._fb  # [x F | mean] at every node
+    values = plan.lagrange(points) @ np.concatenate([at[:q, :, :q + 2], both[:-n_nodes].reshape(q, n_nodes, -1)],
+                                                     axis=2)
     xf = values[:, :, q + 2:-1]
     h = np.einsum("qsr,qsr->qs", xf, xf)
-    first = both[0]
+    first = both[-1]
     return (values[:, :, q], values[:, :, q + 1], values[:, :, :q], values[:, :, -1], h, float(first[-1]),
             float(first[:-1] @ first[:-1]))
 

@@ -9,9 +9,9 @@ from functools import cached_property
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from .._rich import anova_frame, coefficient_table, fit_html
+from .._stats import t_ppf, t_sf
 from ._coding import Coding
 from ._engine import PredictionEngine
 from ._formula import ModelSpec, term_name
@@ -215,7 +215,7 @@ class Fit:
         """Two-sided t quantile for *level* on the residual df, cached per level."""
         cache = self.__dict__.setdefault("_t_cache", {})
         if level not in cache:
-            cache[level] = float(stats.t.ppf(0.5 + level / 2.0, self.df_resid)) if self.df_resid > 0 else float("nan")
+            cache[level] = float(t_ppf(0.5 + level / 2.0, self.df_resid)) if self.df_resid > 0 else float("nan")
         return cache[level]
 
     @cached_property
@@ -245,7 +245,7 @@ class Fit:
         se = self.s * np.sqrt(self._c_diag)
         with np.errstate(divide="ignore", invalid="ignore"):
             t = self.beta / se
-        p = 2.0 * stats.t.sf(np.abs(t), self.df_resid) if self.df_resid > 0 else np.full(self.p, np.nan)
+        p = 2.0 * t_sf(np.abs(t), self.df_resid) if self.df_resid > 0 else np.full(self.p, np.nan)
         q = self.t_quantile(self.level)
         return coefficient_table(self, pd.DataFrame(
             {

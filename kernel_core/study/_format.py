@@ -64,9 +64,15 @@ def _reject_constant(name):
     raise ValueError(f"{name} is not allowed in a study file (JSON has no NaN or infinity)")
 
 
+_SCHEMA = None
+
+
 def _schema() -> dict:
-    text = resources.files(__package__).joinpath("study_schema.json").read_text(encoding="utf-8")
-    return json.loads(text)
+    global _SCHEMA
+    if _SCHEMA is None:
+        text = resources.files(__package__).joinpath("study_schema.json").read_text(encoding="utf-8")
+        _SCHEMA = json.loads(text)
+    return _SCHEMA
 
 _VALIDATOR = None
 
@@ -107,7 +113,15 @@ def _run_ok(run) -> bool:
 
 
 def _validate(document, source: str) -> None:
-    """Validate a current-format document against the shipped schema; the error names the field."""
+    """Validate a current-format document against the shipped schema; the error names the field.
+
+    A document that passes the yes/no check of ``_schema_check`` (no ``jsonschema`` import) is done; any other is
+    validated by ``jsonschema``, which words the error.
+    """
+    from ._schema_check import conforms
+
+    if conforms(document, _schema()):
+        return
     validator = _validator()
     runs = document.get("data", {}).get("runs") if isinstance(document.get("data"), dict) else None
     offset, errors = 0, []
