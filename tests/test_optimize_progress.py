@@ -154,3 +154,23 @@ def test_categorical_levels_share_one_progress_and_stop_keeps_the_levels_searche
     assert list(stopped.by_level["Supplier"]) != [] and len(stopped.by_level) == 2  # the first level, and the
     # second one stopped before its first local search (its best screened point kept)
     assert stopped.overall == pytest.approx(stopped.by_level["overall_D"].max())
+
+
+def test_mixture_optimisation_reports_progress_and_stops_with_the_best_so_far():
+    from pathlib import Path
+
+    import pandas as pd
+
+    import levelwise as lw
+
+    data = pd.read_csv(Path(__file__).parent / "data" / "yarn_elongation.csv")  # see tests/data/SOURCES.md
+    fit = lw.fit_mixture(data, "elongation", "scheffe_quadratic", ["x1", "x2", "x3"])
+    goals = {"elongation": lw.maximize(10, 20)}
+    seen = []
+    stopped = lw.optimize({"elongation": fit}, goals, seed=1, starts=6,
+                          progress=lambda f, m: seen.append(m) or len(seen) < 3)
+    assert stopped.stopped == "cancelled" and len(stopped.starts) == 2
+    assert seen[0].startswith("start 1 of 6")
+    assert stopped.overall == pytest.approx(stopped.starts["overall_D"].max())
+    full = lw.optimize({"elongation": fit}, goals, seed=1, starts=6, progress=False)
+    assert full.search_complete is True and len(full.starts) == 6 and full.overall >= stopped.overall
