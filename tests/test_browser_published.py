@@ -35,9 +35,10 @@ pytestmark = pytest.mark.browser
 MUTATING_SELECTORS = [
     # Every button but: the figures' own pan/zoom toolbars, the display choices (response shown, slice quantity),
     # "Add current settings" (a row of the viewer's own prediction list) and "Use these settings" (moves the
-    # sliders to the optimum). None of these touches the data, the models or the exclusions.
+    # sliders to the optimum), "Save figure" and "Export table" (they read what is shown). None of these touches
+    # the data, the models or the exclusions.
     "button:not(.toolbar_div button):not(.lw-response-choice button):not(.lw-slice-quantity button)"
-    ":not(.lw-add-prediction):not(.lw-use-optimum)",
+    ":not(.lw-add-prediction):not(.lw-use-optimum):not(.lw-save-figure):not(.lw-export-table)",
     "input[type=text]", "input[type=file]", "textarea", "input[type=checkbox]",
     ".widget-text", ".widget-textarea", ".widget-upload", ".widget-checkbox",
 ]

@@ -46,7 +46,9 @@ def test_present_has_no_editors_and_shows_the_caution(page):
     found = [type(w).__name__ for w in walk(page) if isinstance(w, EDITORS)]
     assert found == []
     buttons = {w.description for w in walk(page) if isinstance(w, ipw.Button)}
-    assert buttons <= {"Add current settings", "Use these settings"}
+    # Exports only read what is shown (a figure drawn in the viewer's own kernel, the shown tables): allowed.
+    assert buttons <= {"Add current settings", "Use these settings", "Save figure (PNG, SVG)",
+                       "Export table (CSV, XLSX)"}
     text = " ".join(w.value for w in walk(page) if isinstance(w, ipw.HTML))
     assert CAUTION in text
     assert "Invented data" in text and "fold-over (16)" in text and "screen (20)" in text
