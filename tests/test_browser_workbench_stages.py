@@ -76,7 +76,10 @@ def test_stored_goals_show_in_the_optimiser(page):
     kinds = page.locator(".lw-goal-kind select").evaluate_all("els => els.map(e => e.value)")
     labels = page.locator(".lw-goal-kind select").evaluate_all(
         "els => els.map(e => e.options[e.selectedIndex].text.replace(/\u00a0/g, ' '))")
-    assert labels == ["maximise", "hit a target", "minimise"], (kinds, labels)  # the demo file's goals
+    # The demo file's goals (the fourth: the adhesion pass rate, at least 90 %, shown in % in its editors).
+    assert labels == ["maximise", "hit a target", "minimise", "maximise"], (kinds, labels)
+    limits = page.locator(".lw-goal-limit input").evaluate_all("els => els.map(e => e.value)")
+    assert "90" in limits and "98" in limits, limits
     assert "smallest" in page.locator(".lw-goal-defaults").first.inner_text()
 
 

@@ -127,3 +127,50 @@ def test_without_a_loop_the_view_runs_at_once_and_shows_the_result():
     assert optimum is view.optimum and optimum.search_complete is True
     assert view.task.progress.value == 1.0 and view.task.stop_button.layout.display == "none"
     assert np.isfinite(optimum.overall) and "Overall desirability" in view.result.value
+
+
+def test_categorical_levels_share_one_progress_and_stop_keeps_the_levels_searched():
+    import test_categorical_search as cat  # the seeded invented data of the categorical search tests
+
+    import levelwise as lw
+
+    data = cat._data(1)
+    fits = {"y1": lw.fit(data, "y1", cat.MODEL1, factors=cat.FACTORS)}
+    goals = {"y1": lw.maximize(40, 70)}
+    seen = []
+    full = lw.optimize(fits, goals, seed=0, starts=3, progress=lambda f, m: seen.append((f, m)) is None)
+    fractions = [f for f, _ in seen]
+    assert fractions == sorted(fractions) and fractions[-1] == 1.0  # one bar over every level combination
+    assert all(m.startswith("Supplier = ") for _, m in seen)
+    assert full.search_complete is True and len(full.by_level) == len(cat.LEVELS)
+    count = []
+
+    def stop_in_second(fraction, message):
+        count.append(message)
+        return not message.startswith(f"Supplier = {cat.LEVELS[1]}")
+
+    stopped = lw.optimize(fits, goals, seed=0, starts=3, progress=stop_in_second)
+    assert stopped.stopped == "cancelled" and stopped.search_complete is False
+    assert list(stopped.by_level["Supplier"]) != [] and len(stopped.by_level) == 2  # the first level, and the
+    # second one stopped before its first local search (its best screened point kept)
+    assert stopped.overall == pytest.approx(stopped.by_level["overall_D"].max())
+
+
+def test_mixture_optimisation_reports_progress_and_stops_with_the_best_so_far():
+    from pathlib import Path
+
+    import pandas as pd
+
+    import levelwise as lw
+
+    data = pd.read_csv(Path(__file__).parent / "data" / "yarn_elongation.csv")  # see tests/data/SOURCES.md
+    fit = lw.fit_mixture(data, "elongation", "scheffe_quadratic", ["x1", "x2", "x3"])
+    goals = {"elongation": lw.maximize(10, 20)}
+    seen = []
+    stopped = lw.optimize({"elongation": fit}, goals, seed=1, starts=6,
+                          progress=lambda f, m: seen.append(m) or len(seen) < 3)
+    assert stopped.stopped == "cancelled" and len(stopped.starts) == 2
+    assert seen[0].startswith("start 1 of 6")
+    assert stopped.overall == pytest.approx(stopped.starts["overall_D"].max())
+    full = lw.optimize({"elongation": fit}, goals, seed=1, starts=6, progress=False)
+    assert full.search_complete is True and len(full.starts) == 6 and full.overall >= stopped.overall

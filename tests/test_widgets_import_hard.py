@@ -65,3 +65,30 @@ def test_a_hard_to_change_factor_that_moves_inside_a_whole_plot_is_refused_and_n
     assert shared.study is before  # the workbench keeps its study
     assert "Nothing was imported" in view.report.value and "Temp" in view.report.value
     assert "whole plot" in view.report.value
+
+
+def test_too_few_whole_plots_for_reml_is_named_and_the_workbench_keeps_working():
+    # Four whole plots of two runs, no whole-plot noise: statsmodels' REML meets a singular matrix. The fit says
+    # so in words, and the workbench falls back to least squares with the study's warning instead of crashing.
+    import pytest
+
+    import levelwise as lw
+
+    frame = pd.DataFrame({"run": range(1, 9), "whole_plot": [1, 1, 2, 2, 3, 3, 4, 4],
+                          "Temp [°C]": [150, 150, 190, 190, 150, 150, 190, 190],
+                          "Time [min]": [10, 30] * 4, "Yield [%]": [43.0, 43.1, 43.6, 43.7, 43.4, 43.5, 44.0, 44.1]})
+    factors = [lw.Factor("Temp", 150, 190, hard_to_change=True), lw.Factor("Time", 10, 30)]
+    table = frame.rename(columns={"Temp [°C]": "Temp", "Time [min]": "Time", "Yield [%]": "Yield"})
+    with pytest.raises(lw.LevelwiseError, match="REML.*could not be made with 4 whole plots"):
+        lw.fit(table, "Yield", "Temp + Time", factors=factors, whole_plot="whole_plot")
+    buffer = io.StringIO()
+    frame.to_csv(buffer, index=False)
+    shared = SharedModel.from_study(demo_study())
+    view = TableImport(shared)
+    view.load(buffer.getvalue().encode(), "small.csv")
+    view.rows["Temp [°C]"]["hard"].value = True
+    with pytest.warns(lw.LevelwiseWarning, match="split-plot fit could not be made"):
+        study = view.make_study()
+    assert shared.study is study and study.hard_to_change == ["Temp"]
+    assert shared.fit is not None and type(shared.fit).__name__ == "Fit"  # least squares, with the warning
+    assert "Internal error" not in view.status.value

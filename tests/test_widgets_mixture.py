@@ -233,3 +233,18 @@ def test_views_that_do_not_apply_to_a_mixture_say_so_in_words():
     assert "no mixture components" in MixtureSliders(plain).slider_box.children[0].value
     assert "no mixture components" in CoxTraces(plain).caption.value
     assert "three mixture components" in TernarySlice(plain).caption.value
+
+
+def test_the_workbench_and_the_published_page_compose_the_mixture_views():
+    from levelwise.dashboards import explore, present
+
+    path = str(Path(__file__).resolve().parents[1] / "dashboards" / "data" / "demo_reformulation.json")  # invented
+    bench = explore.build(path)
+    names = [type(v).__name__ for v in bench.views]
+    assert {"MixtureSliders", "CoxTraces", "TernarySlice"} <= set(names)
+    assert "SurfaceSlice" not in names and "FactorSliders" not in names
+    assert all(v.status.value == "" for v in bench.views)  # no view shows an error on the mixture study
+    page = present.build(path)
+    assert [type(v).__name__ for v in page.views] == ["StudyReadout", "MixtureSliders", "CoxTraces", "TernarySlice",
+                                                      "PredictionsView", "OptimizerView"]
+    assert page.shared.read_only and "4 mixture components whose amounts sum to 100 %" in page.views[0].summary.value

@@ -18,6 +18,7 @@ from levelwise import LevelwiseError
 
 from . import _count_display as counts
 from . import _count_residuals as count_residuals
+from . import _residual_text as residual_text
 from ._base import View, f32, set_if_changed
 from .shared_model import SharedModel, is_categorical
 from .style import EXCLUDED_COLOR, HIGHLIGHT_COLOR, OKABE_ITO, RUN_COLOR, fmt
@@ -389,31 +390,10 @@ class ResidualInspector(View):
         self.detail.value = "<br>".join(lines)
 
     def _show_exclusions(self):
-        items = sorted(self.shared.exclusions.items(), key=lambda kv: str(kv[0]))
-        if not items:
-            self.excluded_list.value = "No runs left out."
-            return
-        rows = "".join(f"<li>Run {html.escape(str(r))}: {html.escape(why)}</li>" for r, why in items)
-        self.excluded_list.value = f"<b>Runs left out of every fit</b><ul>{rows}</ul>"
+        self.excluded_list.value = residual_text.exclusions_html(self.shared.exclusions)
 
     def _show_box_cox(self):
-        current = self.shared.fit
-        if current is None:
-            self.box_cox.value = ""
-            return
-        if counts.family(current):
-            self.box_cox.value = count_residuals.box_cox_html(current)
-            return
-        try:
-            result = current.box_cox()
-        except LevelwiseError as exc:
-            self.box_cox.value = f"<b>Power transformation (Box–Cox)</b>: not available ({html.escape(str(exc))})"
-            return
-        self.box_cox.value = (
-            f"<b>Power transformation (Box–Cox)</b>: best λ = {fmt(result.lam, 3)} "
-            f"({result.level:.0%} interval {fmt(result.ci_low, 3)} to {fmt(result.ci_high, 3)}). "
-            f"{html.escape(result.suggestion)}"
-        )
+        self.box_cox.value = residual_text.box_cox_html(self.shared.fit)
 
     def export_tables(self) -> dict:
         """The tables for "Export table (CSV, XLSX)": fitted values, residuals and influence per run."""

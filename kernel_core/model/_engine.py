@@ -308,10 +308,14 @@ class PredictionEngine(SettingsCheck):
             mean, h = float(means[0]), float(hs[0])
         c = self._scale(level)
         ci, pi = c * math.sqrt(h), c * math.sqrt(h + self.extra)
-        outside = h > self._limit or any(value < low or value > high for value, low, high
-                                         in zip(natural.tolist(), self._lows_list, self._highs_list))
+        outside = self.outside_one(natural, h)
         return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
                 "pi_high": mean + pi, "leverage": h, "extrapolated": bool(outside)}
+
+    def outside_one(self, natural, h: float) -> bool:
+        """The extrapolation rule at one setting (natural values, its h)."""
+        return bool(h > self._limit or any(value < low or value > high for value, low, high
+                                           in zip(natural.tolist(), self._lows_list, self._highs_list)))
 
     def _factor(self, factor, parameter="factor") -> int:
         if factor not in self._index:

@@ -85,14 +85,34 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
         natural = engine.vector(settings)
         level = engine._level(level)
         powers = plan.powers(natural)
-        out = {"point": transform_point(link, engine.point(None, level, natural, powers)) if point else None,
-               "traces": None, "slice": None}
-        if points is not None:
-            xs, mean, ci, _ = plan.traces(powers, engine._scale(level), check_points(points), engine.extra)
-            bands = transform(link, mean, ci)  # (k, points) each, one stacked inverse link
-            out["traces"] = {name: {"x": xs[j], "mean": bands["mean"][j], "ci_low": bands["ci_low"][j],
-                                    "ci_high": bands["ci_high"][j], "link_mean": mean[j]}
-                             for j, name in enumerate(engine.factor_names)}
+        out = {"point": None, "traces": None, "slice": None}
+        if points is not None and point:  # the point and every trace from one product, one inverse link
+            points = check_points(points)
+            xs, eta, h = plan.point_and_traces(powers, points)
+            np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
+            h0 = float(h[0])
+            half = np.sqrt(h, out=h)
+            half *= engine._scale(level)
+            bands = transform(link, eta, half)
+            out["point"] = {"mean": float(bands["mean"][0]), "ci_low": float(bands["ci_low"][0]),
+                            "ci_high": float(bands["ci_high"][0]), "link_mean": float(eta[0]),
+                            "pi_low": math.nan, "pi_high": math.nan,  # see GlmFit.new_observation_note
+                            "extrapolated": engine.outside_one(natural, h0)}
+            shape = (engine.k, points)
+            mean, low, high, link_mean = (bands[key][1:].reshape(shape) for key in ("mean", "ci_low", "ci_high",
+                                                                                    "link_mean"))
+            out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_low": low[j], "ci_high": high[j],
+                                    "link_mean": link_mean[j]} for j, name in enumerate(engine.factor_names)}
+        else:
+            if point:
+                out["point"] = transform_point(link, engine.point(None, level, natural, powers))
+            if points is not None:
+                xs, mean, ci, _ = plan.traces(powers, engine._scale(level), check_points(points), engine.extra,
+                                              pi=False)
+                bands = transform(link, mean, ci)  # (k, points) each, one stacked inverse link
+                out["traces"] = {name: {"x": xs[j], "mean": bands["mean"][j], "ci_low": bands["ci_low"][j],
+                                        "ci_high": bands["ci_high"][j], "link_mean": mean[j]}
+                                 for j, name in enumerate(engine.factor_names)}
         if slice_axes is not None:
             try:
                 x, y = slice_axes

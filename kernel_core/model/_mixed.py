@@ -421,7 +421,14 @@ def fit_mixed(data, response, model, *, whole_plot, random_block=None, least_squ
     notes = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        result = sm_model.fit(reml=True, start_params=start)
+        try:
+            result = sm_model.fit(reml=True, start_params=start)
+        except (np.linalg.LinAlgError, ValueError) as exc:  # e.g. too few whole plots for the model: named
+            raise LevelwiseError(
+                f"The split-plot (REML) fit of {response!r} could not be made with {len(np.unique(wp_codes))} whole "
+                f"plots and {X.shape[1]} model columns ({type(exc).__name__}: {exc}). Add whole plots or simplify "
+                "the model."
+            ) from None
     for w in caught:
         text = str(w.message)
         if "boundary" not in text and text not in notes:

@@ -21,7 +21,8 @@ def _weight(goal) -> float:
     return float(getattr(goal, "weight", getattr(goal, "importance", 1.0)))
 
 
-def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None):
+def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, starts: int = 20, seed=None,
+                     progress=None):
     """Maximise the overall desirability of mixture fits that share one mixture.
 
     Parameters are those of :func:`levelwise.optimize`; *region* may narrow the process factors' ranges
@@ -105,8 +106,19 @@ def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, sta
     cons = [{"type": "eq", "fun": lambda u: np.array([(lower[:q] + u[:q] * scale[:q]).sum() - T]) / T}]
     if len(b):
         cons.append({"type": "ineq", "fun": lambda u: (b - A @ (lower + u * scale)) / max(1.0, T)})
+    from .._progress import Reporter
+
+    reporter = Reporter(progress, "Optimisation starts")
     results = []
-    for start in candidates:
+    for i, start in enumerate(candidates):
+        best_so_far = max((v for v, _ in results), default=float(scores.max()))
+        try:
+            if not reporter.report(i / len(candidates), f"start {i + 1} of {len(candidates)}, best overall "
+                                                        f"desirability so far {best_so_far:.3g}"):
+                break
+        except KeyboardInterrupt:
+            reporter.interrupted()
+            break
         u0 = (start - lower) / scale
         found = sopt.minimize(lambda u: -overall(lower + u * scale)[0], u0, method="SLSQP",
                               bounds=[(0.0, 1.0)] * (q + k), constraints=cons,
@@ -121,6 +133,11 @@ def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, sta
         if float(overall(start)[0]) > value:
             v, value = start, float(overall(start)[0])
         results.append((value, v))
+    if not results:  # stopped before the first local search: the best screened blend
+        results = [(float(overall(candidates[0])[0]), candidates[0])]
+    if reporter.stopped is None:
+        reporter.report(1.0, "done")
+    reporter.finish("The optimisation")
     results.sort(key=lambda item: -item[0])
     best_value, best = results[0]
     settings = {n: float(x) for n, x in zip(names, best)}
@@ -133,7 +150,7 @@ def optimize_mixture(fits: dict, goals: dict, region=None, constraints=None, sta
     table = pd.DataFrame([v for _, v in results], columns=names)
     table["overall_D"] = [value for value, _ in results]
     return Optimum(settings=settings, predictions=predictions, desirability=d, overall=float(best_value),
-                   starts=table)
+                   starts=table, search_complete=reporter.stopped is None, stopped=reporter.stopped)
 
 
 __all__ = ["optimize_mixture"]

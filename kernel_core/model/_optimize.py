@@ -262,7 +262,7 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
         As for the design searches (:mod:`levelwise._progress`): None, a text line on standard error once the
         starts have run a second; False, silent; True, the line from the start; or ``progress(fraction,
         message)``, which stops the search by returning False. Stopped (or Ctrl-C), the result is the best
-        found so far with ``search_complete`` False and ``stopped`` set. (Mixture searches ignore it.)
+        found so far with ``search_complete`` False and ``stopped`` set.
 
     Raises
     ------
@@ -274,7 +274,7 @@ def optimize(fits: dict, goals: dict, region=None, constraints=None, starts: int
     if isinstance(fits, dict) and fits and any(hasattr(f, "mixture_info") for f in fits.values()):
         from ._mixture_optimize import optimize_mixture  # mixtures (issue 12): blends summing to the total
 
-        return optimize_mixture(fits, goals, region, constraints, starts, seed)
+        return optimize_mixture(fits, goals, region, constraints, starts, seed, progress=progress)
     if not isinstance(fits, dict) or not fits:
         raise LevelwiseError(
             f"The 'fits' parameter must be a non-empty dict of response -> Fit. Got {describe(fits)} instead."

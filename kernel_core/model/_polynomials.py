@@ -49,6 +49,9 @@ class PolynomialPlan:
         self.onehot = onehot
         # Row j: every factor but j (the held ones for factor j's trace).
         self._held = np.array([[i for i in range(k) if i != j] for j in range(k)], dtype=np.intp).reshape(k, k - 1)
+        # The same as flat positions in the (p, k) table of powers, (k - 1, k * p): one take and one product give
+        # every column's constant from the held factors, for every trace at once.
+        self._held_flat = (np.arange(p)[None, None, :] * k + self._held.T[:, :, None]).reshape(k - 1, k * p)
         # spread[j, c, a*(p+1) + q] = onehot[j, c, a] * [F | beta][c, q]: one product with the held
         # factors' column constants gives, per factor and power, the row of F and the mean coefficient.
         spread = onehot[:, :, :, None] * self.rinv_beta[None, :, None, :]
@@ -124,11 +127,13 @@ class PolynomialPlan:
         xr = both[:-1]
         return float(both[-1]), float(xr @ xr)
 
-    def traces(self, powers: np.ndarray, ts: float, points: int, extra: float = 1.0):
-        """Mean, CI and PI half-widths along every factor, (k, points) each, and the x grids."""
+    def traces(self, powers: np.ndarray, ts: float, points: int, extra: float = 1.0, pi: bool = True):
+        """Mean, CI and PI half-widths along every factor, (k, points) each, and the x grids (``pi=False``: no
+        PI half-widths, None in their place)."""
         xs, outer, vander = self.trace_grids(points)
         k, p, width = self.k, self.p, self.D + 1
-        const = powers[:, self._held].prod(axis=2).T  # (k, p): each column's factor from the held factors
+        # (k, p): each column's factor from the held factors
+        const = np.multiply.reduce(powers.take(self._held_flat), axis=0).reshape(k, p)
         z = np.matmul(const[:, None, :], self._spread).reshape(k, width, p + 1)
         rows = z[:, :, :p]
         gram = np.matmul(rows, rows.transpose(0, 2, 1))  # (k, D+1, D+1)
@@ -137,9 +142,31 @@ class PolynomialPlan:
         mean = np.matmul(vander, z[:, :, p:]).reshape(k, -1)
         np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
         ci = np.sqrt(h)
+        if not pi:
+            return xs, mean, ci, None
         h += ts * ts * extra
-        pi = np.sqrt(h, out=h)
-        return xs, mean, ci, pi
+        return xs, mean, ci, np.sqrt(h, out=h)
+
+    def point_and_traces(self, powers: np.ndarray, points: int):
+        """Mean and ``h = ||x F||^2`` at the setting (entry 0) and along every factor's trace (entries 1 + j *
+        points + t), with the x grids: every model row built at once from cached powers of the grids (row of
+        trace j at t: the held factors' column constants times the grid's coded value to each column's power),
+        then one product with ``[F | beta]``. For a few traces of moderate length this is fewer array operations
+        than :meth:`point` plus :meth:`traces` (the GLM slider path uses it)."""
+        key = ("rows", points)
+        if key not in self._traces:
+            xs, _, vander = self.trace_grids(points)
+            grid = np.stack([vander[j][:, self.E[:, j]] for j in range(self.k)])  # (k, points, p)
+            self._traces[key] = (xs, np.ascontiguousarray(grid))
+        xs, grid = self._traces[key]
+        k, p = self.k, self.p
+        const = np.multiply.reduce(powers.take(self._held_flat), axis=0).reshape(k, 1, p)
+        rows = np.empty((1 + k * points, p))
+        np.multiply.reduce(powers, axis=1, out=rows[0])  # the setting's own row
+        np.multiply(grid, const, out=rows[1:].reshape(k, points, p))
+        both = rows @ self.rinv_beta
+        xf = both[:, :-1]
+        return xs, both[:, -1], np.einsum("ij,ij->i", xf, xf)
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""
