@@ -106,3 +106,10 @@ def test_optimal_split_plot_with_too_few_whole_plots_warns_about_its_model():
         warnings.simplefilter("error")
         d = lw.optimal_design(factors, "Oven + Dwell + Film", runs=12, whole_plots=4, seed=1, progress=False)
     assert whole_plot_df(d.coded.to_numpy(dtype=float), d.table["whole_plot"]) >= 1
+
+
+def test_mixture_process_crossing_refuses_a_hard_to_change_process_factor():
+    blends = lw.simplex_centroid(3, randomize=False)
+    with pytest.raises(LevelwiseError, match=r"mixture_process .*\['Temp'\]"):
+        lw.mixture_process(blends, [lw.Factor("Temp", 150, 190, hard_to_change=True)], seed=1)
+    assert len(lw.mixture_process(blends, [lw.Factor("Temp", 150, 190)], seed=1)) == 14

@@ -184,3 +184,50 @@ def test_the_workbench_shows_every_view_on_the_pass_rate():
     bench.shared.response = "Adhesion"  # every view follows the displayed response
     assert isinstance(bench.shared.fit, GlmFit)
     assert [getattr(getattr(v, "status", None), "value", "") for v in bench.views] == [""] * len(bench.views)
+
+
+def test_the_run_sheet_refuses_a_bad_count_naming_run_and_column(shared):
+    import html
+
+    from levelwise.widgets import RunSheetEditor
+
+    sheet = RunSheetEditor(shared)
+    run = shared.study.run_ids[0]
+    before = shared.study.data().at[run, "Adhesion"]
+    entries = len(shared.study.audit)
+    for text, words in (("25", "holds 25 passes, more than the 20 trials recorded in 'Panels'"),
+                        ("3.5", "must be a whole number >= 0"), ("-1", "must be a whole number >= 0")):
+        sheet.cells[(run, "Adhesion")].value = text  # as typed in the browser
+        shown = html.unescape(sheet.status.value)
+        assert f"Run {run}: the response 'Adhesion'" in shown and words in shown
+        assert "The value was not changed" in shown
+        assert sheet.cells[(run, "Adhesion")].value == f"{before:g}"  # the cell shows the study's value again
+    sheet.cells[(run, "Panels")].value = "0"
+    assert f"Run {run}: the response 'Panels' holds the number of trials of 'Adhesion'" in html.unescape(
+        sheet.status.value)
+    assert shared.study.data().at[run, "Adhesion"] == before and len(shared.study.audit) == entries
+    sheet.cells[(run, "Adhesion")].value = "19"  # a good count is recorded and the fit follows
+    assert shared.study.data().at[run, "Adhesion"] == 19 and isinstance(shared.fit, GlmFit)
+    sheet.close()
+
+
+def test_a_poisson_rate_per_unit_of_exposure_in_the_views():
+    from test_export_counts import count_study  # invented: defects over a panel area
+
+    model = SharedModel.from_study(count_study())
+    assert model.responses == ("Adhesion", "Adhesion probit", "Defects")  # Panels and Area are not shown
+    model.response = "Defects"
+    settings = {"Oven": 170.0, "Dwell": 12.0}
+    model.settings = dict(settings)
+    fit = model.fit
+    assert isinstance(fit, GlmFit) and fit.family == "poisson" and fit.exposure_name == "Area"
+    sliders = FactorSliders(model)
+    expected = fit.predict(settings).iloc[0]  # a rate per unit of area (statsmodels-checked in test_fit_glm)
+    assert f'<span class="lw-mean">{fmt(expected["mean"])}</span> defects per unit of Area' in sliders.readout.value
+    assert 0 < expected["ci_low"] < expected["mean"] < expected["ci_high"]
+    inspector = ResidualInspector(model)
+    inspector.plot.value = "fitted"
+    assert inspector.x_axis.label == "Fitted rate (defects per unit of Area)"
+    assert np.asarray(inspector.used.y) == pytest.approx(fit.diagnostics["deviance_residual"].to_numpy(), **F32)
+    for view in (sliders, inspector):
+        view.close()

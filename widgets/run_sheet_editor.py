@@ -153,10 +153,14 @@ class RunSheetEditor(View):
             except LevelwiseError as exc:
                 self._refresh()
                 raise LevelwiseError(f"{exc} The value was not changed.") from None
-        if column.endswith(" (achieved)"):
-            study.record_achieved(run, column[: -len(" (achieved)")], value, overwrite=True, reason=REASON)
-        else:
-            study.record(run, column, value, overwrite=True, reason=REASON)
+        try:
+            if column.endswith(" (achieved)"):
+                study.record_achieved(run, column[: -len(" (achieved)")], value, overwrite=True, reason=REASON)
+            else:  # a count is checked here: whole, not negative, passes within the trials (named by run)
+                study.record(run, column, value, overwrite=True, reason=REASON)
+        except LevelwiseError as exc:
+            self._refresh()  # the cell shows the study's value again
+            raise LevelwiseError(f"{exc} The value was not changed.") from None
         self.status.value = ""
         self._edited = True
         self.shared.refresh()

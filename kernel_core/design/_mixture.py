@@ -249,6 +249,10 @@ def mixture_process(mixture_design_, process, *, randomize=True, seed=None) -> D
         raise LevelwiseError(f"The first parameter of mixture_process must be a mixture design. "
                              f"Got {describe(mixture_design_)}.")
     _check_seed(seed)
+    from ._splitplot_checks import refuse_hard_to_change  # the crossing randomises every run (issue 13)
+
+    refuse_hard_to_change(process.factors if isinstance(process, Design) else as_factors(process, "process"),
+                          "mixture_process")
     if not isinstance(process, Design):
         from ._factorial import full_factorial
 

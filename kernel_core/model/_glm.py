@@ -21,6 +21,7 @@ from .._rich import anova_frame, coefficient_table, fit_html
 from .._stats import f_sf, norm_ppf, norm_sf, stats
 from . import _glm_residuals as _residuals
 from ._families import FitFamily
+from ._glm_inputs import _counts, _run_label
 from ._glm_scale import inverse_link as _inverse_link
 from ._glm_scale import refresh as _refresh
 from ._glm_scale import transform as _transform
@@ -34,42 +35,6 @@ NEW_OBSERVATION = (
     "interval that we check against a published source. Use the confidence interval for the probability or "
     "rate, and the binomial or Poisson spread at its limits as a guide."
 )
-
-
-def _run_label(data, row):
-    return data["run"].iloc[row] if "run" in data.columns else row + 1
-
-
-def _counts(data, column, role, keep=None):
-    """Numeric values of *column*; refuse text, negatives and non-integers (naming run and column)."""
-    if not isinstance(column, str) or column not in data.columns:
-        raise LevelwiseError(
-            f"The '{role}' parameter must name a column of the data {list(map(str, data.columns))}. "
-            f"Got {describe(column)} instead."
-        )
-    values = pd.to_numeric(data[column], errors="coerce").to_numpy(dtype=float)
-    text = data[column].notna().to_numpy() & np.isnan(values)
-    rows = np.arange(len(values)) if keep is None else np.flatnonzero(keep)
-    for row in rows:
-        value = values[row]
-        if text[row] or (keep is not None and np.isnan(value)) or np.isinf(value):
-            raise LevelwiseError(
-                f"Run {_run_label(data, row)}: the {role} column {column!r} must hold a whole number. "
-                f"Got {describe(data[column].iloc[row])} instead."
-            )
-        if np.isnan(value):
-            continue
-        if value < 0 and role != "exposure":
-            raise LevelwiseError(
-                f"Run {_run_label(data, row)}: the {role} column {column!r} holds {value:g}; counts cannot be "
-                "negative."
-            )
-        if role != "exposure" and abs(value - round(value)) > 1e-9:
-            raise LevelwiseError(
-                f"Run {_run_label(data, row)}: the {role} column {column!r} holds {value:g}; counts must be "
-                "whole numbers."
-            )
-    return values
 
 
 class GlmFit(FitFamily):
