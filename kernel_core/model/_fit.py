@@ -88,7 +88,7 @@ def fit(
     if whole_plot is not None or random_block is not None:
         if family is not None:
             raise LevelwiseError("The 'whole_plot' and 'family' parameters cannot be combined (no mixed GLM yet).")
-        from ._mixed import fit_mixed
+        from ._reml import fit_mixed
 
         return fit_mixed(data, response, model, whole_plot=whole_plot, random_block=random_block,
                          least_squares=least_squares, **options)
@@ -99,7 +99,7 @@ def fit(
                        least_squares=least_squares, **options)
     result = least_squares(data, response, model, **options)
     if isinstance(data, pd.DataFrame) and "whole_plot" in data.columns:
-        from ._mixed import warn_if_whole_plots_ignored
+        from ._reml import warn_if_whole_plots_ignored
 
         warn_if_whole_plots_ignored(
             result, data, lambda whole_plot: fit(data, response, model, whole_plot=whole_plot, **options)
