@@ -239,6 +239,9 @@ def build_parser() -> argparse.ArgumentParser:
     p_serve.add_argument("study", nargs="?", default="demo", metavar="STUDY",
                          help="A study JSON file, or 'demo' (the invented demo study; the default).")
     _server_options(p_serve)
+    p_serve.add_argument("--max-kernels-per-client", type=_count(1), default=PER_CLIENT, dest="per_client",
+                         help=f"Workbench kernels one client address may hold at once (default {PER_CLIENT}; each "
+                              "open tab holds one until it is closed or idle).")
     p_serve.set_defaults(handler=serve)
 
     p_pub = sub.add_parser("publish", help="Write a self-contained read-only dashboard folder.",

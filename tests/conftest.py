@@ -64,21 +64,18 @@ def page(browser):
 
 @pytest.fixture(scope="session")
 def served_workbench(chromium_path):
-    """``levelwise serve`` on a free loopback port; yields the base URL."""
+    """``levelwise serve`` on a free loopback port; yields the base URL.
+
+    One server serves every workbench test of the session, all from 127.0.0.1: it allows more kernels per client
+    than the default (a closed browser context's kernel lives until it is culled), and its output is read on a
+    thread (an unread pipe would fill and stall the server).
+    """
     port = free_port()
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "levelwise.dashboards.cli", "serve", "--port", str(port)],
-        stdout=subprocess.PIPE, stderr=subprocess.STDOUT, text=True,
-    )
+    proc, _output = start_cli_server(["serve", "--max-kernels-per-client", "40"], port)
     try:
-        wait_for_port(port, proc)
         yield f"http://127.0.0.1:{port}/"
     finally:
-        proc.terminate()
-        try:
-            proc.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
+        stop_server(proc)
 
 
 ARTIFACTS = Path(__file__).parent / "artifacts"
