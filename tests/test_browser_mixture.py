@@ -157,17 +157,21 @@ def test_published_page_shows_the_mixture_views_and_follows_a_component_slider(p
     handle.focus()
     for _ in range(6):
         handle.press("ArrowRight")
-    time.sleep(1.0)
-    values = [float(h.get_attribute("aria-valuenow")) for h in page.locator(".lw-mix-slider .noUi-handle").all()]
-    filler = values[2]
-    # The kernel's blend after that move (the others rescaled along the Cox direction), and its prediction.
+    # The kernel's blend after that move (the others rescaled along the Cox direction), and its prediction. The
+    # page settles when the readout shows the kernel's prediction at the Filler amount the slider now shows
+    # (read again on every try: the handle's value arrives after the key presses).
     start = {n: float(v) for n, v in zip(study.component_names, study.mixture.centroid())}
-    blend = lw.move_component(study.mixture, start, "Filler", filler)
-    expected = fmt(study.fit("Impact").predict(blend)["mean"].iloc[0])
-    page.wait_for_function(
-        "([sel, want]) => [...document.querySelectorAll(sel)].some(e => e.innerText === want)",
-        arg=[".lw-mixture-sliders .lw-readout .lw-mean", expected], timeout=30_000,
-    )
+    fitted = study.fit("Impact")
+    deadline = time.monotonic() + 60.0
+    while True:
+        filler = float(page.locator(".lw-mix-slider .noUi-handle").nth(2).get_attribute("aria-valuenow"))
+        blend = lw.move_component(study.mixture, start, "Filler", filler)
+        expected = fmt(fitted.predict(blend)["mean"].iloc[0])
+        shown = page.locator(".lw-mixture-sliders .lw-readout .lw-mean").all_inner_texts()
+        if expected in shown or time.monotonic() > deadline:
+            break
+        time.sleep(0.25)
+    assert filler > start["Filler"] and expected in shown, (filler, expected, shown)
     ternary = page.locator(".lw-ternary-slice").first
     ternary.scroll_into_view_if_needed()
     time.sleep(1.5)
