@@ -437,13 +437,7 @@ class PredictionEngine(SettingsCheck):
             out["traces"] = self.traces(settings, points, level)
         out["slice"] = None
         if slice_axes is not None:
-            try:
-                x, y = slice_axes
-            except (TypeError, ValueError):
-                raise LevelwiseError(
-                    "The 'slice_axes' parameter must be a pair of factor names (across, up). "
-                    f"Got {describe(slice_axes)} instead."
-                ) from None
+            x, y = slice_pair(slice_axes)
             out["slice"] = self.slice(x, y, None, shape, level, base=natural, powers=powers)
         return out
 
@@ -489,6 +483,18 @@ class PredictionEngine(SettingsCheck):
             "extra": finite(self.extra),
             "limit": finite(self._limit),
         }
+
+
+def slice_pair(slice_axes) -> tuple:
+    """The (across, up) factor names of a ``slice_axes`` parameter, or a clear error."""
+    try:
+        x, y = slice_axes
+    except (TypeError, ValueError):
+        raise LevelwiseError(
+            "The 'slice_axes' parameter must be a pair of factor names (across, up). "
+            f"Got {describe(slice_axes)} instead."
+        ) from None
+    return x, y
 
 
 def predict(fit, settings, level: float | None = None):

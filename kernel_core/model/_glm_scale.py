@@ -14,7 +14,7 @@ import math
 import numpy as np
 from scipy import special
 
-from .._errors import LevelwiseError, describe
+from ._engine import slice_pair
 from ._settings import check_points
 
 _SQRT_2PI = math.sqrt(2.0 * math.pi)
@@ -114,13 +114,7 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
                                         "ci_high": bands["ci_high"][j], "link_mean": mean[j]}
                                  for j, name in enumerate(engine.factor_names)}
         if slice_axes is not None:
-            try:
-                x, y = slice_axes
-            except (TypeError, ValueError):
-                raise LevelwiseError(
-                    "The 'slice_axes' parameter must be a pair of factor names (across, up). "
-                    f"Got {describe(slice_axes)} instead."
-                ) from None
+            x, y = slice_pair(slice_axes)
             out["slice"] = engine.slice(x, y, None, shape, level, base=natural, powers=powers)
     if out.get("slice") is not None:
         sl = out["slice"]

@@ -21,7 +21,7 @@ import pandas as pd
 
 from .._errors import LevelwiseError, describe
 from ._engine import PredictionEngine
-from ._mixture_traces import CoxPlan, cox_polynomial_traces
+from ._mixture_traces import CoxPlan, cox_line_range, cox_polynomial_traces
 from ._settings import check_points
 
 
@@ -276,21 +276,7 @@ def _cox_lines_bounds(mixture, r, eye):
     rv = r.tolist()
     shares, lo, hi = [], [], []
     for i in range(q):
-        rest = T - rv[i]
-        if rest > 1e-12 * T:
-            share = [rv[j] / rest if j != i else 0.0 for j in range(q)]
-        else:
-            share = [1.0 / (q - 1) if j != i else 0.0 for j in range(q)]
-        a, b = lows[i], highs[i]
-        for j in range(q):
-            sj = share[j]
-            if sj > 0.0:
-                top = T - lows[j] / sj
-                bottom = T - highs[j] / sj
-                if top < b:
-                    b = top
-                if bottom > a:
-                    a = bottom
+        share, a, b = cox_line_range(i, rv, T, lows, highs)
         shares.append(share)
         lo.append(a)
         hi.append(b)

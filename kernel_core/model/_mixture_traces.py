@@ -64,6 +64,28 @@ def _rows(engine, natural):
     return table[:, picks].prod(axis=2)
 
 
+def cox_line_range(i: int, xs: list, T: float, lows: list, highs: list):
+    """Cox line i from the blend *xs* (plain floats) in a region of bounds only: the others' shares s_j (0 for i) and
+    the range [a, b] of component i's amount t. Along the line x_j = s_j (T - t), s_j = x_j / (T - x_i) (equal
+    shares from a pure blend); L_j <= x_j <= U_j gives T - U_j / s_j <= t <= T - L_j / s_j for s_j > 0, and
+    L_i <= t <= U_i."""
+    q = len(xs)
+    rest = T - xs[i]
+    share = [v / rest for v in xs] if rest > 1e-12 * T else [1.0 / (q - 1)] * q
+    share[i] = 0.0
+    a, b = lows[i], highs[i]
+    for j in range(q):
+        sj = share[j]
+        if sj > 0.0:
+            top = T - lows[j] / sj
+            bottom = T - highs[j] / sj
+            if top < b:
+                b = top
+            if bottom > a:
+                a = bottom
+    return share, a, b
+
+
 def _ends_bounds(mixture, xs, T, offset, divisor, tail):
     """Both ends of every Cox line of a region of bounds only, in plain Python (a few components: far fewer array
     operations): per line and end, the blend, t, the change (t - x_i) / T and the model variables, flat. A last
@@ -77,22 +99,7 @@ def _ends_bounds(mixture, xs, T, offset, divisor, tail):
     ends = []
     for i in range(q):
         xi = xs[i]
-        rest = T - xi
-        if rest > 1e-12 * T:
-            share = [v / rest for v in xs]
-        else:
-            share = [1.0 / (q - 1)] * q
-        share[i] = 0.0
-        a, b = lows[i], highs[i]
-        for j in range(q):
-            sj = share[j]
-            if sj > 0.0:
-                top = T - lows[j] / sj
-                bottom = T - highs[j] / sj
-                if top < b:
-                    b = top
-                if bottom > a:
-                    a = bottom
+        share, a, b = cox_line_range(i, xs, T, lows, highs)
         for t in (a, b):
             left = T - t
             blend = [sj * left for sj in share]
@@ -148,4 +155,4 @@ def cox_polynomial_traces(engine, plan: CoxPlan, x, variables, points: int):
             float(first[:-1] @ first[:-1]))
 
 
-__all__ = ["CoxPlan", "cox_polynomial_traces"]
+__all__ = ["CoxPlan", "cox_line_range", "cox_polynomial_traces"]

@@ -15,6 +15,7 @@ from __future__ import annotations
 from .._errors import LevelwiseError, describe
 from ..design import Factor
 from ..design._mixture_region import Component, Mixture, as_components
+from ._persist import exclusion_code
 
 
 class StudyMixture:
@@ -160,12 +161,7 @@ class StudyMixture:
                                                for f in self._factors) + "]")
         lines += ["# Settings as run: achieved where recorded, planned otherwise. Index = run id.",
                   "data = study.data(apply_exclusions=False)"]
-        for item in self._exclusions:
-            comment = f"  # {item['reason']!r}, {item['when']}".replace("\n", " ").replace("\r", " ")
-            if item["response"] is None:
-                lines.append(f"data = data.drop(index={item['run']}){comment}")
-            else:
-                lines.append(f"data.loc[{item['run']}, {item['response']!r}] = float('nan'){comment}")
+        lines += exclusion_code(self._exclusions)
         lines.append("fits = {}")
         for response, model in self._models.items():
             lines.append(f"fits[{response!r}] = fit_mixture(data, {response!r}, {_model_argument(model)!r}, "

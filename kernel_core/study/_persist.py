@@ -52,6 +52,18 @@ def _edited_outside(document: dict, source: str) -> bool:
         raise StudyFileError(f"The study file '{source}' holds a number that is not finite: {exc}.") from None
 
 
+
+def exclusion_code(exclusions) -> list[str]:
+    """The lines of ``Study.to_code`` that leave the excluded runs (or one response's value) out, with reasons."""
+    lines = []
+    for item in exclusions:
+        comment = f"  # {item['reason']!r}, {item['when']}".replace("\n", " ").replace("\r", " ")
+        if item["response"] is None:
+            lines.append(f"data = data.drop(index={item['run']}){comment}")
+        else:
+            lines.append(f"data.loc[{item['run']}, {item['response']!r}] = float('nan'){comment}")
+    return lines
+
 class StudyFile:
     """The file side of a :class:`Study` (a part of the class, kept in its own module)."""
 
@@ -397,12 +409,7 @@ class StudyFile:
         if self.has_whole_plots:  # the split-plot analysis (REML); a run reset on its own is its own whole plot
             lines.append('data["whole_plot"] = study.fit_table(apply_exclusions=False)["whole_plot"]')
             split = ', whole_plot="whole_plot"'
-        for item in self._exclusions:
-            comment = f"  # {item['reason']!r}, {item['when']}".replace("\n", " ").replace("\r", " ")
-            if item["response"] is None:
-                lines.append(f"data = data.drop(index={item['run']}){comment}")
-            else:
-                lines.append(f"data.loc[{item['run']}, {item['response']!r}] = float('nan'){comment}")
+        lines += exclusion_code(self._exclusions)
         lines.append("fits = {}")
         for response, model in self._models.items():
             spec = self._responses[response]
