@@ -148,7 +148,8 @@ def render(study: Study) -> str:
     data = script_json(content)
     page = "export_mixture" if "mixture" in content else "export_page"  # a mixture study: blends, ternary slice
     parts = {
-        "__SCRIPT__": (ASSETS / f"{page}.js").read_text(encoding="utf-8"),
+        "__SCRIPT__": (ASSETS / "export_common.js").read_text(encoding="utf-8") + "\n"
+                      + (ASSETS / f"{page}.js").read_text(encoding="utf-8"),
         "__DATA__": data,
         "__SUMMARY__": content["summary"],
         "__CAUTION__": CAUTION,

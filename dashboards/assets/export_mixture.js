@@ -1,4 +1,4 @@
-"use strict";
+// After export_common.js (fmt, el, colour).
 // The offline page of a mixture study. Every number is the prediction engine's payload evaluated here
 // (levelwise MixtureEngine.payload): a blend becomes the model variables, then the engine's formulas.
 const DATA = JSON.parse(document.getElementById("lw-data").textContent);
@@ -72,21 +72,6 @@ function moveComponent(i, amount) {
   const line = coxLine(blend, i), t = Math.min(Math.max(amount, line.lo), line.hi);
   for (let j = 0; j < Q; j++) { blend[j] = line.A[j] + t * line.B[j]; }
   blend[i] = t;
-}
-
-function fmt(v) {
-  if (!isFinite(v)) { return "not available"; }
-  return Math.abs(v) >= 1e-3 || v === 0 ? Number(v.toPrecision(4)).toString() : v.toExponential(3);
-}
-
-function el(tag, attrs, parent) {
-  const ns = ["svg", "path", "line", "text", "rect", "polygon", "g"].includes(tag) ? "http://www.w3.org/2000/svg" : null;
-  const node = ns ? document.createElementNS(ns, tag) : document.createElement(tag);
-  for (const [k, v] of Object.entries(attrs || {})) {
-    if (k === "text") { node.textContent = v; } else { node.setAttribute(k, v); }
-  }
-  if (parent) { parent.appendChild(node); }
-  return node;
 }
 
 const controls = document.getElementById("lw-controls"), sliders = [];
@@ -202,11 +187,6 @@ function ternaryGrid(m, axes, nx, ny) {
   return out;
 }
 
-const RAMP = [[0, 32, 77], [65, 77, 107], [124, 123, 120], [188, 175, 111], [255, 234, 70]];  // cividis stops
-function colour(t) {
-  const u = Math.max(0, Math.min(1, t)) * (RAMP.length - 1), k = Math.min(Math.floor(u), RAMP.length - 2), w = u - k;
-  return RAMP[k].map((c, j) => Math.round(c + (RAMP[k + 1][j] - c) * w));
-}
 const PAD = 40, canvas = document.getElementById("lw-tcanvas");
 const toPx = (x, y) => [PAD + x * (canvas.width - 2 * PAD), canvas.height - PAD - y * (canvas.width - 2 * PAD)];
 

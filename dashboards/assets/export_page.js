@@ -1,4 +1,4 @@
-"use strict";
+// After export_common.js (fmt, el, colour).
 const DATA = JSON.parse(document.getElementById("lw-data").textContent);
 const F = DATA.factors, K = F.length;
 // A categorical factor has "levels"; its setting is the index of the chosen level.
@@ -80,21 +80,6 @@ function display(m, p) {
   const out = Object.assign({}, p);
   ["mean", "ci_low", "ci_high", "pi_low", "pi_high"].forEach(k => { out[k] = shownValue(m, p[k]); });
   return out;
-}
-
-function fmt(v) {
-  if (!isFinite(v)) { return "not available"; }
-  return Math.abs(v) >= 1e-3 || v === 0 ? Number(v.toPrecision(4)).toString() : v.toExponential(3);
-}
-
-function el(tag, attrs, parent) {
-  const ns = ["svg", "path", "line", "text", "rect", "polygon", "g"].includes(tag) ? "http://www.w3.org/2000/svg" : null;
-  const node = ns ? document.createElementNS(ns, tag) : document.createElement(tag);
-  for (const [k, v] of Object.entries(attrs || {})) {
-    if (k === "text") { node.textContent = v; } else { node.setAttribute(k, v); }
-  }
-  if (parent) { parent.appendChild(node); }
-  return node;
 }
 
 const sliders = [];
@@ -192,12 +177,6 @@ function drawTrace(svg, m, i) {
   el("text", {x: L, y: 14, "font-size": 12, "font-weight": "bold", text: m.name + (shownUnits(m) ? " (" + shownUnits(m) + ")" : "")}, svg);
 }
 
-// cividis-like ramp: dark blue to yellow, our own interpolation between a few stops.
-const RAMP = [[0, 32, 76], [65, 77, 108], [124, 123, 120], [188, 175, 111], [255, 234, 70]];
-function colour(t) {
-  const u = Math.max(0, Math.min(1, t)) * (RAMP.length - 1), k = Math.min(Math.floor(u), RAMP.length - 2), w = u - k;
-  return RAMP[k].map((c, j) => Math.round(c + (RAMP[k + 1][j] - c) * w));
-}
 
 function drawSurface(m) {
   if (!CONT.length) { return; }

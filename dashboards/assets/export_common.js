@@ -1,0 +1,24 @@
+"use strict";
+// What both offline pages share (levelwise export_html puts it before the page's own script): number format,
+// element builder and the surface colour ramp.
+function fmt(v) {
+  if (!isFinite(v)) { return "not available"; }
+  return Math.abs(v) >= 1e-3 || v === 0 ? Number(v.toPrecision(4)).toString() : v.toExponential(3);
+}
+
+function el(tag, attrs, parent) {
+  const ns = ["svg", "path", "line", "text", "rect", "polygon", "g"].includes(tag) ? "http://www.w3.org/2000/svg" : null;
+  const node = ns ? document.createElementNS(ns, tag) : document.createElement(tag);
+  for (const [k, v] of Object.entries(attrs || {})) {
+    if (k === "text") { node.textContent = v; } else { node.setAttribute(k, v); }
+  }
+  if (parent) { parent.appendChild(node); }
+  return node;
+}
+
+// cividis-like ramp (dark blue to yellow), our own interpolation between a few stops: the same in every surface.
+const RAMP = [[0, 32, 76], [65, 77, 108], [124, 123, 120], [188, 175, 111], [255, 234, 70]];
+function colour(t) {
+  const u = Math.max(0, Math.min(1, t)) * (RAMP.length - 1), k = Math.min(Math.floor(u), RAMP.length - 2), w = u - k;
+  return RAMP[k].map((c, j) => Math.round(c + (RAMP[k + 1][j] - c) * w));
+}
