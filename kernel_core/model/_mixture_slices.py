@@ -16,6 +16,7 @@ from .._errors import LevelwiseError, describe
 from ..design._mixture_region import Mixture
 from ._mixture import MixtureFit
 from ._mixture_engine import _cox_interval
+from ._mixture_ternary import ternary_axes
 
 SQRT3_2 = np.sqrt(3.0) / 2.0
 
@@ -80,19 +81,12 @@ def ternary_slice(fit: MixtureFit, axes, settings, points: int = 60, level=None)
         raise LevelwiseError(f"ternary_slice needs a mixture fit (fit_mixture). Got {describe(fit)}.")
     info = fit.mixture_info
     mixture = info.mixture
-    try:
-        axes = tuple(axes)
-    except TypeError:
-        axes = ()
-    if len(axes) != 3 or len(set(axes)) != 3 or any(a not in mixture.names for a in axes):
-        raise LevelwiseError(f"The 'axes' must be three different components of {mixture.names}. "
-                             f"Got {describe(axes)}.")
+    idx = ternary_axes(mixture, axes)
     if isinstance(points, bool) or not isinstance(points, (int, np.integer)) or not 2 <= points <= 1000:
         raise LevelwiseError(f"The 'points' parameter must be an integer from 2 to 1000. Got {describe(points)}.")
     level = fit.level if level is None else level
     base = fit.engine.vector(settings)[None, :]  # checks the reference blend
     r = mixture.amounts_from(settings)[0]
-    idx = [mixture.names.index(a) for a in axes]
     share = mixture.total - float(np.delete(r, idx).sum())
     n = int(points) - 1
     ij = np.array([(i, j) for i in range(n + 1) for j in range(n + 1 - i)], dtype=float)

@@ -107,6 +107,19 @@ V1_GOAL_FIELDS = {"low": "lower_limit", "high": "upper_limit", "importance": "we
 V1_PRESETS = {"linear": "main_effects", "interactions": "two_factor_interactions", "quadratic": "full_second_order"}
 
 
+def _stamped(document: dict, data, audit, version: int) -> dict:
+    """Set *version*, add the audit log's ``migrate`` entry and recompute the SHA-256 (when the layout allows)."""
+    document["format_version"] = version
+    if isinstance(data, dict) and isinstance(audit, list):
+        audit.append({"when": now(), "action": "migrate",
+                      "what": f"migrated from format {version - 1} to format {version}", "reason": None})
+        try:
+            document["sha256"] = content_hash(data, audit)
+        except (UnicodeEncodeError, ValueError, TypeError):
+            pass  # the loader reports the bad text or number itself
+    return document
+
+
 def migrate_v1(document: dict) -> dict:
     """Turn a format-1 study into a format-2 document.
 
@@ -139,15 +152,7 @@ def migrate_v1(document: dict) -> dict:
                 if isinstance(model, str) and model.strip() in V1_PRESETS:
                     models[name] = V1_PRESETS[model.strip()]
     audit = document.get("audit")
-    document["format_version"] = 2
-    if isinstance(data, dict) and isinstance(audit, list):
-        audit.append({"when": now(), "action": "migrate", "what": "migrated from format 1 to format 2",
-                      "reason": None})
-        try:
-            document["sha256"] = content_hash(data, audit)
-        except (UnicodeEncodeError, ValueError, TypeError):
-            pass  # the loader reports the bad text or number itself
-    return document
+    return _stamped(document, data, audit, 2)
 
 
 def migrate_v2(document: dict) -> dict:
@@ -160,15 +165,7 @@ def migrate_v2(document: dict) -> dict:
     """
     document = copy.deepcopy(document)
     data, audit = document.get("data"), document.get("audit")
-    document["format_version"] = 3
-    if isinstance(data, dict) and isinstance(audit, list):
-        audit.append({"when": now(), "action": "migrate", "what": "migrated from format 2 to format 3",
-                      "reason": None})
-        try:
-            document["sha256"] = content_hash(data, audit)
-        except (UnicodeEncodeError, ValueError, TypeError):
-            pass  # the loader reports the bad text or number itself
-    return document
+    return _stamped(document, data, audit, 3)
 
 
 def migrate_v3(document: dict) -> dict:
@@ -186,15 +183,7 @@ def migrate_v3(document: dict) -> dict:
     """
     document = copy.deepcopy(document)
     data, audit = document.get("data"), document.get("audit")
-    document["format_version"] = 4
-    if isinstance(data, dict) and isinstance(audit, list):
-        audit.append({"when": now(), "action": "migrate", "what": "migrated from format 3 to format 4",
-                      "reason": None})
-        try:
-            document["sha256"] = content_hash(data, audit)
-        except (UnicodeEncodeError, ValueError, TypeError):
-            pass  # the loader reports the bad text or number itself
-    return document
+    return _stamped(document, data, audit, 4)
 
 
 #: Migrations from format N to N + 1, applied in turn.
