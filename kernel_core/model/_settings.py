@@ -171,6 +171,6 @@ class SettingsCheck:
             col, row = np.argwhere(bad.T)[0][::-1]
             raise LevelwiseError(
                 f"The setting for factor {self.factor_names[col]!r} in row {row + 1} must be a finite number. "
-                f"Got {out[row, col]!r} instead."
+                f"Got {float(out[col, row])!r} instead."
             )
         return out
