@@ -377,11 +377,7 @@ class PredictionEngine(SettingsCheck):
         else:
             means, hs = self.mean_and_leverage(natural[None, :])
             mean, h = float(means[0]), float(hs[0])
-        c = self._scale(level)
-        ci, pi = c * math.sqrt(h), c * math.sqrt(h + self.extra)
-        outside = self.outside_one(natural, h)
-        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
-                "pi_high": mean + pi, "leverage": h, "extrapolated": bool(outside)}
+        return self._point_of(natural, mean, h, self._scale(level))
 
     def outside_one(self, natural, h: float) -> bool:
         """The extrapolation rule at one setting (natural values, its h)."""
@@ -498,19 +494,36 @@ class PredictionEngine(SettingsCheck):
         if points is not None:
             points = check_points(points)
         plan = self.plan
-        powers = plan.powers(natural) if plan is not None else None  # shared by the point, traces and slice
-        out = {"point": self.point(None, level, natural, powers) if point else None}
-        if points is None:
-            out["traces"] = None
-        elif plan is not None:
-            out["traces"] = self._traces_of(plan, natural, level, points, powers)
+        out = {"point": None, "traces": None, "slice": None}
+        if plan is not None and points is not None:  # the point and every trace from one chain of products
+            xs, mean0, h0, mean, h, table = plan.event(natural, points)
+            powers = plan.powers_of(table) if slice_axes is not None else None
+            c = self._scale(level)
+            if point:
+                out["point"] = self._point_of(natural, mean0, h0, c)
+            ci = np.sqrt(h)
+            ci *= c
+            h += self.extra
+            pi = np.sqrt(h, out=h)
+            pi *= c
+            out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_half": ci[j], "pi_half": pi[j]}
+                             for j, name in enumerate(self.factor_names)}
         else:
-            out["traces"] = self.traces(settings, points, level)
-        out["slice"] = None
+            powers = plan.powers(natural) if plan is not None else None  # shared by the point and the slice
+            if point:
+                out["point"] = self.point(None, level, natural, powers)
+            if points is not None:
+                out["traces"] = self.traces(settings, points, level)
         if slice_axes is not None:
             x, y = slice_pair(slice_axes)
             out["slice"] = self.slice(x, y, None, shape, level, base=natural, powers=powers)
         return out
+
+    def _point_of(self, natural, mean: float, h: float, c: float) -> dict:
+        """The point's dict from its mean and h (c: the half-widths' scale, see :meth:`_scale`)."""
+        ci, pi = c * math.sqrt(h), c * math.sqrt(h + self.extra)
+        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
+                "pi_high": mean + pi, "leverage": h, "extrapolated": self.outside_one(natural, h)}
 
     # ----- the offline page ---------------------------------------------------------------------
     def payload(self, level=None) -> dict:
