@@ -123,8 +123,19 @@ class SettingsCheck:
         """Settings as a dict (one setting), a dict of equal-length lists or a DataFrame -> (m, k) array."""
         return self.columns(settings).T
 
-    def columns(self, settings) -> np.ndarray:
-        """:meth:`table` laid out by factor: a (k, m) array, one contiguous row per factor."""
+    def columns(self, settings, view=False) -> np.ndarray:
+        """:meth:`table` laid out by factor: a (k, m) array, one contiguous row per factor.
+
+        With *view*, a DataFrame of exactly the fit's factors (in order, all float64, all finite) comes
+        back as a read-only view of its values, not a copy (its rows may then be strided).
+        """
+        if view and not self.categories and isinstance(settings, pd.DataFrame) \
+                and tuple(settings.columns) == self.factor_names:
+            values = settings.to_numpy()
+            if values.dtype == np.float64 and np.isfinite(values).all():
+                values = values.T.view()
+                values.flags.writeable = False
+                return values
         if isinstance(settings, dict):
             if not any(isinstance(v, (list, tuple, np.ndarray, pd.Series)) for v in settings.values()):
                 return self.vector(settings)[:, None]
@@ -160,6 +171,6 @@ class SettingsCheck:
             col, row = np.argwhere(bad.T)[0][::-1]
             raise LevelwiseError(
                 f"The setting for factor {self.factor_names[col]!r} in row {row + 1} must be a finite number. "
-                f"Got {out[row, col]!r} instead."
+                f"Got {float(out[col, row])!r} instead."
             )
         return out
