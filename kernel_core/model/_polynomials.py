@@ -165,24 +165,24 @@ class PolynomialPlan:
 
     def event(self, natural: np.ndarray, points: int):
         """One slider event's numbers from one chain of small products: the setting's mean and h, and the mean
-        and h along every factor's trace, (k, points) each, with the x grids and the setting's :meth:`powers`.
+        and h along every factor's trace, (k, points) each, with the x grids and the setting's table of powers.
 
         The rows of the k held-factor constants and the setting's own row go through one batched product with
-        the spreads, which gives every trace's polynomial coefficients (and the setting's row of F and mean);
-        one batched Gram product gives the coefficients of h. h is ``||x F||^2`` (not scaled). The last item,
-        the setting's table of powers, gives :meth:`powers` with :meth:`powers_of`.
+        the spreads, which gives every trace's polynomial coefficients of ``[x F | x b]`` (and the setting's row
+        of F and mean); one batched product with the grids' Vandermonde matrices gives ``[x F | x b]`` at every
+        grid point, and h = ``||x F||^2`` (not scaled) is its sum of squares. The last item, the setting's (D+1, k)
+        table of powers, gives :meth:`powers` with :meth:`powers_of`.
         """
-        xs, outer, vander = self.trace_grids(points)
-        k, p, width = self.k, self.p, self.D + 1
+        xs, _, vander = self.trace_grids(points)
+        k, p = self.k, self.p
         table = np.power((natural - self.center) * self._inv_scale, self._exps)  # (D+1, k) every power
         rows = np.multiply.reduce(table.take(self._event_index), axis=0).reshape(k + 1, 1, p)
-        z = np.matmul(rows, self._event_spread).reshape(k + 1, width, p + 1)
-        f = z[:, :, :p]
-        gram = np.matmul(f, f.transpose(0, 2, 1))  # (k + 1, D+1, D+1)
-        h = np.matmul(outer, gram[:k].reshape(k, width * width, 1)).reshape(k, -1)
-        mean = np.matmul(vander, z[:k, :, p:]).reshape(k, -1)
-        np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
-        return xs, float(z[k, 0, p]), float(gram[k, 0, 0]), mean, h, table
+        z = np.matmul(rows, self._event_spread).reshape(k + 1, self.D + 1, p + 1)
+        grid = np.matmul(vander, z[:k])  # (k, points, p + 1): [x F | x b] along every trace
+        xf = grid[:, :, :p]
+        own = z[k, 0]
+        return (xs, float(own[p]), float(own[:p] @ own[:p]), grid[:, :, p], np.einsum("kti,kti->kt", xf, xf),
+                table)
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""
