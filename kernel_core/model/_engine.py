@@ -343,7 +343,7 @@ class PredictionEngine(SettingsCheck):
     def predict(self, settings, level=None) -> pd.DataFrame:
         """Mean, CI, PI, leverage (h) and the extrapolation flag at each setting (see ``Fit.predict``)."""
         level = self._level(level)
-        natural_t = self.columns(settings, view=True)
+        natural_t = self.table_columns(settings)
         m = natural_t.shape[1]
         # One (6, m) block written in place; its rows become the frame's float columns.
         block = np.empty((6, m))
@@ -352,16 +352,14 @@ class PredictionEngine(SettingsCheck):
             self._triangle_columns(natural_t, mean, h)
         else:
             mean[:], h[:] = self._mean_and_leverage_columns(natural_t)
-        c = self._scale(level)
-        np.sqrt(h, out=ci)
-        ci *= c
+        # Rows 1 and 3 as one strided (2, m) view: the CI and PI half-widths, then the low ends.
+        halves, highs = block[1:4:2], block[2:5:2]
+        ci[:] = h
         np.add(h, self.extra, out=pi)
-        np.sqrt(pi, out=pi)
-        pi *= c
-        np.add(mean, ci, out=block[2])
-        np.subtract(mean, ci, out=ci)
-        np.add(mean, pi, out=block[4])
-        np.subtract(mean, pi, out=pi)
+        np.sqrt(halves, out=halves)
+        halves *= self._scale(level)
+        np.add(mean, halves, out=highs)
+        np.subtract(mean, halves, out=halves)
         frame = pd.DataFrame(block.T, columns=_FRAME_COLUMNS, copy=False)
         frame.insert(6, "extrapolated", self._extrapolated_columns(natural_t, h))
         return frame
