@@ -74,6 +74,19 @@ def test_non_finite_setting_at_prediction():
         result.predict({"A": 0.5})
 
 
+def test_non_finite_setting_in_a_table_names_the_row():
+    # A table of exactly the fit's float factors is read without a copy; a bad cell must still be
+    # refused by row and factor, and the caller's table must come back unchanged.
+    result = fit(small_data(), "y", "A + B")
+    table = pd.DataFrame({"A": [0.5, -0.5, 0.0], "B": [0.0, 0.25, np.nan]})
+    with pytest.raises(LevelwiseError, match=r"setting for factor 'B' in row 3 must be a finite number. Got nan"):
+        result.predict(table)
+    table["B"] = [0.0, 0.25, 0.5]
+    before = table.copy()
+    result.predict(table)
+    pd.testing.assert_frame_equal(table, before)
+
+
 def test_factors_named_like_formula_helpers_work():
     # C, I and Q shadow helpers in common formula engines (stack notes); they must still fit.
     rng = np.random.default_rng(3)

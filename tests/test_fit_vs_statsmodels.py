@@ -84,7 +84,7 @@ def test_many_row_predictions_match_get_prediction(case, model):
              "A + B + C": names, "A:B + C": ["A:B", "C"]}[model]
     ref = reference(factors, data, terms)  # statsmodels OLS on the same coded columns
     rng = np.random.default_rng(11)
-    m = 5000  # more than one block of rows
+    m = 17_000  # more than one block of rows, the last one shorter
     points = pd.DataFrame({f.name: rng.uniform(f.low - 0.2 * f.half_range, f.high, m) for f in factors})
     coded = {f.name: (points[f.name] - f.center) / f.half_range for f in factors}
     exog = np.column_stack([np.ones(m)] + [np.prod([coded[n] for n in t.split(":")], axis=0) for t in terms])

@@ -139,3 +139,61 @@ def test_fast_refresh_with_process_factor_and_pseudo_components():
     for name in ("A", "B", "C", "Temp"):
         assert fast["traces"][name]["mean"] == pytest.approx(general["traces"][name]["mean"], abs=1e-12)
     assert f.refresh({**blend, "Temp": 200.0}, points=None)["point"]["extrapolated"]
+
+
+def special_cubic(x):
+    """Scheffé special cubic in four components, written out by hand."""
+    pairs = [(0, 1), (0, 2), (0, 3), (1, 2), (1, 3), (2, 3)]
+    triples = [(0, 1, 2), (0, 1, 3), (0, 2, 3), (1, 2, 3)]
+    return np.column_stack([x[:, i] for i in range(4)] + [x[:, i] * x[:, j] for i, j in pairs]
+                           + [x[:, i] * x[:, j] * x[:, k] for i, j, k in triples])
+
+
+def hand_cox_range(r, i, lows, highs):
+    """The others' shares and the range of component i's amount t along its Cox line from r (Cox 1971:
+    x_j = r_j (1 - t) / (1 - r_i); equal shares from a pure blend): each bound L_j <= s_j (1 - t) <= U_j solved
+    for t by hand, as is L_i <= t <= U_i."""
+    rest = 1.0 - r[i]
+    share = np.array([0.0 if j == i else (r[j] / rest if rest > 0 else 1.0 / 3.0) for j in range(4)])
+    lo, hi = lows[i], highs[i]
+    for j in range(4):
+        if share[j] > 0:  # L_j <= s_j (1 - t) <= U_j
+            hi = min(hi, 1.0 - lows[j] / share[j])
+            lo = max(lo, 1.0 - highs[j] / share[j])
+    return share, lo, hi
+
+
+@pytest.mark.parametrize("reference", [(1.0, 0.0, 0.0, 0.0), (0.6, 0.4, 0.0, 0.0), (0.35, 0.25, 0.3, 0.1)])
+def test_special_cubic_traces_from_a_vertex_an_edge_and_inside_a_bounded_region(reference):
+    # Four components with lower and upper bounds where the region allows the reference; seeded invented response;
+    # statsmodels OLS without an intercept on hand-written Scheffé columns is the reference.
+    bounded = reference[3] > 0
+    lows = [0.3, 0.05, 0.0, 0.0] if bounded else [0.0] * 4
+    highs = [0.7, 0.6, 0.5, 0.12] if bounded else [1.0] * 4
+    comps = [lw.Component(n, lo, hi) for n, lo, hi in zip("ABCD", lows, highs)]
+    mixture = lw.Mixture(comps)
+    rng = np.random.default_rng(5)
+    x = mixture.sample(30, rng)
+    y = special_cubic(x) @ np.linspace(3.0, -2.0, 14) + rng.normal(0, 0.2, len(x))  # invented
+    data = pd.DataFrame(x, columns=list("ABCD")).assign(y=y)
+    f = lw.fit_mixture(data, "y", "scheffe_special_cubic", mixture)
+    ref = sm.OLS(y, special_cubic(x)).fit()
+    r = np.array(reference)
+    out = f.refresh(dict(zip("ABCD", reference)), points=11)
+    for i, name in enumerate("ABCD"):
+        share, lo, hi = hand_cox_range(r, i, lows, highs)
+        t = np.linspace(lo, hi, 11)
+        blends = share[None, :] * (1.0 - t)[:, None]
+        blends[:, i] = t
+        tr = out["traces"][name]
+        assert tr["amount"] == pytest.approx(t, abs=1e-12)
+        assert tr["blends"] == pytest.approx(blends, abs=1e-12)
+        assert tr["x"] == pytest.approx(t - r[i], abs=1e-12)
+        frame = ref.get_prediction(special_cubic(blends)).summary_frame(alpha=0.05)
+        assert tr["mean"] == pytest.approx(frame["mean"].to_numpy(), rel=1e-9, abs=1e-9)
+        assert tr["ci_half"] == pytest.approx((frame["mean_ci_upper"] - frame["mean"]).to_numpy(), rel=1e-9)
+        assert tr["pi_half"] == pytest.approx((frame["obs_ci_upper"] - frame["mean"]).to_numpy(), rel=1e-9)
+    point = ref.get_prediction(special_cubic(r[None, :])).summary_frame(alpha=0.05).iloc[0]
+    assert out["point"]["mean"] == pytest.approx(point["mean"], rel=1e-9)
+    assert out["point"]["ci_high"] == pytest.approx(point["mean_ci_upper"], rel=1e-9)
+    assert out["point"]["pi_low"] == pytest.approx(point["obs_ci_lower"], rel=1e-9)

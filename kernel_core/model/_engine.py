@@ -33,6 +33,7 @@ numbers or known levels. ``points`` is an integer from 2 to 100000 everywhere. E
 from __future__ import annotations
 
 import math
+import threading
 
 import numpy as np
 import pandas as pd
@@ -48,6 +49,31 @@ from ._settings import SettingsCheck, check_points, check_shape
 _PREDICTION_COLUMNS = ("mean", "ci_low", "ci_high", "pi_low", "pi_high", "leverage")
 #: Settings per block when predicting many at once (the model rows of a block stay in cache).
 _BLOCK = 2048
+#: Settings per block of the triangle path (:meth:`PredictionEngine._triangle_columns`).
+_TRIANGLE_BLOCK = 8192
+_FRAME_COLUMNS = pd.Index(list(_PREDICTION_COLUMNS))
+
+
+class _Workspace:
+    """Scratch memory of the triangle path, kept between calls and shared by every engine.
+
+    Fresh memory costs a page fault per 4 KiB page on first touch (microseconds each on a virtual
+    machine), which dominated a 10,000-row prediction; reused memory does not. It grows to the
+    largest block asked for (at most (n + p + 1) * _TRIANGLE_BLOCK floats). One caller at a time
+    holds it (a non-blocking lock); a caller that finds it busy (another thread) takes fresh memory.
+    """
+
+    def __init__(self):
+        self.lock = threading.Lock()
+        self.flat = np.empty(0)
+
+    def get(self, size: int) -> np.ndarray:
+        if self.flat.size < size:
+            self.flat = np.empty(size)
+        return self.flat
+
+
+_WORK = _Workspace()
 
 
 class PredictionEngine(SettingsCheck):
@@ -222,6 +248,42 @@ class PredictionEngine(SettingsCheck):
         xf = both[:-1]
         return both[-1], np.einsum("ij,ij->j", xf, xf)
 
+    def _triangle_columns(self, natural_t: np.ndarray, mean: np.ndarray, h: np.ndarray):
+        """Mean and h of a (k, m) array of settings (triangle path) written into *mean* and *h*.
+
+        Per block of settings, the rows of the triangle (see :meth:`_compile`) and their product with
+        the placed ``[F | beta]`` live in scratch memory reused between calls (no fresh pages).
+        """
+        k, (degree, placed) = self.k, self._triangle
+        n, out_rows, m = placed.shape[1], placed.shape[0], natural_t.shape[1]
+        blocks = -(-m // _TRIANGLE_BLOCK)
+        width = -(-m // blocks)
+        center, inv_scale = self.center[:, None], self._inv_scale[:, None]
+        owned = _WORK.lock.acquire(blocking=False)
+        try:
+            size = (n + out_rows) * width
+            flat = _WORK.get(size) if owned else np.empty(size)
+            for start in range(0, m, width):
+                b = min(width, m - start)
+                x = flat[:n * b].reshape(n, b)
+                both = flat[n * b:(n + out_rows) * b].reshape(out_rows, b)
+                x[0] = 1.0
+                w = x[1:1 + k]
+                np.subtract(natural_t[:, start:start + b], center, out=w)
+                w *= inv_scale
+                if degree > 1:
+                    at = 1 + k
+                    for a in range(k):
+                        np.multiply(w[a], w[a:], out=x[at:at + k - a])
+                        at += k - a
+                np.matmul(placed, x, out=both)
+                mean[start:start + b] = both[-1]
+                xf = both[:-1]
+                np.einsum("ij,ij->j", xf, xf, out=h[start:start + b])
+        finally:
+            if owned:
+                _WORK.lock.release()
+
     @property
     def plan(self) -> PolynomialPlan | None:
         """Exact trace/slice polynomials (None when the model has categorical factors)."""
@@ -268,32 +330,39 @@ class PredictionEngine(SettingsCheck):
 
     def _extrapolated_columns(self, natural_t: np.ndarray, h: np.ndarray) -> np.ndarray:
         used = self._continuous_used
-        part = natural_t[used]
-        outside = ((part < self._lows[used, None]) | (part > self._highs[used, None])).any(axis=0)
-        return outside | (h > self._limit)
+        if used.all():
+            part, lows, highs = natural_t, self._lows[:, None], self._highs[:, None]
+        else:
+            part, lows, highs = natural_t[used], self._lows[used, None], self._highs[used, None]
+        outside = part < lows
+        outside |= part > highs
+        flag = np.logical_or.reduce(outside, axis=0)
+        flag |= h > self._limit
+        return flag
 
     def predict(self, settings, level=None) -> pd.DataFrame:
         """Mean, CI, PI, leverage (h) and the extrapolation flag at each setting (see ``Fit.predict``)."""
         level = self._level(level)
-        natural_t = self.columns(settings)
-        mean, h = self._mean_and_leverage_columns(natural_t)
-        c = self._scale(level)
-        # One (6, m) block written in place; its rows become the frame's columns.
-        block = np.empty((6, len(mean)))
-        ci, pi = block[1], block[3]
-        np.sqrt(h, out=ci)
-        ci *= c
+        natural_t = self.table_columns(settings)
+        m = natural_t.shape[1]
+        # One (6, m) block written in place; its rows become the frame's float columns.
+        block = np.empty((6, m))
+        mean, ci, pi, h = block[0], block[1], block[3], block[5]
+        if self._triangle is not None and m:
+            self._triangle_columns(natural_t, mean, h)
+        else:
+            mean[:], h[:] = self._mean_and_leverage_columns(natural_t)
+        # Rows 1 and 3 as one strided (2, m) view: the CI and PI half-widths, then the low ends.
+        halves, highs = block[1:4:2], block[2:5:2]
+        ci[:] = h
         np.add(h, self.extra, out=pi)
-        np.sqrt(pi, out=pi)
-        pi *= c
-        block[0], block[5] = mean, h
-        np.add(mean, ci, out=block[2])
-        np.subtract(mean, ci, out=ci)
-        np.add(mean, pi, out=block[4])
-        np.subtract(mean, pi, out=pi)
-        columns = dict(zip(_PREDICTION_COLUMNS, block))
-        columns["extrapolated"] = self._extrapolated_columns(natural_t, h)
-        return pd.DataFrame(columns, copy=False)
+        np.sqrt(halves, out=halves)
+        halves *= self._scale(level)
+        np.add(mean, halves, out=highs)
+        np.subtract(mean, halves, out=halves)
+        frame = pd.DataFrame(block.T, columns=_FRAME_COLUMNS, copy=False)
+        frame.insert(6, "extrapolated", self._extrapolated_columns(natural_t, h))
+        return frame
 
     def point(self, settings, level=None, natural=None, powers=None) -> dict:
         """One setting -> ``mean``, ``ci_low/high``, ``pi_low/high``, ``leverage``, ``extrapolated``."""
@@ -306,11 +375,7 @@ class PredictionEngine(SettingsCheck):
         else:
             means, hs = self.mean_and_leverage(natural[None, :])
             mean, h = float(means[0]), float(hs[0])
-        c = self._scale(level)
-        ci, pi = c * math.sqrt(h), c * math.sqrt(h + self.extra)
-        outside = self.outside_one(natural, h)
-        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
-                "pi_high": mean + pi, "leverage": h, "extrapolated": bool(outside)}
+        return self._point_of(natural, mean, h, self._scale(level))
 
     def outside_one(self, natural, h: float) -> bool:
         """The extrapolation rule at one setting (natural values, its h)."""
@@ -427,19 +492,36 @@ class PredictionEngine(SettingsCheck):
         if points is not None:
             points = check_points(points)
         plan = self.plan
-        powers = plan.powers(natural) if plan is not None else None  # shared by the point, traces and slice
-        out = {"point": self.point(None, level, natural, powers) if point else None}
-        if points is None:
-            out["traces"] = None
-        elif plan is not None:
-            out["traces"] = self._traces_of(plan, natural, level, points, powers)
+        out = {"point": None, "traces": None, "slice": None}
+        if plan is not None and points is not None:  # the point and every trace from one chain of products
+            xs, mean0, h0, mean, h, table = plan.event(natural, points)
+            powers = plan.powers_of(table) if slice_axes is not None else None
+            c = self._scale(level)
+            if point:
+                out["point"] = self._point_of(natural, mean0, h0, c)
+            ci = np.sqrt(h)
+            ci *= c
+            h += self.extra
+            pi = np.sqrt(h, out=h)
+            pi *= c
+            out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_half": ci[j], "pi_half": pi[j]}
+                             for j, name in enumerate(self.factor_names)}
         else:
-            out["traces"] = self.traces(settings, points, level)
-        out["slice"] = None
+            powers = plan.powers(natural) if plan is not None else None  # shared by the point and the slice
+            if point:
+                out["point"] = self.point(None, level, natural, powers)
+            if points is not None:
+                out["traces"] = self.traces(settings, points, level)
         if slice_axes is not None:
             x, y = slice_pair(slice_axes)
             out["slice"] = self.slice(x, y, None, shape, level, base=natural, powers=powers)
         return out
+
+    def _point_of(self, natural, mean: float, h: float, c: float) -> dict:
+        """The point's dict from its mean and h (c: the half-widths' scale, see :meth:`_scale`)."""
+        ci, pi = c * math.sqrt(h), c * math.sqrt(h + self.extra)
+        return {"mean": mean, "ci_low": mean - ci, "ci_high": mean + ci, "pi_low": mean - pi,
+                "pi_high": mean + pi, "leverage": h, "extrapolated": self.outside_one(natural, h)}
 
     # ----- the offline page ---------------------------------------------------------------------
     def payload(self, level=None) -> dict:

@@ -18,6 +18,7 @@ from ._engine import slice_pair
 from ._settings import check_points
 
 _SQRT_2PI = math.sqrt(2.0 * math.pi)
+_SIGNS = np.array([0.0, -1.0, 1.0])  # the mean, then the lower and upper ends of a band
 
 
 def inverse_link(link, eta, out=None):
@@ -52,10 +53,9 @@ def dmu_deta(link, eta):
 def transform(link, eta, half) -> dict:
     """Link-scale mean -/+ *half*, transformed: ``mean``, ``ci_low``, ``ci_high`` and ``link_mean``."""
     eta = np.asarray(eta, dtype=float)
-    stacked = np.empty((3,) + eta.shape)
-    stacked[0] = eta
-    np.subtract(eta, half, out=stacked[1])
-    np.add(eta, half, out=stacked[2])
+    stacked = np.multiply.outer(_SIGNS, half)  # 0, -half, +half
+    stacked += eta
+    stacked[0] = eta  # exact even where half is not finite
     inverse_link(link, stacked, out=stacked)
     return {"mean": stacked[0], "ci_low": stacked[1], "ci_high": stacked[2], "link_mean": eta}
 
@@ -84,26 +84,24 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
     else:
         natural = engine.vector(settings)
         level = engine._level(level)
-        powers = plan.powers(natural)
         out = {"point": None, "traces": None, "slice": None}
-        if points is not None and point:  # the point and every trace from one product, one inverse link
-            points = check_points(points)
-            xs, eta, h = plan.point_and_traces(powers, points)
-            np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
-            h0 = float(h[0])
+        if points is not None and point:  # the point and every trace from one chain of products, one inverse link
+            xs, eta0, h0, eta, h, table = plan.event(natural, check_points(points))
+            powers = plan.powers_of(table) if slice_axes is not None else None
+            c = engine._scale(level)
             half = np.sqrt(h, out=h)
-            half *= engine._scale(level)
+            half *= c
             bands = transform(link, eta, half)
-            out["point"] = {"mean": float(bands["mean"][0]), "ci_low": float(bands["ci_low"][0]),
-                            "ci_high": float(bands["ci_high"][0]), "link_mean": float(eta[0]),
+            half0 = c * math.sqrt(h0)
+            out["point"] = {"mean": inverse_link_scalar(link, eta0), "ci_low": inverse_link_scalar(link, eta0 - half0),
+                            "ci_high": inverse_link_scalar(link, eta0 + half0), "link_mean": eta0,
                             "pi_low": math.nan, "pi_high": math.nan,  # see GlmFit.new_observation_note
                             "extrapolated": engine.outside_one(natural, h0)}
-            shape = (engine.k, points)
-            mean, low, high, link_mean = (bands[key][1:].reshape(shape) for key in ("mean", "ci_low", "ci_high",
-                                                                                    "link_mean"))
+            mean, low, high = bands["mean"], bands["ci_low"], bands["ci_high"]
             out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_low": low[j], "ci_high": high[j],
-                                    "link_mean": link_mean[j]} for j, name in enumerate(engine.factor_names)}
+                                    "link_mean": eta[j]} for j, name in enumerate(engine.factor_names)}
         else:
+            powers = plan.powers(natural)
             if point:
                 out["point"] = transform_point(link, engine.point(None, level, natural, powers))
             if points is not None:

@@ -43,12 +43,14 @@ class MixtureEngine(PredictionEngine):
         m = info.mixture
         return (info.names, m.q, m.total, 1e-9 * m.total, m.declared_lows.tolist(), m.declared_highs.tolist(),
                 len(m.G) > 0, [(f.center, f.half_range) for f in info.process],
-                m.lows if info.pseudo else 0.0, m.pseudo_range if info.pseudo else m.total)
+                np.broadcast_to(m.lows if info.pseudo else 0.0, (m.q,)).astype(float).tolist(),
+                m.pseudo_range if info.pseudo else m.total)
 
-    def _fast_blend(self, settings):
-        """(amounts, model variables) of a valid blend given as a dict of plain numbers; None otherwise (the
-        general path then checks it and names what is wrong). Plain Python: this runs on every slider event."""
-        names, q, total, tol, lows, highs, constrained, process, offset, divisor = self._fast
+    def _fast_lists(self, settings):
+        """(amounts, model variables) as lists of floats of a valid blend given as a dict of plain numbers; None
+        otherwise (the general path then checks it and names what is wrong). Plain Python: this runs on every
+        slider event."""
+        names, q, total, tol, lows, highs, constrained, process, offsets, divisor = self._fast
         if type(settings) is not dict or len(settings) != len(names):
             return None
         try:
@@ -60,23 +62,25 @@ class MixtureEngine(PredictionEngine):
                 return None
             if value != value or value in (math.inf, -math.inf):
                 return None
-        xs = row[:q]
+        xs = [float(v) for v in row[:q]]
         if abs(math.fsum(xs) - total) > tol:
             return None
         for value, lo, hi in zip(xs, lows, highs):
             if value < lo - tol or value > hi + tol:
                 return None
-        x = np.array(xs, dtype=float)
         if constrained:
             m = self.info.mixture
-            if (m.G @ x > m.h + tol).any():
+            if (m.G @ np.array(xs) > m.h + tol).any():
                 return None
-        variables = np.empty(len(row))
-        variables[:q] = (x - offset) / divisor
+        variables = [(v - o) / divisor for v, o in zip(xs, offsets)]
         for j, (centre, half) in enumerate(process):
-            variables[q + j] = (row[q + j] - centre) / half
-        return x, variables
+            variables.append((row[q + j] - centre) / half)
+        return xs, variables
 
+    def _fast_blend(self, settings):
+        """(amounts, model variables) arrays of a valid blend given as a dict of plain numbers; None otherwise."""
+        fast = self._fast_lists(settings)
+        return None if fast is None else (np.array(fast[0]), np.array(fast[1]))
 
     # -- the settings check: blends ------------------------------------------------------------------------
     def _variables(self, settings, where="settings") -> np.ndarray:
@@ -141,7 +145,8 @@ class MixtureEngine(PredictionEngine):
         if only is not None and only not in self._index:
             raise LevelwiseError(f"The 'factor' parameter must be one of {list(self.factor_names)}. "
                                  f"Got {describe(only)} instead.")
-        out = self._refresh(self.amounts(settings), self.vector(settings), level, points, point=False)["traces"]
+        out = self._refresh(self.amounts(settings).tolist(), self.vector(settings).tolist(), level, points,
+                            point=False)["traces"]
         return out if only is None else {only: out[only]}
 
     def trace(self, factor, settings, points=50, level=None) -> dict:
@@ -171,7 +176,7 @@ class MixtureEngine(PredictionEngine):
             "components": list(m.names), "units": [c.units for c in m.components], "total": m.total,
             "declared_low": m.declared_lows.tolist(), "declared_high": m.declared_highs.tolist(),
             "low": m.lows.tolist(), "high": m.highs.tolist(), "G": m.G.tolist(), "h": m.h.tolist(),
-            "pseudo": bool(info.pseudo), "offset": np.broadcast_to(offset, (m.q,)).astype(float).tolist(),
+            "pseudo": bool(info.pseudo), "offset": list(offset),
             "divisor": float(divisor),
             "process": [{"name": f.name, "units": f.units, "center": f.center, "half_range": f.half_range,
                          "low": f.low, "high": f.high} for f in info.process],
@@ -186,43 +191,44 @@ class MixtureEngine(PredictionEngine):
         level = self._level(level)
         if points is not None:
             points = check_points(points)
-        fast = self._fast_blend(settings)
-        x, variables = fast if fast is not None else (self.amounts(settings), self.vector(settings))
-        return self._refresh(x, variables, level, points, point)
+        fast = self._fast_lists(settings)
+        if fast is None:
+            fast = self.amounts(settings).tolist(), self.vector(settings).tolist()
+        return self._refresh(fast[0], fast[1], level, points, point)
 
-    def _refresh(self, x, variables, level, points, point):
-        info = self.info
-        m = info.mixture
-        q = m.q
+    def _refresh(self, xs, variables, level, points, point):
+        """The slider event of the checked blend *xs* with model *variables* (lists of floats)."""
         c = self._scale(level)
         if points is not None:  # the exact polynomials along every Cox line (see _mixture_traces)
             plan = self.__dict__.get("_cox_plan")
             if plan is None:
                 plan = self.__dict__["_cox_plan"] = CoxPlan(self)
-            ts, change, grid, mean_t, h_t, mean0, h0 = cox_polynomial_traces(self, plan, x, variables, points)
-            ci_t, pi_t = c * np.sqrt(h_t), c * np.sqrt(h_t + self.extra)
+            across, ci_t, pi_t, mean0, h0 = cox_polynomial_traces(self, plan, xs, variables, points, c)
         else:
-            mean, h = self.mean_and_leverage(variables[None, :])
+            mean, h = self.mean_and_leverage(np.array(variables)[None, :])
             mean0, h0 = float(mean[0]), float(h[0])
         out = {"point": None, "slice": None, "traces": None}
         if point:
             half_ci, half_pi = c * math.sqrt(h0), c * math.sqrt(h0 + self.extra)
-            mu, lev = mean0, h0
-            outside = lev > self._limit or any(value < low or value > high for value, low, high
-                                               in zip(variables.tolist(), self._lows_list, self._highs_list))
-            out["point"] = {"mean": mu, "ci_low": mu - half_ci, "ci_high": mu + half_ci, "pi_low": mu - half_pi,
-                            "pi_high": mu + half_pi, "leverage": lev, "extrapolated": bool(outside)}
+            outside = h0 > self._limit or any(value < low or value > high for value, low, high
+                                              in zip(variables, self._lows_list, self._highs_list))
+            out["point"] = {"mean": mean0, "ci_low": mean0 - half_ci, "ci_high": mean0 + half_ci,
+                            "pi_low": mean0 - half_pi, "pi_high": mean0 + half_pi, "leverage": h0,
+                            "extrapolated": bool(outside)}
         if points is not None:
-            traces = {}
-            for i, name in enumerate(self.factor_names[:q]):
-                traces[name] = {"x": change[i], "amount": ts[i], "blends": grid[i], "mean": mean_t[i],
-                                "ci_half": ci_t[i], "pi_half": pi_t[i]}
-            for j, f in enumerate(info.process):
-                grid_p = np.repeat(variables[None, :], points, axis=0)
-                grid_p[:, q + j] = np.linspace(-1.0, 1.0, points)
-                mu, c_half, p_half, _ = self.bands(grid_p, level)
-                traces[f.name] = {"x": f.to_natural(grid_p[:, q + j]), "mean": mu, "ci_half": c_half,
-                                  "pi_half": p_half}
+            q = plan.q
+            traces = {name: {"x": x, "amount": t, "blends": b, "mean": mu, "ci_half": ci, "pi_half": pi}
+                      for name, x, t, b, mu, ci, pi in zip(self.factor_names, across[q + 1], across[q],
+                                                           across[:q].transpose(1, 2, 0), across[-1], ci_t, pi_t)}
+            process = self.info.process
+            if process:
+                base = np.array(variables)
+                for j, f in enumerate(process):
+                    grid_p = np.repeat(base[None, :], points, axis=0)
+                    grid_p[:, q + j] = np.linspace(-1.0, 1.0, points)
+                    mu, c_half, p_half, _ = self.bands(grid_p, level)
+                    traces[f.name] = {"x": f.to_natural(grid_p[:, q + j]), "mean": mu, "ci_half": c_half,
+                                      "pi_half": p_half}
             out["traces"] = traces
         return out
 

@@ -58,6 +58,18 @@ class PolynomialPlan:
         self._spread = np.ascontiguousarray(spread.reshape(k, p, (self.D + 1) * (p + 1)))
         self._inv_scale = 1.0 / self.scale
         self._ones = np.ones(k)
+        self._exps = np.arange(self.D + 1, dtype=float)[:, None]  # (D+1, 1): every power of every factor at once
+        # The slider event's stack: the k traces' spreads, then the setting's own row as a constant polynomial
+        # (its row of F and mean in the power-0 slot, zero above).
+        point = np.zeros((p, (self.D + 1) * (p + 1)))
+        point[:, : p + 1] = self.rinv_beta
+        self._event_spread = np.ascontiguousarray(np.concatenate([self._spread, point[None]]))
+        # Where, in the table of powers (D+1, k) flattened, each factor's part of each row of the event's stack
+        # is: row j < k holds factor j's trace constants (factor j itself contributes its power 0, a 1), row k is
+        # the setting's own model row. One take and one product over the factors give the whole stack.
+        stack = np.tile(E.T * k + np.arange(k)[:, None], (1, k + 1)).reshape(k, k + 1, p)  # (factor, row, column)
+        stack[np.arange(k), np.arange(k), :] = np.arange(k)[:, None]  # power 0 of factor j in row j
+        self._event_index = np.ascontiguousarray(stack.reshape(k, (k + 1) * p))
         self._flat = (E * k + np.arange(k)).ravel()  # (power, factor) -> place in the table of powers
         self._traces = {}
         self._slices = {}
@@ -121,6 +133,10 @@ class PolynomialPlan:
             table.append(table[-1] * coded)
         return np.concatenate(table[: self.D + 1]).take(self._flat).reshape(self.p, self.k)
 
+    def powers_of(self, table: np.ndarray) -> np.ndarray:
+        """:meth:`powers` from the (D+1, k) table of every power of every coded factor that :meth:`event` gives."""
+        return table.take(self._flat).reshape(self.p, self.k)
+
     def mean_and_leverage(self, powers: np.ndarray):
         """Mean and ``h = ||x F||^2`` at one setting given its :meth:`powers`."""
         both = powers.prod(axis=1) @ self.rinv_beta  # the row times F, then the mean
@@ -147,26 +163,26 @@ class PolynomialPlan:
         h += ts * ts * extra
         return xs, mean, ci, np.sqrt(h, out=h)
 
-    def point_and_traces(self, powers: np.ndarray, points: int):
-        """Mean and ``h = ||x F||^2`` at the setting (entry 0) and along every factor's trace (entries 1 + j *
-        points + t), with the x grids: every model row built at once from cached powers of the grids (row of
-        trace j at t: the held factors' column constants times the grid's coded value to each column's power),
-        then one product with ``[F | beta]``. For a few traces of moderate length this is fewer array operations
-        than :meth:`point` plus :meth:`traces` (the GLM slider path uses it)."""
-        key = ("rows", points)
-        if key not in self._traces:
-            xs, _, vander = self.trace_grids(points)
-            grid = np.stack([vander[j][:, self.E[:, j]] for j in range(self.k)])  # (k, points, p)
-            self._traces[key] = (xs, np.ascontiguousarray(grid))
-        xs, grid = self._traces[key]
+    def event(self, natural: np.ndarray, points: int):
+        """One slider event's numbers from one chain of small products: the setting's mean and h, and the mean
+        and h along every factor's trace, (k, points) each, with the x grids and the setting's table of powers.
+
+        The rows of the k held-factor constants and the setting's own row go through one batched product with
+        the spreads, which gives every trace's polynomial coefficients of ``[x F | x b]`` (and the setting's row
+        of F and mean); one batched product with the grids' Vandermonde matrices gives ``[x F | x b]`` at every
+        grid point, and h = ``||x F||^2`` (not scaled) is its sum of squares. The last item, the setting's (D+1, k)
+        table of powers, gives :meth:`powers` with :meth:`powers_of`.
+        """
+        xs, _, vander = self.trace_grids(points)
         k, p = self.k, self.p
-        const = np.multiply.reduce(powers.take(self._held_flat), axis=0).reshape(k, 1, p)
-        rows = np.empty((1 + k * points, p))
-        np.multiply.reduce(powers, axis=1, out=rows[0])  # the setting's own row
-        np.multiply(grid, const, out=rows[1:].reshape(k, points, p))
-        both = rows @ self.rinv_beta
-        xf = both[:, :-1]
-        return xs, both[:, -1], np.einsum("ij,ij->i", xf, xf)
+        table = np.power((natural - self.center) * self._inv_scale, self._exps)  # (D+1, k) every power
+        rows = np.multiply.reduce(table.take(self._event_index), axis=0).reshape(k + 1, 1, p)
+        z = np.matmul(rows, self._event_spread).reshape(k + 1, self.D + 1, p + 1)
+        grid = np.matmul(vander, z[:k])  # (k, points, p + 1): [x F | x b] along every trace
+        xf = grid[:, :, :p]
+        own = z[k, 0]
+        return (xs, float(own[p]), float(own[:p] @ own[:p]), grid[:, :, p], np.einsum("kti,kti->kt", xf, xf),
+                table)
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""

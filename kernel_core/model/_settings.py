@@ -123,6 +123,20 @@ class SettingsCheck:
         """Settings as a dict (one setting), a dict of equal-length lists or a DataFrame -> (m, k) array."""
         return self.columns(settings).T
 
+    def table_columns(self, settings) -> np.ndarray:
+        """:meth:`columns` for a table to predict at: a DataFrame of exactly the fit's factors (in order, all
+        float64, all finite) comes back as a read-only (k, m) view of its values, not a copy (its rows may
+        then be strided). Anything else, or an engine with its own :meth:`columns`, goes through that."""
+        if type(self).columns is SettingsCheck.columns and not self.categories \
+                and isinstance(settings, pd.DataFrame) and tuple(settings.columns) == self.factor_names:
+            values = settings.to_numpy()
+            # A sum is finite only if every value is (an overflowing sum just takes the checked path).
+            if values.dtype == np.float64 and math.isfinite(values.sum()):
+                values = values.T.view()
+                values.flags.writeable = False
+                return values
+        return self.columns(settings)
+
     def columns(self, settings) -> np.ndarray:
         """:meth:`table` laid out by factor: a (k, m) array, one contiguous row per factor."""
         if isinstance(settings, dict):
@@ -160,6 +174,6 @@ class SettingsCheck:
             col, row = np.argwhere(bad.T)[0][::-1]
             raise LevelwiseError(
                 f"The setting for factor {self.factor_names[col]!r} in row {row + 1} must be a finite number. "
-                f"Got {out[row, col]!r} instead."
+                f"Got {float(out[col, row])!r} instead."
             )
         return out

@@ -27,16 +27,16 @@ ALL_CASES = (*KERNEL_CASES, "browser", "viewers")
 ROW_IDS = (
     "refresh_full_vs_statsmodels", "refresh_full_vs_floor", "refresh_no_slice_vs_statsmodels",
     "refresh_no_slice_vs_floor", "diagnostics_1000", "diagnostics_10000", "exclude_one", "predict_1_row",
-    "predict_10000_rows", "fit_large",
+    "predict_10000_rows", "predict_10000_rows_floor", "fit_large",
     "min_aberration_15_16", "min_aberration_11_64", "d_optimal", "reml_split_plot", "slider_split_plot",
     "slider_binomial", "slider_p50", "slider_p95", "first_view", "kernel_memory", "slider_bytes",
     "mixture_refresh_vs_statsmodels", "viewers_slider_p50", "viewers_slider_p95",
     "viewers_kernel_memory",
 )
 ROWS_OF = {
-    "refresh": ROW_IDS[:4], "diagnostics": ROW_IDS[4:6], "exclusion": ROW_IDS[6:7], "predict": ROW_IDS[7:9],
-    "fit": ROW_IDS[9:10], "designs": ROW_IDS[10:13], "splitplot": ROW_IDS[13:14], "family_sliders": ROW_IDS[14:16],
-    "browser": ROW_IDS[16:21], "mixture": ("mixture_refresh_vs_statsmodels",),
+    "refresh": ROW_IDS[:4], "diagnostics": ROW_IDS[4:6], "exclusion": ROW_IDS[6:7], "predict": ROW_IDS[7:10],
+    "fit": ROW_IDS[10:11], "designs": ROW_IDS[11:14], "splitplot": ROW_IDS[14:15], "family_sliders": ROW_IDS[15:17],
+    "browser": ROW_IDS[17:22], "mixture": ("mixture_refresh_vs_statsmodels",),
     "viewers": ("viewers_slider_p50", "viewers_slider_p95", "viewers_kernel_memory"),
 }
 PACKAGES = ("numpy", "scipy", "pandas", "statsmodels", "patsy", "threadpoolctl", "ipywidgets", "bqplot", "voila",
