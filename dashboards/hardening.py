@@ -72,6 +72,11 @@ THREAD_ENV = {
     "VECLIB_MAXIMUM_THREADS": "1",
 }
 
+#: The served kernels' widgets do not echo a browser's value back (ipywidgets 8 sends an ``echo_update`` for
+#: every value a browser sets, for pages that share a kernel; each served page has a kernel of its own): one
+#: message less per slider event for the kernel, the server and the page.
+WIDGET_ENV = {"JUPYTER_WIDGETS_ECHO": "0"}
+
 
 def offered_subprotocols(header: str | None) -> list[str]:
     """The subprotocols listed in a ``Sec-WebSocket-Protocol`` request header.
@@ -353,9 +358,11 @@ def voila_command(
 
 
 def server_env(extra: dict | None = None) -> dict:
-    """Environment for the voila server and its kernels: one BLAS thread, our package importable."""
+    """Environment for the voila server and its kernels: one BLAS thread, no widget echo, our package
+    importable."""
     env = dict(os.environ)
     env.update(THREAD_ENV)
+    env.update(WIDGET_ENV)
     root = str(Path(__file__).resolve().parent.parent)
     paths = [p for p in env.get("PYTHONPATH", "").split(os.pathsep) if p]
     if root not in paths:

@@ -9,6 +9,7 @@ import sys
 import time
 import urllib.error
 import urllib.request
+from pathlib import Path
 
 import pytest
 
@@ -137,6 +138,31 @@ def test_one_blas_thread_per_kernel():
     for name in THREAD_ENV:
         assert env[name] == "1", name
     assert env["LEVELWISE_STUDY"] == "demo"
+
+
+ECHO_PROBE = """
+import ipywidgets, ipywidgets.comm
+from tests.widget_support import RecordingComm, browser_update
+log = []
+ipywidgets.comm.create_comm = lambda **kw: RecordingComm(log, **kw)
+slider = ipywidgets.FloatSlider(min=0.0, max=10.0)
+log.clear()
+browser_update(slider, value=3.5)
+print(slider.value, sorted(data.get("method") for data, _ in log))
+"""
+
+
+def test_served_kernels_send_no_widget_echo():
+    """Under the served environment a value set by the browser is not sent back (an echo_update message, which
+    ipywidgets 8 sends by default: the same probe without the setting shows it)."""
+    root = str(Path(__file__).resolve().parent.parent)
+    served = subprocess.run([sys.executable, "-c", ECHO_PROBE], env=server_env(), capture_output=True, text=True,
+                            cwd=root, timeout=120)
+    default_env = {k: v for k, v in server_env().items() if k != "JUPYTER_WIDGETS_ECHO"}
+    default = subprocess.run([sys.executable, "-c", ECHO_PROBE], env=default_env, capture_output=True, text=True,
+                             cwd=root, timeout=120)
+    assert served.stdout.split() == ["3.5", "[]"], served.stderr[-500:]
+    assert default.stdout.strip() == "3.5 ['echo_update']", default.stderr[-500:]
 
 
 def test_the_connection_class_is_importable_and_subclasses_jupyter_servers():
