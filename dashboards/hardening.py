@@ -216,7 +216,10 @@ class V1OnlyWebsocketConnection(ZMQChannelsWebsocketConnection):
         """True for the kernel's stderr and error messages: logged here, never sent to the browser."""
         try:
             _, parts = self.session.feed_identities(msg_list)
-            header = json.loads(bytes(parts[1]))
+            raw = bytes(parts[1])
+            if b'"stream"' not in raw and b'"error"' not in raw:  # a header naming neither type is neither:
+                return False  # the widget messages of every slider event pass without parsing their header
+            header = json.loads(raw)
             kind = header.get("msg_type")
             if kind not in ("stream", "error"):
                 return False
