@@ -121,6 +121,33 @@ def test_slider_moves_prediction_to_kernel_value(opened):
     page.screenshot(path=str(SCREENSHOTS / "published-dashboard.png"), full_page=True)
 
 
+def test_a_click_on_the_slice_moves_its_two_factors_to_the_nearest_grid_point(opened):
+    """A click on the slice reaches its (invisible) click targets and moves the two axis factors to the nearest
+    of the 41 x 41 grid points; the readout follows (the marker and traces are coalesced since issue 17)."""
+    page, _ = opened
+    handles = page.locator(".lw-slider .noUi-handle")
+    page.locator(".lw-slice").first.scroll_into_view_if_needed()
+    box = page.locator(".lw-slice .plotarea_background").first.bounding_box()
+    assert box and box["width"] > 100 and box["height"] > 100
+    low_x, high_x = (float(handles.nth(0).get_attribute(a)) for a in ("aria-valuemin", "aria-valuemax"))
+    low_y, high_y = (float(handles.nth(1).get_attribute(a)) for a in ("aria-valuemin", "aria-valuemax"))
+    before = page.locator(".lw-readout .lw-mean").first.inner_text()
+    # A quarter of the way across and a quarter of the way up (away from the centre, where the marker sits).
+    at = (box["x"] + 0.25 * box["width"], box["y"] + 0.75 * box["height"])
+    hit = page.evaluate("([x, y]) => { const e = document.elementFromPoint(x, y); "
+                        "return e ? e.tagName + '.' + e.getAttribute('class') : null; }", list(at))
+    assert hit and hit.startswith("path"), f"the click lands on {hit}, not on a click target"
+    page.mouse.click(*at)
+    page.wait_for_function(
+        "([sel, old]) => document.querySelector(sel).innerText !== old", arg=[".lw-readout .lw-mean", before],
+        timeout=20_000)
+    step_x, step_y = (high_x - low_x) / 40, (high_y - low_y) / 40  # the 41-point click grid (CLICK_GRID)
+    x = float(handles.nth(0).get_attribute("aria-valuenow"))
+    y = float(handles.nth(1).get_attribute("aria-valuenow"))
+    assert abs(x - (low_x + 0.25 * (high_x - low_x))) <= 1.01 * step_x, (x, low_x, high_x)
+    assert abs(y - (low_y + 0.25 * (high_y - low_y))) <= 1.01 * step_y, (y, low_y, high_y)
+
+
 def widget_states(client, comms) -> dict:
     """Ask the kernel for the state of every widget (``request_state``); {comm id: state}."""
     asks = {comm_id: client.send("shell", "comm_msg", {"comm_id": comm_id, "data": {"method": "request_state"}})
