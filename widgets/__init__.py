@@ -12,19 +12,41 @@ except ImportError as exc:  # pragma: no cover - depends on the environment
         "levelwise.widgets needs ipywidgets, bqplot and traitlets: pip install levelwise"
     ) from exc
 
-from .cox_traces import CoxTraces
-from .design_builder import DesignBuilder
-from .effects_view import EffectsView
-from .factor_sliders import FactorSliders
-from .mixture_sliders import MixtureSliders
-from .optimizer_view import OptimizerView
-from .predictions_view import PredictionsView
-from .residual_inspector import ResidualInspector
-from .run_sheet_editor import RunSheetEditor
-from .shared_model import ReadOnlyError, SharedModel
-from .surface_slice import SurfaceSlice
-from .table_import import TableImport
-from .ternary_slice import TernarySlice
+#: Each public name and the module that defines it. The modules are imported on first use (PEP 562), so a
+#: page imports only the views it shows: the published page never loads the design builder, the table import
+#: or the residual inspector (and what they import).
+_MODULES = {
+    "CoxTraces": "cox_traces",
+    "DesignBuilder": "design_builder",
+    "EffectsView": "effects_view",
+    "FactorSliders": "factor_sliders",
+    "MixtureSliders": "mixture_sliders",
+    "OptimizerView": "optimizer_view",
+    "PredictionsView": "predictions_view",
+    "ReadOnlyError": "shared_model",
+    "ResidualInspector": "residual_inspector",
+    "RunSheetEditor": "run_sheet_editor",
+    "SharedModel": "shared_model",
+    "SurfaceSlice": "surface_slice",
+    "TableImport": "table_import",
+    "TernarySlice": "ternary_slice",
+}
+
+
+def __getattr__(name):
+    module = _MODULES.get(name)
+    if module is None:
+        raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+    import importlib
+
+    value = getattr(importlib.import_module(f"{__name__}.{module}"), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(set(globals()) | set(_MODULES))
+
 
 __all__ = [
     "CoxTraces",

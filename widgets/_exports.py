@@ -121,6 +121,9 @@ class ViewExports:
         """The matplotlib figure of what the view shows now."""
         from ._figure_render import render, visible_figures
 
+        flush = getattr(self.view, "flush", None)
+        if callable(flush):  # marks drawn a moment after a change (coalesced) are drawn now
+            flush()
         figures = visible_figures(self.view.widget)
         if not figures:
             raise LevelwiseError(f"The {type(self.view).__name__} shows no figure to save.")

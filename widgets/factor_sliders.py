@@ -91,6 +91,7 @@ class FactorSliders(View):
         # the latest value of each slider winning; with no event loop (plain Python) they apply at once.
         self._pending: dict = {}
         self._slider_coalescer = Coalescer(self.safely(self._apply_pending), delay=0.01)
+        self._trace_coalescer = Coalescer(self.safely(self._draw_traces))
         self.readout = ipw.HTML().add_class("lw-readout")
         self.notice = ipw.HTML().add_class("lw-notice")
         self.slider_box = ipw.VBox().add_class("lw-slider-box")
@@ -261,15 +262,27 @@ class FactorSliders(View):
         )
         for axis in self._y_axes:
             axis.label = self._y_label()
-        current = shared.fit
-        if current is None:
+        # The readout is on its way; the traces follow, coalesced: a burst of events pushes the marks once,
+        # with the latest settings (their arrays are most of an event's messages and of the browser's work).
+        self._shown = (shared.fit, shown, dict(shared.settings))
+        self._trace_coalescer.request()
+
+    def flush(self) -> None:
+        """Apply pending slider values and draw pending traces now (inside a running event loop both wait a
+        few milliseconds; code that reads the marks' arrays right after a change calls this first)."""
+        self._slider_coalescer.flush()
+        self._trace_coalescer.flush()
+
+    def _draw_traces(self):
+        current, shown, settings = getattr(self, "_shown", (None, None, None))
+        if current is None or current is not self.shared.fit:
             return
         if shown is None:
-            shown = current.refresh(shared.settings, points=self.points)
+            shown = current.refresh(settings, points=self.points)
         mean_here = shown["point"]["mean"] * counts.scale(current)
         lows, highs = [], []
         curves = shown["traces"]  # every factor's curve, from the same kernel call
-        for f in shared.factors:
+        for f in self.shared.factors:
             if f.name not in self._marks:
                 continue
             tr = curves[f.name]
@@ -283,20 +296,29 @@ class FactorSliders(View):
                     set_if_changed(pi_band, x=x, y=np.vstack([pi_low, pi_high]).astype(np.float32))
                 set_if_changed(ci_band, x=x, y=np.vstack([ci_low, ci_high]).astype(np.float32))
                 set_if_changed(mean, x=x, y=f32(centre))
-                set_if_changed(marker, x=f32([shared.settings[f.name]]), y=f32([mean_here]))
+                set_if_changed(marker, x=f32([settings[f.name]]), y=f32([mean_here]))
             wide = pi_low is not None and np.isfinite(pi_low).all() and np.isfinite(pi_high).all()
             low_edge, high_edge = (pi_low, pi_high) if wide else (ci_low, ci_high)
             finite = np.isfinite(low_edge) & np.isfinite(high_edge)
             lows.append(np.min(np.where(finite, low_edge, centre)))
             highs.append(np.max(np.where(finite, high_edge, centre)))
-        self._draw_level_curves(current, curves, lows, highs)
+        self._draw_level_curves(current, curves, lows, highs, settings)
         if lows:
-            low, high = float(min(lows)), float(max(highs))
-            pad = 0.05 * (high - low or 1.0)
-            with self.y_scale.hold_sync():
-                self.y_scale.min, self.y_scale.max = low - pad, high + pad
+            self._fit_y_scale(float(min(lows)), float(max(highs)))
 
-    def _draw_level_curves(self, current, curves, lows, highs):
+    def _fit_y_scale(self, low: float, high: float) -> None:
+        """Show [low, high] with a margin. The scale is kept while every band fits inside it and fills at least
+        half of it: a new range makes every mark of every trace redraw in the browser, so it is not sent for
+        each small move of a slider."""
+        pad = 0.05 * (high - low or 1.0)
+        old_low, old_high = self.y_scale.min, self.y_scale.max
+        if old_low is not None and old_high is not None and old_low <= low and high <= old_high \
+                and (high - low) >= 0.5 * (old_high - old_low) and np.isfinite([old_low, old_high]).all():
+            return
+        with self.y_scale.hold_sync():
+            self.y_scale.min, self.y_scale.max = low - pad, high + pad
+
+    def _draw_level_curves(self, current, curves, lows, highs, settings):
         """One mean curve per level of the chosen categorical factor, from one ``Fit.refresh`` per level."""
         name = self.level_curves.value
         factor = next((f for f in self.shared.factors if f.name == name), None)
@@ -305,7 +327,7 @@ class FactorSliders(View):
                 mark.visible = False
             return
         levels = list(current.categories[name])
-        per_level = [current.refresh({**self.shared.settings, name: level}, points=self.points, point=False)["traces"]
+        per_level = [current.refresh({**settings, name: level}, points=self.points, point=False)["traces"]
                      for level in levels]
         for fname, mark in self.level_marks.items():
             x = f32(curves[fname]["x"])

@@ -249,12 +249,9 @@ class SurfaceSlice(View):
         self._coalescer.request()
 
     def _on_shared(self, change=None):
-        """Cheap parts now (the error line, the marker); the slice itself coalesced."""
+        """The error line now; the marker and the slice coalesced (a burst of slider events moves the marker
+        once, in the same moment as the other views' marks, and redraws the slice only when it changed)."""
         self.show_shared_error()
-        x, y = self.x_factor.value, self.y_factor.value
-        if x in self.shared.settings and y in self.shared.settings:
-            with self.marker.hold_sync():
-                set_if_changed(self.marker, x=f32([self.shared.settings[x]]), y=f32([self.shared.settings[y]]))
         self._coalescer.request()
 
     def _on_click(self, mark, content):
