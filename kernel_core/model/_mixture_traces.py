@@ -251,7 +251,7 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
     # node rows w P + Q: (q + 1, width, 2) [P | Q] times (q + 1, 2, d + 1) [w; 1]
     nodes = numbers[:2 * size].reshape(2, q + 1, W).transpose(1, 2, 0) @ numbers[2 * size:].reshape(q + 1, 2, n)
     if plan.picks is not None:
-        rows = np.multiply.reduce(nodes[:, plan.picks], axis=1)  # (q + 1, p, d + 1)
+        rows = np.multiply.reduce(nodes.take(plan.picks, axis=1), axis=1)  # (q + 1, p, d + 1)
         both = plan.fb_t @ rows  # [x F | mean]^T at every node
     else:
         both = (engine.rows(nodes.transpose(0, 2, 1).reshape(-1, W)[:, q + 2:q + 2 + plan.k]) @ engine._fb).reshape(
