@@ -60,6 +60,8 @@ class CoxPlan:
             heads.append(e + [T])
             tails.append([(e[j] - offsets[j]) / divisor for j in range(q)] if self.shifted else [])
         self.q_heads, self.q_tails = heads, tails
+        # without process factors the rest of a Q row is fixed: its tail and the column of ones
+        self.q_ends = [row + [1.0] for row in tails] if not self.tail else None
         self.q_point = [0.0] * (q + 2) + ((-offsets / divisor).tolist() if self.shifted else [])
         self.p_pad = ([-1.0, -1.0 / T], [0.0] * (self.tail + 1))
         n = d + 1
@@ -177,7 +179,9 @@ def _line_numbers(xs, T, lows, highs, tail, plan):
     ones = [1.0] * len(nodes)
     ws = [T] * len(nodes)
     ws += ones
-    heads, tails = plan.q_heads, plan.q_tails
+    heads, tails, ends = plan.q_heads, plan.q_tails, plan.q_ends
+    if not shifted:
+        head = head + pad  # the P row after the shares
     for i in range(q):
         xi = xs[i]
         rest = T - xi
@@ -197,12 +201,15 @@ def _line_numbers(xs, T, lows, highs, tail, plan):
         p_rows += head
         if shifted:
             p_rows += [v * inv for v in share]
-        p_rows += pad
+            p_rows += pad
         q_rows += heads[i]
         q_rows.append(rest / T)
-        q_rows += tails[i]
-        q_rows += tail
-        q_rows.append(1.0)
+        if ends is None:
+            q_rows += tails[i]
+            q_rows += tail
+            q_rows.append(1.0)
+        else:
+            q_rows += ends[i]
         wa = T - a
         step = a - b
         ws += [wa + step * s for s in nodes]
