@@ -31,8 +31,7 @@ import numpy as np
 
 class CoxPlan:
     """Per fit: the degree d along a Cox line, the d + 1 interpolation nodes, the constant part of the node rows,
-    the gather of the model columns, the Gram entries each line needs, and per number of points the Lagrange
-    matrices of the unit grid."""
+    the gather of the model columns, and per number of points the Lagrange matrices of the unit grid."""
 
     def __init__(self, engine):
         m = engine.info.mixture
@@ -64,9 +63,6 @@ class CoxPlan:
         self.q_ends = [row + [1.0] for row in tails] if not self.tail else None
         self.q_point = [0.0] * (q + 2) + ((-offsets / divisor).tolist() if self.shifted else [])
         self.p_pad = ([-1.0, -1.0 / T], [0.0] * (self.tail + 1))
-        n = d + 1
-        idx = [[(j * n + a) * n + b for a in range(n) for b in range(a, n)] for j in range(1, q + 1)]
-        self.gram_index = np.array(idx, dtype=np.intp)  # the upper triangle of each line's node Gram, flat
         columns = list(range(q + 2, 2 * q + 2) if self.shifted else range(q)) + list(range(v, v + self.tail))
         self.picks = _picks(engine, columns, W - 1) if identity else None
         fb_t = engine._fb_t
@@ -89,15 +85,13 @@ class CoxPlan:
         return cached
 
     def bands(self, points: int, c: float) -> np.ndarray:
-        """(pairs, points): the upper triangle of a line's node Gram -> c^2 h on the unit grid (l_a l_b, doubled
-        off the diagonal, times c^2)."""
+        """((d + 1)^2, points): a line's node Gram, flat -> c^2 h on the unit grid (c^2 l_a l_b)."""
         key = (points, c)
         cached = self._bands.get(key)
         if cached is None:
             L = self.lagrange(points)
             n = self.degree + 1
-            cached = np.array([L[a] * L[b] * (c * c * (1.0 if a == b else 2.0))
-                               for a in range(n) for b in range(a, n)])
+            cached = np.array([L[a] * L[b] * (c * c) for a in range(n) for b in range(n)])
             cached.flags.writeable = False
             if len(self._bands) > 16:
                 self._bands.clear()
@@ -265,7 +259,7 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
             q + 1, n, -1).transpose(0, 2, 1)
     xf = both[:, :-1]
     gram = xf.transpose(0, 2, 1) @ xf  # (q + 1, d + 1, d + 1) per line
-    half = gram.take(plan.gram_index) @ plan.bands(points, c)  # c^2 h on the grid
+    half = gram[1:].reshape(q, n * n) @ plan.bands(points, c)  # c^2 h on the grid
     ci = np.sqrt(half)
     half += c * c * engine.extra
     pi = np.sqrt(half, out=half)
