@@ -140,8 +140,20 @@ def _draw_heatmap(ax, mark, decode=None):
         colour = _array(values)
     if x is None or y is None or colour is None or colour.ndim != 2 or not colour.size:
         return
-    mesh = ax.pcolormesh(x, y, np.ma.masked_invalid(colour.astype(float)), shading="auto", cmap="viridis")
+    mesh = ax.pcolormesh(x, y, np.ma.masked_invalid(colour.astype(float)), shading="auto", cmap=heatmap_colormap(mark))
     return mesh
+
+
+def heatmap_colormap(mark):
+    """The matplotlib colour map of a heat map mark: its colour scale's colours (the slice views' cividis stops)
+    spread evenly over the values, as bqplot spreads them."""
+    from matplotlib.colors import LinearSegmentedColormap
+
+    from .style import CIVIDIS
+
+    scale = getattr(mark, "scales", {}).get("color")
+    colours = list(getattr(scale, "colors", None) or CIVIDIS)
+    return LinearSegmentedColormap.from_list("levelwise_slice", colours)
 
 
 def draw_bqplot(fig_bq, ax, relabel=None, decode=None) -> None:

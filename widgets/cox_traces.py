@@ -2,9 +2,9 @@
 
 From the current blend (the reference), component i moves while the others keep their relative proportions. Every
 component's curve is drawn against the *change in that component's proportion from the reference blend* (0 at the
-reference), over the amounts the bounds allow, with the confidence band for the mean (solid edge) and the
-prediction band for a single new run (dashed edge). Every number comes from one ``Fit.refresh`` call per event (the
-mixture fit's engine, :func:`levelwise.cox_traces`).
+reference), over the amounts the bounds allow, with the confidence band for the mean (darker, solid edge) and the
+prediction band for a single new run (lighter, dashed edge). Every number comes from one ``Fit.refresh`` call per
+event (the mixture fit's engine, :func:`levelwise.cox_traces`).
 """
 
 from __future__ import annotations
@@ -111,6 +111,7 @@ class CoxTraces(View):
         self.caption.value = (
             f"<b>{html.escape(shared.response)}</b>: {WORDS['mean']} as each component moves from the current blend "
             "(the diamond) while the others keep their relative proportions (the Cox direction), against the "
-            f"{AXIS_LABEL}. Solid band: {level} {WORDS['ci']}; dashed band: {level} {WORDS['pi']}. Each curve "
+            f"{AXIS_LABEL}. Dark band, solid edge: {level} {WORDS['ci']}; light band, dashed edge: {level} "
+            f"{WORDS['pi']}. Each curve "
             "spans the amounts the bounds allow."
         )

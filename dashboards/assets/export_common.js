@@ -16,8 +16,9 @@ function el(tag, attrs, parent) {
   return node;
 }
 
-// cividis-like ramp (dark blue to yellow), our own interpolation between a few stops: the same in every surface.
-const RAMP = [[0, 32, 76], [65, 77, 108], [124, 123, 120], [188, 175, 111], [255, 234, 70]];
+// The slice views' colour map (levelwise.widgets.style.CIVIDIS: dark blue to yellow), interpolated between its
+// stops: the same in every surface.
+const RAMP = [[0, 32, 77], [65, 77, 107], [124, 123, 120], [188, 175, 111], [255, 234, 70]];
 function colour(t) {
   const u = Math.max(0, Math.min(1, t)) * (RAMP.length - 1), k = Math.min(Math.floor(u), RAMP.length - 2), w = u - k;
   return RAMP[k].map((c, j) => Math.round(c + (RAMP[k + 1][j] - c) * w));

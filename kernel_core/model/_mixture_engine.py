@@ -57,16 +57,19 @@ class MixtureEngine(PredictionEngine):
             row = [settings[n] for n in names]
         except KeyError:
             return None
+        inf = math.inf
         for value in row:
-            if type(value) is not float and type(value) is not int:
-                return None
-            if value != value or value in (math.inf, -math.inf):
+            kind = type(value)
+            if (kind is not float and kind is not int) or not -inf < value < inf:  # NaN fails too
                 return None
         xs = [float(v) for v in row[:q]]
         if abs(math.fsum(xs) - total) > tol:
             return None
-        for value, lo, hi in zip(xs, lows, highs):
-            if value < lo - tol or value > hi + tol:
+        lo_hi = self.__dict__.get("_fast_bounds")
+        if lo_hi is None:
+            lo_hi = self.__dict__["_fast_bounds"] = list(zip([lo - tol for lo in lows], [hi + tol for hi in highs]))
+        for value, (lo, hi) in zip(xs, lo_hi):
+            if value < lo or value > hi:
                 return None
         if constrained:
             m = self.info.mixture
@@ -189,7 +192,7 @@ class MixtureEngine(PredictionEngine):
             raise LevelwiseError("A surface slice of a mixture fit is not available; use slice_axes=None "
                                  "(levelwise.ternary_slice draws three components).")
         level = self._level(level)
-        if points is not None:
+        if points is not None and (type(points) is not int or not 2 <= points <= 100_000):
             points = check_points(points)
         fast = self._fast_lists(settings)
         if fast is None:
@@ -210,8 +213,12 @@ class MixtureEngine(PredictionEngine):
         out = {"point": None, "slice": None, "traces": None}
         if point:
             half_ci, half_pi = c * math.sqrt(h0), c * math.sqrt(h0 + self.extra)
-            outside = h0 > self._limit or any(value < low or value > high for value, low, high
-                                              in zip(variables, self._lows_list, self._highs_list))
+            outside = h0 > self._limit
+            if not outside:
+                for value, low, high in zip(variables, self._lows_list, self._highs_list):
+                    if value < low or value > high:
+                        outside = True
+                        break
             out["point"] = {"mean": mean0, "ci_low": mean0 - half_ci, "ci_high": mean0 + half_ci,
                             "pi_low": mean0 - half_pi, "pi_high": mean0 + half_pi, "leverage": h0,
                             "extrapolated": bool(outside)}

@@ -19,8 +19,9 @@ Node rows: along line i the blend is ``X = T e_i + w D_i`` with ``w = T - t`` an
 ``[X | t | change | (X - offset) / divisor | process | 1]`` is ``w P_i + Q_i``:
 ``P_i = [D_i | -1 | -1 / T | D_i / divisor | 0 | 0]``, ``Q_i = [T e_i | T | (T - x_i) / T |
 (T e_i - offset) / divisor | process | 1]``. Line 0 is the current blend itself (``P = [x | 0 | 0 |
-x / divisor | 0 | 0] / T``, ``w = T``), lines 1..q the components. The rows are kept column by column:
-``(width, q + 1, d + 1)``.
+x / divisor | 0 | 0] / T``, ``w = T``), lines 1..q the components. With proportions (offset 0) the block of model
+variables is left out: they are the blend over the divisor, and the powers of the divisor go into ``[F | beta]``.
+The rows of a line are kept column by column: ``(q + 1, width, d + 1)``.
 """
 
 from __future__ import annotations
@@ -30,8 +31,7 @@ import numpy as np
 
 class CoxPlan:
     """Per fit: the degree d along a Cox line, the d + 1 interpolation nodes, the constant part of the node rows,
-    the gather of the model columns, the Gram entries each line needs, and per number of points the Lagrange
-    matrices of the unit grid."""
+    the gather of the model columns, and per number of points the Lagrange matrices of the unit grid."""
 
     def __init__(self, engine):
         m = engine.info.mixture
@@ -44,23 +44,32 @@ class CoxPlan:
         self.node_list = self.nodes.tolist()
         self._to_coefficients = np.linalg.inv(np.vander(self.nodes, d + 1, increasing=True))
         self.tail = k - q  # process factors
-        W = self.width = q + 2 + k + 1
         self.divisor = float(divisor)
         offsets = np.broadcast_to(np.asarray(offset, dtype=float), (q,))
-        Q = np.zeros((W, q + 1, 1))  # Q of every line but its change and process columns
-        Q[q + 2:2 * q + 2, :, 0] = (-offsets / divisor)[:, None]
-        Q[W - 1] = 1.0
+        identity = bool(not engine.contrasts and len(engine.exponents) and not engine.center.any()
+                        and (engine.scale == 1).all())
+        # pseudo-components (or a coding engine.rows must apply): the model variables get their own block
+        self.shifted = bool(offsets.any()) or not identity
+        v = q + 2 + (q if self.shifted else 0)  # first process column
+        W = self.width = v + self.tail + 1
+        # Q of every line but its change and process columns, as lists: before and after the change column
+        heads, tails = [], []
         for i in range(q):
-            Q[i, i + 1] = T
-            Q[q, i + 1] = T
-            Q[q + 2 + i, i + 1] += T / divisor
-        Q.flags.writeable = False
-        self.q_const = Q
+            e = [T if j == i else 0.0 for j in range(q)]
+            heads.append(e + [T])
+            tails.append([(e[j] - offsets[j]) / divisor for j in range(q)] if self.shifted else [])
+        self.q_heads, self.q_tails = heads, tails
+        # without process factors the rest of a Q row is fixed: its tail and the column of ones
+        self.q_ends = [row + [1.0] for row in tails] if not self.tail else None
+        self.q_point = [0.0] * (q + 2) + ((-offsets / divisor).tolist() if self.shifted else [])
         self.p_pad = ([-1.0, -1.0 / T], [0.0] * (self.tail + 1))
-        n, M = d + 1, (q + 1) * (d + 1)
-        idx = [[(j * n + a) * M + j * n + b for a in range(n) for b in range(a, n)] for j in range(1, q + 1)]
-        self.gram_index = np.array(idx, dtype=np.intp)  # the upper triangle of each line's node Gram, flat
-        self.picks = _picks(engine, q + 2, W - 1)
+        columns = list(range(q + 2, 2 * q + 2) if self.shifted else range(q)) + list(range(v, v + self.tail))
+        self.picks = _picks(engine, columns, W - 1) if identity else None
+        fb_t = engine._fb_t
+        if self.picks is not None and not self.shifted:  # variable = blend / divisor: divisor^-degree per column
+            power = np.asarray(engine.exponents)[:, :q].sum(axis=1)
+            fb_t = fb_t * (1.0 / self.divisor) ** power
+        self.fb_t = fb_t
         self._grids: dict = {}
         self._bands: dict = {}
 
@@ -76,15 +85,13 @@ class CoxPlan:
         return cached
 
     def bands(self, points: int, c: float) -> np.ndarray:
-        """(pairs, points): the upper triangle of a line's node Gram -> c^2 h on the unit grid (l_a l_b, doubled
-        off the diagonal, times c^2)."""
+        """((d + 1)^2, points): a line's node Gram, flat -> c^2 h on the unit grid (c^2 l_a l_b)."""
         key = (points, c)
         cached = self._bands.get(key)
         if cached is None:
             L = self.lagrange(points)
             n = self.degree + 1
-            cached = np.array([L[a] * L[b] * (c * c * (1.0 if a == b else 2.0))
-                               for a in range(n) for b in range(a, n)])
+            cached = np.array([L[a] * L[b] * (c * c) for a in range(n) for b in range(n)])
             cached.flags.writeable = False
             if len(self._bands) > 16:
                 self._bands.clear()
@@ -92,19 +99,15 @@ class CoxPlan:
         return cached
 
 
-def _picks(engine, first, one):
+def _picks(engine, columns, one):
     """(width, p): model column j is the product of the node-row columns ``picks[:, j]`` (variable i at column
-    first + i, repeated by its exponent; the column of ones pads), or None when the coding is not the identity
-    (then ``engine.rows``)."""
-    identity = bool(not engine.contrasts and len(engine.exponents) and not engine.center.any()
-                    and (engine.scale == 1).all())
-    if not identity:
-        return None
+    ``columns[i]``, repeated by its exponent; the column of ones pads). For the identity coding only (otherwise
+    ``engine.rows``)."""
     E = np.asarray(engine.exponents)
     width = max(1, int(E.sum(axis=1).max(initial=0)))
     picks = np.full((width, E.shape[0]), one, dtype=np.intp)
     for j, row in enumerate(E):
-        cols = [first + i for i in np.flatnonzero(row) for _ in range(int(row[i]))]
+        cols = [columns[i] for i in np.flatnonzero(row) for _ in range(int(row[i]))]
         picks[:len(cols), j] = cols
     return picks
 
@@ -131,9 +134,9 @@ def cox_line_range(i: int, xs: list, T: float, lows: list, highs: list):
     return share, a, b
 
 
-def _line_numbers(xs, T, lows, highs, plan):
+def _line_numbers(xs, T, lows, highs, tail, plan):
     """One event's numbers in a region of bounds only (plain Python: a few components), flat: the rows P
-    (q + 1, width), w at the nodes (q + 1, d + 1) and (T - x_i) / T (q + 1; 0 for the blend itself).
+    (q + 1, width), the rows Q (q + 1, width), and per line w at the nodes then d + 1 ones (q + 1, 2, d + 1).
 
     The range of t is that of :func:`cox_line_range`, ``T - (T - x_i) min_j U_j / x_j <= t <=
     T - (T - x_i) max_j L_j / x_j`` over the others with x_j > 0 (the best two of each serve every line)."""
@@ -155,16 +158,24 @@ def _line_numbers(xs, T, lows, highs, plan):
                 d1, d2, idn = d, d1, j
             elif d > d2:
                 d2 = d
+    shifted = plan.shifted
     inv = 1.0 / plan.divisor
     head, pad = plan.p_pad
     f = 1.0 / T
-    numbers = [v * f for v in xs]
-    numbers += [0.0, 0.0]
-    numbers += [v * inv * f for v in xs]
-    numbers += pad
+    p_rows = [v * f for v in xs]
+    p_rows += [0.0, 0.0]
+    if shifted:
+        p_rows += [v * inv * f for v in xs]
+    p_rows += pad
+    q_rows = plan.q_point + tail
+    q_rows.append(1.0)
     nodes = plan.node_list
+    ones = [1.0] * len(nodes)
     ws = [T] * len(nodes)
-    changes = [0.0]
+    ws += ones
+    heads, tails, ends = plan.q_heads, plan.q_tails, plan.q_ends
+    if not shifted:
+        head = head + pad  # the P row after the shares
     for i in range(q):
         xi = xs[i]
         rest = T - xi
@@ -180,31 +191,45 @@ def _line_numbers(xs, T, lows, highs, plan):
         else:
             share, a, b = cox_line_range(i, xs, T, lows, highs)
         share[i] = -1.0
-        numbers += share
-        numbers += head
-        numbers += [v * inv for v in share]
-        numbers += pad
+        p_rows += share
+        p_rows += head
+        if shifted:
+            p_rows += [v * inv for v in share]
+            p_rows += pad
+        q_rows += heads[i]
+        q_rows.append(rest / T)
+        if ends is None:
+            q_rows += tails[i]
+            q_rows += tail
+            q_rows.append(1.0)
+        else:
+            q_rows += ends[i]
         wa = T - a
         step = a - b
         ws += [wa + step * s for s in nodes]
-        changes.append(rest / T)
-    return numbers + ws + changes
+        ws += ones
+    return p_rows + q_rows + ws
 
 
-def _lines_numbers(mixture, xs, plan):
+def _lines_numbers(mixture, xs, tail, plan):
     """:func:`_line_numbers` for any region (bounds and constraints), from the lines of ``_cox_lines``."""
     from ._mixture_engine import _cox_lines
 
     x = np.array(xs, dtype=float)
     A, B, lo, hi = _cox_lines(mixture, x)
-    q, T, W = mixture.q, mixture.total, plan.width
+    q, T, W, n = mixture.q, mixture.total, plan.width, plan.degree + 1
     P = np.zeros((q + 1, W))
     P[0, :q] = x / T
     P[1:, :q] = -B
     P[1:, q], P[1:, q + 1] = -1.0, -1.0 / T
-    P[:, q + 2:2 * q + 2] = P[:, :q] / plan.divisor
-    ws = np.vstack([np.full(plan.degree + 1, T), (T - lo)[:, None] + (lo - hi)[:, None] * plan.nodes])
-    return P.ravel().tolist() + ws.ravel().tolist() + [0.0] + ((T - x) / T).tolist()
+    if plan.shifted:
+        P[:, q + 2:2 * q + 2] = P[:, :q] / plan.divisor
+    Q = [plan.q_point + tail + [1.0]]
+    Q += [plan.q_heads[i] + [(T - x[i]) / T] + plan.q_tails[i] + tail + [1.0] for i in range(q)]
+    ws = np.ones((q + 1, 2, n))
+    ws[0, 0] = T
+    ws[1:, 0] = (T - lo)[:, None] + (lo - hi)[:, None] * plan.nodes
+    return P.ravel().tolist() + [v for row in Q for v in row] + ws.ravel().tolist()
 
 
 def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, points: int, c: float):
@@ -216,34 +241,31 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
     """
     mixture = engine.info.mixture
     q, W, n = plan.q, plan.width, plan.degree + 1
+    tail = variables[q:]
     if not len(mixture.G) and q <= 8:
         lows, highs = mixture.__dict__.get("_bounds_lists") or mixture.__dict__.setdefault(
             "_bounds_lists", (mixture.declared_lows.tolist(), mixture.declared_highs.tolist()))
-        numbers = np.array(_line_numbers(xs, plan.total, lows, highs, plan))
+        numbers = np.array(_line_numbers(xs, plan.total, lows, highs, tail, plan))
     else:
-        numbers = np.array(_lines_numbers(mixture, xs, plan))
-    size, m = (q + 1) * W, (q + 1) * n
-    nodes = np.empty((W, q + 1, n))
-    np.multiply(numbers[:size].reshape(q + 1, W).T[:, :, None], numbers[size:size + m].reshape(q + 1, n), out=nodes)
-    nodes += plan.q_const
-    nodes[q + 1] += numbers[size + m:, None]
-    if plan.tail:
-        nodes[2 * q + 2:W - 1] += np.array(variables[q:])[:, None, None]
-    columns = nodes.reshape(W, m)
+        numbers = np.array(_lines_numbers(mixture, xs, tail, plan))
+    size = (q + 1) * W
+    # node rows w P + Q: (q + 1, width, 2) [P | Q] times (q + 1, 2, d + 1) [w; 1]
+    nodes = numbers[:2 * size].reshape(2, q + 1, W).transpose(1, 2, 0) @ numbers[2 * size:].reshape(q + 1, 2, n)
     if plan.picks is not None:
-        rows_t = np.multiply.reduce(columns[plan.picks], axis=0)
+        rows = np.multiply.reduce(nodes.take(plan.picks, axis=1), axis=1)  # (q + 1, p, d + 1)
+        both = plan.fb_t @ rows  # [x F | mean]^T at every node
     else:
-        rows_t = engine.rows(columns[q + 2:q + 2 + plan.k].T).T
-    both = engine._fb_t @ rows_t  # [x F | mean]^T at every node
-    xf = both[:-1]
-    gram = xf.T @ xf
-    half = gram.take(plan.gram_index) @ plan.bands(points, c)  # c^2 h on the grid
+        both = (engine.rows(nodes.transpose(0, 2, 1).reshape(-1, W)[:, q + 2:q + 2 + plan.k]) @ engine._fb).reshape(
+            q + 1, n, -1).transpose(0, 2, 1)
+    xf = both[:, :-1]
+    gram = xf.transpose(0, 2, 1) @ xf  # (q + 1, d + 1, d + 1) per line
+    half = gram[1:].reshape(q, n * n) @ plan.bands(points, c)  # c^2 h on the grid
     ci = np.sqrt(half)
     half += c * c * engine.extra
     pi = np.sqrt(half, out=half)
-    nodes[W - 1] = both[-1].reshape(q + 1, n)
-    across = (columns.reshape(W * (q + 1), n) @ plan.lagrange(points)).reshape(W, q + 1, points)[:, 1:]
-    return across, ci, pi, float(both[-1, 0]), float(gram[0, 0])
+    nodes[:, W - 1] = both[:, -1]
+    across = (nodes[1:].reshape(q * W, n) @ plan.lagrange(points)).reshape(q, W, points).transpose(1, 0, 2)
+    return across, ci, pi, float(both[0, -1, 0]), float(gram[0, 0, 0])
 
 
 __all__ = ["CoxPlan", "cox_line_range", "cox_polynomial_traces"]
