@@ -209,31 +209,17 @@ class PredictionEngine(SettingsCheck):
         if self.contrasts:
             return self.mean_and_leverage(natural_t.T)
         m = natural_t.shape[1]
-        block = _BLOCK if self._triangle is None else 2 * _BLOCK
-        if m > block:  # blocks of rows small enough to stay in cache (one Python step per block)
+        if self._triangle is not None:  # the triangle path (its own blocks and scratch memory)
             mean, h = np.empty(m), np.empty(m)
-            for start in range(0, m, block):
-                part = slice(start, start + block)
+            if m:
+                self._triangle_columns(natural_t, mean, h)
+            return mean, h
+        if m > _BLOCK:  # blocks of rows small enough to stay in cache (one Python step per block)
+            mean, h = np.empty(m), np.empty(m)
+            for start in range(0, m, _BLOCK):
+                part = slice(start, start + _BLOCK)
                 mean[part], h[part] = self._mean_and_leverage_columns(natural_t[:, part])
             return mean, h
-        if self._triangle is not None:
-            degree, placed = self._triangle
-            k = self.k
-            w = np.empty((k + 1, m))
-            w[0] = 1.0
-            np.subtract(natural_t, self.center[:, None], out=w[1:])
-            w[1:] *= self._inv_scale[:, None]
-            if degree <= 1:
-                x = w
-            else:
-                x = np.empty((placed.shape[1], m))
-                at = 0
-                for a in range(k + 1):
-                    np.multiply(w[a], w[a:], out=x[at:at + k + 1 - a])
-                    at += k + 1 - a
-            both = placed @ x
-            xf = both[:-1]
-            return both[-1], np.einsum("ij,ij->j", xf, xf)
         coded = natural_t - self.center[:, None]
         coded *= self._inv_scale[:, None]
         m, picks = coded.shape[1], self._picks
