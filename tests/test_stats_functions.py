@@ -9,7 +9,7 @@ import sys
 import numpy as np
 from scipy import stats
 
-from levelwise._stats import f_sf, norm_ppf, norm_sf, t_ppf, t_sf
+from levelwise._stats import chi2_sf, f_sf, norm_ppf, norm_sf, t_ppf, t_sf
 
 Q = np.array([0.5, 0.9, 0.975, 0.995, 1e-9])
 DF = np.array([1.0, 3.5, 10.0, 1e6, np.inf])
@@ -23,6 +23,9 @@ def test_same_numbers_as_scipy_stats():
     np.testing.assert_allclose(norm_sf(X), stats.norm.sf(X), rtol=1e-14)
     F = np.array([0.1, 1.0, 5.0, 300.0])
     np.testing.assert_allclose(f_sf(F[:, None], 2, DF[None, :4]), stats.f.sf(F[:, None], 2, DF[None, :4]), rtol=1e-13)
+    np.testing.assert_allclose(chi2_sf(F[:, None], DF[None, :4]), stats.chi2.sf(F[:, None], DF[None, :4]),
+                               rtol=1e-13)
+    assert chi2_sf(3.841, 1) == np.float64(stats.chi2.sf(3.841, 1))  # ~0.05 (chi-square tables, common practice)
     assert t_ppf(0.975, 10) == stats.t.ppf(0.975, 10)  # 2.228 (t tables, common practice)
 
 
