@@ -77,7 +77,7 @@ class Coalescer:
             self._handle = None
 
 
-class Debouncer:
+class Debouncer(Coalescer):
     """Run *work* once the requests have stopped for *delay* seconds: every request restarts the wait.
 
     Used where one change starts expensive work (a design search), so typing or clicking "Add a factor" five
@@ -85,7 +85,7 @@ class Debouncer:
     """
 
     def __init__(self, work, delay: float = 0.6):
-        self.work, self.delay, self._handle = work, delay, None
+        super().__init__(work, delay)
 
     def request(self) -> None:
         try:
@@ -93,29 +93,12 @@ class Debouncer:
         except RuntimeError:
             self.work()
             return
-        if self._handle is not None:
-            self._handle.cancel()
+        self.cancel()
         self._handle = loop.call_later(self.delay, self._run)
 
     @property
     def pending(self) -> bool:
         return self._handle is not None
-
-    def _run(self) -> None:
-        self._handle = None
-        self.work()
-
-    def flush(self) -> None:
-        """Run pending work now."""
-        if self._handle is not None:
-            self._handle.cancel()
-            self._handle = None
-            self.work()
-
-    def cancel(self) -> None:
-        if self._handle is not None:
-            self._handle.cancel()
-            self._handle = None
 
 
 class _Token:
