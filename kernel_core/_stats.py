@@ -1,11 +1,10 @@
 """The few distribution functions the fits, tables and views need, without importing ``scipy.stats``.
 
 ``scipy.stats`` costs a served viewer's kernel about 23 MB of memory and most of a second to import, and the
-page needs only t, F, chi-square and normal quantiles and tail areas. These are the same ``scipy.special``
-functions ``scipy.stats`` evaluates for them (``t.ppf`` is ``stdtrit``, ``t.sf(x)`` is ``stdtr(df, -x)``,
-``f.sf`` is ``fdtrc``, ``chi2.sf(x, df)`` is ``chdtrc(df, x)``, ``norm.ppf`` is ``ndtri``, ``norm.sf(x)`` is
-``ndtr(-x)``); ``tests/test_stats_functions.py`` checks them against ``scipy.stats``.
-Anything else goes through :data:`stats`, which imports ``scipy.stats`` on first use.
+page needs only t, F and normal quantiles and tail areas. These are the same ``scipy.special`` functions
+``scipy.stats`` evaluates for them (``t.ppf`` is ``stdtrit``, ``t.sf(x)`` is ``stdtr(df, -x)``, ``f.sf`` is
+``fdtrc``, ``norm.ppf`` is ``ndtri``, ``norm.sf(x)`` is ``ndtr(-x)``); ``tests/test_stats_functions.py`` checks
+them against ``scipy.stats``. Anything else goes through :data:`stats`, which imports ``scipy.stats`` on first use.
 """
 
 from __future__ import annotations
@@ -27,11 +26,6 @@ def t_sf(x, df):
 def f_sf(f, dfn, dfd):
     """Upper tail area of the F distribution (``scipy.stats.f.sf``)."""
     return special.fdtrc(dfn, dfd, f)
-
-
-def chi2_sf(x, df):
-    """Upper tail area of the chi-square distribution (``scipy.stats.chi2.sf``)."""
-    return special.chdtrc(df, x)
 
 
 def norm_ppf(q):

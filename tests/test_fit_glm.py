@@ -355,39 +355,3 @@ def test_standardized_residuals_and_residuals_of_any_rows(family):
     _close(rows["fitted_mean"], ref.fittedvalues if family == "binomial" else ref.fittedvalues / t["area"])
     with pytest.raises(LevelwiseError, match="need the column"):
         f.residuals_of(t.drop(columns=["tested" if family == "binomial" else "area"]))
-
-
-@pytest.mark.parametrize("family,link", [("binomial", "logit"), ("binomial", "probit"), ("poisson", "log")])
-def test_own_irls_takes_the_steps_of_statsmodels_glm(family, link):
-    """The fit's IRLS (no statsmodels import) against statsmodels' GLM.fit() on the same matrix: the same number of
-    steps, coefficients, covariance, deviance and Pearson chi-square; also when one setting gives only passes or
-    only zero counts, so the estimates run off and only the shared stopping rule decides where they stop."""
-    from statsmodels.genmod import families
-    from statsmodels.genmod.generalized_linear_model import GLM
-
-    from levelwise.model._irls import irls
-
-    rng = np.random.default_rng(7)
-    X = np.column_stack([np.ones(24), np.tile([-1.0, 1.0], 12), rng.uniform(-1, 1, 24), np.repeat([0.0, 1.0], 12)])
-    trials = rng.integers(10, 30, 24).astype(float)
-    exposure = rng.uniform(0.5, 2.0, 24)
-    for separated in (False, True):
-        if family == "binomial":
-            counts = rng.binomial(trials.astype(int), 1 / (1 + np.exp(-(0.4 + 0.8 * X[:, 1])))).astype(float)
-            if separated:
-                counts[X[:, 3] == 1] = trials[X[:, 3] == 1]  # every panel passed at the second setting
-            fam = families.Binomial(link=families.links.Logit() if link == "logit" else families.links.Probit())
-            ref = GLM(np.column_stack([counts, trials - counts]), X, family=fam).fit()
-        else:
-            counts = rng.poisson(exposure * np.exp(1.0 + 0.5 * X[:, 1])).astype(float)
-            if separated:
-                counts[X[:, 3] == 1] = 0.0  # no defect at the second setting
-            ref = GLM(counts, X, family=families.Poisson(), exposure=exposure).fit()
-        ours = irls(X, family, link, counts, trials if family == "binomial" else None,
-                    exposure if family == "poisson" else None)
-        assert ours.iterations == ref.fit_history["iteration"]
-        _close(ours.params, ref.params, rtol=1e-10, atol=1e-10)
-        _close(ours.cov, ref.cov_params(), rtol=1e-10, atol=1e-12)
-        assert ours.deviance == pytest.approx(ref.deviance, rel=1e-10, abs=1e-12)
-        assert ours.pearson_chi2 == pytest.approx(ref.pearson_chi2, rel=1e-10, abs=1e-12)
-        assert ours.df_resid == ref.df_resid

@@ -1,9 +1,8 @@
 """Generalised linear models for counts: passes out of trials (binomial) and defect counts (Poisson).
 
 The model matrix is the one of a least-squares fit (our formula, coding, categorical contrasts and run ids);
-our iteratively reweighted least squares (:mod:`._irls`, the steps of statsmodels' ``GLM``) fits it.
-Coefficients are on the link scale (log-odds, probit or log rate) per coded unit.
-Prediction hands the coefficients and a square root of their
+statsmodels ``GLM`` fits it by iteratively reweighted least squares. Coefficients are on the link scale
+(log-odds, probit or log rate) per coded unit. Prediction hands the coefficients and a square root of their
 covariance to the shared :class:`~levelwise.prediction.Predictor`, which returns the link-scale mean and
 variance; the confidence interval is made on the link scale and transformed, so it stays inside (0, 1) for
 a probability and above 0 for a rate.
@@ -19,14 +18,13 @@ import pandas as pd
 
 from .._errors import LevelwiseError, describe
 from .._rich import anova_frame, coefficient_table, fit_html
-from .._stats import chi2_sf, f_sf, norm_ppf, norm_sf
+from .._stats import f_sf, norm_ppf, norm_sf, stats
 from . import _glm_residuals as _residuals
 from ._families import FitFamily
 from ._glm_inputs import _counts, _run_label
 from ._glm_scale import inverse_link as _inverse_link
 from ._glm_scale import refresh as _refresh
 from ._glm_scale import transform as _transform
-from ._irls import irls
 
 FAMILIES = {"binomial": ("logit", "probit"), "poisson": ("log",)}
 #: Pearson chi-square / df above which overdispersion is reported and the quasi-likelihood scale offered.
@@ -61,13 +59,22 @@ class GlmFit(FitFamily):
     trials_name = exposure_name = None
 
     def __init__(self, base, family, link, counts, trials, exposure, columns, scale_mode=None):
+        # The two statsmodels modules a GLM needs, not statsmodels.api (about 26 MB less in a viewer's kernel).
+        from statsmodels.genmod import families
+        from statsmodels.genmod.generalized_linear_model import GLM
+
         self.base, self.family, self.link = base, family, link
         self.counts, self.trials, self.exposure = counts, trials, exposure
         self.columns = np.asarray(columns, dtype=int)
         self.X = np.asarray(base.X)[:, self.columns]
-        # Our IRLS (the steps of statsmodels' GLM.fit, checked against it): a viewer's kernel then never imports
-        # statsmodels' GLM nor, through it, scipy.stats (about 30 MB); :attr:`statsmodels_result` fits it on demand.
-        res = irls(self.X, family, link, counts, trials, exposure)
+        links = families.links
+        if family == "binomial":
+            fam = families.Binomial(link=links.Logit() if link == "logit" else links.Probit())
+            model = GLM(np.column_stack([counts, trials - counts]), self.X, family=fam)
+        else:
+            fam = families.Poisson(link=links.Log())
+            model = GLM(counts, self.X, family=fam, exposure=exposure)
+        self.statsmodels_result = res = model.fit()
         self.beta = np.asarray(res.params, dtype=float)
         self.deviance = float(res.deviance)
         self.pearson_chi2 = float(res.pearson_chi2)
@@ -88,21 +95,6 @@ class GlmFit(FitFamily):
                 "infinity, as when some settings give only passes, only failures or only zero counts "
                 "(separation). Their tests and intervals mean little; drop terms or add runs there."
             )
-
-    @cached_property
-    def statsmodels_result(self):
-        """statsmodels' own GLM fit of the same model (imported and fitted on first use: a reference, not used by
-        the fit itself)."""
-        from statsmodels.genmod import families
-        from statsmodels.genmod.generalized_linear_model import GLM
-
-        links = families.links
-        if self.family == "binomial":
-            fam = families.Binomial(link=links.Logit() if self.link == "logit" else links.Probit())
-            model = GLM(np.column_stack([self.counts, self.trials - self.counts]), self.X, family=fam)
-        else:
-            model = GLM(self.counts, self.X, family=families.Poisson(link=links.Log()), exposure=self.exposure)
-        return model.fit()
 
     # -- what the fit is ------------------------------------------------------------------------------
     response = property(lambda self: self.base.response)
@@ -172,7 +164,7 @@ class GlmFit(FitFamily):
         law = "binomial" if self.family == "binomial" else "Poisson"
         if not df > 0:
             return "No residual degrees of freedom: overdispersion cannot be checked."
-        p = float(chi2_sf(self.pearson_chi2, df))
+        p = float(stats.chi2.sf(self.pearson_chi2, df))
         head = f"Pearson chi-square / df = {self.pearson_chi2:.4g} / {df} = {phi:.3g} (p = {p:.3g})."
         if phi > OVERDISPERSION and p < 0.05:
             return (f"{head} The counts vary about {phi:.2g} times as much as the {law} law allows "
@@ -216,7 +208,7 @@ class GlmFit(FitFamily):
             with_term = self.deviance if not above else self._deviance_without(above)
             without = self._deviance_without(above + list(cols))
             lr, df = without - with_term, len(cols)
-            row = {"df": df, "lr_chi2": lr, "p_value": float(chi2_sf(lr, df))}
+            row = {"df": df, "lr_chi2": lr, "p_value": float(stats.chi2.sf(lr, df))}
             if self.scale_mode == "quasi":
                 f = lr / df / self.scale
                 row.update({"F": f, "p_value": float(f_sf(f, df, self.df_resid))})
