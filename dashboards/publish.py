@@ -114,7 +114,7 @@ def publish(study, out) -> Path:
 
 def store_optimum(folder) -> Path | None:
     """Search the published page's optimum once, as the page would, and store it beside the study
-    (:mod:`.stored_optimum`): every viewer's kernel then shows it without the search or ``scipy.optimize``."""
+    (:mod:`.stored_optimum`): every viewer's kernel then shows it without running the search."""
     from . import stored_optimum
     from ._compose import find_view
     from .present import set_study_goals

@@ -3,7 +3,9 @@
 A published dashboard is read-only: its data, models and goals cannot change, so neither can the best settings
 for the study's goals. ``levelwise publish`` runs the page's own search (the optimiser view with the study's
 goals, its number of starts and its seed) and writes the result to ``optimum.json``; each viewer's kernel then
-shows it without importing ``scipy.optimize`` (about 15 MB per kernel) or running the search again.
+shows it without running the search again (a few CPU-seconds per kernel) and, for a study of least-squares fits,
+without importing ``scipy.optimize`` (about 15 MB per kernel; statsmodels' GLM, which fits a pass-rate or rate
+response, imports it through ``scipy.stats``).
 
 The stored result is used only when it is the answer for exactly this page: the study file's SHA-256, the goals,
 the starts, the seed and the levelwise version must all match. Otherwise (a study file replaced after
