@@ -36,6 +36,21 @@ def set_if_changed(mark, **arrays) -> None:
         setattr(mark, name, value)
 
 
+def snapped_echo(slider, value, current) -> bool:
+    """Whether a slider's new *value* is the browser putting the kernel's *current* value on its step grid.
+
+    A browser's slider snaps every value the kernel sends it to ``min + k * step`` and, with continuous updates,
+    sends the snapped value back as a change. That is not a move: taken as one, it would shift a setting the
+    kernel chose (an optimum, a clicked point) and, for mixture components, rescale the others, whose own echoes
+    would go on. A snap is at most half a step from the value sent; a user's move (a drag or a key) lands at
+    least half a step away from it.
+    """
+    step = getattr(slider, "step", None)  # a categorical factor's list of levels has none
+    if current is None or step is None:
+        return False
+    return abs(float(value) - float(current)) <= 0.5 * float(step) * (1.0 + 1e-9)
+
+
 def error_html(message: str) -> str:
     return f'<div class="lw-error">{html.escape(message)}</div>' if message else ""
 
