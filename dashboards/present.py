@@ -18,9 +18,10 @@ import ipywidgets as ipw
 from levelwise import LevelwiseError, Study
 from levelwise.widgets.style import NO_MATH, wrapped_html
 
+from . import stored_optimum
 from ._compose import find_view
 from .kernel_guard import guard_kernel, log_line
-from .study_source import goals_of, open_study, shared_model, title_of
+from .study_source import goals_of, open_study, shared_model, study_path, title_of
 from .summary import caution_html, fingerprint, fit_numbers, summary_html
 
 #: The views of the stakeholder page, in page order (the workbench's mutating views, the design
@@ -104,23 +105,38 @@ def study_goals(shared) -> dict:
     return goals
 
 
-def _read_only_part(name: str, view):
-    """The part of a view a stakeholder sees: no editors, only what shows the study and moves the settings."""
+def set_study_goals(view) -> bool:
+    """Give an optimiser view the study's recorded goals; False when the study records none."""
+    goals = study_goals(view.shared)
+    if not goals:
+        return False
+    for response, goal in goals.items():
+        kind = goal.pop("kind")
+        if kind == "target" and goal.get("target") is None:
+            continue
+        view.set_goal(response, kind, **goal)
+    return True
+
+
+def _read_only_part(name: str, view, study_file=None):
+    """The part of a view a stakeholder sees: no editors, only what shows the study and moves the settings.
+
+    *study_file*: the published study file, beside which ``levelwise publish`` stored the optimum
+    (:mod:`.stored_optimum`); the page searches only when no stored optimum matches.
+    """
     if name == "PredictionsView":
         # Adding the current settings as a row is a viewer's note, not a change to the study.
         return ipw.VBox([view.add_button, view.table, view.download]).add_class("lw-predictions-view")
     if name == "OptimizerView":
         heading = ShownHTML("<h3>Best settings for the study's goals</h3>")
-        goals = study_goals(view.shared)
-        if not goals:
+        if not set_study_goals(view):
             return ipw.VBox([heading, ShownHTML("<p>The study records no goals to optimise.</p>")])
-        for response, goal in goals.items():
-            kind = goal.pop("kind")
-            if kind == "target" and goal.get("target") is None:
-                continue
-            view.set_goal(response, kind, **goal)
+        stored = stored_optimum.read(study_file, view) if study_file is not None else None
         try:
-            view.run()
+            if stored is not None:
+                view._found(stored, None)
+            else:
+                view.run()
         except Exception as exc:  # the page shows why, it never fails to render
             return ipw.VBox([heading, ShownHTML(f"<p>No optimum: {html.escape(str(exc))}</p>")])
         return ipw.VBox([heading, view.result, view.use_button]).add_class("lw-optimizer-view")
@@ -165,6 +181,7 @@ def build(source=None) -> ipw.VBox:
     guard_kernel()
     try:
         study = source if isinstance(source, Study) else open_study(source)
+        study_file = None if isinstance(source, Study) else study_path(source)
         shared = shared_model(study, read_only=True)
     except (LevelwiseError, OSError) as exc:  # the page says what is wrong; it never shows a traceback
         return unavailable(exc)
@@ -184,7 +201,7 @@ def build(source=None) -> ipw.VBox:
             continue
         view = view_class(shared)
         views.append(view)
-        children.append(_read_only_part(name, view))
+        children.append(_read_only_part(name, view, study_file))
     page = ipw.VBox(children).add_class("lw-present").add_class(NO_MATH)  # no text on the page is typeset
     page.shared, page.views, page.study = shared, views, study
     return page

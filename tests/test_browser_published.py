@@ -72,9 +72,9 @@ def fits_shown(page) -> dict:
     return json.loads(html.unescape(raw))
 
 
-def test_published_folder_holds_only_the_four_files(published_dir):
+def test_published_folder_holds_only_the_five_files(published_dir):
     assert sorted(p.name for p in Path(published_dir).iterdir()) == sorted(
-        ["present.ipynb", "study.json", "voila.json", "README.md"]
+        ["present.ipynb", "study.json", "voila.json", "README.md", "optimum.json"]
     )
 
 
