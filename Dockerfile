@@ -21,7 +21,7 @@ COPY widgets ./widgets
 COPY dashboards ./dashboards
 RUN pip install . && useradd --create-home --uid 1000 viewer
 
-# The published folder (present.ipynb, study.json, voila.json, README.md), mounted read-only at run time.
+# The published folder (present.ipynb, study.json, voila.json, README.md, optimum.json), mounted read-only at run time.
 VOLUME ["/srv/board"]
 USER viewer
 EXPOSE 8866

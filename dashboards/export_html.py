@@ -155,8 +155,11 @@ def render(study: Study) -> str:
         "__CAUTION__": CAUTION,
         "__TITLE__": html.escape(title_of(study)),
     }
-    # One pass, so text inside the study (a name, a note) can never be taken for a placeholder.
-    template = (ASSETS / f"{page}.html").read_text(encoding="utf-8")
+    # The page's own styles and body in the shared frame (our assets only), then one pass over the data, so
+    # text inside the study (a name, a note) can never be taken for a placeholder.
+    style, body = (ASSETS / f"{page}.html").read_text(encoding="utf-8").split("</style>\n", 1)
+    template = (ASSETS / "export_frame.html").read_text(encoding="utf-8")
+    template = template.replace("__PAGE_STYLE__\n", style.removeprefix("<style>\n")).replace("__PAGE_BODY__\n", body)
     return re.sub("|".join(parts), lambda match: parts[match.group(0)], template)
 
 

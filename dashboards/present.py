@@ -18,9 +18,10 @@ import ipywidgets as ipw
 from levelwise import LevelwiseError, Study
 from levelwise.widgets.style import NO_MATH, wrapped_html
 
+from . import stored_optimum
 from ._compose import find_view
 from .kernel_guard import guard_kernel, log_line
-from .study_source import goals_of, open_study, shared_model, title_of
+from .study_source import goals_of, open_study, shared_model, study_path, title_of
 from .summary import caution_html, fingerprint, fit_numbers, summary_html
 
 #: The views of the stakeholder page, in page order (the workbench's mutating views, the design
@@ -104,27 +105,77 @@ def study_goals(shared) -> dict:
     return goals
 
 
-def _read_only_part(name: str, view):
-    """The part of a view a stakeholder sees: no editors, only what shows the study and moves the settings."""
+def set_study_goals(view) -> bool:
+    """Give an optimiser view the study's recorded goals; False when the study records none."""
+    goals = study_goals(view.shared)
+    if not goals:
+        return False
+    for response, goal in goals.items():
+        kind = goal.pop("kind")
+        if kind == "target" and goal.get("target") is None:
+            continue
+        view.set_goal(response, kind, **goal)
+    return True
+
+
+def _read_only_part(name: str, view, study_file=None):
+    """The part of a view a stakeholder sees: no editors, only what shows the study and moves the settings.
+
+    *study_file*: the published study file, beside which ``levelwise publish`` stored the optimum
+    (:mod:`.stored_optimum`); the page searches only when no stored optimum matches.
+    """
     if name == "PredictionsView":
         # Adding the current settings as a row is a viewer's note, not a change to the study.
         return ipw.VBox([view.add_button, view.table, view.download]).add_class("lw-predictions-view")
     if name == "OptimizerView":
         heading = ShownHTML("<h3>Best settings for the study's goals</h3>")
-        goals = study_goals(view.shared)
-        if not goals:
+        if not set_study_goals(view):
             return ipw.VBox([heading, ShownHTML("<p>The study records no goals to optimise.</p>")])
-        for response, goal in goals.items():
-            kind = goal.pop("kind")
-            if kind == "target" and goal.get("target") is None:
-                continue
-            view.set_goal(response, kind, **goal)
+        stored = stored_optimum.read(study_file, view) if study_file is not None else None
         try:
-            view.run()
+            if stored is not None:
+                view._found(stored, None)
+            else:
+                view.run()
         except Exception as exc:  # the page shows why, it never fails to render
             return ipw.VBox([heading, ShownHTML(f"<p>No optimum: {html.escape(str(exc))}</p>")])
         return ipw.VBox([heading, view.result, view.use_button]).add_class("lw-optimizer-view")
     return view.widget
+
+
+def widget_closure(root) -> dict:
+    """Every widget *root* shows or refers to (children, layouts, styles, figures' marks, scales and axes...),
+    by model id: the widget models a browser showing *root* needs."""
+    found, todo = {}, [root]
+    while todo:
+        item = todo.pop()
+        if isinstance(item, ipw.Widget):
+            if item.comm is None or item.model_id in found:
+                continue
+            found[item.model_id] = item
+            todo.extend(getattr(item, name, None) for name in item.keys)
+        elif isinstance(item, (list, tuple)):
+            todo.extend(item)
+        elif isinstance(item, dict):
+            todo.extend(item.values())
+    return found
+
+
+def close_unshown(page, views) -> int:
+    """Close the widgets of *views* that the read-only *page* does not show (the optimiser's goal editors, the
+    predictions' editors...): a browser opening the page then creates only the models it shows (about 220 of
+    540 on the demo page), and nothing it cannot see is sent to it. Returns how many were closed."""
+    shown = widget_closure(page)
+    closed = 0
+    for view in views:
+        full = getattr(view, "widget", None)
+        if not isinstance(full, ipw.Widget):
+            continue
+        for model_id, widget in widget_closure(full).items():
+            if model_id not in shown:
+                widget.close()
+                closed += 1
+    return closed
 
 
 _QUOTED_PATH = re.compile(r"""(['"])(?:[A-Za-z]:)?[/\\][^'"]*?([^/\\'"]*)\1""")
@@ -165,6 +216,7 @@ def build(source=None) -> ipw.VBox:
     guard_kernel()
     try:
         study = source if isinstance(source, Study) else open_study(source)
+        study_file = None if isinstance(source, Study) else study_path(source)
         shared = shared_model(study, read_only=True)
     except (LevelwiseError, OSError) as exc:  # the page says what is wrong; it never shows a traceback
         return unavailable(exc)
@@ -184,7 +236,8 @@ def build(source=None) -> ipw.VBox:
             continue
         view = view_class(shared)
         views.append(view)
-        children.append(_read_only_part(name, view))
+        children.append(_read_only_part(name, view, study_file))
     page = ipw.VBox(children).add_class("lw-present").add_class(NO_MATH)  # no text on the page is typeset
+    close_unshown(page, views)
     page.shared, page.views, page.study = shared, views, study
     return page

@@ -1,12 +1,15 @@
 """Write a self-contained published dashboard folder.
 
-The folder holds exactly four files, nothing a viewer should not download and nothing the
+The folder holds these five files, nothing a viewer should not download and nothing the
 server would hand out (voila serves none of the folder's files; see :mod:`levelwise.dashboards.hardening`):
 
 - ``present.ipynb`` — the read-only stakeholder notebook (one import and one call);
 - ``study.json`` — the study it shows;
 - ``voila.json`` — the hardened voila configuration;
-- ``README.md`` — how to run it.
+- ``README.md`` — how to run it;
+- ``optimum.json`` — the best settings for the study's goals, searched once here (see
+  :mod:`levelwise.dashboards.stored_optimum`); optional: without it, or when it does not match the study,
+  the page searches itself.
 """
 
 from __future__ import annotations
@@ -15,14 +18,16 @@ import json
 import shutil
 from pathlib import Path
 
-from levelwise import LevelwiseError
+from levelwise import LevelwiseError, Study
 
 from . import NOTEBOOKS
 from .hardening import voila_config
 from .study_source import STUDY_FILE
 
-#: Every file a published folder holds.
+#: Every file a published folder must hold.
 PUBLISHED_FILES = ("present.ipynb", STUDY_FILE, "voila.json", "README.md")
+#: The file ``publish`` adds when the study records goals (:mod:`.stored_optimum`); a folder without it still works.
+OPTIONAL_FILES = ("optimum.json",)
 
 README = """# {title}: read-only dashboard
 
@@ -32,6 +37,8 @@ This folder was written by `levelwise publish`. It holds:
   traces and intervals, the surface slice, the predictions and the optimum);
 - `study.json`: the study it shows (the data file; the server never hands it out);
 - `voila.json`: the hardened server configuration;
+- `optimum.json`: the best settings for the study's goals, searched once when publishing (the page
+  searches again itself if this file is missing or does not match `study.json`);
 - this README.
 
 ## Run it
@@ -89,7 +96,7 @@ def publish(study, out) -> Path:
     if out.exists() and (not out.is_dir() or any(out.iterdir())):
         raise LevelwiseError(
             f"The output folder {str(out)!r} must not exist yet or be empty (a published folder holds only "
-            f"{', '.join(PUBLISHED_FILES)}). Choose a new folder."
+            f"{', '.join(PUBLISHED_FILES + OPTIONAL_FILES)}). Choose a new folder."
         )
     source = open_study(study)  # read it first: a study that does not load is not published
     path = study_path(study)
@@ -101,4 +108,31 @@ def publish(study, out) -> Path:
     (out / "voila.json").write_text(json.dumps(config, indent=2) + "\n", encoding="utf-8")
     cull = config["MappingKernelManager"]["cull_idle_timeout"]
     (out / "README.md").write_text(README.format(title=title_of(source), cull=cull), encoding="utf-8")
+    store_optimum(out)
     return out
+
+
+def store_optimum(folder) -> Path | None:
+    """Search the published page's optimum once, as the page would, and store it beside the study
+    (:mod:`.stored_optimum`): every viewer's kernel then shows it without running the search."""
+    from . import stored_optimum
+    from ._compose import find_view
+    from .present import set_study_goals
+    from .study_source import shared_model
+
+    study_file = Path(folder) / STUDY_FILE
+    shared = shared_model(Study.load(study_file), read_only=True)
+    view_class = find_view("OptimizerView")
+    if view_class is None:
+        return None
+    view = view_class(shared)
+    if not set_study_goals(view):
+        return None
+    from threadpoolctl import threadpool_limits
+
+    try:
+        with threadpool_limits(1):  # one BLAS thread, as in the viewers' kernels: the same numbers as their search
+            view.run()  # no event loop here: the search runs at once
+    except LevelwiseError:
+        return None  # the page will say why
+    return stored_optimum.write(folder, study_file, view)

@@ -72,9 +72,9 @@ def fits_shown(page) -> dict:
     return json.loads(html.unescape(raw))
 
 
-def test_published_folder_holds_only_the_four_files(published_dir):
+def test_published_folder_holds_only_the_five_files(published_dir):
     assert sorted(p.name for p in Path(published_dir).iterdir()) == sorted(
-        ["present.ipynb", "study.json", "voila.json", "README.md"]
+        ["present.ipynb", "study.json", "voila.json", "README.md", "optimum.json"]
     )
 
 
@@ -122,8 +122,9 @@ def test_slider_moves_prediction_to_kernel_value(opened):
 
 
 def test_a_click_on_the_slice_moves_its_two_factors_to_the_nearest_grid_point(opened):
-    """A click on the slice reaches its (invisible) click targets and moves the two axis factors to the nearest
-    of the 41 x 41 grid points; the readout follows (the marker and traces are coalesced since issue 17)."""
+    """A click on the slice goes through its marks to the figure's event rectangle (the heat map, contours and
+    points let clicks through), the click catcher adds the point, and the kernel moves the two axis factors to
+    the nearest of the 41 x 41 grid points; the readout follows (the marker and traces are coalesced)."""
     page, _ = opened
     handles = page.locator(".lw-slider .noUi-handle")
     page.locator(".lw-slice").first.scroll_into_view_if_needed()
@@ -136,7 +137,7 @@ def test_a_click_on_the_slice_moves_its_two_factors_to_the_nearest_grid_point(op
     at = (box["x"] + 0.25 * box["width"], box["y"] + 0.75 * box["height"])
     hit = page.evaluate("([x, y]) => { const e = document.elementFromPoint(x, y); "
                         "return e ? e.tagName + '.' + e.getAttribute('class') : null; }", list(at))
-    assert hit and hit.startswith("path"), f"the click lands on {hit}, not on a click target"
+    assert hit == "rect.plotarea_events", f"the click lands on {hit}, not on the figure's event rectangle"
     page.mouse.click(*at)
     page.wait_for_function(
         "([sel, old]) => document.querySelector(sel).innerText !== old", arg=[".lw-readout .lw-mean", before],

@@ -15,7 +15,7 @@ import pytest
 
 from levelwise.dashboards import cli
 from levelwise.dashboards.hardening import CONNECTION_CLASS, THREAD_ENV, offered_subprotocols, server_env, voila_config
-from levelwise.dashboards.publish import PUBLISHED_FILES
+from levelwise.dashboards.publish import OPTIONAL_FILES, PUBLISHED_FILES
 
 COMMANDS = ["serve", "publish", "view", "export-html"]
 
@@ -41,10 +41,10 @@ def test_bad_usage_exits_2(args):
     assert "usage: levelwise" in done.stderr
 
 
-def test_publish_writes_exactly_the_four_files(tmp_path, capsys):
+def test_publish_writes_exactly_the_five_files(tmp_path, capsys):
     out = tmp_path / "board"
     assert cli.main(["publish", "demo", "--out", str(out)]) == 0
-    assert sorted(p.name for p in out.iterdir()) == sorted(PUBLISHED_FILES)
+    assert sorted(p.name for p in out.iterdir()) == sorted(PUBLISHED_FILES + OPTIONAL_FILES)
     assert f"levelwise view {out}" in capsys.readouterr().out
     config = json.loads((out / "voila.json").read_text())
     assert config == voila_config()

@@ -11,6 +11,7 @@ import io
 import threading
 from unittest import mock
 
+import bqplot as bq
 import numpy as np
 import pandas as pd
 import pytest
@@ -142,11 +143,43 @@ def test_readout_covers_every_response_and_the_display_choice_switches_traces():
 
 
 def test_clicking_the_slice_sets_both_axis_factors(shared, views):
+    """A click adds one point to the click catcher (bqplot's "add" mode sends the catcher's x and y with the
+    point appended); the axis factors move to the nearest of the 41 x 41 grid points and the catcher is
+    cleared for the next click."""
     surface = views["slice"]
-    xs, ys = surface._target_axes()
-    browser_event(surface.targets, {"event": "element_click", "data": {"index": 3 * 41 + 7}})
-    assert shared.settings["Oven"] == pytest.approx(xs[7])
-    assert shared.settings["Dwell"] == pytest.approx(ys[3])
+    low_x, high_x = demo.FACTORS[0].low, demo.FACTORS[0].high  # Oven, the slice's first axis factor
+    low_y, high_y = demo.FACTORS[1].low, demo.FACTORS[1].high  # Dwell
+    # 0.4 of a grid step past grid point 7 across and 0.3 of a step short of grid point 3 up.
+    at_x = low_x + (7 + 0.4) * (high_x - low_x) / 40
+    at_y = low_y + (3 - 0.3) * (high_y - low_y) / 40
+    browser_update(surface.clicks, x=[at_x], y=[at_y])
+    assert shared.settings["Oven"] == pytest.approx(low_x + 7 * (high_x - low_x) / 40)
+    assert shared.settings["Dwell"] == pytest.approx(low_y + 3 * (high_y - low_y) / 40)
+    assert len(surface.clicks.x) == 0 and len(surface.clicks.y) == 0
+    # A second click far outside the plot area snaps to the grid's corner (the tested range), never beyond.
+    browser_update(surface.clicks, x=[high_x + 1000.0], y=[low_y - 1000.0])
+    assert (shared.settings["Oven"], shared.settings["Dwell"]) == pytest.approx((high_x, low_y))
+
+
+def test_a_crafted_click_without_a_finite_point_changes_nothing(shared, views):
+    surface = views["slice"]
+    before = dict(shared.settings)
+    browser_update(surface.clicks, x=["not a number"], y=[1.0])
+    browser_update(surface.clicks, x=[float("nan")], y=[12.0])
+    assert shared.settings == before
+    assert "finite position on both axes" in surface.status.value
+    assert len(surface.clicks.x) == 0
+
+
+def test_the_slice_carries_no_grid_of_click_targets(shared, views):
+    """Every mark of the slice stays small: no mark draws one element per click grid point (a 41 x 41 grid
+    of invisible targets was three quarters of the published page's elements, redrawn on every frame)."""
+    surface = views["slice"]
+    surface.flush()
+    for mark in surface.figure.marks:
+        if isinstance(mark, bq.Scatter):
+            assert np.size(mark.x) <= len(demo.demo_data()), type(mark).__name__
+    assert surface.clicks.interactions == {"click": "add"}
 
 
 def test_slice_refreshes_are_coalesced_inside_an_event_loop(shared, views):

@@ -36,6 +36,21 @@ def set_if_changed(mark, **arrays) -> None:
         setattr(mark, name, value)
 
 
+def snapped_echo(slider, value, current) -> bool:
+    """Whether a slider's new *value* is the browser putting the kernel's *current* value on its step grid.
+
+    A browser's slider snaps every value the kernel sends it to ``min + k * step`` and, with continuous updates,
+    sends the snapped value back as a change. That is not a move: taken as one, it would shift a setting the
+    kernel chose (an optimum, a clicked point) and, for mixture components, rescale the others, whose own echoes
+    would go on. A snap is at most half a step from the value sent; a user's move (a drag or a key) lands at
+    least half a step away from it.
+    """
+    step = getattr(slider, "step", None)  # a categorical factor's list of levels has none
+    if current is None or step is None:
+        return False
+    return abs(float(value) - float(current)) <= 0.5 * float(step) * (1.0 + 1e-9)
+
+
 def error_html(message: str) -> str:
     return f'<div class="lw-error">{html.escape(message)}</div>' if message else ""
 
@@ -77,7 +92,7 @@ class Coalescer:
             self._handle = None
 
 
-class Debouncer:
+class Debouncer(Coalescer):
     """Run *work* once the requests have stopped for *delay* seconds: every request restarts the wait.
 
     Used where one change starts expensive work (a design search), so typing or clicking "Add a factor" five
@@ -85,7 +100,7 @@ class Debouncer:
     """
 
     def __init__(self, work, delay: float = 0.6):
-        self.work, self.delay, self._handle = work, delay, None
+        super().__init__(work, delay)
 
     def request(self) -> None:
         try:
@@ -93,29 +108,12 @@ class Debouncer:
         except RuntimeError:
             self.work()
             return
-        if self._handle is not None:
-            self._handle.cancel()
+        self.cancel()
         self._handle = loop.call_later(self.delay, self._run)
 
     @property
     def pending(self) -> bool:
         return self._handle is not None
-
-    def _run(self) -> None:
-        self._handle = None
-        self.work()
-
-    def flush(self) -> None:
-        """Run pending work now."""
-        if self._handle is not None:
-            self._handle.cancel()
-            self._handle = None
-            self.work()
-
-    def cancel(self) -> None:
-        if self._handle is not None:
-            self._handle.cancel()
-            self._handle = None
 
 
 class _Token:

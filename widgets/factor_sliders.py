@@ -19,7 +19,7 @@ import numpy as np
 from levelwise import LevelwiseError
 
 from . import _count_display as counts
-from ._base import Coalescer, View, f32, set_if_changed
+from ._base import Coalescer, View, f32, set_if_changed, snapped_echo
 from .shared_model import SharedModel, is_categorical
 from .style import CI_COLOR, CURRENT_MARKER, MEAN_COLOR, OKABE_ITO, PI_COLOR, WORDS, fmt, inert_html
 
@@ -197,6 +197,9 @@ class FactorSliders(View):
         if getattr(self, "_restoring", False):
             return
         name = next(n for n, s in self.sliders.items() if s is change["owner"])
+        if snapped_echo(change["owner"], change["new"], self.shared.settings.get(name)):
+            self._pending.pop(name, None)  # back where the kernel has it: no move, and none pending
+            return
         self._pending[name] = (change["owner"], change["new"])
         self._slider_coalescer.request()
 

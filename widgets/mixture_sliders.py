@@ -15,7 +15,7 @@ import ipywidgets as ipw
 
 from levelwise import LevelwiseError
 
-from ._base import Coalescer, View
+from ._base import Coalescer, View, snapped_echo
 from .factor_sliders import readout_html
 from .shared_model import SharedModel
 from .style import fmt, inert_html
@@ -100,6 +100,9 @@ class MixtureSliders(View):
         if getattr(self, "_restoring", False):
             return
         name = next(n for n, s in self.sliders.items() if s is change["owner"])
+        if snapped_echo(change["owner"], change["new"], self.shared.settings.get(name)):
+            self._pending.pop(name, None)  # back where the kernel has it: no move, and none pending
+            return
         self._pending[name] = change["new"]
         self._coalescer.request()
 

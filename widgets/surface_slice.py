@@ -40,8 +40,13 @@ from .style import (
 MIXTURE_NOTE = ("<p>A surface slice varies two factors independently; the components of a mixture study always sum "
                 "to the total, so they are drawn by the ternary slice instead.</p>")
 
-#: Clickable (invisible) targets per axis: a click sets the nearest of these grid points.
+#: Grid points per axis that a click on the slice snaps to (the nearest one).
 CLICK_GRID = 41
+
+#: The slice's marks let clicks through to the figure's own event rectangle beneath them (bqplot's
+#: ``plotarea_events``), so that a click anywhere on the plot area reaches the click catcher (``clicks``).
+CLICK_THROUGH = ("<style>.lw-slice svg.svg-figure > g > g, .lw-slice svg.svg-figure > g > g * "
+                 "{ pointer-events: none; }</style>")
 
 
 #: The largest colour code; the codes 0..CODES span the quantity's finite range, CODES + 1 marks a cell that is
@@ -138,7 +143,9 @@ class SurfaceSlice(View):
         desirability uses the shared model's ``goals`` (levelwise ``Goal`` and ``overall_desirability``).
     figure : bqplot.Figure
         ``lw-slice``: ``heatmap`` (HeatMap), ``contour_lines`` (Lines), ``contour_labels`` (Label),
-        ``points`` (design points, Scatter), ``marker`` (current setting), ``targets`` (click grid).
+        ``points`` (design points, Scatter), ``marker`` (current setting), ``clicks`` (the click catcher: an
+        empty Scatter in bqplot's "add" mode; a click on the plot area adds one point there, and the kernel
+        moves the two axis factors to the nearest of ``CLICK_GRID`` x ``CLICK_GRID`` grid points and clears it).
     widget : ipywidgets.VBox
         The whole view (``lw-surface-slice``).
     """
@@ -193,25 +200,29 @@ class SurfaceSlice(View):
             scales={"x": self.sx, "y": self.sy}, colors=[EXCLUDED_COLOR], fill=False, default_size=50,
             marker="square",
         )
-        self.targets = bq.Scatter(
-            scales={"x": self.sx, "y": self.sy}, opacities=[0.0], default_size=120, marker="square",
-            colors=["#000000"],
+        # One invisible point at most, where the viewer clicked (not a grid of invisible click targets: 41 x 41
+        # of them were three quarters of the page's elements, and the browser re-layered them on every frame).
+        self.clicks = bq.Scatter(
+            scales={"x": self.sx, "y": self.sy}, x=f32([]), y=f32([]), opacities=[0.0], default_size=1,
+            colors=["#000000"], interactions={"click": "add"},
         )
-        self.targets.on_element_click(self.safely(self._on_click))
+        self.clicks.observe(self.safely(self._on_click), names=["x", "y"])
         self.marker = bq.Scatter(scales={"x": self.sx, "y": self.sy}, **CURRENT_MARKER)
         self.color_axis = bq.ColorAxis(scale=self.label_scale, side="right", label="")
         self.x_axis = bq.Axis(scale=self.sx, label="", num_ticks=5)
         self.y_axis = bq.Axis(scale=self.sy, side="left", label="", num_ticks=5)
         self.figure = bq.Figure(
             marks=[self.heatmap, self.contour_lines, self.contour_labels, self.points, self.excluded_points,
-                   self.targets, self.marker],
+                   self.clicks, self.marker],
             axes=[self.x_axis, self.y_axis, self.color_axis],
             layout=ipw.Layout(width="520px", height="440px"),
             fig_margin={"top": 20, "bottom": 50, "left": 60, "right": 90},
             animation_duration=0,
         ).add_class("lw-slice")
+        click_through = ipw.HTML(CLICK_THROUGH, layout=ipw.Layout(display="none"))
         self.widget = ipw.VBox(
-            [ipw.HBox([self.x_factor, self.y_factor]), self.quantity, self.figure, self.caption, self.status]
+            [ipw.HBox([self.x_factor, self.y_factor]), self.quantity, self.figure, self.caption, self.status,
+             click_through]
         ).add_class("lw-surface-slice")
 
         self._key = None
@@ -254,12 +265,23 @@ class SurfaceSlice(View):
         self.show_shared_error()
         self._coalescer.request()
 
-    def _on_click(self, mark, content):
-        index = int(content["data"]["index"])
+    def _on_click(self, change):
+        """A point added by a click (bqplot's "add" mode): move the axis factors to the nearest grid point."""
+        sent_x, sent_y = self.clicks.x, self.clicks.y
+        if len(sent_x) == 0 and len(sent_y) == 0:
+            return  # the catcher was just cleared
+        with self.clicks.hold_sync():  # ready for the next click
+            self.clicks.x, self.clicks.y = f32([]), f32([])
+        try:  # the last point added is the click (one at a time, unless a client sends more)
+            px, py = float(np.ravel(sent_x)[-1]), float(np.ravel(sent_y)[-1])
+        except (TypeError, ValueError, IndexError):
+            px = py = float("nan")
+        if not (np.isfinite(px) and np.isfinite(py)):
+            raise LevelwiseError(
+                "A click on the slice must give a finite position on both axes. Got "
+                f"{len(sent_x)} value(s) across and {len(sent_y)} up, the last ones not usable.")
         xs, ys = self._target_axes()
-        i, j = divmod(index, CLICK_GRID)
-        if not 0 <= index < CLICK_GRID * CLICK_GRID:
-            raise LevelwiseError(f"A click on the slice must hit one of {CLICK_GRID ** 2} targets. Got index {index}.")
+        j, i = int(np.argmin(np.abs(xs - px))), int(np.argmin(np.abs(ys - py)))
         try:
             self.shared.set_settings(**{self.x_factor.value: float(xs[j]), self.y_factor.value: float(ys[i])})
         except LevelwiseError as exc:
@@ -318,8 +340,6 @@ class SurfaceSlice(View):
             levels = list(np.linspace(finite.min(), finite.max(), self.n_contours + 2)[1:-1])
         cx, cy, labels = contour_paths(grid["x"], grid["y"], z, levels)
         run_x, run_y, used = self._design_points(x, y)
-        tx, ty = self._target_axes()
-        gx, gy = np.meshgrid(tx, ty)
         codes, low, high = quantise(z)
         with self.heatmap.hold_sync():
             set_if_changed(self.heatmap, x=f32(grid["x"]), y=f32(grid["y"]), color=codes)
@@ -339,8 +359,6 @@ class SurfaceSlice(View):
         with self.points.hold_sync(), self.excluded_points.hold_sync():
             set_if_changed(self.points, x=f32(run_x[used]), y=f32(run_y[used]))
             set_if_changed(self.excluded_points, x=f32(run_x[~used]), y=f32(run_y[~used]))
-        with self.targets.hold_sync():
-            set_if_changed(self.targets, x=f32(gx.ravel()), y=f32(gy.ravel()))
         with self.sx.hold_sync(), self.sy.hold_sync():
             self.sx.min, self.sx.max = fx.low, fx.high
             self.sy.min, self.sy.max = fy.low, fy.high

@@ -15,22 +15,13 @@ function predict(m, x, pr) {
   mm.components.forEach((n, i) => { at[n] = (x[i] - mm.offset[i]) / mm.divisor; });
   mm.process.forEach((p, j) => { at[p.name] = (pr[j] - p.center) / p.half_range; });
   const coded = m.factors.map((n, i) => (at[n] - m.center[i]) / m.scale[i]);
-  let mean = 0.0, h = 0.0;
   const row = m.exponents.map(e => {
     let v = 1.0;
     for (let i = 0; i < e.length; i++) { for (let p = 0; p < e[i]; p++) { v *= coded[i]; } }
     return v;
   });
-  for (let j = 0; j < row.length; j++) { mean += row[j] * m.beta[j]; }
-  const r = m.cov_factor.length ? m.cov_factor[0].length : 0;
-  for (let c = 0; c < r; c++) {
-    let v = 0.0;
-    for (let j = 0; j < row.length; j++) { v += row[j] * m.cov_factor[j][c]; }
-    h += v * v;
-  }
-  const c = (m.c === null || m.extra === null) ? NaN : m.c;
-  const ciHalf = c * Math.sqrt(h), piHalf = c * Math.sqrt(h + m.extra);
-  let outside = m.limit !== null && h > m.limit;
+  const {mean, h, ciHalf, piHalf, outside: high} = rowBands(m, row);
+  let outside = high;
   m.factors.forEach((n, i) => { if (m.used[i] && (coded[i] < m.low[i] || coded[i] > m.high[i])) { outside = true; } });
   return {mean: mean, ci_low: mean - ciHalf, ci_high: mean + ciHalf, pi_low: mean - piHalf, pi_high: mean + piHalf,
           leverage: h, extrapolated: outside, ci_half: ciHalf, pi_half: piHalf};

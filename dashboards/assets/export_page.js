@@ -50,19 +50,8 @@ const shownUnits = m => m.percent ? "%" : (m.link === "log" ? (m.units ? m.units
 function predict(m, x) {
   const at = {};
   F.forEach((f, i) => { at[f.name] = isCat(f) ? String(f.levels[x[i]]) : x[i]; });
-  const row = modelRow(m, at);
-  let mean = 0.0;
-  for (let j = 0; j < row.length; j++) { mean += row[j] * m.beta[j]; }
-  let h = 0.0;
-  const r = m.cov_factor.length ? m.cov_factor[0].length : 0;
-  for (let c = 0; c < r; c++) {
-    let v = 0.0;
-    for (let j = 0; j < row.length; j++) { v += row[j] * m.cov_factor[j][c]; }
-    h += v * v;
-  }
-  const c = (m.c === null || m.extra === null) ? NaN : m.c;
-  const ciHalf = c * Math.sqrt(h), piHalf = c * Math.sqrt(h + m.extra);
-  let outside = m.limit !== null && h > m.limit;
+  const {mean, h, ciHalf, piHalf, outside: high} = rowBands(m, modelRow(m, at));
+  let outside = high;
   m.factors.forEach((name, i) => {
     if (m.used[i] && !CAT.has(name) && (at[name] < m.low[i] || at[name] > m.high[i])) { outside = true; }
   });

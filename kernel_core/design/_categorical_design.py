@@ -32,12 +32,19 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-import scipy.linalg
 
 from .._errors import LevelwiseError, describe
 from .._stats import stats, t_ppf
 from ..model import parse_model, term_name
-from ._design import Design, _check_count, _check_seed
+from ._design import (
+    Design,
+    _check_count,
+    _check_criterion,
+    _check_enough_runs,
+    _check_progress,
+    _check_seed,
+    _estimable,
+)
 from ._exchange import design_score, exchange_runs
 from ._factors import as_factors
 
@@ -164,21 +171,14 @@ def coordinate_exchange(factors, model, runs, criterion="D", constraints=None, f
     runs = _check_count(runs, "runs", 1)
     starts = _check_count(starts, "starts", 1)
     seed = _check_seed(seed)
-    if criterion not in ("D", "I"):
-        raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
-    if progress is not None and not callable(progress):
-        raise LevelwiseError(f"The 'progress' parameter must be a callable or None. Got {describe(progress)}.")
+    _check_criterion(criterion)
+    _check_progress(progress)
     names = [f.name for f in factors]
     spec = parse_model(model, names)
     cols = model_columns(spec, factors)
     p, k = len(cols.names), len(factors)
     fixed, last_run, last_block = _fixed_coded(fixed_runs, factors)
-    n = runs + len(fixed)
-    if n < p:
-        raise LevelwiseError(
-            f"The model {model!r} has {p} columns but the design would have only {n} runs "
-            f"({runs} new + {len(fixed)} fixed); 'runs' must be at least {p - len(fixed)}."
-        )
+    n = _check_enough_runs(model, p, runs, len(fixed), "columns")
     G, h = parse_constraints(constraints, factors)
     check_region(G, h, constraints)
     W = cols.moment_matrix()
@@ -266,12 +266,7 @@ def evaluate_levels(design, model, alias_terms=None, delta: float = 2.0, alpha: 
     if p > n:
         raise LevelwiseError(f"The model {model!r} has {p} columns but the design has only {n} runs.")
     terms = list(cols.names)
-    _, r, piv = scipy.linalg.qr(X, mode="economic", pivoting=True)
-    diag = np.abs(np.diag(r))
-    tol = max(n, p) * np.finfo(float).eps * (diag[0] if len(diag) else 0.0)
-    rank = int((diag > tol).sum())
-    estimable = np.zeros(p, dtype=bool)
-    estimable[piv[:rank]] = True
+    rank, estimable = _estimable(X)
     # Left-out terms: two-factor interactions not in the model, pure quadratics of continuous factors set at
     # three or more levels (or the terms of alias_terms).
     k = len(names)

@@ -70,6 +70,45 @@ def _check_roles(role, n: int) -> np.ndarray:
     return role
 
 
+def _check_criterion(criterion) -> str:
+    """The optimal searches' 'criterion' parameter: 'D' or 'I'."""
+    if criterion not in ("D", "I"):
+        raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
+    return criterion
+
+
+def _check_progress(progress):
+    """A 'progress' parameter that must be a callable or None."""
+    if progress is not None and not callable(progress):
+        raise LevelwiseError(f"The 'progress' parameter must be a callable or None. Got {describe(progress)}.")
+    return progress
+
+
+def _check_enough_runs(model, p: int, runs: int, fixed: int, what: str = "terms") -> int:
+    """The run count of an optimal search (new + fixed) against the model's *p* columns; returns it."""
+    n = runs + fixed
+    if n < p:
+        raise LevelwiseError(
+            f"The model {model!r} has {p} {what} but the design would have only {n} runs "
+            f"({runs} new + {fixed} fixed); 'runs' must be at least {p - fixed}."
+        )
+    return n
+
+
+def _estimable(X: np.ndarray) -> tuple[int, np.ndarray]:
+    """Numerical rank of a model matrix (column-pivoted QR, the usual tolerance) and which columns it estimates."""
+    import scipy.linalg
+
+    n, p = X.shape
+    _, r, piv = scipy.linalg.qr(X, mode="economic", pivoting=True)
+    diag = np.abs(np.diag(r))
+    tol = max(n, p) * np.finfo(float).eps * (diag[0] if len(diag) else 0.0)
+    rank = int((diag > tol).sum())
+    estimable = np.zeros(p, dtype=bool)
+    estimable[piv[:rank]] = True
+    return rank, estimable
+
+
 def _check_seed(seed):
     if seed is not None and (isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0):
         raise LevelwiseError(f"The 'seed' parameter must be None or an integer >= 0. Got {describe(seed)} instead.")

@@ -7,11 +7,10 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-import scipy.linalg
 
 from .._errors import LevelwiseError, describe
 from .._stats import stats, t_ppf
-from ._design import Design
+from ._design import Design, _estimable
 from ._region import moment_matrix, sample_region
 
 
@@ -158,12 +157,7 @@ def evaluate(design, model, alias_terms=None, delta: float = 2.0, alpha: float =
     if p > n:
         raise LevelwiseError(f"The model {model!r} has {p} terms but the design has only {n} runs.")
     terms = list(spec.terms)
-    _, r, piv = scipy.linalg.qr(X, mode="economic", pivoting=True)
-    diag = np.abs(np.diag(r))
-    tol = max(n, p) * np.finfo(float).eps * (diag[0] if len(diag) else 0.0)
-    rank = int((diag > tol).sum())
-    estimable = np.zeros(p, dtype=bool)
-    estimable[piv[:rank]] = True
+    rank, estimable = _estimable(X)
     est = pd.Series(estimable, index=terms, name="estimable")
     # Left-out terms
     if alias_terms is None:

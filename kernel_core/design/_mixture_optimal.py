@@ -18,7 +18,7 @@ import math
 import numpy as np
 
 from .._errors import LevelwiseError, describe
-from ._design import _check_count, _check_seed
+from ._design import _check_count, _check_criterion, _check_progress, _check_seed
 from ._exchange import design_score, exchange_runs
 from ._factors import Factor
 from ._mixture import mixture_design
@@ -144,10 +144,8 @@ def mixture_optimal_design(factors, model, runs, criterion="D", constraints=None
     runs = _check_count(runs, "runs", 1)
     starts = _check_count(starts, "starts", 1)
     seed = _check_seed(seed)
-    if criterion not in ("D", "I"):
-        raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
-    if progress is not None and not callable(progress):
-        raise LevelwiseError(f"The 'progress' parameter must be a callable or None. Got {describe(progress)}.")
+    _check_criterion(criterion)
+    _check_progress(progress)
     q, k = mixture.q, len(process)
     names = mixture.names + [f.name for f in process]
     E = model_exponents(model, mixture.names, [f.name for f in process])

@@ -22,7 +22,7 @@ import pandas as pd
 
 from .._errors import LevelwiseError, describe
 from .._progress import Reporter
-from ._design import Design, _check_count, _check_seed
+from ._design import Design, _check_count, _check_criterion, _check_enough_runs, _check_seed
 from ._exchange import design_score, exchange_runs
 from ._factors import as_factors
 from ._region import check_region, moment_matrix, parse_constraints, sample_region
@@ -215,8 +215,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
     runs = _check_count(runs, "runs", 1)
     starts = _check_count(starts, "starts", 1)
     seed = _check_seed(seed)
-    if criterion not in ("D", "I"):
-        raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
+    _check_criterion(criterion)
     reporter = Reporter(progress, label=f"{criterion}-optimal search")
     from ..model import parse_model
 
@@ -231,12 +230,7 @@ def optimal_design(factors, model, runs, criterion="D", constraints=None, fixed_
             "factor has no curvature. Use a model without those terms."
         )
     fixed, last_run, last_block = _fixed_coded(fixed_runs, factors)
-    n = runs + len(fixed)
-    if n < p:
-        raise LevelwiseError(
-            f"The model {model!r} has {p} terms but the design would have only {n} runs "
-            f"({runs} new + {len(fixed)} fixed); 'runs' must be at least {p - len(fixed)}."
-        )
+    n = _check_enough_runs(model, p, runs, len(fixed))
     G, h = parse_constraints(constraints, factors)
     check_region(G, h, constraints)
     rng = np.random.default_rng(seed)

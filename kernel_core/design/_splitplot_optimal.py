@@ -43,7 +43,7 @@ def split_plot_optimal(factors, model, runs, whole_plots, criterion="D", varianc
                        progress=None, randomize=True):
     """D- or I-optimal split-plot design; see :func:`levelwise.optimal_design` (``whole_plots=``)."""
     from ..model import parse_model
-    from ._design import Design, _check_count, _check_seed
+    from ._design import Design, _check_count, _check_criterion, _check_seed
     from ._factors import as_factors
     from ._region import moment_matrix
 
@@ -64,8 +64,7 @@ def split_plot_optimal(factors, model, runs, whole_plots, criterion="D", varianc
     seed = _check_seed(seed)
     if whole_plots > runs:
         raise LevelwiseError(f"The 'whole_plots' parameter ({whole_plots}) must not exceed 'runs' ({runs}).")
-    if criterion not in ("D", "I"):
-        raise LevelwiseError(f"The 'criterion' parameter must be 'D' or 'I'. Got {describe(criterion)} instead.")
+    _check_criterion(criterion)
     if isinstance(variance_ratio, bool) or not isinstance(variance_ratio, (int, float)) or not (
             math.isfinite(variance_ratio) and variance_ratio >= 0):
         raise LevelwiseError(f"The 'variance_ratio' parameter (whole-plot / residual variance) must be a finite "

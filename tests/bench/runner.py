@@ -98,6 +98,8 @@ def fmt_value(value, unit: str) -> str:
         return f"{value:.0f} MB"
     if unit == "ms":
         return f"{value:.1f} ms"
+    if unit == "KB":
+        return f"{value:.2f} KB"
     if value >= 1.0:
         return f"{value:.3g} s"
     if value >= 1e-3:
