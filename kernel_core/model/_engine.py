@@ -480,18 +480,23 @@ class PredictionEngine(SettingsCheck):
         plan = self.plan
         out = {"point": None, "traces": None, "slice": None}
         if plan is not None and points is not None:  # the point and every trace from one chain of products
-            xs, mean0, h0, mean, h, table = plan.event(natural, points)
-            powers = plan.powers_of(table) if slice_axes is not None else None
+            xs, block = plan.event(natural, points)
+            powers = plan.powers(natural) if slice_axes is not None else None
             c = self._scale(level)
+            h = block[1]
+            np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
             if point:
+                mean0, h0 = block[:, -1].tolist()
                 out["point"] = self._point_of(natural, mean0, h0, c)
             ci = np.sqrt(h)
             ci *= c
             h += self.extra
             pi = np.sqrt(h, out=h)
             pi *= c
-            out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_half": ci[j], "pi_half": pi[j]}
-                             for j, name in enumerate(self.factor_names)}
+            k = self.k
+            out["traces"] = {name: {"x": x, "mean": m, "ci_half": lo, "pi_half": hi} for name, x, m, lo, hi
+                             in zip(self.factor_names, xs, plan.traces_of(block)[0], ci[:-1].reshape(k, -1),
+                                    pi[:-1].reshape(k, -1))}
         else:
             powers = plan.powers(natural) if plan is not None else None  # shared by the point and the slice
             if point:

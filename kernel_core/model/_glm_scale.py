@@ -19,6 +19,7 @@ from ._settings import check_points
 
 _SQRT_2PI = math.sqrt(2.0 * math.pi)
 _SIGNS = np.array([0.0, -1.0, 1.0])  # the mean, then the lower and upper ends of a band
+_PLUS_MINUS = np.array([[-1.0], [1.0]])  # the lower and upper ends
 
 
 def inverse_link(link, eta, out=None):
@@ -86,20 +87,24 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
         level = engine._level(level)
         out = {"point": None, "traces": None, "slice": None}
         if points is not None and point:  # the point and every trace from one chain of products, one inverse link
-            xs, eta0, h0, eta, h, table = plan.event(natural, check_points(points))
-            powers = plan.powers_of(table) if slice_axes is not None else None
-            c = engine._scale(level)
-            half = np.sqrt(h, out=h)
-            half *= c
-            bands = transform(link, eta, half)
-            half0 = c * math.sqrt(h0)
-            out["point"] = {"mean": inverse_link_scalar(link, eta0), "ci_low": inverse_link_scalar(link, eta0 - half0),
-                            "ci_high": inverse_link_scalar(link, eta0 + half0), "link_mean": eta0,
+            xs, block = plan.event(natural, check_points(points), 5)
+            powers = plan.powers(natural) if slice_axes is not None else None
+            h = block[1]  # rows: eta, h, then eta three times for the mean, lower and upper ends
+            np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
+            half = np.sqrt(h)
+            half *= engine._scale(level)
+            ends = block[3:]
+            ends += np.multiply(_PLUS_MINUS, half)  # eta -/+ the half-width
+            bands = block[2:]
+            inverse_link(link, bands, out=bands)
+            eta0, h0, mean, low, high = block[:, -1].tolist()
+            out["point"] = {"mean": mean, "ci_low": low, "ci_high": high, "link_mean": eta0,
                             "pi_low": math.nan, "pi_high": math.nan,  # see GlmFit.new_observation_note
                             "extrapolated": engine.outside_one(natural, h0)}
-            mean, low, high = bands["mean"], bands["ci_low"], bands["ci_high"]
-            out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_low": low[j], "ci_high": high[j],
-                                    "link_mean": eta[j]} for j, name in enumerate(engine.factor_names)}
+            traces = plan.traces_of(block)
+            out["traces"] = {name: {"x": x, "mean": m, "ci_low": lo, "ci_high": hi, "link_mean": e}
+                             for name, x, e, m, lo, hi in zip(engine.factor_names, xs, traces[0], traces[2],
+                                                                traces[3], traces[4])}
         else:
             powers = plan.powers(natural)
             if point:
