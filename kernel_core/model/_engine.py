@@ -493,9 +493,10 @@ class PredictionEngine(SettingsCheck):
             h += self.extra
             pi = np.sqrt(h, out=h)
             pi *= c
-            traces = plan.traces_of
+            k = self.k  # the traces without the setting's column (see plan.event)
             out["traces"] = {name: {"x": x, "mean": m, "ci_half": lo, "pi_half": hi} for name, x, m, lo, hi
-                             in zip(self.factor_names, xs, traces(mean), traces(ci), traces(pi))}
+                             in zip(self.factor_names, xs, mean[:-1].reshape(k, -1), ci[:-1].reshape(k, -1),
+                                    pi[:-1].reshape(k, -1))}
         else:
             powers = plan.powers(natural) if plan is not None else None  # shared by the point and the slice
             if point:

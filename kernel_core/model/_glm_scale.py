@@ -89,7 +89,8 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
             xs, eta, h = plan.event(natural, check_points(points))
             powers = plan.powers(natural) if slice_axes is not None else None
             np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
-            half = np.sqrt(h)
+            h0 = h.item(-1)
+            half = np.sqrt(h, out=h)
             half *= engine._scale(level)
             bands = np.empty((3, len(eta)))  # the mean, lower and upper ends, one inverse link for all
             bands[0] = eta
@@ -99,11 +100,12 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
             mean, low, high = bands[:, -1].tolist()
             out["point"] = {"mean": mean, "ci_low": low, "ci_high": high, "link_mean": eta.item(-1),
                             "pi_low": math.nan, "pi_high": math.nan,  # see GlmFit.new_observation_note
-                            "extrapolated": engine.outside_one(natural, h.item(-1))}
-            bands = plan.traces_of(bands)  # the names go first in the zip: no array is iterated past its end
+                            "extrapolated": engine.outside_one(natural, h0)}
+            k = engine.k  # the traces without the setting's column (see plan.event); the names go first in the
+            bands = bands[:, :-1].reshape(3, k, -1)  # zip, so that no array is iterated past its end
             out["traces"] = {name: {"x": x, "mean": m, "ci_low": lo, "ci_high": hi, "link_mean": e}
-                             for name, x, e, m, lo, hi in zip(engine.factor_names, xs, plan.traces_of(eta), bands[0],
-                                                                bands[1], bands[2])}
+                             for name, x, e, m, lo, hi in zip(engine.factor_names, xs, eta[:-1].reshape(k, -1),
+                                                                bands[0], bands[1], bands[2])}
         else:
             powers = plan.powers(natural)
             if point:

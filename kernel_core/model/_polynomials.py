@@ -206,7 +206,7 @@ class PolynomialPlan:
     def event(self, natural: np.ndarray, points: int):
         """One slider event's numbers from one chain of small products: the x grids, and the mean and h (not
         scaled, not clipped at 0) along every factor's trace, one after another, then at the setting itself, as
-        two (k * points + 1) arrays (see :meth:`traces_of`).
+        two (k * points + 1) arrays: ``values[:-1].reshape(k, points)`` are the traces.
 
         With every factor but j held, each model column is a constant times u^a (u the free coded value of
         factor j), so trace j's model row is ``x = sum_a u^a W[(j, a)]``: its mean ``sum_a u^a W[(j, a)] b``
@@ -225,10 +225,6 @@ class PolynomialPlan:
         coefs = first.dot(self._q).dot(first.T).take(self._y_places)
         split = self._y_split
         return xs, coefs[:split].dot(mean_basis), coefs[split:].dot(h_basis)
-
-    def traces_of(self, values: np.ndarray) -> np.ndarray:
-        """The traces (..., k, points) of values laid out as :meth:`event`'s (a view without the setting)."""
-        return values[..., :-1].reshape(*values.shape[:-1], self.k, -1)
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""
