@@ -19,7 +19,6 @@ from ._settings import check_points
 
 _SQRT_2PI = math.sqrt(2.0 * math.pi)
 _SIGNS = np.array([0.0, -1.0, 1.0])  # the mean, then the lower and upper ends of a band
-_PLUS_MINUS = np.array([[-1.0], [1.0]])  # the lower and upper ends
 
 
 def inverse_link(link, eta, out=None):
@@ -87,24 +86,26 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
         level = engine._level(level)
         out = {"point": None, "traces": None, "slice": None}
         if points is not None and point:  # the point and every trace from one chain of products, one inverse link
-            xs, block = plan.event(natural, check_points(points), 5)
+            xs, eta, h = plan.event(natural, check_points(points))
             powers = plan.powers(natural) if slice_axes is not None else None
-            h = block[1]  # rows: eta, h, then eta three times for the mean, lower and upper ends
             np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
-            half = np.sqrt(h)
+            h0 = h.item(-1)
+            half = np.sqrt(h, out=h)
             half *= engine._scale(level)
-            ends = block[3:]
-            ends += np.multiply(_PLUS_MINUS, half)  # eta -/+ the half-width
-            bands = block[2:]
+            bands = np.empty((3, len(eta)))  # the mean, lower and upper ends, one inverse link for all
+            bands[0] = eta
+            np.subtract(eta, half, out=bands[1])
+            np.add(eta, half, out=bands[2])
             inverse_link(link, bands, out=bands)
-            eta0, h0, mean, low, high = block[:, -1].tolist()
-            out["point"] = {"mean": mean, "ci_low": low, "ci_high": high, "link_mean": eta0,
+            mean, low, high = bands[:, -1].tolist()
+            out["point"] = {"mean": mean, "ci_low": low, "ci_high": high, "link_mean": eta.item(-1),
                             "pi_low": math.nan, "pi_high": math.nan,  # see GlmFit.new_observation_note
                             "extrapolated": engine.outside_one(natural, h0)}
-            traces = plan.traces_of(block)
+            k = engine.k  # the traces without the setting's column (see plan.event); the names go first in the
+            bands = bands[:, :-1].reshape(3, k, -1)  # zip, so that no array is iterated past its end
             out["traces"] = {name: {"x": x, "mean": m, "ci_low": lo, "ci_high": hi, "link_mean": e}
-                             for name, x, e, m, lo, hi in zip(engine.factor_names, xs, traces[0], traces[2],
-                                                                traces[3], traces[4])}
+                             for name, x, e, m, lo, hi in zip(engine.factor_names, xs, eta[:-1].reshape(k, -1),
+                                                                bands[0], bands[1], bands[2])}
         else:
             powers = plan.powers(natural)
             if point:

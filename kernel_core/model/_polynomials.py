@@ -10,8 +10,6 @@ from __future__ import annotations
 
 import numpy as np
 
-_ZERO_ONE = np.array([0.0, 1.0])
-
 
 class PolynomialPlan:
     """Per-fit constants of the interactive path for a polynomial model in continuous factors.
@@ -156,6 +154,8 @@ class PolynomialPlan:
         slots = max(w, 2)  # rows per factor j: the coefficients of u^0 .. u^D; the setting's row, then the selector
         depth = max(1, int(E.sum(axis=1).max(initial=0)))  # a column is a product of at most this many coded values
         zero, one = k, k + 1  # places of 0 and 1 after the k coded values
+        self._coding = np.vstack([np.diag(self._inv_scale), np.zeros((2, k))])  # natural -> coded, 0, 1
+        self._offset = np.concatenate([-self.center * self._inv_scale, [0.0, 1.0]])
         # index[d, row, column]: the d-th factor of W[row, column] among the coded values, 0 and 1.
         index = np.full((depth, (k + 1) * slots, p + 1), one, dtype=np.intp)
         index[0] = zero
@@ -168,74 +168,63 @@ class PolynomialPlan:
                 index[: len(held), row, c] = held
         index[:, k * slots + 1, p] = one  # the selector e_p
         self._w_index = index
-        self._w_shape = ((k + 1) * slots, p + 1)
-        # Q = [[F F', 0], [b', 0]]: (W Q W')[i, j] = x_i F F' x_j' on the model rows, x_j b on the selector row,
-        # and 0 where the selector meets itself.
+        # Q = [[F F', 0], [b', 0]]: (W Q W')[i, j] = x_i F F' x_j' on the model rows and x_j b on the selector row.
         q = np.zeros((p + 1, p + 1))
         q[:p, :p] = self.rinv @ self.rinv.T
         q[p, :p] = self.beta
         self._q = q
-        # Flat places in Y = W Q W' (m, m) of the coefficient matrix: row 0 the mean's coefficients (selector
-        # row, trace columns), row 1 those of h (the block of trace j's rows and columns, each pair a <= b once:
-        # the basis doubles a < b), then the setting's mean and h; Y's zero fills the rest.
+        # Flat places in Y = W Q W' (m, m) of the coefficients: the mean's (selector row, trace columns) and the
+        # setting's mean, then those of h (the block of trace j's rows and columns, each pair a <= b once: the
+        # basis doubles a < b) and the setting's h.
         m = (k + 1) * slots
         own, plus = k * slots, k * slots + 1
-        nil = plus * m + plus
-        pairs = [(j * slots + a, j * slots + b) for j in range(k) for a in range(w) for b in range(a, w)]
         self._pairs = [(a, b) for a in range(w) for b in range(a, w)]
-        mean = [plus * m + j * slots + a for j in range(k) for a in range(w)] + [nil] * len(pairs)
-        h = [nil] * (k * w) + [r * m + c for r, c in pairs]
-        self._y_places = np.array([mean + [plus * m + own, nil], h + [nil, own * m + own]], dtype=np.intp)
-        self._y_rows = {}
+        mean = [plus * m + j * slots + a for j in range(k) for a in range(w)] + [plus * m + own]
+        h = [(j * slots + a) * m + j * slots + b for j in range(k) for a, b in self._pairs] + [own * m + own]
+        self._y_places = np.array(mean + h, dtype=np.intp)
+        self._y_split = len(mean)
         self._event_grids = {}
 
     def _event_basis(self, points: int):
-        """(terms, k * points + 1) basis of :meth:`event`: every trace's grid one after another, then the setting
-        itself; rows the powers u^a (the mean) and the products u^a u^b (h, twice for a < b) of each trace's free
-        coded value u, then the setting's mean and h."""
+        """The x grids and the bases of :meth:`event` (terms, k * points + 1), every trace's grid one after another
+        then the setting itself: of the mean, the powers u^a of each trace's free coded value u, and of h, the
+        products u^a u^b (a <= b, twice for a < b); the last row picks the setting."""
         if points not in self._event_grids:
             xs, _, vander = self.trace_grids(points)
-            k, w = self.k, self.D + 1
-            n, per = k * w, len(self._pairs)
-            basis = np.zeros((n + k * per + 2, k * points + 1))
+            k, w, per = self.k, self.D + 1, len(self._pairs)
+            mean = np.zeros((k * w + 1, k * points + 1))
+            h = np.zeros((k * per + 1, k * points + 1))
             for j in range(k):
                 cols = slice(j * points, (j + 1) * points)
-                basis[j * w: (j + 1) * w, cols] = vander[j].T
+                mean[j * w: (j + 1) * w, cols] = vander[j].T
                 for i, (a, b) in enumerate(self._pairs):
-                    basis[n + j * per + i, cols] = (1.0 if a == b else 2.0) * vander[j, :, a] * vander[j, :, b]
-            basis[-2:, -1] = 1.0
-            self._event_grids[points] = (xs, basis)
+                    h[j * per + i, cols] = (1.0 if a == b else 2.0) * vander[j, :, a] * vander[j, :, b]
+            mean[-1, -1] = h[-1, -1] = 1.0
+            self._event_grids[points] = (xs, mean, h)
         return self._event_grids[points]
 
-    def event(self, natural: np.ndarray, points: int, rows: int = 2):
-        """One slider event's numbers from one chain of small products: the mean and h along every factor's
-        trace and at the setting itself, and the x grids.
+    def event(self, natural: np.ndarray, points: int):
+        """One slider event's numbers from one chain of small products: the x grids, and the mean and h (not
+        scaled, not clipped at 0) along every factor's trace, one after another, then at the setting itself, as
+        two (k * points + 1) arrays: ``values[:-1].reshape(k, points)`` are the traces.
 
         With every factor but j held, each model column is a constant times u^a (u the free coded value of
         factor j), so trace j's model row is ``x = sum_a u^a W[(j, a)]``: its mean ``sum_a u^a W[(j, a)] b``
         and ``h = x F F' x' = sum_ab u^a u^b W[(j, a)] F F' W[(j, b)]'`` are polynomials in u. One take of the
         coded setting and a product per degree give the rows W (with the setting's own row and a selector of
-        b); ``Y = W Q W'`` holds every coefficient, and one take of Y and one product with the grids' cached
-        basis give every value. No model row is built per grid point.
-
-        Returns ``xs, block``: *block* (rows, k * points + 1) holds the mean, then h (not scaled, not clipped at
-        0), then (rows > 2) more copies of the mean for the caller to work on in place; its columns are the
-        traces' grids one after another, then the setting (see :meth:`traces_of`).
+        b); ``Y = W Q W'`` holds every coefficient, and one take of Y and a product with each of the grids'
+        cached bases give every value. No model row is built per grid point.
         """
-        xs, basis = self._event_basis(points)
-        coded = np.concatenate(((natural - self.center) * self._inv_scale, _ZERO_ONE))
-        first, *others = coded.take(self._w_index)
-        for other in others:
-            first *= other
-        y = first.dot(self._q).dot(first.T)
-        places = self._y_rows.get(rows)
-        if places is None:
-            places = self._y_rows[rows] = self._y_places[[0, 1] + [0] * (rows - 2)]
-        return xs, y.take(places).dot(basis)
-
-    def traces_of(self, block: np.ndarray) -> np.ndarray:
-        """The traces (rows, k, points) of :meth:`event`'s block (a view without the setting's column)."""
-        return block[:, :-1].reshape(len(block), self.k, -1)
+        xs, mean_basis, h_basis = self._event_grids.get(points) or self._event_basis(points)
+        coded = self._coding.dot(natural)  # the coded setting, then 0 and 1
+        coded += self._offset
+        factors = coded.take(self._w_index)  # (depth, rows, columns); indexed, not iterated (an ndarray's
+        first = factors[0]                     # iteration ends on a raised and formatted IndexError)
+        for d in range(1, len(factors)):
+            first *= factors[d]
+        coefs = first.dot(self._q).dot(first.T).take(self._y_places)
+        split = self._y_split
+        return xs, coefs[:split].dot(mean_basis), coefs[split:].dot(h_basis)
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""
