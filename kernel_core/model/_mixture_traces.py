@@ -80,12 +80,12 @@ class CoxPlan:
         self.blocks = np.array([((i * n + a)[:, None] * N + i * n + a[None, :]).ravel()
                                 for i in range(1, L)])  # line i's node Gram in the (N, N) Gram, flat
         # the u-form of the lines (see _u_parts) is affine in z = [x, u at s = 0, u at s = 1, process settings]:
-        # [P | Q], [u; 1] flat = base + K z
+        # [P | Q], [u; 1] flat = z K (K's last row the constant part)
         self.offsets = offsets
         size = 3 * q + self.tail
         base = np.concatenate([part.ravel() for part in _u_parts(self, np.zeros(size))])
-        self.u_map = np.column_stack([np.concatenate([part.ravel() for part in _u_parts(self, e)]) - base
-                                      for e in np.eye(size)] + [base])  # z ends with a 1 for the constant part
+        self.u_map = np.vstack([np.concatenate([part.ravel() for part in _u_parts(self, e)]) - base
+                                for e in np.eye(size)] + [base])  # z ends with a 1 for the constant part
         self.u_split = W * 2 * L
         columns = list(range(q + 2, 2 * q + 2) if self.shifted else range(q)) + list(range(v, v + self.tail))
         self.picks = _picks(engine, columns, W - 1) if identity else None
@@ -237,7 +237,7 @@ def _u_parts(plan, z):
 def _u_nodes(plan, z):
     """The node rows of every line, (width, (q + 1) (d + 1)), from z = [x, u at s = 0, u at s = 1, process
     settings, 1] (no pure blend): the u-form parts by one product with the per-fit map, then ``[P | Q] [u; 1]``."""
-    flat = plan.u_map @ z
+    flat = z @ plan.u_map  # (the map stored (len(z), parts): the cheaper orientation of the product)
     k = plan.u_split
     return flat[:k].reshape(plan.width, -1) @ flat[k:].reshape(2 * plan.q + 2, -1)
 
