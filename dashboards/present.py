@@ -143,6 +143,41 @@ def _read_only_part(name: str, view, study_file=None):
     return view.widget
 
 
+def widget_closure(root) -> dict:
+    """Every widget *root* shows or refers to (children, layouts, styles, figures' marks, scales and axes...),
+    by model id: the widget models a browser showing *root* needs."""
+    found, todo = {}, [root]
+    while todo:
+        item = todo.pop()
+        if isinstance(item, ipw.Widget):
+            if item.comm is None or item.model_id in found:
+                continue
+            found[item.model_id] = item
+            todo.extend(getattr(item, name, None) for name in item.keys)
+        elif isinstance(item, (list, tuple)):
+            todo.extend(item)
+        elif isinstance(item, dict):
+            todo.extend(item.values())
+    return found
+
+
+def close_unshown(page, views) -> int:
+    """Close the widgets of *views* that the read-only *page* does not show (the optimiser's goal editors, the
+    predictions' editors...): a browser opening the page then creates only the models it shows (about 220 of
+    540 on the demo page), and nothing it cannot see is sent to it. Returns how many were closed."""
+    shown = widget_closure(page)
+    closed = 0
+    for view in views:
+        full = getattr(view, "widget", None)
+        if not isinstance(full, ipw.Widget):
+            continue
+        for model_id, widget in widget_closure(full).items():
+            if model_id not in shown:
+                widget.close()
+                closed += 1
+    return closed
+
+
 _QUOTED_PATH = re.compile(r"""(['"])(?:[A-Za-z]:)?[/\\][^'"]*?([^/\\'"]*)\1""")
 _BARE_PATH = re.compile(r"""(?<![\w.:])(?:[A-Za-z]:)?[/\\](?:[^\s'"/\\]+[/\\])*([^\s'"/\\]*)""")
 
@@ -203,5 +238,6 @@ def build(source=None) -> ipw.VBox:
         views.append(view)
         children.append(_read_only_part(name, view, study_file))
     page = ipw.VBox(children).add_class("lw-present").add_class(NO_MATH)  # no text on the page is typeset
+    close_unshown(page, views)
     page.shared, page.views, page.study = shared, views, study
     return page

@@ -105,3 +105,28 @@ def test_present_shows_why_when_the_study_cannot_be_read(tmp_path):
     assert CAUTION in text
     missing = present.build(str(tmp_path / "none.json"))
     assert "does not exist" in " ".join(w.value for w in walk(missing) if isinstance(w, ipw.HTML))
+
+
+def test_present_sends_only_the_widgets_it_shows():
+    """The read-only page closes the parts of its views it does not show (the optimiser's goal editors and search
+    controls, the predictions' editors), so a browser creates only the models it shows; the shown parts still
+    work."""
+    built = present.build("demo")
+    shown = present.widget_closure(built)
+    optimizer = next(v for v in built.views if type(v).__name__ == "OptimizerView")
+    predictions = next(v for v in built.views if type(v).__name__ == "PredictionsView")
+    hidden = [w for row in optimizer.goal_rows.values() for w in row.values() if isinstance(w, ipw.Widget)]
+    assert hidden and all(w.comm is None for w in hidden)  # closed: never sent to a browser
+    assert optimizer.widget.comm is None and predictions.widget.comm is None  # the views' full editors
+    for view in built.views:  # nothing a view built is left open unless the page shows it
+        full = getattr(view, "widget", None)
+        if isinstance(full, ipw.Widget):
+            assert set(present.widget_closure(full)) <= set(shown), type(view).__name__
+    assert optimizer.result.comm is not None and optimizer.use_button.comm is not None
+    before = predictions.table.value
+    predictions.add_button.click()  # "Add current settings" still adds a row to the shown table
+    assert predictions.table.value != before
+    optimizer.use_button.click()  # "Use these settings" still moves the page
+    assert built.shared.settings["Oven"] == pytest.approx(optimizer.optimum.settings["Oven"])
+    built.shared.set_settings(Oven=175.0)  # the sliders still move the page
+    assert built.shared.settings["Oven"] == 175.0

@@ -33,6 +33,7 @@ numbers or known levels. ``points`` is an integer from 2 to 100000 everywhere. E
 from __future__ import annotations
 
 import math
+import operator
 import threading
 
 import numpy as np
@@ -365,8 +366,9 @@ class PredictionEngine(SettingsCheck):
 
     def outside_one(self, natural, h: float) -> bool:
         """The extrapolation rule at one setting (natural values, its h)."""
-        return bool(h > self._limit or any(value < low or value > high for value, low, high
-                                           in zip(natural.tolist(), self._lows_list, self._highs_list)))
+        values = natural.tolist()
+        return bool(h > self._limit or not all(map(operator.le, self._lows_list, values))
+                    or not all(map(operator.le, values, self._highs_list)))
 
     def _factor(self, factor, parameter="factor") -> int:
         if factor not in self._index:
@@ -480,18 +482,21 @@ class PredictionEngine(SettingsCheck):
         plan = self.plan
         out = {"point": None, "traces": None, "slice": None}
         if plan is not None and points is not None:  # the point and every trace from one chain of products
-            xs, mean0, h0, mean, h, table = plan.event(natural, points)
-            powers = plan.powers_of(table) if slice_axes is not None else None
+            xs, mean, h = plan.event(natural, points)
+            powers = plan.powers(natural) if slice_axes is not None else None
             c = self._scale(level)
+            np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
             if point:
-                out["point"] = self._point_of(natural, mean0, h0, c)
+                out["point"] = self._point_of(natural, mean.item(-1), h.item(-1), c)
             ci = np.sqrt(h)
             ci *= c
             h += self.extra
             pi = np.sqrt(h, out=h)
             pi *= c
-            out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_half": ci[j], "pi_half": pi[j]}
-                             for j, name in enumerate(self.factor_names)}
+            k = self.k  # the traces without the setting's column (see plan.event)
+            out["traces"] = {name: {"x": x, "mean": m, "ci_half": lo, "pi_half": hi} for name, x, m, lo, hi
+                             in zip(self.factor_names, xs, mean[:-1].reshape(k, -1), ci[:-1].reshape(k, -1),
+                                    pi[:-1].reshape(k, -1))}
         else:
             powers = plan.powers(natural) if plan is not None else None  # shared by the point and the slice
             if point:

@@ -86,20 +86,26 @@ def refresh(fit, settings, level=None, points=50, slice_axes=None, shape=(100, 1
         level = engine._level(level)
         out = {"point": None, "traces": None, "slice": None}
         if points is not None and point:  # the point and every trace from one chain of products, one inverse link
-            xs, eta0, h0, eta, h, table = plan.event(natural, check_points(points))
-            powers = plan.powers_of(table) if slice_axes is not None else None
-            c = engine._scale(level)
+            xs, eta, h = plan.event(natural, check_points(points))
+            powers = plan.powers(natural) if slice_axes is not None else None
+            np.maximum(h, 0.0, out=h)  # a sum of squares; clip rounding below zero
+            h0 = h.item(-1)
             half = np.sqrt(h, out=h)
-            half *= c
-            bands = transform(link, eta, half)
-            half0 = c * math.sqrt(h0)
-            out["point"] = {"mean": inverse_link_scalar(link, eta0), "ci_low": inverse_link_scalar(link, eta0 - half0),
-                            "ci_high": inverse_link_scalar(link, eta0 + half0), "link_mean": eta0,
+            half *= engine._scale(level)
+            bands = np.empty((3, len(eta)))  # the mean, lower and upper ends, one inverse link for all
+            bands[0] = eta
+            np.subtract(eta, half, out=bands[1])
+            np.add(eta, half, out=bands[2])
+            inverse_link(link, bands, out=bands)
+            mean, low, high = bands[:, -1].tolist()
+            out["point"] = {"mean": mean, "ci_low": low, "ci_high": high, "link_mean": eta.item(-1),
                             "pi_low": math.nan, "pi_high": math.nan,  # see GlmFit.new_observation_note
                             "extrapolated": engine.outside_one(natural, h0)}
-            mean, low, high = bands["mean"], bands["ci_low"], bands["ci_high"]
-            out["traces"] = {name: {"x": xs[j], "mean": mean[j], "ci_low": low[j], "ci_high": high[j],
-                                    "link_mean": eta[j]} for j, name in enumerate(engine.factor_names)}
+            k = engine.k  # the traces without the setting's column (see plan.event); the names go first in the
+            bands = bands[:, :-1].reshape(3, k, -1)  # zip, so that no array is iterated past its end
+            out["traces"] = {name: {"x": x, "mean": m, "ci_low": lo, "ci_high": hi, "link_mean": e}
+                             for name, x, e, m, lo, hi in zip(engine.factor_names, xs, eta[:-1].reshape(k, -1),
+                                                                bands[0], bands[1], bands[2])}
         else:
             powers = plan.powers(natural)
             if point:

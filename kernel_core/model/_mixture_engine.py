@@ -21,7 +21,7 @@ import pandas as pd
 
 from .._errors import LevelwiseError, describe
 from ._engine import PredictionEngine
-from ._mixture_traces import CoxPlan, cox_line_range, cox_polynomial_traces
+from ._mixture_traces import CoxPlan, cox_polynomial_traces, cox_ranges, cox_shares
 from ._settings import check_points
 
 
@@ -44,7 +44,7 @@ class MixtureEngine(PredictionEngine):
         return (info.names, m.q, m.total, 1e-9 * m.total, m.declared_lows.tolist(), m.declared_highs.tolist(),
                 len(m.G) > 0, [(f.center, f.half_range) for f in info.process],
                 np.broadcast_to(m.lows if info.pseudo else 0.0, (m.q,)).astype(float).tolist(),
-                m.pseudo_range if info.pseudo else m.total)
+                float(m.pseudo_range if info.pseudo else m.total))
 
     def _fast_lists(self, settings):
         """(amounts, model variables) as lists of floats of a valid blend given as a dict of plain numbers; None
@@ -54,7 +54,7 @@ class MixtureEngine(PredictionEngine):
         if type(settings) is not dict or len(settings) != len(names):
             return None
         try:
-            row = [settings[n] for n in names]
+            row = list(map(settings.__getitem__, names))
         except KeyError:
             return None
         inf = math.inf
@@ -62,20 +62,22 @@ class MixtureEngine(PredictionEngine):
             kind = type(value)
             if (kind is not float and kind is not int) or not -inf < value < inf:  # NaN fails too
                 return None
-        xs = [float(v) for v in row[:q]]
+        xs = list(map(float, row[:q] if process else row))
         if abs(math.fsum(xs) - total) > tol:
             return None
-        lo_hi = self.__dict__.get("_fast_bounds")
-        if lo_hi is None:
-            lo_hi = self.__dict__["_fast_bounds"] = list(zip([lo - tol for lo in lows], [hi + tol for hi in highs]))
-        for value, (lo, hi) in zip(xs, lo_hi):
+        bounds = self.__dict__.get("_fast_bounds")
+        if bounds is None:
+            bounds = self.__dict__["_fast_bounds"] = ([lo - tol for lo in lows], [hi + tol for hi in highs],
+                                                      not any(offsets))
+        for value, lo, hi in zip(xs, bounds[0], bounds[1]):
             if value < lo or value > hi:
                 return None
         if constrained:
             m = self.info.mixture
             if (m.G @ np.array(xs) > m.h + tol).any():
                 return None
-        variables = [(v - o) / divisor for v, o in zip(xs, offsets)]
+        # (x - offset) / divisor; without offsets x / divisor (the same numbers: x - 0.0 is x)
+        variables = list(map(divisor.__rtruediv__, xs if bounds[2] else map(float.__sub__, xs, offsets)))
         for j, (centre, half) in enumerate(process):
             variables.append((row[q + j] - centre) / half)
         return xs, variables
@@ -279,21 +281,14 @@ def _cox_lines(mixture, r):
 
 
 def _cox_lines_bounds(mixture, r, eye):
-    """:func:`_cox_lines` for a region of bounds only, in plain Python (a few components: faster than arrays).
-
-    Along line i the others are x_j = s_j (T - t), s_j = r_j / (T - r_i); L_j <= x_j <= U_j gives
-    T - U_j / s_j <= t <= T - L_j / s_j for s_j > 0, and L_i <= t <= U_i."""
-    T, q = mixture.total, mixture.q
+    """:func:`_cox_lines` for a region of bounds only: the shares by :func:`cox_shares`, the ranges by
+    :func:`cox_ranges` (plain Python: a few components)."""
+    T = mixture.total
     lows, highs = mixture.__dict__.get("_bounds_lists") or mixture.__dict__.setdefault(
         "_bounds_lists", (mixture.declared_lows.tolist(), mixture.declared_highs.tolist()))
     rv = r.tolist()
-    shares, lo, hi = [], [], []
-    for i in range(q):
-        share, a, b = cox_line_range(i, rv, T, lows, highs)
-        shares.append(share)
-        lo.append(a)
-        hi.append(b)
-    share = np.array(shares)
+    share = cox_shares(rv, T)
+    lo, hi = cox_ranges(rv, T, lows, highs)
     return share * T, eye - share, np.array(lo), np.array(hi)
 
 
@@ -301,28 +296,6 @@ def _cox_interval(mixture, r, i):
     """The Cox line of component i from the blend r: (a, b, lo, hi); see :func:`_cox_lines`."""
     A, B, lo, hi = _cox_lines(mixture, np.asarray(r, dtype=float))
     return A[i], B[i], lo[i], hi[i]
-
-
-def _cox_grid(mixture, r, points):
-    """(t (q, points), blends (q, points, q)) along every component's Cox line over its feasible range."""
-    A, B, lo, hi = _cox_lines(mixture, r)
-    unit = _unit_grid(points)
-    t = lo[:, None] + (hi - lo)[:, None] * unit
-    # A[i, i] = 0 and B[i, i] = 1, so component i's own column is exactly t.
-    blends = t[:, :, None] * B[:, None, :]
-    blends += A[:, None, :]
-    return t, blends
-
-
-_UNIT_GRIDS: dict = {}
-
-
-def _unit_grid(points):
-    grid = _UNIT_GRIDS.get(points)
-    if grid is None:
-        grid = _UNIT_GRIDS[points] = np.linspace(0.0, 1.0, points)[None, :]
-        grid.flags.writeable = False
-    return grid
 
 
 def cox_traces(fit, reference, points: int = 50, level=None) -> dict:

@@ -21,7 +21,14 @@ Node rows: along line i the blend is ``X = T e_i + w D_i`` with ``w = T - t`` an
 (T e_i - offset) / divisor | process | 1]``. Line 0 is the current blend itself (``P = [x | 0 | 0 |
 x / divisor | 0 | 0] / T``, ``w = T``), lines 1..q the components. With proportions (offset 0) the block of model
 variables is left out: they are the blend over the divisor, and the powers of the divisor go into ``[F | beta]``.
-The rows of a line are kept column by column: ``(q + 1, width, d + 1)``.
+All lines' node rows come from one product ``[P_0 Q_0 P_1 Q_1 ...] [w_0; 1; w_1; 1; ...]`` (block rows), kept
+column by column, every line's nodes side by side: ``(width, (q + 1) (d + 1))``.
+
+Away from a pure blend the slider path uses the same rows in u = w / (T - x_i) = (T - t) / (T - x_i): the blend is
+``T e_i + u (x - T e_i)``, so ``P_i = [x - T e_i | x_i - T | (x_i - T) / T | ...]`` and ``Q_i = [T e_i | T |
+(T - x_i) / T | ...]`` are affine in x, and u at the nodes is affine in u at the ends of the line. Both factors of
+the product are then one per-fit affine map of ``z = [x, u at s = 0, u at s = 1, process settings]`` (12 numbers
+for four components): one matrix-vector product per event instead of building them number by number.
 """
 
 from __future__ import annotations
@@ -41,7 +48,6 @@ class CoxPlan:
         self.q, self.k, self.total = q, k, T
         self.degree = d = max(degree, 1)
         self.nodes = np.linspace(0.0, 1.0, d + 1)
-        self.node_list = self.nodes.tolist()
         self._to_coefficients = np.linalg.inv(np.vander(self.nodes, d + 1, increasing=True))
         self.tail = k - q  # process factors
         self.divisor = float(divisor)
@@ -52,17 +58,35 @@ class CoxPlan:
         self.shifted = bool(offsets.any()) or not identity
         v = q + 2 + (q if self.shifted else 0)  # first process column
         W = self.width = v + self.tail + 1
-        # Q of every line but its change and process columns, as lists: before and after the change column
-        heads, tails = [], []
-        for i in range(q):
-            e = [T if j == i else 0.0 for j in range(q)]
-            heads.append(e + [T])
-            tails.append([(e[j] - offsets[j]) / divisor for j in range(q)] if self.shifted else [])
-        self.q_heads, self.q_tails = heads, tails
-        # without process factors the rest of a Q row is fixed: its tail and the column of ones
-        self.q_ends = [row + [1.0] for row in tails] if not self.tail else None
-        self.q_point = [0.0] * (q + 2) + ((-offsets / divisor).tolist() if self.shifted else [])
-        self.p_pad = ([-1.0, -1.0 / T], [0.0] * (self.tail + 1))
+        # [P_0 Q_0 P_1 Q_1 ...] (width, 2 (q + 1)) and the block rows [w_l; 1] (2 (q + 1), (q + 1) (d + 1)):
+        # their parts that do not depend on the blend (see _node_rows), and where the rest goes (flat)
+        n, L = d + 1, q + 1
+        PQ = np.zeros((W, 2 * L))
+        PQ[q, 2::2], PQ[q + 1, 2::2] = -1.0, -1.0 / T
+        PQ[:q, 2::2] -= np.eye(q)
+        PQ[:q, 3::2] = T * np.eye(q)
+        PQ[q, 3::2] = T
+        if self.shifted:
+            PQ[q + 2:2 * q + 2, 1::2] = (PQ[:q, 1::2] - offsets[:, None]) / divisor
+        PQ[W - 1, 1::2] = 1.0
+        Wb = np.zeros((2 * L, L * n))
+        for line in range(L):
+            Wb[2 * line, line * n:(line + 1) * n] = T
+            Wb[2 * line + 1, line * n:(line + 1) * n] = 1.0
+        self.pq_fixed, self.w_fixed, self.first_process = PQ, Wb, v
+        self.put_w = np.array([2 * line * L * n + line * n + a for line in range(1, L) for a in range(n)])
+        N = L * n
+        a = np.arange(n)
+        self.blocks = np.array([((i * n + a)[:, None] * N + i * n + a[None, :]).ravel()
+                                for i in range(1, L)])  # line i's node Gram in the (N, N) Gram, flat
+        # the u-form of the lines (see _u_parts) is affine in z = [x, u at s = 0, u at s = 1, process settings]:
+        # [P | Q], [u; 1] flat = base + K z
+        self.offsets = offsets
+        size = 3 * q + self.tail
+        base = np.concatenate([part.ravel() for part in _u_parts(self, np.zeros(size))])
+        self.u_map = np.column_stack([np.concatenate([part.ravel() for part in _u_parts(self, e)]) - base
+                                      for e in np.eye(size)] + [base])  # z ends with a 1 for the constant part
+        self.u_split = W * 2 * L
         columns = list(range(q + 2, 2 * q + 2) if self.shifted else range(q)) + list(range(v, v + self.tail))
         self.picks = _picks(engine, columns, W - 1) if identity else None
         fb_t = engine._fb_t
@@ -112,34 +136,14 @@ def _picks(engine, columns, one):
     return picks
 
 
-def cox_line_range(i: int, xs: list, T: float, lows: list, highs: list):
-    """Cox line i from the blend *xs* (plain floats) in a region of bounds only: the others' shares s_j (0 for i) and
-    the range [a, b] of component i's amount t. Along the line x_j = s_j (T - t), s_j = x_j / (T - x_i) (equal
-    shares from a pure blend); L_j <= x_j <= U_j gives T - U_j / s_j <= t <= T - L_j / s_j for s_j > 0, and
-    L_i <= t <= U_i."""
-    q = len(xs)
-    rest = T - xs[i]
-    share = [v / rest for v in xs] if rest > 1e-12 * T else [1.0 / (q - 1)] * q
-    share[i] = 0.0
-    a, b = lows[i], highs[i]
-    for j in range(q):
-        sj = share[j]
-        if sj > 0.0:
-            top = T - lows[j] / sj
-            bottom = T - highs[j] / sj
-            if top < b:
-                b = top
-            if bottom > a:
-                a = bottom
-    return share, a, b
+def cox_ranges(xs: list, T: float, lows: list, highs: list):
+    """The range [lo_i, hi_i] of component i's amount t along every Cox line from the blend *xs* in a region of
+    bounds only (plain floats; the one rule for every caller).
 
-
-def _line_numbers(xs, T, lows, highs, tail, plan):
-    """One event's numbers in a region of bounds only (plain Python: a few components), flat: the rows P
-    (q + 1, width), the rows Q (q + 1, width), and per line w at the nodes then d + 1 ones (q + 1, 2, d + 1).
-
-    The range of t is that of :func:`cox_line_range`, ``T - (T - x_i) min_j U_j / x_j <= t <=
-    T - (T - x_i) max_j L_j / x_j`` over the others with x_j > 0 (the best two of each serve every line)."""
+    Along line i the others are x_j = s_j (T - t) with s_j = x_j / (T - x_i) (equal shares 1 / (q - 1) from a pure
+    blend, T - x_i <= 1e-12 T); L_j <= x_j <= U_j gives T - U_j / s_j <= t <= T - L_j / s_j for every s_j > 0, and
+    L_i <= t <= U_i. With s_j = x_j / (T - x_i) the tightest are ``T - (T - x_i) min_j U_j / x_j`` and
+    ``T - (T - x_i) max_j L_j / x_j`` over the others with x_j > 0, so the best two ratios serve every line."""
     q = len(xs)
     inf = float("inf")
     u1 = u2 = inf
@@ -158,78 +162,118 @@ def _line_numbers(xs, T, lows, highs, tail, plan):
                 d1, d2, idn = d, d1, j
             elif d > d2:
                 d2 = d
-    shifted = plan.shifted
-    inv = 1.0 / plan.divisor
-    head, pad = plan.p_pad
-    f = 1.0 / T
-    p_rows = [v * f for v in xs]
-    p_rows += [0.0, 0.0]
-    if shifted:
-        p_rows += [v * inv * f for v in xs]
-    p_rows += pad
-    q_rows = plan.q_point + tail
-    q_rows.append(1.0)
-    nodes = plan.node_list
-    ones = [1.0] * len(nodes)
-    ws = [T] * len(nodes)
-    ws += ones
-    heads, tails, ends = plan.q_heads, plan.q_tails, plan.q_ends
-    if not shifted:
-        head = head + pad  # the P row after the shares
+    los, his = [], []
     for i in range(q):
-        xi = xs[i]
-        rest = T - xi
+        rest = T - xs[i]
         if rest > 1e-12 * T:
-            f = 1.0 / rest
-            share = [v * f for v in xs]
             a = T - rest * (u2 if i == iu else u1)
             b = T - rest * (d2 if i == idn else d1)
-            if a < lows[i]:
-                a = lows[i]
-            if b > highs[i]:
-                b = highs[i]
-        else:
-            share, a, b = cox_line_range(i, xs, T, lows, highs)
-        share[i] = -1.0
-        p_rows += share
-        p_rows += head
-        if shifted:
-            p_rows += [v * inv for v in share]
-            p_rows += pad
-        q_rows += heads[i]
-        q_rows.append(rest / T)
-        if ends is None:
-            q_rows += tails[i]
-            q_rows += tail
-            q_rows.append(1.0)
-        else:
-            q_rows += ends[i]
-        wa = T - a
-        step = a - b
-        ws += [wa + step * s for s in nodes]
-        ws += ones
-    return p_rows + q_rows + ws
+        else:  # a pure blend: the others share equally, s_j = 1 / (q - 1)
+            others = [j for j in range(q) if j != i]
+            a = T - (q - 1) * min(highs[j] for j in others)
+            b = T - (q - 1) * max(lows[j] for j in others)
+        los.append(a if a > lows[i] else lows[i])
+        his.append(b if b < highs[i] else highs[i])
+    return los, his
 
 
-def _lines_numbers(mixture, xs, tail, plan):
-    """:func:`_line_numbers` for any region (bounds and constraints), from the lines of ``_cox_lines``."""
+def cox_shares(xs: list, T: float) -> np.ndarray:
+    """(q, q): row i the others' shares s_j along component i's Cox line from the blend *xs* (0 at i; equal shares
+    from a pure blend)."""
+    x = np.asarray(xs, dtype=float)
+    q = len(x)
+    rest = T - x
+    pure = rest <= 1e-12 * T
+    share = x[None, :] / np.where(pure, 1.0, rest)[:, None]
+    share[pure] = 1.0 / (q - 1)
+    np.fill_diagonal(share, 0.0)
+    return share
+
+
+def _node_rows(plan, PQ, Wb, tail):
+    """The node rows of every line, (width, (q + 1) (d + 1)): ``w P + Q`` (see the module notes) as one product
+    of ``[P_0 Q_0 P_1 Q_1 ...]`` and the block rows ``[w_l; 1]``, once the parts that depend on the blend are in
+    (P's shares, Q's change; here the model variables of pseudo-components and the process settings)."""
+    q = plan.q
+    if plan.shifted:
+        np.multiply(PQ[:q, 0::2], 1.0 / plan.divisor, out=PQ[q + 2:2 * q + 2, 0::2])
+    if plan.tail:
+        PQ[plan.first_process:-1, 1::2] = np.array(tail)[:, None]
+    return PQ @ Wb
+
+
+def _u_parts(plan, z):
+    """[P_0 Q_0 P_1 Q_1 ...] and the block rows [u_l; 1] of the u-form of the lines at z = [x, u at s = 0,
+    u at s = 1, process settings] (arrays; per fit, to build the map of :func:`_u_nodes`). Line i: the blend
+    ``T e_i + u (x - T e_i)`` (u = (T - t) / (T - x_i)), so P_i = [x - T e_i | x_i - T | (x_i - T) / T |
+    (x - T e_i) / divisor | 0 | 0], Q_i = [T e_i | T | (T - x_i) / T | (T e_i - offset) / divisor | process | 1];
+    line 0 the blend itself (P_0 = 0)."""
+    q, T, W, n = plan.q, plan.total, plan.width, plan.degree + 1
+    L = q + 1
+    x, lo, hi, tail = z[:q], z[q:2 * q], z[2 * q:3 * q], z[3 * q:]
+    PQ = np.zeros((W, 2 * L))
+    Q0 = PQ[:, 1]
+    Q0[:q] = x
+    if plan.shifted:
+        Q0[q + 2:2 * q + 2] = (x - plan.offsets) / plan.divisor
+    for i in range(q):
+        P, Q = PQ[:, 2 * i + 2], PQ[:, 2 * i + 3]
+        e = T * np.eye(q)[i]
+        P[:q], P[q], P[q + 1] = x - e, x[i] - T, (x[i] - T) / T
+        Q[:q], Q[q], Q[q + 1] = e, T, (T - x[i]) / T
+        if plan.shifted:
+            P[q + 2:2 * q + 2] = (x - e) / plan.divisor
+            Q[q + 2:2 * q + 2] = (e - plan.offsets) / plan.divisor
+    PQ[plan.first_process:W - 1, 1::2] = np.asarray(tail)[:, None]
+    PQ[W - 1, 1::2] = 1.0
+    Wb = np.zeros((2 * L, L * n))
+    Wb[1, :n] = 1.0
+    for i in range(q):
+        Wb[2 * i + 2, (i + 1) * n:(i + 2) * n] = lo[i] + (hi[i] - lo[i]) * plan.nodes
+        Wb[2 * i + 3, (i + 1) * n:(i + 2) * n] = 1.0
+    return PQ, Wb
+
+
+def _u_nodes(plan, z):
+    """The node rows of every line, (width, (q + 1) (d + 1)), from z = [x, u at s = 0, u at s = 1, process
+    settings, 1] (no pure blend): the u-form parts by one product with the per-fit map, then ``[P | Q] [u; 1]``."""
+    flat = plan.u_map @ z
+    k = plan.u_split
+    return flat[:k].reshape(plan.width, -1) @ flat[k:].reshape(2 * plan.q + 2, -1)
+
+
+def _bounds_nodes(xs, T, lows, highs, tail, plan):
+    """The node rows in a region of bounds only: the ranges by :func:`cox_ranges`, u = (T - t) / (T - x_i) at
+    their ends (plain Python), then :func:`_u_nodes`; None from a pure blend."""
+    lo, hi = cox_ranges(xs, T, lows, highs)
+    tiny = 1e-12 * T
+    ulo, uhi = [], []
+    for v, a, b in zip(xs, lo, hi):
+        rest = T - v
+        if rest <= tiny:
+            return None
+        ulo.append((T - a) / rest)
+        uhi.append((T - b) / rest)
+    ulo += uhi
+    ulo += tail
+    ulo.append(1.0)
+    return _u_nodes(plan, np.array(xs + ulo))
+
+
+def _lines_nodes(mixture, xs, tail, plan):
+    """:func:`_node_rows` for any region (bounds and constraints), from the lines of ``_cox_lines``."""
     from ._mixture_engine import _cox_lines
 
     x = np.array(xs, dtype=float)
     A, B, lo, hi = _cox_lines(mixture, x)
-    q, T, W, n = mixture.q, mixture.total, plan.width, plan.degree + 1
-    P = np.zeros((q + 1, W))
-    P[0, :q] = x / T
-    P[1:, :q] = -B
-    P[1:, q], P[1:, q + 1] = -1.0, -1.0 / T
-    if plan.shifted:
-        P[:, q + 2:2 * q + 2] = P[:, :q] / plan.divisor
-    Q = [plan.q_point + tail + [1.0]]
-    Q += [plan.q_heads[i] + [(T - x[i]) / T] + plan.q_tails[i] + tail + [1.0] for i in range(q)]
-    ws = np.ones((q + 1, 2, n))
-    ws[0, 0] = T
-    ws[1:, 0] = (T - lo)[:, None] + (lo - hi)[:, None] * plan.nodes
-    return P.ravel().tolist() + [v for row in Q for v in row] + ws.ravel().tolist()
+    q, T = plan.q, plan.total
+    PQ = plan.pq_fixed.copy()
+    PQ[:q, 0] = x / T
+    PQ[:q, 2::2] = -B.T
+    PQ[q + 1, 3::2] = (T - x) / T
+    Wb = plan.w_fixed.copy()
+    Wb.put(plan.put_w, ((T - lo)[:, None] + (lo - hi)[:, None] * plan.nodes).ravel())
+    return _node_rows(plan, PQ, Wb, tail)
 
 
 def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, points: int, c: float):
@@ -245,27 +289,25 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
     if not len(mixture.G) and q <= 8:
         lows, highs = mixture.__dict__.get("_bounds_lists") or mixture.__dict__.setdefault(
             "_bounds_lists", (mixture.declared_lows.tolist(), mixture.declared_highs.tolist()))
-        numbers = np.array(_line_numbers(xs, plan.total, lows, highs, tail, plan))
+        nodes = _bounds_nodes(xs, plan.total, lows, highs, tail, plan)
     else:
-        numbers = np.array(_lines_numbers(mixture, xs, tail, plan))
-    size = (q + 1) * W
-    # node rows w P + Q: (q + 1, width, 2) [P | Q] times (q + 1, 2, d + 1) [w; 1]
-    nodes = numbers[:2 * size].reshape(2, q + 1, W).transpose(1, 2, 0) @ numbers[2 * size:].reshape(q + 1, 2, n)
+        nodes = None
+    if nodes is None:
+        nodes = _lines_nodes(mixture, xs, tail, plan)
+    flat = nodes  # (width, (q + 1) (d + 1)): every line's nodes side by side
     if plan.picks is not None:
-        rows = np.multiply.reduce(nodes.take(plan.picks, axis=1), axis=1)  # (q + 1, p, d + 1)
-        both = plan.fb_t @ rows  # [x F | mean]^T at every node
+        both = plan.fb_t @ np.multiply.reduce(flat.take(plan.picks, axis=0), axis=0)  # [x F | mean]^T
     else:
-        both = (engine.rows(nodes.transpose(0, 2, 1).reshape(-1, W)[:, q + 2:q + 2 + plan.k]) @ engine._fb).reshape(
-            q + 1, n, -1).transpose(0, 2, 1)
-    xf = both[:, :-1]
-    gram = xf.transpose(0, 2, 1) @ xf  # (q + 1, d + 1, d + 1) per line
-    half = gram[1:].reshape(q, n * n) @ plan.bands(points, c)  # c^2 h on the grid
+        both = (engine.rows(flat[q + 2:q + 2 + plan.k].T) @ engine._fb).T
+    xf = both[:-1]
+    gram = xf.T @ xf  # every pair of nodes; each line's (d + 1) x (d + 1) block on the diagonal
+    half = gram.take(plan.blocks) @ plan.bands(points, c)  # c^2 h on the grid, (q, points)
     ci = np.sqrt(half)
     half += c * c * engine.extra
     pi = np.sqrt(half, out=half)
-    nodes[:, W - 1] = both[:, -1]
-    across = (nodes[1:].reshape(q * W, n) @ plan.lagrange(points)).reshape(q, W, points).transpose(1, 0, 2)
-    return across, ci, pi, float(both[0, -1, 0]), float(gram[0, 0, 0])
+    flat[W - 1] = both[-1]
+    across = (nodes.reshape(-1, n) @ plan.lagrange(points)).reshape(W, q + 1, points)[:, 1:]
+    return across, ci, pi, float(both[-1, 0]), float(gram[0, 0])
 
 
-__all__ = ["CoxPlan", "cox_line_range", "cox_polynomial_traces"]
+__all__ = ["CoxPlan", "cox_polynomial_traces", "cox_ranges", "cox_shares"]

@@ -58,18 +58,7 @@ class PolynomialPlan:
         self._spread = np.ascontiguousarray(spread.reshape(k, p, (self.D + 1) * (p + 1)))
         self._inv_scale = 1.0 / self.scale
         self._ones = np.ones(k)
-        self._exps = np.arange(self.D + 1, dtype=float)[:, None]  # (D+1, 1): every power of every factor at once
-        # The slider event's stack: the k traces' spreads, then the setting's own row as a constant polynomial
-        # (its row of F and mean in the power-0 slot, zero above).
-        point = np.zeros((p, (self.D + 1) * (p + 1)))
-        point[:, : p + 1] = self.rinv_beta
-        self._event_spread = np.ascontiguousarray(np.concatenate([self._spread, point[None]]))
-        # Where, in the table of powers (D+1, k) flattened, each factor's part of each row of the event's stack
-        # is: row j < k holds factor j's trace constants (factor j itself contributes its power 0, a 1), row k is
-        # the setting's own model row. One take and one product over the factors give the whole stack.
-        stack = np.tile(E.T * k + np.arange(k)[:, None], (1, k + 1)).reshape(k, k + 1, p)  # (factor, row, column)
-        stack[np.arange(k), np.arange(k), :] = np.arange(k)[:, None]  # power 0 of factor j in row j
-        self._event_index = np.ascontiguousarray(stack.reshape(k, (k + 1) * p))
+        self._build_event()
         self._flat = (E * k + np.arange(k)).ravel()  # (power, factor) -> place in the table of powers
         self._traces = {}
         self._slices = {}
@@ -133,10 +122,6 @@ class PolynomialPlan:
             table.append(table[-1] * coded)
         return np.concatenate(table[: self.D + 1]).take(self._flat).reshape(self.p, self.k)
 
-    def powers_of(self, table: np.ndarray) -> np.ndarray:
-        """:meth:`powers` from the (D+1, k) table of every power of every coded factor that :meth:`event` gives."""
-        return table.take(self._flat).reshape(self.p, self.k)
-
     def mean_and_leverage(self, powers: np.ndarray):
         """Mean and ``h = ||x F||^2`` at one setting given its :meth:`powers`."""
         both = powers.prod(axis=1) @ self.rinv_beta  # the row times F, then the mean
@@ -163,26 +148,83 @@ class PolynomialPlan:
         h += ts * ts * extra
         return xs, mean, ci, np.sqrt(h, out=h)
 
-    def event(self, natural: np.ndarray, points: int):
-        """One slider event's numbers from one chain of small products: the setting's mean and h, and the mean
-        and h along every factor's trace, (k, points) each, with the x grids and the setting's table of powers.
+    def _build_event(self):
+        """The constants of :meth:`event` (see there): the take that makes the rows W, and Q."""
+        E, k, p, w = self.E, self.k, self.p, self.D + 1
+        slots = max(w, 2)  # rows per factor j: the coefficients of u^0 .. u^D; the setting's row, then the selector
+        depth = max(1, int(E.sum(axis=1).max(initial=0)))  # a column is a product of at most this many coded values
+        zero, one = k, k + 1  # places of 0 and 1 after the k coded values
+        self._coding = np.vstack([np.diag(self._inv_scale), np.zeros((2, k))])  # natural -> coded, 0, 1
+        self._offset = np.concatenate([-self.center * self._inv_scale, [0.0, 1.0]])
+        # index[d, row, column]: the d-th factor of W[row, column] among the coded values, 0 and 1.
+        index = np.full((depth, (k + 1) * slots, p + 1), one, dtype=np.intp)
+        index[0] = zero
+        for c, exps in enumerate(E):
+            factors = [i for i in range(k) for _ in range(exps[i])]  # with multiplicity
+            for j in range(k + 1):
+                held = [i for i in factors if i != j]  # row j < k: trace j, factor j free (its power in the basis)
+                row = j * slots + (exps[j] if j < k else 0)  # ... in the slot of its power; j == k: the setting
+                index[:, row, c] = one
+                index[: len(held), row, c] = held
+        index[:, k * slots + 1, p] = one  # the selector e_p
+        self._w_index = index
+        # Q = [[F F', 0], [b', 0]]: (W Q W')[i, j] = x_i F F' x_j' on the model rows and x_j b on the selector row.
+        q = np.zeros((p + 1, p + 1))
+        q[:p, :p] = self.rinv @ self.rinv.T
+        q[p, :p] = self.beta
+        self._q = q
+        # Flat places in Y = W Q W' (m, m) of the coefficients: the mean's (selector row, trace columns) and the
+        # setting's mean, then those of h (the block of trace j's rows and columns, each pair a <= b once: the
+        # basis doubles a < b) and the setting's h.
+        m = (k + 1) * slots
+        own, plus = k * slots, k * slots + 1
+        self._pairs = [(a, b) for a in range(w) for b in range(a, w)]
+        mean = [plus * m + j * slots + a for j in range(k) for a in range(w)] + [plus * m + own]
+        h = [(j * slots + a) * m + j * slots + b for j in range(k) for a, b in self._pairs] + [own * m + own]
+        self._y_places = np.array(mean + h, dtype=np.intp)
+        self._y_split = len(mean)
+        self._event_grids = {}
 
-        The rows of the k held-factor constants and the setting's own row go through one batched product with
-        the spreads, which gives every trace's polynomial coefficients of ``[x F | x b]`` (and the setting's row
-        of F and mean); one batched product with the grids' Vandermonde matrices gives ``[x F | x b]`` at every
-        grid point, and h = ``||x F||^2`` (not scaled) is its sum of squares. The last item, the setting's (D+1, k)
-        table of powers, gives :meth:`powers` with :meth:`powers_of`.
+    def _event_basis(self, points: int):
+        """The x grids and the bases of :meth:`event` (terms, k * points + 1), every trace's grid one after another
+        then the setting itself: of the mean, the powers u^a of each trace's free coded value u, and of h, the
+        products u^a u^b (a <= b, twice for a < b); the last row picks the setting."""
+        if points not in self._event_grids:
+            xs, _, vander = self.trace_grids(points)
+            k, w, per = self.k, self.D + 1, len(self._pairs)
+            mean = np.zeros((k * w + 1, k * points + 1))
+            h = np.zeros((k * per + 1, k * points + 1))
+            for j in range(k):
+                cols = slice(j * points, (j + 1) * points)
+                mean[j * w: (j + 1) * w, cols] = vander[j].T
+                for i, (a, b) in enumerate(self._pairs):
+                    h[j * per + i, cols] = (1.0 if a == b else 2.0) * vander[j, :, a] * vander[j, :, b]
+            mean[-1, -1] = h[-1, -1] = 1.0
+            self._event_grids[points] = (xs, mean, h)
+        return self._event_grids[points]
+
+    def event(self, natural: np.ndarray, points: int):
+        """One slider event's numbers from one chain of small products: the x grids, and the mean and h (not
+        scaled, not clipped at 0) along every factor's trace, one after another, then at the setting itself, as
+        two (k * points + 1) arrays: ``values[:-1].reshape(k, points)`` are the traces.
+
+        With every factor but j held, each model column is a constant times u^a (u the free coded value of
+        factor j), so trace j's model row is ``x = sum_a u^a W[(j, a)]``: its mean ``sum_a u^a W[(j, a)] b``
+        and ``h = x F F' x' = sum_ab u^a u^b W[(j, a)] F F' W[(j, b)]'`` are polynomials in u. One take of the
+        coded setting and a product per degree give the rows W (with the setting's own row and a selector of
+        b); ``Y = W Q W'`` holds every coefficient, and one take of Y and a product with each of the grids'
+        cached bases give every value. No model row is built per grid point.
         """
-        xs, _, vander = self.trace_grids(points)
-        k, p = self.k, self.p
-        table = np.power((natural - self.center) * self._inv_scale, self._exps)  # (D+1, k) every power
-        rows = np.multiply.reduce(table.take(self._event_index), axis=0).reshape(k + 1, 1, p)
-        z = np.matmul(rows, self._event_spread).reshape(k + 1, self.D + 1, p + 1)
-        grid = np.matmul(vander, z[:k])  # (k, points, p + 1): [x F | x b] along every trace
-        xf = grid[:, :, :p]
-        own = z[k, 0]
-        return (xs, float(own[p]), float(own[:p] @ own[:p]), grid[:, :, p], np.einsum("kti,kti->kt", xf, xf),
-                table)
+        xs, mean_basis, h_basis = self._event_grids.get(points) or self._event_basis(points)
+        coded = self._coding.dot(natural)  # the coded setting, then 0 and 1
+        coded += self._offset
+        factors = coded.take(self._w_index)  # (depth, rows, columns); indexed, not iterated (an ndarray's
+        first = factors[0]                     # iteration ends on a raised and formatted IndexError)
+        for d in range(1, len(factors)):
+            first *= factors[d]
+        coefs = first.dot(self._q).dot(first.T).take(self._y_places)
+        split = self._y_split
+        return xs, coefs[:split].dot(mean_basis), coefs[split:].dot(h_basis)
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""

@@ -82,15 +82,12 @@ class SettingsCheck:
             )
         if not self.categories and len(settings) == self.k:
             try:
-                row = [settings[name] for name in self.factor_names]
+                row = list(map(settings.__getitem__, self.factor_names))
             except KeyError:
                 row = None
-            if row is not None:
-                for value in row:
-                    if type(value) not in _PLAIN_TYPES or not math.isfinite(value):
-                        break
-                else:
-                    return np.array(row, dtype=float)
+            # Plain numbers whose sum is finite are each finite (an overflowing sum just takes the checks below).
+            if row is not None and _PLAIN_TYPES.issuperset(map(type, row)) and math.isfinite(sum(row)):
+                return np.array(row, dtype=float)
         self._refuse_names(settings)
         self._refuse_missing(settings, free)
         vector = np.empty(self.k)
