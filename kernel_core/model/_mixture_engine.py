@@ -44,7 +44,7 @@ class MixtureEngine(PredictionEngine):
         return (info.names, m.q, m.total, 1e-9 * m.total, m.declared_lows.tolist(), m.declared_highs.tolist(),
                 len(m.G) > 0, [(f.center, f.half_range) for f in info.process],
                 np.broadcast_to(m.lows if info.pseudo else 0.0, (m.q,)).astype(float).tolist(),
-                m.pseudo_range if info.pseudo else m.total)
+                float(m.pseudo_range if info.pseudo else m.total))
 
     def _fast_lists(self, settings):
         """(amounts, model variables) as lists of floats of a valid blend given as a dict of plain numbers; None
@@ -54,7 +54,7 @@ class MixtureEngine(PredictionEngine):
         if type(settings) is not dict or len(settings) != len(names):
             return None
         try:
-            row = [settings[n] for n in names]
+            row = list(map(settings.__getitem__, names))
         except KeyError:
             return None
         inf = math.inf
@@ -62,20 +62,22 @@ class MixtureEngine(PredictionEngine):
             kind = type(value)
             if (kind is not float and kind is not int) or not -inf < value < inf:  # NaN fails too
                 return None
-        xs = [float(v) for v in row[:q]]
+        xs = list(map(float, row[:q] if process else row))
         if abs(math.fsum(xs) - total) > tol:
             return None
-        lo_hi = self.__dict__.get("_fast_bounds")
-        if lo_hi is None:
-            lo_hi = self.__dict__["_fast_bounds"] = list(zip([lo - tol for lo in lows], [hi + tol for hi in highs]))
-        for value, (lo, hi) in zip(xs, lo_hi):
+        bounds = self.__dict__.get("_fast_bounds")
+        if bounds is None:
+            bounds = self.__dict__["_fast_bounds"] = ([lo - tol for lo in lows], [hi + tol for hi in highs],
+                                                      not any(offsets))
+        for value, lo, hi in zip(xs, bounds[0], bounds[1]):
             if value < lo or value > hi:
                 return None
         if constrained:
             m = self.info.mixture
             if (m.G @ np.array(xs) > m.h + tol).any():
                 return None
-        variables = [(v - o) / divisor for v, o in zip(xs, offsets)]
+        # (x - offset) / divisor; without offsets x / divisor (the same numbers: x - 0.0 is x)
+        variables = list(map(divisor.__rtruediv__, xs if bounds[2] else map(float.__sub__, xs, offsets)))
         for j, (centre, half) in enumerate(process):
             variables.append((row[q + j] - centre) / half)
         return xs, variables

@@ -84,9 +84,8 @@ class CoxPlan:
         self.offsets = offsets
         size = 3 * q + self.tail
         base = np.concatenate([part.ravel() for part in _u_parts(self, np.zeros(size))])
-        self.u_base = base
         self.u_map = np.column_stack([np.concatenate([part.ravel() for part in _u_parts(self, e)]) - base
-                                      for e in np.eye(size)])
+                                      for e in np.eye(size)] + [base])  # z ends with a 1 for the constant part
         self.u_split = W * 2 * L
         columns = list(range(q + 2, 2 * q + 2) if self.shifted else range(q)) + list(range(v, v + self.tail))
         self.picks = _picks(engine, columns, W - 1) if identity else None
@@ -237,9 +236,8 @@ def _u_parts(plan, z):
 
 def _u_nodes(plan, z):
     """The node rows of every line, (width, (q + 1) (d + 1)), from z = [x, u at s = 0, u at s = 1, process
-    settings] (no pure blend): the u-form parts by one product with the per-fit map, then ``[P | Q] [u; 1]``."""
+    settings, 1] (no pure blend): the u-form parts by one product with the per-fit map, then ``[P | Q] [u; 1]``."""
     flat = plan.u_map @ z
-    flat += plan.u_base
     k = plan.u_split
     return flat[:k].reshape(plan.width, -1) @ flat[k:].reshape(2 * plan.q + 2, -1)
 
@@ -256,7 +254,10 @@ def _bounds_nodes(xs, T, lows, highs, tail, plan):
             return None
         ulo.append((T - a) / rest)
         uhi.append((T - b) / rest)
-    return _u_nodes(plan, np.array(xs + ulo + uhi + tail))
+    ulo += uhi
+    ulo += tail
+    ulo.append(1.0)
+    return _u_nodes(plan, np.array(xs + ulo))
 
 
 def _lines_nodes(mixture, xs, tail, plan):
