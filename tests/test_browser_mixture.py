@@ -188,4 +188,18 @@ def test_published_page_shows_the_mixture_views_and_follows_a_component_slider(p
     time.sleep(1.5)
     SCREENSHOTS.mkdir(parents=True, exist_ok=True)
     ternary.screenshot(path=str(SCREENSHOTS / "ternary-slice.png"))
+    # A click inside the triangle goes through the marks to the figure's event rectangle; the click catcher adds the
+    # point and the kernel moves the blend to the nearest lattice point: the readout follows.
+    box = page.locator(".lw-ternary .plotarea_events").first.bounding_box()
+    low_x, high_x, low_y, high_y = -0.16, 1.16, -0.1, np.sqrt(3) / 2 + 0.08  # the slice's BOX (ternary_slice.py)
+    x, y = 0.45, 0.3  # inside the triangle, off the current blend's marker
+    at = (box["x"] + (x - low_x) / (high_x - low_x) * box["width"],
+          box["y"] + (high_y - y) / (high_y - low_y) * box["height"])
+    hit = page.evaluate("([x, y]) => { const e = document.elementFromPoint(x, y); "
+                        "return e ? e.tagName + '.' + e.getAttribute('class') : null; }", list(at))
+    assert hit == "rect.plotarea_events", f"the click lands on {hit}, not on the figure's event rectangle"
+    before = page.locator(".lw-mixture-sliders .lw-readout .lw-mean").first.inner_text()
+    page.mouse.click(*at)
+    page.wait_for_function("([sel, old]) => document.querySelector(sel).innerText !== old",
+                           arg=[".lw-mixture-sliders .lw-readout .lw-mean", before], timeout=30_000)
     context.close()

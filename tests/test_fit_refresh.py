@@ -125,6 +125,26 @@ def test_slice_equals_point_predictions_and_statsmodels(study, axes):
     assert np.max(np.abs(got["pi_half"].ravel() - pi)) < 1e-9
 
 
+def test_traces_of_many_points_equal_predict_and_statsmodels(study):
+    """10,000 points per trace: past the plan's block_limit each trace is one product with its own grid's basis
+    (not one block-diagonal basis of all traces); the same numbers as a model row per point and statsmodels."""
+    data, ours, reference = study
+    plan = ours.engine.plan
+    assert (5 * (3 + 6) + 2) * (5 * 10_000 + 1) > plan.block_limit >= (5 * (3 + 6) + 2) * (5 * 50 + 1)
+    got = ours.refresh(SETTINGS, points=10_000)
+    assert got["point"]["mean"] == pytest.approx(ours.predict(SETTINGS)["mean"].iloc[0], rel=1e-12)
+    for f in FACTORS:
+        frame = pd.DataFrame({name: np.full(10_000, value) for name, value in SETTINGS.items()})
+        frame[f.name] = np.linspace(f.low, f.high, 10_000)
+        rows = ours.predict(frame)  # a model row per point (not the trace polynomials)
+        assert np.max(np.abs(got["traces"][f.name]["mean"] - rows["mean"].to_numpy())) < 1e-11
+        ci = (rows["ci_high"] - rows["mean"]).to_numpy()
+        assert np.max(np.abs(got["traces"][f.name]["ci_half"] - ci)) < 1e-11
+        mean, ci, pi = statsmodels_bands(reference, frame.iloc[::499])  # statsmodels get_prediction
+        assert np.max(np.abs(got["traces"][f.name]["mean"][::499] - mean)) < 1e-9
+        assert np.max(np.abs(got["traces"][f.name]["pi_half"][::499] - pi)) < 1e-9
+
+
 def test_cubic_and_three_factor_terms(study):
     """Powers above 2 and a three-factor product go through the same exact polynomial evaluation."""
     data, _, _ = study

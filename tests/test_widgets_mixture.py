@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import statsmodels.api as sm
-from widget_support import browser_event, browser_update
+from widget_support import browser_update
 
 import levelwise as lw
 from levelwise import _mixture_demo as mdemo
@@ -183,12 +183,15 @@ def test_ternary_slice_values_points_marker_and_click():
     assert np.asarray(view.points.x) == pytest.approx(bary[:, 1] + bary[:, 2] / 2, **F32)
     rb = (r[[0, 2, 1]] - lows) / span
     assert np.asarray(view.marker.x)[0] == pytest.approx(rb[1] + rb[2] / 2, **F32)
-    # A click on a target moves the three components there; Pigment is held.
-    k = len(view.targets.x) // 2
-    tx, ty = float(view.targets.x[k]), float(view.targets.y[k])
-    browser_event(view.targets, {"event": "element_click", "data": {"index": k}})
+    # A click (the catcher's added point, as bqplot's "add" mode sends it) moves the three components to the
+    # nearest lattice point inside the region; Pigment is held.
+    xs, ys = view._lattice
+    k = len(xs) // 2
+    tx, ty = float(xs[k]), float(ys[k])
+    browser_update(view.clicks, x=[tx + 0.004], y=[ty - 0.003])  # well within half a lattice step (1/60)
+    assert len(view.clicks.x) == 0  # cleared for the next click
     c, b = ty / (np.sqrt(3) / 2), tx - ty / np.sqrt(3)
-    assert shared.settings["Filler"] == pytest.approx(lows[1] + b * span, abs=1e-4)  # float32 targets
+    assert shared.settings["Filler"] == pytest.approx(lows[1] + b * span, abs=1e-4)
     assert shared.settings["Hardener"] == pytest.approx(lows[2] + c * span, abs=1e-4)
     assert shared.settings["Pigment"] == r[3] and sum(shared.blend().values()) == pytest.approx(100.0, abs=1e-9)
     view.flush()

@@ -51,6 +51,44 @@ def snapped_echo(slider, value, current) -> bool:
     return abs(float(value) - float(current)) <= 0.5 * float(step) * (1.0 + 1e-9)
 
 
+def click_catcher(scales):
+    """An empty, invisible Scatter in bqplot's "add" mode: a click on the figure's plot area adds one point there
+    (in data coordinates), which the view reads with :func:`take_click`. With :func:`click_through` on the
+    page, the figure's marks let the click through to the figure's own event rectangle beneath them."""
+    import bqplot as bq
+
+    return bq.Scatter(scales=scales, x=f32([]), y=f32([]), opacities=[0.0], default_size=1, colors=["#000000"],
+                      interactions={"click": "add"})
+
+
+def click_through(figure_class: str) -> ipw.HTML:
+    """A hidden style element: the marks of figures of CSS class *figure_class* let clicks through to the figure's
+    event rectangle (bqplot's ``plotarea_events``), where a :func:`click_catcher` turns them into a point. Cheaper
+    for the browser than a grid of invisible click targets, which it would lay out and repaint on every frame."""
+    rule = f".{figure_class} svg.svg-figure > g > g, .{figure_class} svg.svg-figure > g > g * "
+    return ipw.HTML(f"<style>{rule}{{ pointer-events: none; }}</style>", layout=ipw.Layout(display="none"))
+
+
+def take_click(catcher, what: str) -> tuple[float, float] | None:
+    """The point a click added to *catcher* (the last one), and the catcher cleared for the next click; None when
+    there is nothing to take (the catcher was just cleared). A point that is not finite raises a
+    :class:`LevelwiseError` naming *what* was clicked."""
+    sent_x, sent_y = catcher.x, catcher.y
+    if len(sent_x) == 0 and len(sent_y) == 0:
+        return None
+    with catcher.hold_sync():
+        catcher.x, catcher.y = f32([]), f32([])
+    try:  # one point a click; a client sending more gets its last one
+        px, py = float(np.ravel(sent_x)[-1]), float(np.ravel(sent_y)[-1])
+    except (TypeError, ValueError, IndexError):
+        px = py = float("nan")
+    if not (np.isfinite(px) and np.isfinite(py)):
+        raise LevelwiseError(
+            f"A click on {what} must give a finite position on both axes. Got {len(sent_x)} value(s) across and "
+            f"{len(sent_y)} up, the last ones not usable.")
+    return px, py
+
+
 def error_html(message: str) -> str:
     return f'<div class="lw-error">{html.escape(message)}</div>' if message else ""
 

@@ -25,7 +25,7 @@ from levelwise import LevelwiseError
 from levelwise.model._optimize import as_goal, overall_desirability
 
 from . import _count_display as counts
-from ._base import Coalescer, View, f32, set_if_changed
+from ._base import Coalescer, View, click_catcher, click_through, f32, set_if_changed, take_click
 from .shared_model import SharedModel
 from .style import (
     CIVIDIS,
@@ -43,10 +43,6 @@ MIXTURE_NOTE = ("<p>A surface slice varies two factors independently; the compon
 #: Grid points per axis that a click on the slice snaps to (the nearest one).
 CLICK_GRID = 41
 
-#: The slice's marks let clicks through to the figure's own event rectangle beneath them (bqplot's
-#: ``plotarea_events``), so that a click anywhere on the plot area reaches the click catcher (``clicks``).
-CLICK_THROUGH = ("<style>.lw-slice svg.svg-figure > g > g, .lw-slice svg.svg-figure > g > g * "
-                 "{ pointer-events: none; }</style>")
 
 
 #: The largest colour code; the codes 0..CODES span the quantity's finite range, CODES + 1 marks a cell that is
@@ -202,10 +198,7 @@ class SurfaceSlice(View):
         )
         # One invisible point at most, where the viewer clicked (not a grid of invisible click targets: 41 x 41
         # of them were three quarters of the page's elements, and the browser re-layered them on every frame).
-        self.clicks = bq.Scatter(
-            scales={"x": self.sx, "y": self.sy}, x=f32([]), y=f32([]), opacities=[0.0], default_size=1,
-            colors=["#000000"], interactions={"click": "add"},
-        )
+        self.clicks = click_catcher({"x": self.sx, "y": self.sy})
         self.clicks.observe(self.safely(self._on_click), names=["x", "y"])
         self.marker = bq.Scatter(scales={"x": self.sx, "y": self.sy}, **CURRENT_MARKER)
         self.color_axis = bq.ColorAxis(scale=self.label_scale, side="right", label="")
@@ -219,10 +212,9 @@ class SurfaceSlice(View):
             fig_margin={"top": 20, "bottom": 50, "left": 60, "right": 90},
             animation_duration=0,
         ).add_class("lw-slice")
-        click_through = ipw.HTML(CLICK_THROUGH, layout=ipw.Layout(display="none"))
         self.widget = ipw.VBox(
             [ipw.HBox([self.x_factor, self.y_factor]), self.quantity, self.figure, self.caption, self.status,
-             click_through]
+             click_through("lw-slice")]
         ).add_class("lw-surface-slice")
 
         self._key = None
@@ -267,19 +259,10 @@ class SurfaceSlice(View):
 
     def _on_click(self, change):
         """A point added by a click (bqplot's "add" mode): move the axis factors to the nearest grid point."""
-        sent_x, sent_y = self.clicks.x, self.clicks.y
-        if len(sent_x) == 0 and len(sent_y) == 0:
-            return  # the catcher was just cleared
-        with self.clicks.hold_sync():  # ready for the next click
-            self.clicks.x, self.clicks.y = f32([]), f32([])
-        try:  # the last point added is the click (one at a time, unless a client sends more)
-            px, py = float(np.ravel(sent_x)[-1]), float(np.ravel(sent_y)[-1])
-        except (TypeError, ValueError, IndexError):
-            px = py = float("nan")
-        if not (np.isfinite(px) and np.isfinite(py)):
-            raise LevelwiseError(
-                "A click on the slice must give a finite position on both axes. Got "
-                f"{len(sent_x)} value(s) across and {len(sent_y)} up, the last ones not usable.")
+        point = take_click(self.clicks, "the slice")
+        if point is None:
+            return
+        px, py = point
         xs, ys = self._target_axes()
         j, i = int(np.argmin(np.abs(xs - px))), int(np.argmin(np.abs(ys - py)))
         try:

@@ -19,13 +19,13 @@ import numpy as np
 from levelwise import LevelwiseError
 from levelwise.model import ternary_blend, ternary_grid, ternary_halfplanes, ternary_position
 
-from ._base import Coalescer, View, f32, set_if_changed
+from ._base import Coalescer, View, click_catcher, click_through, f32, set_if_changed, take_click
 from .shared_model import SharedModel
 from .style import CIVIDIS, CONTOUR_COLOR, CURRENT_MARKER, DESIGN_POINT_COLOR, EXCLUDED_COLOR, SURFACE_QUANTITIES
 from .surface_slice import CODES, contour_paths, quantise
 
 SQRT3_2 = float(np.sqrt(3.0) / 2.0)
-#: Clickable (invisible) targets per side of the triangle.
+#: Points per side of the triangular lattice that a click on the slice snaps to (the nearest one inside the region).
 CLICK_SIDE = 31
 QUANTITIES = [("Expected mean", "mean"), ("CI half-width", "ci_half"), ("PI half-width", "pi_half")]
 
@@ -86,7 +86,8 @@ class TernarySlice(View):
         ``mean``, ``ci_half`` or ``pi_half`` (``lw-slice-quantity``).
     figure : bqplot.Figure
         ``lw-ternary``: ``heatmap``, ``contour_lines``, ``outline``, ``corner_labels``, ``points``,
-        ``excluded_points``, ``targets`` (click grid), ``marker`` (current blend).
+        ``excluded_points``, ``clicks`` (the click catcher: a click adds one point there, and the blend moves to
+        the nearest point of a triangular lattice inside the region), ``marker`` (current blend).
     caption : ipywidgets.HTML
         ``lw-ternary-caption``.
     widget : ipywidgets.VBox
@@ -120,18 +121,19 @@ class TernarySlice(View):
         self.points = bq.Scatter(scales=scales, colors=[DESIGN_POINT_COLOR], stroke="white", default_size=40)
         self.excluded_points = bq.Scatter(scales=scales, colors=[EXCLUDED_COLOR], fill=False, default_size=50,
                                           marker="square")
-        self.targets = bq.Scatter(scales=scales, opacities=[0.0], default_size=90, marker="square",
-                                  colors=["#000000"])
-        self.targets.on_element_click(self.safely(self._on_click))
+        self.clicks = click_catcher(scales)  # one invisible point at most, not a lattice of click targets
+        self.clicks.observe(self.safely(self._on_click), names=["x", "y"])
+        self._lattice = (np.array([]), np.array([]))
         self.marker = bq.Scatter(scales=scales, **CURRENT_MARKER)
         self.color_axis = bq.ColorAxis(scale=self.label_scale, side="right", label="")
         self.figure = bq.Figure(
             marks=[self.heatmap, self.mask, self.contour_lines, self.outline, self.corner_labels, self.points,
-                   self.excluded_points, self.targets, self.marker],
+                   self.excluded_points, self.clicks, self.marker],
             axes=[self.color_axis], layout=ipw.Layout(width="560px", height="500px"),
             fig_margin={"top": 20, "bottom": 20, "left": 20, "right": 90}, animation_duration=0,
         ).add_class("lw-ternary")
-        self.widget = ipw.VBox([ipw.HBox(self.choices), self.quantity, self.figure, self.caption, self.status])
+        self.widget = ipw.VBox([ipw.HBox(self.choices), self.quantity, self.figure, self.caption, self.status,
+                                click_through("lw-ternary")])
         self.widget.add_class("lw-ternary-slice")
         self._key, self._range, self.grid, self.redraws = None, (0.0, 1.0), None, 0
         self._coalescer = Coalescer(self.safely(self._redraw))
@@ -185,13 +187,16 @@ class TernarySlice(View):
         """Draw now whatever redraw is pending."""
         self._coalescer.flush()
 
-    def _on_click(self, mark, content):
-        index = int(content["data"]["index"])
-        xs, ys = self.targets.x, self.targets.y
-        if xs is None or not 0 <= index < len(xs):
-            raise LevelwiseError(f"A click on the ternary slice must hit one of its {0 if xs is None else len(xs)} "
-                                 f"targets. Got index {index}.")
-        self.click_at(float(xs[index]), float(ys[index]))
+    def _on_click(self, change):
+        """A point added by a click: move the blend to the nearest lattice point inside the region."""
+        point = take_click(self.clicks, "the ternary slice")
+        if point is None:
+            return
+        xs, ys = self._lattice
+        if not len(xs):
+            raise LevelwiseError("The ternary slice has no region to click yet (nothing is drawn).")
+        k = int(np.argmin((xs - point[0]) ** 2 + (ys - point[1]) ** 2))
+        self.click_at(float(xs[k]), float(ys[k]))
 
     def click_at(self, x: float, y: float) -> None:
         """Move the blend to the point (x, y) of the triangle, as a click there does."""
@@ -247,9 +252,7 @@ class TernarySlice(View):
         with self.points.hold_sync(), self.excluded_points.hold_sync():
             set_if_changed(self.points, x=f32(px[used]), y=f32(py[used]))
             set_if_changed(self.excluded_points, x=f32(px[~used]), y=f32(py[~used]))
-        tx, ty = self._targets(grid)
-        with self.targets.hold_sync():
-            set_if_changed(self.targets, x=f32(tx), y=f32(ty))
+        self._lattice = self._targets(grid)
         with self.marker.hold_sync():
             set_if_changed(self.marker, x=f32([grid["reference"][0]]), y=f32([grid["reference"][1]]))
         units = shared.response_units
@@ -266,7 +269,7 @@ class TernarySlice(View):
         self._key = key
 
     def _targets(self, grid):
-        """Click targets: a triangular lattice of points inside the region."""
+        """The points a click snaps to: a triangular lattice of points inside the region."""
         n = CLICK_SIDE - 1
         i, j = np.meshgrid(np.arange(n + 1), np.arange(n + 1))
         keep = (i + j) <= n

@@ -185,20 +185,29 @@ class PolynomialPlan:
         self._y_split = len(mean)
         self._event_grids = {}
 
+    #: Largest block-diagonal basis (elements, both together) :meth:`event` keeps; beyond it (many points, many
+    #: factors) each trace is one product with its own grid's basis, k times less memory.
+    block_limit = 1_000_000
+
     def _event_basis(self, points: int):
         """The x grids and the bases of :meth:`event` (terms, k * points + 1), every trace's grid one after another
         then the setting itself: of the mean, the powers u^a of each trace's free coded value u, and of h, the
-        products u^a u^b (a <= b, twice for a < b); the last row picks the setting."""
+        products u^a u^b (a <= b, twice for a < b); the last row picks the setting. Beyond :attr:`block_limit`,
+        each trace's own (k, points, terms) instead."""
         if points not in self._event_grids:
             xs, _, vander = self.trace_grids(points)
             k, w, per = self.k, self.D + 1, len(self._pairs)
+            pairs = np.stack([(1.0 if a == b else 2.0) * vander[:, :, a] * vander[:, :, b] for a, b in self._pairs],
+                             axis=2)  # (k, points, per)
+            if (k * (w + per) + 2) * (k * points + 1) > self.block_limit:
+                self._event_grids[points] = (xs, vander, pairs)
+                return self._event_grids[points]
             mean = np.zeros((k * w + 1, k * points + 1))
             h = np.zeros((k * per + 1, k * points + 1))
             for j in range(k):
                 cols = slice(j * points, (j + 1) * points)
                 mean[j * w: (j + 1) * w, cols] = vander[j].T
-                for i, (a, b) in enumerate(self._pairs):
-                    h[j * per + i, cols] = (1.0 if a == b else 2.0) * vander[j, :, a] * vander[j, :, b]
+                h[j * per: (j + 1) * per, cols] = pairs[j].T
             mean[-1, -1] = h[-1, -1] = 1.0
             self._event_grids[points] = (xs, mean, h)
         return self._event_grids[points]
@@ -224,7 +233,14 @@ class PolynomialPlan:
             first *= factors[d]
         coefs = first.dot(self._q).dot(first.T).take(self._y_places)
         split = self._y_split
-        return xs, coefs[:split].dot(mean_basis), coefs[split:].dot(h_basis)
+        if mean_basis.ndim == 2:
+            return xs, coefs[:split].dot(mean_basis), coefs[split:].dot(h_basis)
+        k, n = self.k, self.k * points
+        values = np.empty((2, n + 1))  # many points: one product per trace with its grid's basis
+        for row, basis, part in ((values[0], mean_basis, coefs[:split]), (values[1], h_basis, coefs[split:])):
+            np.matmul(basis, part[:-1].reshape(k, -1, 1), out=row[:n].reshape(k, points, 1))
+            row[n] = part[-1]
+        return xs, values[0], values[1]
 
     def slice(self, powers: np.ndarray, ts: float, ix: int, iy: int, shape, extra: float = 1.0) -> dict:
         """Mean and CI/PI half-width grids (ny, nx) over factors ix (across) and iy (up)."""
