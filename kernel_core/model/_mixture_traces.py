@@ -22,7 +22,7 @@ Node rows: along line i the blend is ``X = T e_i + w D_i`` with ``w = T - t`` an
 x / divisor | 0 | 0] / T``, ``w = T``), lines 1..q the components. With proportions (offset 0) the block of model
 variables is left out: they are the blend over the divisor, and the powers of the divisor go into ``[F | beta]``.
 All lines' node rows come from one product ``[P_0 Q_0 P_1 Q_1 ...] [w_0; 1; w_1; 1; ...]`` (block rows), kept
-column by column, every line's nodes side by side: ``(width, (q + 1) (d + 1))``.
+column by column, lines 1..q side by side and the blend (one node) last: ``(width, q (d + 1) + 1)``.
 
 Away from a pure blend the slider path uses the same rows in u = w / (T - x_i) = (T - t) / (T - x_i): the blend is
 ``T e_i + u (x - T e_i)``, so ``P_i = [x - T e_i | x_i - T | (x_i - T) / T | ...]`` and ``Q_i = [T e_i | T |
@@ -58,7 +58,7 @@ class CoxPlan:
         self.shifted = bool(offsets.any()) or not identity
         v = q + 2 + (q if self.shifted else 0)  # first process column
         W = self.width = v + self.tail + 1
-        # [P_0 Q_0 P_1 Q_1 ...] (width, 2 (q + 1)) and the block rows [w_l; 1] (2 (q + 1), (q + 1) (d + 1)):
+        # [P_0 Q_0 P_1 Q_1 ...] (width, 2 (q + 1)) and the block rows [w_l; 1] (2 (q + 1), q (d + 1) + 1):
         # their parts that do not depend on the blend (see _node_rows), and where the rest goes (flat)
         n, L = d + 1, q + 1
         PQ = np.zeros((W, 2 * L))
@@ -69,16 +69,20 @@ class CoxPlan:
         if self.shifted:
             PQ[q + 2:2 * q + 2, 1::2] = (PQ[:q, 1::2] - offsets[:, None]) / divisor
         PQ[W - 1, 1::2] = 1.0
-        Wb = np.zeros((2 * L, L * n))
-        for line in range(L):
-            Wb[2 * line, line * n:(line + 1) * n] = T
-            Wb[2 * line + 1, line * n:(line + 1) * n] = 1.0
+        # node columns: line i >= 1 at (i - 1) (d + 1) .. i (d + 1) - 1, line 0 (the blend: one node) last
+        N = q * n + 1
+        Wb = np.zeros((2 * L, N))
+        Wb[0, N - 1], Wb[1, N - 1] = T, 1.0
+        for line in range(1, L):
+            Wb[2 * line, (line - 1) * n:line * n] = T
+            Wb[2 * line + 1, (line - 1) * n:line * n] = 1.0
         self.pq_fixed, self.w_fixed, self.first_process = PQ, Wb, v
-        self.put_w = np.array([2 * line * L * n + line * n + a for line in range(1, L) for a in range(n)])
-        N = L * n
+        self.put_w = np.array([2 * line * N + (line - 1) * n + a for line in range(1, L) for a in range(n)])
         a = np.arange(n)
         self.blocks = np.array([((i * n + a)[:, None] * N + i * n + a[None, :]).ravel()
-                                for i in range(1, L)])  # line i's node Gram in the (N, N) Gram, flat
+                                for i in range(q)])  # line i + 1's node Gram in the (N, N) Gram, flat
+        self.room_lo = [T - v for v in np.broadcast_to(m.declared_lows, (q,)).tolist()]
+        self.room_hi = [T - v for v in np.broadcast_to(m.declared_highs, (q,)).tolist()]
         # the u-form of the lines (see _u_parts) is affine in z = [x, u at s = 0, u at s = 1, process settings]:
         # [P | Q], [u; 1] flat = z K (K's last row the constant part)
         self.offsets = offsets
@@ -191,7 +195,7 @@ def cox_shares(xs: list, T: float) -> np.ndarray:
 
 
 def _node_rows(plan, PQ, Wb, tail):
-    """The node rows of every line, (width, (q + 1) (d + 1)): ``w P + Q`` (see the module notes) as one product
+    """The node rows of every line, (width, q (d + 1) + 1): ``w P + Q`` (see the module notes) as one product
     of ``[P_0 Q_0 P_1 Q_1 ...]`` and the block rows ``[w_l; 1]``, once the parts that depend on the blend are in
     (P's shares, Q's change; here the model variables of pseudo-components and the process settings)."""
     q = plan.q
@@ -226,16 +230,16 @@ def _u_parts(plan, z):
             Q[q + 2:2 * q + 2] = (e - plan.offsets) / plan.divisor
     PQ[plan.first_process:W - 1, 1::2] = np.asarray(tail)[:, None]
     PQ[W - 1, 1::2] = 1.0
-    Wb = np.zeros((2 * L, L * n))
-    Wb[1, :n] = 1.0
+    Wb = np.zeros((2 * L, q * n + 1))
+    Wb[1, q * n] = 1.0
     for i in range(q):
-        Wb[2 * i + 2, (i + 1) * n:(i + 2) * n] = lo[i] + (hi[i] - lo[i]) * plan.nodes
-        Wb[2 * i + 3, (i + 1) * n:(i + 2) * n] = 1.0
+        Wb[2 * i + 2, i * n:(i + 1) * n] = lo[i] + (hi[i] - lo[i]) * plan.nodes
+        Wb[2 * i + 3, i * n:(i + 1) * n] = 1.0
     return PQ, Wb
 
 
 def _u_nodes(plan, z):
-    """The node rows of every line, (width, (q + 1) (d + 1)), from z = [x, u at s = 0, u at s = 1, process
+    """The node rows of every line, (width, q (d + 1) + 1), from z = [x, u at s = 0, u at s = 1, process
     settings, 1] (no pure blend): the u-form parts by one product with the per-fit map, then ``[P | Q] [u; 1]``."""
     flat = z @ plan.u_map  # (the map stored (len(z), parts): the cheaper orientation of the product)
     k = plan.u_split
@@ -243,17 +247,39 @@ def _u_nodes(plan, z):
 
 
 def _bounds_nodes(xs, T, lows, highs, tail, plan):
-    """The node rows in a region of bounds only: the ranges by :func:`cox_ranges`, u = (T - t) / (T - x_i) at
-    their ends (plain Python), then :func:`_u_nodes`; None from a pure blend."""
-    lo, hi = cox_ranges(xs, T, lows, highs)
+    """The node rows in a region of bounds only: u = (T - t) / (T - x_i) at the ends of the ranges of
+    :func:`cox_ranges` in the same pass (plain Python), then :func:`_u_nodes`; None from a pure blend."""
+    q = len(xs)
+    inf = float("inf")
+    u1 = u2 = inf
+    d1 = d2 = -inf
+    iu = idn = -1
+    for j in range(q):  # the best two ratios of cox_ranges
+        v = xs[j]
+        if v > 0.0:
+            u = highs[j] / v
+            if u < u1:
+                u1, u2, iu = u, u1, j
+            elif u < u2:
+                u2 = u
+            d = lows[j] / v
+            if d > d1:
+                d1, d2, idn = d, d1, j
+            elif d > d2:
+                d2 = d
     tiny = 1e-12 * T
     ulo, uhi = [], []
-    for v, a, b in zip(xs, lo, hi):
-        rest = T - v
+    room_lo, room_hi = plan.room_lo, plan.room_hi
+    for i in range(q):  # u at t = lo: min(ratio, (T - low_i) / rest); at t = hi: max(ratio, (T - high_i) / rest)
+        rest = T - xs[i]
         if rest <= tiny:
             return None
-        ulo.append((T - a) / rest)
-        uhi.append((T - b) / rest)
+        a = u2 if i == iu else u1
+        b = room_lo[i] / rest
+        ulo.append(a if a < b else b)
+        a = d2 if i == idn else d1
+        b = room_hi[i] / rest
+        uhi.append(a if a > b else b)
     ulo += uhi
     ulo += tail
     ulo.append(1.0)
@@ -294,7 +320,7 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
         nodes = None
     if nodes is None:
         nodes = _lines_nodes(mixture, xs, tail, plan)
-    flat = nodes  # (width, (q + 1) (d + 1)): every line's nodes side by side
+    flat = nodes  # (width, q (d + 1) + 1): lines 1..q, the blend last
     if plan.picks is not None:
         both = plan.fb_t @ np.multiply.reduce(flat.take(plan.picks, axis=0), axis=0)  # [x F | mean]^T
     else:
@@ -306,8 +332,8 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
     half += c * c * engine.extra
     pi = np.sqrt(half, out=half)
     flat[W - 1] = both[-1]
-    across = (nodes.reshape(-1, n) @ plan.lagrange(points)).reshape(W, q + 1, points)[:, 1:]
-    return across, ci, pi, float(both[-1, 0]), float(gram[0, 0])
+    across = (nodes[:, :-1].reshape(-1, n) @ plan.lagrange(points)).reshape(W, q, points)
+    return across, ci, pi, float(both[-1, -1]), float(gram[-1, -1])
 
 
 __all__ = ["CoxPlan", "cox_polynomial_traces", "cox_ranges", "cox_shares"]
