@@ -84,15 +84,21 @@ def predicted(ref, blends, total):
         (frame["obs_ci_upper"] - frame["mean"]).to_numpy()
 
 
-def test_moving_a_component_slider_rescales_the_others_along_the_cox_direction():
-    shared = SharedModel.from_study(demo_study())
-    view = MixtureSliders(shared)
+def move_resin_to_70(shared, view) -> dict:
+    """Move Resin's slider to 70 as a browser does; the blend the Cox direction gives, worked by hand: the others
+    keep their relative proportions, x_j = r_j (100 - 70) / (100 - r_Resin)."""
     names = shared.component_names
     r = np.array([shared.settings[n] for n in names])
     browser_update(view.sliders["Resin"], value=70.0)
     view.move("Resin", 70.0)  # flush the coalesced slider event
-    # By hand: the others keep their relative proportions, x_j = r_j (100 - 70) / (100 - r_Resin).
-    expected = {"Resin": 70.0} | {n: r[j] * 30.0 / (100.0 - r[0]) for j, n in enumerate(names) if n != "Resin"}
+    return {"Resin": 70.0} | {n: r[j] * 30.0 / (100.0 - r[0]) for j, n in enumerate(names) if n != "Resin"}
+
+
+def test_moving_a_component_slider_rescales_the_others_along_the_cox_direction():
+    shared = SharedModel.from_study(demo_study())
+    view = MixtureSliders(shared)
+    names = shared.component_names
+    expected = move_resin_to_70(shared, view)
     for name in names:
         assert shared.settings[name] == pytest.approx(expected[name], abs=1e-9)
         assert view.sliders[name].value == pytest.approx(expected[name], abs=1e-9)

@@ -10,9 +10,8 @@ expected blends are worked by hand with the Cox direction x_j = r_j (T - t) / (T
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
-from test_widgets_mixture import demo_study
+from test_widgets_mixture import demo_study, move_resin_to_70
 from widget_support import browser_update
 
 from levelwise import demo
@@ -45,11 +44,7 @@ def test_echoes_of_the_rescaled_components_leave_the_blend_where_the_move_put_it
     shared = SharedModel.from_study(demo_study())
     view = MixtureSliders(shared)
     names = shared.component_names
-    r = np.array([shared.settings[n] for n in names])
-    browser_update(view.sliders["Resin"], value=70.0)
-    view.move("Resin", 70.0)
-    # By hand: the others keep their relative proportions, x_j = r_j (100 - 70) / (100 - r_Resin).
-    expected = {"Resin": 70.0} | {n: r[j] * 30.0 / (100.0 - r[0]) for j, n in enumerate(names) if n != "Resin"}
+    expected = move_resin_to_70(shared, view)  # the Cox direction's blend, worked by hand there
     off_grid = [n for n in names if n != "Resin"
                 and snapped(view.sliders[n], expected[n]) != pytest.approx(expected[n], abs=1e-12)]
     assert off_grid  # the test means something only if some component was left off its slider's grid
