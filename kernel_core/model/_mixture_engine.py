@@ -54,7 +54,7 @@ class MixtureEngine(PredictionEngine):
         if type(settings) is not dict or len(settings) != len(names):
             return None
         try:
-            row = list(map(settings.__getitem__, names))
+            row = [settings[name] for name in names]
         except KeyError:
             return None
         inf = math.inf
@@ -67,8 +67,9 @@ class MixtureEngine(PredictionEngine):
             return None
         bounds = self.__dict__.get("_fast_bounds")
         if bounds is None:
+            plain = not any(offsets)
             bounds = self.__dict__["_fast_bounds"] = ([lo - tol for lo in lows], [hi + tol for hi in highs],
-                                                      not any(offsets))
+                                                      plain, plain and divisor == 1.0)
         for value, lo, hi in zip(xs, bounds[0], bounds[1]):
             if value < lo or value > hi:
                 return None
@@ -77,7 +78,13 @@ class MixtureEngine(PredictionEngine):
             if (m.G @ np.array(xs) > m.h + tol).any():
                 return None
         # (x - offset) / divisor; without offsets x / divisor (the same numbers: x - 0.0 is x)
-        variables = list(map(divisor.__rtruediv__, xs if bounds[2] else map(float.__sub__, xs, offsets)))
+        # (x / 1.0 is x: the plain proportions are the amounts themselves)
+        if bounds[3]:
+            variables = [*xs]
+        elif bounds[2]:
+            variables = [v / divisor for v in xs]
+        else:
+            variables = [(v - o) / divisor for v, o in zip(xs, offsets)]
         for j, (centre, half) in enumerate(process):
             variables.append((row[q + j] - centre) / half)
         return xs, variables

@@ -333,7 +333,7 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
     pi = np.sqrt(half, out=half)
     flat[W - 1] = both[-1]
     across = (nodes[:, :-1].reshape(-1, n) @ plan.lagrange(points)).reshape(W, q, points)
-    return across, ci, pi, float(both[-1, -1]), float(gram[-1, -1])
+    return across, ci, pi, both.item(-1), gram.item(-1)
 
 
 __all__ = ["CoxPlan", "cox_polynomial_traces", "cox_ranges", "cox_shares"]
