@@ -17,10 +17,9 @@ from levelwise.dashboards.cli import main
 
 
 @pytest.fixture(scope="module")
-def folder(tmp_path_factory):
-    out = tmp_path_factory.mktemp("published") / "board"
-    assert main(["publish", "demo", "--out", str(out)]) == 0
-    return out
+def folder(published_dir):
+    """The published demo (conftest's ``levelwise publish demo`` folder)."""
+    return published_dir
 
 
 @pytest.fixture(scope="module")
