@@ -140,20 +140,14 @@ def _picks(engine, columns, one):
     return picks
 
 
-def cox_ranges(xs: list, T: float, lows: list, highs: list):
-    """The range [lo_i, hi_i] of component i's amount t along every Cox line from the blend *xs* in a region of
-    bounds only (plain floats; the one rule for every caller).
-
-    Along line i the others are x_j = s_j (T - t) with s_j = x_j / (T - x_i) (equal shares 1 / (q - 1) from a pure
-    blend, T - x_i <= 1e-12 T); L_j <= x_j <= U_j gives T - U_j / s_j <= t <= T - L_j / s_j for every s_j > 0, and
-    L_i <= t <= U_i. With s_j = x_j / (T - x_i) the tightest are ``T - (T - x_i) min_j U_j / x_j`` and
-    ``T - (T - x_i) max_j L_j / x_j`` over the others with x_j > 0, so the best two ratios serve every line."""
-    q = len(xs)
+def _best_two_ratios(xs: list, lows: list, highs: list):
+    """The two smallest U_j / x_j and the two largest L_j / x_j over the x_j > 0, with the place of the best of each:
+    ``(u1, u2, iu, d1, d2, idn)`` (the rule of :func:`cox_ranges`)."""
     inf = float("inf")
     u1 = u2 = inf
     d1 = d2 = -inf
     iu = idn = -1
-    for j in range(q):
+    for j in range(len(xs)):
         v = xs[j]
         if v > 0.0:
             u = highs[j] / v
@@ -166,6 +160,19 @@ def cox_ranges(xs: list, T: float, lows: list, highs: list):
                 d1, d2, idn = d, d1, j
             elif d > d2:
                 d2 = d
+    return u1, u2, iu, d1, d2, idn
+
+
+def cox_ranges(xs: list, T: float, lows: list, highs: list):
+    """The range [lo_i, hi_i] of component i's amount t along every Cox line from the blend *xs* in a region of
+    bounds only (plain floats; the one rule for every caller).
+
+    Along line i the others are x_j = s_j (T - t) with s_j = x_j / (T - x_i) (equal shares 1 / (q - 1) from a pure
+    blend, T - x_i <= 1e-12 T); L_j <= x_j <= U_j gives T - U_j / s_j <= t <= T - L_j / s_j for every s_j > 0, and
+    L_i <= t <= U_i. With s_j = x_j / (T - x_i) the tightest are ``T - (T - x_i) min_j U_j / x_j`` and
+    ``T - (T - x_i) max_j L_j / x_j`` over the others with x_j > 0, so the best two ratios serve every line."""
+    q = len(xs)
+    u1, u2, iu, d1, d2, idn = _best_two_ratios(xs, lows, highs)
     los, his = [], []
     for i in range(q):
         rest = T - xs[i]
@@ -250,23 +257,7 @@ def _bounds_nodes(xs, T, lows, highs, tail, plan):
     """The node rows in a region of bounds only: u = (T - t) / (T - x_i) at the ends of the ranges of
     :func:`cox_ranges` in the same pass (plain Python), then :func:`_u_nodes`; None from a pure blend."""
     q = len(xs)
-    inf = float("inf")
-    u1 = u2 = inf
-    d1 = d2 = -inf
-    iu = idn = -1
-    for j in range(q):  # the best two ratios of cox_ranges
-        v = xs[j]
-        if v > 0.0:
-            u = highs[j] / v
-            if u < u1:
-                u1, u2, iu = u, u1, j
-            elif u < u2:
-                u2 = u
-            d = lows[j] / v
-            if d > d1:
-                d1, d2, idn = d, d1, j
-            elif d > d2:
-                d2 = d
+    u1, u2, iu, d1, d2, idn = _best_two_ratios(xs, lows, highs)
     tiny = 1e-12 * T
     ulo, uhi = [], []
     room_lo, room_hi = plan.room_lo, plan.room_hi
