@@ -12,6 +12,7 @@ import pandas as pd
 
 from .._rich import anova_frame, coefficient_table, fit_html
 from .._stats import t_ppf, t_sf
+from . import _exclusions
 from ._coding import Coding
 from ._engine import PredictionEngine
 from ._fit_queries import FitQueries
@@ -412,15 +413,11 @@ class Fit(FitQueries):
             When *run* is not a run id of the fit, *reason* is empty, or the run's leverage is 1
             (without it some term could not be estimated).
         """
-        from ._exclusions import exclude
-
-        return exclude(self, run, reason)
+        return _exclusions.exclude(self, run, reason)
 
     def include(self, run) -> Fit:
         """A new Fit with excluded run *run* (a run id) back in, by a rank-one update (Sherman–Morrison)."""
-        from ._exclusions import include
-
-        return include(self, run)
+        return _exclusions.include(self, run)
 
     @cached_property
     def _rinv_beta(self) -> np.ndarray:
