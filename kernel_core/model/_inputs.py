@@ -47,7 +47,7 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
     if not math.isfinite(array.sum()) and (infinite := np.isinf(array)).any():
         row = int(np.flatnonzero(infinite)[0])
         raise LevelwiseError(
-            f"The {role} column {column!r} must hold finite numbers. Row {row + 1} holds {array[row]!r} instead."
+            f"The {role} column {column!r} must hold finite numbers. Row {row + 1} holds {array[row].item()!r} instead."
         )
     return array
 
