@@ -296,6 +296,45 @@ def test_more_bad_input():
         fit(data, "y", "A + Zeta", factors=FACTORS3)
 
 
+def test_float_columns_refuse_infinity_and_empty_settings_by_row():
+    data = planned_design()
+    infinite = data.astype({"y": float})
+    infinite.loc[3, "y"] = np.inf
+    with pytest.raises(LevelwiseError, match=r"response column 'y' must hold finite numbers. Row 4 holds inf"):
+        fit(infinite, "y", "A + B", factors=FACTORS3)
+    minus = data.astype({"B": float})
+    minus.loc[6, "B"] = -np.inf
+    with pytest.raises(LevelwiseError, match=r"factor column 'B' must hold finite numbers. Row 7 holds -inf"):
+        fit(minus, "y", "A + B", factors=FACTORS3)
+    empty = data.astype({"C": float})
+    empty.loc[1, "C"] = np.nan
+    with pytest.raises(LevelwiseError, match=r"factor column 'C' is empty in row 2, a run with a response"):
+        fit(empty, "y", "A + B + C", factors=FACTORS3)
+
+
+def test_empty_setting_in_a_run_without_response_leaves_the_fit_as_without_that_run():
+    data = planned_design().astype({"A": float, "B": float, "C": float})
+    data.loc[4, "y"] = np.nan
+    data.loc[4, "B"] = np.nan  # the run left out by its missing response has no B either
+    data.loc[0, "C"] = np.nan  # C is in no term of the model
+    result = fit(data, "y", "A + B + A:B", factors=FACTORS3)
+    kept = data.drop(index=4)
+    ref = ols_on(kept, kept["y"], ["A", "B", "A:B"])  # statsmodels OLS on the other runs
+    assert result.missing_runs == (int(data.loc[4, "run"]),)
+    assert result.beta == pytest.approx(ref.params, rel=1e-10)
+    assert result.s == pytest.approx(np.sqrt(ref.scale), rel=1e-10)
+
+
+def test_fit_keeps_its_own_copy_of_the_data():
+    data = planned_design().astype({"A": float, "y": float})
+    result = fit(data, "y", "A + B", factors=FACTORS3)
+    y_before, settings_before = result.y.copy(), result.run_settings.copy()
+    data.loc[:, "y"] = 0.0
+    data.loc[:, "A"] = 99.0
+    assert np.array_equal(result.y, y_before)
+    assert np.array_equal(result.run_settings, settings_before)
+
+
 def test_extrapolation_by_leverage_inside_the_ranges():
     # Runs on the diagonal A = B only: a point at (low, high) is inside both ranges but far from every run,
     # so its leverage exceeds the largest leverage of the design (the rule of issue 4).

@@ -117,7 +117,9 @@ def encode(natural: np.ndarray, center: np.ndarray, scale: np.ndarray, contrasts
     """
     natural = np.atleast_2d(np.asarray(natural, dtype=float))
     if not contrasts:
-        return (natural - center) / scale
+        coded = natural - center  # one new array, then divided in place (keeps *natural*'s memory layout)
+        coded /= scale
+        return coded
     parts = []
     for j, contrast in enumerate(contrasts):
         if contrast is None:

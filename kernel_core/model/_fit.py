@@ -50,6 +50,7 @@ from ._inputs import (
 from ._numerics import (
     EXTENDED_PRECISION_CONDITION,
     EXTENDED_PRECISION_WORK,
+    _apply_qt,
     _extended_solution,
     _inestimable,
     _scaled_pivoted_qr,
@@ -193,8 +194,10 @@ def least_squares(
     run_ids = _run_ids(data)
     y_all = _numeric_column(data, response, "response")
     planned_columns, categories = _factor_columns(data, names, factors, response)
-    planned = np.column_stack(planned_columns) if planned_columns else np.empty((len(data), 0))
-    natural = planned.copy()
+    # One column-major copy of the settings: each factor's column stays contiguous for coding and model rows.
+    natural = np.empty((len(data), len(names)), order="F")
+    for j, column in enumerate(planned_columns):
+        natural[:, j] = column
     achieved_map = _achieved_columns(data, names, categories, achieved)
     deviations = None
     if achieved_map:
@@ -204,21 +207,25 @@ def least_squares(
             values = _numeric_column(data, column, "achieved-setting")
             reached = np.isfinite(values)
             natural[reached, j] = values[reached]
-            dev[name] = np.where(reached, values - planned[:, j], 0.0)
+            dev[name] = np.where(reached, values - planned_columns[j], 0.0)
         deviations = pd.DataFrame(dev, index=run_ids)
     keep = np.isfinite(y_all)
     if not keep.any():
         raise LevelwiseError(
             f"The response column {response!r} has no values: every run is missing. At least one run must have a value."
         )
-    bad_setting = np.isnan(natural) & keep[:, None] & term_spec.exponents.any(axis=0)[None, :]
-    if bad_setting.any():
-        row, col = np.argwhere(bad_setting)[0]
-        raise LevelwiseError(
-            f"The factor column {names[col]!r} is empty in row {row + 1}, a run with a response. "
-            "Every run used in a fit needs all its settings."
-        )
-    natural = np.where(np.isnan(natural), 0.0, natural)
+    every = bool(keep.all())
+    # Settings hold no infinities (refused above), so a column with an empty cell is one whose sum is NaN.
+    if np.isnan(natural.sum(axis=0)).any():
+        empty = np.isnan(natural)
+        bad_setting = empty & keep[:, None] & term_spec.exponents.any(axis=0)[None, :]
+        if bad_setting.any():
+            row, col = np.argwhere(bad_setting)[0]
+            raise LevelwiseError(
+                f"The factor column {names[col]!r} is empty in row {row + 1}, a run with a response. "
+                "Every run used in a fit needs all its settings."
+            )
+        natural[empty] = 0.0
     coding_info = _coding_for(names, planned_columns, factors, coding, categories)
     contrasts = tuple(sum_to_zero(len(categories[n])) if n in categories else None for n in names)
     for name, levels in categories.items():
@@ -234,15 +241,15 @@ def least_squares(
         group_exp = term_spec.exponents[term_spec.exponents.any(axis=1)]
     else:
         spec, groups, group_exp = _expand(term_spec, names, categories, contrasts)
-    y = y_all[keep]
-    settings = natural[keep]
+    y = y_all if every else y_all[keep]
+    settings = natural if every else natural[keep]
     X = monomials(encode(settings, coding_info.center, coding_info.scale, contrasts), spec.exponents)
     n, p = X.shape
     short = (
         f"The model {model!r} has {p} terms but only {n} usable runs have a value for {response!r}; "
         "at least as many runs as terms are needed. Drop terms or add runs."
     )
-    q, r, piv, norms, rank = _scaled_pivoted_qr(X)
+    reflectors, r, piv, norms, rank = _scaled_pivoted_qr(X)
     aliased = {}
     if rank < p:
         kept, aliased = _inestimable(X, spec.terms, rank)
@@ -274,14 +281,14 @@ def least_squares(
         groups, group_exp = new_groups, np.array(new_exp, dtype=int).reshape(len(new_exp), len(names))
         X = X[:, kept]
         p = X.shape[1]
-        q, r, piv, norms, rank = _scaled_pivoted_qr(X)
+        reflectors, r, piv, norms, rank = _scaled_pivoted_qr(X)
     # X / norms = Q R P'  =>  beta = D^-1 P R^-1 Q'y and (X'X)^-1 = (D^-1 P R^-1)(D^-1 P R^-1)'.
     rinv_piv = scipy.linalg.solve_triangular(r, np.eye(p))
     rinv = np.empty_like(rinv_piv)
     rinv[piv] = rinv_piv
     rinv /= norms[:, None]
     beta = np.empty(p)
-    beta[piv] = scipy.linalg.solve_triangular(r, q.T @ y)
+    beta[piv] = scipy.linalg.solve_triangular(r, _apply_qt(reflectors, y))
     beta /= norms
     precise = None
     diag = np.abs(np.diag(r))
@@ -308,7 +315,7 @@ def least_squares(
         spec=spec,
         coding=coding_info,
         level=level,
-        all_runs=run_ids[keep],
+        all_runs=run_ids if every else run_ids[keep],
         X_all=X,
         y_all=y,
         beta=beta,
@@ -321,7 +328,7 @@ def least_squares(
         contrasts=contrasts,
         categories=MappingProxyType(categories),
         aliased=MappingProxyType(aliased),
-        missing_runs=tuple(run_ids[~keep].tolist()),
+        missing_runs=() if every else tuple(run_ids[~keep].tolist()),
         setting_deviations=deviations,
     )
     if precise:

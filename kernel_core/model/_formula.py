@@ -79,7 +79,7 @@ def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarr
             table[:, :, d] = table[:, :, d - 1] * coded
         return np.asfortranarray(table[:, np.arange(k)[None, :], exponents].prod(axis=2))
     # Many rows (building a model matrix): contiguous power columns per factor, one product per term.
-    out = np.ones((m, p), dtype=dtype, order="F")
+    out = np.empty((m, p), dtype=dtype, order="F")
     powers = {}
     for i in np.flatnonzero(exponents.any(axis=0)):
         first = np.ascontiguousarray(coded[:, i])
@@ -88,6 +88,7 @@ def monomials(coded: np.ndarray, exponents: np.ndarray, dtype=float) -> np.ndarr
     for j, row in enumerate(exponents):
         factors = np.flatnonzero(row)
         if not len(factors):
+            out[:, j] = 1.0
             continue
         column = out[:, j]
         np.copyto(column, powers[factors[0]][row[factors[0]]])

@@ -26,22 +26,28 @@ def _check_level(level) -> float:
 
 
 def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
-    """Column as float, with an error naming the row and value of the first non-number."""
+    """Column as a new float array (NaN where empty), with an error naming the row and value of the first
+    non-number."""
     values = data[column]
-    converted = pd.to_numeric(values, errors="coerce")
-    bad = converted.isna() & values.notna()
-    if bad.any():
-        row = bad.to_numpy().nonzero()[0][0]
-        raise LevelwiseError(
-            f"The {role} column {column!r} must hold numbers. "
-            f"Row {row + 1} (index {data.index[row]!r}) holds {describe(values.iloc[row])} instead."
-        )
-    array = converted.to_numpy(dtype=float, na_value=np.nan)
-    infinite = np.isinf(array)
-    if infinite.any():
+    if isinstance(values.dtype, np.dtype) and values.dtype.kind == "f":
+        # A numpy float column holds numbers or NaN (empty) already: one copy, no conversion pass.
+        array = values.to_numpy(dtype=float, copy=True)
+    else:
+        converted = pd.to_numeric(values, errors="coerce")
+        bad = converted.isna() & values.notna()
+        if bad.any():
+            row = bad.to_numpy().nonzero()[0][0]
+            raise LevelwiseError(
+                f"The {role} column {column!r} must hold numbers. "
+                f"Row {row + 1} (index {data.index[row]!r}) holds {describe(values.iloc[row])} instead."
+            )
+        array = converted.to_numpy(dtype=float, na_value=np.nan)
+    # A finite sum rules out infinities in one pass; only a column with NaN or inf (or an overflowing
+    # sum) is searched for the first infinity.
+    if not math.isfinite(array.sum()) and (infinite := np.isinf(array)).any():
         row = int(np.flatnonzero(infinite)[0])
         raise LevelwiseError(
-            f"The {role} column {column!r} must hold finite numbers. Row {row + 1} holds {array[row]!r} instead."
+            f"The {role} column {column!r} must hold finite numbers. Row {row + 1} holds {array[row].item()!r} instead."
         )
     return array
 

@@ -5,18 +5,43 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.linalg
+import scipy.linalg.lapack
 
 
 def _scaled_pivoted_qr(X):
+    """Householder QR with column pivoting of *X* with its columns scaled to unit length.
+
+    Returns ``(reflectors, r, piv, norms, rank)``: Q stays in LAPACK's factored form (the Householder
+    vectors and their factors, ``(qr, tau)``), since the fit needs only ``Q'y`` (:func:`_apply_qt`);
+    forming Q explicitly would cost about as much again as the factorisation.
+    """
     norms = np.sqrt(np.einsum("ij,ij->j", X, X))
     norms[norms == 0] = 1.0
     scaled = np.asfortranarray(X / norms)
-    q, r, piv = scipy.linalg.qr(scaled, mode="economic", pivoting=True, overwrite_a=True, check_finite=False)
+    reflectors, r, piv = scipy.linalg.qr(scaled, mode="raw", pivoting=True, overwrite_a=True, check_finite=False)
     diag = np.abs(np.diag(r))
     n, p = X.shape
     tol = max(n, p) * np.finfo(float).eps * (diag[0] if diag.size else 0.0)
     rank = int((diag > tol).sum())
-    return q, r, piv, norms, rank
+    return reflectors, r, piv, norms, rank
+
+
+#: Workspace of LAPACK's ``dormqr`` for one right-hand side: the block size (at most 64) plus its
+#: 65 x 64 triangular factor. A smaller workspace would only make ``dormqr`` use smaller blocks.
+_ORMQR_WORK = 64 + 65 * 64
+
+
+def _apply_qt(reflectors, y):
+    """``Q'y`` (its first ``min(n, p)`` entries) from the factored Q of :func:`_scaled_pivoted_qr`."""
+    qr, tau = reflectors
+    k = tau.shape[0]
+    if k == 0:
+        return np.zeros(0)
+    column = np.array(y, dtype=float, order="F").reshape(-1, 1)
+    qty, _, info = scipy.linalg.lapack.dormqr("L", "T", qr[:, :k], tau, column, _ORMQR_WORK, overwrite_c=1)
+    if info != 0:
+        raise ValueError(f"LAPACK dormqr failed (info = {info})")
+    return qty[:k, 0]
 
 
 def _inestimable(X, terms, rank):

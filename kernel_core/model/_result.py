@@ -122,11 +122,16 @@ class Fit(FitQueries):
 
         Arrays are shared, not copied (they are read-only); derived values are recomputed on demand.
         """
-        new = object.__new__(Fit)
-        values = new.__dict__
-        values.update(zip(_FIELDS, _FIELD_GETTER(self.__dict__)))
+        values = self._field_values.copy()  # a dict copy clones its table: no per-field inserts
         values.update(changes)
+        new = object.__new__(Fit)
+        object.__setattr__(new, "__dict__", values)
         return new
+
+    @cached_property
+    def _field_values(self) -> dict:
+        """The dataclass fields of this fit by name, without cached values (what :meth:`_replace` copies)."""
+        return dict(zip(_FIELDS, _FIELD_GETTER(self.__dict__)))
 
     @cached_property
     def _ordinals(self) -> np.ndarray:
@@ -421,8 +426,12 @@ class Fit(FitQueries):
 
     @cached_property
     def _rinv_beta(self) -> np.ndarray:
-        """``[R^-1 | beta]`` side by side (one product gives x R^-1 and x beta)."""
-        return np.column_stack([self.rinv, self.beta])
+        """``[R^-1 | beta]`` side by side (one product gives x R^-1 and x beta), column-major as the
+        rank-one update of :meth:`exclude` (BLAS dger) takes and returns it."""
+        both = np.empty((self.p, self.p + 1), order="F")
+        both[:, :-1] = self.rinv
+        both[:, -1] = self.beta
+        return both
 
     def _position(self, run):
         """Row of run id *run* among the runs in the fit, or None."""
