@@ -365,8 +365,8 @@ class PredictionEngine(SettingsCheck):
         return self._point_of(natural, mean, h, self._scale(level))
 
     def outside_one(self, natural, h: float) -> bool:
-        """The extrapolation rule at one setting (natural values, its h)."""
-        values = natural.tolist()
+        """The extrapolation rule at one setting (natural values as an array or a list of floats, its h)."""
+        values = natural.tolist() if type(natural) is np.ndarray else natural
         return bool(h > self._limit or not all(map(operator.le, self._lows_list, values))
                     or not all(map(operator.le, values, self._highs_list)))
 

@@ -15,6 +15,7 @@ The mean, the CI/PI half-widths and the extrapolation rule are the base engine's
 from __future__ import annotations
 
 import math
+import operator
 
 import numpy as np
 import pandas as pd
@@ -23,6 +24,8 @@ from .._errors import LevelwiseError, describe
 from ._engine import PredictionEngine
 from ._mixture_traces import CoxPlan, cox_polynomial_traces, cox_ranges, cox_shares
 from ._settings import check_points
+
+_PLAIN = frozenset((float, int))  # the value types of the slider fast path
 
 
 class MixtureEngine(PredictionEngine):
@@ -53,26 +56,28 @@ class MixtureEngine(PredictionEngine):
         names, q, total, tol, lows, highs, constrained, process, offsets, divisor = self._fast
         if type(settings) is not dict or len(settings) != len(names):
             return None
-        try:
-            row = [settings[name] for name in names]
-        except KeyError:
-            return None
-        inf = math.inf
-        for value in row:
-            kind = type(value)
-            if (kind is not float and kind is not int) or not -inf < value < inf:  # NaN fails too
-                return None
-        xs = list(map(float, row[:q] if process else row))
-        if abs(math.fsum(xs) - total) > tol:
-            return None
         bounds = self.__dict__.get("_fast_bounds")
         if bounds is None:
             plain = not any(offsets)
-            bounds = self.__dict__["_fast_bounds"] = ([lo - tol for lo in lows], [hi + tol for hi in highs],
-                                                      plain, plain and divisor == 1.0)
-        for value, lo, hi in zip(xs, bounds[0], bounds[1]):
-            if value < lo or value > hi:
+            pick = operator.itemgetter(*names)
+            bounds = self.__dict__["_fast_bounds"] = (
+                [lo - tol for lo in lows], [hi + tol for hi in highs], plain, plain and divisor == 1.0,
+                pick if len(names) > 1 else (lambda d: (pick(d),)))
+        try:
+            row = bounds[4](settings)  # a tuple in the order of names
+        except KeyError:
+            return None
+        if not _PLAIN.issuperset(map(type, row)):  # floats and ints only (not bool, not strings, not arrays)
+            return None
+        amounts = row[:q] if process else row
+        try:
+            if not abs(math.fsum(amounts) - total) <= tol:  # NaN and infinities fail here too
                 return None
+        except (ValueError, OverflowError):  # inf - inf, or an overflow in the sum
+            return None
+        xs = list(map(float, amounts))
+        if not (all(map(operator.le, bounds[0], xs)) and all(map(operator.le, xs, bounds[1]))):
+            return None
         if constrained:
             m = self.info.mixture
             if (m.G @ np.array(xs) > m.h + tol).any():
@@ -86,7 +91,10 @@ class MixtureEngine(PredictionEngine):
         else:
             variables = [(v - o) / divisor for v, o in zip(xs, offsets)]
         for j, (centre, half) in enumerate(process):
-            variables.append((row[q + j] - centre) / half)
+            value = row[q + j]
+            if not -math.inf < value < math.inf:  # NaN fails too
+                return None
+            variables.append((value - centre) / half)
         return xs, variables
 
     def _fast_blend(self, settings):
@@ -221,16 +229,7 @@ class MixtureEngine(PredictionEngine):
             mean0, h0 = float(mean[0]), float(h[0])
         out = {"point": None, "slice": None, "traces": None}
         if point:
-            half_ci, half_pi = c * math.sqrt(h0), c * math.sqrt(h0 + self.extra)
-            outside = h0 > self._limit
-            if not outside:
-                for value, low, high in zip(variables, self._lows_list, self._highs_list):
-                    if value < low or value > high:
-                        outside = True
-                        break
-            out["point"] = {"mean": mean0, "ci_low": mean0 - half_ci, "ci_high": mean0 + half_ci,
-                            "pi_low": mean0 - half_pi, "pi_high": mean0 + half_pi, "leverage": h0,
-                            "extrapolated": bool(outside)}
+            out["point"] = self._point_of(variables, mean0, h0, c)
         if points is not None:
             q = plan.q
             traces = {name: {"x": x, "amount": t, "blends": b, "mean": mu, "ci_half": ci, "pi_half": pi}
