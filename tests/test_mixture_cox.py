@@ -123,6 +123,34 @@ def test_fast_refresh_equals_the_general_path(setup):
         f.refresh({"x1": 0.2, "x2": 0.3, "x3": 0.6})
 
 
+@pytest.mark.parametrize("bad, named", [
+    ({"A": float("nan"), "B": 0.4, "C": 0.3, "Temp": 175.0}, "'A'"),
+    ({"A": float("inf"), "B": 0.4, "C": 0.3, "Temp": 175.0}, "'A'"),
+    ({"A": 0.3, "B": 0.4, "C": 0.3, "Temp": float("nan")}, "'Temp'"),
+    ({"A": 0.3, "B": 0.4, "C": 0.3, "Temp": float("inf")}, "'Temp'"),
+    ({"A": 0.05, "B": 0.45, "C": 0.5, "Temp": 175.0}, "A = 0.05"),  # below A's lower bound 0.1
+    ({"A": 0.3, "B": 0.4, "C": 0.3}, "Temp"),  # a process factor missing
+    ({"A": 0.3, "B": 0.4, "C": 0.3, "Temp": 175.0, "D": 0.0}, "'D'"),  # a name the model does not have
+    ({"A": 0.3, "B": 0.4, "C": 0.4, "Temp": 175.0}, "sum"),
+])
+def test_fast_refresh_refuses_what_the_checked_path_refuses(bad, named):
+    # The slider fast path takes only dicts of plain finite numbers that make a valid blend; anything else goes to
+    # the checked path, whose error names the component or factor.
+    comps = [lw.Component("A", 0.1), lw.Component("B", 0.2), lw.Component("C")]
+    mix = lw.simplex_lattice(comps, 2, randomize=False)
+    d = lw.mixture_process(mix, [lw.Factor("Temp", 150, 190)], randomize=False)
+    data = d.table[["A", "B", "C", "Temp"]].copy()
+    data["y"] = np.random.default_rng(5).normal(size=len(data)) + data["A"] * 3
+    f = lw.fit_mixture(data, "y", ("scheffe_linear", "main_effects"), mix.mixture,
+                       process=[lw.Factor("Temp", 150, 190)])
+    with pytest.raises(LevelwiseError, match=named):
+        f.refresh(bad, points=5)
+    # whole numbers are plain numbers too: the same event as the same blend in floats
+    ints = f.refresh({"A": 0.2, "B": 0.8, "C": 0, "Temp": 170}, points=5)
+    floats = f.refresh({"A": 0.2, "B": 0.8, "C": 0.0, "Temp": 170.0}, points=5)
+    assert ints["point"] == floats["point"]
+
+
 def test_fast_refresh_with_process_factor_and_pseudo_components():
     comps = [lw.Component("A", 0.1), lw.Component("B", 0.2), lw.Component("C")]
     mix = lw.simplex_lattice(comps, 3, randomize=False)  # 10 blends x 2 temperatures, 12 terms
