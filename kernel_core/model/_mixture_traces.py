@@ -210,7 +210,7 @@ def _node_rows(plan, PQ, Wb, tail):
         np.multiply(PQ[:q, 0::2], 1.0 / plan.divisor, out=PQ[q + 2:2 * q + 2, 0::2])
     if plan.tail:
         PQ[plan.first_process:-1, 1::2] = np.array(tail)[:, None]
-    return np.dot(PQ, Wb)
+    return PQ.dot(Wb)
 
 
 def _u_parts(plan, z):
@@ -248,9 +248,9 @@ def _u_parts(plan, z):
 def _u_nodes(plan, z):
     """The node rows of every line, (width, q (d + 1) + 1), from z = [x, u at s = 0, u at s = 1, process
     settings, 1] (no pure blend): the u-form parts by one product with the per-fit map, then ``[P | Q] [u; 1]``."""
-    flat = np.dot(z, plan.u_map)  # (the map stored (len(z), parts): the cheaper orientation of the product)
+    flat = z.dot(plan.u_map)  # (the map stored (len(z), parts): the cheaper orientation of the product)
     k = plan.u_split
-    return np.dot(flat[:k].reshape(plan.width, -1), flat[k:].reshape(2 * plan.q + 2, -1))
+    return flat[:k].reshape(plan.width, -1).dot(flat[k:].reshape(2 * plan.q + 2, -1))
 
 
 def _bounds_nodes(xs, T, lows, highs, tail, plan):
@@ -313,17 +313,17 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
         nodes = _lines_nodes(mixture, xs, tail, plan)
     flat = nodes  # (width, q (d + 1) + 1): lines 1..q, the blend last
     if plan.picks is not None:
-        both = np.dot(plan.fb_t, np.multiply.reduce(flat.take(plan.picks, axis=0), axis=0))  # [x F | mean]^T
+        both = plan.fb_t.dot(np.multiply.reduce(flat.take(plan.picks, axis=0), axis=0))  # [x F | mean]^T
     else:
-        both = np.dot(engine.rows(flat[q + 2:q + 2 + plan.k].T), engine._fb).T
+        both = engine.rows(flat[q + 2:q + 2 + plan.k].T).dot(engine._fb).T
     xf = both[:-1]
-    gram = np.dot(xf.T, xf)  # every pair of nodes; each line's (d + 1) x (d + 1) block on the diagonal
-    half = np.dot(gram.take(plan.blocks), plan.bands(points, c))  # c^2 h on the grid, (q, points)
+    gram = xf.T.dot(xf)  # every pair of nodes; each line's (d + 1) x (d + 1) block on the diagonal
+    half = gram.take(plan.blocks).dot(plan.bands(points, c))  # c^2 h on the grid, (q, points)
     ci = np.sqrt(half)
     half += c * c * engine.extra
     pi = np.sqrt(half, out=half)
     flat[W - 1] = both[-1]
-    across = np.dot(nodes[:, :-1].reshape(-1, n), plan.lagrange(points)).reshape(W, q, points)
+    across = nodes[:, :-1].reshape(-1, n).dot(plan.lagrange(points)).reshape(W, q, points)
     return across, ci, pi, both.item(-1), gram.item(-1)
 
 
