@@ -208,9 +208,9 @@ class MixtureEngine(PredictionEngine):
         if slice_axes is not None:
             raise LevelwiseError("A surface slice of a mixture fit is not available; use slice_axes=None "
                                  "(levelwise.ternary_slice draws three components).")
-        level = self._level(level)
-        if points is not None:
-            points = check_points(points)
+        level = self.level if level is None else self._level(level)
+        if points is not None and (type(points) is not int or not 2 <= points <= 100_000):
+            points = check_points(points)  # (raises, naming what arrived; a whole-number numpy value passes)
         fast = self._fast_lists(settings)
         if fast is None:
             fast = self.amounts(settings).tolist(), self.vector(settings).tolist()

@@ -83,6 +83,10 @@ class CoxPlan:
                                 for i in range(q)])  # line i + 1's node Gram in the (N, N) Gram, flat
         self.room_lo = [T - v for v in np.broadcast_to(m.declared_lows, (q,)).tolist()]
         self.room_hi = [T - v for v in np.broadcast_to(m.declared_highs, (q,)).tolist()]
+        # a region of bounds only (no other constraints): the slider path's u-form (see _bounds_nodes)
+        self.bounds_only = (np.broadcast_to(m.declared_lows, (q,)).astype(float).tolist(),
+                            np.broadcast_to(m.declared_highs, (q,)).astype(float).tolist()) \
+            if not len(m.G) and q <= 8 else None
         # the u-form of the lines (see _u_parts) is affine in z = [x, u at s = 0, u at s = 1, process settings]:
         # [P | Q], [u; 1] flat = z K (K's last row the constant part)
         self.offsets = offsets
@@ -256,25 +260,26 @@ def _u_nodes(plan, z):
 def _bounds_nodes(xs, T, lows, highs, tail, plan):
     """The node rows in a region of bounds only: u = (T - t) / (T - x_i) at the ends of the ranges of
     :func:`cox_ranges` in the same pass (plain Python), then :func:`_u_nodes`; None from a pure blend."""
-    q = len(xs)
     u1, u2, iu, d1, d2, idn = _best_two_ratios(xs, lows, highs)
     tiny = 1e-12 * T
-    ulo, uhi = [], []
-    room_lo, room_hi = plan.room_lo, plan.room_hi
-    for i in range(q):  # u at t = lo: min(ratio, (T - low_i) / rest); at t = hi: max(ratio, (T - high_i) / rest)
-        rest = T - xs[i]
+    z = xs.copy()  # then u at t = lo, u at t = hi, the process settings and 1
+    uhi = []
+    room_hi = plan.room_hi
+    for i, (x, room) in enumerate(zip(xs, plan.room_lo)):
+        # u at t = lo: min(ratio, (T - low_i) / rest); at t = hi: max(ratio, (T - high_i) / rest)
+        rest = T - x
         if rest <= tiny:
             return None
         a = u2 if i == iu else u1
-        b = room_lo[i] / rest
-        ulo.append(a if a < b else b)
+        b = room / rest
+        z.append(a if a < b else b)
         a = d2 if i == idn else d1
         b = room_hi[i] / rest
         uhi.append(a if a > b else b)
-    ulo += uhi
-    ulo += tail
-    ulo.append(1.0)
-    return _u_nodes(plan, np.array(xs + ulo))
+    z += uhi
+    z += tail
+    z.append(1.0)
+    return _u_nodes(plan, np.array(z))
 
 
 def _lines_nodes(mixture, xs, tail, plan):
@@ -300,17 +305,12 @@ def cox_polynomial_traces(engine, plan: CoxPlan, xs: list, variables: list, poin
     t, change; the last column the mean), ci and pi (q, points) the half-widths ``c sqrt(h)`` and
     ``c sqrt(h + extra)``, and the mean and h at the blend itself.
     """
-    mixture = engine.info.mixture
     q, W, n = plan.q, plan.width, plan.degree + 1
     tail = variables[q:]
-    if not len(mixture.G) and q <= 8:
-        lows, highs = mixture.__dict__.get("_bounds_lists") or mixture.__dict__.setdefault(
-            "_bounds_lists", (mixture.declared_lows.tolist(), mixture.declared_highs.tolist()))
-        nodes = _bounds_nodes(xs, plan.total, lows, highs, tail, plan)
-    else:
-        nodes = None
+    bounds = plan.bounds_only
+    nodes = None if bounds is None else _bounds_nodes(xs, plan.total, bounds[0], bounds[1], tail, plan)
     if nodes is None:
-        nodes = _lines_nodes(mixture, xs, tail, plan)
+        nodes = _lines_nodes(engine.info.mixture, xs, tail, plan)
     flat = nodes  # (width, q (d + 1) + 1): lines 1..q, the blend last
     if plan.picks is not None:
         both = plan.fb_t.dot(np.multiply.reduce(flat.take(plan.picks, axis=0), axis=0))  # [x F | mean]^T
