@@ -74,6 +74,23 @@ def test_non_finite_setting_at_prediction():
         result.predict({"A": 0.5})
 
 
+def test_int_beyond_the_float_range_is_refused_by_name():
+    # Python ints have no upper bound: 10**400 cannot become a float (OverflowError). Every path that reads a
+    # number refuses it as not finite, naming the factor, the row or the column, instead of raising OverflowError.
+    result = fit(small_data(), "y", "A + B")
+    huge = 10**400
+    with pytest.raises(LevelwiseError, match="setting for factor 'A' must be a finite number"):
+        result.predict({"A": huge, "B": 0.0})
+    with pytest.raises(LevelwiseError, match="setting for factor 'A' must be a finite number"):
+        result.refresh({"A": -huge, "B": 0.0})
+    with pytest.raises(LevelwiseError, match="'A' must hold finite numbers. Row 1 holds inf"):
+        result.predict({"A": [huge, 0.5], "B": [0.0, 0.0]})
+    data = small_data().astype({"y": object})
+    data.loc[2, "y"] = huge
+    with pytest.raises(LevelwiseError, match="response column 'y' must hold finite numbers. Row 3 holds inf"):
+        fit(data, "y", "A + B")
+
+
 def test_non_finite_setting_in_a_table_names_the_row():
     # A table of exactly the fit's float factors is read without a copy; a bad cell must still be
     # refused by row and factor, and the caller's table must come back unchanged.

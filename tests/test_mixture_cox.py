@@ -132,6 +132,8 @@ def test_fast_refresh_equals_the_general_path(setup):
     ({"A": 0.3, "B": 0.4, "C": 0.3}, "Temp"),  # a process factor missing
     ({"A": 0.3, "B": 0.4, "C": 0.3, "Temp": 175.0, "D": 0.0}, "'D'"),  # a name the model does not have
     ({"A": 0.3, "B": 0.4, "C": 0.4, "Temp": 175.0}, "sum"),
+    ({"A": 0.3, "B": 0.4, "C": 0.3, "Temp": 10**400}, "'Temp'"),  # an int beyond the float range
+    ({"A": 10**400, "B": 0.4, "C": 0.3, "Temp": 175.0}, "'A'"),
 ])
 def test_fast_refresh_refuses_what_the_checked_path_refuses(bad, named):
     # The slider fast path takes only dicts of plain finite numbers that make a valid blend; anything else goes to

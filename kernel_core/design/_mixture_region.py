@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, describe
+from .._numbers import float_values
 from ._factors import Factor, default_names
 
 #: Largest number of components (vertex enumeration is exponential in q).
@@ -303,7 +304,7 @@ class Mixture:
         if missing:
             raise LevelwiseError(f"The '{where}' are missing component(s) {missing}; a blend gives every component "
                                  f"of the mixture {self.names}.")
-        x = np.column_stack([pd.to_numeric(settings[n], errors="coerce").to_numpy(dtype=float) for n in self.names])
+        x = np.column_stack([float_values(settings[n]) for n in self.names])
         return self.check_blends(x, where, rows=np.arange(1, len(x) + 1))
 
     # -- geometry ------------------------------------------------------------------------------------------------

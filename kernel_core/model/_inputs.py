@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, describe
+from .._numbers import float_values
 
 #: Suffix of a column holding the achieved setting of a factor: ``"Oven (achieved)"``.
 ACHIEVED_SUFFIX = " (achieved)"
@@ -33,15 +34,14 @@ def _numeric_column(data: pd.DataFrame, column: str, role: str) -> np.ndarray:
         # A numpy float column holds numbers or NaN (empty) already: one copy, no conversion pass.
         array = values.to_numpy(dtype=float, copy=True)
     else:
-        converted = pd.to_numeric(values, errors="coerce")
-        bad = converted.isna() & values.notna()
+        array = float_values(values)  # (an int beyond the float range becomes +-inf, refused below)
+        bad = np.isnan(array) & values.notna().to_numpy()
         if bad.any():
-            row = bad.to_numpy().nonzero()[0][0]
+            row = bad.nonzero()[0][0]
             raise LevelwiseError(
                 f"The {role} column {column!r} must hold numbers. "
                 f"Row {row + 1} (index {data.index[row]!r}) holds {describe(values.iloc[row])} instead."
             )
-        array = converted.to_numpy(dtype=float, na_value=np.nan)
     # A finite sum rules out infinities in one pass; only a column with NaN or inf (or an overflowing
     # sum) is searched for the first infinity.
     if not math.isfinite(array.sum()) and (infinite := np.isinf(array)).any():

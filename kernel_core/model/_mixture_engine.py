@@ -21,8 +21,9 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, describe
+from .._numbers import finite_number, float_values
 from ._engine import PredictionEngine
-from ._mixture_traces import CoxPlan, cox_polynomial_traces, cox_ranges, cox_shares
+from ._mixture_traces import CoxPlan, bound_lists, cox_polynomial_traces, cox_ranges, cox_shares
 from ._settings import check_points
 
 _PLAIN = frozenset((float, int))  # the value types of the slider fast path
@@ -92,7 +93,7 @@ class MixtureEngine(PredictionEngine):
             variables = [(v - o) / divisor for v, o in zip(xs, offsets)]
         for j, (centre, half) in enumerate(process):
             value = row[q + j]
-            if not -math.inf < value < math.inf:  # NaN fails too
+            if not finite_number(value):  # NaN, infinities and ints beyond the float range: the checked path
                 return None
             variables.append((value - centre) / half)
         return xs, variables
@@ -124,8 +125,7 @@ class MixtureEngine(PredictionEngine):
             missing = [f.name for f in info.process if f.name not in frame.columns]
             if missing:
                 raise LevelwiseError(f"The 'settings' are missing process factor(s) {missing}.")
-            process = np.column_stack([pd.to_numeric(frame[f.name], errors="coerce").to_numpy(dtype=float)
-                                       for f in info.process])
+            process = np.column_stack([float_values(frame[f.name]) for f in info.process])
             if not np.isfinite(process).all():
                 j = int(np.argwhere(~np.isfinite(process))[0][1])
                 raise LevelwiseError(f"The setting for process factor {info.process[j].name!r} must be a finite "
@@ -290,8 +290,7 @@ def _cox_lines_bounds(mixture, r, eye):
     """:func:`_cox_lines` for a region of bounds only: the shares by :func:`cox_shares`, the ranges by
     :func:`cox_ranges` (plain Python: a few components)."""
     T = mixture.total
-    lows, highs = mixture.__dict__.get("_bounds_lists") or mixture.__dict__.setdefault(
-        "_bounds_lists", (mixture.declared_lows.tolist(), mixture.declared_highs.tolist()))
+    lows, highs = bound_lists(mixture)
     rv = r.tolist()
     share = cox_shares(rv, T)
     lo, hi = cox_ranges(rv, T, lows, highs)

@@ -84,9 +84,7 @@ class CoxPlan:
         self.room_lo = [T - v for v in np.broadcast_to(m.declared_lows, (q,)).tolist()]
         self.room_hi = [T - v for v in np.broadcast_to(m.declared_highs, (q,)).tolist()]
         # a region of bounds only (no other constraints): the slider path's u-form (see _bounds_nodes)
-        self.bounds_only = (np.broadcast_to(m.declared_lows, (q,)).astype(float).tolist(),
-                            np.broadcast_to(m.declared_highs, (q,)).astype(float).tolist()) \
-            if not len(m.G) and q <= 8 else None
+        self.bounds_only = bound_lists(m) if not len(m.G) and q <= 8 else None
         # the u-form of the lines (see _u_parts) is affine in z = [x, u at s = 0, u at s = 1, process settings]:
         # [P | Q], [u; 1] flat = z K (K's last row the constant part)
         self.offsets = offsets
@@ -129,6 +127,18 @@ class CoxPlan:
                 self._bands.clear()
             self._bands[key] = cached
         return cached
+
+
+def bound_lists(mixture) -> tuple:
+    """The declared lower and upper bounds of every component as two lists of floats (kept on the mixture: the
+    plain-Python range rule reads them on every event)."""
+    cached = mixture.__dict__.get("_bounds_lists")
+    if cached is None:
+        q = mixture.q
+        cached = mixture.__dict__["_bounds_lists"] = (
+            np.broadcast_to(mixture.declared_lows, (q,)).astype(float).tolist(),
+            np.broadcast_to(mixture.declared_highs, (q,)).astype(float).tolist())
+    return cached
 
 
 def _picks(engine, columns, one):

@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 
 from .._errors import LevelwiseError, describe
+from .._numbers import finite_number, finite_sum
 from ._inputs import _level_indices, _numeric_column
 
 _PLAIN_TYPES = frozenset((int, float, np.float64, np.float32, np.int64, np.int32))
@@ -86,7 +87,7 @@ class SettingsCheck:
             except KeyError:
                 row = None
             # Plain numbers whose sum is finite are each finite (an overflowing sum just takes the checks below).
-            if row is not None and _PLAIN_TYPES.issuperset(map(type, row)) and math.isfinite(sum(row)):
+            if row is not None and _PLAIN_TYPES.issuperset(map(type, row)) and finite_sum(row):
                 return np.array(row, dtype=float)
         self._refuse_names(settings)
         self._refuse_missing(settings, free)
@@ -109,7 +110,7 @@ class SettingsCheck:
                 vector[j] = self._defaults[j]
                 continue
             if isinstance(value, bool) or not isinstance(value, (int, float, np.integer, np.floating)) \
-                    or not math.isfinite(value):
+                    or not finite_number(value):
                 raise LevelwiseError(
                     f"The setting for factor {name!r} must be a finite number. Got {describe(value)} instead."
                 )
